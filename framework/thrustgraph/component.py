@@ -1,0 +1,325 @@
+"""Component kinds: what a device family declares and what it hands to the integrator.
+
+A *component kind* is a class registered by a plugin (see :mod:`thrustgraph.hookspecs`).
+It declares typed parameters, its state variables and its discrete modes, and at
+assembly it *builds* plain Python callables that the balance calls on every
+right-hand-side evaluation. The kind is never consulted during integration.
+
+Roles
+-----
+``body``
+    Carries fixed mass and may add an external force (drag, friction). Example:
+    an airframe.
+``volume``
+    Holds state (liquid mass, gas mass) and reports its outlet condition.
+    Example: a pressurised liquid tank.
+``flow``
+    Sits on a path between a volume and the surroundings (or another volume)
+    and sets the mass flow from the states on either side. Example: a nozzle.
+``jet``
+    A self-contained propulsive source with a prescribed mass flow and
+    exhaust velocity (or thrust) history; it holds its own propellant.
+``boundary``
+    The surroundings. Every path that reaches it crosses the control surface
+    and contributes a momentum flux to the vehicle balance.
+
+The implementer's contract
+--------------------------
+1. Set ``kind`` (lower case words joined by hyphens, unique across plugins),
+   ``role``, ``summary`` and ``parameters`` (a tuple of
+   :mod:`thrustgraph.parameters` specs). Values reach you as SI floats in a
+   frozen dataclass ``p``.
+2. Volumes and jets declare ``states`` (tuple of :class:`StateVar`) and
+   ``modes`` (tuple of :class:`Mode`); the first mode is the default.
+3. Override :meth:`ComponentKind.check` to refuse parameter combinations that
+   make no physical sense; raise :class:`~thrustgraph.errors.ModelError` naming
+   the parameter and the fix.
+4. Override the ``build_*`` method of your role. It runs once per assembly and
+   returns a bundle of callables (:class:`BodyFns`, :class:`VolumeFns`,
+   :class:`FlowFns`, :class:`JetFns`). ``i`` is the offset of your first state in
+   the flat state list ``s`` those callables receive; ``amb`` the ambient
+   conditions at the launch point.
+5. The callables take and return plain floats and tuples. They must not mutate
+   anything: adaptive solvers evaluate trial stages and reject steps.
+6. Write physics without ``if`` on state values where you can (``ops.where``,
+   ``ops.maximum``, clipping arguments of square roots), so the same code can
+   run over numpy arrays of designs.
+7. Units inside are SI: Pa, K, kg, m, s, kg/m^3, N.
+8. Return safety cautions for the model from :meth:`ComponentKind.cautions`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any, Callable, ClassVar, Sequence
+
+from .parameters import Spec, make_params_class
+
+__all__ = [
+    "ROLES", "StateVar", "Mode", "EventSpec", "Outlet", "BodyFns", "VolumeFns", "FlowFns", "JetFns",
+    "ComponentKind", "EnvironmentKind", "ScalarOps", "scalar_ops", "Ambient",
+]
+
+ROLES = ("body", "volume", "flow", "jet", "boundary")
+
+
+@dataclass(frozen=True)
+class StateVar:
+    """A state variable a component integrates: name, SI unit, meaning."""
+
+    name: str
+    unit: str
+    doc: str = ""
+
+
+@dataclass(frozen=True)
+class Mode:
+    """A discrete operating mode of a component.
+
+    ``label`` names the flight phase while the mode is active (e.g. "liquid
+    thrust"); ``propulsive`` says whether the component can push in it.
+    """
+
+    name: str
+    label: str
+    propulsive: bool = True
+
+
+@dataclass(frozen=True)
+class EventSpec:
+    """A continuous event function of a component, in the sense of solve_ivp.
+
+    ``fn(t, s, drive)`` returns a float whose zero crossing in ``direction``
+    (-1 falling, +1 rising, 0 either) triggers the event while the component is
+    in one of the modes ``when``. ``drive`` is the pressure difference that
+    pushes fluid out of the component's outlet (Pa), supplied by the balance.
+    On the event the component switches to mode ``to`` (a mode name), or the
+    flight stops when ``to`` is None.
+    """
+
+    name: str
+    fn: Callable[[float, list, float], float]
+    direction: float
+    when: tuple[str, ...]
+    to: str | None
+
+
+@dataclass(frozen=True)
+class Ambient:
+    """Ambient conditions at the launch point, for initial states (SI)."""
+
+    pressure: float
+    temperature: float
+    density: float
+
+
+class ScalarOps:
+    """Elementwise helpers for plain floats; the array twin uses numpy.
+
+    Physics written against these helpers runs on scalars (single flights)
+    and on numpy arrays (ensembles) unchanged.
+
+    >>> scalar_ops.where(True, 1.0, 2.0), scalar_ops.maximum(-1.0, 0.0)
+    (1.0, 0.0)
+    """
+
+    sqrt = staticmethod(math.sqrt)
+    exp = staticmethod(math.exp)
+    log = staticmethod(math.log)
+
+    @staticmethod
+    def where(c: Any, a: Any, b: Any) -> Any:
+        return a if c else b
+
+    @staticmethod
+    def maximum(a: float, b: float) -> float:
+        return a if a > b else b
+
+    @staticmethod
+    def minimum(a: float, b: float) -> float:
+        return a if a < b else b
+
+    @staticmethod
+    def interp(x: float, xp: Any, fp: Any) -> float:
+        import numpy as np
+        return float(np.interp(x, xp, fp))
+
+
+scalar_ops = ScalarOps()
+
+# Outlet condition of a volume: (p, T, rho, gamma, R, liquid, head)
+#   p      static pressure at the outlet without liquid head, Pa
+#   T      temperature of what flows out, K
+#   rho    density of what flows out, kg/m^3
+#   gamma  ratio of specific heats of the gas (ignored for liquid)
+#   R      specific gas constant, J/(kg K) (ignored for liquid)
+#   phase  1.0 when liquid flows out, 0.0 for gas, -1.0 when the outlet is shut
+#   head   rho_liquid * h, kg/m^2: the outlet pressure is p + head * (f . d),
+#          f the apparent acceleration g - a and d the outlet direction
+Outlet = tuple
+
+
+@dataclass(frozen=True)
+class BodyFns:
+    """What a body contributes.
+
+    ``force(air)`` receives ``(rho, p_a, T_a, vrx, vry, vrz, speed)`` (ambient
+    density, pressure, temperature, the air velocity relative to the vehicle
+    subtracted from the vehicle velocity, i.e. the vehicle's velocity through
+    the air, and its magnitude) and returns a force (Fx, Fy, Fz) in N, or the
+    attribute is None.
+    """
+
+    mass: float
+    force: Callable[[tuple], tuple] | None = None
+    force_name: str = "drag"
+
+
+@dataclass(frozen=True)
+class VolumeFns:
+    """What a volume contributes.
+
+    mass(s) -> kg; outlet(s, mode) -> Outlet; derivs(s, mode, mdot_out) -> tuple
+    of state derivatives; internal(s, mode, mdot_out) -> (speed of the contents
+    toward the outlet in m/s, mass moving at that speed in kg), or None when
+    the internal-momentum term is off;
+    signals(s, mode) -> dict of named SI values for results; events -> specs.
+    ``outlet_dir`` is the body-frame direction from the contents toward the
+    outlet (for the liquid head and the internal momentum).
+    """
+
+    mass: Callable[[list], float]
+    outlet: Callable[[list, int], tuple]
+    derivs: Callable[[list, int, float], tuple]
+    signals: Callable[[list, int], dict]
+    outlet_dir: tuple[float, float, float] = (-1.0, 0.0, 0.0)
+    internal: Callable[[list, int, float], tuple] | None = None
+    events: tuple[EventSpec, ...] = ()
+
+
+@dataclass(frozen=True)
+class FlowFns:
+    """What a flow element contributes.
+
+    ``flow(up, p_down)`` receives the upstream outlet condition (with the
+    liquid head already added to its pressure) and the downstream static
+    pressure, and returns ``(mdot, v_e, p_e, A_e, dthrust_dp)``: mass flow
+    (kg/s, >= 0), exit velocity relative to the vehicle (m/s), exit pressure
+    (Pa), exit area over which p_e acts (m^2), and the derivative of the thrust
+    magnitude with respect to the upstream pressure (N/Pa; used to solve the
+    head-acceleration coupling). ``jet_dir`` is the body-frame direction of the
+    exhaust.
+    """
+
+    flow: Callable[[tuple, float], tuple]
+    jet_dir: tuple[float, float, float] = (-1.0, 0.0, 0.0)
+
+
+@dataclass(frozen=True)
+class JetFns:
+    """What a prescribed jet contributes.
+
+    jet(t, s, mode, p_a) -> (mdot, v_e, p_e, A_e); mass(s) -> kg;
+    derivs(t, s, mode, mdot) -> tuple; signals(t, s, mode) -> dict.
+    """
+
+    mass: Callable[[list], float]
+    jet: Callable[[float, list, int, float], tuple]
+    derivs: Callable[[float, list, int, float], tuple]
+    signals: Callable[[float, list, int], dict]
+    jet_dir: tuple[float, float, float] = (-1.0, 0.0, 0.0)
+    events: tuple[EventSpec, ...] = ()
+
+
+class ComponentKind:
+    """Base class of every device kind. See the module docstring for the contract."""
+
+    kind: ClassVar[str] = ""
+    role: ClassVar[str] = ""
+    summary: ClassVar[str] = ""
+    parameters: ClassVar[tuple[Spec, ...]] = ()
+    states: ClassVar[tuple[StateVar, ...]] = ()
+    modes: ClassVar[tuple[Mode, ...]] = ()
+    stores_pressure: ClassVar[bool] = False
+    _params_class: ClassVar[type | None] = None
+
+    @classmethod
+    def params_class(cls) -> type:
+        """The frozen dataclass holding this kind's SI parameter values."""
+        if cls.__dict__.get("_params_class") is None:
+            cls._params_class = make_params_class(cls.kind or cls.__name__, cls.parameters)
+        return cls._params_class  # type: ignore[return-value]
+
+    # --- validation -------------------------------------------------------
+    @classmethod
+    def check(cls, p: Any, where: str) -> None:
+        """Refuse parameter combinations that make no physical sense."""
+
+    @classmethod
+    def cautions(cls, p: Any) -> list[str]:
+        """Safety cautions this component adds to a model that uses it."""
+        return []
+
+    # --- initial state ------------------------------------------------------
+    @classmethod
+    def initial_state(cls, p: Any, amb: Ambient) -> tuple[float, ...]:
+        """Initial values of ``states`` in SI."""
+        return ()
+
+    @classmethod
+    def initial_mode(cls, p: Any, amb: Ambient) -> str:
+        """Name of the mode the component starts in."""
+        return cls.modes[0].name if cls.modes else ""
+
+    @classmethod
+    def describe_mass(cls, p: Any, amb: Ambient) -> dict[str, float]:
+        """Mass breakdown at launch, kg, for validation listings."""
+        return {}
+
+    # --- builders (one per role) ----------------------------------------------
+    @classmethod
+    def build_body(cls, p: Any, ops: Any) -> BodyFns:  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    @classmethod
+    def build_volume(cls, p: Any, i: int, ops: Any, amb: Ambient) -> VolumeFns:  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    @classmethod
+    def build_flow(cls, p: Any, ops: Any) -> FlowFns:  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    @classmethod
+    def build_jet(cls, p: Any, i: int, ops: Any, amb: Ambient) -> JetFns:  # pragma: no cover - abstract
+        raise NotImplementedError
+
+
+class EnvironmentKind:
+    """Base class of environment models: a medium or a gravity field.
+
+    ``slot`` is ``"medium"`` or ``"gravity"``. For a medium, :meth:`build`
+    returns ``fn(z, t) -> (rho, p, T, wind_x, wind_y, wind_z)`` in SI at
+    altitude ``z`` (m above the launch datum) and time ``t``. For gravity it
+    returns ``fn(z) -> g`` (m/s^2, acting along -z).
+    """
+
+    kind: ClassVar[str] = ""
+    slot: ClassVar[str] = ""
+    summary: ClassVar[str] = ""
+    parameters: ClassVar[tuple[Spec, ...]] = ()
+    _params_class: ClassVar[type | None] = None
+
+    @classmethod
+    def params_class(cls) -> type:
+        if cls.__dict__.get("_params_class") is None:
+            cls._params_class = make_params_class(cls.kind or cls.__name__, cls.parameters)
+        return cls._params_class  # type: ignore[return-value]
+
+    @classmethod
+    def check(cls, p: Any, where: str) -> None:
+        """Refuse parameter combinations that make no physical sense."""
+
+    @classmethod
+    def build(cls, p: Any, ops: Any) -> Callable:  # pragma: no cover - abstract
+        raise NotImplementedError

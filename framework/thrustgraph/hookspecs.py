@@ -1,0 +1,110 @@
+"""The hook specifications of thrustgraph: the whole plugin contract in one place.
+
+A plugin is a module (or object) with functions marked ``@hookimpl`` whose
+names match the specs below, made known through the ``thrustgraph`` entry-point
+group (``[project.entry-points.thrustgraph]`` in its pyproject.toml). The
+built-in device families use that same group.
+
+Every hook is called at load, validation or assembly time, never from inside
+the integrator's right-hand side: the callables a component kind builds are
+collected once, when a vehicle is assembled.
+
+Examples
+--------
+>>> from thrustgraph import hookimpl
+>>> class MyFamily:
+...     @hookimpl
+...     def thrustgraph_component_kinds(self):
+...         return []
+>>> from thrustgraph.plugins import get_plugin_manager
+>>> pm = get_plugin_manager(autoload=False)
+>>> pm.register(MyFamily(), name="my-family") == "my-family"
+True
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING, Any, Sequence
+
+import pluggy
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .component import ComponentKind, EnvironmentKind
+    from .model import Model
+
+__all__ = ["hookspec", "hookimpl", "PROJECT"]
+
+PROJECT = "thrustgraph"
+hookspec = pluggy.HookspecMarker(PROJECT)
+hookimpl = pluggy.HookimplMarker(PROJECT)
+
+
+# ---------------------------------------------------------------------------
+# Registration: called once per plugin manager, when a model is loaded or a
+# vehicle assembled.
+# ---------------------------------------------------------------------------
+
+@hookspec
+def thrustgraph_component_kinds() -> Sequence[type["ComponentKind"]]:
+    """Declare the component kinds (device types) a plugin provides.
+
+    Called once per plugin manager; every implementation is called and the
+    results are merged into one table keyed by ``kind``. Two plugins declaring
+    the same kind is an error naming both.
+
+    Returns
+    -------
+    sequence of ComponentKind subclasses
+        Each with its ``kind``, ``role``, typed ``parameters`` (units, bounds,
+        defaults), ``states`` and ``modes``.
+    """
+
+
+@hookspec
+def thrustgraph_environment_kinds() -> Sequence[type["EnvironmentKind"]]:
+    """Declare environment models: media (air, water, vacuum) and gravity fields.
+
+    Called once per plugin manager; all results are merged by ``kind``, and
+    duplicates are refused. Media build ``fn(z, t) -> (rho [kg/m^3], p [Pa],
+    T [K], wind_x, wind_y, wind_z [m/s])``; gravity fields build
+    ``fn(z) -> g [m/s^2]``.
+
+    Returns
+    -------
+    sequence of EnvironmentKind subclasses
+    """
+
+
+# ---------------------------------------------------------------------------
+# Validation: called once per model, after parameters are parsed and the
+# graph is checked, before any integration.
+# ---------------------------------------------------------------------------
+
+@hookspec
+def thrustgraph_check_model(model: "Model") -> Sequence[str]:
+    """Check a whole parsed model for problems a single component cannot see.
+
+    Called once per validation with the parsed :class:`~thrustgraph.model.Model`
+    (SI values in ``model.params``). Every implementation is called.
+
+    Returns
+    -------
+    sequence of str
+        Error messages, each naming the component and parameter and how to fix
+        it; an empty sequence when the model is fine. Any message stops the run.
+    """
+
+
+@hookspec
+def thrustgraph_cautions(model: "Model") -> Sequence[str]:
+    """Add safety cautions for a model (stored pressure, flight, range safety).
+
+    Called once per validation and per report; every implementation is called
+    and the cautions are shown together with those the component kinds give.
+    Cautions never state a safe rating.
+
+    Returns
+    -------
+    sequence of str
+        Plain-English cautions.
+    """

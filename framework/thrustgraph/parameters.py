@@ -1,0 +1,245 @@
+"""Typed parameter declarations for component and environment kinds.
+
+A kind declares its parameters as a tuple of specs. Each spec knows its unit,
+its bounds and its default, parses what a user wrote into SI (or an SI
+``numpy`` array for tables) and names the key path in every error.
+
+Examples
+--------
+>>> volume = Quantity("volume", "L", default="2 L", low=0.0, low_open=True,
+...                   doc="internal volume of the vessel")
+>>> volume.parse("500 mL", where="components.bottle.volume")
+0.0005
+>>> volume.parse("0 L", where="components.bottle.volume")
+Traceback (most recent call last):
+...
+thrustgraph.errors.ModelError: components.bottle.volume: must be greater than 0 L, got '0 L'. Fix: internal volume of the vessel; give a value greater than 0 L.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from dataclasses import dataclass, field
+from typing import Any, Sequence
+
+import numpy as np
+
+from .errors import ModelError
+from .units import Q_, to_si
+
+__all__ = ["Spec", "Quantity", "Number", "Choice", "Flag", "Vector", "Table", "make_params_class", "parse_params"]
+
+
+@dataclass(frozen=True)
+class Spec:
+    """Common fields of every parameter declaration."""
+
+    name: str
+    doc: str = field(default="", kw_only=True)
+
+    @property
+    def required(self) -> bool:
+        return getattr(self, "default", None) is None
+
+    def parse(self, value: Any, *, where: str) -> Any:  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    def describe(self) -> str:
+        """One line: unit, bounds and default, for listings."""
+        return self.doc
+
+
+@dataclass(frozen=True)
+class Quantity(Spec):
+    """A physical quantity with a unit, optional bounds and default.
+
+    Bounds are given in the declared ``unit`` and checked after conversion.
+    """
+
+    unit: str = ""
+    default: Any = field(default=None, kw_only=True)
+    low: float | None = field(default=None, kw_only=True)
+    high: float | None = field(default=None, kw_only=True)
+    low_open: bool = field(default=False, kw_only=True)
+    high_open: bool = field(default=False, kw_only=True)
+
+    def _bound_si(self, b: float) -> float:
+        return float(Q_(b, self.unit).to_base_units().magnitude) if self.unit else float(b)
+
+    def parse(self, value: Any, *, where: str) -> float:
+        x = to_si(value, self.unit, where=where)
+        u = f" {self.unit}" if self.unit else ""
+        if self.low is not None:
+            lo = self._bound_si(self.low)
+            if x < lo or (self.low_open and x == lo):
+                word = "greater than" if self.low_open else "at least"
+                raise ModelError(where, f"must be {word} {self.low:g}{u}, got {value!r}",
+                                 f"{self.doc or self.name}; give a value {word} {self.low:g}{u}")
+        if self.high is not None:
+            hi = self._bound_si(self.high)
+            if x > hi or (self.high_open and x == hi):
+                word = "less than" if self.high_open else "at most"
+                raise ModelError(where, f"must be {word} {self.high:g}{u}, got {value!r}",
+                                 f"{self.doc or self.name}; give a value {word} {self.high:g}{u}")
+        return x
+
+    def describe(self) -> str:
+        u = self.unit or "-"
+        lo = "(" if self.low_open else "["
+        hi = ")" if self.high_open else "]"
+        rng = f"{lo}{'-inf' if self.low is None else format(self.low, 'g')}, " \
+              f"{'inf' if self.high is None else format(self.high, 'g')}{hi}"
+        d = "required" if self.default is None else f"default {self.default}"
+        return f"{self.doc} [{u}] range {rng}, {d}"
+
+
+def Number(name: str, *, default: Any = None, low: float | None = None, high: float | None = None,
+           low_open: bool = False, high_open: bool = False, doc: str = "") -> Quantity:
+    """A dimensionless quantity (a coefficient, a ratio, an exponent)."""
+    return Quantity(name=name, doc=doc, unit="", default=default, low=low, high=high,
+                    low_open=low_open, high_open=high_open)
+
+
+@dataclass(frozen=True)
+class Choice(Spec):
+    """One of a fixed set of words."""
+
+    options: tuple[str, ...] = field(default=(), kw_only=True)
+    default: str | None = field(default=None, kw_only=True)
+
+    def parse(self, value: Any, *, where: str) -> str:
+        if not isinstance(value, str) or value not in self.options:
+            import difflib
+
+            close = difflib.get_close_matches(str(value), self.options, n=1)
+            hint = f"did you mean {close[0]!r}? " if close else ""
+            raise ModelError(where, f"expected one of {', '.join(map(repr, self.options))}, got {value!r}",
+                             f"{hint}choose one of the listed words")
+        return value
+
+    def describe(self) -> str:
+        return f"{self.doc} one of {'/'.join(self.options)}, default {self.default}"
+
+
+@dataclass(frozen=True)
+class Flag(Spec):
+    """A yes/no switch."""
+
+    default: bool | None = field(default=None, kw_only=True)
+
+    def parse(self, value: Any, *, where: str) -> bool:
+        if not isinstance(value, bool):
+            raise ModelError(where, f"expected true or false, got {value!r}", "write true or false (no quotes)")
+        return value
+
+    def describe(self) -> str:
+        return f"{self.doc} true/false, default {str(self.default).lower()}"
+
+
+@dataclass(frozen=True)
+class Vector(Spec):
+    """A direction in the vehicle's body frame (x forward along the axis), normalised."""
+
+    default: tuple[float, float, float] | None = field(default=None, kw_only=True)
+
+    def parse(self, value: Any, *, where: str) -> tuple[float, float, float]:
+        ok = isinstance(value, (list, tuple)) and len(value) == 3 and all(
+            isinstance(c, (int, float)) and not isinstance(c, bool) and math.isfinite(c) for c in value)
+        if not ok:
+            raise ModelError(where, f"expected a direction of three numbers [x, y, z], got {value!r}",
+                             "write e.g. [-1, 0, 0] for a jet pointing aft along the body axis")
+        n = math.sqrt(sum(float(c) ** 2 for c in value))
+        if n == 0.0:
+            raise ModelError(where, "the direction [0, 0, 0] has no length", "give a non-zero direction")
+        return tuple(float(c) / n for c in value)  # type: ignore[return-value]
+
+    def describe(self) -> str:
+        return f"{self.doc} body-frame direction [x, y, z], default {list(self.default or ())}"
+
+
+@dataclass(frozen=True)
+class Table(Spec):
+    """A table of rows with a unit per column, written as
+    ``{ units = ["s", "N"], rows = [[0, 0], [0.1, 12.5]] }``.
+
+    ``default="absent"`` makes the table optional (parsed as None).
+
+    The first column must increase strictly. The parsed value is an SI array of
+    shape ``(rows, columns)``.
+    """
+
+    columns: tuple[tuple[str, str], ...] = field(default=(), kw_only=True)
+    default: Any = field(default=None, kw_only=True)
+    min_rows: int = field(default=2, kw_only=True)
+
+    def parse(self, value: Any, *, where: str) -> np.ndarray | None:
+        if value == "absent":
+            return None
+        names = ", ".join(f"{n} [{u}]" for n, u in self.columns)
+        fix = f'write {{ units = [{", ".join(repr(u) for _, u in self.columns)}], rows = [[...], ...] }} with columns {names}'
+        if not isinstance(value, dict) or set(value) != {"units", "rows"}:
+            raise ModelError(where, f"expected a table with keys 'units' and 'rows', got {value!r}", fix)
+        units, rows = value["units"], value["rows"]
+        if not isinstance(units, list) or len(units) != len(self.columns):
+            raise ModelError(f"{where}.units", f"expected {len(self.columns)} units ({names}), got {units!r}", fix)
+        if not isinstance(rows, list) or len(rows) < self.min_rows:
+            raise ModelError(f"{where}.rows", f"expected at least {self.min_rows} rows, got {rows!r}", fix)
+        scale = []
+        for k, ((cname, cunit), u) in enumerate(zip(self.columns, units)):
+            scale.append(to_si(f"1 {u}", cunit, where=f"{where}.units[{k}]"))
+        out = np.empty((len(rows), len(self.columns)))
+        for i, row in enumerate(rows):
+            if not isinstance(row, list) or len(row) != len(self.columns) or not all(
+                    isinstance(c, (int, float)) and not isinstance(c, bool) for c in row):
+                raise ModelError(f"{where}.rows[{i}]", f"expected {len(self.columns)} numbers, got {row!r}", fix)
+            out[i] = [float(c) * s for c, s in zip(row, scale)]
+        if not np.all(np.isfinite(out)):
+            raise ModelError(f"{where}.rows", "contains a value that is not finite", "remove inf/nan entries")
+        if np.any(np.diff(out[:, 0]) <= 0):
+            i = int(np.argmax(np.diff(out[:, 0]) <= 0)) + 1
+            raise ModelError(f"{where}.rows[{i}]", f"the {self.columns[0][0]} column must increase strictly",
+                             "sort the rows and remove duplicates")
+        out.setflags(write=False)
+        return out
+
+    def describe(self) -> str:
+        return f"{self.doc} table with columns " + ", ".join(f"{n} [{u}]" for n, u in self.columns)
+
+
+def make_params_class(kind: str, specs: Sequence[Spec]) -> type:
+    """Build the frozen dataclass that holds one component's SI parameter values.
+
+    >>> P = make_params_class("demo", [Quantity("volume", "L", default="1 L")])
+    >>> P(volume=0.001)
+    demo_params(volume=0.001)
+    """
+    fields = [(s.name, Any, field()) for s in specs]
+    return dataclasses.make_dataclass(f"{kind.replace('-', '_')}_params", fields, frozen=True)
+
+
+def parse_params(specs: Sequence[Spec], raw: dict[str, Any], *, where: str,
+                 params_class: type | None = None) -> Any:
+    """Parse a raw mapping of user values against specs, filling defaults.
+
+    Unknown keys are refused with the closest valid name suggested.
+    """
+    import difflib
+
+    names = [s.name for s in specs]
+    for key in raw:
+        if key not in names:
+            close = difflib.get_close_matches(key, names, n=1)
+            hint = f"did you mean {close[0]!r}?" if close else f"valid names: {', '.join(names) or '(none)'}"
+            raise ModelError(f"{where}.{key}", "unknown parameter", hint)
+    values = {}
+    for s in specs:
+        if s.name in raw:
+            values[s.name] = s.parse(raw[s.name], where=f"{where}.{s.name}")
+        elif getattr(s, "default", None) is not None:
+            values[s.name] = s.parse(s.default, where=f"{where}.{s.name} (default)")
+        else:
+            raise ModelError(f"{where}.{s.name}", "is required but missing",
+                             f"add {s.name} = ... ({s.describe()})")
+    cls = params_class or make_params_class("params", specs)
+    return cls(**values)

@@ -1,0 +1,201 @@
+"""The flight result: arrays, phases, events, the balance ledger and the closure audits.
+
+A :class:`FlightResult` is built in one place (:func:`thrustgraph.integrate.integrate`)
+and has fixed fields. Signals are SI numpy arrays; :meth:`FlightResult.quantity`
+returns them as pint quantities for people.
+
+Examples
+--------
+>>> from thrustgraph import fly
+>>> r = fly()                      # the bundled bottle rocket
+>>> r.success, r.phases[0].name
+(True, 'liquid thrust')
+>>> r.quantity("altitude").max().to("m").units
+<Unit('meter')>
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .units import Q_
+
+__all__ = ["Phase", "Event", "Audit", "FlightResult", "SIGNAL_UNITS"]
+
+# SI unit of every standard signal (vectors carry the unit of their components).
+SIGNAL_UNITS = {
+    "mass": "kg", "thrust": "N", "thrust_vector": "N", "acceleration": "m/s^2", "acceleration_magnitude": "m/s^2",
+    "velocity": "m/s", "speed": "m/s", "airspeed": "m/s", "position": "m", "altitude": "m", "range": "m",
+    "mass_flow": "kg/s", "weight": "N", "reaction": "N", "ambient_pressure": "Pa", "ambient_density": "kg/m^3",
+    "axis": "", "flight_path_angle": "rad",
+}
+_SUFFIX_UNITS = {
+    "mass_flow": "kg/s", "exit_velocity": "m/s", "exit_pressure": "Pa", "thrust": "N", "drag": "N",
+    "pressure": "Pa", "temperature": "K", "head_pressure": "Pa", "outlet_pressure": "Pa", "drive": "Pa",
+    "liquid_mass": "kg", "gas_mass": "kg", "liquid_volume": "m^3", "propellant_mass": "kg",
+    "internal_momentum": "kg*m/s", "gas_volume": "m^3", "liquid_height": "m",
+}
+
+
+@dataclass(frozen=True)
+class Phase:
+    """A stretch of flight with one set of modes: name, start and end time (s)."""
+
+    name: str
+    t_start: float
+    t_end: float
+
+    @property
+    def duration(self) -> float:
+        return self.t_end - self.t_start
+
+
+@dataclass(frozen=True)
+class Event:
+    """Something that happened: time (s), what, which component, a detail line."""
+
+    t: float
+    name: str
+    component: str = "vehicle"
+    detail: str = ""
+
+
+@dataclass(frozen=True)
+class Audit:
+    """Closure residuals of a run.
+
+    mass_residual : initial mass - final mass - integral of the outflow, kg
+    mass_relative : the same divided by the initial mass
+    momentum_residual : vehicle momentum + internal momentum + momentum carried
+        away by the exhaust (ground frame) - initial momentum - impulse of the
+        external forces, kg m/s (3-vector)
+    momentum_relative : its magnitude divided by the largest momentum scale
+    """
+
+    mass_residual: float
+    mass_relative: float
+    momentum_residual: tuple[float, float, float]
+    momentum_relative: float
+
+
+@dataclass
+class FlightResult:
+    """Everything a flight produced.
+
+    Fields
+    ------
+    t : (n,) times, s; a phase boundary appears twice (left and right values)
+    y : (n_states, n) states
+    state_names : names of the rows of ``y``
+    signals : name -> (n,) or (n, 3) SI array
+    ledger : (component, term) -> (n, 3) force of that term, N; their sum is M a
+    phases, events : what happened when
+    audit : closure residuals
+    success, status, message : how the run ended (status 0 ended normally)
+    nfev : right-hand-side evaluations
+    summary : headline numbers in SI (see :meth:`summary_quantities`)
+    cautions : safety cautions of the model
+    provenance : tool and plugin versions, model hash
+    """
+
+    t: np.ndarray
+    y: np.ndarray
+    state_names: tuple[str, ...]
+    signals: dict[str, np.ndarray]
+    ledger: dict[tuple[str, str], np.ndarray]
+    phases: list[Phase]
+    events: list[Event]
+    audit: Audit
+    success: bool
+    status: int
+    message: str
+    nfev: int
+    summary: dict[str, float] = field(default_factory=dict)
+    cautions: list[str] = field(default_factory=list)
+    provenance: dict[str, Any] = field(default_factory=dict)
+
+    # -- access ------------------------------------------------------------
+    @staticmethod
+    def unit_of(name: str) -> str:
+        """SI unit of a signal name."""
+        if name in SIGNAL_UNITS:
+            return SIGNAL_UNITS[name]
+        suffix = name.rsplit(".", 1)[-1]
+        return _SUFFIX_UNITS.get(suffix, "")
+
+    def signal(self, name: str) -> np.ndarray:
+        """A signal as an SI array; raises KeyError listing the valid names."""
+        if name not in self.signals:
+            raise KeyError(f"no signal {name!r}; available: {', '.join(sorted(self.signals))}")
+        return self.signals[name]
+
+    def quantity(self, name: str):
+        """A signal as a pint quantity array."""
+        return Q_(self.signal(name), self.unit_of(name))
+
+    def state(self, name: str) -> np.ndarray:
+        """One row of ``y`` by state name (e.g. ``bottle.liquid_mass``)."""
+        return self.y[self.state_names.index(name)]
+
+    def phase_at(self, t: float) -> str:
+        for ph in self.phases:
+            if ph.t_start <= t <= ph.t_end:
+                return ph.name
+        return ""
+
+    # -- export ------------------------------------------------------------
+    def columns(self) -> list[tuple[str, str, np.ndarray]]:
+        """Flat columns (header, unit, values) of every scalar signal and vector component."""
+        cols = [("time", "s", self.t)]
+        for name in sorted(self.signals):
+            arr = self.signals[name]
+            unit = self.unit_of(name)
+            if arr.ndim == 1:
+                cols.append((name, unit, arr))
+            else:
+                for k, c in enumerate("xyz"):
+                    cols.append((f"{name}.{c}", unit, arr[:, k]))
+        for (comp, term), arr in sorted(self.ledger.items()):
+            for k, c in enumerate("xyz"):
+                cols.append((f"ledger.{comp}.{term.replace(' ', '_')}.{c}", "N", arr[:, k]))
+        return cols
+
+    def to_csv(self) -> str:
+        """CSV text: one row per output time; headers carry units as ``name [unit]``."""
+        cols = self.columns()
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        w.writerow([f"{n} [{u}]" if u else n for n, u, _ in cols] + ["phase"])
+        data = np.column_stack([c for _, _, c in cols])
+        for i, row in enumerate(data):
+            w.writerow([repr(float(v)) for v in row] + [self.phase_at(float(self.t[i]))])
+        return buf.getvalue()
+
+    def to_json(self) -> str:
+        """JSON text: summary, phases, events, audit and provenance (no time series)."""
+        doc = {
+            "summary": {k: {"value": v, "unit": SUMMARY_UNITS.get(k, "")} for k, v in self.summary.items()},
+            "phases": [{"name": p.name, "start_s": p.t_start, "end_s": p.t_end} for p in self.phases],
+            "events": [{"t_s": e.t, "name": e.name, "component": e.component, "detail": e.detail} for e in self.events],
+            "audit": {"mass_residual_kg": self.audit.mass_residual, "mass_relative": self.audit.mass_relative,
+                      "momentum_residual_kg_m_s": list(self.audit.momentum_residual),
+                      "momentum_relative": self.audit.momentum_relative},
+            "success": self.success, "message": self.message, "cautions": self.cautions,
+            "provenance": self.provenance,
+        }
+        return json.dumps(doc, indent=2, allow_nan=True)
+
+
+SUMMARY_UNITS = {
+    "flight_time": "s", "peak_thrust": "N", "peak_acceleration": "m/s^2", "max_speed": "m/s", "apogee": "m",
+    "range": "m", "total_impulse": "N*s", "impact_speed": "m/s", "guide_exit_speed": "m/s", "burn_time": "s",
+    "launch_mass": "kg", "final_mass": "kg", "propellant_expelled": "kg", "specific_impulse": "s",
+    "peak_vessel_pressure": "Pa", "max_distance": "m",
+}

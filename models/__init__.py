@@ -1,0 +1,1 @@
+"""Scenario files shipped with thrustgraph (demo vehicles of our own; invented numbers)."""

@@ -1,0 +1,56 @@
+"""Airframe: the vehicle's dry structure, with quadratic aerodynamic (or hydrodynamic) drag.
+
+Drag acts against the velocity through the medium: ``D = -1/2 rho Cd A |v| v``,
+with A the reference (frontal) area of the given diameter. The drag
+coefficient is constant here; tables against Mach number or speed belong to
+a later family.
+
+Examples
+--------
+>>> from thrustgraph.component import scalar_ops
+>>> P = Airframe.params_class()
+>>> b = Airframe.build_body(P(dry_mass=0.1, reference_diameter=0.1, drag_coefficient=0.5), scalar_ops)
+>>> round(b.force((1.2, 1e5, 288.0, 0.0, 0.0, 10.0, 10.0))[2], 6)
+-0.235619
+"""
+
+from __future__ import annotations
+
+import math
+
+from thrustgraph import hookimpl
+from thrustgraph.component import BodyFns, ComponentKind
+from thrustgraph.parameters import Number, Quantity
+
+__all__ = ["Airframe"]
+
+
+class Airframe(ComponentKind):
+    kind = "airframe"
+    role = "body"
+    summary = "dry structure: mass, reference diameter and a constant drag coefficient"
+    parameters = (
+        Quantity("dry_mass", "kg", low=0.0, low_open=True, doc="mass of the empty vehicle"),
+        Quantity("reference_diameter", "m", default="0 m", low=0.0, doc="diameter of the frontal reference area"),
+        Number("drag_coefficient", default=0.0, low=0.0, high=5.0, doc="drag coefficient on the reference area"),
+    )
+
+    @classmethod
+    def describe_mass(cls, p, amb):
+        return {"dry structure": p.dry_mass}
+
+    @classmethod
+    def build_body(cls, p, ops):
+        k = 0.5 * p.drag_coefficient * math.pi * p.reference_diameter ** 2 / 4.0
+        if k == 0.0:
+            return BodyFns(mass=p.dry_mass, force=None)
+
+        def drag(air):
+            c = -k * air[0] * air[6]
+            return (c * air[3], c * air[4], c * air[5])
+        return BodyFns(mass=p.dry_mass, force=drag, force_name="drag")
+
+
+@hookimpl
+def thrustgraph_component_kinds():
+    return [Airframe]

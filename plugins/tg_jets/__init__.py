@@ -1,0 +1,127 @@
+"""Prescribed jets: a propulsive source with a given mass flow and exhaust velocity, or a thrust table.
+
+Two programmes:
+
+``constant-flow``
+    mass flow ``mdot`` and exhaust velocity ``v_e`` constant until the
+    propellant is gone (burn time m_p / mdot).
+``thrust-table``
+    thrust F(t) interpolated linearly in a table; mass flow F / v_e, so the
+    propellant mass is the table's total impulse divided by v_e.
+
+The jet leaves at ambient pressure (no pressure thrust). These are the
+sources used for the closed-form checks (rocket equation, constant-thrust
+ascent) and for motors with a measured thrust curve.
+
+Examples
+--------
+>>> from thrustgraph.component import Ambient, scalar_ops
+>>> P = PrescribedJet.params_class()
+>>> p = P(programme="constant-flow", propellant_mass=1.0, mass_flow=0.5, exhaust_velocity=1000.0,
+...       thrust_curve=None, direction=(-1.0, 0.0, 0.0))
+>>> PrescribedJet.burn_time(p)
+2.0
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from thrustgraph import hookimpl
+from thrustgraph.component import ComponentKind, EventSpec, JetFns, Mode, StateVar
+from thrustgraph.errors import ModelError
+from thrustgraph.parameters import Choice, Quantity, Table, Vector
+
+__all__ = ["PrescribedJet"]
+
+
+class PrescribedJet(ComponentKind):
+    kind = "prescribed-jet"
+    role = "jet"
+    summary = "given mass flow and exhaust velocity, or a thrust table against time"
+    parameters = (
+        Choice("programme", options=("constant-flow", "thrust-table"), default="constant-flow",
+               doc="how the jet is prescribed"),
+        Quantity("propellant_mass", "kg", default="0 kg", low=0.0,
+                 doc="propellant carried (constant-flow); ignored for a thrust table"),
+        Quantity("mass_flow", "kg/s", default="0 kg/s", low=0.0, doc="mass flow (constant-flow)"),
+        Quantity("exhaust_velocity", "m/s", low=0.0, low_open=True, doc="exhaust velocity relative to the vehicle"),
+        Table("thrust_curve", columns=(("time", "s"), ("thrust", "N")), default="absent",
+              doc="thrust against time since ignition (thrust-table)"),
+        Vector("direction", default=(-1.0, 0.0, 0.0), doc="body-frame direction the jet leaves in"),
+    )
+    states = (StateVar("propellant_mass", "kg", "propellant left"),)
+    modes = (Mode("burning", "jet thrust"), Mode("spent", "spent", propulsive=False))
+
+    @classmethod
+    def check(cls, p, where):
+        if p.programme == "constant-flow":
+            if p.mass_flow <= 0.0 or p.propellant_mass <= 0.0:
+                raise ModelError(f"{where}.mass_flow", "a constant-flow jet needs a positive mass_flow and "
+                                 "propellant_mass", "give both, e.g. mass_flow = \"0.1 kg/s\", propellant_mass = \"0.5 kg\"")
+        else:
+            if p.thrust_curve is None:
+                raise ModelError(f"{where}.thrust_curve", "a thrust-table jet needs a thrust_curve",
+                                 'write thrust_curve = { units = ["s", "N"], rows = [[0, 0], [0.1, 20], [1.0, 0]] }')
+            if np.any(p.thrust_curve[:, 1] < 0):
+                raise ModelError(f"{where}.thrust_curve", "thrust must not be negative", "check the thrust column")
+
+    @classmethod
+    def _propellant(cls, p) -> float:
+        if p.programme == "constant-flow":
+            return p.propellant_mass
+        tc = p.thrust_curve
+        return float(np.trapezoid(tc[:, 1], tc[:, 0])) / p.exhaust_velocity
+
+    @classmethod
+    def burn_time(cls, p) -> float:
+        if p.programme == "constant-flow":
+            return p.propellant_mass / p.mass_flow
+        return float(p.thrust_curve[-1, 0])
+
+    @classmethod
+    def initial_state(cls, p, amb):
+        return (cls._propellant(p),)
+
+    @classmethod
+    def describe_mass(cls, p, amb):
+        return {"propellant": cls._propellant(p)}
+
+    @classmethod
+    def build_jet(cls, p, i, ops, amb):
+        ve = p.exhaust_velocity
+        if p.programme == "constant-flow":
+            mdot0 = p.mass_flow
+
+            def jet(t, s, mode, pa):
+                if mode != 0:
+                    return (0.0, 0.0, pa, 0.0)
+                return (mdot0, ve, pa, 0.0)
+            burnout = EventSpec("burnout", lambda t, s, drive: s[i], -1.0, ("burning",), "spent")
+        else:
+            tt = [float(x) for x in p.thrust_curve[:, 0]]
+            ff = [float(x) for x in p.thrust_curve[:, 1]]
+            t_last = tt[-1]
+
+            def jet(t, s, mode, pa):
+                if mode != 0:
+                    return (0.0, 0.0, pa, 0.0)
+                F = float(np.interp(t, tt, ff))
+                return (F / ve, ve, pa, 0.0)
+            burnout = EventSpec("burnout", lambda t, s, drive: t - t_last, 1.0, ("burning",), "spent")
+
+        def mass(s):
+            return s[i]
+
+        def derivs(t, s, mode, mdot):
+            return (-mdot,)
+
+        def signals(t, s, mode):
+            return {"propellant_mass": s[i]}
+
+        return JetFns(mass=mass, jet=jet, derivs=derivs, signals=signals, jet_dir=p.direction, events=(burnout,))
+
+
+@hookimpl
+def thrustgraph_component_kinds():
+    return [PrescribedJet]

@@ -1,0 +1,122 @@
+"""Nozzles: a convergent nozzle (or plain orifice) passing liquid or gas to the surroundings.
+
+Liquid (quasi-steady Bernoulli, outlet pressure including the liquid head)::
+
+    v_e = sqrt(2 (p_up - p_a) / rho),  mdot = rho Cd A v_e,  thrust = mdot v_e = 2 Cd A (p_up - p_a)
+
+Gas (isentropic flow of a perfect gas from the vessel's stagnation state,
+NACA Report 1135, 1953, eqs. 43-45 and the choked mass flow):
+
+* choked when p_a / p_up <= (2 / (gamma + 1))^(gamma / (gamma - 1)) (0.52828 for gamma = 1.4)::
+
+      mdot = Cd A p_up sqrt(gamma / (R T)) (2 / (gamma + 1))^((gamma + 1) / (2 (gamma - 1)))
+      exit at M = 1: T_e = 2 T / (gamma + 1), v_e = sqrt(gamma R T_e), p_e = p* > p_a
+
+* otherwise the jet leaves at ambient pressure::
+
+      v_e = sqrt(2 gamma R T / (gamma - 1) (1 - (p_a / p_up)^((gamma - 1) / gamma)))
+
+Thrust along the axis is ``mdot v_e + (p_e - p_a) Cd A``. The discharge
+coefficient scales the flow area; the pressure term uses the same effective
+area (an assumption: common practice, no source). The liquid relation assumes
+the nozzle is much narrower than the vessel bore (the column's velocity head
+is neglected). The flow never reverses: below ambient pressure nothing flows.
+
+Examples
+--------
+>>> from thrustgraph.component import scalar_ops
+>>> P = ConvergentNozzle.params_class()
+>>> f = ConvergentNozzle.build_flow(P(diameter=0.022, discharge_coefficient=1.0, direction=(-1.0, 0.0, 0.0)),
+...                                 scalar_ops)
+>>> mdot, ve, pe, Ae, c = f.flow((101325.0 + 4e5, 288.15, 998.2, 1.4, 287.05, 1.0, 0.0), 101325.0)
+>>> round(ve, 3)
+28.31
+"""
+
+from __future__ import annotations
+
+import math
+
+from thrustgraph import hookimpl
+from thrustgraph.component import ComponentKind, FlowFns
+from thrustgraph.parameters import Number, Quantity, Vector
+
+__all__ = ["ConvergentNozzle", "critical_pressure_ratio", "choked_flux_factor"]
+
+
+def critical_pressure_ratio(gamma: float) -> float:
+    """p*/p0 of a perfect gas at M = 1 (NACA Report 1135, 1953).
+
+    >>> round(critical_pressure_ratio(1.4), 6)
+    0.528282
+    """
+    return (2.0 / (gamma + 1.0)) ** (gamma / (gamma - 1.0))
+
+
+def choked_flux_factor(gamma: float) -> float:
+    """sqrt(gamma) (2/(gamma+1))^((gamma+1)/(2(gamma-1))): mdot = Cd A p0 / sqrt(R T0) times this.
+
+    >>> round(choked_flux_factor(1.4) / math.sqrt(287.05), 6)
+    0.040415
+    """
+    return math.sqrt(gamma) * (2.0 / (gamma + 1.0)) ** ((gamma + 1.0) / (2.0 * (gamma - 1.0)))
+
+
+class ConvergentNozzle(ComponentKind):
+    kind = "convergent-nozzle"
+    role = "flow"
+    summary = "convergent nozzle or orifice: Bernoulli for liquid, isentropic (choked or not) for gas"
+    parameters = (
+        Quantity("diameter", "mm", low=0.0, low_open=True, doc="exit (throat) diameter"),
+        # A well-rounded nozzle is near 0.97-0.99, a sharp-edged orifice near 0.61 (common practice, no source).
+        Number("discharge_coefficient", default=0.98, low=0.0, low_open=True, high=1.0,
+               doc="ratio of actual to ideal flow area"),
+        Vector("direction", default=(-1.0, 0.0, 0.0), doc="body-frame direction the jet leaves in"),
+    )
+
+    @classmethod
+    def build_flow(cls, p, ops):
+        area = p.discharge_coefficient * math.pi * p.diameter ** 2 / 4.0
+        sqrt = math.sqrt
+        cache: dict[tuple[float, float], tuple[float, float, float, float]] = {}
+
+        def consts(gam, R):
+            key = (gam, R)
+            c = cache.get(key)
+            if c is None:
+                crit = critical_pressure_ratio(gam)
+                c = (crit, choked_flux_factor(gam) / sqrt(R), (gam - 1.0) / gam, 2.0 * gam * R / (gam - 1.0))
+                cache[key] = c
+            return c
+
+        def flow(up, p_down):
+            pu, T, rho, gam, R, phase, head = up
+            if phase > 0.5:  # liquid
+                dp = pu - p_down
+                if dp <= 0.0:
+                    return (0.0, 0.0, p_down, area, 0.0)
+                v = sqrt(2.0 * dp / rho)
+                return (rho * area * v, v, p_down, area, 2.0 * area)
+            if phase < -0.5 or pu <= p_down:
+                return (0.0, 0.0, p_down, area, 0.0)
+            crit, flux, k1, k2 = consts(gam, R)
+            pr = p_down / pu
+            if pr <= crit:
+                mdot = area * pu * flux / sqrt(T)
+                Te = 2.0 * T / (gam + 1.0)
+                ve = sqrt(gam * R * Te)
+                pe = crit * pu
+                # thrust = pu * area * const - p_down * area  ->  d/dpu = (thrust + p_down area) / pu
+                return (mdot, ve, pe, area, (mdot * ve + pe * area) / pu)
+            x = pr ** k1
+            ve = sqrt(k2 * T * (1.0 - x))
+            Te = T * x
+            mdot = (p_down / (R * Te)) * ve * area
+            return (mdot, ve, p_down, area, 2.0 * area)
+
+        return FlowFns(flow=flow, jet_dir=p.direction)
+
+
+@hookimpl
+def thrustgraph_component_kinds():
+    return [ConvergentNozzle]
