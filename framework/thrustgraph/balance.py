@@ -74,6 +74,7 @@ class Balance:
         self._u = sysm.guide_dir
         self._az = sysm.launch.azimuth
         self._follow = sysm.launch.attitude == "follow-wind"
+        self._vmin = max(sysm.launch.min_follow_speed, 1e-9)
         self._x0 = (sysm.y0[0], sysm.y0[1], sysm.y0[2])
         self._n_acc = 7
         self.modes: list[int] = list(sysm.mode0)
@@ -118,7 +119,7 @@ class Balance:
         sp = math.sqrt(vrx * vrx + vry * vry + vrz * vrz)
         kin = self.kinematics
         u = self._u
-        if self._follow and kin == Kinematics.FREE and sp > 1e-9:
+        if self._follow and kin == Kinematics.FREE and sp > self._vmin:
             e = (vrx / sp, vry / sp, vrz / sp)
         else:
             e = u

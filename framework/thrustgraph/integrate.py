@@ -215,7 +215,8 @@ def _events(system: System, bal: Balance, ph: _Phase, g0: float, x0: np.ndarray,
         actions.append(("mode" if spec.to else "stop", spec.name, comp, spec.to))
 
     if ph.kin == Kinematics.GUIDE:
-        L = system.launch.guide_length
+        # 1 nm beyond the guide's end, so that a zero-length guide (a pad) holds the vehicle until it moves
+        L = system.launch.guide_length + 1e-9
 
         def guide(t, y):
             return (y[0] - x0[0]) * u[0] + (y[1] - x0[1]) * u[1] + (y[2] - x0[2]) * u[2] - L

@@ -39,6 +39,8 @@ LAUNCH_SPECS = (
     Quantity("azimuth", "deg", default="0 deg", low=-360.0, high=360.0, doc="direction of the guide, from +x toward +y"),
     Choice("attitude", options=("follow-wind", "fixed"), default="follow-wind",
            doc="after the guide, the body axis follows the relative wind or stays fixed"),
+    Quantity("min_follow_speed", "m/s", default="1 m/s", low=0.0,
+             doc="with attitude follow-wind: below this airspeed the axis keeps the launch direction"),
     Quantity("altitude", "m", default="0 m", doc="height of the launch point above the ground datum"),
     Quantity("speed", "m/s", default="0 m/s", doc="initial speed along the initial axis"),
 )

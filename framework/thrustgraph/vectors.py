@@ -20,7 +20,9 @@ def unit_from_angles(elevation: float, azimuth: float) -> Vec:
     (0.0, 0.0, 1.0)
     """
     ce = math.cos(elevation)
-    return (ce * math.cos(azimuth), ce * math.sin(azimuth), math.sin(elevation))
+    v = (ce * math.cos(azimuth), ce * math.sin(azimuth), math.sin(elevation))
+    # cos(pi/2) is 6e-17, not 0: keep a vertical guide exactly vertical
+    return tuple(0.0 if abs(c) < 1e-15 else c for c in v)  # type: ignore[return-value]
 
 
 def body_frame(e: Vec, azimuth: float) -> tuple[Vec, Vec, Vec]:

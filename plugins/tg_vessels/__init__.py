@@ -151,7 +151,8 @@ class LiquidTank(ComponentKind):
             m_l, m_g = s[i], s[i + 1]
             vg = V - m_l / rho_l
             rg = m_g / vg
-            r = rg / rho0
+            # trial stages of an adaptive step may overshoot past empty: keep the power law real
+            r = rg / rho0 if rg > 1e-12 * rho0 else 1e-12
             pg = p0 * r ** n
             Tg = T0 * r ** (n - 1.0)
             return pg, Tg, rg, vg
