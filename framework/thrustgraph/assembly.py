@@ -28,7 +28,9 @@ __all__ = ["System", "Stream", "assemble", "ACCUMULATORS"]
 
 KINEMATIC = ("position.x", "position.y", "position.z", "velocity.x", "velocity.y", "velocity.z")
 ACCUMULATORS = ("audit.mass_out", "audit.exhaust_momentum.x", "audit.exhaust_momentum.y",
-                "audit.exhaust_momentum.z", "audit.impulse.x", "audit.impulse.y", "audit.impulse.z")
+                "audit.exhaust_momentum.z", "audit.impulse.x", "audit.impulse.y", "audit.impulse.z",
+                "audit.internal_momentum_change.x", "audit.internal_momentum_change.y",
+                "audit.internal_momentum_change.z")
 
 
 @dataclass(frozen=True)

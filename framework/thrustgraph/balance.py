@@ -76,7 +76,6 @@ class Balance:
         self._follow = sysm.launch.attitude == "follow-wind"
         self._vmin = max(sysm.launch.min_follow_speed, 1e-9)
         self._x0 = (sysm.y0[0], sysm.y0[1], sysm.y0[2])
-        self._n_acc = 7
         self.modes: list[int] = list(sysm.mode0)
         mount = sysm.launch.mount
         self.kinematics = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.FREE}[mount]
@@ -248,6 +247,7 @@ class Balance:
         out.append(mout)
         out.extend((Ex, Ey, Ez))
         out.extend((Dx + Px + Qx + Rx, Dy + Py + Qy + Ry, Dz + Wz + Pz + Qz + Rz))
+        out.extend((-Ix, -Iy, -Iz))  # modelled d/dt of the internal momentum
 
         if rec is not None:
             self._record(rec, t, s, M, e, (ax, ay, az), drags, (0.0, 0.0, Wz), (Rx, Ry, Rz), outs, flows,

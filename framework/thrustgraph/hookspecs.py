@@ -30,7 +30,7 @@ import pluggy
 
 if TYPE_CHECKING:  # pragma: no cover
     from .component import ComponentKind, EnvironmentKind
-    from .model import Model
+    from .model import ParsedModel
 
 __all__ = ["hookspec", "hookimpl", "PROJECT"]
 
@@ -45,7 +45,7 @@ hookimpl = pluggy.HookimplMarker(PROJECT)
 # ---------------------------------------------------------------------------
 
 @hookspec
-def thrustgraph_component_kinds() -> Sequence[type["ComponentKind"]]:
+def thrustgraph_component_kinds() -> Sequence[type[ComponentKind]]:
     """Declare the component kinds (device types) a plugin provides.
 
     Called once per plugin manager; every implementation is called and the
@@ -61,7 +61,7 @@ def thrustgraph_component_kinds() -> Sequence[type["ComponentKind"]]:
 
 
 @hookspec
-def thrustgraph_environment_kinds() -> Sequence[type["EnvironmentKind"]]:
+def thrustgraph_environment_kinds() -> Sequence[type[EnvironmentKind]]:
     """Declare environment models: media (air, water, vacuum) and gravity fields.
 
     Called once per plugin manager; all results are merged by ``kind``, and
@@ -81,11 +81,12 @@ def thrustgraph_environment_kinds() -> Sequence[type["EnvironmentKind"]]:
 # ---------------------------------------------------------------------------
 
 @hookspec
-def thrustgraph_check_model(model: "Model") -> Sequence[str]:
+def thrustgraph_check_model(model: ParsedModel) -> Sequence[str]:
     """Check a whole parsed model for problems a single component cannot see.
 
-    Called once per validation with the parsed :class:`~thrustgraph.model.Model`
-    (SI values in ``model.params``). Every implementation is called.
+    Called once per validation with the :class:`~thrustgraph.model.ParsedModel`
+    (SI values in ``model.params``, the graph in ``model.graph``). Every
+    implementation is called.
 
     Returns
     -------
@@ -96,11 +97,12 @@ def thrustgraph_check_model(model: "Model") -> Sequence[str]:
 
 
 @hookspec
-def thrustgraph_cautions(model: "Model") -> Sequence[str]:
+def thrustgraph_cautions(model: ParsedModel) -> Sequence[str]:
     """Add safety cautions for a model (stored pressure, flight, range safety).
 
-    Called once per validation and per report; every implementation is called
-    and the cautions are shown together with those the component kinds give.
+    Called once per validation and per run with the
+    :class:`~thrustgraph.model.ParsedModel`; every implementation is called and
+    the cautions are shown together with those the component kinds give.
     Cautions never state a safe rating.
 
     Returns

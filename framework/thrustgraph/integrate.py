@@ -305,19 +305,21 @@ def _build_result(system: System, bal: Balance, segments, events, status, messag
     mass_res = m0 - mf - m_out
     v0, vf = signals["velocity"][0], signals["velocity"][-1]
     p_exh = y[-n_acc + 1:-n_acc + 4, -1]
-    imp = y[-n_acc + 4:, -1]
+    imp = y[-n_acc + 4:-n_acc + 7, -1]
+    dpint = y[-n_acc + 7:, -1]
     pint0 = np.zeros(3)
     pintf = np.zeros(3)
     for k in signals:
         if k.endswith(".internal_momentum"):
             pint0 = pint0 + np.nan_to_num(signals[k][0])
             pintf = pintf + np.nan_to_num(signals[k][-1])
-    mom_res = mf * vf + pintf + p_exh - m0 * v0 - pint0 - imp
+    mom_res = mf * vf + dpint + p_exh - m0 * v0 - imp
     scale = max(float(np.max(signals["mass"] * signals["speed"])), float(np.linalg.norm(p_exh)),
                 float(np.linalg.norm(imp)), 1e-30)
     audit = Audit(mass_residual=mass_res, mass_relative=mass_res / m0 if m0 else 0.0,
                   momentum_residual=tuple(float(c) for c in mom_res),
-                  momentum_relative=float(np.linalg.norm(mom_res)) / scale)
+                  momentum_relative=float(np.linalg.norm(mom_res)) / scale,
+                  internal_defect=float(np.linalg.norm(pintf - pint0 - dpint)))
 
     res = FlightResult(t=t, y=y, state_names=system.state_names, signals=signals, ledger=ledger, phases=phases,
                        events=events, audit=audit, success=status == 0, status=status, message=message, nfev=nfev)

@@ -8,7 +8,7 @@ Examples
 --------
 >>> volume = Quantity("volume", "L", default="2 L", low=0.0, low_open=True,
 ...                   doc="internal volume of the vessel")
->>> volume.parse("500 mL", where="components.bottle.volume")
+>>> round(volume.parse("500 mL", where="components.bottle.volume"), 12)
 0.0005
 >>> volume.parse("0 L", where="components.bottle.volume")
 Traceback (most recent call last):

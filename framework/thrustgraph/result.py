@@ -77,12 +77,18 @@ class Audit:
         away by the exhaust (ground frame) - initial momentum - impulse of the
         external forces, kg m/s (3-vector)
     momentum_relative : its magnitude divided by the largest momentum scale
+    internal_defect : with the internal-momentum term on, the change of the
+        contents' momentum computed from the states minus the integral of the
+        modelled (quasi-steady) rate, kg m/s: the size of what the quasi-steady
+        model leaves out (the column's own acceleration); 0 when the term is off.
+        The momentum residual is computed with the modelled rate.
     """
 
     mass_residual: float
     mass_relative: float
     momentum_residual: tuple[float, float, float]
     momentum_relative: float
+    internal_defect: float = 0.0
 
 
 @dataclass

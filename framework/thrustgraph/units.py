@@ -9,7 +9,7 @@ Examples
 --------
 >>> to_si("60 psi", "Pa", where="components.bottle.gauge_pressure")
 413685.4...
->>> to_si("2 L", "m^3")
+>>> round(to_si("2 L", "m^3"), 12)
 0.002
 >>> to_si("5 kg", "Pa", where="components.bottle.gauge_pressure")
 Traceback (most recent call last):

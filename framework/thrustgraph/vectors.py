@@ -1,7 +1,7 @@
 """Small helpers for 3-vectors held as tuples of floats (fast in the right-hand side).
 
->>> body_frame((0.0, 0.0, 1.0), 0.0)[1]
-(0.0, 1.0, 0.0)
+>>> [round(c, 12) + 0.0 for c in body_frame((0.0, 0.0, 1.0), 0.0)[1]]
+[0.0, 1.0, 0.0]
 """
 
 from __future__ import annotations

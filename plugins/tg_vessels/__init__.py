@@ -36,8 +36,8 @@ Examples
 ...       expansion_exponent=1.4, gas_gamma=1.4, gas_constant=287.05, gas_temperature=288.15,
 ...       inertial_head=True, internal_momentum=False, outlet_direction=(-1.0, 0.0, 0.0))
 >>> m_l, m_g = LiquidTank.initial_state(p, Ambient(101325.0, 288.15, 1.225))
->>> round(m_l, 4), round(m_g, 6)
-(0.5989, 0.010179)
+>>> round(m_l, 4), round(m_g, 5)
+(0.5989, 0.01018)
 """
 
 from __future__ import annotations
