@@ -55,8 +55,7 @@ RUN_SPECS = (
     Flag("stop_at_apogee", default=False, doc="end the flight at apogee"),
 )
 
-_TOP_KEYS = ("format", "version", "name", "description", "components", "flow_paths", "environment", "launch", "run",
-             "calibration")
+_TOP_KEYS = ("format", "version", "name", "description", "components", "flow_paths", "environment", "launch", "run")
 
 
 def parse_paths(paths: list[Any], where: str = "flow_paths") -> list[tuple[str, str]]:
@@ -96,8 +95,6 @@ class Model:
     launch: dict[str, Any] = field(default_factory=dict)
     run: dict[str, Any] = field(default_factory=dict)
     source: str | None = None
-    # Where fitted values came from: key path -> table written by thrustgraph.calibrate (informative only).
-    calibration: dict[str, dict[str, Any]] = field(default_factory=dict)
     #: The ``[study]`` table as written (parameter ranges for studies); kept and saved unchanged.
     study: dict[str, Any] = field(default_factory=dict)
 
