@@ -80,6 +80,12 @@ class Balance:
         mount = sysm.launch.mount
         self.kinematics = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.FREE}[mount]
         self.descending = False
+        aft = (-1.0, 0.0, 0.0)
+        # Directions exactly aft along the body axis need no rotation (the common case).
+        self._aft = [(st.vol.outlet_dir == aft, st.fl.jet_dir == aft) for st in sysm.streams]
+        self._jet_aft = [jf.jet_dir == aft for _, jf in sysm.jets]
+        self._need_frame = not all(a and b for a, b in self._aft) or not all(self._jet_aft)
+        self.set_phase(self.modes, self.kinematics, False)
 
     # ------------------------------------------------------------------
     def set_phase(self, modes: Sequence[int], kinematics: int, descending: bool) -> None:
@@ -87,11 +93,20 @@ class Balance:
         self.modes = list(modes)
         self.kinematics = kinematics
         self.descending = descending
+        m = self.modes
+        self._smode = [m[k] if k >= 0 else 0 for k in self._stream_mode]
+        self._jmode = [m[k] if k >= 0 else 0 for k in self._jet_mode]
 
     # ------------------------------------------------------------------
     def rhs(self, t: float, y: Any) -> list[float]:
         """Time derivative of the flat state vector (SI); what solve_ivp calls."""
         return self._balance(t, y, None)
+
+    def drives(self, t: float, y: Any) -> dict[str, float]:
+        """Outlet drive pressure (outlet pressure with head minus ambient, Pa) per vessel, for events."""
+        rec: dict[str, Any] = {"_light": True}
+        self._balance(t, y, rec)
+        return rec
 
     def evaluate(self, t: float, y: Any) -> dict[str, Any]:
         """Every term of the balance at one instant, as a flat dict of SI values.
@@ -110,7 +125,6 @@ class Balance:
     def _balance(self, t: float, y: Any, rec: dict | None) -> list[float]:
         s = y.tolist() if hasattr(y, "tolist") else list(y)
         sysm = self.system
-        modes = self.modes
         vx, vy, vz = s[3], s[4], s[5]
         rho, pa, Ta, wx, wy, wz = sysm.medium(s[2], t)
         g = sysm.gravity(s[2])
@@ -122,7 +136,8 @@ class Balance:
             e = (vrx / sp, vry / sp, vrz / sp)
         else:
             e = u
-        frame = body_frame(e, self._az)
+        frame = body_frame(e, self._az) if self._need_frame else None
+        ex_, ey_, ez_ = -e[0], -e[1], -e[2]
 
         # Mass and external forces (drag and friction of bodies, weight).
         M = sysm.fixed_mass
@@ -146,10 +161,10 @@ class Balance:
         mout = 0.0
         Ex = Ey = Ez = 0.0      # ground-frame momentum carried away per second
         jet_out = []
+        jmode = self._jmode
         for k, (_, jf) in enumerate(self._jets):
-            mk = self._jet_mode[k]
-            mdot, ve, pe, Ae = jf.jet(t, s, modes[mk] if mk >= 0 else 0, pa)
-            jd = to_world(jf.jet_dir, frame)
+            mdot, ve, pe, Ae = jf.jet(t, s, jmode[k], pa)
+            jd = (ex_, ey_, ez_) if self._jet_aft[k] else to_world(jf.jet_dir, frame)
             pth = (pe - pa) * Ae
             T = mdot * ve + pth
             Fx -= T * jd[0]; Fy -= T * jd[1]; Fz -= T * jd[2]
@@ -161,85 +176,86 @@ class Balance:
         # Vessel outlets (pressure without head) and their world directions.
         outs = []
         coupled = False
+        smode = self._smode
+        aft = self._aft
         for k, st in enumerate(streams):
-            mk = self._stream_mode[k]
-            o = st.vol.outlet(s, modes[mk] if mk >= 0 else 0)
-            dw = to_world(st.vol.outlet_dir, frame)
-            jd = to_world(st.fl.jet_dir, frame)
+            o = st.vol.outlet(s, smode[k])
+            a_out, a_jet = aft[k]
+            dw = (ex_, ey_, ez_) if a_out else to_world(st.vol.outlet_dir, frame)
+            jd = (ex_, ey_, ez_) if a_jet else to_world(st.fl.jet_dir, frame)
             outs.append((o, dw, jd))
             if o[6] != 0.0:
                 coupled = True
 
         gx, gy, gz = 0.0, 0.0, -g
+        ax = ay = az = 0.0
+        first = self._streams_at(s, outs, pa, gx, gy, gz)          # flows at a = 0
+        flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = first
+        Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz      # every force, at the current a
         if kin == Kinematics.HELD:
-            ax = ay = az = 0.0
-            flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = self._streams_at(s, outs, pa, gx, gy, gz)
-            Rx, Ry, Rz = -(Fx + Tx + Ix), -(Fy + Ty + Iy), -(Fz + Tz + Iz)
-        else:
-            ax = ay = az = 0.0
+            Rx, Ry, Rz = -Gx, -Gy, -Gz
+        elif kin == Kinematics.FREE:
             Rx = Ry = Rz = 0.0
-            for it in range(self.max_newton if coupled else 1):
-                flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = self._streams_at(
-                    s, outs, pa, gx - ax, gy - ay, gz - az)
-                Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
-                if kin == Kinematics.FREE:
-                    if not coupled:
-                        ax, ay, az = Gx / M, Gy / M, Gz / M
+            if not coupled:
+                ax, ay, az = Gx / M, Gy / M, Gz / M
+            else:
+                # Newton on M a - G(a) = 0; exact in one step when the thrust is affine in the outlet pressure.
+                for it in range(self.max_newton):
+                    rx, ry, rz = M * ax - Gx, M * ay - Gy, M * az - Gz
+                    if it and abs(rx) + abs(ry) + abs(rz) <= 1e-12 * (abs(Gx) + abs(Gy) + abs(Gz) + M * g):
                         break
-                    Rx_, Ry_, Rz_ = M * ax - Gx, M * ay - Gy, M * az - Gz
                     pairs = []
                     for (o, dw, jd), fl in zip(outs, flows):
                         if o[6] != 0.0:
-                            c = fl[4]
-                            hd = o[6]
+                            c, hd = fl[4], o[6]
                             pairs.append(((-c * jd[0], -c * jd[1], -c * jd[2]), (hd * dw[0], hd * dw[1], hd * dw[2])))
                     try:
-                        dx, dy_, dz = solve_rank_one(M, pairs, (Rx_, Ry_, Rz_))
+                        dx, dy_, dz = solve_rank_one(M, pairs, (rx, ry, rz))
                     except ZeroDivisionError:
                         raise IntegrationError(_SINGULAR) from None
                     ax -= dx; ay -= dy_; az -= dz
-                    step = abs(dx) + abs(dy_) + abs(dz)
-                else:  # on the guide: a = alpha u, alpha >= 0 while resting at its foot
-                    alpha = ax * u[0] + ay * u[1] + az * u[2]
-                    Gu = Gx * u[0] + Gy * u[1] + Gz * u[2]
-                    J = M
-                    for (o, dw, jd), fl in zip(outs, flows):
-                        if o[6] != 0.0:
-                            J -= fl[4] * (jd[0] * u[0] + jd[1] * u[1] + jd[2] * u[2]) * o[6] * (
-                                dw[0] * u[0] + dw[1] * u[1] + dw[2] * u[2])
-                    if J <= 0.0:
-                        raise IntegrationError(_SINGULAR)
-                    new = alpha - (M * alpha - Gu) / J
-                    x0 = self._x0
-                    along = (s[0] - x0[0]) * u[0] + (s[1] - x0[1]) * u[1] + (s[2] - x0[2]) * u[2]
-                    v_along = vx * u[0] + vy * u[1] + vz * u[2]
-                    if new < 0.0 and along <= 0.0 and v_along <= 0.0:
-                        new = 0.0
-                    step = abs(new - alpha)
-                    ax, ay, az = new * u[0], new * u[1], new * u[2]
-                    if not coupled:
-                        break
-                if step <= 1e-13 * (abs(ax) + abs(ay) + abs(az) + g + 1.0):
-                    break  # the flows of this pass were evaluated at (numerically) this a
-            else:
-                if coupled:
                     flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = self._streams_at(
                         s, outs, pa, gx - ax, gy - ay, gz - az)
-            if kin == Kinematics.GUIDE:
-                Rx = M * ax - (Fx + Tx + Ix)
-                Ry = M * ay - (Fy + Ty + Iy)
-                Rz = M * az - (Fz + Tz + Iz)
+                    Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
+        else:  # on the guide: a = alpha u, and alpha >= 0 while resting at its foot
+            x0 = self._x0
+            resting = ((s[0] - x0[0]) * u[0] + (s[1] - x0[1]) * u[1] + (s[2] - x0[2]) * u[2] <= 0.0
+                       and vx * u[0] + vy * u[1] + vz * u[2] <= 0.0)
+            alpha = 0.0
+            for it in range(self.max_newton if coupled else 1):
+                Gu = Gx * u[0] + Gy * u[1] + Gz * u[2]
+                r = M * alpha - Gu
+                if it and abs(r) <= 1e-12 * (abs(Gu) + M * g):
+                    break
+                J = M
+                for (o, dw, jd), fl in zip(outs, flows):
+                    if o[6] != 0.0:
+                        J -= fl[4] * (jd[0] * u[0] + jd[1] * u[1] + jd[2] * u[2]) * o[6] * (
+                            dw[0] * u[0] + dw[1] * u[1] + dw[2] * u[2])
+                if J <= 0.0:
+                    raise IntegrationError(_SINGULAR)
+                alpha -= r / J
+                if alpha < 0.0 and resting:
+                    alpha = 0.0
+                    flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = first
+                    Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
+                    break
+                if not coupled:
+                    break
+                flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = self._streams_at(
+                    s, outs, pa, gx - alpha * u[0], gy - alpha * u[1], gz - alpha * u[2])
+                Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
+            ax, ay, az = alpha * u[0], alpha * u[1], alpha * u[2]
+            Rx, Ry, Rz = M * ax - Gx, M * ay - Gy, M * az - Gz
 
         # Derivatives: kinematics, component states, audit accumulators.
         out = [vx, vy, vz, ax, ay, az] if kin != Kinematics.HELD else [0.0, 0.0, 0.0, 0.0, 0.0, 0.0]
         if kin == Kinematics.HELD:
             vx = vy = vz = 0.0
         for k, st in enumerate(streams):
-            mk = self._stream_mode[k]
-            out.extend(st.vol.derivs(s, modes[mk] if mk >= 0 else 0, flows[k][0]))
+            out.extend(st.vol.derivs(s, smode[k], flows[k][0]))
         for k, (_, jf) in enumerate(self._jets):
-            mk = self._jet_mode[k]
-            out.extend(jf.derivs(t, s, modes[mk] if mk >= 0 else 0, jet_out[k][0]))
+            out.extend(jf.derivs(t, s, jmode[k], jet_out[k][0]))
         for (o, dw, jd), fl in zip(outs, flows):
             mdot, ve = fl[0], fl[1]
             mout += mdot
@@ -250,8 +266,12 @@ class Balance:
         out.extend((-Ix, -Iy, -Iz))  # modelled d/dt of the internal momentum
 
         if rec is not None:
-            self._record(rec, t, s, M, e, (ax, ay, az), drags, (0.0, 0.0, Wz), (Rx, Ry, Rz), outs, flows,
-                         jet_out, rho, pa, Ta, (wx, wy, wz), sp, g)
+            if "_light" in rec:
+                for st, fl in zip(streams, flows):
+                    rec[st.volume] = fl[6] - pa
+            else:
+                self._record(rec, t, s, M, e, (ax, ay, az), drags, (0.0, 0.0, Wz), (Rx, Ry, Rz), outs, flows,
+                             jet_out, rho, pa, Ta, (wx, wy, wz), sp, g)
         return out
 
     def _streams_at(self, s, outs, pa, fx, fy, fz):
@@ -262,8 +282,11 @@ class Balance:
         Ix = Iy = Iz = 0.0
         for k, st in enumerate(self._streams):
             o, dw, jd = outs[k]
-            hp = o[6] * (fx * dw[0] + fy * dw[1] + fz * dw[2]) if o[6] != 0.0 else 0.0
-            up = (o[0] + hp, o[1], o[2], o[3], o[4], o[5], o[6])
+            if o[6] != 0.0:
+                hp = o[6] * (fx * dw[0] + fy * dw[1] + fz * dw[2])
+                up = (o[0] + hp, o[1], o[2], o[3], o[4], o[5], o[6])
+            else:
+                hp, up = 0.0, o
             fl = st.fl.flow(up, pa)
             mdot, ve, pe, Ae = fl[0], fl[1], fl[2], fl[3]
             pth = (pe - pa) * Ae
@@ -272,8 +295,7 @@ class Balance:
             Qx -= pth * jd[0]; Qy -= pth * jd[1]; Qz -= pth * jd[2]
             vint = 0.0
             if st.vol.internal is not None:
-                mk = self._stream_mode[k]
-                vint, _moving = st.vol.internal(s, self.modes[mk] if mk >= 0 else 0, mdot)
+                vint, _moving = st.vol.internal(s, self._smode[k], mdot)
                 # d/dt of the contents' momentum toward the outlet is -mdot * v_int (quasi-steady);
                 # it enters the balance with a minus sign.
                 Ix += mdot * vint * dw[0]; Iy += mdot * vint * dw[1]; Iz += mdot * vint * dw[2]

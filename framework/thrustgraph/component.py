@@ -95,7 +95,8 @@ class EventSpec:
     in one of the modes ``when``. ``drive`` is the pressure difference that
     pushes fluid out of the component's outlet (Pa), supplied by the balance.
     On the event the component switches to mode ``to`` (a mode name), or the
-    flight stops when ``to`` is None.
+    flight stops when ``to`` is None. Set ``needs_drive=False`` when ``fn``
+    does not use ``drive`` (it is then passed as 0.0 and costs nothing).
     """
 
     name: str
@@ -103,6 +104,7 @@ class EventSpec:
     direction: float
     when: tuple[str, ...]
     to: str | None
+    needs_drive: bool = True
 
 
 @dataclass(frozen=True)

@@ -55,6 +55,13 @@ def solve_rank_one(m: float, pairs: list[tuple[Vec, Vec]], b: Vec) -> Vec:
     >>> solve_rank_one(2.0, [((1.0, 0.0, 0.0), (1.0, 0.0, 0.0))], (3.0, 2.0, 0.0))
     (1.0, 1.0, 0.0)
     """
+    if len(pairs) == 1:
+        (u, v), = pairs
+        den = m + v[0] * u[0] + v[1] * u[1] + v[2] * u[2]
+        if abs(den) < 1e-12 * abs(m):
+            raise ZeroDivisionError("singular acceleration system")
+        c = (v[0] * b[0] + v[1] * b[1] + v[2] * b[2]) / (m * den)
+        return (b[0] / m - c * u[0], b[1] / m - c * u[1], b[2] / m - c * u[2])
     # Keep x = A_k^{-1} b and w_j = A_k^{-1} u_j for the pairs not yet added.
     x = (b[0] / m, b[1] / m, b[2] / m)
     ws = [(u[0] / m, u[1] / m, u[2] / m) for u, _ in pairs]

@@ -97,7 +97,7 @@ class PrescribedJet(ComponentKind):
                 if mode != 0:
                     return (0.0, 0.0, pa, 0.0)
                 return (mdot0, ve, pa, 0.0)
-            burnout = EventSpec("burnout", lambda t, s, drive: s[i], -1.0, ("burning",), "spent")
+            burnout = EventSpec("burnout", lambda t, s, drive: s[i], -1.0, ("burning",), "spent", needs_drive=False)
         else:
             tt = [float(x) for x in p.thrust_curve[:, 0]]
             ff = [float(x) for x in p.thrust_curve[:, 1]]
@@ -108,7 +108,8 @@ class PrescribedJet(ComponentKind):
                     return (0.0, 0.0, pa, 0.0)
                 F = float(np.interp(t, tt, ff))
                 return (F / ve, ve, pa, 0.0)
-            burnout = EventSpec("burnout", lambda t, s, drive: t - t_last, 1.0, ("burning",), "spent")
+            burnout = EventSpec("burnout", lambda t, s, drive: t - t_last, 1.0, ("burning",), "spent",
+                                needs_drive=False)
 
         def mass(s):
             return s[i]

@@ -189,7 +189,7 @@ class LiquidTank(ComponentKind):
                 return (mdot / (rho_l * area), s[i])
 
         events = (
-            EventSpec("liquid exhausted", lambda t, s, drive: s[i], -1.0, ("liquid",), "gas"),
+            EventSpec("liquid exhausted", lambda t, s, drive: s[i], -1.0, ("liquid",), "gas", needs_drive=False),
             EventSpec("liquid flow stops", lambda t, s, drive: drive, -1.0, ("liquid",), "sealed"),
             EventSpec("gas exhausted", lambda t, s, drive: drive, -1.0, ("gas",), "sealed"),
         )
