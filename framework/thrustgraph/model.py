@@ -97,6 +97,9 @@ class Model:
     source: str | None = None
     #: The ``[study]`` table as written (parameter ranges for studies); kept and saved unchanged.
     study: dict[str, Any] = field(default_factory=dict)
+    #: The ``[calibration]`` table: key path -> where its fitted value came from (written by
+    #: :mod:`thrustgraph.calibrate`: records and their hashes, date, tool, interval); kept and saved unchanged.
+    calibration: dict[str, Any] = field(default_factory=dict)
 
     def copy(self) -> "Model":
         return copy.deepcopy(self)

@@ -23,7 +23,8 @@ A model file looks like::
 
 Sections: ``format``, ``version``, ``name``, ``description``, ``flow_paths``,
 ``[launch]``, ``[run]``, ``[environment.medium]``, ``[environment.gravity]``,
-``[components.NAME]`` and ``[study]`` (kept as written, for parameter studies).
+``[components.NAME]``, ``[study]`` (kept as written, for parameter studies) and ``[calibration]`` (where
+fitted values came from, written by ``thrustgraph calibrate``; kept as written).
 docs/model-file.md describes every key.
 
 Two levels of checking:
@@ -79,7 +80,7 @@ FORMAT_VERSION = 1
 #: The oldest format version this release can still read (through :data:`UPGRADES`).
 OLDEST_VERSION = 1
 TOP_LEVEL_KEYS = ("format", "version", "name", "description", "flow_paths", "launch", "run", "environment",
-                  "components", "study")
+                  "components", "study", "calibration")
 
 #: Upgrade steps between format versions: ``UPGRADES[n]`` takes the data of a
 #: version-``n`` file (a dict, as TOML reads it) and returns the same model as
@@ -387,10 +388,15 @@ def _from_data(data: dict[str, Any], source: str) -> Model:
     run = _table(data, "run")
     _check_settings(run, "run", RUN_SPECS)
     study = _table(data, "study")
+    calibration = _table(data, "calibration")  # written by thrustgraph.calibrate: where fitted values came from
+    for key, entry in calibration.items():
+        if not isinstance(entry, dict):
+            raise ModelError(f"calibration.{key}", f"expected a table, found {_found(entry)}",
+                             "calibration entries are written by 'thrustgraph calibrate'; remove this line")
 
     return Model(name=name, description=desc, components=copy.deepcopy(comps), flow_paths=list(paths),
                  environment=copy.deepcopy(env), launch=copy.deepcopy(launch), run=copy.deepcopy(run),
-                 source=source, study=copy.deepcopy(study))
+                 source=source, study=copy.deepcopy(study), calibration=copy.deepcopy(calibration))
 
 
 # ---------------------------------------------------------------------------
@@ -497,7 +503,7 @@ def dumps_model(model: Model) -> str:
     if model.description:
         data["description"] = model.description
     data["flow_paths"] = list(model.flow_paths)
-    for key in ("launch", "run", "environment", "components", "study"):
+    for key in ("launch", "run", "environment", "components", "study", "calibration"):
         value = getattr(model, key, None)
         if value:
             data[key] = value
