@@ -1,0 +1,84 @@
+"""The ``still-water`` medium: water of constant density with hydrostatic pressure below its surface.
+
+Model
+-----
+::
+
+    depth = max(z_s - z, 0)
+    p     = p_s + rho g depth
+    rho   = constant,  T = constant,  current = (c_x, c_y, 0) constant
+
+z_s is the height of the free surface in model coordinates (z measured from
+the launch datum), p_s the pressure on the surface (the air pressure above
+it), g the gravity used for the head. This is the hydrostatic equation
+dp/dz = -rho g integrated for an incompressible liquid at rest (any fluid
+mechanics text, e.g. Munson, Young & Okiishi, *Fundamentals of Fluid
+Mechanics*, ch. 2, p = gamma h + p0; from memory).
+
+Assumptions and limits:
+
+* water is incompressible (its density rises about 0.05 % per 10 bar, so the
+  head is exact to that order down to ~100 m), isothermal and at rest apart
+  from a uniform horizontal current;
+* the default density 998.2 kg/m^3 is fresh water at 20 C (CoolProp IAPWS-95
+  gives 998.207 kg/m^3; /work/shared/references.md section 8). Sea water is
+  about 1025 kg/m^3 (from memory): set ``density``;
+* ``g`` here is only the head's gravity; set it equal to the model's gravity
+  field (the medium cannot see that field through the current contract);
+* **above the surface this medium is still water**: density, temperature and
+  current stay the water's and the pressure stays p_s. It models a vehicle
+  that is in the water (a hull, a submerged body); it does not model the air
+  above, waves, or the crossing of the surface (surface contact belongs to the
+  core's ground/water-surface events).
+
+Examples
+--------
+>>> from thrustgraph.component import scalar_ops
+>>> from thrustgraph.parameters import parse_params
+>>> p = parse_params(StillWater.parameters, {}, where="environment.medium")
+>>> water = StillWater.build(p, scalar_ops)
+>>> rho, pa, T, cx, cy, cz = water(-10.0, 0.0)      # 10 m below the surface at z = 0
+>>> rho, round(pa, 3)
+(998.2, 199214.98)
+"""
+
+from __future__ import annotations
+
+from thrustgraph.component import EnvironmentKind
+from thrustgraph.parameters import Quantity
+
+__all__ = ["StillWater"]
+
+
+class StillWater(EnvironmentKind):
+    """Water at rest (or in a uniform current) with hydrostatic pressure below its surface."""
+
+    kind = "still-water"
+    slot = "medium"
+    summary = "water of constant density; hydrostatic pressure below the surface, surface pressure above it"
+    parameters = (
+        # Fresh water at 20 C: CoolProp IAPWS-95 998.207 kg/m^3 (/work/shared/references.md section 8).
+        Quantity("density", "kg/m^3", default="998.2 kg/m^3", low=0.0, low_open=True, doc="water density"),
+        Quantity("surface_altitude", "m", default="0 m", doc="height of the free surface above the launch datum"),
+        # 1976 standard sea-level pressure.
+        Quantity("surface_pressure", "Pa", default="101325 Pa", low=0.0, doc="pressure on the free surface"),
+        Quantity("temperature", "K", default="20 degC", low=0.0, low_open=True, doc="water temperature"),
+        Quantity("g", "m/s^2", default="9.80665 m/s^2", low=0.0,
+                 doc="gravity for the hydrostatic head (set it equal to the model's gravity)"),
+        Quantity("current_x", "m/s", default="0 m/s", doc="velocity of the water along +x"),
+        Quantity("current_y", "m/s", default="0 m/s", doc="velocity of the water along +y"),
+    )
+
+    @classmethod
+    def build(cls, p, ops):
+        """``medium(z, t) -> (rho, p, T, current_x, current_y, 0)`` in SI; scalar z only."""
+        rho, zs, ps, T, cx, cy = p.density, p.surface_altitude, p.surface_pressure, p.temperature, \
+            p.current_x, p.current_y
+        k = p.density * p.g
+
+        def medium(z, t):
+            depth = zs - z
+            if depth < 0.0:
+                depth = 0.0
+            return (rho, ps + k * depth, T, cx, cy, 0.0)
+        return medium

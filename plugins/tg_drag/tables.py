@@ -1,0 +1,67 @@
+"""Table look-ups for the external-force kinds: linear interpolation between rows, stated behaviour at the ends.
+
+The interpolators are built once at assembly from a parsed
+:class:`~thrustgraph.parameters.Table` (an SI array whose first column
+increases strictly) and are plain-float functions (a bisection over a tuple:
+no numpy call per evaluation, so they are cheap inside the right-hand side).
+
+Examples
+--------
+>>> cd = clamped_interpolator([0.0, 0.8, 1.2], [0.40, 0.45, 0.70])
+>>> [round(cd(m), 9) for m in (0.4, 1.0, -1.0, 3.0)]
+[0.425, 0.575, 0.4, 0.7]
+"""
+
+from __future__ import annotations
+
+from bisect import bisect_right
+from typing import Callable, Sequence
+
+import numpy as np
+
+from thrustgraph.errors import ModelError
+
+__all__ = ["clamped_interpolator", "check_column"]
+
+
+def clamped_interpolator(xs: Sequence[float], ys: Sequence[float]) -> Callable[[float], float]:
+    """``f(x)``: linear interpolation in (xs, ys); below xs[0] it returns ys[0], above xs[-1] ys[-1].
+
+    Parameters
+    ----------
+    xs : sequence of float
+        Strictly increasing abscissae (at least two).
+    ys : sequence of float
+        Values at ``xs``.
+    """
+    x = tuple(float(v) for v in xs)
+    y = tuple(float(v) for v in ys)
+    slope = tuple((y[k + 1] - y[k]) / (x[k + 1] - x[k]) for k in range(len(x) - 1))
+    x0, xn, y0, yn = x[0], x[-1], y[0], y[-1]
+
+    def f(v: float) -> float:
+        if v <= x0:
+            return y0
+        if v >= xn:
+            return yn
+        k = bisect_right(x, v) - 1
+        return y[k] + slope[k] * (v - x[k])
+    return f
+
+
+def check_column(table: np.ndarray, col: int, *, where: str, name: str, unit: str, low: float | None = None,
+                 high: float | None = None, fix: str) -> None:
+    """Refuse a table whose column ``col`` leaves [low, high]; the message names the row.
+
+    >>> check_column(np.array([[0.0, 0.5], [1.0, -0.1]]), 1, where="components.body.drag_table", name="drag_coefficient",
+    ...              unit="", low=0.0, fix="a drag coefficient is never negative")
+    Traceback (most recent call last):
+    ...
+    thrustgraph.errors.ModelError: components.body.drag_table.rows[1]: drag_coefficient -0.1 is below 0. Fix: a drag coefficient is never negative.
+    """
+    u = f" {unit}" if unit else ""
+    for i, v in enumerate(table[:, col]):
+        if low is not None and v < low:
+            raise ModelError(f"{where}.rows[{i}]", f"{name} {v:g}{u} is below {low:g}{u}", fix)
+        if high is not None and v > high:
+            raise ModelError(f"{where}.rows[{i}]", f"{name} {v:g}{u} is above {high:g}{u}", fix)
