@@ -112,17 +112,6 @@ class StandardAtmosphere1976(EnvironmentKind):
         return medium
 
     @classmethod
-    def site_altitude(cls, p, z: float) -> float:
-        """Altitude above sea level (m, on the medium's scale) of model height z.
-
-        >>> from thrustgraph.parameters import parse_params
-        >>> p = parse_params(StandardAtmosphere1976.parameters, {"datum_altitude": "1400 m"}, where="m")
-        >>> StandardAtmosphere1976.site_altitude(p, 100.0)
-        1500.0
-        """
-        return p.datum_altitude + z
-
-    @classmethod
     def datum_geometric(cls, p) -> float:
         """The datum's geometric height above sea level, m."""
         if p.altitude_type == "geopotential":
