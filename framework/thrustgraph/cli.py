@@ -25,7 +25,7 @@ from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError
 __all__ = ["main", "COMMANDS", "build_parser"]
 
 # Sub-command modules, in the order `thrustgraph --help` lists them.
-COMMANDS = ["run"]
+COMMANDS = ["run", "compare", "calibrate"]
 
 
 def build_parser() -> argparse.ArgumentParser:

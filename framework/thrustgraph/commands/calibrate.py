@@ -1,0 +1,123 @@
+"""``thrustgraph calibrate``: fit model parameters to measured records and write a calibrated model file.
+
+>>> split_condition("run2.csv:components.bottle.fill=0.3", ["run1.csv", "run2.csv"])
+('run2.csv', 'components.bottle.fill', 0.3)
+"""
+
+from __future__ import annotations
+
+import argparse
+from typing import Any, Sequence
+
+from ..errors import ModelError
+from .common import add_set_option, load_with_overrides, parse_override
+from .compare import add_record_options, check_plot_names, mapping_from, parse_pair, prepared, read_records
+
+NAME = "calibrate"
+HELP = ("fit uncertain parameters (discharge coefficient, expansion exponent, drag...) to measured records; "
+        "report them with confidence intervals and write a calibrated model")
+
+
+def add_arguments(p: argparse.ArgumentParser) -> None:
+    p.add_argument("model", help="model file (TOML) or the name of a bundled scenario; its values are the start")
+    p.add_argument("records", nargs="+", metavar="RECORD",
+                   help="measured records (CSV with units in the headers), fitted all at once")
+    p.add_argument("--fit", action="append", default=[], metavar="PATH=LOW..HIGH",
+                   help='a parameter to fit and its bounds, e.g. --fit components.neck.discharge_coefficient=0.5..1.0 '
+                        '--fit "components.bottle.gauge_pressure=4 bar..6 bar" (repeatable; at least one)')
+    p.add_argument("--out", required=True, metavar="FILE",
+                   help="write the calibrated model here (written only when the fit succeeds)")
+    add_set_option(p)
+    p.add_argument("--condition", action="append", default=[], metavar="RECORD:KEY=VALUE",
+                   help='a setting that holds only for the test in RECORD, e.g. '
+                        '--condition "run2.csv:components.bottle.gauge_pressure=6 bar" (repeatable)')
+    add_record_options(p)
+    fit = p.add_argument_group("the fit")
+    fit.add_argument("--weight", action="append", default=[], metavar="SIGNAL=NUMBER",
+                     help="relative weight of a compared signal (default 1), e.g. --weight bottle.pressure=0.5")
+    fit.add_argument("--scale-by", choices=("range", "noise"), default="range",
+                     help="divide each signal's residual by its measured range (default), or by its own residual "
+                          "spread after a first fit (noise: gives each signal equal statistical weight)")
+    fit.add_argument("--confidence", type=float, default=0.95, metavar="LEVEL",
+                     help="confidence level of the reported intervals (default 0.95)")
+    fit.add_argument("--max-iterations", type=int, default=60, metavar="N",
+                     help="most residual evaluations the solver may use before the fit is refused (default 60)")
+    out = p.add_argument_group("output")
+    out.add_argument("--report", metavar="FILE", help="write the fit (values, intervals, correlation) to JSON")
+    out.add_argument("--plot", action="append", default=[], metavar="FILE",
+                     help="write overlay and residual plots of the calibrated model (.png or .svg; repeatable)")
+    out.add_argument("--quiet", action="store_true", help="no progress line on stderr")
+
+
+def split_condition(text: str, records: Sequence[str]) -> tuple[str, str, Any]:
+    """Split ``RECORD:KEY=VALUE`` into the record, the key path and the value."""
+    for rec in sorted(records, key=len, reverse=True):
+        if text.startswith(rec + ":"):
+            key, value = parse_override(text[len(rec) + 1:])
+            return rec, key, value
+    raise ModelError(f"--condition {text}", "does not start with one of the records and a colon",
+                     f"write RECORD:KEY=VALUE with RECORD one of {', '.join(records)}")
+
+
+def main(args: argparse.Namespace) -> int:
+    from ..calibrate import FitParameter, MeasuredRun, calibrate, compare_runs
+    from ..compare import plot_comparison
+    from ..model import parse_model
+    from ..modelfile import atomic_write, dumps_model, loads_model
+
+    check_plot_names(args.plot)
+    if not args.fit:
+        raise ModelError("--fit", "no parameter to fit",
+                         "name one with its bounds, e.g. --fit components.neck.discharge_coefficient=0.5..1.0")
+    model = load_with_overrides(args.model, args.overrides)
+    weights: dict[str, float] = {}
+    for text in args.weight:
+        name, raw = parse_pair(text, "--weight")
+        try:
+            weights[name] = float(raw)
+        except ValueError:
+            raise ModelError(f"--weight {text}", f"{raw!r} is not a number", "write e.g. --weight thrust=2") from None
+    mapping = mapping_from(args, weights)
+    named = {c.signal for c in mapping} | {c.column for c in mapping}
+    for name in weights:
+        if name not in named:
+            raise ModelError(f"--weight {name}", "names no mapped signal or column", "weigh a signal given with --map")
+    fits = [FitParameter.parse(t) for t in args.fit]
+    settings: dict[str, dict[str, Any]] = {r: {} for r in args.records}
+    for text in args.condition:
+        rec, key, value = split_condition(text, args.records)
+        settings[rec][key] = value
+    records = read_records(args.records, args)
+    runs = []
+    for path, record in zip(args.records, records):
+        m = model.copy()
+        for key, value in settings[path].items():
+            m.set(key, value)
+        _, rec = prepared(m, record, mapping, args)
+        runs.append(MeasuredRun(rec, mapping, settings=settings[path], start=args.window_start, end=args.window_end))
+
+    cal = calibrate(model, runs, fits, confidence=args.confidence, max_iterations=args.max_iterations,
+                    progress=not args.quiet, scale=args.scale_by)
+    calibrated = cal.calibrated_model()
+    text = dumps_model(calibrated)
+    loads_model(text, source=args.out)  # it must read back before it is written
+    print(f"thrustgraph: calibrating {model.name}")
+    print()
+    print(cal.report())
+    atomic_write(args.out, text)
+    print(f"wrote {args.out}")
+    if args.report:
+        atomic_write(args.report, cal.to_json())
+        print(f"wrote {args.report}")
+    if args.plot:
+        comps = compare_runs(calibrated, cal.runs)
+        for path in args.plot:
+            plot_comparison(comps, path, title=f"{model.name} calibrated: prediction against measurement")
+            print(f"wrote {path}")
+    cautions = parse_model(calibrated).cautions()
+    if cautions:
+        print()
+        print("Cautions")
+        for c in cautions:
+            print(f"  ! {c}")
+    return 0
