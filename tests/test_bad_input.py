@@ -40,7 +40,7 @@ CASES = [
      ["components.neck.kind", "unknown component kind", "did you mean 'convergent-nozzle'"]),
     ("nozzle with no upstream volume", lambda t: t.replace('flow_paths = ["bottle -> neck -> outside"]',
                                                              'flow_paths = ["neck -> outside"]'),
-     ["components.bottle", "no outlet"]),
+     ["components.neck", "needs exactly one upstream vessel", "Fix:"]),
     ("no path to the outside", lambda t: t.replace('flow_paths = ["bottle -> neck -> outside"]',
                                                      'flow_paths = ["bottle -> neck"]'),
      ["components.neck", "surroundings", "Fix:"]),

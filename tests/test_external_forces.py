@@ -249,7 +249,7 @@ def test_sinking_body_reaches_the_buoyancy_corrected_terminal_speed():
     w = (m - RHO_W * V) * G0
     vt = math.sqrt(2 * w / (RHO_W * cd * A))
     assert r.signals["speed"] == pytest.approx(falling_speed_closed_form(r.t, w / m, vt), rel=1e-7, abs=1e-9)
-    assert r.signals["float.drag"][:, 2] == pytest.approx(RHO_W * G0 * V, rel=1e-14)  # the buoyancy term
+    assert r.signals["float.buoyancy"][:, 2] == pytest.approx(RHO_W * G0 * V, rel=1e-14)  # the buoyancy term
 
 
 PROJECTILE = """

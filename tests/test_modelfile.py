@@ -277,7 +277,7 @@ def test_structure_errors_name_file_key_expected_and_found(edit, words):
     (lambda t: t.replace('kind = "convergent-nozzle"', 'kind = "convergent-nozle"'),
      ["m.toml: components.neck.kind", "did you mean 'convergent-nozzle'"]),
     (lambda t: t.replace('flow_paths = ["bottle -> neck -> outside"]', "flow_paths = []"),
-     ["m.toml: components.bottle", "has no outlet"]),
+     ["m.toml: components.neck", "needs exactly one upstream vessel"]),
 ])
 def test_kind_level_errors_name_the_file_through_check_model(edit, words):
     text = edit(BASE)

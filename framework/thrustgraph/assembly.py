@@ -9,22 +9,23 @@ Examples
 >>> system = assemble(load_model(default_model_path()))
 >>> system.state_names[:3]
 ('position.x', 'position.y', 'position.z')
+>>> [(line.start, line.terminal) for line in system.lines]
+[('bottle', 'neck')]
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 from typing import Any
 
 import pluggy
 
-from .component import BodyFns, EventSpec, FlowFns, JetFns, Mode, VolumeFns, scalar_ops
+from .component import BodyFns, EventSpec, FlowFns, JetFns, Mode, SourceFns, VolumeFns, scalar_ops
 from .errors import ModelError
 from .model import Model, ParsedModel, parse_model
 from .vectors import Vec, unit_from_angles
 
-__all__ = ["System", "Stream", "assemble", "ACCUMULATORS"]
+__all__ = ["System", "Line", "assemble", "ACCUMULATORS", "KINEMATIC"]
 
 KINEMATIC = ("position.x", "position.y", "position.z", "velocity.x", "velocity.y", "velocity.z")
 ACCUMULATORS = ("audit.mass_out", "audit.exhaust_momentum.x", "audit.exhaust_momentum.y",
@@ -34,13 +35,28 @@ ACCUMULATORS = ("audit.mass_out", "audit.exhaust_momentum.x", "audit.exhaust_mom
 
 
 @dataclass(frozen=True)
-class Stream:
-    """One discharge path: a volume, the flow element on its outlet, to the surroundings."""
+class Line:
+    """One discharge path: a vessel (or a source) -> flow elements in series -> a terminal element -> outside.
 
-    volume: str
-    flow: str
-    vol: VolumeFns
+    ``start_kind`` is "volume" or "source"; ``series`` holds ``(name, FlowFns)``
+    of the elements between the start and the terminal element, in flow order.
+    """
+
+    start: str
+    start_kind: str
+    terminal: str
     fl: FlowFns
+    series: tuple[tuple[str, FlowFns], ...] = ()
+    vol: VolumeFns | None = None
+    src: SourceFns | None = None
+
+    @property
+    def volume(self) -> str:  # name kept for readers of older code: the start component
+        return self.start
+
+    @property
+    def flow(self) -> str:
+        return self.terminal
 
 
 @dataclass(frozen=True)
@@ -52,27 +68,32 @@ class System:
     state_names : names of the entries of the flat state vector, in order
     y0 : initial state (SI)
     slices : component name -> (offset, count) in the state vector
-    modes : component name -> tuple of its Modes (volumes and jets only)
-    mode0 : initial mode index per moded component, in ``moded`` order
+    owners : (role, name) of the components with states, in state order
     moded : names of the components with modes, in order
+    modes : component name -> tuple of its Modes
+    mode0 : initial mode index per moded component, in ``moded`` order
     fixed_mass : mass of the bodies (kg)
-    bodies, streams, jets : the collected callables
+    bodies, volumes, lines, jets, sources : the collected callables
     medium, gravity : environment callables
     launch, run : parsed core settings (SI)
-    guide_dir : unit vector of the launch guide (world frame)
+    guide_dir : unit vector of the launch guide or track (world frame)
+    events : (component, EventSpec) of every component event
     """
 
     parsed: ParsedModel
     state_names: tuple[str, ...]
     y0: tuple[float, ...]
     slices: dict[str, tuple[int, int]]
+    owners: tuple[tuple[str, str], ...]
     moded: tuple[str, ...]
     modes: dict[str, tuple[Mode, ...]]
     mode0: tuple[int, ...]
     fixed_mass: float
     bodies: tuple[tuple[str, BodyFns], ...]
-    streams: tuple[Stream, ...]
+    volumes: tuple[tuple[str, VolumeFns], ...]
+    lines: tuple[Line, ...]
     jets: tuple[tuple[str, JetFns], ...]
+    sources: tuple[tuple[str, SourceFns], ...]
     medium: Any
     gravity: Any
     launch: Any
@@ -83,6 +104,11 @@ class System:
     @property
     def n_states(self) -> int:
         return len(self.y0)
+
+    @property
+    def streams(self) -> tuple[Line, ...]:
+        """The discharge lines (alias)."""
+        return self.lines
 
     def index(self, name: str) -> int:
         """Position of a named state entry (``component.state`` or a kinematic name)."""
@@ -96,55 +122,92 @@ def assemble(model: Model | ParsedModel, *, plugin_manager: pluggy.PluginManager
     amb = parsed.ambient
     launch = parsed.launch
     u = unit_from_angles(launch.elevation, launch.azimuth)
+    graph = parsed.graph
 
     names: list[str] = list(KINEMATIC)
     y0: list[float] = [0.0, 0.0, launch.altitude, launch.speed * u[0], launch.speed * u[1], launch.speed * u[2]]
     slices: dict[str, tuple[int, int]] = {}
+    owners: list[tuple[str, str]] = []
     moded: list[str] = []
     modes: dict[str, tuple[Mode, ...]] = {}
     mode0: list[int] = []
-    bodies: list[tuple[str, BodyFns]] = []
-    streams: list[Stream] = []
-    jets: list[tuple[str, JetFns]] = []
-    events: list[tuple[str, EventSpec]] = []
-    fixed_mass = 0.0
-
     order = list(parsed.model.components)
-    # Stateful components first, in file order, so the state layout is fixed here.
+
+    # State layout and modes, in file order, fixed here.
     for n in order:
         cls, p = parsed.kinds[n], parsed.params[n]
-        if cls.role not in ("volume", "jet"):
-            continue
-        init = tuple(float(v) for v in cls.initial_state(p, amb))
-        if len(init) != len(cls.states):
-            raise ModelError(f"components.{n}", f"kind {cls.kind!r} returned {len(init)} initial values for "
-                             f"{len(cls.states)} states", "this is a plugin bug; report it to its author")
-        slices[n] = (len(y0), len(init))
-        names.extend(f"{n}.{sv.name}" for sv in cls.states)
-        y0.extend(init)
+        if cls.states:
+            init = tuple(float(v) for v in cls.initial_state(p, amb))
+            if len(init) != len(cls.states):
+                raise ModelError(f"components.{n}", f"kind {cls.kind!r} returned {len(init)} initial values for "
+                                 f"{len(cls.states)} states", "this is a plugin bug; report it to its author")
+            slices[n] = (len(y0), len(init))
+            owners.append((cls.role, n))
+            names.extend(f"{n}.{sv.name}" for sv in cls.states)
+            y0.extend(init)
         if cls.modes:
             moded.append(n)
             modes[n] = cls.modes
             start = cls.initial_mode(p, amb)
             mode0.append([m.name for m in cls.modes].index(start))
 
+    bodies: list[tuple[str, BodyFns]] = []
+    volumes: list[tuple[str, VolumeFns]] = []
+    jets: list[tuple[str, JetFns]] = []
+    sources: list[tuple[str, SourceFns]] = []
+    flows: dict[str, FlowFns] = {}
+    events: list[tuple[str, EventSpec]] = []
+    fixed_mass = 0.0
     for n in order:
         cls, p = parsed.kinds[n], parsed.params[n]
-        where = f"components.{n}"
+        i = slices.get(n, (-1, 0))[0]
         if cls.role == "body":
-            b = cls.build_body(p, ops)
+            b = cls.build_body(p, ops, i, amb) if cls.states else cls.build_body(p, ops)
             fixed_mass += b.mass
             bodies.append((n, b))
+            events.extend((n, e) for e in b.events)
         elif cls.role == "volume":
-            v = cls.build_volume(p, slices[n][0], ops, amb)
-            (fname,) = list(parsed.graph.successors(n))
-            f = parsed.kinds[fname].build_flow(parsed.params[fname], ops)
-            streams.append(Stream(volume=n, flow=fname, vol=v, fl=f))
+            v = cls.build_volume(p, i, ops, amb)
+            volumes.append((n, v))
             events.extend((n, e) for e in v.events)
         elif cls.role == "jet":
-            j = cls.build_jet(p, slices[n][0], ops, amb)
+            j = cls.build_jet(p, i, ops, amb)
             jets.append((n, j))
             events.extend((n, e) for e in j.events)
+        elif cls.role == "source":
+            src = cls.build_source(p, i, ops, amb)
+            sources.append((n, src))
+            events.extend((n, e) for e in src.events)
+        elif cls.role == "flow":
+            f = cls.build_flow(p, ops)
+            flows[n] = f
+            events.extend((n, e) for e in f.events)
+
+    # Discharge lines: walk each path from its start to the element that reaches the outside.
+    vol_fns, src_fns = dict(volumes), dict(sources)
+    lines: list[Line] = []
+    for n in order:
+        role = parsed.kinds[n].role
+        if role not in ("volume", "source"):
+            continue
+        for first in graph.successors(n):
+            chain = [first]
+            while parsed.kinds[chain[-1]].role == "flow":
+                nxt = list(graph.successors(chain[-1]))
+                if parsed.kinds[nxt[0]].role != "flow":
+                    break
+                chain.append(nxt[0])
+            terminal = chain[-1]
+            if flows[terminal].flow is None:
+                raise ModelError(f"components.{terminal}", f"({parsed.kinds[terminal].kind}) cannot discharge to the "
+                                 "surroundings", f"put a nozzle after {terminal!r}")
+            for m in chain[:-1]:
+                if flows[m].rise is None:
+                    raise ModelError(f"components.{m}", f"({parsed.kinds[m].kind}) cannot sit in series before "
+                                     f"{chain[chain.index(m) + 1]!r}", "make it the last element before the outside")
+            lines.append(Line(start=n, start_kind=role, terminal=terminal, fl=flows[terminal],
+                              series=tuple((m, flows[m]) for m in chain[:-1]),
+                              vol=vol_fns.get(n), src=src_fns.get(n)))
 
     for n, e in events:
         valid = [m.name for m in modes.get(n, ())]
@@ -159,7 +222,7 @@ def assemble(model: Model | ParsedModel, *, plugin_manager: pluggy.PluginManager
 
     medium = parsed.env_kinds["medium"].build(parsed.env_params["medium"], ops)
     gravity = parsed.env_kinds["gravity"].build(parsed.env_params["gravity"], ops)
-    return System(parsed=parsed, state_names=tuple(names), y0=tuple(y0), slices=slices, moded=tuple(moded),
-                  modes=modes, mode0=tuple(mode0), fixed_mass=fixed_mass, bodies=tuple(bodies),
-                  streams=tuple(streams), jets=tuple(jets), medium=medium, gravity=gravity, launch=launch,
-                  run=parsed.run, guide_dir=u, events=tuple(events))
+    return System(parsed=parsed, state_names=tuple(names), y0=tuple(y0), slices=slices, owners=tuple(owners),
+                  moded=tuple(moded), modes=modes, mode0=tuple(mode0), fixed_mass=fixed_mass, bodies=tuple(bodies),
+                  volumes=tuple(volumes), lines=tuple(lines), jets=tuple(jets), sources=tuple(sources),
+                  medium=medium, gravity=gravity, launch=launch, run=parsed.run, guide_dir=u, events=tuple(events))

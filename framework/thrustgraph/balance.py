@@ -42,14 +42,20 @@ import numpy as np
 from .assembly import System
 from .errors import IntegrationError
 from .vectors import body_frame, solve_rank_one, to_world
+from scipy.optimize import brentq
 
 __all__ = ["Balance", "Kinematics"]
 
 
-class Kinematics:
-    """How the vehicle may move in the current phase: held, on the guide or free."""
 
-    HELD, GUIDE, FREE = 0, 1, 2
+class Kinematics:
+    """How the vehicle may move in the current phase: held, on the guide, free, or on an endless track."""
+
+    HELD, GUIDE, FREE, TRACK = 0, 1, 2, 3
+
+
+_AFT = (-1.0, 0.0, 0.0)
+_ZERO_FLOW = (0.0, 0.0, 0.0, 0.0, 0.0)
 
 
 class Balance:
@@ -60,32 +66,48 @@ class Balance:
     integration segments; within a segment it is fixed.
     """
 
-    max_newton = 6
+    max_newton = 8
 
     def __init__(self, system: System) -> None:
         self.system = system
         sysm = system
-        self._bodies_force = [b.force for _, b in sysm.bodies if b.force is not None]
-        self._streams = sysm.streams
-        self._jets = sysm.jets
-        self._mode_index = {n: k for k, n in enumerate(sysm.moded)}
-        self._stream_mode = [self._mode_index.get(st.volume, -1) for st in sysm.streams]
-        self._jet_mode = [self._mode_index.get(n, -1) for n, _ in sysm.jets]
+        slot = {n: k for k, n in enumerate(sysm.moded)}
+        self._slot = slot
+        self._bodies = [(n, b, slot.get(n, -1)) for n, b in sysm.bodies]
+        self._vols = [(n, v, slot.get(n, -1)) for n, v in sysm.volumes]
+        self._vol_index = {n: k for k, (n, _, _) in enumerate(self._vols)}
+        self._srcs = [(n, src, slot.get(n, -1)) for n, src in sysm.sources]
+        self._src_index = {n: k for k, (n, _, _) in enumerate(self._srcs)}
+        self._jets = [(n, j, slot.get(n, -1)) for n, j in sysm.jets]
+        self._lines = sysm.lines
+        # per line: (is_volume, start index, terminal slot, series slots, outlet-aft, jet-aft)
+        self._line_info = []
+        for ln in sysm.lines:
+            isvol = ln.start_kind == "volume"
+            idx = self._vol_index[ln.start] if isvol else self._src_index[ln.start]
+            out_dir = ln.vol.outlet_dir if isvol else _AFT
+            self._line_info.append((isvol, idx, slot.get(ln.terminal, -1),
+                                    tuple(slot.get(m, -1) for m, _ in ln.series),
+                                    out_dir == _AFT, ln.fl.jet_dir == _AFT, out_dir))
+        self._owners = []
+        for role, n in sysm.owners:
+            table = {"volume": self._vol_index, "jet": {m: k for k, (m, _, _) in enumerate(self._jets)},
+                     "body": {m: k for k, (m, _, _) in enumerate(self._bodies)}}.get(role)
+            if table is None:
+                raise IntegrationError(f"components.{n}: a {role} cannot carry states in this release")
+            self._owners.append((role, table[n]))
+        self._jet_aft = [j.jet_dir == _AFT for _, j, _ in self._jets]
+        self._need_frame = not all(a and b for _, _, _, _, a, b, _ in self._line_info) or not all(self._jet_aft)
         self._u = sysm.guide_dir
         self._az = sysm.launch.azimuth
+        self._mu = sysm.launch.friction
         self._follow = sysm.launch.attitude == "follow-wind"
         self._vmin = max(sysm.launch.min_follow_speed, 1e-9)
         self._x0 = (sysm.y0[0], sysm.y0[1], sysm.y0[2])
-        self.modes: list[int] = list(sysm.mode0)
         mount = sysm.launch.mount
-        self.kinematics = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.FREE}[mount]
-        self.descending = False
-        aft = (-1.0, 0.0, 0.0)
-        # Directions exactly aft along the body axis need no rotation (the common case).
-        self._aft = [(st.vol.outlet_dir == aft, st.fl.jet_dir == aft) for st in sysm.streams]
-        self._jet_aft = [jf.jet_dir == aft for _, jf in sysm.jets]
-        self._need_frame = not all(a and b for a, b in self._aft) or not all(self._jet_aft)
-        self.set_phase(self.modes, self.kinematics, False)
+        kin = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.FREE,
+               "track": Kinematics.TRACK}[mount]
+        self.set_phase(list(sysm.mode0), kin, False)
 
     # ------------------------------------------------------------------
     def set_phase(self, modes: Sequence[int], kinematics: int, descending: bool) -> None:
@@ -94,8 +116,14 @@ class Balance:
         self.kinematics = kinematics
         self.descending = descending
         m = self.modes
-        self._smode = [m[k] if k >= 0 else 0 for k in self._stream_mode]
-        self._jmode = [m[k] if k >= 0 else 0 for k in self._jet_mode]
+
+        def mode_of(k: int) -> int:
+            return m[k] if k >= 0 else 0
+        self._bmode = [mode_of(k) for _, _, k in self._bodies]
+        self._vmode = [mode_of(k) for _, _, k in self._vols]
+        self._smode = [mode_of(k) for _, _, k in self._srcs]
+        self._jmode = [mode_of(k) for _, _, k in self._jets]
+        self._lmode = [(mode_of(tk), tuple(mode_of(k) for k in sk)) for _, _, tk, sk, _, _, _ in self._line_info]
 
     # ------------------------------------------------------------------
     def rhs(self, t: float, y: Any) -> list[float]:
@@ -103,7 +131,11 @@ class Balance:
         return self._balance(t, y, None)
 
     def drives(self, t: float, y: Any) -> dict[str, float]:
-        """Outlet drive pressure (outlet pressure with head minus ambient, Pa) per vessel, for events."""
+        """Drive pressure (Pa) per vessel and per discharging element, for events.
+
+        A vessel's drive is its outlet pressure with the liquid head minus
+        ambient; an element's is the pressure at its inlet minus ambient.
+        """
         rec: dict[str, Any] = {"_light": True}
         self._balance(t, y, rec)
         return rec
@@ -137,34 +169,40 @@ class Balance:
         else:
             e = u
         frame = body_frame(e, self._az) if self._need_frame else None
-        ex_, ey_, ez_ = -e[0], -e[1], -e[2]
+        ax_, ay_, az_ = -e[0], -e[1], -e[2]
 
-        # Mass and external forces (drag and friction of bodies, weight).
+        # Mass and the forces that do not depend on the acceleration.
         M = sysm.fixed_mass
-        streams = self._streams
-        for st in streams:
-            M += st.vol.mass(s)
-        for _, jf in self._jets:
+        vmode = self._vmode
+        vols = self._vols
+        for k, (_, vf, _) in enumerate(vols):
+            M += vf.mass(s)
+        jmode = self._jmode
+        for _, jf, _ in self._jets:
             M += jf.mass(s)
         air = (rho, pa, Ta, vrx, vry, vrz, sp)
         Dx = Dy = Dz = 0.0
         drags = [] if rec is not None else None
-        for fn in self._bodies_force:
-            f = fn(air)
+        bmode = self._bmode
+        for k, (_, bf, _) in enumerate(self._bodies):
+            if bf.force_state is not None:
+                f = bf.force_state(t, s, bmode[k], air)
+            elif bf.force is not None:
+                f = bf.force(air)
+            else:
+                continue
             Dx += f[0]; Dy += f[1]; Dz += f[2]
             if drags is not None:
-                drags.append(f)
+                drags.append((k, f))
         Wz = -M * g
-        # Fixed part of the force: external + jets (independent of a).
         Fx, Fy, Fz = Dx, Dy, Dz + Wz
         Px = Py = Pz = 0.0      # pressure-thrust part (a surface force: enters the impulse audit)
         mout = 0.0
         Ex = Ey = Ez = 0.0      # ground-frame momentum carried away per second
         jet_out = []
-        jmode = self._jmode
-        for k, (_, jf) in enumerate(self._jets):
+        for k, (_, jf, _) in enumerate(self._jets):
             mdot, ve, pe, Ae = jf.jet(t, s, jmode[k], pa)
-            jd = (ex_, ey_, ez_) if self._jet_aft[k] else to_world(jf.jet_dir, frame)
+            jd = (ax_, ay_, az_) if self._jet_aft[k] else to_world(jf.jet_dir, frame)
             pth = (pe - pa) * Ae
             T = mdot * ve + pth
             Fx -= T * jd[0]; Fy -= T * jd[1]; Fz -= T * jd[2]
@@ -173,25 +211,27 @@ class Balance:
             Ex += mdot * (vx + ve * jd[0]); Ey += mdot * (vy + ve * jd[1]); Ez += mdot * (vz + ve * jd[2])
             jet_out.append((mdot, ve, pe, Ae, jd, T))
 
-        # Vessel outlets (pressure without head) and their world directions.
+        # Starting conditions of every line (vessel outlets without head, source supplies).
+        vouts = [vf.outlet(s, vmode[k]) for k, (_, vf, _) in enumerate(vols)]
+        smode = self._smode
+        supplies = [sf.supply(t, s, smode[k], air) for k, (_, sf, _) in enumerate(self._srcs)]
         outs = []
         coupled = False
-        smode = self._smode
-        aft = self._aft
-        for k, st in enumerate(streams):
-            o = st.vol.outlet(s, smode[k])
-            a_out, a_jet = aft[k]
-            dw = (ex_, ey_, ez_) if a_out else to_world(st.vol.outlet_dir, frame)
-            jd = (ex_, ey_, ez_) if a_jet else to_world(st.fl.jet_dir, frame)
+        for info in self._line_info:
+            isvol, idx, _, _, a_out, a_jet, odir = info
+            o = vouts[idx] if isvol else supplies[idx][0]
+            dw = (ax_, ay_, az_) if a_out else to_world(odir, frame)
+            jd = (ax_, ay_, az_) if a_jet else to_world(self._lines[len(outs)].fl.jet_dir, frame)
             outs.append((o, dw, jd))
-            if o[6] != 0.0:
+            if isvol and o[6] != 0.0:
                 coupled = True
 
         gx, gy, gz = 0.0, 0.0, -g
         ax = ay = az = 0.0
-        first = self._streams_at(s, outs, pa, gx, gy, gz)          # flows at a = 0
+        first = self._lines_at(t, s, outs, supplies, pa, gx, gy, gz)          # flows at a = 0
         flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = first
-        Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz      # every force, at the current a
+        Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz      # every applied force, at the current a
+        Cx = Cy = Cz = 0.0   # friction on the guide or track
         if kin == Kinematics.HELD:
             Rx, Ry, Rz = -Gx, -Gy, -Gz
         elif kin == Kinematics.FREE:
@@ -205,8 +245,8 @@ class Balance:
                     if it and abs(rx) + abs(ry) + abs(rz) <= 1e-12 * (abs(Gx) + abs(Gy) + abs(Gz) + M * g):
                         break
                     pairs = []
-                    for (o, dw, jd), fl in zip(outs, flows):
-                        if o[6] != 0.0:
+                    for (o, dw, jd), fl, info in zip(outs, flows, self._line_info):
+                        if info[0] and o[6] != 0.0:
                             c, hd = fl[4], o[6]
                             pairs.append(((-c * jd[0], -c * jd[1], -c * jd[2]), (hd * dw[0], hd * dw[1], hd * dw[2])))
                     try:
@@ -214,138 +254,217 @@ class Balance:
                     except ZeroDivisionError:
                         raise IntegrationError(_SINGULAR) from None
                     ax -= dx; ay -= dy_; az -= dz
-                    flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = self._streams_at(
-                        s, outs, pa, gx - ax, gy - ay, gz - az)
+                    flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = self._lines_at(
+                        t, s, outs, supplies, pa, gx - ax, gy - ay, gz - az)
                     Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
-        else:  # on the guide: a = alpha u, and alpha >= 0 while resting at its foot
+        else:  # guide or track: a = alpha u; friction mu |N| against the motion
             x0 = self._x0
-            resting = ((s[0] - x0[0]) * u[0] + (s[1] - x0[1]) * u[1] + (s[2] - x0[2]) * u[2] <= 0.0
-                       and vx * u[0] + vy * u[1] + vz * u[2] <= 0.0)
+            mu = self._mu
+            v_along = vx * u[0] + vy * u[1] + vz * u[2]
+            at_foot = kin == Kinematics.GUIDE and v_along <= 0.0 and \
+                (s[0] - x0[0]) * u[0] + (s[1] - x0[1]) * u[1] + (s[2] - x0[2]) * u[2] <= 0.0
             alpha = 0.0
             for it in range(self.max_newton if coupled else 1):
                 Gu = Gx * u[0] + Gy * u[1] + Gz * u[2]
-                r = M * alpha - Gu
-                if it and abs(r) <= 1e-12 * (abs(Gu) + M * g):
+                fr = 0.0
+                if mu > 0.0:
+                    nx_, ny_, nz_ = Gx - Gu * u[0], Gy - Gu * u[1], Gz - Gu * u[2]
+                    fmax = mu * math.sqrt(nx_ * nx_ + ny_ * ny_ + nz_ * nz_)
+                    if v_along > 0.0:
+                        fr = -fmax
+                    elif v_along < 0.0:
+                        fr = fmax
+                    else:  # at rest: static friction holds up to fmax
+                        fr = -fmax if Gu > fmax else (fmax if Gu < -fmax else -Gu)
+                r = M * alpha - Gu - fr
+                if it and abs(r) <= 1e-12 * (abs(Gu) + M * g + 1e-30):
                     break
                 J = M
-                for (o, dw, jd), fl in zip(outs, flows):
-                    if o[6] != 0.0:
+                for (o, dw, jd), fl, info in zip(outs, flows, self._line_info):
+                    if info[0] and o[6] != 0.0:
                         J -= fl[4] * (jd[0] * u[0] + jd[1] * u[1] + jd[2] * u[2]) * o[6] * (
                             dw[0] * u[0] + dw[1] * u[1] + dw[2] * u[2])
                 if J <= 0.0:
                     raise IntegrationError(_SINGULAR)
                 alpha -= r / J
-                if alpha < 0.0 and resting:
+                if alpha < 0.0 and at_foot:
                     alpha = 0.0
                     flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = first
                     Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
                     break
                 if not coupled:
                     break
-                flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = self._streams_at(
-                    s, outs, pa, gx - alpha * u[0], gy - alpha * u[1], gz - alpha * u[2])
+                flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = self._lines_at(
+                    t, s, outs, supplies, pa, gx - alpha * u[0], gy - alpha * u[1], gz - alpha * u[2])
                 Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
+            if alpha == 0.0 and at_foot:
+                fr = 0.0
+            Cx, Cy, Cz = fr * u[0], fr * u[1], fr * u[2]
             ax, ay, az = alpha * u[0], alpha * u[1], alpha * u[2]
-            Rx, Ry, Rz = M * ax - Gx, M * ay - Gy, M * az - Gz
+            Rx, Ry, Rz = M * ax - Gx - Cx, M * ay - Gy - Cy, M * az - Gz - Cz
 
-        # Derivatives: kinematics, component states, audit accumulators.
-        out = [vx, vy, vz, ax, ay, az] if kin != Kinematics.HELD else [0.0, 0.0, 0.0, 0.0, 0.0, 0.0]
+        # Derivatives: kinematics, component states (in layout order), audit accumulators.
         if kin == Kinematics.HELD:
+            out = [0.0, 0.0, 0.0, 0.0, 0.0, 0.0]
             vx = vy = vz = 0.0
-        for k, st in enumerate(streams):
-            out.extend(st.vol.derivs(s, smode[k], flows[k][0]))
-        for k, (_, jf) in enumerate(self._jets):
-            out.extend(jf.derivs(t, s, jmode[k], jet_out[k][0]))
-        for (o, dw, jd), fl in zip(outs, flows):
+        else:
+            out = [vx, vy, vz, ax, ay, az]
+        if self._owners:
+            vol_out = [0.0] * len(vols)
+            for info, fl in zip(self._line_info, flows):
+                if info[0]:
+                    vol_out[info[1]] += fl[0]
+            for role, k in self._owners:
+                if role == "volume":
+                    out.extend(vols[k][1].derivs(s, vmode[k], vol_out[k]))
+                elif role == "jet":
+                    out.extend(self._jets[k][1].derivs(t, s, jmode[k], jet_out[k][0]))
+                else:
+                    out.extend(self._bodies[k][1].derivs(t, s, bmode[k], air))
+        Nx = Ny = Nz = 0.0  # momentum of the entering fluid (ram drag, hose inflow)
+        for (o, dw, jd), fl, info in zip(outs, flows, self._line_info):
             mdot, ve = fl[0], fl[1]
-            mout += mdot
             Ex += mdot * (vx + ve * jd[0]); Ey += mdot * (vy + ve * jd[1]); Ez += mdot * (vz + ve * jd[2])
+            if info[0]:
+                mout += mdot
+            else:
+                vin = fl[8]
+                Ex -= mdot * (vx + vin[0]); Ey -= mdot * (vy + vin[1]); Ez -= mdot * (vz + vin[2])
         out.append(mout)
         out.extend((Ex, Ey, Ez))
-        out.extend((Dx + Px + Qx + Rx, Dy + Py + Qy + Ry, Dz + Wz + Pz + Qz + Rz))
+        out.extend((Dx + Px + Qx + Rx + Cx, Dy + Py + Qy + Ry + Cy, Dz + Wz + Pz + Qz + Rz + Cz))
         out.extend((-Ix, -Iy, -Iz))  # modelled d/dt of the internal momentum
 
         if rec is not None:
             if "_light" in rec:
-                for st, fl in zip(streams, flows):
-                    rec[st.volume] = fl[6] - pa
+                for ln, fl in zip(self._lines, flows):
+                    rec.setdefault(ln.start, fl[5] - pa)
+                    rec[ln.terminal] = fl[6] - pa
             else:
-                self._record(rec, t, s, M, e, (ax, ay, az), drags, (0.0, 0.0, Wz), (Rx, Ry, Rz), outs, flows,
-                             jet_out, rho, pa, Ta, (wx, wy, wz), sp, g)
+                self._record(rec, t, s, M, e, (ax, ay, az), drags, (0.0, 0.0, Wz), (Rx, Ry, Rz), (Cx, Cy, Cz),
+                             outs, flows, jet_out, supplies, rho, pa, Ta, (wx, wy, wz), sp, g)
         return out
 
-    def _streams_at(self, s, outs, pa, fx, fy, fz):
-        """Flows of every vessel outlet at apparent acceleration f = g - a."""
+    def _lines_at(self, t, s, outs, supplies, pa, fx, fy, fz):
+        """Flows of every line at apparent acceleration f = g - a.
+
+        Returns per line ``(mdot, ve, pe, Ae, c, p_start, p_terminal_in, v_int, v_in, rises)`` and the sums of
+        thrust, pressure thrust and the internal-momentum and inflow terms. The inflow term is folded into the
+        third sum (it does not depend on a for a given flow).
+        """
         flows = []
         Tx = Ty = Tz = 0.0
         Qx = Qy = Qz = 0.0
         Ix = Iy = Iz = 0.0
-        for k, st in enumerate(self._streams):
-            o, dw, jd = outs[k]
-            if o[6] != 0.0:
-                hp = o[6] * (fx * dw[0] + fy * dw[1] + fz * dw[2])
-                up = (o[0] + hp, o[1], o[2], o[3], o[4], o[5], o[6])
+        lmode = self._lmode
+        for j, ln in enumerate(self._lines):
+            o, dw, jd = outs[j]
+            info = self._line_info[j]
+            tmode, smodes = lmode[j]
+            mfix = -1.0
+            vin = None
+            if info[0]:
+                if o[6] != 0.0:
+                    hp = o[6] * (fx * dw[0] + fy * dw[1] + fz * dw[2])
+                    up = (o[0] + hp, o[1], o[2], o[3], o[4], o[5], o[6])
+                else:
+                    up = o
             else:
-                hp, up = 0.0, o
-            fl = st.fl.flow(up, pa)
+                sup = supplies[info[1]]
+                mfix, vin = sup[1], (sup[2], sup[3], sup[4])
+                up = o
+            if not ln.series and mfix < 0.0:
+                fl = ln.fl.flow(up, pa, tmode)
+                rises = ()
+                p_in = up[0]
+            else:
+                fl, p_in, rises = _solve_line(ln, up, pa, tmode, smodes, mfix)
             mdot, ve, pe, Ae = fl[0], fl[1], fl[2], fl[3]
             pth = (pe - pa) * Ae
             T = mdot * ve + pth
             Tx -= T * jd[0]; Ty -= T * jd[1]; Tz -= T * jd[2]
             Qx -= pth * jd[0]; Qy -= pth * jd[1]; Qz -= pth * jd[2]
             vint = 0.0
-            if st.vol.internal is not None:
-                vint, _moving = st.vol.internal(s, self._smode[k], mdot)
+            if info[0] and ln.vol.internal is not None:
+                vint, _moving = ln.vol.internal(s, self._vmode[info[1]], mdot)
                 # d/dt of the contents' momentum toward the outlet is -mdot * v_int (quasi-steady);
                 # it enters the balance with a minus sign.
                 Ix += mdot * vint * dw[0]; Iy += mdot * vint * dw[1]; Iz += mdot * vint * dw[2]
-            flows.append((mdot, ve, pe, Ae, fl[4], hp, up[0], vint))
+            if vin is not None:
+                Ix += mdot * vin[0]; Iy += mdot * vin[1]; Iz += mdot * vin[2]
+            flows.append((mdot, ve, pe, Ae, fl[4], up[0], p_in, vint, vin, rises))
         return flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz)
 
     # ------------------------------------------------------------------
-    def _record(self, rec, t, s, M, e, a, drags, weight, reaction, outs, flows, jet_out, rho, pa, Ta, wind, sp, g):
+    def _record(self, rec, t, s, M, e, a, drags, weight, reaction, friction, outs, flows, jet_out, supplies,
+                rho, pa, Ta, wind, sp, g):
         sysm = self.system
         rec.update(time=t, mass=M, axis=e, acceleration=a, weight=weight, reaction=reaction,
                    position=(s[0], s[1], s[2]), velocity=(s[3], s[4], s[5]), airspeed=sp,
                    ambient_pressure=pa, ambient_density=rho, ambient_temperature=Ta, wind=wind, gravity=g)
         ledger: list[tuple[str, str, tuple]] = []
-        for (n, _), f in zip([(n, b) for n, b in sysm.bodies if b.force is not None], drags):
-            rec[f"{n}.drag"] = f
-            ledger.append((n, "drag", f))
+        for k, f in drags:
+            n, bf, _ = self._bodies[k]
+            rec[f"{n}.{bf.force_name}"] = f
+            ledger.append((n, bf.force_name, f))
+        for k, (n, bf, _) in enumerate(self._bodies):
+            if bf.signals is not None:
+                for key, val in bf.signals(t, s, self._bmode[k]).items():
+                    rec[f"{n}.{key}"] = val
         ledger.append(("vehicle", "weight", weight))
         kin = self.kinematics
         if kin != Kinematics.FREE:
-            ledger.append(("vehicle", "stand reaction" if kin == Kinematics.HELD else "guide reaction", reaction))
+            name = {Kinematics.HELD: "stand reaction", Kinematics.GUIDE: "guide reaction",
+                    Kinematics.TRACK: "track reaction"}[kin]
+            ledger.append(("vehicle", name, reaction))
+            if self._mu > 0.0 and kin != Kinematics.HELD:
+                ledger.append(("vehicle", "friction", friction))
         tvx = tvy = tvz = 0.0
         mass_flow = 0.0
-        for k, st in enumerate(sysm.streams):
-            o, dw, jd = outs[k]
-            mdot, ve, pe, Ae, _c, hp, pup, vint = flows[k]
+        seen = set()
+        for j, ln in enumerate(self._lines):
+            o, dw, jd = outs[j]
+            mdot, ve, pe, Ae, _c, p_start, p_in, vint, vin, rises = flows[j]
+            info = self._line_info[j]
             mf = (-mdot * ve * jd[0], -mdot * ve * jd[1], -mdot * ve * jd[2])
             pth = (pe - pa) * Ae
             pf = (-pth * jd[0], -pth * jd[1], -pth * jd[2])
-            ledger.append((st.flow, "momentum flux", mf))
-            ledger.append((st.flow, "pressure thrust", pf))
-            if st.vol.internal is not None:
+            ledger.append((ln.terminal, "momentum flux", mf))
+            ledger.append((ln.terminal, "pressure thrust", pf))
+            if info[0] and ln.vol.internal is not None:
                 im = (mdot * vint * dw[0], mdot * vint * dw[1], mdot * vint * dw[2])
-                ledger.append((st.volume, "internal momentum rate", im))
-                mk = self._stream_mode[k]
-                _v, moving = st.vol.internal(s, self.modes[mk] if mk >= 0 else 0, mdot)
-                rec[f"{st.volume}.internal_momentum"] = (moving * vint * dw[0], moving * vint * dw[1],
-                                                         moving * vint * dw[2])
+                ledger.append((ln.start, "internal momentum rate", im))
+                _v, moving = ln.vol.internal(s, self._vmode[info[1]], mdot)
+                prev = rec.get(f"{ln.start}.internal_momentum", (0.0, 0.0, 0.0))
+                rec[f"{ln.start}.internal_momentum"] = (prev[0] + moving * vint * dw[0], prev[1] + moving * vint * dw[1],
+                                                        prev[2] + moving * vint * dw[2])
+            if vin is not None:
+                ledger.append((ln.start, "inflow momentum", (mdot * vin[0], mdot * vin[1], mdot * vin[2])))
+                rec[f"{ln.start}.mass_flow"] = mdot
             tvx += mf[0] + pf[0]; tvy += mf[1] + pf[1]; tvz += mf[2] + pf[2]
             mass_flow += mdot
-            rec[f"{st.flow}.mass_flow"] = mdot
-            rec[f"{st.flow}.exit_velocity"] = ve
-            rec[f"{st.flow}.exit_pressure"] = pe
-            rec[f"{st.flow}.thrust"] = mdot * ve + pth
-            rec[f"{st.volume}.head_pressure"] = hp
-            rec[f"{st.volume}.outlet_pressure"] = pup
-            rec[f"{st.volume}.drive"] = pup - pa
-            mk = self._stream_mode[k]
-            for key, val in st.vol.signals(s, self.modes[mk] if mk >= 0 else 0).items():
-                rec[f"{st.volume}.{key}"] = val
-        for k, (n, jf) in enumerate(sysm.jets):
+            rec[f"{ln.terminal}.mass_flow"] = mdot
+            rec[f"{ln.terminal}.exit_velocity"] = ve
+            rec[f"{ln.terminal}.exit_pressure"] = pe
+            rec[f"{ln.terminal}.thrust"] = mdot * ve + pth
+            rec[f"{ln.terminal}.inlet_pressure"] = p_in
+            rec[f"{ln.terminal}.drive"] = p_in - pa
+            for (m, _), rise in zip(ln.series, rises):
+                rec[f"{m}.pressure_rise"] = rise
+                rec[f"{m}.mass_flow"] = mdot
+            if ln.start in seen:
+                continue
+            seen.add(ln.start)
+            if info[0]:
+                rec[f"{ln.start}.head_pressure"] = p_start - o[0]
+                rec[f"{ln.start}.outlet_pressure"] = p_start
+                rec[f"{ln.start}.drive"] = p_start - pa
+                for key, val in ln.vol.signals(s, self._vmode[info[1]]).items():
+                    rec[f"{ln.start}.{key}"] = val
+            elif ln.src.signals is not None:
+                for key, val in ln.src.signals(t, s, self._smode[info[1]]).items():
+                    rec[f"{ln.start}.{key}"] = val
+        for k, (n, jf, _) in enumerate(self._jets):
             mdot, ve, pe, Ae, jd, T = jet_out[k]
             mf = (-mdot * ve * jd[0], -mdot * ve * jd[1], -mdot * ve * jd[2])
             pth = (pe - pa) * Ae
@@ -357,15 +476,65 @@ class Balance:
             rec[f"{n}.mass_flow"] = mdot
             rec[f"{n}.exit_velocity"] = ve
             rec[f"{n}.thrust"] = T
-            rec[f"{n}.drive"] = 1.0
-            mk = self._jet_mode[k]
-            for key, val in jf.signals(t, s, self.modes[mk] if mk >= 0 else 0).items():
+            for key, val in jf.signals(t, s, self._jmode[k]).items():
                 rec[f"{n}.{key}"] = val
         rec["thrust_vector"] = (tvx, tvy, tvz)
         rec["thrust"] = tvx * e[0] + tvy * e[1] + tvz * e[2]
         rec["mass_flow"] = mass_flow
         rec["ledger"] = ledger
         rec["inertia"] = (M * a[0], M * a[1], M * a[2])
+
+
+def _with_pressure(up: tuple, p: float) -> tuple:
+    return (p,) + tuple(up[1:])
+
+
+def _solve_line(ln, up, pa, tmode, smodes, mfix):
+    """Mass flow through elements in series: the flow the terminal element passes at the pressure the series
+    elements deliver at that same flow (scalar root). A source that fixes the flow sets it instead, and the
+    pressure at the terminal element is whatever passes that flow."""
+
+    def after(mdot):
+        cur = up
+        rises = []
+        for (m, fns), md in zip(ln.series, smodes):
+            r = fns.rise(cur, mdot, md)
+            rises.append(r)
+            cur = _with_pressure(cur, cur[0] + r)
+        return cur, tuple(rises)
+
+    if mfix >= 0.0:
+        cur, rises = after(mfix)
+        if mfix == 0.0:
+            return _ZERO_FLOW, cur[0], rises
+        # the supply delivers mfix: find the terminal inlet pressure that passes it
+        lo, hi = pa, max(pa * 2.0, 1e5) + pa
+        while ln.fl.flow(_with_pressure(cur, hi), pa, tmode)[0] < mfix:
+            hi = 2.0 * hi
+            if hi > 1e12:
+                raise IntegrationError(f"components.{ln.terminal}: cannot pass the flow its supply fixes "
+                                       f"({mfix:.4g} kg/s)")
+        p = brentq(lambda p: ln.fl.flow(_with_pressure(cur, p), pa, tmode)[0] - mfix, lo, hi,
+                   xtol=1e-12, rtol=1e-13)
+        return ln.fl.flow(_with_pressure(cur, p), pa, tmode), p, rises
+
+    def gap(mdot):
+        cur, _ = after(mdot)
+        return ln.fl.flow(cur, pa, tmode)[0] - mdot
+
+    g0 = gap(0.0)
+    if g0 <= 0.0:
+        cur, rises = after(0.0)
+        return ln.fl.flow(cur, pa, tmode), cur[0], rises
+    hi = max(g0, 1e-6)
+    while gap(hi) > 0.0:
+        hi *= 2.0
+        if hi > 1e9:
+            raise IntegrationError(f"components.{ln.terminal}: the line's mass flow has no finite solution")
+    mdot = brentq(gap, 0.0, hi, xtol=1e-14, rtol=1e-13)
+    cur, rises = after(mdot)
+    fl = ln.fl.flow(cur, pa, tmode)
+    return (mdot,) + tuple(fl[1:]), cur[0], rises
 
 
 _SINGULAR = ("the liquid head makes the acceleration undetermined (the nozzle is too large for the vessel's "

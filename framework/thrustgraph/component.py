@@ -16,6 +16,10 @@ Roles
 ``flow``
     Sits on a path between a volume and the surroundings (or another volume)
     and sets the mass flow from the states on either side. Example: a nozzle.
+``source``
+    Fluid entering the vehicle from outside: an inlet capturing the medium
+    (ram drag), a hose from a fixed station. Paths run source -> flow
+    elements -> surroundings.
 ``jet``
     A self-contained propulsive source with a prescribed mass flow and
     exhaust velocity (or thrust) history; it holds its own propellant.
@@ -29,8 +33,11 @@ The implementer's contract
    ``role``, ``summary`` and ``parameters`` (a tuple of
    :mod:`thrustgraph.parameters` specs). Values reach you as SI floats in a
    frozen dataclass ``p``.
-2. Volumes and jets declare ``states`` (tuple of :class:`StateVar`) and
-   ``modes`` (tuple of :class:`Mode`); the first mode is the default.
+2. Any component may declare ``states`` (tuple of :class:`StateVar`) and
+   ``modes`` (tuple of :class:`Mode`); the first mode is the default. Bodies
+   with states (e.g. a recovery device's opening fraction) set the state-aware
+   fields of :class:`BodyFns`; flow elements with modes (a relief valve) get
+   their mode in ``flow`` and ``rise``.
 3. Override :meth:`ComponentKind.check` to refuse parameter combinations that
    make no physical sense; raise :class:`~thrustgraph.errors.ModelError` naming
    the parameter and the fix.
@@ -57,11 +64,11 @@ from typing import Any, Callable, ClassVar, Sequence
 from .parameters import Spec, make_params_class
 
 __all__ = [
-    "ROLES", "StateVar", "Mode", "EventSpec", "Outlet", "BodyFns", "VolumeFns", "FlowFns", "JetFns",
+    "ROLES", "StateVar", "Mode", "EventSpec", "Outlet", "BodyFns", "VolumeFns", "FlowFns", "JetFns", "SourceFns",
     "ComponentKind", "EnvironmentKind", "ScalarOps", "scalar_ops", "Ambient",
 ]
 
-ROLES = ("body", "volume", "flow", "jet", "boundary")
+ROLES = ("body", "volume", "flow", "jet", "source", "boundary")
 
 
 @dataclass(frozen=True)
@@ -166,16 +173,21 @@ Outlet = tuple
 class BodyFns:
     """What a body contributes.
 
-    ``force(air)`` receives ``(rho, p_a, T_a, vrx, vry, vrz, speed)`` (ambient
-    density, pressure, temperature, the air velocity relative to the vehicle
-    subtracted from the vehicle velocity, i.e. the vehicle's velocity through
-    the air, and its magnitude) and returns a force (Fx, Fy, Fz) in N, or the
-    attribute is None.
+    ``force(air)`` receives ``(rho, p_a, T_a, vx, vy, vz, speed)`` (ambient
+    density, pressure, temperature, and the vehicle's velocity through the
+    medium with its magnitude) and returns a force (Fx, Fy, Fz) in N, or the
+    attribute is None. A body with states or modes (a recovery device) uses
+    ``force_state(t, s, mode, air)`` instead, ``derivs(t, s, mode, air)`` for its
+    state derivatives, ``signals(t, s, mode)`` and ``events``.
     """
 
     mass: float
     force: Callable[[tuple], tuple] | None = None
     force_name: str = "drag"
+    force_state: Callable[[float, list, int, tuple], tuple] | None = None
+    derivs: Callable[[float, list, int, tuple], tuple] | None = None
+    signals: Callable[[float, list, int], dict] | None = None
+    events: tuple[EventSpec, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -204,18 +216,46 @@ class VolumeFns:
 class FlowFns:
     """What a flow element contributes.
 
-    ``flow(up, p_down)`` receives the upstream outlet condition (with the
-    liquid head already added to its pressure) and the downstream static
-    pressure, and returns ``(mdot, v_e, p_e, A_e, dthrust_dp)``: mass flow
-    (kg/s, >= 0), exit velocity relative to the vehicle (m/s), exit pressure
-    (Pa), exit area over which p_e acts (m^2), and the derivative of the thrust
-    magnitude with respect to the upstream pressure (N/Pa; used to solve the
-    head-acceleration coupling). ``jet_dir`` is the body-frame direction of the
-    exhaust.
+    ``flow(up, p_down, mode)`` — for an element that discharges to the
+    surroundings — receives the upstream condition (an Outlet tuple, with the
+    liquid head and any pump rise already added to its pressure) and the
+    ambient pressure, and returns ``(mdot, v_e, p_e, A_e, dthrust_dp)``: mass
+    flow (kg/s, >= 0), exit velocity relative to the vehicle (m/s), exit
+    pressure (Pa), exit area over which p_e acts (m^2), and the derivative of
+    the thrust magnitude with respect to the upstream pressure (N/Pa; used to
+    solve the head-acceleration coupling).
+
+    ``rise(up, mdot, mode)`` — for an element in series (a pump, a valve, a
+    line loss) — returns the pressure rise across the element at mass flow
+    ``mdot`` (Pa; negative for a loss). An element may provide both.
+
+    ``jet_dir`` is the body-frame direction of the exhaust; ``events`` use the
+    pressure difference across the element as ``drive``; ``signals(mode)``
+    adds named values to the results.
     """
 
-    flow: Callable[[tuple, float], tuple]
+    flow: Callable[[tuple, float, int], tuple] | None = None
     jet_dir: tuple[float, float, float] = (-1.0, 0.0, 0.0)
+    rise: Callable[[tuple, float, int], float] | None = None
+    events: tuple[EventSpec, ...] = ()
+
+
+@dataclass(frozen=True)
+class SourceFns:
+    """What a source contributes: fluid entering the vehicle from outside (an inlet, a supply hose).
+
+    ``supply(t, s, mode, air)`` receives ``air`` as for bodies and returns
+    ``(up, mdot_fixed, vin_x, vin_y, vin_z)``: the condition of the entering
+    fluid as an Outlet tuple (its pressure after any inlet loss), the mass flow
+    when the source fixes it (kg/s) or -1.0 when the downstream elements set it,
+    and the velocity of the entering fluid relative to the vehicle (m/s,
+    world frame). Its momentum ``mdot * vin`` enters the balance (for an inlet
+    that is the ram drag). A source holds no mass: what enters leaves.
+    """
+
+    supply: Callable[[float, list, int, tuple], tuple]
+    signals: Callable[[float, list, int], dict] | None = None
+    events: tuple[EventSpec, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -281,7 +321,8 @@ class ComponentKind:
 
     # --- builders (one per role) ----------------------------------------------
     @classmethod
-    def build_body(cls, p: Any, ops: Any) -> BodyFns:  # pragma: no cover - abstract
+    def build_body(cls, p: Any, ops: Any, i: int = -1, amb: Ambient | None = None) -> BodyFns:  # pragma: no cover
+        """Bodies without states are called as ``build_body(p, ops)``; with states, ``i`` and ``amb`` follow."""
         raise NotImplementedError
 
     @classmethod
@@ -294,6 +335,10 @@ class ComponentKind:
 
     @classmethod
     def build_jet(cls, p: Any, i: int, ops: Any, amb: Ambient) -> JetFns:  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    @classmethod
+    def build_source(cls, p: Any, i: int, ops: Any, amb: Ambient) -> SourceFns:  # pragma: no cover - abstract
         raise NotImplementedError
 
 

@@ -31,7 +31,7 @@ from .result import Audit, Event, FlightResult, Phase
 
 __all__ = ["integrate", "fly", "fly_segments", "provenance"]
 
-_KIN = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.FREE}
+_KIN = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.FREE, "track": Kinematics.TRACK}
 
 
 def fly(model: Model | str | None = None, **overrides: Any) -> FlightResult:
@@ -70,6 +70,8 @@ def _label(system: System, ph: _Phase) -> str:
         return "spent"
     if ph.kin == Kinematics.GUIDE:
         return "on guide"
+    if ph.kin == Kinematics.TRACK:
+        return "coast"
     return "descent" if ph.descending else "coast"
 
 
@@ -134,10 +136,27 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: float | Non
     while t < t_end:
         bal.set_phase(ph.modes, ph.kin, ph.descending)
         fns, actions = _events(system, bal, ph, g0, x0, u)
+        # A component event already past its zero when its mode starts fires at once.
+        for _ in range(20):
+            past = [k for k, (kind, *_r) in enumerate(actions) if kind in ("mode", "stop")
+                    and fns[k].direction * fns[k](t, y) > 0.0]
+            if not past:
+                break
+            kind, name, comp, target = actions[past[0]]
+            if kind == "stop":
+                break
+            ph.modes[system.moded.index(comp)] = [m.name for m in system.modes[comp]].index(target)
+            events.append(Event(t, name, comp, f"mode -> {target} (at once)"))
+            bal.set_phase(ph.modes, ph.kin, ph.descending)
+            fns, actions = _events(system, bal, ph, g0, x0, u)
         propulsive = _label(system, ph) not in ("spent", "on guide", "coast", "descent")
         if not propulsive and ph.kin == Kinematics.HELD:
             events.append(Event(t, "propulsion spent", "vehicle", "nothing left to push the stand"))
             message = "propulsion spent on the stand"
+            break
+        if not propulsive and ph.kin == Kinematics.TRACK and float(np.dot(y[3:6], u)) == 0.0:
+            events.append(Event(t, "at rest", "vehicle", "nothing pushes and the vehicle is not moving"))
+            message = "at rest on the track"
             break
         if not propulsive and ph.kin == Kinematics.GUIDE and float(np.dot(y[3:6], u)) <= 0.0 and \
                 float(np.dot(y[:3] - x0, u)) <= 1e-12:
@@ -188,6 +207,11 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: float | Non
                 if run.stop_at_apogee:
                     stop = True
                     message = "stopped at apogee"
+            elif kind == "rest":
+                events.append(Event(t, "came to rest", "vehicle", f"distance {float(np.dot(y[:3] - x0, u)):.4g} m"))
+                y[3:6] = 0.0
+                stop = True
+                message = "came to rest on the track"
             elif kind == "impact":
                 v = float(np.linalg.norm(y[3:6]))
                 events.append(Event(t, "ground impact", "vehicle", f"speed {v:.4g} m/s"))
@@ -217,10 +241,10 @@ def _events(system: System, bal: Balance, ph: _Phase, g0: float, x0: np.ndarray,
             cache["drives"] = bal.drives(t, y)
         return cache["drives"].get(comp, 0.0)
 
+    current_modes = {n: system.modes[n][ph.modes[k]].name for k, n in enumerate(system.moded)}
+
     for comp, spec in system.events:
-        i = system.moded.index(comp)
-        current = system.modes[comp][ph.modes[i]].name
-        if current not in spec.when:
+        if current_modes[comp] not in spec.when:
             continue
 
         if spec.needs_drive:
@@ -244,6 +268,13 @@ def _events(system: System, bal: Balance, ph: _Phase, g0: float, x0: np.ndarray,
         guide.direction = 1.0
         fns.append(guide)
         actions.append(("guide", "guide exit", "vehicle", None))
+    if ph.kin == Kinematics.TRACK:
+        def rest(t, y):
+            return y[3] * u[0] + y[4] * u[1] + y[5] * u[2]
+        rest.terminal = True
+        rest.direction = -1.0
+        fns.append(rest)
+        actions.append(("rest", "came to rest", "vehicle", None))
     if ph.kin == Kinematics.FREE and g0 > 0.0:
         if not ph.descending:
             def apogee(t, y):

@@ -32,9 +32,12 @@ __all__ = ["Model", "ParsedModel", "parse_model", "LAUNCH_SPECS", "RUN_SPECS", "
 
 # Core settings: how the vehicle starts and how the run is integrated.
 LAUNCH_SPECS = (
-    Choice("mount", options=("guide", "held", "free"), default="guide",
-           doc="guide: slides along a launch guide, then flies; held: fixed on a test stand; free: free from t = 0"),
+    Choice("mount", options=("guide", "held", "free", "track"), default="guide",
+           doc="guide: slides along a launch guide, then flies; held: fixed on a test stand; free: free from "
+               "t = 0; track: stays on an endless straight track or water lane (carts, boats)"),
     Quantity("guide_length", "m", default="0 m", low=0.0, doc="length the vehicle travels along the guide"),
+    Number("friction", default=0.0, low=0.0, high=2.0,
+           doc="friction (or rolling-resistance) coefficient on the guide or track, times the normal force"),
     Quantity("elevation", "deg", default="90 deg", low=0.0, high=90.0, doc="guide (and initial axis) angle above the horizon"),
     Quantity("azimuth", "deg", default="0 deg", low=-360.0, high=360.0, doc="direction of the guide, from +x toward +y"),
     Choice("attitude", options=("follow-wind", "fixed"), default="follow-wind",
@@ -278,7 +281,7 @@ def _check_graph(model: Model, kinds: dict[str, type[ComponentKind]]) -> nx.DiGr
     for n, cls in kinds.items():
         g.add_node(n, kind=cls.kind, role=cls.role)
     names = list(kinds)
-    for k, (a, b) in enumerate(edges):
+    for a, b in edges:
         for n in (a, b):
             if n not in kinds:
                 raise ModelError("flow_paths", f"names {n!r}, which is not a component", _suggest(n, names))
@@ -287,46 +290,60 @@ def _check_graph(model: Model, kinds: dict[str, type[ComponentKind]]) -> nx.DiGr
         g.add_edge(a, b)
     role = {n: kinds[n].role for n in kinds}
     boundaries = [n for n in names if role[n] == "boundary"]
-    for n in names:
+    if not nx.is_directed_acyclic_graph(g):
+        cycle = " -> ".join(a for a, _ in nx.find_cycle(g))
+        raise ModelError("flow_paths", f"the paths form a loop ({cycle})", "flow paths must run from a vessel or "
+                         "source to the surroundings without returning")
+    # flow elements first: a dangling nozzle is the more useful message
+    for n in sorted(names, key=lambda m: role[m] != "flow"):
         r = role[n]
         ins, outs = list(g.predecessors(n)), list(g.successors(n))
         where = f"components.{n}"
+        kind = kinds[n].kind
         if r == "body" and (ins or outs):
-            raise ModelError(where, f"is a body ({kinds[n].kind}) and carries no flow, but flow_paths connect it",
+            raise ModelError(where, f"is a body ({kind}) and carries no flow, but flow_paths connect it",
                              "remove it from flow_paths")
         if r == "boundary" and outs:
-            raise ModelError(where, "is the surroundings; a flow path cannot leave it yet",
-                             "write paths that end at the surroundings")
+            raise ModelError(where, "is the surroundings; a flow path cannot leave it (use an inlet to take in "
+                             "the surrounding fluid)", "write paths that end at the surroundings")
         if r == "flow":
-            if len(ins) != 1 or role[ins[0]] != "volume":
+            if len(ins) != 1 or role[ins[0]] not in ("volume", "source", "flow"):
                 found = ", ".join(ins) if ins else "nothing"
-                raise ModelError(where, f"({kinds[n].kind}) needs exactly one upstream vessel, found {found}",
-                                 f"add a path such as \"TANK -> {n} -> OUTSIDE\"")
-            if len(outs) != 1 or role[outs[0]] != "boundary":
+                raise ModelError(where, f"({kind}) needs exactly one upstream vessel, source or element, found "
+                                 f"{found}", f"add a path such as \"TANK -> {n} -> OUTSIDE\"")
+            if len(outs) != 1 or role[outs[0]] not in ("flow", "boundary"):
                 found = ", ".join(outs) if outs else "nothing"
-                raise ModelError(where, f"({kinds[n].kind}) must discharge to the surroundings (flow between vessels"
-                                 f" is not supported yet), found {found}", f"continue the path: \"{n} -> OUTSIDE\"")
+                raise ModelError(where, f"({kind}) must lead to another element or to the surroundings (flow "
+                                 f"into a vessel is not supported yet), found {found}",
+                                 f"continue the path: \"{n} -> OUTSIDE\"")
         if r == "volume":
-            if any(role[m] != "flow" for m in outs + ins):
-                bad = [m for m in outs + ins if role[m] != "flow"][0]
+            if ins:
+                raise ModelError(where, f"is fed by {ins[0]!r}; flow into a vessel is not supported yet",
+                                 "feed the nozzle directly from the source instead")
+            if any(role[m] != "flow" for m in outs):
+                bad = [m for m in outs if role[m] != "flow"][0]
                 raise ModelError(where, f"connects directly to {bad!r}; vessels connect through a flow element",
                                  f"put a nozzle or orifice between {n!r} and {bad!r}")
-            if len(outs) > 1:
-                raise ModelError(where, f"has {len(outs)} outlets; this release supports one outlet per vessel",
-                                 "feed several nozzles from separate vessels")
             if not outs:
                 raise ModelError(where, "has no outlet, so it can never empty",
                                  f"add a path such as \"{n} -> NOZZLE -> OUTSIDE\"")
+        if r == "source":
+            if ins:
+                raise ModelError(where, f"({kind}) takes fluid from outside the vehicle and cannot be fed by {ins[0]!r}",
+                                 f"start the path at {n!r}")
+            if len(outs) != 1 or role[outs[0]] != "flow":
+                raise ModelError(where, f"({kind}) must feed exactly one flow element (a pump or a nozzle)",
+                                 f"write a path such as \"{n} -> PUMP -> NOZZLE -> OUTSIDE\"")
         if r == "jet":
             if ins or len(outs) != 1 or role[outs[0]] != "boundary":
                 raise ModelError(where, "a prescribed jet must exhaust straight to the surroundings",
                                  f"write the path \"{n} -> OUTSIDE\"")
     for n in names:
-        if role[n] in ("volume", "jet"):
+        if role[n] in ("volume", "jet", "source"):
             if not any(nx.has_path(g, n, b) for b in boundaries):
                 raise ModelError(f"components.{n}", "has no path to the outside, so nothing it holds can push the vehicle",
                                  "add a surroundings component and a path from this vessel through a nozzle to it")
-    if any(role[n] in ("volume", "jet") for n in names) and not boundaries:
+    if any(role[n] in ("volume", "jet", "source") for n in names) and not boundaries:
         raise ModelError("components", "no surroundings component", 'add [components.outside] kind = "surroundings"')
     if not any(role[n] in ("body", "volume", "jet") for n in names):
         raise ModelError("components", "nothing in the model has mass", "add an airframe with its dry mass")

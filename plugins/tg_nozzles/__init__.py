@@ -28,7 +28,7 @@ Examples
 >>> P = ConvergentNozzle.params_class()
 >>> f = ConvergentNozzle.build_flow(P(diameter=0.022, discharge_coefficient=1.0, direction=(-1.0, 0.0, 0.0)),
 ...                                 scalar_ops)
->>> mdot, ve, pe, Ae, c = f.flow((101325.0 + 4e5, 288.15, 998.2, 1.4, 287.05, 1.0, 0.0), 101325.0)
+>>> mdot, ve, pe, Ae, c = f.flow((101325.0 + 4e5, 288.15, 998.2, 1.4, 287.05, 1.0, 0.0), 101325.0, 0)
 >>> round(ve, 3)
 28.31
 """
@@ -89,7 +89,7 @@ class ConvergentNozzle(ComponentKind):
                 cache[key] = c
             return c
 
-        def flow(up, p_down):
+        def flow(up, p_down, mode=0):
             pu, T, rho, gam, R, phase, head = up
             if phase > 0.5:  # liquid
                 dp = pu - p_down
