@@ -569,17 +569,19 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
             raise ModelError(f"fit {params[j].path}", "has no effect on the compared signals, so these records "
                              "cannot determine it", "compare a signal it changes, or do not fit it")
     U, sv, Vt = np.linalg.svd(J, full_matrices=False)
-    if sv[-1] <= 1e-10 * sv[0]:
-        worst = np.argsort(-np.abs(Vt[-1]))[:2]
-        names = " and ".join(params[k].path for k in sorted(worst))
-        raise ModelError("calibration", f"the records cannot tell {names} apart (their effects on the compared "
-                         "signals are nearly the same)", "fit one of them, or add a record or signal that separates them")
     s2 = float(r @ r) / dof
-    cov_z = s2 * (Vt.T / sv ** 2) @ Vt
+    cov_z = s2 * (Vt.T / np.maximum(sv, 1e-300) ** 2) @ Vt
     D = np.diag([q.high - q.low for q in params])
     cov = D @ cov_z @ D
     se = np.sqrt(np.diag(cov))
     corr = cov / np.outer(se, se)
+    off = np.abs(corr - np.eye(p))
+    if sv[-1] <= 1e-8 * sv[0] or (p > 1 and off.max() > 0.9999):
+        i, j = (sorted(np.unravel_index(int(np.argmax(off)), off.shape)) if p > 1 else (0, 0))
+        names = f"{params[i].path} and {params[j].path}" if i != j else params[i].path
+        raise ModelError("calibration", f"the records cannot tell {names} apart (their effects on the compared "
+                         f"signals are the same up to a factor: correlation {corr[i, j]:+.5f})",
+                         "fit one of them, or add a record or signal that separates them")
     tq = float(student_t.ppf(0.5 * (1.0 + confidence), dof))
     x = prob.x_of(z)
     values = []
