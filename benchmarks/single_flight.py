@@ -41,7 +41,7 @@ def main() -> int:
         t0 = time.perf_counter()
         ap_hand, _, nfev_hand = handwritten_bottle.fly()
         t1 = time.perf_counter()
-        bal, segments, events, *_rest, nfev_tg = fly_segments(system)
+        nfev_tg = fly_segments(system).nfev
         t2 = time.perf_counter()
         result = tg.integrate(system)
         t3 = time.perf_counter()

@@ -2,9 +2,11 @@
 
 Each segment runs with a fixed discrete phase (component modes, kinematic
 constraint, before/after apogee). A terminal event ends the segment exactly at
-the switch (liquid gone, flow stops, guide exit, apogee, ground impact), the
-phase is updated and the next segment starts from the event state, so no
-discontinuity is ever stepped over.
+the switch (liquid gone, flow stops, guide exit, apogee, ground impact, a
+user trigger, a stage separation), the phase is updated and the next segment
+starts from the event state, so no discontinuity is ever stepped over. A
+separation replaces the vehicle by its upper stage and flies the dropped
+stage on as a vehicle of its own.
 
 Examples
 --------
@@ -18,6 +20,7 @@ from __future__ import annotations
 
 import hashlib
 import math
+from dataclasses import dataclass, field
 from typing import Any, Callable
 
 import numpy as np
@@ -28,10 +31,12 @@ from .balance import Balance, Kinematics
 from .errors import IntegrationError, ModelError
 from .model import Model, ParsedModel
 from .result import Audit, Event, FlightResult, Phase
+from .staging import KINEMATIC_SIGNALS, Trigger, resolve_thresholds, separate
 
-__all__ = ["integrate", "fly", "fly_segments", "provenance"]
+__all__ = ["integrate", "fly", "fly_segments", "provenance", "Segments", "available_signals"]
 
 _KIN = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.FREE, "track": Kinematics.TRACK}
+_NOT_PROPULSIVE = ("spent", "on guide", "coast", "descent")
 
 
 def fly(model: Model | str | None = None, **overrides: Any) -> FlightResult:
@@ -57,6 +62,9 @@ class _Phase:
     def __init__(self, modes: list[int], kin: int, descending: bool) -> None:
         self.modes, self.kin, self.descending = modes, kin, descending
 
+    def copy(self) -> "_Phase":
+        return _Phase(list(self.modes), self.kin, self.descending)
+
 
 def _label(system: System, ph: _Phase) -> str:
     labels = []
@@ -75,7 +83,28 @@ def _label(system: System, ph: _Phase) -> str:
     return "descent" if ph.descending else "coast"
 
 
-def integrate(model: Model | ParsedModel | System, *, rtol: float | None = None, atol: float | None = None,
+@dataclass
+class Segments:
+    """What the phase-by-phase integration produced, before signals and ledger are built.
+
+    segments : list of (phase, OdeResult with dense output, Balance it was integrated with)
+    separations : list of (t, stage name, dropped System, its state, its modes, descending)
+    """
+
+    balance: Balance
+    segments: list[tuple[_Phase, Any, Balance]]
+    events: list[Event]
+    status: int
+    message: str
+    nfev: int
+    separations: list[tuple] = field(default_factory=list)
+    dropped_mass: float = 0.0
+
+    def __iter__(self):  # (balance, segments, events, status, message, nfev), for unpacking
+        return iter((self.balance, self.segments, self.events, self.status, self.message, self.nfev))
+
+
+def integrate(model: Model | ParsedModel | System, *, rtol: float | None = None, atol: Any = None,
               method: str | None = None, end_time: float | None = None,
               progress: Callable[[float, float], None] | None = None) -> FlightResult:
     """Fly a vehicle and return its :class:`~thrustgraph.result.FlightResult`.
@@ -90,18 +119,35 @@ def integrate(model: Model | ParsedModel | System, *, rtol: float | None = None,
         Called after each segment.
     """
     system = model if isinstance(model, System) else assemble(model)
-    bal, segments, events, status, message, nfev = fly_segments(
-        system, rtol=rtol, atol=atol, method=method, end_time=end_time, progress=progress)
-    return _build_result(system, bal, segments, events, status, message, nfev)
+    segs = fly_segments(system, rtol=rtol, atol=atol, method=method, end_time=end_time, progress=progress)
+    result = _build_result(system, segs)
+    for t_sep, stage, dsys, dy, dm, desc in segs.separations:
+        sub = fly_segments(dsys, rtol=rtol, atol=atol, method=method, end_time=end_time, t0=t_sep, y0=dy,
+                           modes0=dm, kin0=Kinematics.FREE, descending=desc)
+        result.dropped[stage] = _build_result(dsys, sub)
+    return result
 
 
-def fly_segments(system: System, *, rtol: float | None = None, atol: float | None = None,
+def available_signals(system: System) -> dict[str, str]:
+    """Signals a trigger can watch on this vehicle: name -> SI unit."""
+    bal = Balance(system)
+    snap = bal.evaluate(0.0, np.array(system.y0))
+    out = dict(KINEMATIC_SIGNALS)
+    for k, v in snap.items():
+        if "." in k and isinstance(v, float) and not k.startswith("audit."):
+            out[k] = FlightResult.unit_of(k)
+    return out
+
+
+def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
                  method: str | None = None, end_time: float | None = None,
-                 progress: Callable[[float, float], None] | None = None):
+                 progress: Callable[[float, float], None] | None = None, t0: float = 0.0,
+                 y0: Any = None, modes0: list[int] | None = None, kin0: int | None = None,
+                 descending: bool = False) -> Segments:
     """The phase-by-phase integration alone, without building the result's signals and ledger.
 
-    Returns ``(balance, segments, events, status, message, nfev)``; ``segments`` is a list of
-    ``(phase, OdeResult)`` with dense output. Studies and benchmarks that only need end states use it.
+    ``t0``, ``y0``, ``modes0``, ``kin0`` start the run from a given state (a dropped stage). Studies and
+    benchmarks that only need end states use this directly.
     """
     run = system.run
     rtol = run.rtol if rtol is None else rtol
@@ -112,75 +158,104 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: float | Non
     if launch.mount == "held" and launch.speed != 0.0:
         raise ModelError("launch.speed", "a vehicle held on a test stand cannot have an initial speed",
                          "set launch.speed = \"0 m/s\" or choose mount = \"guide\" or \"free\"")
-    bal = Balance(system)
-    g0 = system.gravity(launch.altitude)
-    # The audit accumulators are quadratures of the fluxes: they never feed back into the dynamics, so they are
-    # left out of the step-size control (computed at the same stages, they stay as accurate as the states).
-    atol_vec = np.full(system.n_states, float(atol)) if np.ndim(atol) == 0 else np.array(atol, dtype=float)
-    atol_vec[-len(ACCUMULATORS):] = 1e30
-    ph = _Phase(list(system.mode0), _KIN[launch.mount], False)
-    if ph.kin == Kinematics.GUIDE and launch.guide_length == 0.0:
-        ph.kin = Kinematics.GUIDE  # rests on the pad until the net force lifts it; exits at once
-
-    t = 0.0
-    y = np.array(system.y0, dtype=float)
-    segments: list[tuple[_Phase, Any]] = []
-    events: list[Event] = [Event(0.0, "start", "vehicle", f"mount {launch.mount}")]
-    nfev = 0
-    status, message = 0, "end time reached"
+    triggers = list(resolve_thresholds(system.parsed.triggers, available_signals(system))) \
+        if system.parsed.triggers else []
+    pending: list[tuple[float, Trigger]] = []
+    state = _State(system, atol)
+    ph = _Phase(list(system.mode0 if modes0 is None else modes0), _KIN[launch.mount] if kin0 is None else kin0,
+                descending)
+    t = float(t0)
+    y = np.array(system.y0 if y0 is None else y0, dtype=float)
+    x0 = np.array(y[:3])
+    segs = Segments(balance=state.bal, segments=[], events=[Event(t, "start", "vehicle", f"mount {launch.mount}"
+                                                                  if kin0 is None else "flying on")],
+                    status=0, message="end time reached", nfev=0)
+    events = segs.events
     zero_len = 0
-    x0 = np.array(system.y0[:3])
-    u = np.array(system.guide_dir)
-    idx_z = 2
+
+    def apply_trigger(tr: Trigger, t: float, y: np.ndarray):
+        """Carry out a trigger's action; returns (stop, y)."""
+        if tr.action == "stop":
+            events.append(Event(t, tr.name, "trigger", "run stopped"))
+            segs.message = f"stopped by trigger {tr.name!r}"
+            return True, y
+        if tr.action == "switch":
+            sysm = state.system
+            if tr.component not in sysm.moded:
+                events.append(Event(t, tr.name, tr.component, "component no longer on the vehicle: ignored"))
+                return False, y
+            ph.modes[sysm.moded.index(tr.component)] = [m.name for m in sysm.modes[tr.component]].index(tr.mode)
+            events.append(Event(t, tr.name, tr.component, f"mode -> {tr.mode}"))
+            return False, y
+        stage = state.system.parsed.stages[tr.stage]
+        upper, uy, um, dsys, dy, dm, m_drop = separate(state.system, y, ph.modes, stage)
+        segs.separations.append((t, tr.stage, dsys, dy, dm, ph.descending))
+        segs.dropped_mass += m_drop
+        events.append(Event(t, "separation", tr.stage, f"dropped {m_drop:.4g} kg: {', '.join(stage)}"))
+        state.replace(upper, atol)
+        ph.modes = um
+        return False, uy
 
     while t < t_end:
+        sysm = state.system
+        bal = state.bal
         bal.set_phase(ph.modes, ph.kin, ph.descending)
-        fns, actions = _events(system, bal, ph, g0, x0, u)
-        # A component event already past its zero when its mode starts fires at once.
-        for _ in range(20):
-            past = [k for k, (kind, *_r) in enumerate(actions) if kind in ("mode", "stop")
+        fns, actions = _events(sysm, bal, ph, x0, triggers, pending, t)
+        # Component events and triggers already past their zero when a segment starts fire at once.
+        stop = False
+        for _ in range(50):
+            past = [k for k, (kind, *_r) in enumerate(actions) if kind in ("mode", "stop", "trigger")
                     and fns[k].direction * fns[k](t, y) > 0.0]
             if not past:
                 break
             kind, name, comp, target = actions[past[0]]
             if kind == "stop":
                 break
-            ph.modes[system.moded.index(comp)] = [m.name for m in system.modes[comp]].index(target)
-            events.append(Event(t, name, comp, f"mode -> {target} (at once)"))
+            if kind == "trigger":
+                stop, y = _fire(target, t, y, triggers, pending, apply_trigger)
+                if stop:
+                    break
+            else:
+                ph.modes[sysm.moded.index(comp)] = [m.name for m in sysm.modes[comp]].index(target)
+                events.append(Event(t, name, comp, f"mode -> {target} (at once)"))
+            sysm, bal = state.system, state.bal
             bal.set_phase(ph.modes, ph.kin, ph.descending)
-            fns, actions = _events(system, bal, ph, g0, x0, u)
-        propulsive = _label(system, ph) not in ("spent", "on guide", "coast", "descent")
-        if not propulsive and ph.kin == Kinematics.HELD:
-            events.append(Event(t, "propulsion spent", "vehicle", "nothing left to push the stand"))
-            message = "propulsion spent on the stand"
+            fns, actions = _events(sysm, bal, ph, x0, triggers, pending, t)
+        if stop:
             break
-        if not propulsive and ph.kin == Kinematics.TRACK and float(np.dot(y[3:6], u)) == 0.0:
+        propulsive = _label(sysm, ph) not in _NOT_PROPULSIVE
+        u = np.array(sysm.guide_dir)
+        if not propulsive and ph.kin == Kinematics.HELD and not pending:
+            events.append(Event(t, "propulsion spent", "vehicle", "nothing left to push the stand"))
+            segs.message = "propulsion spent on the stand"
+            break
+        if not propulsive and ph.kin == Kinematics.TRACK and float(np.dot(y[3:6], u)) == 0.0 and not pending:
             events.append(Event(t, "at rest", "vehicle", "nothing pushes and the vehicle is not moving"))
-            message = "at rest on the track"
+            segs.message = "at rest on the track"
             break
         if not propulsive and ph.kin == Kinematics.GUIDE and float(np.dot(y[3:6], u)) <= 0.0 and \
-                float(np.dot(y[:3] - x0, u)) <= 1e-12:
+                float(np.dot(y[:3] - x0, u)) <= 1e-12 and not pending and not triggers:
             events.append(Event(t, "no lift-off", "vehicle",
                                 "the thrust never exceeded the weight component along the guide"))
-            status, message = 2, "the vehicle did not leave the launch guide: thrust never exceeded its weight"
+            segs.status, segs.message = 2, "the vehicle did not leave the launch guide: thrust never exceeded its weight"
             break
         try:
-            sol = solve_ivp(bal.rhs, (t, t_end), y, method=method, rtol=rtol, atol=atol_vec, events=fns,
+            sol = solve_ivp(bal.rhs, (t, t_end), y, method=method, rtol=rtol, atol=state.atol, events=fns,
                             dense_output=True)
         except (ValueError, ZeroDivisionError, OverflowError) as exc:
-            raise IntegrationError(f"integration failed at t = {t:.6g} s in phase {_label(system, ph)!r}: {exc}") from None
-        nfev += sol.nfev
-        segments.append((_Phase(list(ph.modes), ph.kin, ph.descending), sol))
+            raise IntegrationError(f"integration failed at t = {t:.6g} s in phase {_label(sysm, ph)!r}: {exc}") from None
+        segs.nfev += sol.nfev
+        segs.segments.append((ph.copy(), sol, bal))
         if progress is not None:
             progress(float(sol.t[-1]), t_end)
         if sol.status == -1:
             raise IntegrationError(f"solve_ivp failed at t = {sol.t[-1]:.6g} s in phase "
-                                   f"{_label(system, ph)!r}: {sol.message}")
+                                   f"{_label(sysm, ph)!r}: {sol.message}")
         t = float(sol.t[-1])
         y = sol.y[:, -1].copy()
         if sol.status == 0:
             events.append(Event(t, "end time", "vehicle", "the run reached run.end_time"))
-            status, message = 0, "end time reached"
+            segs.status, segs.message = 0, "end time reached"
             break
         fired = [k for k, te in enumerate(sol.t_events) if len(te)]
         if sol.t[-1] - sol.t[0] <= 1e-12 * max(1.0, abs(t)):
@@ -190,49 +265,107 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: float | Non
                                        f"{[actions[k][1] for k in fired]}")
         else:
             zero_len = 0
-        stop = False
         for k in fired:
             kind, name, comp, target = actions[k]
             if kind == "mode":
-                i = system.moded.index(comp)
-                ph.modes[i] = [m.name for m in system.modes[comp]].index(target)
+                ph.modes[sysm.moded.index(comp)] = [m.name for m in sysm.modes[comp]].index(target)
                 events.append(Event(t, name, comp, f"mode -> {target}"))
+            elif kind == "trigger":
+                stop, y = _fire(target, t, y, triggers, pending, apply_trigger)
+                if state.system is not sysm:
+                    break  # the vehicle changed: the other events of this step belong to the old one
             elif kind == "guide":
                 ph.kin = Kinematics.FREE
-                v = float(np.linalg.norm(y[3:6]))
-                events.append(Event(t, "guide exit", "vehicle", f"speed {v:.4g} m/s"))
+                events.append(Event(t, "guide exit", "vehicle", f"speed {float(np.linalg.norm(y[3:6])):.4g} m/s"))
             elif kind == "apogee":
                 ph.descending = True
-                events.append(Event(t, "apogee", "vehicle", f"altitude {y[idx_z]:.4g} m"))
+                events.append(Event(t, "apogee", "vehicle", f"altitude {y[2]:.4g} m"))
                 if run.stop_at_apogee:
                     stop = True
-                    message = "stopped at apogee"
+                    segs.message = "stopped at apogee"
             elif kind == "rest":
                 events.append(Event(t, "came to rest", "vehicle", f"distance {float(np.dot(y[:3] - x0, u)):.4g} m"))
                 y[3:6] = 0.0
                 stop = True
-                message = "came to rest on the track"
+                segs.message = "came to rest on the track"
             elif kind == "impact":
-                v = float(np.linalg.norm(y[3:6]))
-                events.append(Event(t, "ground impact", "vehicle", f"speed {v:.4g} m/s"))
+                events.append(Event(t, "ground impact", "vehicle", f"speed {float(np.linalg.norm(y[3:6])):.4g} m/s"))
                 stop = True
-                message = "ground impact"
+                segs.message = "ground impact"
             elif kind == "stop":
                 events.append(Event(t, name, comp, "run stopped"))
                 stop = True
-                message = name
+                segs.message = name
         if stop:
             break
     else:
         events.append(Event(t, "end time", "vehicle", "the run reached run.end_time"))
-    return bal, segments, events, status, message, nfev
+    segs.balance = state.bal
+    return segs
 
 
-def _events(system: System, bal: Balance, ph: _Phase, g0: float, x0: np.ndarray, u: np.ndarray):
+class _State:
+    """The vehicle being integrated (it changes at a separation) and its tolerances."""
+
+    def __init__(self, system: System, atol: Any) -> None:
+        self.replace(system, atol)
+
+    def replace(self, system: System, atol: Any) -> None:
+        self.system = system
+        self.bal = Balance(system)
+        # The audit accumulators are quadratures of the fluxes: they never feed back into the dynamics, so they
+        # are left out of the step-size control (computed at the same stages they stay as accurate as the states).
+        if np.ndim(atol) == 0:
+            vec = np.full(system.n_states, float(atol))
+        else:
+            vec = np.array(atol, dtype=float)
+            if len(vec) != system.n_states:
+                vec = np.full(system.n_states, float(np.min(vec)))
+        vec[-len(ACCUMULATORS):] = 1e30
+        self.atol = vec
+
+
+def _fire(tr: Trigger, t: float, y: np.ndarray, triggers: list, pending: list, apply):
+    """A trigger's condition was met (or its delay ran out): act now or schedule it."""
+    if tr in triggers:
+        triggers.remove(tr)
+        if tr.delay > 0.0:
+            pending.append((t + tr.delay, tr))
+            return False, y
+    else:
+        pending[:] = [(td, p) for td, p in pending if p is not tr]
+    return apply(tr, t, y)
+
+
+def _signal_fn(system: System, bal: Balance, name: str, x0: np.ndarray, cache: dict):
+    """Value of a named signal at (t, y) for a trigger."""
+    if name == "time":
+        return lambda t, y: t
+    if name == "altitude":
+        return lambda t, y: y[2]
+    if name == "speed":
+        return lambda t, y: math.sqrt(y[3] * y[3] + y[4] * y[4] + y[5] * y[5])
+    if name == "vertical_speed":
+        return lambda t, y: y[5]
+    if name == "distance":
+        return lambda t, y: math.sqrt((y[0] - x0[0]) ** 2 + (y[1] - x0[1]) ** 2 + (y[2] - x0[2]) ** 2)
+
+    def component(t, y):
+        key = (t, y.tobytes())
+        if cache.get("key") != key:
+            cache["key"] = key
+            cache["snap"] = bal.evaluate(t, y)
+        return cache["snap"].get(name, math.nan)
+    return component
+
+
+def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: list, pending: list, t_now: float):
     """Active event functions for a phase, with what each one does."""
     fns: list[Callable] = []
-    actions: list[tuple[str, str, str, str | None]] = []
+    actions: list[tuple[str, str, str, Any]] = []
     cache: dict = {}
+    snap_cache: dict = {}
+    u = system.guide_dir
 
     def drive_of(t: float, y: np.ndarray, comp: str) -> float:
         key = (t, y.tobytes())
@@ -258,6 +391,23 @@ def _events(system: System, bal: Balance, ph: _Phase, g0: float, x0: np.ndarray,
         fns.append(fn)
         actions.append(("mode" if spec.to else "stop", spec.name, comp, spec.to))
 
+    for tr in triggers:
+        sig = _signal_fn(system, bal, tr.signal, x0, snap_cache)
+
+        def tfn(t, y, sig=sig, tr=tr):
+            return sig(t, y) - tr.threshold
+        tfn.terminal = True
+        tfn.direction = tr.direction
+        fns.append(tfn)
+        actions.append(("trigger", tr.name, "trigger", tr))
+    for t_due, tr in pending:
+        def due(t, y, t_due=t_due):
+            return t - t_due
+        due.terminal = True
+        due.direction = 1.0
+        fns.append(due)
+        actions.append(("trigger", tr.name, "trigger", tr))
+
     if ph.kin == Kinematics.GUIDE:
         # 1 nm beyond the guide's end, so that a zero-length guide (a pad) holds the vehicle until it moves
         L = system.launch.guide_length + 1e-9
@@ -275,7 +425,7 @@ def _events(system: System, bal: Balance, ph: _Phase, g0: float, x0: np.ndarray,
         rest.direction = -1.0
         fns.append(rest)
         actions.append(("rest", "came to rest", "vehicle", None))
-    if ph.kin == Kinematics.FREE and g0 > 0.0:
+    if ph.kin == Kinematics.FREE and system.gravity(float(x0[2])) > 0.0:
         if not ph.descending:
             def apogee(t, y):
                 return y[5]
@@ -293,71 +443,84 @@ def _events(system: System, bal: Balance, ph: _Phase, g0: float, x0: np.ndarray,
     return fns, actions
 
 
-def _build_result(system: System, bal: Balance, segments, events, status, message, nfev) -> FlightResult:
+def _build_result(system: System, segs: Segments) -> FlightResult:
     run = system.run
     ts: list[np.ndarray] = []
-    ys: list[np.ndarray] = []
+    rows: list[tuple[np.ndarray, tuple[str, ...]]] = []
     snaps: list[dict] = []
     phases: list[Phase] = []
-    for ph, sol in segments:
+    names: list[str] = []
+    for ph, sol, bal in segs.segments:
         t0, t1 = float(sol.t[0]), float(sol.t[-1])
-        name = _label(system, ph)
+        name = _label(bal.system, ph)
         if phases and phases[-1].name == name:
             phases[-1] = Phase(name, phases[-1].t_start, t1)
         else:
             phases.append(Phase(name, t0, t1))
         grid = np.arange(t0, t1, run.output_interval)[1:] if t1 > t0 else np.empty(0)
         tt = np.union1d(sol.t, grid)
-        yy = sol.sol(tt) if len(tt) > len(sol.t) else sol.y.copy()
-        # keep the solver's own points exact
-        pos = np.searchsorted(tt, sol.t)
-        yy[:, pos] = sol.y
+        uniq_t, first = np.unique(sol.t, return_index=True)
+        yy = sol.sol(tt) if len(tt) > len(uniq_t) else sol.y[:, first].copy()
+        yy[:, np.searchsorted(tt, uniq_t)] = sol.y[:, first]   # keep the solver's own points exact
         bal.set_phase(ph.modes, ph.kin, ph.descending)
         for k in range(len(tt)):
             snaps.append(bal.evaluate(float(tt[k]), yy[:, k]))
         ts.append(tt)
-        ys.append(yy)
+        rows.append((yy, bal.system.state_names))
+        for n in bal.system.state_names:
+            if n not in names:
+                names.append(n)
+    # one row per state name across every stage of the vehicle (NaN where a stage does not have it)
+    acc = [n for n in names if n.startswith("audit.")]
+    names = [n for n in names if not n.startswith("audit.")] + acc
+    index = {n: k for k, n in enumerate(names)}
     t = np.concatenate(ts)
-    y = np.concatenate(ys, axis=1)
+    y = np.full((len(names), len(t)), np.nan)
+    col = 0
+    for yy, snames in rows:
+        for k, n in enumerate(snames):
+            y[index[n], col:col + yy.shape[1]] = yy[k]
+        col += yy.shape[1]
 
     signals: dict[str, np.ndarray] = {}
-    keys = [k for k in snaps[0] if k not in ("ledger", "derivatives", "time")]
-    for s in snaps[1:]:
-        for k in s:
-            if k not in ("ledger", "derivatives", "time") and k not in keys:
+    keys: list[str] = []
+    seen: set[str] = set()
+    for snap in snaps:
+        for k in snap:
+            if k not in seen and k not in ("ledger", "derivatives", "time"):
+                seen.add(k)
                 keys.append(k)
     for k in keys:
-        sample = next(s[k] for s in snaps if k in s)
+        sample = next(snap[k] for snap in snaps if k in snap)
         if isinstance(sample, tuple):
-            signals[k] = np.array([s.get(k, (np.nan,) * 3) for s in snaps], dtype=float)
+            signals[k] = np.array([snap.get(k, (np.nan,) * 3) for snap in snaps], dtype=float)
         else:
-            signals[k] = np.array([s.get(k, np.nan) for s in snaps], dtype=float)
+            signals[k] = np.array([snap.get(k, np.nan) for snap in snaps], dtype=float)
     ledger_keys: list[tuple[str, str]] = []
-    for s in snaps:
-        for comp, term, _ in s["ledger"]:
+    for snap in snaps:
+        for comp, term, _ in snap["ledger"]:
             if (comp, term) not in ledger_keys:
                 ledger_keys.append((comp, term))
     ledger = {key: np.zeros((len(snaps), 3)) for key in ledger_keys}
-    for i, s in enumerate(snaps):
-        for comp, term, vec in s["ledger"]:
+    for i, snap in enumerate(snaps):
+        for comp, term, vec in snap["ledger"]:
             ledger[(comp, term)][i] = vec
-    acc = signals["acceleration"]
-    signals["acceleration_magnitude"] = np.linalg.norm(acc, axis=1)
+    signals["acceleration_magnitude"] = np.linalg.norm(signals["acceleration"], axis=1)
     signals["speed"] = np.linalg.norm(signals["velocity"], axis=1)
     signals["altitude"] = signals["position"][:, 2]
-    signals["range"] = np.hypot(signals["position"][:, 0], signals["position"][:, 1])
+    signals["range"] = np.hypot(signals["position"][:, 0] - signals["position"][0, 0],
+                                signals["position"][:, 1] - signals["position"][0, 1])
     vel = signals["velocity"]
     signals["flight_path_angle"] = np.arctan2(vel[:, 2], np.hypot(vel[:, 0], vel[:, 1]))
 
     # Audits from the accumulators integrated with the states.
-    n_acc = len(ACCUMULATORS)
+    last = y[:, -1]
     m0, mf = float(signals["mass"][0]), float(signals["mass"][-1])
-    m_out = float(y[-n_acc, -1])
+    m_out = float(last[index["audit.mass_out"]])
     mass_res = m0 - mf - m_out
     v0, vf = signals["velocity"][0], signals["velocity"][-1]
-    p_exh = y[-n_acc + 1:-n_acc + 4, -1]
-    imp = y[-n_acc + 4:-n_acc + 7, -1]
-    dpint = y[-n_acc + 7:, -1]
+    vec = lambda stem: np.array([last[index[f"{stem}.{c}"]] for c in "xyz"])  # noqa: E731
+    p_exh, imp, dpint = vec("audit.exhaust_momentum"), vec("audit.impulse"), vec("audit.internal_momentum_change")
     pint0 = np.zeros(3)
     pintf = np.zeros(3)
     for k in signals:
@@ -372,15 +535,16 @@ def _build_result(system: System, bal: Balance, segments, events, status, messag
                   momentum_relative=float(np.linalg.norm(mom_res)) / scale,
                   internal_defect=float(np.linalg.norm(pintf - pint0 - dpint)))
 
-    res = FlightResult(t=t, y=y, state_names=system.state_names, signals=signals, ledger=ledger, phases=phases,
-                       events=events, audit=audit, success=status == 0, status=status, message=message, nfev=nfev)
-    res.summary = _summary(res, system)
+    res = FlightResult(t=t, y=y, state_names=tuple(names), signals=signals, ledger=ledger, phases=phases,
+                       events=segs.events, audit=audit, success=segs.status == 0, status=segs.status,
+                       message=segs.message, nfev=segs.nfev)
+    res.summary = _summary(res, system, segs.dropped_mass)
     res.cautions = system.parsed.cautions()
     res.provenance = provenance(system.parsed)
     return res
 
 
-def _summary(r: FlightResult, system: System) -> dict[str, float]:
+def _summary(r: FlightResult, system: System, dropped_mass: float = 0.0) -> dict[str, float]:
     s = r.signals
     t = r.t
     thrust = s["thrust"]
@@ -388,16 +552,18 @@ def _summary(r: FlightResult, system: System) -> dict[str, float]:
         "flight_time": float(t[-1] - t[0]),
         "launch_mass": float(s["mass"][0]),
         "final_mass": float(s["mass"][-1]),
-        "propellant_expelled": float(r.y[-len(ACCUMULATORS), -1]),
+        "propellant_expelled": float(r.state("audit.mass_out")[-1]) - dropped_mass,
         "peak_thrust": float(np.max(thrust)),
         "peak_acceleration": float(np.max(s["acceleration_magnitude"])),
         "max_speed": float(np.max(s["speed"])),
         "apogee": float(np.max(s["altitude"]) + 0.0),
         "range": float(s["range"][-1]),
         "total_impulse": float(np.trapezoid(np.linalg.norm(s["thrust_vector"], axis=1), t)),
-        "burn_time": float(sum(p.duration for p in r.phases if p.name not in ("coast", "descent", "on guide", "spent"))),
+        "burn_time": float(sum(p.duration for p in r.phases if p.name not in _NOT_PROPULSIVE)),
     }
-    if out["propellant_expelled"] > 0:
+    if dropped_mass:
+        out["dropped_mass"] = dropped_mass
+    if out["propellant_expelled"] > 1e-12:
         out["specific_impulse"] = out["total_impulse"] / out["propellant_expelled"] / 9.80665
     for e in r.events:
         if e.name == "guide exit":

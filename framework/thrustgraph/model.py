@@ -103,6 +103,10 @@ class Model:
     #: The ``[calibration]`` table: key path -> where its fitted value came from (written by
     #: :mod:`thrustgraph.calibrate`: records and their hashes, date, tool, interval); kept and saved unchanged.
     calibration: dict[str, Any] = field(default_factory=dict)
+    #: ``[stages.NAME]`` tables: the components a separation drops (see thrustgraph.staging).
+    stages: dict[str, Any] = field(default_factory=dict)
+    #: ``[triggers.NAME]`` tables: a condition on a signal and what it does (see thrustgraph.staging).
+    triggers: dict[str, Any] = field(default_factory=dict)
 
     def copy(self) -> "Model":
         return copy.deepcopy(self)
@@ -154,7 +158,7 @@ class Model:
 
     def _tables(self) -> dict[str, Any]:
         return {"components": self.components, "environment": self.environment,
-                "launch": self.launch, "run": self.run}
+                "launch": self.launch, "run": self.run, "stages": self.stages, "triggers": self.triggers}
 
 
 @dataclass(frozen=True)
@@ -171,6 +175,8 @@ class ParsedModel:
     run: Any
     ambient: Ambient
     plugin_manager: pluggy.PluginManager
+    stages: dict[str, tuple[str, ...]] = field(default_factory=dict)
+    triggers: tuple[Any, ...] = ()
 
     def role_of(self, name: str) -> str:
         return self.kinds[name].role
@@ -262,12 +268,18 @@ def parse_model(model: Model, *, plugin_manager: pluggy.PluginManager | None = N
     run = parse_params(RUN_SPECS, model.run, where="run")
 
     graph = _check_graph(model, kinds)
+    from .staging import check_stages, parse_stages, parse_triggers
+
+    stages = parse_stages(model, kinds)
+    check_stages(stages, graph, kinds)
+    triggers = parse_triggers(model, kinds, stages)
     medium = env_kinds["medium"].build(env_params["medium"], None)
     rho, pa, Ta, *_ = medium(launch.altitude, 0.0)
     ambient = Ambient(pressure=pa, temperature=Ta, density=rho)
 
     parsed = ParsedModel(model=model, graph=graph, kinds=kinds, params=params, env_kinds=env_kinds,
-                         env_params=env_params, launch=launch, run=run, ambient=ambient, plugin_manager=pm)
+                         env_params=env_params, launch=launch, run=run, ambient=ambient, plugin_manager=pm,
+                         stages=stages, triggers=triggers)
     problems = [msg for group in pm.hook.thrustgraph_check_model(model=parsed) for msg in (group or ())]
     if problems:
         raise ModelError("model", problems[0], "see the message above")

@@ -80,7 +80,7 @@ FORMAT_VERSION = 1
 #: The oldest format version this release can still read (through :data:`UPGRADES`).
 OLDEST_VERSION = 1
 TOP_LEVEL_KEYS = ("format", "version", "name", "description", "flow_paths", "launch", "run", "environment",
-                  "components", "study", "calibration")
+                  "components", "stages", "triggers", "study", "calibration")
 
 #: Upgrade steps between format versions: ``UPGRADES[n]`` takes the data of a
 #: version-``n`` file (a dict, as TOML reads it) and returns the same model as
@@ -387,6 +387,8 @@ def _from_data(data: dict[str, Any], source: str) -> Model:
     _check_settings(launch, "launch", LAUNCH_SPECS)
     run = _table(data, "run")
     _check_settings(run, "run", RUN_SPECS)
+    stages = _table(data, "stages")        # checked when the model is parsed (thrustgraph.staging)
+    triggers = _table(data, "triggers")
     study = _table(data, "study")
     calibration = _table(data, "calibration")  # written by thrustgraph.calibrate: where fitted values came from
     for key, entry in calibration.items():
@@ -396,7 +398,8 @@ def _from_data(data: dict[str, Any], source: str) -> Model:
 
     return Model(name=name, description=desc, components=copy.deepcopy(comps), flow_paths=list(paths),
                  environment=copy.deepcopy(env), launch=copy.deepcopy(launch), run=copy.deepcopy(run),
-                 source=source, study=copy.deepcopy(study), calibration=copy.deepcopy(calibration))
+                 source=source, study=copy.deepcopy(study), calibration=copy.deepcopy(calibration),
+                 stages=copy.deepcopy(stages), triggers=copy.deepcopy(triggers))
 
 
 # ---------------------------------------------------------------------------
@@ -503,7 +506,7 @@ def dumps_model(model: Model) -> str:
     if model.description:
         data["description"] = model.description
     data["flow_paths"] = list(model.flow_paths)
-    for key in ("launch", "run", "environment", "components", "study", "calibration"):
+    for key in ("launch", "run", "environment", "components", "stages", "triggers", "study", "calibration"):
         value = getattr(model, key, None)
         if value:
             data[key] = value

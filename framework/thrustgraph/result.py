@@ -37,7 +37,8 @@ SIGNAL_UNITS = {
     "axis": "", "flight_path_angle": "rad",
 }
 _SUFFIX_UNITS = {
-    "mass_flow": "kg/s", "exit_velocity": "m/s", "exit_pressure": "Pa", "thrust": "N", "drag": "N",
+    "mass_flow": "kg/s", "exit_velocity": "m/s", "exit_pressure": "Pa", "thrust": "N", "drag": "N", "buoyancy": "N",
+    "resistance": "N", "inlet_pressure": "Pa", "pressure_rise": "Pa",
     "pressure": "Pa", "temperature": "K", "head_pressure": "Pa", "outlet_pressure": "Pa", "drive": "Pa",
     "liquid_mass": "kg", "gas_mass": "kg", "liquid_volume": "m^3", "propellant_mass": "kg",
     "internal_momentum": "kg*m/s", "gas_volume": "m^3", "liquid_height": "m",
@@ -109,6 +110,7 @@ class FlightResult:
     summary : headline numbers in SI (see :meth:`summary_quantities`)
     cautions : safety cautions of the model
     provenance : tool and plugin versions, model hash
+    dropped : stage name -> the flight of a stage dropped at a separation, flown on as its own vehicle
     """
 
     t: np.ndarray
@@ -126,6 +128,7 @@ class FlightResult:
     summary: dict[str, float] = field(default_factory=dict)
     cautions: list[str] = field(default_factory=list)
     provenance: dict[str, Any] = field(default_factory=dict)
+    dropped: dict[str, "FlightResult"] = field(default_factory=dict)
 
     # -- access ------------------------------------------------------------
     @staticmethod
@@ -173,10 +176,17 @@ class FlightResult:
                 cols.append((f"ledger.{comp}.{term.replace(' ', '_')}.{c}", "N", arr[:, k]))
         return cols
 
-    def to_csv(self) -> str:
-        """CSV text: one row per output time; headers carry units as ``name [unit]``."""
+    def to_csv(self, *, provenance: bool = False) -> str:
+        """CSV text: one row per output time; headers carry units as ``name [unit]``.
+
+        With ``provenance=True`` the text starts with ``#`` comment lines
+        naming the tool version, the plugin versions and the model hash (what
+        :meth:`write_csv` writes).
+        """
         cols = self.columns()
         buf = io.StringIO()
+        if provenance:
+            buf.writelines(f"# {line}\n" for line in self.provenance_lines())
         w = csv.writer(buf, lineterminator="\n")
         w.writerow([f"{n} [{u}]" if u else n for n, u, _ in cols] + ["phase"])
         data = np.column_stack([c for _, _, c in cols])
@@ -198,10 +208,96 @@ class FlightResult:
         }
         return json.dumps(doc, indent=2, allow_nan=True)
 
+    # -- export to files (added for the command line and the Python API) -----
+    def provenance_lines(self) -> list[str]:
+        """What produced this result, one line each: tool version, plugin versions, model name and hash.
+
+        >>> from thrustgraph import fly
+        >>> fly().provenance_lines()[0]
+        'thrustgraph 0.1.0'
+        """
+        prov = self.provenance or {}
+        plugins = prov.get("plugins", {})
+        lines = [f"thrustgraph {prov.get('thrustgraph', '?')}",
+                 "plugins: " + ("; ".join(f"{k} = {v}" for k, v in plugins.items()) or "(none)"),
+                 f"model: {prov.get('model_name', '?')}",
+                 f"model sha256: {prov.get('model_sha256', '?')}"]
+        return lines
+
+    def write_csv(self, path: Any) -> None:
+        """Write the time series to a CSV file (atomically), with provenance comment lines (``#``) first."""
+        from .modelfile import atomic_write
+
+        atomic_write(path, self.to_csv(provenance=True))
+
+    def write_json(self, path: Any) -> None:
+        """Write summary, phases, events, audits, cautions and provenance to a JSON file (atomically)."""
+        from .modelfile import atomic_write
+
+        atomic_write(path, self.to_json())
+
+    def to_arrow(self):
+        """The time series as a ``pyarrow.Table`` (optional dependency ``pyarrow``).
+
+        Column names are those of :meth:`columns`; each field's metadata holds
+        its SI ``unit``; the schema metadata holds the provenance as JSON under
+        ``thrustgraph.provenance``.
+        """
+        try:
+            import pyarrow as pa
+        except ImportError:
+            from .errors import ThrustgraphError
+            raise ThrustgraphError("Parquet output needs pyarrow, which is not installed. Fix: pip install "
+                                   "'thrustgraph[parquet]' (or pip install pyarrow), or write CSV instead.") from None
+        fields, arrays = [], []
+        for name, unit, values in self.columns():
+            fields.append(pa.field(name, pa.float64(), metadata={"unit": unit}))
+            arrays.append(pa.array(np.asarray(values, dtype=float)))
+        fields.append(pa.field("phase", pa.string()))
+        arrays.append(pa.array([self.phase_at(float(t)) for t in self.t], type=pa.string()))
+        meta = {"thrustgraph.provenance": json.dumps(self.provenance, sort_keys=True)}
+        return pa.Table.from_arrays(arrays, schema=pa.schema(fields, metadata=meta))
+
+    def to_parquet(self) -> bytes:
+        """The time series as Parquet file content (see :meth:`to_arrow`)."""
+        table = self.to_arrow()
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        sink = pa.BufferOutputStream()
+        pq.write_table(table, sink)
+        return sink.getvalue().to_pybytes()
+
+    def write_parquet(self, path: Any) -> None:
+        """Write the time series to a Parquet file (atomically); needs pyarrow."""
+        from .modelfile import atomic_write
+
+        atomic_write(path, self.to_parquet())
+
+    def ledger_along(self, direction: str = "axis") -> dict[tuple[str, str], np.ndarray]:
+        """Every ledger term projected on a direction: N, shape (n,) per (component, term).
+
+        ``direction`` is ``"axis"`` (the body axis at each instant, signal
+        ``axis``) or a world axis ``"x"``, ``"y"``, ``"z"`` (z up).
+
+        >>> from thrustgraph import fly
+        >>> r = fly()
+        >>> w = r.ledger_along("z")[("vehicle", "weight")]
+        >>> bool(np.allclose(w, -9.80665 * r.signals["mass"]))
+        True
+        """
+        if direction == "axis":
+            e = self.signals["axis"]
+            return {k: np.einsum("ij,ij->i", v, e) for k, v in self.ledger.items()}
+        if direction not in ("x", "y", "z"):
+            raise ValueError(f"direction must be 'axis', 'x', 'y' or 'z', got {direction!r}")
+        k = "xyz".index(direction)
+        return {key: v[:, k].copy() for key, v in self.ledger.items()}
+
 
 SUMMARY_UNITS = {
     "flight_time": "s", "peak_thrust": "N", "peak_acceleration": "m/s^2", "max_speed": "m/s", "apogee": "m",
     "range": "m", "total_impulse": "N*s", "impact_speed": "m/s", "guide_exit_speed": "m/s", "burn_time": "s",
     "launch_mass": "kg", "final_mass": "kg", "propellant_expelled": "kg", "specific_impulse": "s",
-    "peak_vessel_pressure": "Pa", "max_distance": "m",
+    "peak_vessel_pressure": "Pa", "max_distance": "m", "dropped_mass": "kg",
 }

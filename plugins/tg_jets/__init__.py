@@ -6,8 +6,13 @@ Two programmes:
     mass flow ``mdot`` and exhaust velocity ``v_e`` constant until the
     propellant is gone (burn time m_p / mdot).
 ``thrust-table``
-    thrust F(t) interpolated linearly in a table; mass flow F / v_e, so the
-    propellant mass is the table's total impulse divided by v_e.
+    thrust F(t) interpolated linearly in a table against the time since
+    ignition; mass flow F / v_e, so the propellant mass is the table's total
+    impulse divided by v_e.
+
+With ``ignition = "on-trigger"`` the jet waits (mode ``waiting``) until a
+trigger of the model switches it to ``burning`` (an upper stage lit after a
+delay or at a condition).
 
 The jet leaves at ambient pressure (no pressure thrust). These are the
 sources used for the closed-form checks (rocket equation, constant-thrust
@@ -18,7 +23,7 @@ Examples
 >>> from thrustgraph.component import Ambient, scalar_ops
 >>> P = PrescribedJet.params_class()
 >>> p = P(programme="constant-flow", propellant_mass=1.0, mass_flow=0.5, exhaust_velocity=1000.0,
-...       thrust_curve=None, direction=(-1.0, 0.0, 0.0))
+...       thrust_curve=None, direction=(-1.0, 0.0, 0.0), ignition="at-launch")
 >>> PrescribedJet.burn_time(p)
 2.0
 """
@@ -49,9 +54,13 @@ class PrescribedJet(ComponentKind):
         Table("thrust_curve", columns=(("time", "s"), ("thrust", "N")), default="absent",
               doc="thrust against time since ignition (thrust-table)"),
         Vector("direction", default=(-1.0, 0.0, 0.0), doc="body-frame direction the jet leaves in"),
+        Choice("ignition", options=("at-launch", "on-trigger"), default="at-launch",
+               doc="burn from t = 0, or wait until a trigger switches the jet to mode 'burning'"),
     )
-    states = (StateVar("propellant_mass", "kg", "propellant left"),)
-    modes = (Mode("burning", "jet thrust"), Mode("spent", "spent", propulsive=False))
+    states = (StateVar("propellant_mass", "kg", "propellant left"),
+              StateVar("burn_clock", "s", "time since ignition"))
+    modes = (Mode("burning", "jet thrust"), Mode("spent", "spent", propulsive=False),
+             Mode("waiting", "waiting", propulsive=False))
 
     @classmethod
     def check(cls, p, where):
@@ -81,7 +90,11 @@ class PrescribedJet(ComponentKind):
 
     @classmethod
     def initial_state(cls, p, amb):
-        return (cls._propellant(p),)
+        return (cls._propellant(p), 0.0)
+
+    @classmethod
+    def initial_mode(cls, p, amb):
+        return "waiting" if p.ignition == "on-trigger" else "burning"
 
     @classmethod
     def describe_mass(cls, p, amb):
@@ -106,19 +119,19 @@ class PrescribedJet(ComponentKind):
             def jet(t, s, mode, pa):
                 if mode != 0:
                     return (0.0, 0.0, pa, 0.0)
-                F = float(np.interp(t, tt, ff))
+                F = float(np.interp(s[i + 1], tt, ff))
                 return (F / ve, ve, pa, 0.0)
-            burnout = EventSpec("burnout", lambda t, s, drive: t - t_last, 1.0, ("burning",), "spent",
+            burnout = EventSpec("burnout", lambda t, s, drive: s[i + 1] - t_last, 1.0, ("burning",), "spent",
                                 needs_drive=False)
 
         def mass(s):
             return s[i]
 
         def derivs(t, s, mode, mdot):
-            return (-mdot,)
+            return (-mdot, 1.0 if mode == 0 else 0.0)
 
         def signals(t, s, mode):
-            return {"propellant_mass": s[i]}
+            return {"propellant_mass": s[i], "burn_clock": s[i + 1]}
 
         return JetFns(mass=mass, jet=jet, derivs=derivs, signals=signals, jet_dir=p.direction, events=(burnout,))
 

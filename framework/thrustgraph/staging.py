@@ -1,0 +1,251 @@
+"""Triggers and staging: conditions on signals that switch modes, separate stages or stop the run.
+
+A model may hold ``[stages.NAME]`` tables naming the components a separation
+drops, and ``[triggers.NAME]`` tables::
+
+    [stages.booster]
+    components = ["booster_frame", "booster_motor"]
+
+    [triggers.separate]
+    when = "booster_motor.propellant_mass < 0.001 kg"   # SIGNAL < VALUE or SIGNAL > VALUE
+    then = "separate"                                  # separate | switch | stop
+    stage = "booster"
+    after = "0.2 s"                                    # optional delay
+
+    [triggers.ignite]
+    when = "time > 0.5 s"
+    then = "switch"
+    component = "sustainer"
+    mode = "burning"
+
+A condition fires once, when the signal crosses the value in the direction the
+comparison names ("<": falling through it, ">": rising through it); if it is
+already true when the run starts, it fires at once. Signals are ``time``,
+``altitude``, ``speed``, ``vertical_speed``, ``distance`` (from the launch
+point), ``mass`` and every named signal of the vehicle's components (e.g.
+``bottle.pressure``); ``thrustgraph check`` lists them.
+
+A stage must be closed under the flow paths: a separation may not split a
+vessel from the nozzle it feeds. The dropped stage keeps flying as its own
+vehicle (free, from the separation state); the upper stage's mass and momentum
+audits count the dropped mass and its momentum as leaving the control volume.
+
+Examples
+--------
+>>> parse_condition("altitude < 150 m", "triggers.deploy.when")
+('altitude', -1.0, '150 m')
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import difflib
+import re
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from .errors import ModelError
+from .units import to_si
+
+__all__ = ["Trigger", "parse_condition", "parse_stages", "parse_triggers", "check_stages", "KINEMATIC_SIGNALS",
+           "separate"]
+
+#: Signals every vehicle has, with their SI units.
+KINEMATIC_SIGNALS = {"time": "s", "altitude": "m", "speed": "m/s", "vertical_speed": "m/s", "distance": "m",
+                     "mass": "kg"}
+_COND = re.compile(r"^\s*([A-Za-z_][\w.\-]*)\s*([<>])\s*(.+?)\s*$")
+_ACTIONS = ("separate", "switch", "stop")
+
+
+@dataclass(frozen=True)
+class Trigger:
+    """A parsed trigger: fires once when ``signal`` crosses ``threshold`` (SI) in ``direction``."""
+
+    name: str
+    signal: str
+    direction: float
+    threshold: float
+    action: str
+    stage: str = ""
+    component: str = ""
+    mode: str = ""
+    delay: float = 0.0
+
+
+def parse_condition(text: Any, where: str) -> tuple[str, float, str]:
+    """Split ``"SIGNAL < VALUE"`` into (signal, direction, value text)."""
+    m = _COND.match(text) if isinstance(text, str) else None
+    if not m:
+        raise ModelError(where, f"expected a condition like \"altitude < 150 m\", got {text!r}",
+                         "write SIGNAL < VALUE or SIGNAL > VALUE, the value with its unit")
+    return m.group(1), (-1.0 if m.group(2) == "<" else 1.0), m.group(3)
+
+
+def parse_stages(model, kinds: dict[str, Any]) -> dict[str, tuple[str, ...]]:
+    """Check ``[stages]``: each a table with a list of existing component names."""
+    out: dict[str, tuple[str, ...]] = {}
+    for name, table in model.stages.items():
+        where = f"stages.{name}"
+        if not isinstance(table, dict) or set(table) != {"components"}:
+            raise ModelError(where, f"expected a table with the key 'components' only, got {table!r}",
+                             f"write [stages.{name}] components = [\"...\"]")
+        comps = table["components"]
+        if not isinstance(comps, list) or not comps or not all(isinstance(c, str) for c in comps):
+            raise ModelError(f"{where}.components", f"expected a list of component names, got {comps!r}",
+                             "name the components the separation drops")
+        for c in comps:
+            if c not in kinds:
+                close = difflib.get_close_matches(c, list(kinds), n=1)
+                raise ModelError(f"{where}.components", f"names {c!r}, which is not a component",
+                                 f"did you mean {close[0]!r}?" if close else "check the name")
+            if kinds[c].role == "boundary":
+                raise ModelError(f"{where}.components", f"{c!r} is the surroundings and cannot be dropped",
+                                 "leave the surroundings out of the stage")
+        out[name] = tuple(comps)
+    return out
+
+
+def check_stages(stages: dict[str, tuple[str, ...]], graph, kinds) -> None:
+    """A stage may not split a flow path: every edge between two non-boundary components stays on one side."""
+    for name, comps in stages.items():
+        inside = set(comps)
+        for a, b in graph.edges:
+            if kinds[a].role == "boundary" or kinds[b].role == "boundary":
+                continue
+            if (a in inside) != (b in inside):
+                dropped, kept = (a, b) if a in inside else (b, a)
+                raise ModelError(f"stages.{name}.components", f"separating it would split {dropped!r} from "
+                                 f"{kept!r}, which it is connected to by a flow path",
+                                 f"drop both {a!r} and {b!r} in the same stage, or neither")
+        rest = [n for n in kinds if n not in inside and kinds[n].role != "boundary"]
+        if not any(kinds[n].role in ("body", "volume", "jet") for n in rest):
+            raise ModelError(f"stages.{name}.components", "the separation would leave nothing with mass",
+                             "keep the upper stage's airframe out of the stage")
+
+
+def parse_triggers(model, kinds: dict[str, Any], stages: dict[str, tuple[str, ...]]) -> tuple[Trigger, ...]:
+    """Check ``[triggers]``; the signal name is checked against the vehicle when it is assembled."""
+    out = []
+    keys = {"when", "then", "stage", "component", "mode", "after"}
+    for name, table in model.triggers.items():
+        where = f"triggers.{name}"
+        if not isinstance(table, dict):
+            raise ModelError(where, f"expected a table, got {table!r}", f"write [triggers.{name}] when = ... then = ...")
+        for k in table:
+            if k not in keys:
+                close = difflib.get_close_matches(k, sorted(keys), n=1)
+                raise ModelError(f"{where}.{k}", "unknown key",
+                                 f"did you mean {close[0]!r}?" if close else f"valid keys: {', '.join(sorted(keys))}")
+        if "when" not in table or "then" not in table:
+            raise ModelError(where, "needs both 'when' and 'then'", 'write when = "altitude < 150 m", then = "stop"')
+        signal, direction, value = parse_condition(table["when"], f"{where}.when")
+        action = table["then"]
+        if action not in _ACTIONS:
+            close = difflib.get_close_matches(str(action), _ACTIONS, n=1)
+            raise ModelError(f"{where}.then", f"expected one of {', '.join(_ACTIONS)}, got {action!r}",
+                             f"did you mean {close[0]!r}?" if close else "choose one of the listed words")
+        stage = component = mode = ""
+        if action == "separate":
+            stage = table.get("stage", "")
+            if stage not in stages:
+                raise ModelError(f"{where}.stage", f"names stage {stage!r}, which the model does not define",
+                                 f"add [stages.{stage or 'NAME'}] components = [...] or use one of {sorted(stages)}")
+        if action == "switch":
+            component, mode = table.get("component", ""), table.get("mode", "")
+            if component not in kinds:
+                raise ModelError(f"{where}.component", f"names {component!r}, which is not a component",
+                                 "name the component whose mode the trigger switches")
+            names = [m.name for m in kinds[component].modes]
+            if mode not in names:
+                raise ModelError(f"{where}.mode", f"{component!r} ({kinds[component].kind}) has no mode {mode!r}",
+                                 f"choose one of {names}" if names else "this component has no modes")
+        delay = to_si(table["after"], "s", where=f"{where}.after") if "after" in table else 0.0
+        if delay < 0:
+            raise ModelError(f"{where}.after", "a delay cannot be negative", "give a delay of 0 s or more")
+        out.append(Trigger(name=name, signal=signal, direction=direction, threshold=value, action=action,
+                           stage=stage, component=component, mode=mode, delay=delay))
+    return tuple(out)
+
+
+def resolve_thresholds(triggers, available: dict[str, str]) -> tuple[Trigger, ...]:
+    """Check each trigger's signal exists and turn its value text into SI (``available``: name -> SI unit)."""
+    out = []
+    for tr in triggers:
+        where = f"triggers.{tr.name}.when"
+        if tr.signal not in available:
+            close = difflib.get_close_matches(tr.signal, sorted(available), n=3)
+            hint = f"did you mean {', '.join(repr(c) for c in close)}?" if close else \
+                f"signals: {', '.join(sorted(available))}"
+            raise ModelError(where, f"no signal {tr.signal!r} on this vehicle", hint)
+        unit = available[tr.signal]
+        value = to_si(tr.threshold, unit, where=where) if unit else to_si(
+            float(tr.threshold) if _is_number(tr.threshold) else tr.threshold, "", where=where)
+        out.append(dataclasses.replace(tr, threshold=value))
+    return tuple(out)
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+        return True
+    except ValueError:
+        return False
+
+
+def separate(system, y: np.ndarray, modes: list[int], stage: tuple[str, ...]):
+    """Split a running vehicle into the part that flies on and the dropped stage.
+
+    Returns ``(upper_system, upper_y, upper_modes, dropped_system, dropped_y, dropped_modes, dropped_mass)``.
+    The upper stage's audit accumulators carry on, with the dropped mass and its momentum added to what left
+    the control volume.
+    """
+    from .assembly import ACCUMULATORS, assemble
+    from .balance import Balance
+    from .model import parse_model
+
+    parsed = system.parsed
+    model = parsed.model
+    inside = set(stage)
+    boundaries = [n for n in model.components if parsed.kinds[n].role == "boundary"]
+
+    def sub(keep: list[str], name: str, free: bool):
+        m = model.copy()
+        m.name = name
+        m.components = {n: t for n, t in model.components.items() if n in keep}
+        m.flow_paths = [f"{a} -> {b}" for a, b in parsed.graph.edges if a in keep and b in keep]
+        m.stages, m.triggers = {}, {}
+        if free:
+            m.launch = {"mount": "free", "attitude": model.launch.get("attitude", "follow-wind")}
+        return assemble(parse_model(m, plugin_manager=parsed.plugin_manager))
+
+    upper = sub([n for n in model.components if n not in inside], model.name, False)
+    dropped = sub([n for n in model.components if n in inside or n in boundaries], f"{model.name}: {' + '.join(stage)}",
+                  True)
+    old = {n: k for k, n in enumerate(system.state_names)}
+    old_modes = {n: modes[k] for k, n in enumerate(system.moded)}
+
+    def mapped(sysm):
+        vals = [float(y[old[n]]) if n in old and not n.startswith("audit.") else 0.0 for n in sysm.state_names]
+        return np.array(vals), [old_modes.get(n, sysm.mode0[k]) for k, n in enumerate(sysm.moded)]
+
+    uy, um = mapped(upper)
+    dy, dm = mapped(dropped)
+    n_acc = len(ACCUMULATORS)
+    uy[-n_acc:] = y[-n_acc:]
+    m_before = _mass(system, y, modes)
+    m_after = _mass(upper, uy, um)
+    m_drop = m_before - m_after
+    v = y[3:6]
+    uy[-n_acc] += m_drop                       # mass that left the control volume
+    uy[-n_acc + 1:-n_acc + 4] += m_drop * v    # and the momentum it took with it
+    return upper, uy, um, dropped, dy, dm, m_drop
+
+
+def _mass(system, y, modes) -> float:
+    from .balance import Balance
+
+    bal = Balance(system)
+    bal.set_phase(modes, bal.kinematics, False)
+    return float(bal.evaluate(0.0, y)["mass"])
