@@ -93,23 +93,26 @@ def test_static_water_phase_impulse_matches_quadrature(elevation, head):
 # synthetic stand records
 # ---------------------------------------------------------------------------
 
-def logger_mean(result, name: str, times: np.ndarray, dt: float, sub: int = 200) -> np.ndarray:
-    """Mean of a predicted signal over each sample's interval [t - dt/2, t + dt/2] (midpoint rule)."""
+def logger_mean(result, name: str, times: np.ndarray, dt: float, before: float, sub: int = 200) -> np.ndarray:
+    """Mean of a predicted signal over each sample's interval [t - dt/2, t + dt/2] (midpoint rule); the signal
+    is ``before`` until the release at t = 0."""
     offsets = ((np.arange(sub) + 0.5) / sub - 0.5) * dt
     grid = times[:, None] + offsets[None, :]
-    return np.interp(grid, result.t, result.signal(name)).mean(axis=1)
+    y = np.interp(grid, result.t, result.signal(name))
+    return np.where(grid < 0.0, before, y).mean(axis=1)
 
 
 def synthetic_run(seed: int, *, noise_thrust: float, noise_pressure: float, settings=None,
-                  truth=TRUE, name="stand.csv") -> tuple[str, MeasuredRun]:
+                  truth=TRUE, name="stand.csv", lead: float = 0.0) -> tuple[str, MeasuredRun]:
     """CSV text of a noisy stand record made with the true parameters, and the run aligned on the known offset."""
     settings = dict(settings or {})
     m = held_model(**{"run.output_interval": "0.0001 s"}, **settings, **truth)
     r = tg.integrate(m)
-    tm = np.arange(DT / 2, 0.16, DT)             # sample times after the release (model clock)
+    tm = np.arange(DT / 2 - lead, 0.16, DT)      # sample times (model clock), ``lead`` of them before the release
     rng = np.random.default_rng(seed)
-    load = logger_mean(r, "thrust", tm, DT) + rng.normal(0.0, noise_thrust, tm.size)
-    gauge = logger_mean(r, "bottle.pressure", tm, DT) - PA + rng.normal(0.0, noise_pressure, tm.size)
+    p0 = float(r.signal("bottle.pressure")[0])
+    load = logger_mean(r, "thrust", tm, DT, 0.0) + rng.normal(0.0, noise_thrust, tm.size)
+    gauge = logger_mean(r, "bottle.pressure", tm, DT, p0) - PA + rng.normal(0.0, noise_pressure, tm.size)
     text = "time [s],load [N],pressure [kPa]\n" + "\n".join(
         f"{float(t + OFFSET)!r},{float(f)!r},{float(p / 1e3)!r}" for t, f, p in zip(tm, load, gauge))
     rec = align(loads_record(text, source=name), start_at=f"{OFFSET} s")
@@ -186,6 +189,31 @@ def test_two_records_at_different_charge_pressures(tmp_path):
     # the per-run settings are not baked into the calibrated model
     assert back.get("components.bottle.gauge_pressure") == "4.5 bar"
     assert tg.integrate(back).success
+
+
+def test_start_time_correction_after_a_trigger():
+    # Aligned by a level trigger, the sudden release is placed only to within a sample (here 0.6 ms late); the
+    # fit corrects the start time together with the parameters and recovers the logger's true offset.
+    from thrustgraph.compare import prepare_record
+    from thrustgraph.records import Trigger
+
+    text, _ = synthetic_run(61, noise_thrust=3.0, noise_pressure=4500.0, lead=0.01)
+    raw = loads_record(text, source="trig.csv")
+    rec = prepare_record(raw, tg.integrate(held_model()), MAPPING, trigger=Trigger.parse("load > 120 N"))
+    assert 5e-5 < abs(rec.offset - OFFSET) <= DT
+    cal = calibrate(held_model(), [MeasuredRun(rec, MAPPING)], FITS, start_time_bound="3 ms")
+    t999 = float(student_t.ppf(0.9995, cal.dof))
+    for v in cal.values[:2]:
+        assert abs(v.value - TRUE[v.path]) <= t999 * v.standard_error
+    shift = cal.values[2]
+    assert shift.start_time_of == "trig.csv" and shift.unit == "ms"
+    # the refined alignment puts the release back at the logger's true file time
+    refined = cal.runs[0].record.offset
+    assert abs(refined - OFFSET) <= t999 * shift.standard_error
+    assert abs(refined - OFFSET) < abs(rec.offset - OFFSET)
+    entry = cal.calibrated_model().calibration["components.neck.discharge_coefficient"]
+    assert entry["records"][0]["start_time_correction_s"] == shift.value
+    assert "start time" not in " ".join(cal.calibrated_model().calibration)
 
 
 def test_quantity_parameters_keep_their_unit(tmp_path):

@@ -44,7 +44,7 @@ import difflib
 import json
 import math
 import sys
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, Callable, Sequence, TextIO
 
 import numpy as np
@@ -53,7 +53,7 @@ from .errors import IntegrationError, ModelError, ThrustgraphError
 from .model import LAUNCH_SPECS, Model, parse_model
 from .parameters import Quantity
 from .records import ColumnMap, Record
-from .units import Q_, si_unit
+from .units import Q_, si_unit, to_si
 
 __all__ = ["FitParameter", "MeasuredRun", "FittedValue", "Calibration", "ProgressLine", "calibrate",
            "write_calibrated_model", "compare_runs"]
@@ -122,6 +122,7 @@ class _Param:
     low: float
     high: float
     initial: float
+    shift_of: int | None = None   # a start-time correction of run number shift_of, not a model parameter
 
     def raw(self, x: float) -> Any:
         """The value as it goes into the model file."""
@@ -216,6 +217,7 @@ class FittedValue:
     high: float
     at_bound: bool
     raw: Any
+    start_time_of: str | None = None   # set for a start-time correction of that record (not a model parameter)
 
     def text(self, x: float) -> str:
         """A value of this parameter in its unit, e.g. ``'4.52 bar'``."""
@@ -299,12 +301,21 @@ class Calibration:
     def calibrated_model(self) -> Model:
         """The starting model with the fitted values and a ``[calibration]`` entry for each."""
         m = self.model.copy()
-        records = [{"file": r.record.source, "sha256": r.record.sha256,
-                    "signals": [c.signal for c in r.mapping],
-                    "offset_s": float(r.record.offset), **({"settings": dict(r.settings)} if r.settings else {})}
-                   for r in self.runs]
-        paths = [v.path for v in self.values]
-        for v in self.values:
+        shifts = {v.start_time_of: v for v in self.values if v.start_time_of is not None}
+        records = []
+        for r in self.runs:
+            entry: dict[str, Any] = {"file": r.record.source, "sha256": r.record.sha256,
+                                     "signals": [c.signal for c in r.mapping], "offset_s": float(r.record.offset)}
+            if r.record.source in shifts:
+                sv = shifts[r.record.source]
+                entry["start_time_correction_s"] = sv.value
+                entry["start_time_correction_standard_error_s"] = sv.standard_error
+            if r.settings:
+                entry["settings"] = dict(r.settings)
+            records.append(entry)
+        fitted = [v for v in self.values if v.start_time_of is None]
+        paths = [v.path for v in fitted]
+        for v in fitted:
             m.set(v.path, v.raw)
             lo, hi = v.interval
             entry = {
@@ -353,7 +364,7 @@ class Calibration:
         return {
             "parameters": [{"path": v.path, "initial": v.initial, "value": v.value, "standard_error": v.standard_error,
                             "interval": list(v.interval), "bounds": [v.low, v.high], "at_bound": v.at_bound,
-                            "model_value": v.raw} for v in self.values],
+                            "model_value": v.raw, "start_time_of": v.start_time_of} for v in self.values],
             "confidence": self.confidence, "correlation": self.correlation.tolist(),
             "covariance": self.covariance.tolist(), "scaled_residual_sd": self.s, "residuals": self.n_residuals,
             "dof": self.dof, "signal_rms": [{"record": k[0], "signal": k[1], "before": b, "after": a}
@@ -377,6 +388,23 @@ def _unit_guess(signal: str) -> str:
 
 # -- the fit ---------------------------------------------------------------------------
 
+def _room_to_shift(run: MeasuredRun, bound: float) -> Record:
+    """The run's record without the samples a start-time shift of up to +-bound could push out of the window."""
+    from .records import trim
+
+    rec = run.record
+    gap = rec.interval
+    lo = 0.0 if run.start is None else _seconds(run.start)
+    hi = None if run.end is None else _seconds(run.end) - bound - gap
+    return trim(rec, lo + bound + gap, hi)
+
+
+def _seconds(value: Any, where: str = "time") -> float:
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return float(value)
+    return to_si(value, "s", where=where)
+
+
 class _Problem:
     """Residual of all runs as a function of the scaled parameters z."""
 
@@ -389,6 +417,11 @@ class _Problem:
         self.runs = list(runs)
         self.pm = get_plugin_manager()
         self.bases: list[Model] = []
+        self.shift_at: dict[int, int] = {p.shift_of: j for j, p in enumerate(params) if p.shift_of is not None}
+        self.shifted: dict[int, Record] = {}
+        for k, p in enumerate(params):
+            if p.shift_of is not None:
+                self.shifted[p.shift_of] = _room_to_shift(self.runs[p.shift_of], p.high)
         for run in self.runs:
             m = model_for_records(model, [run.record])
             for key, value in run.settings.items():
@@ -426,7 +459,8 @@ class _Problem:
         for k, (run, base) in enumerate(zip(self.runs, self.bases)):
             m = base.copy()
             for p, xi in zip(self.params, x):
-                m.set(p.path, p.raw(float(xi)))
+                if p.shift_of is None:
+                    m.set(p.path, p.raw(float(xi)))
             try:
                 result = integrate(assemble(m, plugin_manager=self.pm))
             except (IntegrationError, ModelError) as exc:
@@ -435,10 +469,20 @@ class _Problem:
                                  ) from None
             self.model_runs += 1
             start, end = self.windows[k]
-            matched = match(result, run.record, run.mapping, start=start, end=end)
+            if k in self.shift_at:
+                if first:   # check the record against the prediction once, as it was aligned
+                    match(result, run.record, run.mapping, start=start, end=end)
+                rec = self.shifted[k]
+                dlt = float(x[self.shift_at[k]])
+                rec = replace(rec, time=rec.time + dlt)
+                half = 0.5 * float(rec.time[1] - rec.time[0])
+                matched = match(result, rec, run.mapping, start=float(rec.time[0]) - half, end=float(rec.time[-1]))
+            else:
+                matched = match(result, run.record, run.mapping, start=start, end=end)
             if first:
                 # Fix the window and the scales at the starting point, so the residual keeps its length.
-                self.windows[k] = (matched[0].start, matched[0].end)
+                if k not in self.shift_at:
+                    self.windows[k] = (matched[0].start, matched[0].end)
                 scales = []
                 for mt in matched:
                     rng = float(np.ptp(mt.measured))
@@ -482,7 +526,7 @@ class _Problem:
 
 def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[FitParameter], *,
               confidence: float = 0.95, max_iterations: int = 60, tolerance: float = 1e-8,
-              diff_step: float = 1e-3, scale: str = "range",
+              diff_step: float = 1e-3, scale: str = "range", start_time_bound: Any = None,
               progress: Callable[[int, int, float], None] | bool | None = None) -> Calibration:
     """Fit ``parameters`` of ``model`` to the measured ``runs`` (see the module docstring).
 
@@ -501,6 +545,11 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
         residual and fits again, so every signal's scaled residual has unit
         spread (the intervals' assumption of one common spread then holds for
         signals of different noise)
+    start_time_bound : also fit a correction of each record's start time
+        within +- this (text like ``"2 ms"`` or seconds), for records whose
+        alignment is uncertain (a trigger places a step only to within a
+        sample). The first samples, up to the bound after the window's start,
+        are left out so the shifted record stays inside the prediction.
     progress : a callable(evaluations, model_runs, cost), True for a
         :class:`ProgressLine` on stderr, or None
 
@@ -529,6 +578,13 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
     if not 0.0 < confidence < 1.0:
         raise ModelError("calibration", f"confidence {confidence!r} is not between 0 and 1", "use e.g. 0.95")
     params = [_resolve(model, fp) for fp in parameters]
+    if start_time_bound is not None:
+        bound = _seconds(start_time_bound, "start-time bound")
+        if not bound > 0.0:
+            raise ModelError("start-time bound", f"{start_time_bound!r} is not a positive time", 'give e.g. "2 ms"')
+        for k, run in enumerate(runs):
+            params.append(_Param(path=f"start time of {run.record.source}", spec=Quantity("start_time", "ms"),
+                                 si="s", display="ms", low=-bound, high=bound, initial=0.0, shift_of=k))
     line = ProgressLine() if progress is True else None
     prob = _Problem(model, runs, params, line if line is not None else (progress or None))
     z0 = np.array([(p.initial - p.low) / (p.high - p.low) for p in params])
@@ -590,11 +646,21 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
         values.append(FittedValue(path=q.path, si_unit=q.si, unit=q.display, initial=q.initial, value=float(x[k]),
                                   standard_error=float(se[k]),
                                   interval=(float(x[k] - tq * se[k]), float(x[k] + tq * se[k])), low=q.low,
-                                  high=q.high, at_bound=at_bound, raw=q.raw(float(x[k]))))
+                                  high=q.high, at_bound=at_bound, raw=q.raw(float(x[k])),
+                                  start_time_of=None if q.shift_of is None else runs[q.shift_of].record.source))
     before = dict(rms0)
     signal_rms = {key: (before[key], after) for key, after in rms1}
-    runs_fixed = tuple(MeasuredRun(record=run.record, mapping=tuple(run.mapping), settings=dict(run.settings),
-                                   start=w[0], end=w[1]) for run, w in zip(prob.runs, prob.windows))
+    from .records import shift
+
+    fixed = []
+    for k, (run, w) in enumerate(zip(prob.runs, prob.windows)):
+        rec = run.record
+        if k in prob.shift_at:
+            dlt = float(x[prob.shift_at[k]])
+            rec = shift(rec, -dlt, f"start time corrected by calibration: {dlt * 1e3:+.4g} ms")
+        fixed.append(MeasuredRun(record=rec, mapping=tuple(run.mapping), settings=dict(run.settings),
+                                 start=w[0], end=w[1]))
+    runs_fixed = tuple(fixed)
     return Calibration(model=model.copy(), values=tuple(values), covariance=cov, correlation=corr,
                        confidence=confidence, s=math.sqrt(s2), n_residuals=m, dof=dof, signal_rms=signal_rms,
                        runs=runs_fixed, evaluations=prob.evaluations, model_runs=prob.model_runs,

@@ -33,6 +33,9 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
                         '--condition "run2.csv:components.bottle.gauge_pressure=6 bar" (repeatable)')
     add_record_options(p)
     fit = p.add_argument_group("the fit")
+    fit.add_argument("--fit-start-time", metavar="BOUND",
+                     help='also fit a correction of each record\'s start time within +-BOUND, e.g. "2 ms" (a level '
+                          "trigger places a sudden release only to within a sample)")
     fit.add_argument("--weight", action="append", default=[], metavar="SIGNAL=NUMBER",
                      help="relative weight of a compared signal (default 1), e.g. --weight bottle.pressure=0.5")
     fit.add_argument("--scale-by", choices=("range", "noise"), default="range",
@@ -97,7 +100,7 @@ def main(args: argparse.Namespace) -> int:
         runs.append(MeasuredRun(rec, mapping, settings=settings[path], start=args.window_start, end=args.window_end))
 
     cal = calibrate(model, runs, fits, confidence=args.confidence, max_iterations=args.max_iterations,
-                    progress=not args.quiet, scale=args.scale_by)
+                    progress=not args.quiet, scale=args.scale_by, start_time_bound=args.fit_start_time)
     calibrated = cal.calibrated_model()
     text = dumps_model(calibrated)
     loads_model(text, source=args.out)  # it must read back before it is written
