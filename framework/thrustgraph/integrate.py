@@ -195,6 +195,7 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
         state.replace(upper, atol)
         ph.modes = um
         return False, uy
+    apply_trigger.events = events
 
     while t < t_end:
         sysm = state.system
@@ -331,6 +332,7 @@ def _fire(tr: Trigger, t: float, y: np.ndarray, triggers: list, pending: list, a
         triggers.remove(tr)
         if tr.delay > 0.0:
             pending.append((t + tr.delay, tr))
+            apply.events.append(Event(t, tr.name, "trigger", f"condition met; acts after {tr.delay:.4g} s"))
             return False, y
     else:
         pending[:] = [(td, p) for td, p in pending if p is not tr]

@@ -76,6 +76,12 @@ class PrescribedJet(ComponentKind):
                 raise ModelError(f"{where}.thrust_curve", "thrust must not be negative", "check the thrust column")
 
     @classmethod
+    def cautions(cls, p):
+        return ["Rocket motors are regulated: use certified motors within their class and follow the "
+                "model-rocketry or high-power code that applies (e.g. NFPA 1122 / 1127 in the US) and the "
+                "aviation rules for amateur rockets (e.g. 14 CFR Part 101); keep the stand-off distances they set."]
+
+    @classmethod
     def _propellant(cls, p) -> float:
         if p.programme == "constant-flow":
             return p.propellant_mass

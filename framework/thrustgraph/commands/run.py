@@ -11,6 +11,7 @@ from ..modelfile import atomic_write
 from ..result import SUMMARY_UNITS, FlightResult
 from ..units import Q_
 from .common import add_model_argument, add_set_option, load_with_overrides
+from .outputs import add_quiet_option, fly_model, load_checked, need_matplotlib, write_outputs
 
 NAME = "run"
 HELP = "fly a model and print the summary (burn time, peak thrust and acceleration, apogee or range, audits)"
@@ -24,6 +25,7 @@ _DISPLAY = {
     "guide_exit_speed": ("guide exit speed", "m/s"), "apogee": ("apogee", "m"), "range": ("range", "m"),
     "total_impulse": ("total impulse", "N*s"), "specific_impulse": ("specific impulse", "s"),
     "impact_speed": ("impact speed", "m/s"), "peak_vessel_pressure": ("peak vessel pressure (abs)", "bar"),
+    "dropped_mass": ("mass dropped at separations", "g"),
 }
 
 
@@ -32,6 +34,9 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     add_set_option(p)
     p.add_argument("--csv", metavar="FILE", help="write the time series (every signal and ledger term) to CSV")
     p.add_argument("--json", metavar="FILE", help="write the summary, phases, events and audits to JSON")
+    p.add_argument("--plots", metavar="DIR", help="also draw the plots (PNG) into DIR")
+    p.add_argument("--report", metavar="FILE", help="also write the self-contained HTML report to FILE")
+    add_quiet_option(p)
 
 
 def format_summary(r: FlightResult, name: str) -> str:
@@ -57,6 +62,15 @@ def format_summary(r: FlightResult, name: str) -> str:
     lines.append(f"  mass residual       {a.mass_residual:+.3e} kg   (relative {a.mass_relative:+.3e})")
     m = math.sqrt(sum(c * c for c in a.momentum_residual))
     lines.append(f"  momentum residual   {m:.3e} kg m/s (relative {a.momentum_relative:.3e})")
+    for stage, sub in r.dropped.items():
+        lines.append("")
+        lines.append(f"Dropped stage {stage!r} (flown on from {sub.t[0]:.4f} s)")
+        for key in ("apogee", "range", "impact_speed", "flight_time"):
+            if key in sub.summary:
+                label, unit = _DISPLAY[key]
+                q = Q_(sub.summary[key], SUMMARY_UNITS[key]).to(unit)
+                lines.append(f"  {label:<28s} {q.magnitude:12.5g} {unit}")
+        lines.append(f"  outcome: {sub.message}")
     lines.append("")
     lines.append(f"Outcome: {r.message}")
     if r.cautions:
@@ -68,16 +82,22 @@ def format_summary(r: FlightResult, name: str) -> str:
 
 
 def main(args: argparse.Namespace) -> int:
-    model = load_with_overrides(args.model, args.overrides)
-    result = integrate(model)
+    if args.plots or args.report:
+        need_matplotlib()
+    model, parsed = load_checked(args.model, args.overrides)  # errors name the file or the --set option
+    result = fly_model(parsed, quiet=args.quiet)
     # Build every output in memory first, so a failure leaves no partial file.
     outputs = []
     if args.csv:
-        outputs.append((args.csv, result.to_csv()))
+        outputs.append((args.csv, result.to_csv(provenance=True)))
     if args.json:
         outputs.append((args.json, result.to_json()))
+    if args.plots:
+        from ..plots import figures, render
+        outputs += [(f"{args.plots}/{n}.png", render(fig, "png")) for n, fig in figures(result).items()]
+    if args.report:
+        from ..report import render_report
+        outputs.append((args.report, render_report(result, model, parsed=parsed)))
     print(format_summary(result, model.name))
-    for path, text in outputs:
-        atomic_write(path, text)
-        print(f"wrote {path}")
+    write_outputs(outputs)
     return 0
