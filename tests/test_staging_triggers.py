@@ -64,11 +64,13 @@ def test_two_stage_rocket_equation_and_closed_bookkeeping():
     dv = 1000 * math.log(m0_1 / mf_1) + 1500 * math.log(m0_2 / mf_2)
     assert r.signals["speed"][-1] == pytest.approx(dv, rel=1e-6)
     names = [e.name for e in r.events]
-    assert names.index("burnout") < names.index("separation") < names.index("light_sustainer")
+    assert names.index("burnout") < names.index("separation") < len(names) - 1 - names[::-1].index("light_sustainer")
     sep = next(e for e in r.events if e.name == "separation")
     assert sep.t == pytest.approx(11.0, abs=1e-9) and "dropped 2 kg" in sep.detail
-    ign = next(e for e in r.events if e.name == "light_sustainer")
-    assert ign.t == pytest.approx(12.0, abs=1e-9)
+    met = next(e for e in r.events if e.name == "light_sustainer")
+    assert met.t == pytest.approx(11.0, abs=1e-9) and "acts after 1 s" in met.detail
+    ign = next(e for e in r.events if e.name == "light_sustainer" and e.component == "sustainer")
+    assert ign.t == pytest.approx(12.0, abs=1e-9) and ign.detail == "mode -> burning"
     # staging mass bookkeeping is exact; momentum closes within the integration tolerance
     assert abs(r.audit.mass_relative) <= 1e-12
     assert r.audit.momentum_relative <= 1e-8
