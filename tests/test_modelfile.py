@@ -17,7 +17,7 @@ from hypothesis import strategies as st
 
 from thrustgraph import ModelError
 from thrustgraph.model import LAUNCH_SPECS, RUN_SPECS, Model
-from thrustgraph.modelfile import (FORMAT_VERSION, UPGRADES, atomic_write, bundled_models, check_model, dumps_model,
+from thrustgraph.modelfile import (FORMAT_VERSION, TOP_LEVEL_KEYS, UPGRADES, atomic_write, bundled_models, check_model, dumps_model,
                                    load_model, loads_model, save_model, upgrade_data)
 from thrustgraph.parameters import Choice, Flag, Quantity, Table, Vector, parse_params
 from thrustgraph.plugins import component_kinds, environment_kinds, get_plugin_manager
@@ -113,6 +113,10 @@ STUDY = st.recursive(PLAIN, lambda inner: st.one_of(st.lists(inner, max_size=3),
                                                     st.dictionaries(TEXT, inner, max_size=3)), max_leaves=8)
 
 
+KNOWN = {"name", "description", "components", "flow_paths", "environment", "launch", "run", "source", "study"}
+OTHER_SECTIONS = [f.name for f in dataclasses.fields(Model) if f.name not in KNOWN and f.name in TOP_LEVEL_KEYS]
+
+
 @st.composite
 def models(draw):
     names = draw(st.lists(NAMES, min_size=1, max_size=5, unique=True))
@@ -128,9 +132,12 @@ def models(draw):
             kind = draw(st.sampled_from(options))
             environment[slot] = {"kind": kind, **draw(params_of(ENV_KINDS[kind].parameters))}
     study = draw(st.dictionaries(TEXT, STUDY, max_size=3))
+    # Sections other parts of thrustgraph keep in the file (tables of tables), whatever they are.
+    others = {name: draw(st.dictionaries(NAMES, st.dictionaries(NAMES, PLAIN, max_size=3), max_size=2))
+              for name in OTHER_SECTIONS}
     return Model(name=draw(TEXT), description=draw(TEXT), components=components,
                  flow_paths=[" -> ".join(p) for p in paths], environment=environment,
-                 launch=draw(params_of(LAUNCH_SPECS)), run=draw(params_of(RUN_SPECS)), study=study)
+                 launch=draw(params_of(LAUNCH_SPECS)), run=draw(params_of(RUN_SPECS)), study=study, **others)
 
 
 @settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
@@ -246,6 +253,8 @@ def err(text: str, source: str = "m.toml", check: bool = False) -> str:
      ["m.toml: flow_paths[0]", "expected a path like", "join component names with ->"]),
     (lambda t: t.replace('flow_paths = ["bottle -> neck -> outside"]', 'flow_paths = ["bottle -> nek -> outside"]'),
      ["m.toml: flow_paths[0]", "names 'nek', which is not a component", "did you mean 'neck'"]),
+    (lambda t: t.replace("[components.neck]", "[components.\"neck\\n\"]"),
+     ["components.neck\n", "cannot be a component name"]),
     (lambda t: t.replace("[components.neck]", "[components.\"my neck\"]"),
      ["components.my neck", "cannot be a component name", "letters, digits"]),
     (lambda t: t.replace('kind = "airframe"\n', ""), ["m.toml: components.airframe.kind", "found no kind line",

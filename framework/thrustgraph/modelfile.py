@@ -361,7 +361,7 @@ def _from_data(data: dict[str, Any], source: str) -> Model:
     comps = _table(data, "components")
     for cname, table in comps.items():
         where = f"components.{cname}"
-        if not _NAME.match(cname):
+        if not _NAME.fullmatch(cname):
             raise ModelError(where, f"{cname!r} cannot be a component name",
                              "use letters, digits, - and _, starting with a letter (e.g. main-tank)")
         _check_kind_table(table, where, where)
@@ -436,7 +436,7 @@ class _Writer:
         return tomli_w.dumps({"v": value}, multiline_strings=multiline)[4:].rstrip("\n")
 
     def key(self, k: str) -> str:
-        return k if self._BARE.match(k) else self.scalar(k)
+        return k if self._BARE.fullmatch(k) else self.scalar(k)
 
     def inline(self, value: Any) -> str:
         """A value on one line (inline tables must be)."""

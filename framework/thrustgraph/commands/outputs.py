@@ -1,0 +1,96 @@
+"""Helpers the sub-commands share: load and check a model, fly it with progress, write outputs all or nothing.
+
+Every command that writes files builds all of their content in memory first
+and only then writes them, each through a temporary file and a rename, so bad
+input or a failed flight leaves no file behind.
+
+>>> default_stem(Model(name="Two-litre water rocket!"))
+'two-litre-water-rocket'
+"""
+
+from __future__ import annotations
+
+import argparse
+import re
+from pathlib import Path
+from typing import Any, Sequence
+
+from ..errors import ModelError, ThrustgraphError
+from ..model import Model, ParsedModel, parse_model
+from ..modelfile import atomic_write
+from .common import load_with_overrides, parse_override
+from .progress import Progress
+
+__all__ = ["add_quiet_option", "load_checked", "fly_model", "default_stem", "need_matplotlib", "write_outputs"]
+
+
+def add_quiet_option(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--quiet", action="store_true",
+                   help="no progress indicator (it is shown only when standard error is a terminal anyway)")
+
+
+def load_checked(name: str | None, overrides: Sequence[str]) -> tuple[Model, ParsedModel]:
+    """Load a model, apply ``--set`` overrides and check it against the installed kinds.
+
+    An error in an overridden value names the ``--set`` option; any other
+    error names the model file.
+    """
+    model = load_with_overrides(name, list(overrides))
+    keys = [parse_override(text)[0] for text in overrides]
+    try:
+        parsed = parse_model(model)
+    except ModelError as exc:
+        for key in keys:
+            if exc.where == key or exc.where.startswith(key + "."):
+                raise exc.located("--set") from None
+        if model.source:
+            raise exc.located(model.source) from None
+        raise
+    return model, parsed
+
+
+def fly_model(parsed: ParsedModel, *, quiet: bool = False) -> Any:
+    """Integrate a checked model, showing progress on a terminal."""
+    from ..integrate import integrate
+
+    with Progress("flying", quiet=quiet, unit="s") as bar:
+        return integrate(parsed, progress=bar)
+
+
+def default_stem(model: Model) -> str:
+    """A file-name stem for a model's outputs: the model file's stem, else its name made safe."""
+    if model.source and not model.source.startswith("<"):
+        return Path(model.source).stem
+    slug = re.sub(r"[^a-z0-9]+", "-", model.name.lower()).strip("-")
+    return slug or "model"
+
+
+def need_matplotlib() -> None:
+    """Raise a clear error when matplotlib (for plots, graphs and reports) is missing."""
+    try:
+        import matplotlib  # noqa: F401
+    except ImportError:
+        raise ThrustgraphError("plots, graphs and reports need matplotlib, which is not installed. Fix: pip "
+                               "install 'thrustgraph[plots]' (or pip install matplotlib)") from None
+
+
+def write_outputs(outputs: Sequence[tuple[str | Path, str | bytes]], *, say: bool = True) -> None:
+    """Write prepared outputs, each atomically; print ``wrote PATH`` for each."""
+    for path, data in outputs:
+        p = Path(path)
+        if p.is_dir():
+            raise ThrustgraphError(f"cannot write {p}: it is a directory. Fix: give a file name")
+        for parent in p.parents:
+            if parent.exists():
+                if not parent.is_dir():
+                    raise ThrustgraphError(f"cannot write {p}: {parent} is a file, not a directory. "
+                                           "Fix: choose another output directory")
+                break
+    for path, data in outputs:
+        try:
+            atomic_write(path, data)
+        except OSError as exc:
+            raise ThrustgraphError(f"cannot write {path}: {exc.strerror or exc}. Fix: check the directory exists "
+                                   "and is writable") from None
+        if say:
+            print(f"wrote {path}")

@@ -1,0 +1,464 @@
+"""Plots of a flight and of a model's component graph (matplotlib, Agg; PNG and SVG).
+
+Every figure is a :class:`matplotlib.figure.Figure` drawn on an Agg canvas: no
+window, no pyplot state, so plots can be made in scripts, tests and servers.
+Flight phases are shaded in the background and events marked with dashed
+lines, so a curve can be read against what the vehicle was doing.
+
+Figures (names accepted by :func:`figure` and the command line):
+
+``thrust``
+    thrust along the body axis and mass flow, over the powered flight
+``mass``
+    vehicle mass and the contents of each vessel or jet
+``pressure``
+    absolute pressure in every vessel against the ambient pressure
+``motion``
+    altitude, speed and acceleration over the whole flight
+``trajectory``
+    altitude against horizontal distance
+``ledger``
+    the balance-ledger terms (momentum flux, pressure thrust, weight, drag,
+    guide reaction...) along the body axis, stacked: positive terms above
+    zero, negative below, their sum (mass times acceleration) as a line
+``ledger-world``
+    the same terms along the world axes x (downrange), y and z (up)
+
+Figures that do not apply (``pressure`` for a model without vessels) are
+left out.
+
+Examples
+--------
+>>> from thrustgraph import fly
+>>> r = fly()
+>>> sorted(figures(r))
+['ledger', 'ledger-world', 'mass', 'motion', 'pressure', 'thrust', 'trajectory']
+>>> render(figure(r, "thrust"), "png")[:8] == b"\\x89PNG\\r\\n\\x1a\\n"
+True
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from pathlib import Path
+from typing import Any, Iterable
+
+import matplotlib
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.patches import FancyBboxPatch, Patch
+
+from .result import FlightResult
+
+__all__ = ["PLOT_NAMES", "FORMATS", "figure", "figures", "render", "save_plots", "graph_figure",
+           "powered_window"]
+
+PLOT_NAMES = ("thrust", "mass", "pressure", "motion", "trajectory", "ledger", "ledger-world")
+FORMATS = ("png", "svg")
+
+# Thrust and the main curve of each figure: a blue used nowhere else in the report's page style.
+MAIN = "#1f5fbf"
+_TERM_COLOURS = ["#1f5fbf", "#e07b00", "#2a9d3a", "#c0392b", "#7d4cb0", "#8c5a3c", "#d45d9e", "#6b6b6b",
+                 "#b5a300", "#1aa3b8"]
+_PHASE_COLOURS = ["#fff1d6", "#e3f0ff", "#eaf6e3", "#f4e6f7", "#f2f2f2", "#fde8e8"]
+_NOT_POWERED = ("coast", "descent", "on guide", "spent")
+_RC = {"font.size": 9, "axes.titlesize": 10, "axes.labelsize": 9, "legend.fontsize": 8,
+       "svg.hashsalt": "thrustgraph", "svg.fonttype": "path", "axes.grid": True, "grid.alpha": 0.35}
+
+
+# ---------------------------------------------------------------------------
+# helpers
+# ---------------------------------------------------------------------------
+
+def _new(rows: int = 1, cols: int = 1, size: tuple[float, float] = (8.0, 4.5), **kw: Any):
+    fig = Figure(figsize=size, layout="constrained")
+    FigureCanvasAgg(fig)
+    axes = fig.subplots(rows, cols, squeeze=False, **kw)
+    return fig, axes
+
+
+def powered_window(result: FlightResult) -> float | None:
+    """End of the powered flight, s, when it is a small part of the run (else None, meaning: show everything).
+
+    >>> from thrustgraph import fly
+    >>> round(powered_window(fly()), 3)
+    0.147
+    """
+    ends = [p.t_end for p in result.phases if p.name not in _NOT_POWERED]
+    total = float(result.t[-1] - result.t[0])
+    if not ends or total <= 0:
+        return None
+    end = max(ends)
+    if end >= 0.5 * total:
+        return None
+    return float(min(total, 1.3 * end))
+
+
+def _phases(ax, result: FlightResult, t_max: float | None = None, label: bool = False) -> None:
+    names: list[str] = []
+    for ph in result.phases:
+        if ph.name not in names:
+            names.append(ph.name)
+    for ph in result.phases:
+        if t_max is not None and ph.t_start > t_max:
+            continue
+        colour = _PHASE_COLOURS[names.index(ph.name) % len(_PHASE_COLOURS)]
+        ax.axvspan(ph.t_start, ph.t_end, color=colour, zorder=0, lw=0)
+    for e in result.events:
+        if e.name in ("start", "end time") or (t_max is not None and e.t > t_max):
+            continue
+        ax.axvline(e.t, color="#999999", lw=0.8, ls="--", zorder=1)
+    if label:
+        handles = [Patch(color=_PHASE_COLOURS[k % len(_PHASE_COLOURS)], label=n) for k, n in enumerate(names)]
+        ax.figure.legend(handles=handles, loc="outside lower center", ncol=min(6, len(handles)), frameon=False,
+                         title="phases (shaded); dashed lines: events", title_fontsize=8)
+
+
+def _limit(ax, result: FlightResult, t_max: float | None, t_min: float | None = None) -> None:
+    ax.set_xlim(float(result.t[0]) if t_min is None else t_min,
+                t_max if t_max is not None else float(result.t[-1]))
+
+
+def _mass_unit(result: FlightResult) -> tuple[str, float]:
+    return ("g", 1e3) if float(np.max(result.signals["mass"])) < 2.0 else ("kg", 1.0)
+
+
+def _title(fig, result: FlightResult, what: str) -> None:
+    name = (result.provenance or {}).get("model_name", "")
+    fig.suptitle(f"{what}: {name}" if name else what, fontsize=11)
+
+
+# ---------------------------------------------------------------------------
+# the figures
+# ---------------------------------------------------------------------------
+
+def _thrust(r: FlightResult) -> Figure:
+    w = powered_window(r)
+    fig, ax = _new(2, 1, (8.0, 5.5), sharex=True)
+    a, b = ax[0, 0], ax[1, 0]
+    sources = [k[:-len(".thrust")] for k in r.signals if k.endswith(".thrust")]
+    a.plot(r.t, r.signals["thrust"], color=MAIN, lw=1.8, label="thrust along the body axis", zorder=3)
+    if len(sources) > 1:
+        for k, n in enumerate(sources):
+            a.plot(r.t, r.signals[f"{n}.thrust"], lw=1.0, color=_TERM_COLOURS[(k + 1) % 10], label=f"{n}")
+    a.set_ylabel("thrust [N]")
+    a.legend(loc="upper right")
+    peak = r.summary.get("peak_thrust")
+    if peak is not None:
+        a.set_title(f"peak thrust {peak:.4g} N, total impulse {r.summary.get('total_impulse', math.nan):.4g} N s")
+    flows = [n for n in sources if f"{n}.mass_flow" in r.signals]
+    peak_flow = max((float(np.max(r.signals[f"{n}.mass_flow"])) for n in flows), default=0.0)
+    unit, f = ("kg/s", 1.0) if peak_flow >= 1.0 else ("g/s", 1e3)
+    for n in flows:
+        b.plot(r.t, r.signals[f"{n}.mass_flow"] * f, lw=1.3, label=n)
+    b.set_ylabel(f"mass flow [{unit}]")
+    b.set_xlabel("time [s]" + (" (powered flight)" if w else ""))
+    if sources:
+        b.legend(loc="upper right")
+    for x in (a, b):
+        _phases(x, r, w)
+        _limit(x, r, w)
+    _phases(b, r, w, label=True)
+    _title(fig, r, "Thrust")
+    return fig
+
+
+def _mass(r: FlightResult) -> Figure:
+    w = powered_window(r)
+    unit, f = _mass_unit(r)
+    fig, ax = _new(1, 1, (8.0, 4.5))
+    a = ax[0, 0]
+    a.plot(r.t, r.signals["mass"] * f, color=MAIN, lw=1.8, label="vehicle", zorder=3)
+    k = 1
+    for key in r.signals:
+        if key.endswith(("liquid_mass", "gas_mass", "propellant_mass")) and "." in key:
+            a.plot(r.t, r.signals[key] * f, lw=1.1, color=_TERM_COLOURS[k % 10], label=key.replace("_", " "))
+            k += 1
+    a.set_ylabel(f"mass [{unit}]")
+    a.set_xlabel("time [s]" + (" (powered flight; constant afterwards)" if w else ""))
+    a.legend(loc="upper right")
+    a.set_title(f"launch {r.signals['mass'][0] * f:.4g} {unit}, final {r.signals['mass'][-1] * f:.4g} {unit}")
+    _phases(a, r, w, label=True)
+    _limit(a, r, w)
+    _title(fig, r, "Mass")
+    return fig
+
+
+def _pressure(r: FlightResult) -> Figure | None:
+    keys = [k for k in r.signals if k.endswith(".pressure")]
+    if not keys:
+        return None
+    w = powered_window(r)
+    fig, ax = _new(1, 1, (8.0, 4.5))
+    a = ax[0, 0]
+    for k, key in enumerate(keys):
+        a.plot(r.t, r.signals[key] / 1e5, lw=1.8, color=_TERM_COLOURS[k % 10], label=f"{key[:-9]} (absolute)",
+               zorder=3)
+    if "ambient_pressure" in r.signals:
+        a.plot(r.t, r.signals["ambient_pressure"] / 1e5, color="#444444", lw=1.0, ls=":", label="ambient")
+    a.set_ylabel("pressure [bar]")
+    a.set_xlabel("time [s]" + (" (powered flight)" if w else ""))
+    a.legend(loc="upper right")
+    a.set_title("vessel pressure (a prediction, not a rating of any vessel)")
+    _phases(a, r, w, label=True)
+    _limit(a, r, w)
+    _title(fig, r, "Vessel pressure")
+    return fig
+
+
+def _motion(r: FlightResult) -> Figure:
+    fig, ax = _new(3, 1, (8.0, 7.5), sharex=True)
+    s = r.signals
+    rows = [("altitude", 1.0, "altitude [m]"), ("speed", 1.0, "speed [m/s]"),
+            ("acceleration_magnitude", 1.0, "acceleration [m/s²]")]
+    for (key, f, label), a in zip(rows, ax[:, 0]):
+        a.plot(r.t, s[key] * f, color=MAIN, lw=1.6, zorder=3)
+        a.set_ylabel(label)
+        _phases(a, r)
+        _limit(a, r, None)
+    ax[0, 0].set_title(f"apogee {r.summary.get('apogee', float(np.max(s['altitude']))):.4g} m, max speed "
+                       f"{r.summary.get('max_speed', float(np.max(s['speed']))):.4g} m/s, peak acceleration "
+                       f"{r.summary.get('peak_acceleration', 0.0) / 9.80665:.3g} g")
+    ax[2, 0].set_xlabel("time [s]")
+    _phases(ax[2, 0], r, label=True)
+    _title(fig, r, "Altitude, speed, acceleration")
+    return fig
+
+
+def _trajectory(r: FlightResult) -> Figure:
+    fig, ax = _new(1, 1, (8.0, 5.0))
+    a = ax[0, 0]
+    x, z = r.signals["range"], r.signals["altitude"]
+    a.plot(x, z, color=MAIN, lw=1.8, zorder=3)
+    marks = {"guide exit": "^", "apogee": "o", "ground impact": "v", "liquid exhausted": "s", "gas exhausted": "D",
+             "burnout": "s"}
+    for e in r.events:
+        if e.name in marks:
+            i = min(int(np.searchsorted(r.t, e.t)), len(r.t) - 1)
+            a.plot([x[i]], [z[i]], marks[e.name], ms=6, zorder=4, ls="", markeredgecolor="#333333",
+                   label=f"{e.name}: t = {e.t:.4g} s, {x[i]:.3g} m, {z[i]:.3g} m up")
+    if a.get_legend_handles_labels()[0]:
+        a.legend(loc="upper left", title="events (time, distance, altitude)", title_fontsize=8)
+    a.set_xlabel("horizontal distance from the launch point [m]")
+    a.set_ylabel("altitude [m]")
+    if float(np.ptp(x)) > 0 and float(np.ptp(z)) > 0:
+        a.set_aspect("equal", adjustable="datalim")
+    _title(fig, r, "Trajectory")
+    return fig
+
+
+def _terms(values: dict[tuple[str, str], np.ndarray]) -> list[tuple[str, np.ndarray]]:
+    big = max((float(np.max(np.abs(v))) for v in values.values()), default=0.0)
+    return [(f"{c}: {t}", v) for (c, t), v in values.items() if big > 0 and float(np.max(np.abs(v))) > 1e-9 * big]
+
+
+def _stack(a, r: FlightResult, terms: list[tuple[str, np.ndarray]], colours: dict[str, str],
+           window: tuple[float | None, float | None]) -> None:
+    t_min, t_max = window
+    t = r.t
+    if terms:
+        pos = [np.clip(v, 0.0, None) for _, v in terms]
+        neg = [np.clip(v, None, 0.0) for _, v in terms]
+        cs = [colours[n] for n, _ in terms]
+        a.stackplot(t, *pos, colors=cs, alpha=0.85, lw=0, zorder=2)
+        a.stackplot(t, *neg, colors=cs, alpha=0.85, lw=0, zorder=2)
+        net = np.sum([v for _, v in terms], axis=0)
+        a.plot(t, net, color="black", lw=1.0, zorder=3)
+    a.axhline(0.0, color="black", lw=0.6, zorder=3)
+    _phases(a, r, t_max)
+    _limit(a, r, t_max, t_min)
+    if t_max is not None or t_min is not None:  # scale the axis to what is visible
+        sel = (t <= (t_max if t_max is not None else t[-1])) & (t >= (t_min if t_min is not None else t[0]))
+        lo = sum(float(np.min(np.clip(v[sel], None, 0.0))) for _, v in terms) if terms else -1.0
+        hi = sum(float(np.max(np.clip(v[sel], 0.0, None))) for _, v in terms) if terms else 1.0
+        pad = 0.05 * (hi - lo or 1.0)
+        a.set_ylim(lo - pad, hi + pad)
+
+
+def _ledger(r: FlightResult, directions: tuple[str, ...]) -> Figure:
+    w = powered_window(r)
+    if len(directions) > 1:  # leave out world axes no term acts along (e.g. y in a flight in the x-z plane)
+        directions = tuple(d for d in directions if _terms(r.ledger_along(d))) or directions[-1:]
+    cols = 2 if w else 1
+    rows = len(directions)
+    fig, ax = _new(rows, cols, (11.0 if cols == 2 else 8.0, 3.2 * rows + 1.6))
+    names = [f"{c}: {t}" for c, t in r.ledger]
+    colours = {n: _TERM_COLOURS[k % len(_TERM_COLOURS)] for k, n in enumerate(names)}
+    shown: list[str] = []
+    label = {"axis": "along the body axis", "x": "along x (downrange)", "y": "along y", "z": "along z (up)"}
+    for i, d in enumerate(directions):
+        terms = _terms(r.ledger_along(d))
+        shown += [n for n, _ in terms if n not in shown]
+        windows = [(None, w), (w, None)] if w else [(None, None)]
+        for j, window in enumerate(windows):
+            a = ax[i, j]
+            _stack(a, r, terms, colours, window)
+            a.set_ylabel(f"force {label[d]} [N]")
+            if i == 0:
+                a.set_title({0: "powered flight", 1: "after the powered flight"}[j] if w else "whole flight")
+            if i == rows - 1:
+                a.set_xlabel("time [s]")
+    handles = [Patch(color=colours[n], label=n) for n in shown]
+    handles.append(matplotlib.lines.Line2D([], [], color="black", lw=1.0, label="sum = mass × acceleration"))
+    fig.legend(handles=handles, loc="outside right upper", frameon=False, title="balance terms")
+    _phases(ax[rows - 1, 0], r, w, label=True)
+    what = "Balance ledger along the body axis" if directions == ("axis",) else "Balance ledger, world axes"
+    _title(fig, r, what)
+    return fig
+
+
+_BUILDERS = {
+    "thrust": _thrust, "mass": _mass, "pressure": _pressure, "motion": _motion, "trajectory": _trajectory,
+    "ledger": lambda r: _ledger(r, ("axis",)), "ledger-world": lambda r: _ledger(r, ("x", "y", "z")),
+}
+
+
+def figure(result: FlightResult, name: str) -> Figure | None:
+    """One figure by name (see the module docstring), or None when it does not apply to this flight.
+
+    Raises
+    ------
+    ValueError
+        For an unknown name (the message lists the valid ones).
+    """
+    if name not in _BUILDERS:
+        raise ValueError(f"no plot named {name!r}; choose from {', '.join(PLOT_NAMES)}")
+    with matplotlib.rc_context(_RC):
+        return _BUILDERS[name](result)
+
+
+def figures(result: FlightResult, names: Iterable[str] | None = None) -> dict[str, Figure]:
+    """The figures that apply to this flight, by name, in :data:`PLOT_NAMES` order."""
+    out = {}
+    for n in (PLOT_NAMES if names is None else names):
+        fig = figure(result, n)
+        if fig is not None:
+            out[n] = fig
+    return out
+
+
+def render(fig: Figure, fmt: str = "png", *, dpi: int = 110) -> bytes:
+    """The figure as PNG or SVG bytes; the same figure always gives the same bytes (no date stamped).
+
+    >>> fig = Figure(); _ = FigureCanvasAgg(fig); _ = fig.subplots().plot([0, 1], [0, 1])
+    >>> render(fig, "svg") == render(fig, "svg")
+    True
+    """
+    if fmt not in FORMATS:
+        raise ValueError(f"format must be one of {', '.join(FORMATS)}, got {fmt!r}")
+    buf = io.BytesIO()
+    meta = {"Date": None} if fmt == "svg" else {"Software": None}
+    with matplotlib.rc_context(_RC):
+        fig.savefig(buf, format=fmt, dpi=dpi, metadata=meta)
+    return buf.getvalue()
+
+
+def save_plots(result: FlightResult, directory: str | Path, *, formats: Iterable[str] = ("png",),
+               names: Iterable[str] | None = None) -> list[Path]:
+    """Render the figures and write them to ``directory`` as NAME.png / NAME.svg; return the paths.
+
+    Everything is rendered before the first file is written; each file is
+    written atomically.
+    """
+    from .modelfile import atomic_write
+
+    formats = tuple(formats)
+    for f in formats:
+        if f not in FORMATS:
+            raise ValueError(f"format must be one of {', '.join(FORMATS)}, got {f!r}")
+    blobs = [(Path(directory) / f"{n}.{f}", render(fig, f)) for n, fig in figures(result, names).items()
+             for f in formats]
+    for path, data in blobs:
+        atomic_write(path, data)
+    return [p for p, _ in blobs]
+
+
+# ---------------------------------------------------------------------------
+# the component graph
+# ---------------------------------------------------------------------------
+
+_ROLE_STYLE = {  # marker, colour, description
+    "volume": ("s", "#7fb3e6", "vessel (holds state)"),
+    "flow": ("v", "#f0b35a", "flow element (nozzle, orifice)"),
+    "jet": ("D", "#e58a8a", "prescribed jet"),
+    "boundary": ("o", "#d9d9d9", "surroundings"),
+    "body": ("h", "#9fd39a", "body (mass, drag)"),
+}
+
+
+def graph_figure(parsed: Any) -> Figure:
+    """Draw a checked model's component graph: the vehicle (control volume) and its flow paths.
+
+    ``parsed`` is a :class:`~thrustgraph.model.ParsedModel` (from
+    :func:`thrustgraph.modelfile.check_model`). Flow paths run left to right,
+    upstream to downstream; the dashed box is the control surface, and every
+    arrow that crosses it carries momentum into the balance.
+
+    >>> from thrustgraph.modelfile import check_model, load_model, default_model_path
+    >>> fig = graph_figure(check_model(load_model(default_model_path())))
+    >>> len(render(fig, "png")) > 1000
+    True
+    """
+    import networkx as nx
+
+    g = parsed.graph
+    role = {n: parsed.kinds[n].role for n in g.nodes}
+    flow_nodes = [n for n in g.nodes if role[n] != "body"]
+    sub = g.subgraph(flow_nodes)
+    layer: dict[str, int] = {}
+    for k, gen in enumerate(nx.topological_generations(sub)):
+        for n in gen:
+            layer[n] = k
+    boundary = [n for n in flow_nodes if role[n] == "boundary"]
+    last = max([layer[n] for n in flow_nodes if role[n] != "boundary"], default=0) + 1
+    for n in boundary:
+        layer[n] = last
+    pos: dict[str, tuple[float, float]] = {}
+    columns: dict[int, list[str]] = {}
+    order = list(parsed.model.components)
+    for n in sorted(flow_nodes, key=order.index):
+        columns.setdefault(layer[n], []).append(n)
+    for x, names in columns.items():
+        for k, n in enumerate(names):
+            pos[n] = (float(x), -float(k) * 1.4)
+    bodies = [n for n in g.nodes if role[n] == "body"]
+    low = min([p[1] for p in pos.values()], default=0.0) - 1.6
+    for k, n in enumerate(bodies):
+        pos[n] = (float(k), low)
+
+    width = max(6.0, 2.4 * (last + 1))
+    height = max(3.5, 1.4 * (max((len(v) for v in columns.values()), default=1) + (1 if bodies else 0)) + 1.5)
+    with matplotlib.rc_context(_RC):
+        fig, ax = _new(1, 1, (width, height))
+        a = ax[0, 0]
+        a.grid(False)
+        a.set_axis_off()
+        inside = [n for n in g.nodes if role[n] != "boundary"]
+        if inside:
+            xs = [pos[n][0] for n in inside]
+            ys = [pos[n][1] for n in inside]
+            box = FancyBboxPatch((min(xs) - 0.45, min(ys) - 0.75), max(xs) - min(xs) + 0.9,
+                                 max(ys) - min(ys) + 1.25, boxstyle="round,pad=0.05", fill=False, ls="--",
+                                 ec="#555555", lw=1.0)
+            a.add_patch(box)
+            a.text(min(xs) - 0.4, max(ys) + 0.42, "vehicle (control volume)", fontsize=8, color="#555555")
+        nx.draw_networkx_edges(g, pos, ax=a, arrows=True, arrowstyle="-|>", arrowsize=16, width=1.4,
+                               edge_color="#333333", node_size=1400)
+        for r, (marker, colour, _) in _ROLE_STYLE.items():
+            nodes = [n for n in g.nodes if role[n] == r]
+            if nodes:
+                nx.draw_networkx_nodes(g, pos, nodelist=nodes, ax=a, node_shape=marker, node_color=colour,
+                                       node_size=1400, edgecolors="#333333", linewidths=1.0)
+        for n, (x, y) in pos.items():
+            a.text(x, y - 0.48, f"{n}\n{parsed.kinds[n].kind}", ha="center", va="top", fontsize=8)
+        handles = [matplotlib.lines.Line2D([], [], marker=m, ls="", color=c, markeredgecolor="#333333", ms=9,
+                                           label=d) for r, (m, c, d) in _ROLE_STYLE.items() if r in role.values()]
+        a.legend(handles=handles, loc="upper right", frameon=False, fontsize=8)
+        xs = [p[0] for p in pos.values()] or [0.0]
+        ys = [p[1] for p in pos.values()] or [0.0]
+        a.set_xlim(min(xs) - 0.8, max(xs) + 1.6)
+        a.set_ylim(min(ys) - 1.2, max(ys) + 0.8)
+        fig.suptitle(f"Component graph: {parsed.model.name}", fontsize=11)
+    return fig

@@ -1,0 +1,271 @@
+"""A flight report: one self-contained HTML file a person can read, keep and send.
+
+The page holds, in this order: the safety cautions, the summary with units,
+the phases, the event log, the ledger audit (closure residuals and the
+impulse of every balance term), the plots and the component graph (PNG
+embedded as base64, so the file needs nothing beside it), the model text
+exactly as flown, and what produced it (thrustgraph and plugin versions, the
+libraries, the model's SHA-256). Nothing in it depends on the clock, so the
+same model and versions give the same page.
+
+Examples
+--------
+>>> from thrustgraph import fly, load_model, default_model_path
+>>> m = load_model(default_model_path())
+>>> r = fly(m)
+>>> page = render_report(r, m)
+>>> page.startswith("<!DOCTYPE html>"), r.provenance["model_sha256"] in page
+(True, True)
+"""
+
+from __future__ import annotations
+
+import base64
+import hashlib
+import html
+import math
+import platform
+from importlib import metadata
+from typing import Any, Iterable
+
+import numpy as np
+
+from .model import Model
+from .modelfile import atomic_write, check_model, dumps_model
+from .result import SUMMARY_UNITS, FlightResult
+from .units import Q_
+
+__all__ = ["render_report", "write_report", "ledger_audit", "SUMMARY_DISPLAY"]
+
+#: How each summary value is shown: label and display unit.
+SUMMARY_DISPLAY = {
+    "flight_time": ("flight time", "s"), "burn_time": ("powered time", "s"),
+    "launch_mass": ("launch mass", "g"), "final_mass": ("final mass", "g"),
+    "propellant_expelled": ("mass expelled", "g"), "peak_thrust": ("peak thrust", "N"),
+    "total_impulse": ("total impulse", "N*s"), "specific_impulse": ("specific impulse", "s"),
+    "peak_acceleration": ("peak acceleration", "m/s^2"), "max_speed": ("maximum speed", "m/s"),
+    "guide_exit_speed": ("speed leaving the guide", "m/s"), "apogee": ("apogee", "m"),
+    "range": ("horizontal distance at the end", "m"), "max_distance": ("greatest distance", "m"),
+    "impact_speed": ("impact speed", "m/s"), "peak_vessel_pressure": ("peak vessel pressure (absolute)", "bar"),
+}
+
+_CSS = """
+body { font-family: system-ui, -apple-system, "Segoe UI", sans-serif; margin: 0 auto; max-width: 1100px;
+       padding: 1.2em 2em 3em; color: #1d1d1d; background: #ffffff; line-height: 1.4; }
+h1 { font-size: 1.6em; margin-bottom: 0.2em; }
+h2 { font-size: 1.2em; border-bottom: 2px solid #d0d7de; padding-bottom: 0.2em; margin-top: 1.8em; }
+p.lead { color: #444; white-space: pre-line; }
+table { border-collapse: collapse; margin: 0.6em 0; font-size: 0.92em; }
+th, td { border: 1px solid #d0d7de; padding: 0.25em 0.6em; text-align: left; vertical-align: top; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; font-family: ui-monospace, monospace; }
+th { background: #f3f4f6; }
+.cautions { border: 2px solid #b45309; background: #fff7ed; padding: 0.4em 1.2em 0.8em; margin-top: 1.2em; }
+.cautions h2 { border: none; margin-top: 0.4em; color: #92400e; }
+.outcome { font-weight: 600; }
+.ok { color: #166534; } .bad { color: #991b1b; }
+figure { margin: 1.2em 0; } figure img { max-width: 100%; border: 1px solid #e5e7eb; }
+figcaption { font-size: 0.9em; color: #444; }
+pre { background: #f6f8fa; border: 1px solid #d0d7de; padding: 0.8em; overflow-x: auto; font-size: 0.85em; }
+code { font-family: ui-monospace, monospace; }
+nav a { margin-right: 1em; }
+"""
+
+_CAPTIONS = {
+    "thrust": "Thrust along the body axis and mass flow through each outlet.",
+    "mass": "Vehicle mass and what each vessel or jet still holds.",
+    "pressure": "Absolute pressure in each vessel, with the ambient pressure. A prediction, never a rating.",
+    "motion": "Altitude, speed and acceleration over the whole flight.",
+    "trajectory": "Altitude against horizontal distance from the launch point.",
+    "ledger": "Every term of the momentum balance along the body axis, stacked (positive above zero, negative "
+              "below); the black line is their sum, mass times acceleration. The widest band dominates.",
+    "ledger-world": "The same terms along the world axes x (downrange), y and z (up).",
+    "graph": "The component graph. The dashed box is the control surface: flow that crosses it carries "
+             "momentum into the balance.",
+}
+
+
+def _e(x: Any) -> str:
+    return html.escape(str(x), quote=True)
+
+
+def _num(x: float, digits: int = 6) -> str:
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return str(x)
+    return f"{x:.{digits}g}"
+
+
+def _table(head: Iterable[str], rows: Iterable[Iterable[Any]], numeric: Iterable[int] = ()) -> str:
+    numeric = set(numeric)
+    out = ["<table><thead><tr>", *(f"<th>{_e(h)}</th>" for h in head), "</tr></thead><tbody>"]
+    for row in rows:
+        out.append("<tr>" + "".join(f'<td class="num">{_e(c)}</td>' if k in numeric else f"<td>{_e(c)}</td>"
+                                    for k, c in enumerate(row)) + "</tr>")
+    out.append("</tbody></table>")
+    return "".join(out)
+
+
+def ledger_audit(result: FlightResult) -> list[dict[str, Any]]:
+    """Impulse of every balance term over the flight: along the body axis and as a world vector (N s).
+
+    The last row, ``sum of the terms``, should match ``mass x acceleration``
+    (the integral of M a, signal ``inertia``): the ledger closes at every
+    instant, so their difference is rounding.
+
+    >>> from thrustgraph import fly
+    >>> rows = ledger_audit(fly())
+    >>> rows[-1]["term"], abs(rows[-1]["axis"] - rows[-2]["axis"]) < 1e-9 * abs(rows[-2]["axis"])
+    ('mass x acceleration', True)
+    """
+    t = result.t
+    along = result.ledger_along("axis")
+    rows = []
+    total_axis, total_world = 0.0, np.zeros(3)
+    for (comp, term), vec in result.ledger.items():
+        ax = float(np.trapezoid(along[(comp, term)], t))
+        world = np.trapezoid(vec, t, axis=0)
+        peak = float(np.max(np.linalg.norm(vec, axis=1))) if len(vec) else 0.0
+        rows.append({"component": comp, "term": term, "axis": ax, "x": float(world[0]), "y": float(world[1]),
+                     "z": float(world[2]), "peak": peak})
+        total_axis += ax
+        total_world = total_world + world
+    rows.append({"component": "", "term": "sum of the terms", "axis": total_axis, "x": float(total_world[0]),
+                 "y": float(total_world[1]), "z": float(total_world[2]), "peak": math.nan})
+    if "inertia" in result.signals:
+        ma = result.signals["inertia"]
+        e = result.signals["axis"]
+        w = np.trapezoid(ma, t, axis=0)
+        rows.append({"component": "", "term": "mass x acceleration",
+                     "axis": float(np.trapezoid(np.einsum("ij,ij->i", ma, e), t)), "x": float(w[0]),
+                     "y": float(w[1]), "z": float(w[2]), "peak": float(np.max(np.linalg.norm(ma, axis=1)))})
+    return rows
+
+
+def _versions() -> list[tuple[str, str]]:
+    out = [("python", platform.python_version())]
+    for lib in ("numpy", "scipy", "networkx", "pluggy", "pint", "matplotlib"):
+        try:
+            out.append((lib, metadata.version(lib)))
+        except metadata.PackageNotFoundError:
+            pass
+    return out
+
+
+def render_report(result: FlightResult, model: Model, *, parsed: Any = None, plots: Iterable[str] | None = None,
+                  graph: bool = True) -> str:
+    """The HTML text of a report on one flight.
+
+    Parameters
+    ----------
+    result : FlightResult
+        The flight.
+    model : Model
+        The model it was flown from (with any changed parameters); its text
+        must hash to ``result.provenance["model_sha256"]``.
+    parsed : ParsedModel, optional
+        The checked model, for the component graph (checked here if absent).
+    plots : iterable of str, optional
+        Which plots to embed (default: all that apply; see :mod:`thrustgraph.plots`).
+    graph : bool
+        Embed the component graph.
+
+    Raises
+    ------
+    ValueError
+        If the model is not the one the result was flown from.
+    """
+    from . import plots as tgplots
+
+    text = dumps_model(model)
+    digest = hashlib.sha256(text.encode("utf-8")).hexdigest()
+    prov = result.provenance or {}
+    if prov.get("model_sha256") and prov["model_sha256"] != digest:
+        raise ValueError("the model given is not the one this result was flown from (its SHA-256 differs); "
+                         "pass the model exactly as it was flown")
+    title = f"thrustgraph report: {model.name}"
+    parts: list[str] = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
+                        f"<title>{_e(title)}</title>",
+                        '<meta name="viewport" content="width=device-width, initial-scale=1">',
+                        f"<style>{_CSS}</style></head><body>"]
+    parts.append(f"<h1>{_e(model.name)}</h1>")
+    if model.description.strip():
+        parts.append(f'<p class="lead">{_e(model.description.strip())}</p>')
+    ok = "ok" if result.success else "bad"
+    parts.append(f'<p class="outcome">Outcome: <span class="{ok}" id="outcome">{_e(result.message)}</span></p>')
+    parts.append('<nav><a href="#summary">Summary</a><a href="#events">Events</a><a href="#audit">Ledger audit</a>'
+                 '<a href="#plots">Plots</a><a href="#model">Model</a><a href="#provenance">Provenance</a></nav>')
+
+    # Cautions first: a person reads the top of a page.
+    parts.append('<section class="cautions" id="cautions"><h2>Safety cautions</h2><ul>')
+    parts.extend(f"<li>{_e(c)}</li>" for c in result.cautions)
+    parts.append("<li>Every number in this report is a prediction from a model, never a safe rating or a "
+                 "guarantee. Follow the codes and licensed practice that apply where you are.</li></ul></section>")
+
+    # Summary.
+    rows = []
+    for key, value in result.summary.items():
+        label, unit = SUMMARY_DISPLAY.get(key, (key.replace("_", " "), SUMMARY_UNITS.get(key, "")))
+        si = SUMMARY_UNITS.get(key, "")
+        shown = Q_(value, si).to(unit).magnitude if si and unit else value
+        rows.append((label, _num(shown, 5), unit.replace("**", "^") or "-", _num(value, 9), si or "-"))
+    parts.append('<section id="summary"><h2>Summary</h2>')
+    parts.append(_table(("quantity", "value", "unit", "SI value", "SI unit"), rows, numeric=(1, 3)))
+    parts.append("</section>")
+
+    # Phases and events.
+    parts.append('<section id="phases"><h2>Phases</h2>')
+    parts.append(_table(("phase", "from [s]", "to [s]", "duration [s]"),
+                        [(p.name, _num(p.t_start), _num(p.t_end), _num(p.duration)) for p in result.phases],
+                        numeric=(1, 2, 3)))
+    parts.append('</section><section id="events"><h2>Event log</h2>')
+    parts.append(_table(("time [s]", "event", "component", "detail"),
+                        [(_num(e.t, 7), e.name, e.component, e.detail) for e in result.events], numeric=(0,)))
+    parts.append("</section>")
+
+    # Ledger audit.
+    a = result.audit
+    parts.append('<section id="audit"><h2>Ledger audit</h2>')
+    parts.append("<p>Closure of the balance over the whole flight: mass at launch minus final mass minus the mass "
+                 "expelled, and the momentum of vehicle, contents and exhaust against the impulse of the external "
+                 "forces. Both should be near rounding.</p>")
+    m_res = math.sqrt(sum(c * c for c in a.momentum_residual))
+    parts.append(_table(("check", "residual", "unit", "relative"),
+                        [("mass", _num(a.mass_residual, 4), "kg", _num(a.mass_relative, 4)),
+                         ("momentum", _num(m_res, 4), "kg m/s", _num(a.momentum_relative, 4))], numeric=(1, 3)))
+    parts.append("<p>Impulse of every term of the balance (the integral of its force over the flight). The sum of "
+                 "the terms equals the integral of mass times acceleration.</p>")
+    parts.append(_table(("component", "term", "along the body axis [N s]", "x [N s]", "y [N s]", "z [N s]",
+                         "peak force [N]"),
+                        [(r["component"], r["term"], _num(r["axis"]), _num(r["x"]), _num(r["y"]), _num(r["z"]),
+                          "" if math.isnan(r["peak"]) else _num(r["peak"])) for r in ledger_audit(result)],
+                        numeric=(2, 3, 4, 5, 6)))
+    parts.append(f"<p>Right-hand-side evaluations: {result.nfev}; output samples: {len(result.t)}.</p></section>")
+
+    # Plots (rendered before anything is written).
+    parts.append('<section id="plots"><h2>Plots</h2>')
+    figs = tgplots.figures(result, plots)
+    if graph:
+        parsed = parsed if parsed is not None else check_model(model)
+        figs = {**figs, "graph": tgplots.graph_figure(parsed)}
+    for name, fig in figs.items():
+        data = base64.b64encode(tgplots.render(fig, "png")).decode("ascii")
+        parts.append(f'<figure id="plot-{_e(name)}"><img alt="{_e(name)} plot" src="data:image/png;base64,{data}">'
+                     f"<figcaption>{_e(_CAPTIONS.get(name, name))}</figcaption></figure>")
+    parts.append("</section>")
+
+    # The model as flown, and provenance.
+    parts.append('<section id="model"><h2>Model</h2><p>The model exactly as flown (any parameter changed for this '
+                 f"run included){' from <code>' + _e(model.source) + '</code>' if model.source else ''}. Save it "
+                 "as a .toml file to fly it again.</p>")
+    parts.append(f"<pre>{_e(text)}</pre></section>")
+    prows = [("thrustgraph", prov.get("thrustgraph", "?")), ("model SHA-256", digest)]
+    prows += [(f"plugin {k}", v) for k, v in prov.get("plugins", {}).items()]
+    prows += _versions()
+    parts.append('<section id="provenance"><h2>Provenance</h2>')
+    parts.append(_table(("what", "version or hash"), prows))
+    parts.append("</section></body></html>")
+    return "\n".join(parts) + "\n"
+
+
+def write_report(result: FlightResult, model: Model, path: Any, **options: Any) -> None:
+    """Render the report and write it to ``path`` (atomically). Options as :func:`render_report`."""
+    atomic_write(path, render_report(result, model, **options))
