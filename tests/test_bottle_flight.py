@@ -150,3 +150,15 @@ def test_csv_and_json_exports(flight, tmp_path):
     doc = json.loads(flight.to_json())
     assert doc["summary"]["apogee"]["unit"] == "m"
     assert doc["provenance"]["model_sha256"]
+
+
+def test_trajectory_outputs_downrange_drift_and_flight_path_angle(flight):
+    assert flight.summary["drift"] == pytest.approx(0.0, abs=1e-9)
+    assert flight.summary["downrange"] == pytest.approx(flight.summary["range"], rel=1e-12)
+    windy = fly(**{"environment.medium.wind_y": "3 m/s"})
+    assert windy.summary["drift"] > 1.0            # carried along +y by the crosswind
+    assert windy.signals["position"].shape[1] == 3
+    # flight-path angle: 80 degrees on the guide, zero at apogee (the velocity is horizontal there)
+    assert flight.signals["flight_path_angle"][1] == pytest.approx(math.radians(80), abs=1e-9)
+    k = np.argmax(flight.signals["altitude"])
+    assert abs(flight.signals["flight_path_angle"][k]) < 1e-6

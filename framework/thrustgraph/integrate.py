@@ -563,6 +563,12 @@ def _summary(r: FlightResult, system: System, dropped_mass: float = 0.0) -> dict
         "total_impulse": float(np.trapezoid(np.linalg.norm(s["thrust_vector"], axis=1), t)),
         "burn_time": float(sum(p.duration for p in r.phases if p.name not in _NOT_PROPULSIVE)),
     }
+    # downrange along the launch azimuth and drift across it (e.g. under wind)
+    az = system.launch.azimuth
+    dx = s["position"][-1, 0] - s["position"][0, 0]
+    dy = s["position"][-1, 1] - s["position"][0, 1]
+    out["downrange"] = float(dx * math.cos(az) + dy * math.sin(az))
+    out["drift"] = float(-dx * math.sin(az) + dy * math.cos(az))
     if dropped_mass:
         out["dropped_mass"] = dropped_mass
     if out["propellant_expelled"] > 1e-12:
@@ -576,7 +582,7 @@ def _summary(r: FlightResult, system: System, dropped_mass: float = 0.0) -> dict
     if press:
         out["peak_vessel_pressure"] = float(max(np.nanmax(s[k]) for k in press))
     if system.launch.mount == "held":
-        for k in ("max_speed", "apogee", "range"):
+        for k in ("max_speed", "apogee", "range", "downrange", "drift"):
             out.pop(k, None)
     return out
 

@@ -38,7 +38,7 @@ SIGNAL_UNITS = {
 }
 _SUFFIX_UNITS = {
     "mass_flow": "kg/s", "exit_velocity": "m/s", "exit_pressure": "Pa", "thrust": "N", "drag": "N", "buoyancy": "N",
-    "resistance": "N", "inlet_pressure": "Pa", "pressure_rise": "Pa",
+    "resistance": "N", "inlet_pressure": "Pa", "pressure_rise": "Pa", "burn_clock": "s",
     "pressure": "Pa", "temperature": "K", "head_pressure": "Pa", "outlet_pressure": "Pa", "drive": "Pa",
     "liquid_mass": "kg", "gas_mass": "kg", "liquid_volume": "m^3", "propellant_mass": "kg",
     "internal_momentum": "kg*m/s", "gas_volume": "m^3", "liquid_height": "m",
@@ -300,4 +300,5 @@ SUMMARY_UNITS = {
     "range": "m", "total_impulse": "N*s", "impact_speed": "m/s", "guide_exit_speed": "m/s", "burn_time": "s",
     "launch_mass": "kg", "final_mass": "kg", "propellant_expelled": "kg", "specific_impulse": "s",
     "peak_vessel_pressure": "Pa", "max_distance": "m", "dropped_mass": "kg",
+    "downrange": "m", "drift": "m",
 }

@@ -23,6 +23,7 @@ _DISPLAY = {
     "propellant_expelled": ("mass expelled", "g"), "peak_thrust": ("peak thrust", "N"),
     "peak_acceleration": ("peak acceleration", "m/s^2"), "max_speed": ("max speed", "m/s"),
     "guide_exit_speed": ("guide exit speed", "m/s"), "apogee": ("apogee", "m"), "range": ("range", "m"),
+    "downrange": ("downrange", "m"), "drift": ("drift across the launch azimuth", "m"),
     "total_impulse": ("total impulse", "N*s"), "specific_impulse": ("specific impulse", "s"),
     "impact_speed": ("impact speed", "m/s"), "peak_vessel_pressure": ("peak vessel pressure (abs)", "bar"),
     "dropped_mass": ("mass dropped at separations", "g"),
