@@ -41,6 +41,7 @@ from __future__ import annotations
 
 import io
 import math
+import re
 from pathlib import Path
 from typing import Any, Iterable
 
@@ -352,7 +353,24 @@ def render(fig: Figure, fmt: str = "png", *, dpi: int = 110) -> bytes:
     meta = {"Date": None} if fmt == "svg" else {"Software": None}
     with matplotlib.rc_context(_RC):
         fig.savefig(buf, format=fmt, dpi=dpi, metadata=meta)
-    return buf.getvalue()
+    data = buf.getvalue()
+    if fmt == "svg":
+        data = _stable_svg_ids(data)
+    return data
+
+
+_CLIP_ID = re.compile(rb'(?<=id=")p[0-9a-f]{10}(?=")')
+
+
+def _stable_svg_ids(svg: bytes) -> bytes:
+    """Number the SVG clip-path ids in order: matplotlib derives some from object addresses."""
+    names: dict[bytes, bytes] = {}
+    for m in _CLIP_ID.finditer(svg):
+        names.setdefault(m.group(0), b"clip%d" % len(names))
+    if not names:
+        return svg
+    pattern = re.compile(rb"(?<=[\"#])(" + b"|".join(re.escape(k) for k in names) + rb')(?=[")])')
+    return pattern.sub(lambda m: names[m.group(1)], svg)
 
 
 def save_plots(result: FlightResult, directory: str | Path, *, formats: Iterable[str] = ("png",),
