@@ -157,31 +157,25 @@ def assemble(model: Model | ParsedModel, *, plugin_manager: pluggy.PluginManager
     sources: list[tuple[str, SourceFns]] = []
     flows: dict[str, FlowFns] = {}
     events: list[tuple[str, EventSpec]] = []
-    fixed_mass = 0.0
+    by_role = {"body": bodies, "volume": volumes, "jet": jets, "source": sources}
     for n in order:
         cls, p = parsed.kinds[n], parsed.params[n]
         i = slices.get(n, (-1, 0))[0]
-        if cls.role == "body":
-            b = cls.build_body(p, ops, i, amb) if cls.states else cls.build_body(p, ops)
-            fixed_mass += b.mass
-            bodies.append((n, b))
-            events.extend((n, e) for e in b.events)
-        elif cls.role == "volume":
-            v = cls.build_volume(p, i, ops, amb)
-            volumes.append((n, v))
-            events.extend((n, e) for e in v.events)
-        elif cls.role == "jet":
-            j = cls.build_jet(p, i, ops, amb)
-            jets.append((n, j))
-            events.extend((n, e) for e in j.events)
-        elif cls.role == "source":
-            src = cls.build_source(p, i, ops, amb)
-            sources.append((n, src))
-            events.extend((n, e) for e in src.events)
-        elif cls.role == "flow":
-            f = cls.build_flow(p, ops)
-            flows[n] = f
-            events.extend((n, e) for e in f.events)
+        role = cls.role
+        if role == "boundary":
+            continue
+        if role == "body":
+            fns = cls.build_body(p, ops, i, amb) if cls.states else cls.build_body(p, ops)
+        elif role == "flow":
+            fns = cls.build_flow(p, ops)
+        else:
+            fns = getattr(cls, f"build_{role}")(p, i, ops, amb)
+        if role == "flow":
+            flows[n] = fns
+        else:
+            by_role[role].append((n, fns))
+        events.extend((n, e) for e in fns.events)
+    fixed_mass = sum(b.mass for _, b in bodies)
 
     # Discharge lines: walk each path from its start to the element that reaches the outside.
     vol_fns, src_fns = dict(volumes), dict(sources)
@@ -205,9 +199,13 @@ def assemble(model: Model | ParsedModel, *, plugin_manager: pluggy.PluginManager
                 if flows[m].rise is None:
                     raise ModelError(f"components.{m}", f"({parsed.kinds[m].kind}) cannot sit in series before "
                                      f"{chain[chain.index(m) + 1]!r}", "make it the last element before the outside")
+            series = tuple((m, flows[m]) for m in chain[:-1])
+            src = src_fns.get(n)
+            if src is not None and src.rise is not None:
+                # a source with its own loss (a hose) is the first element in series, in its own modes
+                series = ((n, FlowFns(rise=src.rise)),) + series
             lines.append(Line(start=n, start_kind=role, terminal=terminal, fl=flows[terminal],
-                              series=tuple((m, flows[m]) for m in chain[:-1]),
-                              vol=vol_fns.get(n), src=src_fns.get(n)))
+                              series=series, vol=vol_fns.get(n), src=src))
 
     for n, e in events:
         valid = [m.name for m in modes.get(n, ())]

@@ -230,14 +230,18 @@ class FlowFns:
     ``mdot`` (Pa; negative for a loss). An element may provide both.
 
     ``jet_dir`` is the body-frame direction of the exhaust; ``events`` use the
-    pressure difference across the element as ``drive``; ``signals(mode)``
-    adds named values to the results.
+    pressure at the element's inlet minus ambient as ``drive`` (terminal
+    elements); ``signals(up, p_down, mode)`` receives the condition at the
+    element's inlet (an Outlet tuple) and the ambient pressure, and returns
+    named SI values for the results (e.g. a nozzle's flow regime), or the
+    attribute is None.
     """
 
     flow: Callable[[tuple, float, int], tuple] | None = None
     jet_dir: tuple[float, float, float] = (-1.0, 0.0, 0.0)
     rise: Callable[[tuple, float, int], float] | None = None
     events: tuple[EventSpec, ...] = ()
+    signals: Callable[[tuple, float, int], dict] | None = None
 
 
 @dataclass(frozen=True)
@@ -251,11 +255,20 @@ class SourceFns:
     and the velocity of the entering fluid relative to the vehicle (m/s,
     world frame). Its momentum ``mdot * vin`` enters the balance (for an inlet
     that is the ram drag). A source holds no mass: what enters leaves.
+
+    Optional: ``rise(up, mdot, mode)`` is the pressure change between the
+    supply and the vehicle at mass flow ``mdot`` (Pa, negative for a hose
+    loss); the line solve treats it as the first element in series.
+    ``inflow(mdot, up)`` returns the world-frame velocity of the entering
+    fluid relative to the vehicle when it depends on the flow (a hose whose
+    fluid speed is mdot / (rho A)); it then replaces ``vin`` of ``supply``.
     """
 
     supply: Callable[[float, list, int, tuple], tuple]
     signals: Callable[[float, list, int], dict] | None = None
     events: tuple[EventSpec, ...] = ()
+    rise: Callable[[tuple, float, int], float] | None = None
+    inflow: Callable[[float, tuple], tuple] | None = None
 
 
 @dataclass(frozen=True)
@@ -274,16 +287,12 @@ class JetFns:
     events: tuple[EventSpec, ...] = ()
 
 
-class ComponentKind:
-    """Base class of every device kind. See the module docstring for the contract."""
+class _Declared:
+    """What every registered kind has: a name, a summary and typed parameters."""
 
     kind: ClassVar[str] = ""
-    role: ClassVar[str] = ""
     summary: ClassVar[str] = ""
     parameters: ClassVar[tuple[Spec, ...]] = ()
-    states: ClassVar[tuple[StateVar, ...]] = ()
-    modes: ClassVar[tuple[Mode, ...]] = ()
-    stores_pressure: ClassVar[bool] = False
     _params_class: ClassVar[type | None] = None
 
     @classmethod
@@ -293,10 +302,18 @@ class ComponentKind:
             cls._params_class = make_params_class(cls.kind or cls.__name__, cls.parameters)
         return cls._params_class  # type: ignore[return-value]
 
-    # --- validation -------------------------------------------------------
     @classmethod
     def check(cls, p: Any, where: str) -> None:
         """Refuse parameter combinations that make no physical sense."""
+
+
+class ComponentKind(_Declared):
+    """Base class of every device kind. See the module docstring for the contract."""
+
+    role: ClassVar[str] = ""
+    states: ClassVar[tuple[StateVar, ...]] = ()
+    modes: ClassVar[tuple[Mode, ...]] = ()
+    stores_pressure: ClassVar[bool] = False
 
     @classmethod
     def cautions(cls, p: Any) -> list[str]:
@@ -342,7 +359,7 @@ class ComponentKind:
         raise NotImplementedError
 
 
-class EnvironmentKind:
+class EnvironmentKind(_Declared):
     """Base class of environment models: a medium or a gravity field.
 
     ``slot`` is ``"medium"`` or ``"gravity"``. For a medium, :meth:`build`
@@ -351,21 +368,7 @@ class EnvironmentKind:
     returns ``fn(z) -> g`` (m/s^2, acting along -z).
     """
 
-    kind: ClassVar[str] = ""
     slot: ClassVar[str] = ""
-    summary: ClassVar[str] = ""
-    parameters: ClassVar[tuple[Spec, ...]] = ()
-    _params_class: ClassVar[type | None] = None
-
-    @classmethod
-    def params_class(cls) -> type:
-        if cls.__dict__.get("_params_class") is None:
-            cls._params_class = make_params_class(cls.kind or cls.__name__, cls.parameters)
-        return cls._params_class  # type: ignore[return-value]
-
-    @classmethod
-    def check(cls, p: Any, where: str) -> None:
-        """Refuse parameter combinations that make no physical sense."""
 
     @classmethod
     def build(cls, p: Any, ops: Any) -> Callable:  # pragma: no cover - abstract
