@@ -208,6 +208,56 @@ def test_a_delay_longer_than_the_fall_lands_it_ballistically():
     assert recovery_summary(r) == {"chute": {"deployed": 0.0}}
 
 
+def test_deploys_when_a_trigger_switches_it():
+    # deploy = "on-trigger": a [triggers] entry on the vertical speed deploys it when the drag-free flight falls
+    # through -15 m/s, at t = (v0 + 15 m/s) / g (free fall), 15 m/s being also its deployment speed.
+    v0 = 40.0
+    r = flight(v0=v0, deploy='deploy = "on-trigger"', t_open=0.5, extra="""
+    [triggers.deploy]
+    when = "vertical_speed < -15 m/s"
+    then = "switch"
+    component = "chute"
+    mode = "opening"
+    """)
+    td = (v0 + 15.0) / G0
+    e = next(e for e in r.events if e.name == "deploy" and e.component == "chute")
+    assert e.t == pytest.approx(td, rel=1e-9) and e.detail == "mode -> opening"
+    assert not any(e.name == "deploy at apogee" for e in r.events)    # on-trigger: not at apogee by itself
+    s = recovery_summary(r)["chute"]
+    assert s["deployment_time"] == pytest.approx(td, rel=1e-9)
+    assert s["deployment_speed"] == pytest.approx(15.0, rel=1e-8)
+    assert s["fully_open_time"] == pytest.approx(td + 0.5, rel=1e-9)
+
+
+def test_a_device_on_a_dropped_stage_deploys_on_the_stage_own_flight():
+    # The booster of the bundled two-stage demo carries its own device; after separation the dropped stage is
+    # flown on by itself (the core's staging), reaches its apogee and deploys there: the upper stage does not list
+    # it, the dropped stage's result does, at that stage's apogee.
+    from thrustgraph.modelfile import bundled_models, loads_model
+
+    text = bundled_models()["two-stage-demo"].read_text().replace(
+        'components = ["booster_frame", "booster_motor"]',
+        'components = ["booster_frame", "booster_motor", "booster_chute"]') + """
+[components.booster_chute]
+kind = "recovery-device"
+mass = "20 g"
+drag_area = "0.05 m^2"
+opening_time = "0.2 s"
+"""
+    r = integrate(loads_model(text))
+    assert any(e.name == "separation" and "booster_chute" in e.detail for e in r.events)
+    assert recovery_summary(r) == {}
+    booster = r.dropped["booster"]
+    apogee = event(booster, "apogee")
+    s = recovery_summary(booster)["booster_chute"]
+    assert s["deployment_time"] == pytest.approx(apogee.t, abs=1e-9)
+    assert s["deployment_altitude"] == pytest.approx(booster.summary["apogee"], rel=1e-9)
+    assert booster.message == "ground impact"
+    # under its device the booster lands near its own terminal speed sqrt(2 m g / (rho CdA)), m = its final mass
+    vt = math.sqrt(2 * booster.summary["final_mass"] * G0 / (RHO * 0.05))
+    assert booster.summary["impact_speed"] < 1.05 * vt
+
+
 # ---------------------------------------------------------------------------
 # The opening law
 # ---------------------------------------------------------------------------
@@ -331,6 +381,8 @@ BAD = [
      'Fix: set deploy = "altitude"'),
     ("altitude-mode-without-altitude", AREA + 'deploy = "altitude"', "components.chute.deploy_altitude",
      "needs a deployment altitude above the ground datum", "Fix: give deploy_altitude"),
+    ("trigger-mode-with-delay", AREA + 'deploy = "on-trigger"\n delay = "1 s"', "components.chute.delay",
+     "a delay is given but deploy = 'on-trigger'", "or remove delay"),
     ("misspelt-mode", AREA + 'deploy = "apogée"', "components.chute.deploy", "expected one of 'apogee'",
      "did you mean 'apogee'?"),
     ("exponent-zero", AREA + "opening_exponent = 0", "components.chute.opening_exponent", "must be greater than 0",

@@ -36,7 +36,8 @@ Deployment (``deploy``)
     ``altitude``: armed at apogee, then when the altitude falls through
     ``deploy_altitude`` (height above the ground datum, the model's
     ``position.z``); if the apogee is already below it the device deploys at
-    apogee.
+    apogee. ``on-trigger``: never by itself; a ``[triggers]`` entry of the
+    model switches it to mode ``opening`` (or ``open``) on any condition.
 
 States and modes
     States ``delay_timer`` (s since arming, runs only while armed) and
@@ -90,7 +91,7 @@ from thrustgraph.parameters import Choice, Number, Quantity
 
 __all__ = ["RecoveryDevice", "DEPLOY_OPTIONS", "APOGEE_SPEED", "RECOVERY_CAUTION", "RANGE_CAUTION", "MECHANISM_CAUTION"]
 
-DEPLOY_OPTIONS = ("apogee", "delay-after-apogee", "altitude")
+DEPLOY_OPTIONS = ("apogee", "delay-after-apogee", "altitude", "on-trigger")
 
 #: Apogee is detected when the vertical speed falls through -APOGEE_SPEED (m/s): 1 nm/s, so that a vehicle
 #: at rest on its pad or stand, whose vertical speed is exactly 0, is not taken to be at apogee. The detection
@@ -136,7 +137,8 @@ class RecoveryDevice(ComponentKind):
                doc="drag coefficient of the open parachute on the nominal area pi d^2 / 4 (with diameter)"),
         Quantity("diameter", "m", default="0 m", low=0.0, doc="nominal diameter of the parachute canopy"),
         Choice("deploy", options=DEPLOY_OPTIONS, default="apogee",
-               doc="when the device deploys: at apogee, a delay after apogee, or at an altitude on the way down"),
+               doc="when the device deploys: at apogee, a delay after apogee, at an altitude on the way down, or "
+                   "when a [triggers] entry switches it to mode 'opening'"),
         Quantity("delay", "s", default="0 s", low=0.0, doc="time from apogee to deployment (delay-after-apogee)"),
         Quantity("deploy_altitude", "m", default="0 m", low=0.0,
                  doc="height above the ground datum at which it deploys on the way down (altitude)"),
@@ -193,6 +195,9 @@ class RecoveryDevice(ComponentKind):
             out.append("The model counts the recovery delay from its own predicted apogee; a motor's ejection delay "
                        "is timed from burnout and varies from motor to motor: choose it so the device deploys near "
                        "the real apogee, not after the vehicle has started to fall fast.")
+        if p.deploy == "on-trigger":
+            out.append("A device deployed by a trigger deploys only if the trigger's condition is met in flight: "
+                       "check in the event log that it does, early enough, in every case you fly.")
         if p.deploy == "altitude":
             out.append("With deployment at an altitude the model deploys when it falls through that height (at apogee "
                        "if the apogee is lower); a real altimeter or timer has its own logic, sensing lag and "
@@ -258,6 +263,8 @@ class RecoveryDevice(ComponentKind):
         if p.deploy == "apogee":
             events.append(EventSpec("deploy at apogee", vertical_speed, -1.0, ("packed",), deployed_mode,
                                     needs_drive=False))
+        elif p.deploy == "on-trigger":
+            pass                      # a [triggers] entry switches the mode
         else:
             events.append(EventSpec("armed at apogee", vertical_speed, -1.0, ("packed",), "armed",
                                     needs_drive=False))

@@ -2,14 +2,22 @@
 
 The core's summary does not know recovery devices, so these numbers are read
 from a finished :class:`~thrustgraph.result.FlightResult`: the deployment
-event in the event log, the states at that instant, and the device's drag
-signal ``NAME.drag`` from the deployment on.
+instant is the first sample at which the device's ``NAME.deployed`` signal is
+1 (whatever deployed it: its own event or a ``[triggers]`` entry; a mode switch
+always starts a new integration segment, so that sample is the exact
+instant), and the device's drag signal ``NAME.drag`` from then on.
 
 The peak opening load is the largest magnitude of the device's drag force on
 the recorded samples (the solver's own steps plus the evenly spaced output
 grid, ``run.output_interval``) from deployment to the end of the run. It is the
 quasi-steady drag of the model; see :mod:`tg_recovery.device` for why a real
-opening shock can be higher.
+opening shock can be higher. A device opened slowly or at low speed never
+carries more than about the weight it holds in steady descent (m g, reached
+as the descent settles): then that is its peak load, and its time comes late
+in the descent.
+
+A device that left the vehicle with a dropped stage is reported in that
+stage's own result (``result.dropped[stage]``), not in the upper stage's.
 
 Examples
 --------
@@ -47,7 +55,7 @@ import numpy as np
 
 __all__ = ["recovery_summary", "SUMMARY_UNITS", "DEPLOY_EVENTS"]
 
-#: Event names a recovery device logs when it deploys.
+#: Event names a recovery device logs when it deploys by itself (a trigger logs its own name).
 DEPLOY_EVENTS = ("deploy at apogee", "deploy after delay", "deploy at altitude")
 
 #: SI unit of each entry of a device's summary.
@@ -72,29 +80,34 @@ def recovery_summary(result: Any, names: list[str] | None = None) -> dict[str, d
     dict
         Component name -> {key: SI value} with the keys of :data:`SUMMARY_UNITS`.
         A device that never deployed reports only ``{"deployed": 0.0}``.
+        With ``names`` None, a device that left the vehicle (its signals end
+        in NaN) before deploying is not listed.
     """
     sig = result.signals
+    listed = names is not None
     if names is None:
         names = [k[:-len(".drag_area")] for k in sig if k.endswith(".drag_area")]
     out: dict[str, dict[str, float]] = {}
     t = result.t
     for name in names:
-        dep = [e for e in result.events if e.component == name and e.name in DEPLOY_EVENTS]
-        if not dep:
-            out[name] = {"deployed": 0.0}
+        deployed = sig[f"{name}.deployed"]
+        on = np.flatnonzero(deployed == 1.0)
+        if not len(on):
+            if listed or not np.isnan(deployed[-1]):
+                out[name] = {"deployed": 0.0}
             continue
-        td = dep[0].t
-        k = int(np.searchsorted(t, td, side="right")) - 1     # the sample at the deployment instant
+        k = int(on[0])                                         # the first sample of the deployed segment
+        td = float(t[k])
         entry = {"deployed": 1.0, "deployment_time": float(td),
                  "deployment_altitude": float(sig["altitude"][k]),
                  "deployment_speed": float(sig["speed"][k]),
                  "deployment_airspeed": float(sig["airspeed"][k])}
-        after = t >= td
+        after = np.arange(len(t)) >= k
         load = np.linalg.norm(np.nan_to_num(sig[f"{name}.drag"][after]), axis=1)
         j = int(np.argmax(load))
         entry["peak_opening_load"] = float(load[j])
         entry["peak_opening_load_time"] = float(t[after][j])
-        opened = [e.t for e in result.events if e.component == name and e.name == "fully open"]
+        opened = [e.t for e in result.events if e.component == name and e.name == "fully open" and e.t >= td]
         entry["fully_open_time"] = float(opened[0]) if opened else float(td)
         out[name] = entry
     return out
