@@ -351,8 +351,9 @@ def test_cli_compare(tmp_path, held_fine):
     thrust = next(s for s in doc["signals"] if s["signal"] == "thrust")
     assert thrust["rms_error"] < 10.0
     # bad input through the command line: exit 2, one message, nothing written
-    bad = subprocess.run(thrustgraph_command() + ["compare", str(model), "stand.csv", "--map", "pressure=bottle.pressure",
-                                                  "--json", "bad.json"], cwd=tmp_path, capture_output=True, text=True)
+    bad = subprocess.run(thrustgraph_command() + ["compare", str(model), "stand.csv",
+                                                  "--map", "pressure=bottle.pressure", "--json", "bad.json"],
+                         cwd=tmp_path, capture_output=True, text=True)
     assert bad.returncode == 2
     assert "stand.csv: column 'pressure'" in bad.stderr and "gauge or absolute" in bad.stderr
     assert not (tmp_path / "bad.json").exists()

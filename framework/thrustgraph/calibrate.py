@@ -49,7 +49,7 @@ from typing import Any, Callable, Sequence, TextIO
 
 import numpy as np
 
-from .errors import IntegrationError, ModelError, ThrustgraphError
+from .errors import IntegrationError, ModelError
 from .model import LAUNCH_SPECS, Model, parse_model
 from .parameters import Quantity
 from .records import ColumnMap, Record
@@ -134,9 +134,9 @@ class _Param:
         return _text(x, self.si, self.display)
 
 
-def _resolve(model: Model, fp: FitParameter) -> _Param:
+def _resolve(model: Model, fp: FitParameter, parsed: Any = None) -> _Param:
     """Check a fit parameter against the model's kinds and return its spec, unit and bounds."""
-    parsed = parse_model(model)
+    parsed = parse_model(model) if parsed is None else parsed
     path = fp.path
     parts = path.split(".")
     spec = None
@@ -524,6 +524,30 @@ class _Problem:
         return np.column_stack(cols)
 
 
+def _covariance(J: np.ndarray, s2: float, params: Sequence[_Param]) -> tuple[np.ndarray, np.ndarray]:
+    """Covariance s^2 (J^T J)^-1 back in SI, and the correlation; refuses parameters the records cannot fix."""
+    p = len(params)
+    norms = np.linalg.norm(J, axis=0)
+    for j, nrm in enumerate(norms):
+        if not nrm > 1e-12 * max(float(norms.max()), 1e-300):
+            raise ModelError(f"fit {params[j].path}", "has no effect on the compared signals, so these records "
+                             "cannot determine it", "compare a signal it changes, or do not fit it")
+    _, sv, Vt = np.linalg.svd(J, full_matrices=False)
+    cov_z = s2 * (Vt.T / np.maximum(sv, 1e-300) ** 2) @ Vt
+    D = np.diag([q.high - q.low for q in params])
+    cov = D @ cov_z @ D
+    se = np.sqrt(np.diag(cov))
+    corr = cov / np.outer(se, se)
+    off = np.abs(corr - np.eye(p))
+    if sv[-1] <= 1e-8 * sv[0] or (p > 1 and off.max() > 0.9999):
+        i, j = (sorted(np.unravel_index(int(np.argmax(off)), off.shape)) if p > 1 else (0, 0))
+        names = f"{params[i].path} and {params[j].path}" if i != j else params[i].path
+        raise ModelError("calibration", f"the records cannot tell {names} apart (their effects on the compared "
+                         f"signals are the same up to a factor: correlation {corr[i, j]:+.5f})",
+                         "fit one of them, or add a record or signal that separates them")
+    return cov, corr
+
+
 def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[FitParameter], *,
               confidence: float = 0.95, max_iterations: int = 60, tolerance: float = 1e-8,
               diff_step: float = 1e-3, scale: str = "range", start_time_bound: Any = None,
@@ -577,7 +601,8 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
         raise ModelError("calibration", f"scale {scale!r} is neither 'range' nor 'noise'", "choose range or noise")
     if not 0.0 < confidence < 1.0:
         raise ModelError("calibration", f"confidence {confidence!r} is not between 0 and 1", "use e.g. 0.95")
-    params = [_resolve(model, fp) for fp in parameters]
+    parsed = parse_model(model)
+    params = [_resolve(model, fp, parsed) for fp in parameters]
     if start_time_bound is not None:
         bound = _seconds(start_time_bound, "start-time bound")
         if not bound > 0.0:
@@ -602,6 +627,9 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
 
     try:
         r0, rms0 = prob.evaluate(z0)
+        # Refuse at once a parameter the records cannot determine (checked again at the optimum).
+        _covariance(prob.jacobian(z0, diff_step), max(float(r0 @ r0), 1e-300) / max(r0.size - len(params), 1),
+                    params)
         sol = solve(z0)
         if scale == "noise":
             _, rms_fit = prob.evaluate(sol.x, count=False)
@@ -619,25 +647,8 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
     if dof <= 0:
         raise ModelError("calibration", f"{m} samples cannot determine {p} parameters", "give longer records")
     J = prob.jacobian(z, diff_step)
-    norms = np.linalg.norm(J, axis=0)
-    for j, nrm in enumerate(norms):
-        if not nrm > 1e-12 * max(float(norms.max()), 1e-300):
-            raise ModelError(f"fit {params[j].path}", "has no effect on the compared signals, so these records "
-                             "cannot determine it", "compare a signal it changes, or do not fit it")
-    U, sv, Vt = np.linalg.svd(J, full_matrices=False)
-    s2 = float(r @ r) / dof
-    cov_z = s2 * (Vt.T / np.maximum(sv, 1e-300) ** 2) @ Vt
-    D = np.diag([q.high - q.low for q in params])
-    cov = D @ cov_z @ D
+    cov, corr = _covariance(J, float(r @ r) / dof, params)
     se = np.sqrt(np.diag(cov))
-    corr = cov / np.outer(se, se)
-    off = np.abs(corr - np.eye(p))
-    if sv[-1] <= 1e-8 * sv[0] or (p > 1 and off.max() > 0.9999):
-        i, j = (sorted(np.unravel_index(int(np.argmax(off)), off.shape)) if p > 1 else (0, 0))
-        names = f"{params[i].path} and {params[j].path}" if i != j else params[i].path
-        raise ModelError("calibration", f"the records cannot tell {names} apart (their effects on the compared "
-                         f"signals are the same up to a factor: correlation {corr[i, j]:+.5f})",
-                         "fit one of them, or add a record or signal that separates them")
     tq = float(student_t.ppf(0.5 * (1.0 + confidence), dof))
     x = prob.x_of(z)
     values = []
@@ -662,7 +673,8 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
                                  start=w[0], end=w[1]))
     runs_fixed = tuple(fixed)
     return Calibration(model=model.copy(), values=tuple(values), covariance=cov, correlation=corr,
-                       confidence=confidence, s=math.sqrt(s2), n_residuals=m, dof=dof, signal_rms=signal_rms,
+                       confidence=confidence, s=math.sqrt(float(r @ r) / dof), n_residuals=m, dof=dof,
+                       signal_rms=signal_rms,
                        runs=runs_fixed, evaluations=prob.evaluations, model_runs=prob.model_runs,
                        message=str(sol.message),
                        date=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),

@@ -97,7 +97,8 @@ def _check_map(record: Record, result: FlightResult, cmap: ColumnMap) -> None:
     if su and Q_(1.0, su).dimensionality != Q_(1.0, cu or "").dimensionality:
         raise ModelError(f"{record.source}: column {cmap.column!r}",
                          f"holds a {record.dimension(cmap.column)} [{cu or '1'}] but signal {cmap.signal!r} is in {su}",
-                         "map the column to a signal of the same kind (thrust to thrust, pressure to a vessel pressure)")
+                         "map the column to a signal of the same kind (thrust to thrust, pressure to a vessel "
+                         "pressure)")
 
 
 def _ambient(result: FlightResult, times: np.ndarray) -> np.ndarray:
@@ -309,7 +310,6 @@ def match(result: FlightResult, record: Record, mapping: Sequence[ColumnMap], *,
     ts = record.time[keep]
     edges = _edges(ts)
     edges[0] = max(edges[0], lo)
-    edges[-1] = min(edges[-1], hi) if hi > ts[-1] else edges[-1]
     out = []
     for cmap in mapping:
         y = signal_series(result, cmap.signal)
@@ -447,7 +447,8 @@ class Comparison:
             lines.append(f"  RMS error         {_show(s.rms_error, s.unit)}{rel}")
             lines.append(f"  mean error        {_show(s.mean_error, s.unit, True)}")
             lines.append(f"  largest error     {_show(s.max_abs_error, s.unit)}")
-            lines.append(f"  peak              measured {_show(s.peak_measured, s.unit)} at {s.peak_time_measured:.5g} s,"
+            lines.append(f"  peak              measured {_show(s.peak_measured, s.unit)} at "
+                         f"{s.peak_time_measured:.5g} s,"
                          f" predicted {_show(s.peak_predicted, s.unit)} at {s.peak_time_predicted:.5g} s")
             lines.append(f"  peak error        {_show(s.peak_error, s.unit, True)};"
                          f" time-to-peak error {s.peak_time_error:+.5g} s")

@@ -167,7 +167,8 @@ class ColumnMap:
             raise ModelError(where, f"is marked {self.pressure} but holds a {record.dimension(self.column)}, "
                              "not a pressure", "mark only pressure columns gauge or absolute")
         if not (isinstance(self.weight, (int, float)) and math.isfinite(self.weight) and self.weight > 0):
-            raise ModelError(where, f"weight {self.weight!r} is not a positive number", "give a weight such as 1 or 0.5")
+            raise ModelError(where, f"weight {self.weight!r} is not a positive number",
+                             "give a weight such as 1 or 0.5")
 
 
 @dataclass(frozen=True)
@@ -250,7 +251,8 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
     lines = [(k, line) for k, line in enumerate(text.splitlines(), start=1)
              if line.strip() and not line.lstrip().startswith("#")]
     if not lines:
-        raise ModelError(source, "the record is empty", "give a header line such as \"time [s],thrust [N]\" and data rows")
+        raise ModelError(source, "the record is empty",
+                         "give a header line such as \"time [s],thrust [N]\" and data rows")
     head_no, head = lines[0]
     delim = max(",;\t", key=head.count)
     cells = next(csv.reader([head], delimiter=delim))
@@ -304,7 +306,8 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
     tj = names.index(time_column)
     if dimension_name(units[tj]) != "time":
         raise ModelError(f"{source}: column {time_column!r}", f"the time column is in [{units[tj] or '1'}], "
-                         f"a {dimension_name(units[tj])}", f'write its unit as a time, e.g. "{time_column} [s]" or [ms]')
+                         f"a {dimension_name(units[tj])}",
+                         f'write its unit as a time, e.g. "{time_column} [s]" or [ms]')
     columns: dict[str, np.ndarray] = {}
     unit_of: dict[str, str] = {}
     si_of: dict[str, str] = {}
