@@ -330,10 +330,12 @@ class Balance:
             else:
                 vin = fl[8]
                 Ex -= mdot * (vx + vin[0]); Ey -= mdot * (vy + vin[1]); Ez -= mdot * (vz + vin[2])
+                Nx += mdot * vin[0]; Ny += mdot * vin[1]; Nz += mdot * vin[2]
         out.append(mout)
         out.extend((Ex, Ey, Ez))
         out.extend((Dx + Px + Qx + Rx + Cx, Dy + Py + Qy + Ry + Cy, Dz + Wz + Pz + Qz + Rz + Cz))
-        out.extend((-Ix, -Iy, -Iz))  # modelled d/dt of the internal momentum
+        # modelled d/dt of the internal momentum; the inflow momentum is already in the exhaust accumulator
+        out.extend((Nx - Ix, Ny - Iy, Nz - Iz))
 
         if rec is not None:
             if "_light" in rec:
@@ -380,6 +382,8 @@ class Balance:
             else:
                 fl, p_in, rises = _solve_line(ln, up, pa, tmode, smodes, mfix)
             mdot, ve, pe, Ae = fl[0], fl[1], fl[2], fl[3]
+            if vin is not None and ln.src.inflow is not None:
+                vin = ln.src.inflow(mdot, up)
             pth = (pe - pa) * Ae
             T = mdot * ve + pth
             Tx -= T * jd[0]; Ty -= T * jd[1]; Tz -= T * jd[2]
@@ -449,9 +453,17 @@ class Balance:
             rec[f"{ln.terminal}.thrust"] = mdot * ve + pth
             rec[f"{ln.terminal}.inlet_pressure"] = p_in
             rec[f"{ln.terminal}.drive"] = p_in - pa
-            for (m, _), rise in zip(ln.series, rises):
+            up = _with_pressure(o, p_start)
+            for (m, fns), rise, md in zip(ln.series, rises, self._lmode[j][1]):
                 rec[f"{m}.pressure_rise"] = rise
                 rec[f"{m}.mass_flow"] = mdot
+                if fns.signals is not None:
+                    for key, val in fns.signals(up, pa, md).items():
+                        rec[f"{m}.{key}"] = val
+                up = _with_pressure(up, up[0] + rise)
+            if ln.fl.signals is not None:
+                for key, val in ln.fl.signals(_with_pressure(o, p_in), pa, self._lmode[j][0]).items():
+                    rec[f"{ln.terminal}.{key}"] = val
             if ln.start in seen:
                 continue
             seen.add(ln.start)

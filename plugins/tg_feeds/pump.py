@@ -1,0 +1,136 @@
+"""The pump: an element in series that raises the pressure of a liquid between an inlet (or tank) and a nozzle.
+
+Model
+-----
+``programme = "power"``: shaft power P at efficiency eta; the fluid receives
+the hydraulic power eta P = Q dp (Q = mdot/rho the volume flow), so::
+
+    dp = eta P / Q                for Q >= Q_k = eta P / dp_0
+    dp = dp_0                     for Q <  Q_k     (shut-off)
+
+The hyperbola alone would make dp infinite as Q -> 0; a real pump's rise is
+finite at zero flow (its shut-off head). This model caps the rise at the
+shut-off pressure dp_0 the user gives, so below Q_k the pump delivers
+less than eta P (a closed-valve pump churns its power into heat). Above
+Q_k the hydraulic power is exactly eta P. (The cap, not a fitted
+curve, is this model's choice: common practice, no source.)
+
+``programme = "head-curve"``: a measured head-flow curve H(Q) (m against
+L/s), ``dp = rho g0 H(Q)`` with g0 = 9.80665 m/s^2 (head defined with
+standard gravity), interpolated linearly between rows and extrapolated
+linearly beyond the first and last rows (past the last row the rise falls
+on with the last slope, and turns into a loss once H < 0).
+
+The line solve finds the flow at which the downstream element passes what
+the pump delivers. The pump treats the fluid as incompressible: it is a
+liquid pump (a model refuses one fed with gas). ``stopped`` mode (after
+``run_time``): no rise, the pump is an open passage.
+
+Froude propulsive efficiency of the jet it drives (useful power over the
+kinetic energy added): ``eta_p = 2 / (1 + V_j / V_0)``
+(:func:`~tg_feeds.propulsive.froude_efficiency`).
+
+Examples
+--------
+>>> from thrustgraph.component import scalar_ops
+>>> from thrustgraph.parameters import parse_params
+>>> p = parse_params(Pump.parameters, {"shaft_power": "1 kW", "efficiency": 0.6, "shutoff_pressure": "3 bar"},
+...                  where="components.pump", params_class=Pump.params_class())
+>>> f = Pump.build_flow(p, scalar_ops)
+>>> up = (101325.0, 293.15, 1000.0, 1.4, 287.05, 1.0, 0.0)
+>>> f.rise(up, 0.0, 0), f.rise(up, 6.0, 0)        # shut-off; 600 W into 6 L/s
+(300000.0, 100000.0)
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from thrustgraph.component import ComponentKind, EventSpec, FlowFns, Mode
+from thrustgraph.errors import ModelError
+from thrustgraph.parameters import Choice, Number, Quantity, Table
+
+__all__ = ["Pump", "STANDARD_GRAVITY"]
+
+#: Exact by definition (3rd CGPM, 1901); pump head is quoted with it.
+STANDARD_GRAVITY = 9.80665
+
+
+class Pump(ComponentKind):
+    """Liquid pump in series: shaft power and efficiency with a shut-off cap, or a head-flow curve."""
+
+    kind = "pump"
+    role = "flow"
+    summary = "liquid pump in series: shaft power and efficiency (capped at shut-off) or a head-flow curve"
+    parameters = (
+        Choice("programme", options=("power", "head-curve"), default="power",
+               doc="power: shaft power and efficiency; head-curve: a measured head against flow"),
+        Quantity("shaft_power", "W", default="0 W", low=0.0, doc="shaft power (programme = power)"),
+        # Small centrifugal and axial pumps run at 0.5-0.8 (common practice, no source).
+        Number("efficiency", default=0.7, low=0.0, low_open=True, high=1.0,
+               doc="hydraulic power over shaft power (programme = power)"),
+        Quantity("shutoff_pressure", "bar", default="0 bar", low=0.0,
+                 doc="pressure rise at zero flow, the cap of eta P / Q (programme = power)"),
+        Table("head_curve", columns=(("volume_flow", "L/s"), ("head", "m")), default="absent",
+              doc="head against volume flow (programme = head-curve)"),
+        Quantity("run_time", "s", default="0 s", low=0.0, doc="stop the pump after this time; 0 s: never"),
+    )
+    modes = (Mode("running", "pump thrust"), Mode("stopped", "pump stopped", propulsive=False))
+
+    @classmethod
+    def check(cls, p, where):
+        if p.programme == "power":
+            if p.shaft_power <= 0.0:
+                raise ModelError(f"{where}.shaft_power", "a power pump needs its shaft power",
+                                 "give shaft_power = \"1.5 kW\", or use programme = \"head-curve\"")
+            if p.shutoff_pressure <= 0.0:
+                raise ModelError(f"{where}.shutoff_pressure", "a power pump needs its shut-off pressure (the rise at "
+                                 "zero flow), or its rise eta P / Q would be infinite there",
+                                 "give shutoff_pressure = \"4 bar\" (the shut-off head times rho g)")
+        else:
+            if p.head_curve is None:
+                raise ModelError(f"{where}.head_curve", "a head-curve pump needs its head-flow curve",
+                                 'write head_curve = { units = ["L/s", "m"], rows = [[0, 40], [5, 35], [10, 20]] }')
+            if p.head_curve[0, 0] < 0.0:
+                raise ModelError(f"{where}.head_curve.rows[0]", "volume flows start at 0 or more",
+                                 "start the curve at zero flow (the shut-off head)")
+
+    @classmethod
+    def build_flow(cls, p, ops):
+        g0 = STANDARD_GRAVITY
+        if p.programme == "power":
+            wh = p.efficiency * p.shaft_power
+            dp0 = p.shutoff_pressure
+            qk = wh / dp0
+
+            def lift(q):
+                return dp0 if q <= qk else wh / q
+        else:
+            qs = [float(x) for x in p.head_curve[:, 0]]
+            hs = [float(x) for x in p.head_curve[:, 1]]
+            s0 = (hs[1] - hs[0]) / (qs[1] - qs[0])
+            s1 = (hs[-1] - hs[-2]) / (qs[-1] - qs[-2])
+
+            def head(q):
+                if q <= qs[0]:
+                    return hs[0] + s0 * (q - qs[0])
+                if q >= qs[-1]:
+                    return hs[-1] + s1 * (q - qs[-1])
+                return float(np.interp(q, qs, hs))
+
+            def lift(q):
+                return head(q) * g0
+
+        def rise(up, mdot, mode=0):
+            if mode == 1:
+                return 0.0
+            rho = up[2]
+            dp = lift(mdot / rho)
+            return dp if p.programme == "power" else rho * dp
+
+        events: tuple[EventSpec, ...] = ()
+        if p.run_time > 0.0:
+            tr = p.run_time
+            events = (EventSpec("pump stopped", lambda t, s, drive: t - tr, 1.0, ("running",), "stopped",
+                                needs_drive=False),)
+        return FlowFns(rise=rise, events=events)

@@ -1,0 +1,324 @@
+"""The gas tank: a rigid vessel of compressed gas blowing down through its outlets.
+
+Model
+-----
+States: the gas mass m and its temperature T; the density is rho = m / V.
+The outflow mdot (the sum over every outlet) leaves at the tank's state.
+
+Mass::
+
+    dm/dt = -mdot
+
+Temperature, by the chosen ``process``:
+
+``adiabatic`` (the energy equation, optionally with wall heat transfer)
+    d(m u)/dt = -mdot h + Qdot with Qdot = h_w A_w (T_w - T). With u(rho, T)
+    and rho = m/V this gives::
+
+        m c_v dT/dt = -mdot (h - u - rho (du/drho)_T) + Qdot
+
+    For an ideal gas (du/drho)_T = 0 and h - u = R T, so
+    m c_v dT/dt = -mdot R T + Qdot; with Qdot = 0 the gas left in the tank
+    expands isentropically (T ~ rho^(g-1)).
+``isothermal``
+    dT/dt = 0 (a tank whose walls keep the gas at its charge temperature).
+``polytropic`` (ideal gas only)
+    p ~ rho^n, i.e. dT/dt = -(n - 1) T mdot / m, with 1 <= n <= gamma.
+
+Equation of state (``equation_of_state``):
+
+``ideal``
+    p = rho R T with gamma and the molar mass from the table in
+    :mod:`tg_gastanks.gases`; c_v = R / (gamma - 1).
+``coolprop``
+    the fluid's reference equation of state through CoolProp, evaluated at
+    (rho, T) (explicit in the Helmholtz energy: no iteration): p, h, u, c_v,
+    (du/drho)_T and the speed of sound a. Nitrogen at 200 bar and 300 K has
+    Z = 1.0568 and kappa = rho a^2 / p = 1.928 (CoolProp; references.md
+    section 8): an ideal-gas tank holds 5.7 % more gas and blows down
+    differently.
+
+    What the nozzle receives: the **expansion exponent** n, the secant
+    exponent of the real isentrope between the tank state and the throat
+    pressure (one CoolProp (p, s) flash:
+    :func:`~tg_gastanks.fluids.expansion_exponent`), with R_eff = p/(rho T),
+    so that the nozzle's perfect-gas formulas pass the choked mass flux
+    Gamma(n) sqrt(p rho) of the polytrope through both states. Measured
+    against the real-gas maximum of rho sqrt(2 (h0 - h)) along the isentrope
+    (nitrogen, 200 bar, 300 K): +0.2 %; handing kappa itself would give
+    +2.6 %, the ideal gas -5.1 %. The velocity after a large expansion in a
+    converging-diverging nozzle is still the polytrope's: 3.4 % low at
+    p_e/p0 = 0.03 from 200 bar (0.9 % from 30 bar). This is an effective-
+    exponent approximation of the real-gas nozzle flow, not a real-gas nozzle
+    solution.
+
+Wall heat transfer: a constant film coefficient h_w over the wall area A_w
+to a wall at T_w (default: the charge temperature). Only with ``adiabatic``
+(it is the heat term of the energy equation).
+
+Modes: ``gas`` (gas thrust) -> ``sealed`` when the tank pressure falls to
+ambient (nothing more flows; no air flows back in). With CoolProp a terminal
+event stops the flight when the gas reaches its dew point (or, above the
+critical pressure, the critical temperature): condensation is outside this
+model. The ideal gas does not know that it condenses: an adiabatic ideal
+blowdown to vacuum cools without bound.
+
+Assumptions and limits: uniform contents (no stratification), a rigid
+tank, quasi-steady outflow, no flow into the tank; the film coefficient is a
+constant the user supplies (natural convection inside a small tank is of
+order 5-50 W/(m^2 K): common practice, no source).
+
+Examples
+--------
+>>> from thrustgraph.component import Ambient, scalar_ops
+>>> from thrustgraph.parameters import parse_params
+>>> p = parse_params(GasTank.parameters, {"volume": "1 L", "gauge_pressure": "9 bar"}, where="components.t",
+...                  params_class=GasTank.params_class())
+>>> m, T = GasTank.initial_state(p, Ambient(1e5, 293.15, 1.2))
+>>> round(m * 1e3, 4), T          # 10 bar of nitrogen at 20 C in 1 L
+(11.4932, 293.15)
+"""
+
+from __future__ import annotations
+
+import math
+
+from thrustgraph.component import ComponentKind, EventSpec, Mode, StateVar, VolumeFns
+from thrustgraph.errors import ModelError
+from thrustgraph.parameters import Choice, Number, Quantity
+
+from tg_vessels import PRESSURE_CAUTIONS
+
+from .fluids import FluidName, expansion_exponent, new_state, require_coolprop, resolve_fluid
+from .gases import IDEAL_GASES, UNIVERSAL_GAS_CONSTANT, lookup_gas
+
+__all__ = ["GasTank", "GAS_CYLINDER_CAUTIONS"]
+
+GAS_CYLINDER_CAUTIONS = [
+    "Compressed-gas cylinders and tanks must be built, certified, filled and periodically inspected to the "
+    "gas-cylinder codes that apply where you are (e.g. ISO 9809, US DOT 49 CFR 173/178); feed thrusters "
+    "through a regulator and protect the tank with a relief device rated for it.",
+    "Expanding gas cools sharply: tanks, valves and nozzles can frost over and cause cold burns; never "
+    "point a gas jet at anyone, and keep clear of the exhaust line.",
+]
+
+
+class GasTank(ComponentKind):
+    """Rigid tank of compressed gas: ideal or real (CoolProp), adiabatic, isothermal or polytropic."""
+
+    kind = "gas-tank"
+    role = "volume"
+    stores_pressure = True
+    summary = "rigid tank of compressed gas: ideal-gas table or CoolProp, with optional wall heat transfer"
+    parameters = (
+        Quantity("volume", "L", low=0.0, low_open=True, doc="internal volume of the tank"),
+        FluidName("gas", default="nitrogen",
+                  doc=f"the gas: one of {', '.join(IDEAL_GASES)}, or (with CoolProp) any fluid it knows"),
+        Choice("equation_of_state", options=("ideal", "coolprop"), default="ideal",
+               doc="ideal: perfect gas from the built-in table; coolprop: the fluid's reference equation of state"),
+        Quantity("gauge_pressure", "bar", low=0.0, doc="charge pressure above ambient at launch"),
+        Quantity("temperature", "K", default="293.15 K", low=0.0, low_open=True,
+                 doc="gas temperature at launch"),
+        Choice("process", options=("adiabatic", "isothermal", "polytropic"), default="adiabatic",
+               doc="how the gas left in the tank changes state as it blows down"),
+        Number("polytropic_exponent", default=1.2, low=1.0, high=1.7,
+               doc="exponent n of p ~ rho^n (process = polytropic, ideal gas only)"),
+        Quantity("wall_heat_transfer_coefficient", "W/m^2/K", default="0 W/m^2/K", low=0.0,
+                 doc="film coefficient between the gas and the wall (process = adiabatic)"),
+        Quantity("wall_area", "m^2", default="0 m^2", low=0.0, doc="inner wall area for the heat transfer"),
+        Quantity("wall_temperature", "K", default="0 K", low=0.0,
+                 doc="wall temperature; 0 K means the gas temperature at launch"),
+    )
+    states = (
+        StateVar("gas_mass", "kg", "gas in the tank"),
+        StateVar("temperature", "K", "gas temperature"),
+    )
+    modes = (Mode("gas", "gas thrust"), Mode("sealed", "sealed", propulsive=False))
+
+    # --- validation -----------------------------------------------------------
+    @classmethod
+    def check(cls, p, where):
+        if p.equation_of_state == "ideal":
+            if lookup_gas(p.gas) is None:
+                raise ModelError(f"{where}.gas", f"the built-in ideal-gas table has no gas {p.gas!r}",
+                                 f"choose one of {', '.join(IDEAL_GASES)}, or set equation_of_state = "
+                                 "\"coolprop\" to use any fluid CoolProp knows")
+        else:
+            device = f"the real-gas tank {where.rsplit('.', 1)[-1]!r}"
+            require_coolprop(f"{where}.equation_of_state", device,
+                             "set equation_of_state = \"ideal\" to use the built-in gas table")
+            fluid = resolve_fluid(p.gas, where=f"{where}.gas", device=device)
+            problem = _charge_problem(p, fluid, _STANDARD_PRESSURE)
+            if problem:
+                raise ModelError(f"{where}.gauge_pressure", problem, "use a self-pressurising-tank for a "
+                                 "liquefied gas, or raise the temperature or lower the pressure")
+            if p.process == "polytropic":
+                raise ModelError(f"{where}.process", "a polytropic exponent is an ideal-gas idealisation; the "
+                                 "real-gas tank follows its equation of state",
+                                 "use process = \"adiabatic\" (with wall heat transfer if you like) or "
+                                 "\"isothermal\", or set equation_of_state = \"ideal\"")
+        if p.wall_heat_transfer_coefficient > 0.0:
+            if p.process != "adiabatic":
+                raise ModelError(f"{where}.wall_heat_transfer_coefficient", "wall heat transfer enters the energy "
+                                 f"equation, which process = {p.process!r} does not use",
+                                 "set process = \"adiabatic\" (the energy equation) or remove the coefficient")
+            if p.wall_area <= 0.0:
+                raise ModelError(f"{where}.wall_area", "wall heat transfer needs the wall area",
+                                 "give the tank's inner wall area, e.g. wall_area = \"0.06 m^2\"")
+
+    @classmethod
+    def cautions(cls, p):
+        return list(PRESSURE_CAUTIONS) + list(GAS_CYLINDER_CAUTIONS)
+
+    # --- initial state ----------------------------------------------------------
+    @classmethod
+    def initial_state(cls, p, amb):
+        p0 = amb.pressure + p.gauge_pressure
+        T0 = p.temperature
+        if p.equation_of_state == "ideal":
+            R = lookup_gas(p.gas).gas_constant
+            return (p0 * p.volume / (R * T0), T0)
+        fluid = resolve_fluid(p.gas, where="gas", device="the real-gas tank")
+        problem = _charge_problem(p, fluid, amb.pressure)
+        if problem:
+            raise ModelError("gas-tank.gauge_pressure", problem, "use a self-pressurising-tank for a liquefied "
+                             "gas, or raise the temperature or lower the pressure")
+        st = new_state(fluid)
+        st.update(_inputs("PT"), p0, T0)
+        return (st.rhomass() * p.volume, T0)
+
+    @classmethod
+    def describe_mass(cls, p, amb):
+        return {"gas": cls.initial_state(p, amb)[0]}
+
+    # --- assembly ---------------------------------------------------------------
+    @classmethod
+    def build_volume(cls, p, i, ops, amb):
+        V = p.volume
+        m0, T0 = cls.initial_state(p, amb)
+        Tw = p.wall_temperature if p.wall_temperature > 0.0 else T0
+        hA = p.wall_heat_transfer_coefficient * p.wall_area
+        process = p.process
+        n = p.polytropic_exponent
+        m_floor = 1e-12 * m0
+
+        if p.equation_of_state == "ideal":
+            gas = lookup_gas(p.gas)
+            R, g = gas.gas_constant, gas.gamma
+            cv = R / (g - 1.0)
+
+            def state(s):
+                m = s[i] if s[i] > m_floor else m_floor
+                T = s[i + 1]
+                rho = m / V
+                return m, T, rho, rho * R * T, g, R
+
+            def temperature_rate(s, mdot):
+                m, T, rho, pg, _g, _R = state(s)
+                if process == "isothermal":
+                    return 0.0
+                if process == "polytropic":
+                    return -(n - 1.0) * T * mdot / m
+                return (-mdot * R * T + hA * (Tw - T)) / (m * cv)
+
+            def compressibility(s):
+                return 1.0
+            outlet_state = state
+            events_extra: tuple[EventSpec, ...] = ()
+        else:
+            import CoolProp
+
+            fluid = resolve_fluid(p.gas, where="gas", device="the real-gas tank")
+            st = new_state(fluid)
+            st.specify_phase(CoolProp.iphase_gas)      # evaluate the gas branch at (rho, T): no flash
+            DT = CoolProp.DmassT_INPUTS
+            iU, iD, iT = CoolProp.iUmass, CoolProp.iDmass, CoolProp.iT
+            Rs = UNIVERSAL_GAS_CONSTANT / st.molar_mass()
+            t_min = st.Tmin()
+            sat = new_state(fluid)
+            pc, Tc = sat.p_critical(), sat.T_critical()
+            PQ = CoolProp.PQ_INPUTS
+
+            expander = new_state(fluid)
+
+            def state(s):
+                m = s[i] if s[i] > m_floor else m_floor
+                T = s[i + 1] if s[i + 1] > t_min else t_min
+                rho = m / V
+                st.update(DT, rho, T)
+                pg = st.p()
+                return m, T, rho, pg, rho * st.speed_sound() ** 2 / pg, pg / (rho * T)
+
+            def outlet_state(s):
+                m, T, rho, pg, kappa, R_eff = state(s)
+                return m, T, rho, pg, expansion_exponent(expander, pg, rho, st.smass(), kappa), R_eff
+
+            def temperature_rate(s, mdot):
+                if process == "isothermal":
+                    return 0.0
+                m, T, rho, pg, _k, _R = state(s)
+                h, u, cv = st.hmass(), st.umass(), st.cvmass()
+                dudrho = st.first_partial_deriv(iU, iD, iT)
+                return (-mdot * (h - u - rho * dudrho) + hA * (Tw - T)) / (m * cv)
+
+            def compressibility(s):
+                m, T, rho, pg, _k, _R = state(s)
+                return pg / (rho * Rs * T)
+
+            def dew_margin(t, s, drive):
+                m, T, rho, pg, _k, _R = state(s)
+                if pg >= pc:
+                    return s[i + 1] - Tc
+                sat.update(PQ, pg, 1.0)
+                return s[i + 1] - sat.T()
+
+            events_extra = (EventSpec("dew point reached (condensation: outside the gas-tank model)", dew_margin,
+                                      -1.0, ("gas", "sealed"), None, needs_drive=False),)
+
+        def mass(s):
+            return s[i]
+
+        def outlet(s, mode):
+            m, T, rho, pg, g_eff, R_eff = outlet_state(s)
+            return (pg, T, rho, g_eff, R_eff, -1.0 if mode == 1 else 0.0, 0.0)
+
+        def derivs(s, mode, mdot):
+            return (-mdot, temperature_rate(s, mdot))
+
+        def signals(s, mode):
+            m, T, rho, pg, g_eff, R_eff = state(s)
+            n_exp = outlet_state(s)[4]
+            return {"pressure": pg, "temperature": s[i + 1], "gas_mass": s[i], "density": rho,
+                    "isentropic_exponent": g_eff, "expansion_exponent": n_exp,
+                    "compressibility_factor": compressibility(s),
+                    "heat_flow": hA * (Tw - s[i + 1])}
+
+        events = (EventSpec("gas exhausted", lambda t, s, drive: drive, -1.0, ("gas",), "sealed"),) + events_extra
+        return VolumeFns(mass=mass, outlet=outlet, derivs=derivs, signals=signals, events=events)
+
+
+def _inputs(name: str) -> int:
+    import CoolProp
+
+    return {"PT": CoolProp.PT_INPUTS}[name]
+
+
+#: 1 atm, the ambient assumed when parameters are checked before the environment is known.
+_STANDARD_PRESSURE = 101325.0
+
+
+def _charge_problem(p, fluid: str, p_amb: float) -> str:
+    """Why the charge state is not a gas (empty when it is): below the dew point, or liquid-like."""
+    import CoolProp
+
+    p0, T0 = p_amb + p.gauge_pressure, p.temperature
+    st = new_state(fluid)
+    if T0 >= st.T_critical():
+        return ""
+    where = f"at {p0 / 1e5:.4g} bar and {T0:.5g} K {fluid}"
+    if p0 >= st.p_critical():
+        return f"{where} is a dense liquid-like fluid (below its critical temperature, {st.T_critical():.5g} K)"
+    st.update(CoolProp.QT_INPUTS, 1.0, T0)
+    if p0 >= st.p():
+        return f"{where} is at or above its saturation pressure ({st.p() / 1e5:.4g} bar): it is a liquid, not a gas"
+    return ""
