@@ -314,6 +314,19 @@ class ComponentKind(_Declared):
     states: ClassVar[tuple[StateVar, ...]] = ()
     modes: ClassVar[tuple[Mode, ...]] = ()
     stores_pressure: ClassVar[bool] = False
+    #: SI units of the signals this kind reports (signal key -> unit), for results, CSV headers and triggers.
+    signal_units: ClassVar[dict[str, str]] = {}
+    #: SI units of the entries :meth:`summarize` returns.
+    summary_units: ClassVar[dict[str, str]] = {}
+
+    @classmethod
+    def summarize(cls, name: str, p: Any, result: Any) -> dict[str, float]:
+        """Headline numbers of this component after a run (e.g. a parachute's deployment speed), SI.
+
+        Called once per finished run with the component's name, its parameters and the FlightResult; the
+        entries appear in the result's summary as ``NAME.KEY``.
+        """
+        return {}
 
     @classmethod
     def cautions(cls, p: Any) -> list[str]:

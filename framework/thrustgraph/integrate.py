@@ -132,10 +132,11 @@ def available_signals(system: System) -> dict[str, str]:
     """Signals a trigger can watch on this vehicle: name -> SI unit."""
     bal = Balance(system)
     snap = bal.evaluate(0.0, np.array(system.y0))
+    declared = {f"{n}.{key}": u for n, cls in system.parsed.kinds.items() for key, u in cls.signal_units.items()}
     out = dict(KINEMATIC_SIGNALS)
     for k, v in snap.items():
         if "." in k and isinstance(v, float) and not k.startswith("audit."):
-            out[k] = FlightResult.unit_of(k)
+            out[k] = declared.get(k) or FlightResult.unit_of(k)
     return out
 
 
@@ -201,6 +202,7 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
         sysm = state.system
         bal = state.bal
         bal.set_phase(ph.modes, ph.kin, ph.descending)
+        bal._y_start = y
         fns, actions = _events(sysm, bal, ph, x0, triggers, pending, t)
         # Component events and triggers already past their zero when a segment starts fire at once.
         stop = False
@@ -230,15 +232,17 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
             events.append(Event(t, "propulsion spent", "vehicle", "nothing left to push the stand"))
             segs.message = "propulsion spent on the stand"
             break
-        if not propulsive and ph.kin == Kinematics.TRACK and float(np.dot(y[3:6], u)) == 0.0 and not pending:
+        if not propulsive and ph.kin == Kinematics.TRACK and float(np.dot(y[3:6], u)) == 0.0 and not pending \
+                and not any(bal.rhs(t, y)[3:6]):
             events.append(Event(t, "at rest", "vehicle", "nothing pushes and the vehicle is not moving"))
             segs.message = "at rest on the track"
             break
         if not propulsive and ph.kin == Kinematics.GUIDE and float(np.dot(y[3:6], u)) <= 0.0 and \
                 float(np.dot(y[:3] - x0, u)) <= 1e-12 and not pending and not triggers:
             events.append(Event(t, "no lift-off", "vehicle",
-                                "the thrust never exceeded the weight component along the guide"))
-            segs.status, segs.message = 2, "the vehicle did not leave the launch guide: thrust never exceeded its weight"
+                                "the thrust never exceeded the weight component (and friction) along the guide"))
+            segs.status, segs.message = 2, ("the vehicle did not leave the launch guide: thrust never exceeded its "
+                                            "weight and the guide friction")
             break
         try:
             sol = solve_ivp(bal.rhs, (t, t_end), y, method=method, rtol=rtol, atol=state.atol, events=fns,
@@ -287,8 +291,17 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
             elif kind == "rest":
                 events.append(Event(t, "came to rest", "vehicle", f"distance {float(np.dot(y[:3] - x0, u)):.4g} m"))
                 y[3:6] = 0.0
-                stop = True
-                segs.message = "came to rest on the track"
+                # it stays at rest only if friction holds it and nothing pushes
+                bal.set_phase(ph.modes, ph.kin, ph.descending)
+                d = bal.rhs(t, y)
+                held = d[3] == 0.0 and d[4] == 0.0 and d[5] == 0.0
+                if held and _label(sysm, ph) in _NOT_PROPULSIVE and not pending and not triggers:
+                    stop = True
+                    segs.message = "came to rest on the track"
+            elif kind == "foot":
+                events.append(Event(t, "back at the guide foot", "vehicle", "slid back down the guide"))
+                y[:3] = x0
+                y[3:6] = 0.0
             elif kind == "impact":
                 events.append(Event(t, "ground impact", "vehicle", f"speed {float(np.linalg.norm(y[3:6])):.4g} m/s"))
                 stop = True
@@ -301,6 +314,9 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
             break
     else:
         events.append(Event(t, "end time", "vehicle", "the run reached run.end_time"))
+    if not segs.segments:  # ended before the first segment: the result is the starting instant
+        from types import SimpleNamespace
+        segs.segments.append((ph.copy(), SimpleNamespace(t=np.array([t]), y=y[:, None].copy(), sol=None), state.bal))
     segs.balance = state.bal
     return segs
 
@@ -420,13 +436,27 @@ def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: 
         guide.direction = 1.0
         fns.append(guide)
         actions.append(("guide", "guide exit", "vehicle", None))
+    if ph.kin == Kinematics.GUIDE:
+        # sliding back down the guide stops at its foot (1 nm below it, so a vehicle resting there does not fire)
+        def foot(t, y):
+            return (y[0] - x0[0]) * u[0] + (y[1] - x0[1]) * u[1] + (y[2] - x0[2]) * u[2] + 1e-9
+        foot.terminal = True
+        foot.direction = -1.0
+        fns.append(foot)
+        actions.append(("foot", "back at the guide foot", "vehicle", None))
     if ph.kin == Kinematics.TRACK:
-        def rest(t, y):
-            return y[3] * u[0] + y[4] * u[1] + y[5] * u[2]
-        rest.terminal = True
-        rest.direction = -1.0
-        fns.append(rest)
-        actions.append(("rest", "came to rest", "vehicle", None))
+        y_now = getattr(bal, "_y_start", None)
+        v_along = 0.0 if y_now is None else float(np.dot(y_now[3:6], u))
+        if v_along == 0.0 and y_now is not None:
+            d = bal.rhs(t_now, y_now)
+            v_along = d[3] * u[0] + d[4] * u[1] + d[5] * u[2]   # the way it is about to move
+        if v_along != 0.0:
+            def rest(t, y):
+                return y[3] * u[0] + y[4] * u[1] + y[5] * u[2]
+            rest.terminal = True
+            rest.direction = -1.0 if v_along > 0.0 else 1.0
+            fns.append(rest)
+            actions.append(("rest", "came to rest", "vehicle", None))
     if ph.kin == Kinematics.FREE and system.gravity(float(x0[2])) > 0.0:
         if not ph.descending:
             def apogee(t, y):
@@ -540,7 +570,14 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
     res = FlightResult(t=t, y=y, state_names=tuple(names), signals=signals, ledger=ledger, phases=phases,
                        events=segs.events, audit=audit, success=segs.status == 0, status=segs.status,
                        message=segs.message, nfev=segs.nfev)
+    for n, cls in system.parsed.kinds.items():
+        for key, u in cls.signal_units.items():
+            res.units[f"{n}.{key}"] = u
     res.summary = _summary(res, system, segs.dropped_mass)
+    for n, cls in system.parsed.kinds.items():
+        for key, value in cls.summarize(n, system.parsed.params[n], res).items():
+            res.summary[f"{n}.{key}"] = float(value)
+            res.units[f"{n}.{key}"] = cls.summary_units.get(key, "")
     res.cautions = system.parsed.cautions()
     res.provenance = provenance(system.parsed)
     return res

@@ -111,6 +111,7 @@ class FlightResult:
     cautions : safety cautions of the model
     provenance : tool and plugin versions, model hash
     dropped : stage name -> the flight of a stage dropped at a separation, flown on as its own vehicle
+    units : SI units of the signals and summary entries that component kinds declare
     """
 
     t: np.ndarray
@@ -129,6 +130,7 @@ class FlightResult:
     cautions: list[str] = field(default_factory=list)
     provenance: dict[str, Any] = field(default_factory=dict)
     dropped: dict[str, "FlightResult"] = field(default_factory=dict)
+    units: dict[str, str] = field(default_factory=dict)
 
     # -- access ------------------------------------------------------------
     @staticmethod
@@ -139,6 +141,10 @@ class FlightResult:
         suffix = name.rsplit(".", 1)[-1]
         return _SUFFIX_UNITS.get(suffix, "")
 
+    def unit(self, name: str) -> str:
+        """SI unit of a signal or summary entry of this result (declared by its kind, else by its name)."""
+        return self.units.get(name) or SUMMARY_UNITS.get(name) or self.unit_of(name)
+
     def signal(self, name: str) -> np.ndarray:
         """A signal as an SI array; raises KeyError listing the valid names."""
         if name not in self.signals:
@@ -147,7 +153,7 @@ class FlightResult:
 
     def quantity(self, name: str):
         """A signal as a pint quantity array."""
-        return Q_(self.signal(name), self.unit_of(name))
+        return Q_(self.signal(name), self.unit(name))
 
     def state(self, name: str) -> np.ndarray:
         """One row of ``y`` by state name (e.g. ``bottle.liquid_mass``)."""
@@ -165,7 +171,7 @@ class FlightResult:
         cols = [("time", "s", self.t)]
         for name in sorted(self.signals):
             arr = self.signals[name]
-            unit = self.unit_of(name)
+            unit = self.unit(name)
             if arr.ndim == 1:
                 cols.append((name, unit, arr))
             else:
@@ -197,7 +203,8 @@ class FlightResult:
     def to_json(self) -> str:
         """JSON text: summary, phases, events, audit and provenance (no time series)."""
         doc = {
-            "summary": {k: {"value": v, "unit": SUMMARY_UNITS.get(k, "")} for k, v in self.summary.items()},
+            "summary": {k: {"value": v, "unit": self.unit(k) if k in self.units or k in SUMMARY_UNITS else ""}
+                        for k, v in self.summary.items()},
             "phases": [{"name": p.name, "start_s": p.t_start, "end_s": p.t_end} for p in self.phases],
             "events": [{"t_s": e.t, "name": e.name, "component": e.component, "detail": e.detail} for e in self.events],
             "audit": {"mass_residual_kg": self.audit.mass_residual, "mass_relative": self.audit.mass_relative,

@@ -11,6 +11,10 @@ Examples
 413685.4...
 >>> round(to_si("2 L", "m^3"), 12)
 0.002
+>>> to_si("1", "deg", where="launch.elevation")
+Traceback (most recent call last):
+...
+thrustgraph.errors.ModelError: launch.elevation: expected an angle with its unit, got '1'. Fix: write the unit, e.g. "45 deg" (a bare number would be read as radians).
 >>> to_si("5 kg", "Pa", where="components.bottle.gauge_pressure")
 Traceback (most recent call last):
 ...
@@ -60,10 +64,21 @@ def describe_dimension(unit: str) -> tuple[str, str]:
     >>> describe_dimension("kPa")
     ('pressure', '"5 bar" or "72 psi"')
     """
+    if _is_angle(unit):
+        return ("angle", '"45 deg"')
     dim = str(Q_(1.0, unit).dimensionality) if unit else ""
     if dim == "dimensionless":
         dim = ""
     return _EXAMPLES.get(dim, (f"quantity of dimension {dim}", f'"1 {unit}"'))
+
+
+def _an(name: str) -> str:
+    return ("an " if name[:1] in "aeiou" else "a ") + name
+
+
+def _is_angle(unit: str) -> bool:
+    """Angles are dimensionless in pint; they are told apart by their unit."""
+    return bool(unit) and str(Q_(1.0, unit).units) in ("degree", "radian", "arcminute", "arcsecond", "turn")
 
 
 def si_unit(unit: str) -> str:
@@ -98,10 +113,10 @@ def to_si(value: Any, unit: str, *, where: str = "") -> float:
     """
     name, example = describe_dimension(unit)
     if isinstance(value, bool):
-        raise ModelError(where, f"expected a {name}, got the flag {value!r}", f"write a value such as {example}")
+        raise ModelError(where, f"expected {_an(name)}, got the flag {value!r}", f"write a value such as {example}")
     if isinstance(value, (int, float)):
         if unit:
-            raise ModelError(where, f"expected a {name} with a unit, got the bare number {value!r}",
+            raise ModelError(where, f"expected {_an(name)} with a unit, got the bare number {value!r}",
                              f"write the value with its unit, e.g. {example}")
         return float(value)
     if isinstance(value, str):
@@ -113,15 +128,18 @@ def to_si(value: Any, unit: str, *, where: str = "") -> float:
     elif isinstance(value, pint.Quantity):
         q = value
     else:
-        raise ModelError(where, f"expected a {name}, got {type(value).__name__} {value!r}",
+        raise ModelError(where, f"expected {_an(name)}, got {type(value).__name__} {value!r}",
                          f"write a value such as {example}")
     if not isinstance(q, pint.Quantity):  # a bare number written as text
         q = Q_(float(q), "")
+    if _is_angle(unit) and q.unitless:
+        raise ModelError(where, f"expected an angle with its unit, got {value!r}",
+                         'write the unit, e.g. "45 deg" (a bare number would be read as radians)')
     target = Q_(1.0, unit) if unit else Q_(1.0, "")
     if q.dimensionality != target.dimensionality:
         found = str(q.dimensionality)
         found = "no unit" if found == "dimensionless" else found
-        expected = f"a {name} (unit like {unit})" if unit else "a plain number"
+        expected = f"{_an(name)} (unit like {unit})" if unit else "a plain number"
         raise ModelError(where, f"expected {expected}, got {value!r} ({found})",
                          f"write the value with a unit of {name}, e.g. {example}")
     mag = float(q.to_base_units().magnitude)

@@ -124,6 +124,10 @@ class RecoveryDevice(ComponentKind):
 
     kind = "recovery-device"
     role = "body"
+    signal_units = {"drag_area": "m^2", "drag_area_ratio": "", "deployed": "", "delay_timer": "s"}
+    summary_units = {"deployed": "", "deployment_time": "s", "deployment_altitude": "m", "deployment_speed": "m/s",
+                     "deployment_airspeed": "m/s", "peak_opening_load": "N", "peak_opening_load_time": "s",
+                     "fully_open_time": "s"}
     summary = ("parachute or streamer: own mass and drag area, deploys at apogee, after a delay or at an altitude, "
                "opens over an opening time")
     parameters = (
@@ -153,6 +157,13 @@ class RecoveryDevice(ComponentKind):
              Mode("opening", "opening", propulsive=False), Mode("open", "open", propulsive=False))
 
     # --- validation ----------------------------------------------------------
+    @classmethod
+    def summarize(cls, name, p, result):
+        """Deployment time, altitude, speed and airspeed, peak opening load (see :func:`recovery_summary`)."""
+        from .summary import recovery_summary
+
+        return recovery_summary(result, [name]).get(name, {})
+
     @classmethod
     def check(cls, p: Any, where: str) -> None:
         if p.drag_area > 0.0 and (p.drag_coefficient > 0.0 or p.diameter > 0.0):

@@ -23,7 +23,7 @@ _DISPLAY = {
     "propellant_expelled": ("mass expelled", "g"), "peak_thrust": ("peak thrust", "N"),
     "peak_acceleration": ("peak acceleration", "m/s^2"), "max_speed": ("max speed", "m/s"),
     "guide_exit_speed": ("guide exit speed", "m/s"), "apogee": ("apogee", "m"), "range": ("range", "m"),
-    "downrange": ("downrange", "m"), "drift": ("drift across the launch azimuth", "m"),
+    "downrange": ("downrange", "m"), "drift": ("drift (across azimuth)", "m"),
     "total_impulse": ("total impulse", "N*s"), "specific_impulse": ("specific impulse", "s"),
     "impact_speed": ("impact speed", "m/s"), "peak_vessel_pressure": ("peak vessel pressure (abs)", "bar"),
     "dropped_mass": ("mass dropped at separations", "g"),
@@ -53,6 +53,10 @@ def format_summary(r: FlightResult, name: str) -> str:
         q = Q_(r.summary[key], SUMMARY_UNITS[key]).to(unit)
         extra = f"   ({r.summary[key] / 9.80665:.3g} g)" if key == "peak_acceleration" else ""
         lines.append(f"  {label:<28s} {q.magnitude:12.5g} {unit}{extra}")
+    for key in r.summary:
+        if "." in key:  # entries of a component kind (e.g. a parachute's deployment speed)
+            unit = r.unit(key)
+            lines.append(f"  {key:<28s} {r.summary[key]:12.5g} {unit}")
     lines.append("")
     lines.append("Events")
     for e in r.events:
