@@ -369,3 +369,39 @@ def test_model_text_of_a_run_is_the_model_as_flown():
     import hashlib
 
     assert r.provenance["model_sha256"] == hashlib.sha256(dumps_model(m).encode()).hexdigest()
+
+
+# ---------------------------------------------------------------------------
+# the docs keep up with the command line and the API
+# ---------------------------------------------------------------------------
+
+DOCS = Path(__file__).resolve().parent.parent / "docs"
+OURS = ("run", "check", "kinds", "new", "export", "graph", "plot", "report")
+
+
+def test_cli_doc_describes_every_command_and_option():
+    text = (DOCS / "cli.md").read_text()
+    parser = build_parser()
+    sub = next(a for a in parser._actions if a.dest == "command")
+    for name, p in sub.choices.items():
+        assert f"`thrustgraph {name}`" in text, f"docs/cli.md has no section for 'thrustgraph {name}'"
+        if name not in OURS:
+            continue
+        for action in p._actions:
+            for opt in action.option_strings:
+                if opt.startswith("--") and opt != "--help":
+                    assert f"`{opt}" in text, f"docs/cli.md does not describe {name} {opt}"
+
+
+def test_api_doc_examples_run(tmp_path):
+    import doctest
+
+    old = os.getcwd()
+    os.chdir(tmp_path)
+    try:
+        result = doctest.testfile(str(DOCS / "api.md"), module_relative=False, optionflags=doctest.ELLIPSIS,
+                                  verbose=False, report=True)
+    finally:
+        os.chdir(old)
+    assert result.attempted > 40
+    assert result.failed == 0, "an example in docs/api.md no longer runs as written (see the output above)"

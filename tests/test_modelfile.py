@@ -355,3 +355,11 @@ def test_atomic_write_leaves_nothing_when_the_rename_fails(tmp_path):
         atomic_write(target, "data")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["out.csv"]
     assert target.is_dir() and not any(target.iterdir())
+
+
+def test_model_file_doc_describes_every_key():
+    text = (Path(__file__).resolve().parent.parent / "docs" / "model-file.md").read_text()
+    for key in TOP_LEVEL_KEYS:
+        assert f"`{key}`" in text or f"[{key}" in text, f"docs/model-file.md does not describe the key {key!r}"
+    for spec in LAUNCH_SPECS + RUN_SPECS:
+        assert f"`{spec.name}`" in text, f"docs/model-file.md does not describe the setting {spec.name!r}"

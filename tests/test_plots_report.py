@@ -19,7 +19,7 @@ import pytest
 
 from conftest import model_from_toml
 from thrustgraph import fly, integrate, load_model
-from thrustgraph.modelfile import check_model, default_model_path, dumps_model
+from thrustgraph.modelfile import bundled_models, check_model, default_model_path, dumps_model
 from thrustgraph.plots import PLOT_NAMES, figure, figures, graph_figure, powered_window, render, save_plots
 from thrustgraph.report import ledger_audit, render_report, write_report
 
@@ -242,3 +242,18 @@ def test_report_renders_in_headless_chromium(bottle, page, tmp_path):
     assert dom.count('<img alt="') == len(figures(r)) + 1
     assert f"{r.summary['apogee']:.5g}" in dom and r.provenance["model_sha256"] in dom
     assert "ground impact" in dom
+
+
+@pytest.mark.parametrize("stem", sorted(bundled_models()))
+def test_every_bundled_model_checks_draws_and_plots(stem):
+    from thrustgraph.commands.check import format_check
+
+    parsed = check_model(load_model(bundled_models()[stem]))
+    text = format_check(parsed)
+    assert "The model is valid" in text and "->" in text and "total" in text
+    assert render(graph_figure(parsed), "png", dpi=40).startswith(PNG)
+    r = integrate(parsed)
+    figs = figures(r)
+    assert {"thrust", "mass", "motion", "trajectory", "ledger"} <= set(figs)
+    assert ("pressure" in figs) == any(k.endswith(".pressure") for k in r.signals)
+    assert non_white_fraction(render(figs["ledger"], "png", dpi=40)) > 0.05

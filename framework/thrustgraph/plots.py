@@ -403,6 +403,7 @@ _ROLE_STYLE = {  # marker, colour, description
     "jet": ("D", "#e58a8a", "prescribed jet"),
     "boundary": ("o", "#d9d9d9", "surroundings"),
     "body": ("h", "#9fd39a", "body (mass, drag)"),
+    "source": ("p", "#c9b3e6", "source (inlet, hose feed)"),
 }
 
 
@@ -429,25 +430,30 @@ def graph_figure(parsed: Any) -> Figure:
     for k, gen in enumerate(nx.topological_generations(sub)):
         for n in gen:
             layer[n] = k
+    # The surroundings go last where flow ends in them, first where flow only starts from them (an inlet).
     boundary = [n for n in flow_nodes if role[n] == "boundary"]
     last = max([layer[n] for n in flow_nodes if role[n] != "boundary"], default=0) + 1
     for n in boundary:
-        layer[n] = last
+        if sub.in_degree(n) > 0 or sub.out_degree(n) == 0:
+            layer[n] = last
     pos: dict[str, tuple[float, float]] = {}
     columns: dict[int, list[str]] = {}
     order = list(parsed.model.components)
     for n in sorted(flow_nodes, key=order.index):
         columns.setdefault(layer[n], []).append(n)
-    for x, names in columns.items():
+    for x, names in columns.items():  # each column centred on the same line
         for k, n in enumerate(names):
-            pos[n] = (float(x), -float(k) * 1.4)
-    bodies = [n for n in g.nodes if role[n] == "body"]
+            pos[n] = (float(x), -(k - (len(names) - 1) / 2.0) * 1.6)
+    # Bodies sit inside the vehicle, below its flow paths, in the columns left of the surroundings.
+    bodies = [n for n in sorted(g.nodes, key=order.index) if role[n] == "body"]
     low = min([p[1] for p in pos.values()], default=0.0) - 1.6
+    per_row = max(1, last)
     for k, n in enumerate(bodies):
-        pos[n] = (float(k), low)
+        pos[n] = (float(k % per_row), low - 1.6 * (k // per_row))
 
     width = max(6.0, 2.4 * (last + 1))
-    height = max(3.5, 1.4 * (max((len(v) for v in columns.values()), default=1) + (1 if bodies else 0)) + 1.5)
+    rows = max((len(v) for v in columns.values()), default=1) + -(-len(bodies) // per_row)
+    height = max(3.5, 1.4 * rows + 1.5)
     with matplotlib.rc_context(_RC):
         fig, ax = _new(1, 1, (width, height))
         a = ax[0, 0]
@@ -457,14 +463,15 @@ def graph_figure(parsed: Any) -> Figure:
         if inside:
             xs = [pos[n][0] for n in inside]
             ys = [pos[n][1] for n in inside]
-            box = FancyBboxPatch((min(xs) - 0.45, min(ys) - 0.75), max(xs) - min(xs) + 0.9,
+            box = FancyBboxPatch((min(xs) - 0.45, min(ys) - 0.75), max(xs) - min(xs) + 1.05,
                                  max(ys) - min(ys) + 1.25, boxstyle="round,pad=0.05", fill=False, ls="--",
                                  ec="#555555", lw=1.0)
             a.add_patch(box)
             a.text(min(xs) - 0.4, max(ys) + 0.42, "vehicle (control volume)", fontsize=8, color="#555555")
         nx.draw_networkx_edges(g, pos, ax=a, arrows=True, arrowstyle="-|>", arrowsize=16, width=1.4,
                                edge_color="#333333", node_size=1400)
-        for r, (marker, colour, _) in _ROLE_STYLE.items():
+        styles = {**_ROLE_STYLE, **{r: ("p", "#c9b3e6", r) for r in set(role.values()) - set(_ROLE_STYLE)}}
+        for r, (marker, colour, _) in styles.items():
             nodes = [n for n in g.nodes if role[n] == r]
             if nodes:
                 nx.draw_networkx_nodes(g, pos, nodelist=nodes, ax=a, node_shape=marker, node_color=colour,
@@ -472,7 +479,7 @@ def graph_figure(parsed: Any) -> Figure:
         for n, (x, y) in pos.items():
             a.text(x, y - 0.48, f"{n}\n{parsed.kinds[n].kind}", ha="center", va="top", fontsize=8)
         handles = [matplotlib.lines.Line2D([], [], marker=m, ls="", color=c, markeredgecolor="#333333", ms=9,
-                                           label=d) for r, (m, c, d) in _ROLE_STYLE.items() if r in role.values()]
+                                           label=d) for r, (m, c, d) in styles.items() if r in role.values()]
         a.legend(handles=handles, loc="upper right", frameon=False, fontsize=8)
         xs = [p[0] for p in pos.values()] or [0.0]
         ys = [p[1] for p in pos.values()] or [0.0]

@@ -28,12 +28,16 @@ def describe_graph(parsed: ParsedModel) -> list[str]:
     g = parsed.graph
     kinds = parsed.kinds
     lines = []
-    sources = [n for n in parsed.model.components if kinds[n].role in ("volume", "jet")]
-    ends = [n for n in parsed.model.components if kinds[n].role == "boundary"]
-    for s in sources:
+    names = list(parsed.model.components)
+    starts = [n for n in names if kinds[n].role != "body" and g.in_degree(n) == 0 and g.out_degree(n) > 0]
+    ends = [n for n in names if kinds[n].role != "body" and g.out_degree(n) == 0 and g.in_degree(n) > 0]
+    for s in starts:
         for e in ends:
             for path in nx.all_simple_paths(g, s, e):
-                lines.append("  " + " -> ".join(path) + "   (the last step crosses the control surface)")
+                crossing = [f"{a} -> {b}" for a, b in zip(path, path[1:])
+                            if (kinds[a].role == "boundary") != (kinds[b].role == "boundary")]
+                note = f"   (crosses the control surface: {', '.join(crossing)})" if crossing else ""
+                lines.append("  " + " -> ".join(path) + note)
     for n in parsed.model.components:
         if kinds[n].role == "body":
             lines.append(f"  {n}   (body: carries mass and external forces, no flow)")

@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import difflib
 
+from ..component import ROLES
 from ..errors import ModelError
 from ..model import LAUNCH_SPECS, RUN_SPECS
 from ..plugins import component_kinds, environment_kinds, get_plugin_manager, plugin_versions
@@ -57,8 +58,8 @@ def main(args: argparse.Namespace) -> int:
             raise ModelError(f"kinds {n}", "no such kind is installed", hint)
     wanted = set(args.names) if args.names else None
     lines = []
-    roles = ("body", "volume", "flow", "jet", "boundary")
     comps = [c for c in kinds.values() if wanted is None or c.kind in wanted]
+    roles = list(ROLES) + sorted({c.role for c in comps} - set(ROLES))
     if comps:
         lines.append("Device kinds (write them as kind = \"...\" under [components.NAME])")
         for role in roles:
