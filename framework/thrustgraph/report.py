@@ -94,6 +94,17 @@ def _num(x: float, digits: int = 6) -> str:
     return f"{x:.{digits}g}"
 
 
+def _unit_text(unit: str) -> str:
+    """A unit as people write it.
+
+    >>> _unit_text("m/s^2"), _unit_text("N*s"), _unit_text("")
+    ('m/s²', 'N s', '-')
+    """
+    if not unit:
+        return "-"
+    return unit.replace("**", "^").replace("^2", "²").replace("^3", "³").replace("*", " ")
+
+
 def _table(head: Iterable[str], rows: Iterable[Iterable[Any]], numeric: Iterable[int] = ()) -> str:
     numeric = set(numeric)
     out = ["<table><thead><tr>", *(f"<th>{_e(h)}</th>" for h in head), "</tr></thead><tbody>"]
@@ -206,7 +217,7 @@ def render_report(result: FlightResult, model: Model, *, parsed: Any = None, plo
         label, unit = SUMMARY_DISPLAY.get(key, (key.replace("_", " "), SUMMARY_UNITS.get(key, "")))
         si = SUMMARY_UNITS.get(key, "")
         shown = Q_(value, si).to(unit).magnitude if si and unit else value
-        rows.append((label, _num(shown, 5), unit.replace("**", "^") or "-", _num(value, 9), si or "-"))
+        rows.append((label, _num(shown, 5), _unit_text(unit), _num(value, 9), _unit_text(si)))
     parts.append('<section id="summary"><h2>Summary</h2>')
     parts.append(_table(("quantity", "value", "unit", "SI value", "SI unit"), rows, numeric=(1, 3)))
     parts.append("</section>")
