@@ -104,6 +104,14 @@ class Balance:
         self._follow = sysm.launch.attitude == "follow-wind"
         self._vmin = max(sysm.launch.min_follow_speed, 1e-9)
         self._x0 = (sysm.y0[0], sysm.y0[1], sysm.y0[2])
+        # Runtime tables, so the right-hand side does no attribute look-ups it can avoid.
+        self._mass_fns = [vf.mass for _, vf, _ in self._vols] + [jf.mass for _, jf, _ in self._jets]
+        self._force_fns = [(k, bf.force_state is not None, bf.force_state or bf.force)
+                           for k, (_, bf, _) in enumerate(self._bodies) if (bf.force_state or bf.force) is not None]
+        self._line_rt = [(info[0], info[1], ln.fl.flow, not ln.series,
+                          ln.vol.internal if info[0] else None,
+                          ln.src.inflow if not info[0] and getattr(ln.src, "inflow", None) else None, ln)
+                         for info, ln in zip(self._line_info, sysm.lines)]
         mount = sysm.launch.mount
         kin = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.FREE,
                "track": Kinematics.TRACK}[mount]
@@ -175,22 +183,15 @@ class Balance:
         M = sysm.fixed_mass
         vmode = self._vmode
         vols = self._vols
-        for k, (_, vf, _) in enumerate(vols):
-            M += vf.mass(s)
+        for fn in self._mass_fns:
+            M += fn(s)
         jmode = self._jmode
-        for _, jf, _ in self._jets:
-            M += jf.mass(s)
         air = (rho, pa, Ta, vrx, vry, vrz, sp)
         Dx = Dy = Dz = 0.0
         drags = [] if rec is not None else None
         bmode = self._bmode
-        for k, (_, bf, _) in enumerate(self._bodies):
-            if bf.force_state is not None:
-                f = bf.force_state(t, s, bmode[k], air)
-            elif bf.force is not None:
-                f = bf.force(air)
-            else:
-                continue
+        for k, stateful, fn in self._force_fns:
+            f = fn(t, s, bmode[k], air) if stateful else fn(air)
             Dx += f[0]; Dy += f[1]; Dz += f[2]
             if drags is not None:
                 drags.append((k, f))
@@ -213,16 +214,19 @@ class Balance:
 
         # Starting conditions of every line (vessel outlets without head, source supplies).
         vouts = [vf.outlet(s, vmode[k]) for k, (_, vf, _) in enumerate(vols)]
-        smode = self._smode
-        supplies = [sf.supply(t, s, smode[k], air) for k, (_, sf, _) in enumerate(self._srcs)]
+        if self._srcs:
+            smode = self._smode
+            supplies = [sf.supply(t, s, smode[k], air) for k, (_, sf, _) in enumerate(self._srcs)]
+        else:
+            supplies = ()
         outs = []
         coupled = False
-        for info in self._line_info:
+        aft = (ax_, ay_, az_)
+        for info, rt in zip(self._line_info, self._line_rt):
             isvol, idx, _, _, a_out, a_jet, odir = info
             o = vouts[idx] if isvol else supplies[idx][0]
-            dw = (ax_, ay_, az_) if a_out else to_world(odir, frame)
-            jd = (ax_, ay_, az_) if a_jet else to_world(self._lines[len(outs)].fl.jet_dir, frame)
-            outs.append((o, dw, jd))
+            outs.append((o, aft if a_out else to_world(odir, frame),
+                         aft if a_jet else to_world(rt[6].fl.jet_dir, frame)))
             if isvol and o[6] != 0.0:
                 coupled = True
 
@@ -359,38 +363,39 @@ class Balance:
         Qx = Qy = Qz = 0.0
         Ix = Iy = Iz = 0.0
         lmode = self._lmode
-        for j, ln in enumerate(self._lines):
+        vmode = self._vmode
+        for j, rt in enumerate(self._line_rt):
+            isvol, idx, flowfn, simple, internal, inflow, ln = rt
             o, dw, jd = outs[j]
-            info = self._line_info[j]
-            tmode, smodes = lmode[j]
+            tmode = lmode[j][0]
             mfix = -1.0
             vin = None
-            if info[0]:
+            if isvol:
                 if o[6] != 0.0:
-                    hp = o[6] * (fx * dw[0] + fy * dw[1] + fz * dw[2])
-                    up = (o[0] + hp, o[1], o[2], o[3], o[4], o[5], o[6])
+                    up = (o[0] + o[6] * (fx * dw[0] + fy * dw[1] + fz * dw[2]), o[1], o[2], o[3], o[4], o[5], o[6])
                 else:
                     up = o
             else:
-                sup = supplies[info[1]]
+                sup = supplies[idx]
                 mfix, vin = sup[1], (sup[2], sup[3], sup[4])
                 up = o
-            if not ln.series and mfix < 0.0:
-                fl = ln.fl.flow(up, pa, tmode)
+            if simple and mfix < 0.0:
+                fl = flowfn(up, pa, tmode)
                 rises = ()
                 p_in = up[0]
             else:
-                fl, p_in, rises = _solve_line(ln, up, pa, tmode, smodes, mfix)
+                fl, p_in, rises = _solve_line(ln, up, pa, tmode, lmode[j][1], mfix)
             mdot, ve, pe, Ae = fl[0], fl[1], fl[2], fl[3]
-            if vin is not None and ln.src.inflow is not None:
-                vin = ln.src.inflow(mdot, up)
+            if inflow is not None:
+                vin = inflow(mdot, up)
             pth = (pe - pa) * Ae
             T = mdot * ve + pth
             Tx -= T * jd[0]; Ty -= T * jd[1]; Tz -= T * jd[2]
-            Qx -= pth * jd[0]; Qy -= pth * jd[1]; Qz -= pth * jd[2]
+            if pth != 0.0:
+                Qx -= pth * jd[0]; Qy -= pth * jd[1]; Qz -= pth * jd[2]
             vint = 0.0
-            if info[0] and ln.vol.internal is not None:
-                vint, _moving = ln.vol.internal(s, self._vmode[info[1]], mdot)
+            if internal is not None:
+                vint, _moving = internal(s, vmode[idx], mdot)
                 # d/dt of the contents' momentum toward the outlet is -mdot * v_int (quasi-steady);
                 # it enters the balance with a minus sign.
                 Ix += mdot * vint * dw[0]; Iy += mdot * vint * dw[1]; Iz += mdot * vint * dw[2]
@@ -528,7 +533,8 @@ def _solve_line(ln, up, pa, tmode, smodes, mfix):
                                        f"({mfix:.4g} kg/s)")
         p = brentq(lambda p: ln.fl.flow(_with_pressure(cur, p), pa, tmode)[0] - mfix, lo, hi,
                    xtol=1e-12, rtol=1e-13)
-        return ln.fl.flow(_with_pressure(cur, p), pa, tmode), p, rises
+        # what enters leaves: the line passes exactly the flow its supply fixes (not the root's last digit)
+        return (mfix,) + tuple(ln.fl.flow(_with_pressure(cur, p), pa, tmode)[1:]), p, rises
 
     def gap(mdot):
         cur, _ = after(mdot)
