@@ -40,7 +40,8 @@ class ModelError(ThrustgraphError):
         self.fix = fix
         text = f"{where}: {what}" if where else what
         if fix:
-            text += f". Fix: {fix.rstrip('.')}."
+            fix = fix.rstrip(".")
+            text += f". Fix: {fix}" + ("" if fix.endswith(("?", "!")) else ".")
         super().__init__(text)
 
     def located(self, prefix: str) -> "ModelError":

@@ -119,7 +119,7 @@ class Choice(Spec):
         return value
 
     def describe(self) -> str:
-        return f"{self.doc} one of {'/'.join(self.options)}, default {self.default}"
+        return f"{self.doc}: one of {'/'.join(self.options)}, default {self.default}"
 
 
 @dataclass(frozen=True)
