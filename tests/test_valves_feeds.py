@@ -252,3 +252,17 @@ def test_froude_propulsive_efficiency_values():
     # section 7, formula; S: aerospaceanswers.com, probsee.com).
     for ratio, eta in ((1.5, 0.8000), (2.0, 0.6667), (3.0, 0.5000), (5.0, 0.3333)):
         assert froude_efficiency(ratio * 4.0, 4.0) == pytest.approx(eta, abs=5e-5)
+
+
+def test_inflow_momentum_is_counted_once_in_the_momentum_audit():
+    # Core fix shown here: the momentum of fluid entering through a source (ram drag, hose inflow) is part of the
+    # exhaust-momentum accumulator; it used to be counted a second time in the internal-momentum accumulator, which
+    # left a momentum residual of -integral(mdot v_in dt) and an internal-momentum defect of the same size.
+    m = boat(speed=3.0)
+    m.run["end_time"] = "2 s"
+    r = integrate(m)
+    inflow = np.trapezoid(np.linalg.norm(r.ledger[("intake", "inflow momentum")], axis=1), r.t)
+    assert inflow > 50.0                                   # what a double count would leave, kg m/s
+    assert np.linalg.norm(r.audit.momentum_residual) < 1e-9 * inflow
+    assert r.audit.internal_defect < 1e-9 * inflow
+    assert any("running pump" in c for c in r.cautions)

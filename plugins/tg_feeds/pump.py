@@ -50,7 +50,13 @@ from thrustgraph.component import ComponentKind, EventSpec, FlowFns, Mode
 from thrustgraph.errors import ModelError
 from thrustgraph.parameters import Choice, Number, Quantity, Table
 
-__all__ = ["Pump", "STANDARD_GRAVITY"]
+__all__ = ["Pump", "STANDARD_GRAVITY", "PUMP_CAUTIONS"]
+
+PUMP_CAUTIONS = [
+    "A running pump and its inlet can trap hands, hair, clothing and swimmers, and its jet can injure: guard "
+    "the inlet and the impeller, keep people out of the water near a running water jet, and stop the pump "
+    "before you reach the boat or the inlet.",
+]
 
 #: Exact by definition (3rd CGPM, 1901); pump head is quoted with it.
 STANDARD_GRAVITY = 9.80665
@@ -76,6 +82,10 @@ class Pump(ComponentKind):
         Quantity("run_time", "s", default="0 s", low=0.0, doc="stop the pump after this time; 0 s: never"),
     )
     modes = (Mode("running", "pump thrust"), Mode("stopped", "pump stopped", propulsive=False))
+
+    @classmethod
+    def cautions(cls, p):
+        return list(PUMP_CAUTIONS)
 
     @classmethod
     def check(cls, p, where):
