@@ -49,7 +49,7 @@ True
 >>> loads_model('format = "thrustgraph-model"\\nversion = 1\\n[lanch]\\n', source="demo.toml")
 Traceback (most recent call last):
 ...
-thrustgraph.errors.ModelError: demo.toml: lanch: unknown top-level key. Fix: did you mean 'launch'?.
+thrustgraph.errors.ModelError: demo.toml: lanch: unknown top-level key. Fix: did you mean 'launch'?
 """
 
 from __future__ import annotations
@@ -186,7 +186,7 @@ def check_model(model: Model, *, plugin_manager: Any = None) -> Any:
     >>> check_model(m)  # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...
-    thrustgraph.errors.ModelError: ...bottle-rocket.toml: components.bottle.volum: unknown parameter. Fix: did you mean 'volume'?.
+    thrustgraph.errors.ModelError: ...bottle-rocket.toml: components.bottle.volum: unknown parameter. Fix: did you mean 'volume'?
     """
     from .model import parse_model
 
