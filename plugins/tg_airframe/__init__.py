@@ -5,6 +5,9 @@ with A the reference (frontal) area of the given diameter. The drag
 coefficient is constant here; tables against Mach number or speed belong to
 a later family.
 
+The kind is ``vectorised``: given :data:`thrustgraph.arrayops.array_ops` it
+builds the same drag over numpy arrays of designs (one value per design).
+
 Examples
 --------
 >>> from thrustgraph.component import scalar_ops
@@ -39,11 +42,25 @@ class Airframe(ComponentKind):
     def describe_mass(cls, p, amb):
         return {"dry structure": p.dry_mass}
 
+    vectorised = True
+
     @classmethod
     def build_body(cls, p, ops):
+        if getattr(ops, "arrays", False):
+            return cls._build_body_arrays(p)
         k = 0.5 * p.drag_coefficient * math.pi * p.reference_diameter ** 2 / 4.0
         if k == 0.0:
             return BodyFns(mass=p.dry_mass, force=None)
+
+        def drag(air):
+            c = -k * air[0] * air[6]
+            return (c * air[3], c * air[4], c * air[5])
+        return BodyFns(mass=p.dry_mass, force=drag, force_name="drag")
+
+    @classmethod
+    def _build_body_arrays(cls, p):
+        """The drag over arrays of designs (``air`` holds arrays; parameters may be arrays)."""
+        k = 0.5 * p.drag_coefficient * math.pi * p.reference_diameter ** 2 / 4.0
 
         def drag(air):
             c = -k * air[0] * air[6]

@@ -4,6 +4,10 @@
 altitude, with an optional steady horizontal wind. ``vacuum`` has none of
 them. ``uniform-gravity`` pulls along -z with a constant g (0 for free space).
 
+All three are ``vectorised``: their callables return the parameter values, so
+with parameters that are numpy arrays (one value per design, as the ensemble
+assembles them) they return arrays unchanged.
+
 Examples
 --------
 >>> from thrustgraph.component import scalar_ops
@@ -26,6 +30,7 @@ class StillAir(EnvironmentKind):
     kind = "still-air"
     slot = "medium"
     summary = "air of constant density, pressure and temperature, with an optional steady wind"
+    vectorised = True
     parameters = (
         # 1976 US Standard Atmosphere sea-level values (NOAA/NASA/USAF, 1976, Table I).
         Quantity("density", "kg/m^3", default="1.225 kg/m^3", low=0.0, doc="air density"),
@@ -48,6 +53,7 @@ class Vacuum(EnvironmentKind):
     kind = "vacuum"
     slot = "medium"
     summary = "free space: no pressure, no density, no drag"
+    vectorised = True
     parameters = ()
 
     @classmethod
@@ -63,6 +69,7 @@ class UniformGravity(EnvironmentKind):
     kind = "uniform-gravity"
     slot = "gravity"
     summary = "constant gravity along -z"
+    vectorised = True
     parameters = (
         # Standard acceleration of gravity, exact by definition (3rd CGPM, 1901).
         Quantity("g", "m/s^2", default="9.80665 m/s^2", low=0.0, doc="acceleration of gravity"),

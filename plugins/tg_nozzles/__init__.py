@@ -22,6 +22,11 @@ area (an assumption: common practice, no source). The liquid relation assumes
 the nozzle is much narrower than the vessel bore (the column's velocity head
 is neglected). The flow never reverses: below ambient pressure nothing flows.
 
+The kind is ``vectorised``: given :data:`thrustgraph.arrayops.array_ops` it
+builds the same flow over numpy arrays of designs, evaluating the liquid,
+choked and unchoked branches for every design and picking one with
+``np.where`` (square roots and powers clipped so unused branches stay finite).
+
 Examples
 --------
 >>> from thrustgraph.component import scalar_ops
@@ -74,8 +79,12 @@ class ConvergentNozzle(ComponentKind):
         Vector("direction", default=(-1.0, 0.0, 0.0), doc="body-frame direction the jet leaves in"),
     )
 
+    vectorised = True
+
     @classmethod
     def build_flow(cls, p, ops):
+        if getattr(ops, "arrays", False):
+            return cls._build_flow_arrays(p)
         area = p.discharge_coefficient * math.pi * p.diameter ** 2 / 4.0
         sqrt = math.sqrt
         cache: dict[tuple[float, float], tuple[float, float, float, float]] = {}
@@ -113,6 +122,43 @@ class ConvergentNozzle(ComponentKind):
             Te = T * x
             mdot = (p_down / (R * Te)) * ve * area
             return (mdot, ve, p_down, area, 2.0 * area)
+
+        return FlowFns(flow=flow, jet_dir=p.direction)
+
+    @classmethod
+    def _build_flow_arrays(cls, p):
+        """The same nozzle over arrays of designs: ``up`` holds arrays (or floats), parameters arrays or floats."""
+        import numpy as np
+
+        area = p.discharge_coefficient * math.pi * p.diameter ** 2 / 4.0
+
+        def flow(up, p_down, mode=0):
+            pu, T, rho, gam, R, phase, head = up
+            liquid = phase > 0.5
+            dp = pu - p_down
+            wet = dp > 0.0
+            v_l = np.sqrt(2.0 * np.maximum(dp, 0.0) / rho)
+            open_ = (phase > -0.5) & wet
+            pus = np.where(open_, pu, p_down + 1.0)
+            crit = (2.0 / (gam + 1.0)) ** (gam / (gam - 1.0))
+            pr = p_down / pus
+            choked = pr <= crit
+            flux = np.sqrt(gam / R) * (2.0 / (gam + 1.0)) ** ((gam + 1.0) / (2.0 * (gam - 1.0)))
+            md_c = area * pus * flux / np.sqrt(T)
+            ve_c = np.sqrt(gam * R * (2.0 * T / (gam + 1.0)))
+            pe_c = crit * pus
+            x = np.maximum(pr, 1e-300) ** ((gam - 1.0) / gam)
+            ve_u = np.sqrt(2.0 * gam * R / (gam - 1.0) * T * np.maximum(1.0 - x, 0.0))
+            md_u = (p_down / (R * T * x)) * ve_u * area
+            md_g = np.where(choked, md_c, md_u)
+            ve_g = np.where(choked, ve_c, ve_u)
+            pe_g = np.where(choked, pe_c, p_down)
+            c_g = np.where(choked, (md_c * ve_c + pe_c * area) / pus, 2.0 * area)
+            mdot = np.where(liquid, rho * area * v_l, np.where(open_, md_g, 0.0))
+            ve = np.where(liquid, v_l, np.where(open_, ve_g, 0.0))
+            pe = np.where(liquid | ~open_, p_down, pe_g)
+            c = np.where(liquid, np.where(wet, 2.0 * area, 0.0), np.where(open_, c_g, 0.0))
+            return (mdot, ve, pe, area, c)
 
         return FlowFns(flow=flow, jet_dir=p.direction)
 

@@ -21,6 +21,10 @@ d the outlet direction. The balance solves it together with the acceleration.
 Modes: ``liquid`` (liquid thrust) -> ``gas`` (gas thrust) when the liquid is
 gone; either -> ``sealed`` when the pressure can no longer push anything out.
 
+The kind is ``vectorised``: given :data:`thrustgraph.arrayops.array_ops` it
+builds the same physics over numpy arrays of designs (modes as arrays of mode
+indices, branches as ``np.where``), for the vectorised ensemble.
+
 Assumptions and limits: quasi-steady outflow (the column's own acceleration is
 neglected), a prismatic column of the given bore, no vapour condensation or
 heat exchange beyond what the exponent n represents, no air inflow once the
@@ -136,8 +140,12 @@ class LiquidTank(ComponentKind):
         m_l, m_g = cls.initial_state(p, amb)
         return {"liquid": m_l, "gas": m_g}
 
+    vectorised = True
+
     @classmethod
     def build_volume(cls, p, i, ops, amb):
+        if getattr(ops, "arrays", False):
+            return cls._build_volume_arrays(p, i, amb)
         p0, vg0, mg0 = cls._gas0(p, amb)
         rho0 = mg0 / vg0 if vg0 > 0 else 1.0
         T0 = p.gas_temperature
@@ -196,6 +204,67 @@ class LiquidTank(ComponentKind):
         fns = VolumeFns(mass=mass, outlet=outlet, derivs=derivs, signals=signals,
                         outlet_dir=p.outlet_direction, internal=internal, events=events)
         return fns
+
+    @classmethod
+    def _build_volume_arrays(cls, p, i, amb):
+        """The same vessel over arrays of designs: ``s[k]`` and ``mode`` are arrays, parameters arrays or floats.
+
+        Mode indices: 0 liquid, 1 gas, 2 sealed. The power law is kept real
+        past empty (trial stages overshoot) by the same 1e-12 floor as the
+        scalar build.
+        """
+        import numpy as np
+
+        p0, vg0, mg0 = cls._gas0(p, amb)
+        vg0_safe = np.where(np.greater(vg0, 0.0), vg0, 1.0)
+        rho0 = np.where(np.greater(vg0, 0.0), mg0 / vg0_safe, 1.0)
+        T0 = p.gas_temperature
+        rho_l = p.liquid_density
+        V = p.volume
+        n = p.expansion_exponent
+        gam, R = p.gas_gamma, p.gas_constant
+        area = math.pi * p.bore ** 2 / 4.0
+        head_on = p.inertial_head
+
+        def gas(s):
+            m_l, m_g = s[i], s[i + 1]
+            vg = V - m_l / rho_l
+            rg = m_g / vg
+            r = np.maximum(rg / rho0, 1e-12)
+            rn = r ** n
+            return p0 * rn, T0 * rn / r, rg, vg
+
+        def mass(s):
+            return s[i] + s[i + 1]
+
+        def outlet(s, mode):
+            pg, Tg, rg, vg = gas(s)
+            liquid = mode == 0
+            head = np.where(liquid, s[i] / area, 0.0) if head_on else 0.0
+            phase = np.where(liquid, 1.0, np.where(mode == 1, 0.0, -1.0))
+            return (pg, Tg, np.where(liquid, rho_l, rg), gam, R, phase, head)
+
+        def derivs(s, mode, mdot):
+            return (np.where(mode == 0, -mdot, 0.0), np.where(mode == 1, -mdot, 0.0))
+
+        def signals(s, mode):
+            pg, Tg, rg, vg = gas(s)
+            return {"pressure": pg, "temperature": Tg, "liquid_mass": s[i], "gas_mass": s[i + 1],
+                    "liquid_volume": s[i] / rho_l, "liquid_height": s[i] / (rho_l * area)}
+
+        internal = None
+        if p.internal_momentum:
+            def internal(s, mode, mdot):
+                liquid = mode == 0
+                return (np.where(liquid, mdot / (rho_l * area), 0.0), np.where(liquid, s[i], 0.0))
+
+        events = (
+            EventSpec("liquid exhausted", lambda t, s, drive: s[i], -1.0, ("liquid",), "gas", needs_drive=False),
+            EventSpec("liquid flow stops", lambda t, s, drive: drive, -1.0, ("liquid",), "sealed"),
+            EventSpec("gas exhausted", lambda t, s, drive: drive, -1.0, ("gas",), "sealed"),
+        )
+        return VolumeFns(mass=mass, outlet=outlet, derivs=derivs, signals=signals,
+                         outlet_dir=p.outlet_direction, internal=internal, events=events)
 
 
 @hookimpl

@@ -1,0 +1,336 @@
+"""Engines: where the chunks of a study are flown (this process, a pool of local processes, a Dask cluster).
+
+A study is a table of designs (rows of SI parameter values). It is cut into
+chunks of consecutive rows; a :class:`FlightTask` flies one chunk and returns
+only its summary rows (:class:`ChunkRows`: status, note and outcome values),
+never flight results, so memory stays flat however many designs there are.
+At most a few chunks per worker are in flight at once.
+
+Engines
+-------
+``serial``
+    Every chunk in this process, one after another.
+``processes``
+    A :mod:`multiprocessing` pool over the local cores (the default for
+    mid-size studies). Workers start from a fork server (numpy, scipy and
+    thrustgraph imported once) and ignore Ctrl-C: the parent stops the pool.
+``dask``
+    A Dask distributed cluster, given a scheduler address (``tcp://host:8786``)
+    or a :class:`distributed.Client`. An address that cannot be reached within
+    ``timeout`` seconds gives one clear error.
+
+How a chunk is flown (``flights``) is independent of where: ``single`` flies
+each design with :func:`thrustgraph.integrate.fly_segments`; ``ensemble``
+integrates the whole chunk as one vectorised array computation
+(:mod:`thrustgraph.ensemble`). Every row depends only on its own design, so
+the same designs give the same table on every engine and with any chunk size.
+
+Examples
+--------
+>>> import numpy as np
+>>> from thrustgraph.modelfile import load_model, default_model_path
+>>> task = FlightTask(load_model(default_model_path()), ("components.bottle.fill",), ("",), ("apogee",))
+>>> rows = list(SerialEngine().run(task, chunks(np.array([[0.2], [0.3]]), 1)))
+>>> [r.start for r in rows], [round(float(r.values[0, 0]), 2) for r in rows]
+([0, 1], [53.95, 54.76])
+"""
+
+from __future__ import annotations
+
+import math
+import multiprocessing
+import os
+import signal
+import uuid
+from dataclasses import dataclass, field
+from typing import Any, Iterable, Iterator, Sequence
+
+import numpy as np
+
+from .errors import ModelError
+from .model import Model
+
+__all__ = ["FlightTask", "ChunkRows", "chunks", "SerialEngine", "ProcessEngine", "DaskEngine", "make_engine",
+           "ENGINES", "FLIGHTS", "default_chunk_size"]
+
+ENGINES = ("serial", "processes", "dask")
+FLIGHTS = ("single", "ensemble")
+
+
+@dataclass
+class ChunkRows:
+    """Summary rows of one chunk: first row index, status and note per row, outcome values (rows x outputs, SI)."""
+
+    start: int
+    status: list[str]
+    notes: list[str]
+    values: np.ndarray
+    flights: str = "single"
+    seconds: float = 0.0
+
+    def __len__(self) -> int:
+        return len(self.status)
+
+
+# Parsed base models, per worker process: parsing costs ~14 ms, a chunk reuses it.
+_PARSED: dict[str, Any] = {}
+
+
+@dataclass(frozen=True)
+class FlightTask:
+    """Flies chunks of designs of one model; picklable, so it can travel to worker processes and Dask workers.
+
+    Parameters
+    ----------
+    model : the base model (raw values, as after ``--set`` overrides)
+    paths, units : key paths of the varied parameters and the units they are shown in
+    outputs : outcome names to compute
+    flights : ``single`` or ``ensemble``
+    rtol, atol : integration tolerances (None: the model's ``[run]`` values)
+    token : identifies the parsed base model in each worker's cache
+    """
+
+    model: Model
+    paths: tuple[str, ...]
+    units: tuple[str, ...]
+    outputs: tuple[str, ...]
+    flights: str = "single"
+    rtol: float | None = None
+    atol: float | None = None
+    token: str = field(default_factory=lambda: uuid.uuid4().hex)
+
+    def prepared(self) -> tuple[Any, list]:
+        """The parsed base model and the resolved parameters (cached per process)."""
+        hit = _PARSED.get(self.token)
+        if hit is None:
+            from .designs import resolve
+            from .model import parse_model
+
+            parsed = parse_model(self.model)
+            params = [resolve(parsed, p, unit=u or None) for p, u in zip(self.paths, self.units)]
+            if len(_PARSED) > 8:
+                _PARSED.clear()
+            hit = _PARSED[self.token] = (parsed, params)
+        return hit
+
+    def __call__(self, start: int, x: np.ndarray) -> ChunkRows:
+        import time
+
+        from .designs import apply, within_bounds
+        from .outcomes import STATUS_SCREENED, fly_design
+
+        t0 = time.perf_counter()
+        parsed, params = self.prepared()
+        x = np.asarray(x, dtype=float).reshape(len(x), len(params))
+        n, k = len(x), len(self.outputs)
+        if self.flights == "ensemble":
+            from .ensemble import fly_designs
+
+            res = fly_designs(parsed, params, x, self.outputs, rtol=self.rtol, atol=self.atol)
+            return ChunkRows(start, res.status, res.notes, res.values, "ensemble", time.perf_counter() - t0)
+        status, notes = [], []
+        values = np.full((n, k), np.nan)
+        for r in range(n):
+            bad = [p for j, p in enumerate(params) if not within_bounds(p, x[r, j])]
+            if bad:
+                from .designs import bounds_text
+
+                status.append(STATUS_SCREENED)
+                notes.append(f"{bad[0].path} = {bad[0].text(x[r, params.index(bad[0])])} is outside its bounds "
+                             f"({bounds_text(bad[0])})")
+                continue
+            try:
+                design = apply(parsed, params, x[r])
+            except ModelError as exc:
+                status.append(STATUS_SCREENED)
+                notes.append(f"model error: {exc}")
+                continue
+            out = fly_design(design, self.outputs, rtol=self.rtol, atol=self.atol)
+            status.append(out.status)
+            notes.append(out.message)
+            for j, name in enumerate(self.outputs):
+                v = out.values.get(name)
+                if v is not None:
+                    values[r, j] = v
+        return ChunkRows(start, status, notes, values, "single", time.perf_counter() - t0)
+
+
+def chunks(x: np.ndarray, size: int) -> Iterator[tuple[int, np.ndarray]]:
+    """Consecutive chunks ``(start, rows)`` of a design matrix.
+
+    >>> [(s, len(c)) for s, c in chunks(np.zeros((5, 1)), 2)]
+    [(0, 2), (2, 2), (4, 1)]
+    """
+    size = max(1, int(size))
+    for s in range(0, len(x), size):
+        yield s, x[s:s + size]
+
+
+def default_chunk_size(n: int, workers: int, flights: str) -> int:
+    """Rows per chunk: vectorised ensembles pay off from about 1,000 members; single flights are cut finely
+    (about 8 chunks per worker) so the progress bar moves and the load balances.
+
+    >>> default_chunk_size(10000, 2, "ensemble"), default_chunk_size(100, 2, "single")
+    (2500, 7)
+    """
+    if flights == "ensemble":
+        return int(min(max(math.ceil(n / max(1, 2 * workers)), 1), 4000)) if n > 1000 else max(n, 1)
+    return int(min(max(math.ceil(n / max(1, 8 * workers)), 1), 64))
+
+
+class SerialEngine:
+    """Every chunk in this process."""
+
+    name = "serial"
+    workers = 1
+
+    def run(self, task: FlightTask, parts: Iterable[tuple[int, np.ndarray]]) -> Iterator[ChunkRows]:
+        for start, x in parts:
+            yield task(start, x)
+
+    def close(self) -> None:
+        pass
+
+
+# --- process pool ---------------------------------------------------------------------------------------------
+_TASK: FlightTask | None = None
+
+
+def _init_worker(task: FlightTask) -> None:
+    global _TASK
+    signal.signal(signal.SIGINT, signal.SIG_IGN)   # Ctrl-C is the parent's to handle
+    _TASK = task
+
+
+def _run_chunk(part: tuple[int, np.ndarray]) -> ChunkRows:
+    assert _TASK is not None
+    return _TASK(*part)
+
+
+class ProcessEngine:
+    """A pool of local worker processes (default: one per core), kept between batches of the same task."""
+
+    name = "processes"
+
+    def __init__(self, workers: int | None = None) -> None:
+        if workers is not None and workers < 1:
+            raise ModelError("--workers", f"must be at least 1, got {workers}", "give a positive number of workers")
+        self.workers = workers or os.cpu_count() or 1
+        self._pool = None
+        self._token = None
+
+    def _pool_for(self, task: FlightTask):
+        if self._pool is None or self._token != task.token:
+            self.close()
+            methods = multiprocessing.get_all_start_methods()
+            ctx = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
+            if "forkserver" in methods:
+                ctx.set_forkserver_preload(["thrustgraph.engines", "thrustgraph.outcomes", "scipy.integrate"])
+            self._pool = ctx.Pool(self.workers, initializer=_init_worker, initargs=(task,))
+            self._token = task.token
+        return self._pool
+
+    def run(self, task: FlightTask, parts: Iterable[tuple[int, np.ndarray]]) -> Iterator[ChunkRows]:
+        pool = self._pool_for(task)
+        done = False
+        try:
+            yield from pool.imap_unordered(_run_chunk, parts, chunksize=1)
+            done = True
+        finally:
+            if not done:   # interrupted (Ctrl-C) or abandoned: stop the workers now
+                self.close()
+
+    def close(self) -> None:
+        if self._pool is not None:
+            self._pool.terminate()
+            self._pool.join()
+            self._pool = None
+            self._token = None
+
+
+# --- Dask -----------------------------------------------------------------------------------------------------
+def _dask_chunk(task: FlightTask, start: int, x: np.ndarray) -> ChunkRows:
+    return task(start, x)
+
+
+class DaskEngine:
+    """A Dask distributed cluster: a scheduler address or a ``distributed.Client``.
+
+    Raises
+    ------
+    ModelError
+        Dask is not installed, or the scheduler cannot be reached within ``timeout`` seconds.
+    """
+
+    name = "dask"
+
+    def __init__(self, scheduler: Any, *, timeout: float = 10.0) -> None:
+        try:
+            from distributed import Client
+        except ImportError:
+            raise ModelError("--engine dask", "needs the Dask distributed package, which is not installed",
+                             "pip install 'thrustgraph[dask]' (or dask[distributed])") from None
+        self._own = False
+        if isinstance(scheduler, Client):
+            self.client = scheduler
+        else:
+            if not scheduler:
+                raise ModelError("--scheduler", "the dask engine needs the address of a scheduler",
+                                 "give --scheduler tcp://HOST:8786 (start one with 'dask scheduler')")
+            try:
+                self.client = Client(scheduler, timeout=timeout, set_as_default=False)
+            except (OSError, TimeoutError) as exc:
+                raise ModelError("--scheduler", f"cannot reach the Dask scheduler at {scheduler!r} within "
+                                 f"{timeout:g} s ({type(exc).__name__})",
+                                 "check the address, or start a scheduler with 'dask scheduler' and workers with "
+                                 "'dask worker ADDRESS'") from None
+            self._own = True
+        self._futures: list = []
+        threads = sum(self.client.nthreads().values())
+        self.workers = max(1, threads)
+
+    def run(self, task: FlightTask, parts: Iterable[tuple[int, np.ndarray]]) -> Iterator[ChunkRows]:
+        from distributed import as_completed
+
+        remote = self.client.scatter(task, broadcast=True)
+        it = iter(parts)
+        limit = 2 * self.workers
+        ac = as_completed()
+        live = 0
+        for start, x in it:
+            ac.add(self.client.submit(_dask_chunk, remote, start, x, pure=False))
+            live += 1
+            if live >= limit:
+                break
+        try:
+            for fut in ac:
+                rows = fut.result()
+                fut.release()
+                yield rows
+                nxt = next(it, None)
+                if nxt is not None:
+                    ac.add(self.client.submit(_dask_chunk, remote, nxt[0], nxt[1], pure=False))
+        finally:
+            for fut in list(ac.futures):
+                fut.cancel()
+
+    def close(self) -> None:
+        if self._own:
+            self.client.close()
+            self._own = False
+
+
+def make_engine(name: str, *, workers: int | None = None, scheduler: Any = None,
+                timeout: float = 10.0) -> SerialEngine | ProcessEngine | DaskEngine:
+    """An engine by name (``serial``, ``processes``, ``dask``)."""
+    if name == "serial":
+        return SerialEngine()
+    if name == "processes":
+        return ProcessEngine(workers)
+    if name == "dask":
+        return DaskEngine(scheduler, timeout=timeout)
+    import difflib
+
+    c = difflib.get_close_matches(str(name), ENGINES, n=1)
+    raise ModelError("--engine", f"unknown engine {name!r}",
+                     f"did you mean {c[0]!r}?" if c else f"choose one of {', '.join(ENGINES)}")

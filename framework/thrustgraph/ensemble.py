@@ -1,0 +1,722 @@
+"""Vectorised ensembles: N designs integrated together as one array computation on one core.
+
+The designs (rows of SI parameter values) are assembled as arrays
+(:class:`thrustgraph.arraysystem.ArraySystem`, physics from the plugins'
+array builders) and integrated by a vectorised explicit Runge-Kutta method,
+Dormand-Prince 5(4) with its 4th-order dense output: the coefficients of
+J. R. Dormand and P. J. Prince, "A family of embedded Runge-Kutta formulae",
+J. Comput. Appl. Math. 6 (1980) 19-26, and the dense output of L. F. Shampine,
+"Some practical Runge-Kutta formulas", Math. Comp. 46 (1986) 135-150, as
+scipy's ``RK45`` uses them (copied from scipy.integrate._ivp.rk).
+
+What each design owns (lessons of the prototype in docs/studies.md):
+
+* its own time ``t``, step ``h``, error norm (RMS of the scaled local error
+  over its own states, as scipy's solvers), accept/reject decision and step
+  control (safety 0.9, factors 0.2-10, as scipy's RK45);
+* its own discrete phase: the mode of every moded component and the
+  kinematic constraint (guide, free), plus whether apogee has passed; the
+  right-hand side never infers the phase;
+* its own events: the components' events (liquid exhausted, flow stops...),
+  guide exit, apogee and ground impact, each a continuous function with a
+  direction, located on the dense output by a vectorised Illinois
+  (modified regula falsi) iteration; the step is cut at the earliest event
+  and the phase switch (reset map) is applied to that design alone;
+* a step budget: a design that needs more than ``max_steps`` steps, or whose
+  step collapses, is screened out and reported, not left to stall the batch.
+
+Finished designs are compacted away (the arrays shrink) when fewer than
+half of them are still flying. The results are summary rows only
+(:data:`thrustgraph.outcomes.OUTPUTS`); no trajectory is kept, so memory
+does not grow with flight length. Each row depends only on its own design
+(every operation is elementwise), so a design gives the same numbers in any
+chunk of any size.
+
+Examples
+--------
+>>> import numpy as np
+>>> from thrustgraph.modelfile import load_model, default_model_path
+>>> from thrustgraph.model import parse_model
+>>> from thrustgraph.designs import resolve
+>>> parsed = parse_model(load_model(default_model_path()))
+>>> res = fly_designs(parsed, [resolve(parsed, "components.bottle.fill")], np.array([[0.33], [0.5]]), ["apogee"])
+>>> res.status, [round(float(v), 3) for v in res.values[:, 0]]
+(['ok', 'ok'], [54.318, 46.919])
+"""
+
+from __future__ import annotations
+
+import copy
+import math
+import time
+from dataclasses import dataclass
+from typing import Any, Sequence
+
+import numpy as np
+
+from .arrayops import keep_heap
+from .arraysystem import FREE, GUIDE, IMPULSE, ArraySystem, unsupported
+from .designs import DesignParameter, bounds_text, within_bounds
+from .errors import ModelError
+from .model import ParsedModel
+from .outcomes import OUTPUTS, STATUS_OK, STATUS_SCREENED, check_outputs
+
+__all__ = ["fly_designs", "EnsembleResult", "unsupported", "DOPRI_C", "DOPRI_A", "DOPRI_B", "DOPRI_E", "DOPRI_P"]
+
+# Dormand-Prince 5(4) (scipy RK45's arrays).
+DOPRI_C = np.array([0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1])
+DOPRI_A = np.array([
+    [0, 0, 0, 0, 0],
+    [1 / 5, 0, 0, 0, 0],
+    [3 / 40, 9 / 40, 0, 0, 0],
+    [44 / 45, -56 / 15, 32 / 9, 0, 0],
+    [19372 / 6561, -25360 / 2187, 64448 / 6561, -212 / 729, 0],
+    [9017 / 3168, -355 / 33, 46732 / 5247, 49 / 176, -5103 / 18656]])
+DOPRI_B = np.array([35 / 384, 0, 500 / 1113, 125 / 192, -2187 / 6784, 11 / 84])
+DOPRI_E = np.array([-71 / 57600, 0, 71 / 16695, -71 / 1920, 17253 / 339200, -22 / 525, 1 / 40])
+DOPRI_P = np.array([
+    [1, -8048581381 / 2820520608, 8663915743 / 2820520608, -12715105075 / 11282082432],
+    [0, 0, 0, 0],
+    [0, 131558114200 / 32700410799, -68118460800 / 10900136933, 87487479700 / 32700410799],
+    [0, -1754552775 / 470086768, 14199869525 / 1410260304, -10690763975 / 1880347072],
+    [0, 127303824393 / 49829197408, -318862633887 / 49829197408, 701980252875 / 199316789632],
+    [0, -282668133 / 205662961, 2019193451 / 616988883, -1453857185 / 822651844],
+    [0, 40617522 / 29380423, -110615467 / 29380423, 69997945 / 29380423]])
+_SAFETY, _MIN_FACTOR, _MAX_FACTOR, _EXPONENT = 0.9, 0.2, 10.0, -1.0 / 5.0
+_EPS = np.finfo(float).eps
+
+
+@dataclass
+class EnsembleResult:
+    """Summary rows of an ensemble: status and note per design, outcome values (SI), steps taken per design,
+    right-hand-side evaluations (vectorised calls) and wall-clock seconds."""
+
+    status: list[str]
+    notes: list[str]
+    values: np.ndarray
+    outputs: tuple[str, ...]
+    steps: np.ndarray
+    rhs_calls: int
+    seconds: float
+
+
+class _Events:
+    """The event functions of the family: the components' events, guide exit, apogee, ground impact."""
+
+    def __init__(self, sysa: ArraySystem) -> None:
+        self.slots: list[tuple] = []   # (kind, direction, payload)
+        for k, (comp, spec) in enumerate(sysa.events):
+            names = [m.name for m in sysa.modes[comp]]
+            when = np.zeros(len(names), dtype=bool)
+            when[[names.index(w) for w in spec.when]] = True
+            to = names.index(spec.to) if spec.to else -1
+            self.slots.append(("comp", float(spec.direction), (k, comp, sysa.slot[comp], when, to, spec.name,
+                                                               spec.needs_drive)))
+        self.slots.append(("guide", 1.0, None))
+        self.slots.append(("apogee", -1.0, None))
+        self.slots.append(("impact", -1.0, None))
+        self.needs_drive = [s[0] == "comp" and s[2][6] for s in self.slots]
+
+    def active(self, j: int, modes: np.ndarray, kin: np.ndarray, desc: np.ndarray, gpos: np.ndarray) -> np.ndarray:
+        kind, _, pl = self.slots[j]
+        if kind == "comp":
+            return pl[3][modes[pl[2]]]
+        if kind == "guide":
+            return kin == GUIDE
+        if kind == "apogee":
+            return (kin == FREE) & ~desc & gpos
+        return (kin == FREE) & gpos
+
+    def value(self, j: int, sysa: ArraySystem, t: np.ndarray, Y: np.ndarray, aux: dict | None,
+              rows: np.ndarray | None = None) -> np.ndarray:
+        """Event ``j`` at states ``Y`` of the designs of ``sysa`` (or of its designs ``rows``)."""
+        kind, _, pl = self.slots[j]
+        if kind == "comp":
+            k, comp = pl[0], pl[1]
+            drive = aux["drive"].get(comp, 0.0) if (pl[6] and aux is not None) else 0.0
+            return np.array(np.broadcast_to(np.asarray(sysa.events[k][1].fn(t, list(Y), drive), dtype=float), t.shape))
+        if kind == "guide":
+            r = slice(None) if rows is None else rows
+            u = [c[r] for c in sysa.u]
+            x0 = [c[r] for c in sysa.x0]
+            return np.array((Y[0] - x0[0]) * u[0] + (Y[1] - x0[1]) * u[1] + (Y[2] - x0[2]) * u[2]
+                            - (sysa.guide_length[r] + 1e-9))
+        if kind == "apogee":
+            return Y[5].copy()
+        return Y[2].copy()
+
+
+def _norm(x: np.ndarray) -> np.ndarray:
+    return np.sqrt(np.mean(x * x, axis=0))
+
+
+def _dense(Y0: np.ndarray, h: np.ndarray, Q: np.ndarray, theta: np.ndarray) -> np.ndarray:
+    """State on the step's dense output at fraction ``theta`` (per design)."""
+    th = theta
+    return Y0 + h * (Q[:, 0] * th + Q[:, 1] * th * th + Q[:, 2] * th ** 3 + Q[:, 3] * th ** 4)
+
+
+def _dense_rate(Q: np.ndarray, theta: np.ndarray) -> np.ndarray:
+    th = theta
+    return Q[:, 0] + 2.0 * Q[:, 1] * th + 3.0 * Q[:, 2] * th * th + 4.0 * Q[:, 3] * th ** 3
+
+
+def _golden_max(fun, hi: np.ndarray, iters: int = 24) -> tuple[np.ndarray, np.ndarray]:
+    """Vectorised golden-section search for the maximum of fun(theta) on [0, hi] (one evaluation per
+    iteration; the bracket shrinks to 0.618**iters of the step); returns (theta, value)."""
+    r = (math.sqrt(5.0) - 1.0) / 2.0
+    a = np.zeros_like(hi)
+    b = hi.copy()
+    c = b - r * (b - a)
+    d = a + r * (b - a)
+    fc, fd = fun(c), fun(d)
+    for _ in range(iters):
+        left = fc > fd                      # the maximum lies in [a, d]
+        a = np.where(left, a, c)
+        b = np.where(left, d, b)
+        keep_x = np.where(left, c, d)       # the interior point that stays
+        keep_f = np.where(left, fc, fd)
+        new_x = np.where(left, b - r * (b - a), a + r * (b - a))
+        new_f = fun(new_x)
+        c = np.where(left, new_x, keep_x)
+        fc = np.where(left, new_f, keep_f)
+        d = np.where(left, keep_x, new_x)
+        fd = np.where(left, keep_f, new_f)
+    th = np.where(fc > fd, c, d)
+    return th, np.maximum(fc, fd)
+
+
+def _with(base: Any, changes: dict[str, float]) -> Any:
+    """A copy of a frozen parameter object with some fields changed (dataclasses.replace without its cost)."""
+    p = copy.copy(base)
+    for k, v in changes.items():
+        object.__setattr__(p, k, v)
+    return p
+
+
+def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray, status: list[str],
+                    notes: list[str]) -> np.ndarray:
+    """Designs outside their bounds, or combinations a component kind refuses, are screened out here."""
+    N = len(x)
+    good = np.ones(N, dtype=bool)
+    for j, p in enumerate(params):
+        ok = within_bounds(p, x[:, j])
+        for i in np.flatnonzero(good & ~ok):
+            status[i] = STATUS_SCREENED
+            notes[i] = f"{p.path} = {p.text(x[i, j])} is outside its bounds ({bounds_text(p)})"
+        good &= ok
+    from .component import ComponentKind
+
+    owners = {p.owner for p in params if p.section == "components"}
+    for owner in owners:
+        cls = parsed.kinds[owner]
+        if getattr(cls.check, "__func__", None) is getattr(ComponentKind.check, "__func__", None):
+            continue   # the kind checks nothing
+        cols = [(p.name, j) for j, p in enumerate(params) if p.section == "components" and p.owner == owner]
+        base = parsed.params[owner]
+        for i in np.flatnonzero(good):
+            try:
+                cls.check(_with(base, {nm: float(x[i, j]) for nm, j in cols}), f"components.{owner}")
+            except ModelError as exc:
+                status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"
+                good[i] = False
+    return good
+
+
+class _Buffers:
+    """Preallocated stage arrays, so the 2-D stage combinations make no temporaries."""
+
+    def __init__(self, ns: int, n: int) -> None:
+        self.K = np.empty((7, ns, n))
+        self.Kf = self.K.reshape(7, ns * n)
+        self.Ys = np.empty((ns, n))
+        self.Yn = np.empty((ns, n))
+        self.err = np.empty((ns, n))
+        self.tmp = np.empty((ns, n))
+
+    def combine(self, coeffs: np.ndarray, m: int, h: np.ndarray, Y: np.ndarray, out: np.ndarray) -> np.ndarray:
+        """out = Y + h * sum_j coeffs[j] K[j] over the first m stages.
+
+        einsum, not BLAS: a threaded BLAS on a busy 2-core machine made this 100x slower (measured).
+        """
+        np.einsum("s,sk->k", coeffs[:m], self.Kf[:m], out=out.reshape(-1))
+        out *= h
+        out += Y
+        return out
+
+
+def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray,
+                outputs: Sequence[str] | None = None, *, rtol: float | None = None, atol: float | None = None,
+                max_steps: int = 20000, compact: float = 0.5) -> EnsembleResult:
+    """Fly N designs as one vectorised ensemble and return their summary rows.
+
+    Parameters
+    ----------
+    parsed : the base model (its family must be supported: :func:`unsupported` returns None)
+    params : the varied parameters; ``x`` their SI values, shape (N, parameters)
+    outputs : outcome names (default: all of :data:`~thrustgraph.outcomes.OUTPUTS`)
+    rtol, atol : tolerances (default: the model's ``[run]`` values; the same meaning as for solve_ivp)
+    max_steps : step budget per design (attempted steps); a design that exceeds it is screened out
+    compact : shrink the arrays when fewer than this fraction of the designs are still flying
+    """
+    t_start = time.perf_counter()
+    why = unsupported(parsed)
+    if why:
+        raise ModelError("ensemble", f"the vectorised ensemble cannot fly this model: {why}",
+                         "fly it with single flights (--flights single)")
+    keep_heap()
+    outputs = tuple(check_outputs(outputs if outputs is not None else list(OUTPUTS)))
+    x = np.asarray(x, dtype=float).reshape(-1, len(params))
+    N = len(x)
+    rtol = float(parsed.run.rtol if rtol is None else rtol)
+    atol = float(parsed.run.atol if atol is None else atol)
+    t_end = float(parsed.run.end_time)
+    stop_at_apogee = bool(parsed.run.stop_at_apogee)
+    status = [STATUS_OK] * N
+    notes = [""] * N
+    out = {k: np.full(N, np.nan) for k in OUTPUTS}
+    steps_taken = np.zeros(N, dtype=np.int64)
+    good = _screen_designs(parsed, params, x, status, notes)
+    gid = np.flatnonzero(good)
+    if len(gid) == 0:
+        return EnsembleResult(status, notes, _table(out, outputs), outputs, steps_taken, 0,
+                              time.perf_counter() - t_start)
+    with np.errstate(all="ignore"):
+        run = _Run(parsed, params, x, gid, rtol, atol, t_end, stop_at_apogee, max_steps, compact, out,
+                   steps_taken)
+        run.fly()
+        for i, g in enumerate(run.done_gid):
+            status[g], notes[g] = run.done_status[i], run.done_note[i]
+    for i in range(N):
+        if status[i] != STATUS_OK:
+            for k in out:
+                out[k][i] = np.nan
+    return EnsembleResult(status, notes, _table(out, outputs), outputs, steps_taken, run.calls,
+                          time.perf_counter() - t_start)
+
+
+class _Run:
+    """The integration of one ensemble: per-design arrays, stepping, events, trackers, compaction."""
+
+    def __init__(self, parsed, params, x, gid, rtol, atol, t_end, stop_at_apogee, max_steps, compact, out,
+                 steps_taken) -> None:
+        self.parsed, self.params, self.x = parsed, params, x
+        self.rtol, self.atol, self.t_end = rtol, atol, t_end
+        self.stop_at_apogee, self.max_steps, self.compact_at = stop_at_apogee, max_steps, compact
+        self.out, self.steps_taken = out, steps_taken
+        self.calls = 0
+        self.done_gid: list[int] = []
+        self.done_status: list[str] = []
+        self.done_note: list[str] = []
+        sysa = self.sysa = ArraySystem(parsed, params, x[gid])
+        n = self.n = sysa.n
+        self.gid = gid.copy()
+        self.ns = ns = len(sysa.state_names)
+        self.nctrl = ns - 1                       # the impulse quadrature (last row) is left out of step control
+        assert sysa.index(IMPULSE) == ns - 1
+        self.ev = _Events(sysa)
+        self.nev = len(self.ev.slots)
+        self.Y = sysa.y0.copy()
+        self.t = np.zeros(n)
+        self.modes = sysa.mode0.copy()
+        self.kin = sysa.kin0.copy()
+        self.desc = np.zeros(n, dtype=bool)
+        self.gpos = np.broadcast_to(np.asarray(sysa.gravity(sysa.x0[2]), dtype=float) > 0.0, (n,)).copy()
+        self.F, aux = sysa.rhs(self.t, self.Y, self.modes, self.kin)
+        self.calls += 1
+        out["launch_mass"][gid] = np.broadcast_to(aux["mass"], (n,))
+        p0 = sysa.pressures(self.Y, self.modes)
+        self.has_p = p0 is not None
+        self.peak_p = np.full(n, np.nan) if p0 is None else np.broadcast_to(p0, (n,)).copy()
+        self.zmax = self.Y[2].copy()
+        self.vmax = np.sqrt(self.Y[3] ** 2 + self.Y[4] ** 2 + self.Y[5] ** 2)
+        self.amax = np.broadcast_to(np.asarray(aux["accel"], dtype=float), (n,)).copy()
+        self.burn = np.zeros(n)
+        self.apogee = np.full(n, np.nan)
+        self.exit_speed = np.full(n, np.nan)
+        self.impact_speed = np.full(n, np.nan)
+        self.live = np.ones(n, dtype=bool)
+        self.fate = [""] * n
+        self.fate_status = [STATUS_OK] * n
+        self.gold = self.g_all(sysa, self.t, self.Y, aux)
+        self.rejected = np.zeros(n, dtype=bool)
+        self.buf = _Buffers(ns, n)
+        everyone = np.arange(n)
+        self.fire_at_once(everyone)
+        self.no_liftoff(everyone)
+        self.h = self.initial_step()
+
+    # --- helpers ------------------------------------------------------------------------------------------
+    _PER_DESIGN = ("gid", "t", "h", "kin", "desc", "gpos", "zmax", "vmax", "amax", "burn", "apogee", "exit_speed",
+                   "impact_speed", "peak_p", "live", "rejected")
+
+    def g_all(self, sys_, tt, YY, aux):
+        return [self.ev.value(j, sys_, tt, YY, aux) for j in range(self.nev)]
+
+    def finish(self, idx, st: str, note: str) -> None:
+        for i in np.atleast_1d(idx):
+            if self.live[i]:
+                self.live[i] = False
+                self.fate_status[i], self.fate[i] = st, note
+
+    def fire_at_once(self, idx: np.ndarray) -> None:
+        """Events already past their zero at a phase start fire at once (as in a single flight)."""
+        ev = self.ev
+        for _ in range(6):
+            fired = False
+            for j, (kind, direction, pl) in enumerate(ev.slots):
+                if kind != "comp":
+                    continue
+                act = ev.active(j, self.modes[:, idx], self.kin[idx], self.desc[idx], self.gpos[idx]) & self.live[idx]
+                past = act & (direction * self.gold[j][idx] > 0.0)
+                if np.any(past):
+                    sel = idx[past]
+                    if pl[4] >= 0:
+                        self.modes[pl[2], sel] = pl[4]
+                    else:
+                        self.finish(sel, STATUS_OK, pl[5])
+                    fired = True
+            if not fired:
+                return
+            sub = self.sysa.subset(idx)
+            Fi, ai = sub.rhs(self.t[idx], self.Y[:, idx], self.modes[:, idx], self.kin[idx])
+            self.calls += 1
+            self.F[:, idx] = Fi
+            gi = self.g_all(sub, self.t[idx], self.Y[:, idx], ai)
+            for j in range(self.nev):
+                self.gold[j][idx] = gi[j]
+
+    def no_liftoff(self, idx: np.ndarray) -> None:
+        if len(idx) == 0:
+            return
+        sysa, Y = self.sysa, self.Y
+        prop = sysa.propulsive(self.modes[:, idx])
+        u, x0 = sysa.u, sysa.x0
+        v_al = Y[3, idx] * u[0][idx] + Y[4, idx] * u[1][idx] + Y[5, idx] * u[2][idx]
+        s_al = ((Y[0, idx] - x0[0][idx]) * u[0][idx] + (Y[1, idx] - x0[1][idx]) * u[1][idx]
+                + (Y[2, idx] - x0[2][idx]) * u[2][idx])
+        stuck = (self.kin[idx] == GUIDE) & ~prop & (v_al <= 0.0) & (s_al <= 1e-12)
+        self.finish(idx[stuck], STATUS_SCREENED, "no lift-off: the thrust never exceeded the weight along the guide")
+
+    def initial_step(self) -> np.ndarray:
+        """Hairer, Norsett & Wanner, Solving ODEs I, sec. II.4 (as scipy's select_initial_step), per design."""
+        Y, F, c = self.Y, self.F, self.nctrl
+        sc = self.atol + np.abs(Y) * self.rtol
+        d0 = _norm((Y / sc)[:c])
+        d1 = _norm((F / sc)[:c])
+        h0 = np.where((d0 < 1e-5) | (d1 < 1e-5), 1e-6, 0.01 * d0 / np.where(d1 > 0, d1, 1.0))
+        h0 = np.minimum(h0, self.t_end)
+        F1, _ = self.sysa.rhs(self.t + h0, Y + h0 * F, self.modes, self.kin)
+        self.calls += 1
+        d2 = _norm(((F1 - F) / sc)[:c]) / h0
+        h1 = np.where((d1 <= 1e-15) & (d2 <= 1e-15), np.maximum(1e-6, h0 * 1e-3),
+                      (0.01 / np.maximum(np.maximum(d1, d2), 1e-300)) ** (1.0 / 5.0))
+        return np.minimum(np.minimum(100 * h0, h1), self.t_end)
+
+    def compact(self) -> None:
+        """Drop the finished designs from every array."""
+        keep = np.flatnonzero(self.live)
+        gone = np.flatnonzero(~self.live)
+        self.store(gone)
+        for i in gone:
+            self.done_gid.append(int(self.gid[i]))
+            self.done_status.append(self.fate_status[i])
+            self.done_note.append(self.fate[i])
+        self.sysa = self.sysa.subset(keep)
+        for name in self._PER_DESIGN:
+            setattr(self, name, getattr(self, name)[keep])
+        self.Y, self.F, self.modes = self.Y[:, keep], self.F[:, keep], self.modes[:, keep]
+        self.gold = [g[keep] for g in self.gold]
+        self.fate = [self.fate[i] for i in keep]
+        self.fate_status = [self.fate_status[i] for i in keep]
+        self.n = len(keep)
+        self.buf = _Buffers(self.ns, self.n)
+
+    def store(self, idx: np.ndarray) -> None:
+        """Write the outcomes of designs ``idx`` (current slots) into the global rows."""
+        if len(idx) == 0:
+            return
+        out, sysa, Y = self.out, self.sysa, self.Y
+        g = self.gid[idx]
+        x0 = sysa.x0
+        out["flight_time"][g] = self.t[idx]
+        out["impact_x"][g] = Y[0, idx] - x0[0][idx]
+        out["impact_y"][g] = Y[1, idx] - x0[1][idx]
+        out["range"][g] = np.hypot(out["impact_x"][g], out["impact_y"][g])
+        ap = self.apogee[idx]
+        out["apogee"][g] = np.where(np.isfinite(ap), np.maximum(ap, self.zmax[idx]), self.zmax[idx])
+        out["max_speed"][g] = self.vmax[idx]
+        out["peak_acceleration"][g] = self.amax[idx]
+        out["total_impulse"][g] = Y[-1, idx]
+        out["burn_time"][g] = self.burn[idx]
+        M = np.broadcast_to(sysa.masses(Y), (self.n,))
+        out["propellant_expelled"][g] = out["launch_mass"][g] - M[idx]
+        out["peak_vessel_pressure"][g] = self.peak_p[idx]
+        out["guide_exit_speed"][g] = self.exit_speed[idx]
+        out["impact_speed"][g] = self.impact_speed[idx]
+
+    # --- the loop -----------------------------------------------------------------------------------------
+    def fly(self) -> None:
+        while np.any(self.live):
+            if self.live.sum() < self.compact_at * self.n and self.n > 16:
+                self.compact()
+            self.step()
+        self.store(np.arange(self.n))
+        for i in range(self.n):
+            self.done_gid.append(int(self.gid[i]))
+            self.done_status.append(self.fate_status[i])
+            self.done_note.append(self.fate[i])
+
+    def step(self) -> None:
+        sysa, buf, ev, nev = self.sysa, self.buf, self.ev, self.nev
+        Y, F, t, modes, kin, live = self.Y, self.F, self.t, self.modes, self.kin, self.live
+        n = self.n
+        K = buf.K
+        hh = np.where(live, np.minimum(self.h, self.t_end - t), 0.0)
+        # one attempted step for every design, each with its own h
+        K[0] = F
+        for st in range(1, 6):
+            Ys = buf.combine(DOPRI_A[st], st, hh, Y, buf.Ys)
+            sysa.rhs(t + DOPRI_C[st] * hh, Ys, modes, kin, out=K[st])
+        Yn = buf.combine(DOPRI_B, 6, hh, Y, buf.Yn)
+        _, aux_n = sysa.rhs(t + hh, Yn, modes, kin, out=K[6])
+        self.calls += 6
+        err = buf.err
+        np.einsum("s,sk->k", DOPRI_E, buf.Kf, out=err.reshape(-1))
+        err *= hh
+        tmp = buf.tmp
+        np.abs(Y, out=tmp)
+        np.maximum(tmp, np.abs(Yn), out=tmp)
+        tmp *= self.rtol
+        tmp += self.atol
+        err /= tmp
+        err *= err
+        en = np.sqrt(np.sum(err[:self.nctrl], axis=0) / self.nctrl)
+        en = np.where(np.isfinite(en), en, np.inf)
+        self.steps_taken[self.gid[live]] += 1
+        acc = live & (en < 1.0)
+        rej = live & ~acc
+        fac = _SAFETY * en ** _EXPONENT
+        fac_acc = np.where(en == 0.0, _MAX_FACTOR, np.minimum(_MAX_FACTOR, fac))
+        fac_acc = np.where(self.rejected, np.minimum(1.0, fac_acc), fac_acc)
+        h_next = np.where(acc, hh * fac_acc, np.where(rej, hh * np.maximum(_MIN_FACTOR, fac), self.h))
+        self.rejected = np.where(acc, False, np.where(rej, True, self.rejected))
+        # screening: step budget, collapsed steps, singular head coupling
+        budget = live & (self.steps_taken[self.gid] > self.max_steps)
+        self.finish(np.flatnonzero(budget), STATUS_SCREENED,
+                    f"step budget exhausted ({self.max_steps} steps): the design stalls")
+        for i in np.flatnonzero(rej & (h_next < 10 * _EPS * np.maximum(np.abs(t), 1e-30))):
+            self.finish(np.array([i]), STATUS_SCREENED,
+                        f"integration failed: the step size collapsed at t = {t[i]:.6g} s")
+        sing = acc & np.asarray(aux_n["singular"], dtype=bool)
+        self.finish(np.flatnonzero(sing), STATUS_SCREENED,
+                    "integration failed: the liquid head makes the acceleration undetermined (nozzle too large "
+                    "for the vessel's bore)")
+        acc &= live
+        # events on the accepted steps
+        gnew = self.g_all(sysa, t + hh, Yn, aux_n)
+        hit = []
+        cross_any = np.zeros(n, dtype=bool)
+        for j, (kind, direction, pl) in enumerate(ev.slots):
+            act = acc & ev.active(j, modes, kin, self.desc, self.gpos)
+            go, gn = self.gold[j], gnew[j]
+            up = (go <= 0.0) & (gn >= 0.0)
+            down = (go >= 0.0) & (gn <= 0.0)
+            cr = act & ((up & (direction > 0)) | (down & (direction < 0)) | ((up | down) & (direction == 0)))
+            hit.append(cr)
+            cross_any |= cr
+        evi = np.flatnonzero(cross_any)
+        theta_ev = np.full(n, np.inf)
+        if len(evi):
+            Q = np.einsum("sp,snm->npm", DOPRI_P, K[:, :, evi])   # dense-output coefficients (ns, 4, m)
+            need = any(ev.needs_drive[j] and np.any(hit[j][evi]) for j in range(nev))
+            sub_e = sysa.subset(evi)
+            thetas = np.full((nev, len(evi)), np.inf)
+            for j in range(nev):
+                sel = np.flatnonzero(hit[j][evi])
+                if len(sel):
+                    rows = evi[sel]
+                    thetas[j, sel] = _locate(ev, j, sysa, sub_e if need else None, sel, rows, t, hh, Y, Q[:, :, sel],
+                                             modes, kin, self.gold[j][rows], gnew[j][rows])
+            th_min = np.min(thetas, axis=0)
+            which = thetas == th_min[None, :]
+            theta_ev[evi] = th_min
+            Ye = _dense(Y[:, evi], hh[evi], Q, th_min)
+            te = t[evi] + th_min * hh[evi]
+            Fe, aux_e = sub_e.rhs(te, Ye, modes[:, evi], kin[evi])     # the old phase at the event point
+            self.calls += 1
+        cut = np.isfinite(theta_ev)
+        th_end = np.where(cut, theta_ev, 1.0)
+        if np.any(acc):
+            self.track(acc, cut, th_end, Y, F, K, Yn, aux_n, hh, evi if len(evi) else None,
+                       (Ye, Fe, aux_e) if len(evi) else None, sub_e if len(evi) else None)
+        # advance the accepted designs without an event
+        plain = acc & ~cut
+        Y[:, plain] = Yn[:, plain]
+        F[:, plain] = K[6][:, plain]
+        t[plain] = t[plain] + hh[plain]
+        for j in range(nev):
+            self.gold[j][plain] = gnew[j][plain]
+        # designs cut at an event: move to the event point and switch their phase
+        if len(evi):
+            t[evi] = te
+            Y[:, evi] = Ye
+            for j, (kind, direction, pl) in enumerate(ev.slots):
+                sel = which[j]
+                if not np.any(sel):
+                    continue
+                rows = evi[sel]
+                if kind == "comp":
+                    if pl[4] >= 0:
+                        modes[pl[2], rows] = pl[4]
+                    else:
+                        self.finish(rows, STATUS_OK, pl[5])
+                elif kind == "guide":
+                    kin[rows] = FREE
+                    self.exit_speed[rows] = np.sqrt(np.sum(Y[3:6, rows] ** 2, axis=0))
+                elif kind == "apogee":
+                    self.desc[rows] = True
+                    self.apogee[rows] = Y[2, rows]
+                    if self.stop_at_apogee:
+                        self.finish(rows, STATUS_OK, "stopped at apogee")
+                else:
+                    self.impact_speed[rows] = np.sqrt(np.sum(Y[3:6, rows] ** 2, axis=0))
+                    self.finish(rows, STATUS_OK, "")
+            keep_e = live[evi]
+            cont = evi[keep_e]
+            if len(cont):
+                sub = sub_e if np.all(keep_e) else sub_e.subset(np.flatnonzero(keep_e))
+                Fi, ai = sub.rhs(t[cont], Y[:, cont], modes[:, cont], kin[cont])
+                self.calls += 1
+                F[:, cont] = Fi
+                gi = self.g_all(sub, t[cont], Y[:, cont], ai)
+                for j in range(nev):
+                    self.gold[j][cont] = gi[j]
+                self.fire_at_once(cont)
+                self.no_liftoff(cont)
+        over = live & (t >= self.t_end * (1 - 4 * _EPS))
+        self.finish(np.flatnonzero(over), STATUS_OK, "end time reached")
+        bad = live & ~np.all(np.isfinite(Y), axis=0)
+        self.finish(np.flatnonzero(bad), STATUS_SCREENED, "integration failed: the state is not finite")
+        self.h = np.where(acc | rej, h_next, self.h)
+
+    def track(self, acc, cut, th_end, Y, F, K, Yn, aux_n, hh, evi, event, sub_e) -> None:
+        """Running maxima (speed, acceleration, altitude, vessel pressure) and burn time over accepted steps.
+
+        Works on whole arrays (masks, not gathers): most designs are accepted at most steps.
+        """
+        sysa, n = self.sysa, self.n
+        v0x, v0y, v0z = Y[3], Y[4], Y[5]
+        a0x, a0y, a0z = F[3], F[4], F[5]
+        if evi is not None:
+            v1, a1 = Yn[3:6].copy(), K[6][3:6].copy()
+            an = np.broadcast_to(np.asarray(aux_n["accel"], dtype=float), (n,)).copy()
+            z1 = Yn[2].copy()
+            Ye, Fe, aux_e = event
+            v1[:, evi] = Ye[3:6]
+            a1[:, evi] = Fe[3:6]
+            an[evi] = np.broadcast_to(np.asarray(aux_e["accel"], dtype=float), (len(evi),))
+            z1[evi] = Ye[2]
+        else:
+            v1, a1, an, z1 = Yn[3:6], K[6][3:6], np.asarray(aux_n["accel"], dtype=float), Yn[2]
+        v1x, v1y, v1z = v1
+        a1x, a1y, a1z = a1
+        self.vmax = np.where(acc, np.maximum(self.vmax, np.sqrt(v1x * v1x + v1y * v1y + v1z * v1z)), self.vmax)
+        self.amax = np.where(acc, np.maximum(self.amax, an), self.amax)
+        self.zmax = np.where(acc, np.maximum(self.zmax, z1), self.zmax)
+        # a speed maximum inside the step: v . a goes from + to -
+        inner = acc & (v0x * a0x + v0y * a0y + v0z * a0z > 0.0) & (v1x * a1x + v1y * a1y + v1z * a1z < 0.0)
+        # an acceleration maximum inside the step: the dense output's rate of |a| goes from + to -
+        kv = K[:, 3:6, :].reshape(7, 3 * n)           # a view: each stage's velocity rows are contiguous
+        q = [np.einsum("s,sk->k", DOPRI_P[:, c], kv).reshape(3, n) for c in (1, 2, 3)]
+        hs = np.where(hh > 0, hh, 1.0)
+        te = th_end
+        j0 = 2.0 * q[0] / hs
+        j1 = (2.0 * q[0] + 6.0 * q[1] * te + 12.0 * q[2] * te * te) / hs
+        ainner = acc & (a0x * j0[0] + a0y * j0[1] + a0z * j0[2] > 0.0) & (a1x * j1[0] + a1y * j1[1] + a1z * j1[2] < 0.0)
+        if np.any(inner) or np.any(ainner):
+            rows = np.flatnonzero(inner | ainner)
+            Qv = np.empty((3, 4, len(rows)))
+            Qv[:, 0] = F[3:6, rows]
+            for c in range(3):
+                Qv[:, c + 1] = q[c][:, rows]
+            loc = {int(r): k for k, r in enumerate(rows)}
+            if np.any(inner):
+                sel = np.array([loc[int(r)] for r in np.flatnonzero(inner)])
+                Qs, Yv, hv = Qv[:, :, sel], Y[3:6, rows[sel]], hh[rows[sel]]
+
+                def speed(th):
+                    v = _dense(Yv, hv, Qs, th)
+                    return np.sqrt(np.sum(v * v, axis=0))
+                _, best = _golden_max(speed, te[rows[sel]])
+                self.vmax[rows[sel]] = np.maximum(self.vmax[rows[sel]], best)
+            if np.any(ainner):
+                sel = np.array([loc[int(r)] for r in np.flatnonzero(ainner)])
+                Qa = Qv[:, :, sel]
+
+                def accel(th):
+                    a = _dense_rate(Qa, th)
+                    return np.sqrt(np.sum(a * a, axis=0))
+                _, best = _golden_max(accel, te[rows[sel]])
+                self.amax[rows[sel]] = np.maximum(self.amax[rows[sel]], best)
+        prop = sysa.propulsive(self.modes)
+        self.burn = self.burn + np.where(acc & prop, hh * te, 0.0)
+        if self.has_p:
+            pn = np.broadcast_to(sysa.pressures(Yn, self.modes), (n,)).copy()
+            if evi is not None:
+                pn[evi] = np.broadcast_to(sub_e.pressures(event[0], self.modes[:, evi]), (len(evi),))
+            self.peak_p = np.where(acc, np.maximum(self.peak_p, pn), self.peak_p)
+
+
+def _table(out: dict[str, np.ndarray], outputs: Sequence[str]) -> np.ndarray:
+    return np.column_stack([out[k] for k in outputs]) if outputs else np.zeros((len(next(iter(out.values()))), 0))
+
+
+def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel: np.ndarray, rows: np.ndarray,
+            t: np.ndarray, h: np.ndarray, Y: np.ndarray, Q: np.ndarray, modes: np.ndarray, kin: np.ndarray,
+            ga: np.ndarray, gb: np.ndarray) -> np.ndarray:
+    """Fraction of the step at which event ``j`` crosses zero, per design (vectorised Illinois iteration)."""
+    Y0, hh, t0 = Y[:, rows], h[rows], t[rows]
+    need = ev.needs_drive[j]
+    if need:
+        local = sub.subset(sel) if sub is not None and len(sel) != sub.n else sub
+        m_loc, k_loc = modes[:, rows], kin[rows]
+
+    def g(theta):
+        yy = _dense(Y0, hh, Q, theta)
+        tt = t0 + theta * hh
+        if need:
+            _, ax_ = local.rhs(tt, yy, m_loc, k_loc)
+            return ev.value(j, local, tt, yy, ax_)
+        return ev.value(j, sysa, tt, yy, None, rows)
+
+    a = np.zeros(len(rows))
+    b = np.ones(len(rows))
+    fa, fb = ga.astype(float).copy(), gb.astype(float).copy()
+    done = (fa == 0.0)
+    root = np.where(done, 0.0, np.where(fb == 0.0, 1.0, np.nan))
+    done |= fb == 0.0
+    tol = np.maximum(4 * _EPS * np.maximum(np.abs(t0), 1.0) / np.where(hh > 0, hh, 1.0), 1e-13)
+    for _ in range(80):
+        if np.all(done):
+            break
+        den = fb - fa
+        c = np.where(den != 0.0, b - fb * (b - a) / np.where(den != 0.0, den, 1.0), 0.5 * (a + b))
+        lo, hi = np.minimum(a, b), np.maximum(a, b)
+        c = np.where((c <= lo) | (c >= hi) | ~np.isfinite(c), 0.5 * (a + b), c)
+        fc = g(c)
+        exact = (fc == 0.0) & ~done
+        root = np.where(exact, c, root)
+        done |= exact
+        opp = np.sign(fc) != np.sign(fb)       # root between c and b
+        # Illinois: halve the retained end's value when the same end is kept twice
+        fa_new = np.where(opp, fb, fa * 0.5)
+        a_new = np.where(opp, b, a)
+        a, fa = np.where(done, a, a_new), np.where(done, fa, fa_new)
+        b, fb = np.where(done, b, c), np.where(done, fb, fc)
+        conv = ~done & (np.abs(b - a) <= tol)
+        # the event has happened at the end where g has its post-crossing sign: take the later end
+        root = np.where(conv, np.maximum(a, b), root)
+        done |= conv
+    root = np.where(np.isnan(root), np.maximum(a, b), root)
+    return root

@@ -1,0 +1,440 @@
+"""Design studies: sweeps, local sensitivities, bounded optimisation and dispersion, on any engine.
+
+Every study is a table of designs: rows of parameter values (key paths of
+the model, :mod:`thrustgraph.designs`) flown by :func:`evaluate` on an
+engine (:mod:`thrustgraph.engines`) and returned as a :class:`DesignTable` of
+outcome values (:mod:`thrustgraph.outcomes`). Designs that cannot fly (a
+value outside its bounds, a combination a component refuses, no lift-off, an
+integration failure) are screened out and say why in their row; they never
+stop the study. Ctrl-C keeps the rows already flown (the table says how many).
+
+Studies
+-------
+:func:`sweep`
+    every combination (``combine="grid"``) or the n-th values together
+    (``"list"``) of the varied parameters.
+:func:`sensitivities`
+    local derivatives of each outcome with respect to each parameter by
+    central differences at the model's values (:class:`Sensitivity`).
+:func:`thrustgraph.optimisation.optimise`
+    a bounded optimisation of one outcome with limits on others.
+:func:`thrustgraph.dispersion.disperse`
+    a seeded Monte Carlo dispersion with statistics and the impact footprint.
+
+Examples
+--------
+>>> from thrustgraph.modelfile import load_model, default_model_path
+>>> table = sweep(load_model(default_model_path()), ["components.bottle.fill=0.2..0.4 in 3"],
+...               outputs=["apogee"], engine="serial", quiet=True)
+>>> [round(float(v), 2) for v in table.column("apogee")]
+[53.95, 54.76, 52.28]
+>>> table.status.tolist()
+['ok', 'ok', 'ok']
+"""
+
+from __future__ import annotations
+
+import io
+import itertools
+import math
+import os
+import time
+from dataclasses import dataclass, field
+from typing import Any, Sequence
+
+import numpy as np
+
+from .designs import DesignParameter, within_bounds
+from .engines import FLIGHTS, ENGINES, FlightTask, chunks, default_chunk_size, make_engine
+from .errors import ModelError
+from .model import Model, ParsedModel, parse_model
+from .outcomes import OUTPUTS, STATUS_NOT_RUN, STATUS_OK, STATUS_SCREENED, check_outputs, output_names
+from .studyprogress import StudyProgress
+from .studyspec import Vary
+
+__all__ = ["DesignTable", "evaluate", "sweep", "sensitivities", "Sensitivity", "choose_engine", "run_options",
+           "DEFAULT_OUTPUTS", "as_vary"]
+
+#: Outcomes a study reports when none are named.
+DEFAULT_OUTPUTS = tuple(output_names())
+
+#: Keyword options every study passes on to :func:`evaluate`.
+run_options = ("engine", "flights", "workers", "scheduler", "timeout", "chunk_size", "quiet", "stream", "rtol",
+               "atol")
+
+
+def _fmt(x: float) -> str:
+    return "" if not math.isfinite(x) else repr(float(x))
+
+
+@dataclass
+class DesignTable:
+    """The designs of a study and what each gave.
+
+    Fields
+    ------
+    kind : the study kind ("sweep", "dispersion", ...)
+    params : the varied parameters, in column order
+    outputs : outcome names, in column order
+    x : design values, SI, shape (rows, parameters)
+    values : outcome values, SI, shape (rows, outputs); NaN where not available
+    status : per row "ok", "screened" or "not run"
+    notes : per row, why a design was screened (or "")
+    interrupted : the study was stopped (Ctrl-C) before every row was flown
+    info : lines describing the study for the CSV head (model, seed, tolerances)
+    engine, flights, seconds : how it ran (not written to the CSV, which depends only on the designs)
+    """
+
+    kind: str
+    params: tuple[DesignParameter, ...]
+    outputs: tuple[str, ...]
+    x: np.ndarray
+    values: np.ndarray
+    status: np.ndarray
+    notes: list[str]
+    interrupted: bool = False
+    info: dict[str, Any] = field(default_factory=dict)
+    engine: str = ""
+    flights: str = ""
+    seconds: float = 0.0
+
+    def __len__(self) -> int:
+        return len(self.x)
+
+    @property
+    def ok(self) -> np.ndarray:
+        """True for the rows that flew."""
+        return self.status == STATUS_OK
+
+    @property
+    def counts(self) -> dict[str, int]:
+        return {s: int(np.sum(self.status == s)) for s in (STATUS_OK, STATUS_SCREENED, STATUS_NOT_RUN)}
+
+    def column(self, name: str) -> np.ndarray:
+        """An outcome's values (SI) or a parameter's values (SI, by key path)."""
+        if name in self.outputs:
+            return self.values[:, self.outputs.index(name)]
+        paths = [p.path for p in self.params]
+        if name in paths:
+            return self.x[:, paths.index(name)]
+        raise ModelError(name, "is not a column of this study", f"columns: {', '.join(paths + list(self.outputs))}")
+
+    def screened(self) -> list[tuple[int, str]]:
+        """(row, reason) of every screened design."""
+        return [(i, self.notes[i]) for i in np.flatnonzero(self.status == STATUS_SCREENED)]
+
+    def to_csv(self) -> str:
+        """The table as CSV text: a commented head, then one row per design.
+
+        Parameters are in the units the study shows them in, outcomes in SI;
+        every header names its unit in brackets (``[1]`` for a plain number).
+        Values are written in full precision; empty cells are outcomes a
+        design does not have.
+        """
+        buf = io.StringIO()
+        buf.write("# thrustgraph design study\n")
+        for k, v in self.info.items():
+            buf.write(f"# {k}: {v}\n")
+        c = self.counts
+        buf.write(f"# rows: {len(self)} ({c['ok']} ok, {c['screened']} screened, {c['not run']} not run)\n")
+        if self.interrupted:
+            buf.write(f"# interrupted: {len(self) - c['not run']} of {len(self)} designs were flown before the "
+                      "study was stopped; the rest are marked 'not run'\n")
+        heads = ["design", "status"] + [p.header for p in self.params] + [OUTPUTS[o].header for o in self.outputs]
+        buf.write(",".join(heads + ["note"]) + "\n")
+        shown = [np.atleast_1d(p.shown(self.x[:, j])) for j, p in enumerate(self.params)]
+        for i in range(len(self)):
+            cells = [str(i), str(self.status[i])]
+            cells += [_fmt(col[i]) for col in shown]
+            cells += [_fmt(v) for v in self.values[i]]
+            note = self.notes[i].replace('"', "'")
+            cells.append(f'"{note}"' if ("," in note or "\n" in note) else note)
+            buf.write(",".join(cells) + "\n")
+        return buf.getvalue()
+
+    def write_csv(self, path: str | os.PathLike[str]) -> None:
+        """Write :meth:`to_csv` atomically (a temporary file renamed into place)."""
+        from .modelfile import atomic_write
+
+        atomic_write(path, self.to_csv())
+
+
+def choose_engine(n: int, parsed: ParsedModel, engine: str = "auto", flights: str = "auto") -> tuple[str, str]:
+    """Resolve ``auto``: vectorised ensembles from a few hundred designs of a family they support, a process pool
+    for mid-size studies on a machine with more than one core, this process otherwise."""
+    if flights not in FLIGHTS + ("auto",):
+        raise ModelError("--flights", f"unknown way to fly {flights!r}", f"choose one of {', '.join(FLIGHTS)}, auto")
+    if engine not in ENGINES + ("auto",) and not hasattr(engine, "run"):
+        make_engine(str(engine))  # raises the clear message
+    if flights == "auto":
+        flights = "single"
+        if n >= 200:
+            from .ensemble import unsupported
+
+            if unsupported(parsed) is None:
+                flights = "ensemble"
+    if engine == "auto":
+        cores = os.cpu_count() or 1
+        big = 4000 if flights == "ensemble" else 32
+        engine = "processes" if n >= big and cores > 1 else "serial"
+    return engine, flights
+
+
+def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: Sequence[str] | None = None, *,
+             parsed: ParsedModel | None = None, kind: str = "designs", engine: Any = "auto", flights: str = "auto",
+             workers: int | None = None, scheduler: Any = None, timeout: float = 10.0, chunk_size: int | None = None,
+             quiet: bool = False, stream: Any = None, rtol: float | None = None, atol: float | None = None,
+             info: dict[str, Any] | None = None) -> DesignTable:
+    """Fly a table of designs and return their outcomes.
+
+    Parameters
+    ----------
+    model : the base model (raw values)
+    params : the varied parameters (resolved against ``parsed``)
+    x : design values, SI, shape (rows, parameters)
+    outputs : outcome names (default: all)
+    engine : ``serial``, ``processes``, ``dask``, ``auto``, or an engine object (kept open: the caller closes it)
+    flights : ``single``, ``ensemble`` or ``auto``
+    workers : processes of the pool (default: one per core)
+    scheduler, timeout : Dask scheduler address (or Client) and how long to wait for it, s
+    chunk_size : designs per chunk (default: :func:`~thrustgraph.engines.default_chunk_size`)
+    quiet, stream : progress bar off / where to draw it (default standard error, only on a terminal)
+    rtol, atol : integration tolerances (default: the model's ``[run]`` values)
+    """
+    parsed = parsed or parse_model(model)
+    outputs = tuple(check_outputs(outputs if outputs is not None else DEFAULT_OUTPUTS))
+    x = np.asarray(x, dtype=float).reshape(-1, len(params))
+    n = len(x)
+    if isinstance(engine, str):
+        eng_name, flights = choose_engine(n, parsed, engine, flights)
+    else:
+        eng_name, flights = engine.name, choose_engine(n, parsed, "serial", flights)[1]
+    if flights == "ensemble":
+        from .ensemble import unsupported
+
+        why = unsupported(parsed)
+        if why:
+            raise ModelError("--flights ensemble", f"the vectorised ensemble cannot fly this model: {why}",
+                             "use --flights single")
+    own = isinstance(engine, str)
+    eng = make_engine(eng_name, workers=workers, scheduler=scheduler, timeout=timeout) if own else engine
+    task = FlightTask(model, tuple(p.path for p in params), tuple(p.unit for p in params), outputs, flights,
+                      rtol, atol)
+    size = chunk_size or default_chunk_size(n, eng.workers, flights)
+    if eng.name == "serial" and flights == "single" and chunk_size is None:
+        size = min(size, 8)
+    values = np.full((n, len(outputs)), np.nan)
+    status = np.array([STATUS_NOT_RUN] * n, dtype=object)
+    notes = ["not flown: the study was stopped first"] * n
+    # Designs outside their declared bounds are screened here, before any engine sees them.
+    inside = np.ones(n, dtype=bool)
+    for j, p in enumerate(params):
+        ok = within_bounds(p, x[:, j]) if n else np.ones(0, bool)
+        for i in np.flatnonzero(inside & ~ok):
+            from .designs import bounds_text
+
+            status[i] = STATUS_SCREENED
+            notes[i] = f"{p.path} = {p.text(x[i, j])} is outside its bounds ({bounds_text(p)})"
+        inside &= ok
+    rows = np.flatnonzero(inside)
+    bar = StudyProgress(n, kind, stream=stream, quiet=quiet)
+    done = n - len(rows)
+    screened = int(np.sum(status == STATUS_SCREENED))
+    bar.update(done, screened)
+    interrupted = False
+    t0 = time.perf_counter()
+    # contiguous runs of in-bounds rows, cut into chunks
+    parts = [part[:, 0] for _, part in chunks(rows.reshape(-1, 1), size)]
+    index_of = {int(idx[0]): idx for idx in parts}
+    try:
+        for res in eng.run(task, ((int(idx[0]), x[idx]) for idx in parts)):
+            idx = index_of[res.start]
+            values[idx] = res.values
+            status[idx] = res.status
+            for r, note in zip(idx, res.notes):
+                notes[r] = note
+            done += len(idx)
+            screened += sum(1 for s in res.status if s == STATUS_SCREENED)
+            bar.update(done, screened)
+    except KeyboardInterrupt:
+        interrupted = True
+    finally:
+        bar.close()
+        if own:
+            eng.close()
+    for i in range(n):
+        if status[i] == STATUS_OK and notes[i] == "not flown: the study was stopped first":
+            notes[i] = ""
+    head = {"model": parsed.model.name, "study": kind,
+            "flights": f"{flights} (rtol {rtol if rtol is not None else parsed.run.rtol:g}, "
+                       f"atol {atol if atol is not None else parsed.run.atol:g})"}
+    head.update(info or {})
+    return DesignTable(kind=kind, params=tuple(params), outputs=outputs, x=x, values=values,
+                       status=np.asarray(status, dtype=str), notes=notes, interrupted=interrupted, info=head,
+                       engine=eng_name, flights=flights, seconds=time.perf_counter() - t0)
+
+
+def as_vary(item: Vary | str) -> Vary:
+    """A :class:`~thrustgraph.studyspec.Vary` from itself or its text form."""
+    return item if isinstance(item, Vary) else Vary.parse(str(item))
+
+
+def _prepare(model: Model | str | None) -> tuple[Model, ParsedModel]:
+    from .modelfile import default_model_path, load_model
+
+    if model is None or isinstance(model, (str, os.PathLike)):
+        model = load_model(model or default_model_path())
+    return model, parse_model(model)
+
+
+def sweep(model: Model | str | None, vary: Sequence[Vary | str], *, combine: str = "grid",
+          outputs: Sequence[str] | None = None, **run: Any) -> DesignTable:
+    """Fly every combination (``grid``) or the n-th values together (``list``) of the varied parameters.
+
+    In a grid the first parameter changes slowest. ``run`` takes the options of :func:`evaluate`.
+    """
+    model, parsed = _prepare(model)
+    vary = [as_vary(v) for v in vary]
+    if not vary:
+        raise ModelError("sweep", "varies no parameter", 'add --vary "components.bottle.fill=0.1..0.6 in 11"')
+    params = [v.resolve(parsed, where=f"sweep {v.path}") for v in vary]
+    cols = [v.si_values(p, where=f"sweep {v.path}") for v, p in zip(vary, params)]
+    if combine == "grid":
+        total = math.prod(len(c) for c in cols)
+        if total > 50_000_000:
+            raise ModelError("sweep", f"the grid has {total} designs", "use fewer values per parameter")
+        x = np.array(list(itertools.product(*cols)), dtype=float).reshape(total, len(cols))
+    elif combine == "list":
+        lengths = {len(c) for c in cols}
+        if len(lengths) != 1:
+            raise ModelError("sweep", f"a list sweep needs the same number of values for every parameter, got "
+                             f"{', '.join(f'{v.path}: {len(c)}' for v, c in zip(vary, cols))}",
+                             "give equally long lists, or combine = \"grid\"")
+        x = np.column_stack(cols)
+    else:
+        raise ModelError("sweep combine", f"expected \"grid\" or \"list\", got {combine!r}",
+                         "grid: every combination; list: the n-th values together")
+    info = {"combine": f"{combine} of {len(params)} parameter(s)"}
+    return evaluate(model, params, x, outputs, parsed=parsed, kind="sweep", info=info, **run)
+
+
+@dataclass
+class Sensitivity:
+    """Local sensitivities of each outcome to each parameter at the model's values.
+
+    Fields
+    ------
+    params, outputs : in the order of the arrays
+    nominal : outcome values at the model's values (SI), shape (outputs,)
+    derivative : d outcome / d parameter, SI per SI, shape (outputs, parameters)
+    elasticity : (x / y) d y / d x, the % change of the outcome per 1 % change of the parameter; where the
+        parameter's value is 0 it is the % change of the outcome per one unit of the parameter instead
+    steps : the finite-difference step of each parameter, SI
+    scheme : per parameter "central", "forward" or "backward" (at a bound)
+    table : the flown designs
+    """
+
+    params: tuple[DesignParameter, ...]
+    outputs: tuple[str, ...]
+    nominal: np.ndarray
+    derivative: np.ndarray
+    elasticity: np.ndarray
+    steps: np.ndarray
+    scheme: tuple[str, ...]
+    table: DesignTable
+
+    def per_unit(self, output: str, path: str) -> float:
+        """The derivative in the output's SI unit per one of the parameter's shown units."""
+        j = [p.path for p in self.params].index(path)
+        return float(self.derivative[self.outputs.index(output), j] * _unit_size(self.params[j]))
+
+    def to_csv(self) -> str:
+        buf = io.StringIO()
+        buf.write("# thrustgraph local sensitivities (finite differences at the model's values)\n")
+        for k, v in self.table.info.items():
+            buf.write(f"# {k}: {v}\n")
+        buf.write("output,parameter,output value,output unit,parameter value,parameter unit,derivative per "
+                  "parameter unit,elasticity [1],step,scheme\n")
+        for k, o in enumerate(self.outputs):
+            for j, p in enumerate(self.params):
+                buf.write(",".join([o, p.path, _fmt(self.nominal[k]), OUTPUTS[o].unit or "1",
+                                    _fmt(float(p.shown(p.nominal))), p.unit or "1",
+                                    _fmt(self.derivative[k, j] * _unit_size(p)), _fmt(self.elasticity[k, j]),
+                                    _fmt(float(p.shown(p.nominal + self.steps[j])) - float(p.shown(p.nominal))),
+                                    self.scheme[j]]) + "\n")
+        return buf.getvalue()
+
+    def write_csv(self, path: str | os.PathLike[str]) -> None:
+        from .modelfile import atomic_write
+
+        atomic_write(path, self.to_csv())
+
+
+def _unit_size(p: DesignParameter) -> float:
+    """Size of one shown unit of a parameter in SI (without the offset of degC)."""
+    if not p.unit or p.unit == p.si:
+        return 1.0
+    from .units import Q_
+
+    return float(Q_(1.0, p.unit).to(p.si).magnitude - Q_(0.0, p.unit).to(p.si).magnitude)
+
+
+def sensitivities(model: Model | str | None, vary: Sequence[Vary | str], *, outputs: Sequence[str] | None = None,
+                  step: float = 1e-3, **run: Any) -> Sensitivity:
+    """Local sensitivities by central differences at the model's values.
+
+    The step of each parameter is ``step`` times its value (times one of its
+    units when the value is 0), one-sided where a bound is nearer than that.
+    With outcomes accurate to the integration tolerance (about 1e-9) a
+    relative step of 1e-3 keeps both the truncation error of the central
+    difference (~step^2) and the amplified noise (~1e-9 / step) near 1e-6.
+    """
+    model, parsed = _prepare(model)
+    vary = [as_vary(v) for v in vary]
+    if not vary:
+        raise ModelError("sensitivity", "names no parameter", 'add --vary components.bottle.fill')
+    if not 0.0 < step < 0.5:
+        raise ModelError("--step", f"must be a relative step between 0 and 0.5, got {step!r}", "use e.g. 0.001")
+    params = [v.resolve(parsed, where=f"sensitivity {v.path}") for v in vary]
+    x0 = np.array([p.nominal for p in params])
+    rows = [x0]
+    steps, scheme = [], []
+    for j, p in enumerate(params):
+        h = step * abs(p.nominal) if p.nominal != 0.0 else step * _unit_size(p)
+        up, down = x0.copy(), x0.copy()
+        up[j] += h
+        down[j] -= h
+        okp, okm = bool(within_bounds(p, up[j])), bool(within_bounds(p, down[j]))
+        if okp and okm:
+            scheme.append("central")
+        elif okp:
+            down = x0.copy()
+            scheme.append("forward")
+        elif okm:
+            up = x0.copy()
+            scheme.append("backward")
+        else:
+            raise ModelError(f"sensitivity {p.path}", "the step leaves the parameter's bounds on both sides",
+                             "use a smaller --step")
+        steps.append(h)
+        rows += [up, down]
+    table = evaluate(model, params, np.array(rows), outputs, parsed=parsed, kind="sensitivity",
+                     info={"step": f"{step:g} of each value"}, **run)
+    if table.status[0] != STATUS_OK:
+        raise ModelError("sensitivity", f"the model itself cannot fly: {table.notes[0]}", "fix the model first")
+    outs = table.outputs
+    K, P = len(outs), len(params)
+    d = np.full((K, P), np.nan)
+    for j in range(P):
+        a, b = 1 + 2 * j, 2 + 2 * j
+        if table.status[a] == STATUS_OK and table.status[b] == STATUS_OK:
+            span = table.x[a, j] - table.x[b, j]
+            d[:, j] = (table.values[a] - table.values[b]) / span
+    y0 = table.values[0]
+    el = np.full((K, P), np.nan)
+    for j, p in enumerate(params):
+        scale = p.nominal if p.nominal != 0.0 else _unit_size(p)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            el[:, j] = np.where(y0 != 0.0, d[:, j] * scale / y0, np.nan)
+    return Sensitivity(params=tuple(params), outputs=outs, nominal=y0, derivative=d, elasticity=el,
+                       steps=np.array(steps), scheme=tuple(scheme), table=table)

@@ -1,0 +1,236 @@
+"""Plots of studies (matplotlib, Agg; PNG or SVG): sweep maps, the impact footprint, sensitivity bars,
+the optimisation trace.
+
+Figures (returned by the functions below, drawn on an Agg canvas, no pyplot state):
+
+``sweep``
+    one varied parameter: every outcome asked for against it; two: a filled
+    map of one outcome over the grid (screened designs marked with a cross);
+    more: the first two parameters as a scatter coloured by the outcome.
+``footprint``
+    the impact points of a dispersion with their mean, the covariance
+    ellipses and the launch point, on equal axes.
+``sensitivity``
+    horizontal bars of the elasticities (% change of each outcome per 1 %
+    change of each parameter), one panel per outcome.
+``optimisation``
+    the objective of every flown design in the order flown, the feasible
+    ones marked, and the best design.
+
+Examples
+--------
+>>> from thrustgraph.modelfile import load_model, default_model_path
+>>> from thrustgraph.studies import sweep
+>>> t = sweep(load_model(default_model_path()), ["components.bottle.fill=0.2..0.4 in 3"], outputs=["apogee"],
+...           engine="serial", quiet=True)
+>>> render(sweep_figure(t), "png")[:8] == b"\\x89PNG\\r\\n\\x1a\\n"
+True
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import Any, Sequence
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+from .outcomes import OUTPUTS, STATUS_OK
+from .plots import render
+
+__all__ = ["sweep_figure", "footprint_figure", "sensitivity_figure", "optimisation_figure", "save_study_plots",
+           "render"]
+
+_MAIN = "#1f5fbf"
+_BAD = "#c0392b"
+
+
+def _new(rows: int = 1, cols: int = 1, size: tuple[float, float] = (7.5, 4.8)):
+    fig = Figure(figsize=size, layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig, fig.subplots(rows, cols, squeeze=False)
+
+
+def _label(name: str) -> str:
+    o = OUTPUTS.get(name)
+    return f"{name.replace('_', ' ')} [{o.unit}]" if o and o.unit else name.replace("_", " ")
+
+
+def _plabel(p) -> str:
+    return f"{p.path} [{p.unit}]" if p.unit else p.path
+
+
+def sweep_figure(table: Any, output: str | None = None) -> Figure:
+    """The sweep's map (see the module docstring); ``output`` picks the outcome (default: the first)."""
+    output = output or table.outputs[0]
+    ok = table.ok
+    params = table.params
+    if len(params) == 1:
+        outs = [o for o in table.outputs if o not in ("impact_x", "impact_y", "launch_mass")][:4] or [output]
+        if output not in outs:
+            outs = [output] + outs[:3]
+        fig, ax = _new(len(outs), 1, (7.5, 2.3 * len(outs) + 0.6))
+        x = np.atleast_1d(params[0].shown(table.x[:, 0]))
+        for k, o in enumerate(outs):
+            a = ax[k, 0]
+            y = table.column(o)
+            a.plot(x[ok], y[ok], "o-", color=_MAIN, ms=3, lw=1.2)
+            if np.any(~ok):
+                lo = np.nanmin(y[ok]) if np.any(ok) else 0.0
+                a.plot(x[~ok], np.full(np.sum(~ok), lo), "x", color=_BAD, label="screened")
+                a.legend(loc="best")
+            a.set_ylabel(_label(o))
+            a.grid(True, alpha=0.35)
+        ax[-1, 0].set_xlabel(_plabel(params[0]))
+        fig.suptitle(f"Sweep of {params[0].path}")
+        return fig
+    fig, ax = _new()
+    a = ax[0, 0]
+    x0 = np.atleast_1d(params[0].shown(table.x[:, 0]))
+    x1 = np.atleast_1d(params[1].shown(table.x[:, 1]))
+    z = np.where(ok, table.column(output), np.nan)
+    u0, u1 = np.unique(x0), np.unique(x1)
+    grid = len(params) == 2 and len(u0) * len(u1) == len(table) and len(u0) > 1 and len(u1) > 1
+    if grid:
+        Z = np.full((len(u1), len(u0)), np.nan)
+        i0, i1 = np.searchsorted(u0, x0), np.searchsorted(u1, x1)
+        Z[i1, i0] = z
+        if np.sum(np.isfinite(Z)) >= 4 and len(u0) > 2 and len(u1) > 2:
+            m = a.contourf(u0, u1, Z, levels=14, cmap="viridis")
+            a.contour(u0, u1, Z, levels=7, colors="k", linewidths=0.4, alpha=0.5)
+        else:
+            m = a.pcolormesh(u0, u1, Z, cmap="viridis", shading="nearest")
+        if np.any(np.isfinite(z)):
+            best = int(np.nanargmax(z))
+            a.plot(x0[best], x1[best], "*", color="white", mec="k", ms=13, label=f"highest {output.replace('_', ' ')}")
+            a.legend(loc="best")
+    else:
+        m = a.scatter(x0[ok], x1[ok], c=z[ok], cmap="viridis", s=18)
+    if np.any(~ok):
+        a.plot(x0[~ok], x1[~ok], "x", color=_BAD, ms=6, label="screened")
+        a.legend(loc="best")
+    fig.colorbar(m, ax=a, label=_label(output))
+    a.set_xlabel(_plabel(params[0]))
+    a.set_ylabel(_plabel(params[1]))
+    a.set_title(f"{output.replace('_', ' ')} over {len(table)} designs" +
+                (f" ({int(np.sum(~ok))} screened)" if np.any(~ok) else ""))
+    return fig
+
+
+def footprint_figure(dispersion: Any) -> Figure:
+    """Impact points, mean, covariance ellipses and the launch point of a dispersion."""
+    fig, ax = _new(size=(6.8, 6.2))
+    a = ax[0, 0]
+    fp = dispersion.footprint
+    a.plot([0.0], [0.0], "^", color="k", ms=9, label="launch point")
+    if fp is None:
+        a.text(0.5, 0.5, "fewer than 3 designs reached the ground", transform=a.transAxes, ha="center")
+    else:
+        a.scatter(fp.points[:, 0], fp.points[:, 1], s=9, color=_MAIN, alpha=0.55, lw=0,
+                  label=f"impact points ({len(fp.points)})")
+        a.plot([fp.mean[0]], [fp.mean[1]], "+", color="k", ms=14, mew=2, label="mean")
+        styles = ["-", "--", ":", "-."]
+        for k, (lvl, e) in enumerate(sorted(fp.ellipses.items())):
+            xy = e.outline()
+            a.plot(xy[:, 0], xy[:, 1], styles[k % 4], color=_BAD, lw=1.4,
+                   label=f"{lvl * 100:g} % ellipse ({e.semi_major:.3g} m x {e.semi_minor:.3g} m)")
+    a.set_aspect("equal", adjustable="datalim")
+    a.set_xlabel("downrange x [m]")
+    a.set_ylabel("cross-range y [m]")
+    a.grid(True, alpha=0.35)
+    a.legend(loc="best", fontsize=8)
+    a.set_title(f"Impact footprint: {len(dispersion.table)} samples, seed {dispersion.seed}")
+    return fig
+
+
+def sensitivity_figure(sens: Any, outputs: Sequence[str] | None = None) -> Figure:
+    """Elasticities of each outcome to each parameter, one panel per outcome."""
+    outs = [o for o in (outputs or sens.outputs) if o in sens.outputs]
+    outs = [o for o in outs if np.any(np.isfinite(sens.elasticity[sens.outputs.index(o)]))][:6] or outs[:1]
+    fig, ax = _new(len(outs), 1, (7.5, 1.0 + (0.45 * len(sens.params) + 0.7) * len(outs)))
+    names = [p.path if p.nominal != 0.0 else f"{p.path} (per 1 {p.unit or 'unit'})" for p in sens.params]
+    for k, o in enumerate(outs):
+        a = ax[k, 0]
+        e = sens.elasticity[sens.outputs.index(o)]
+        colours = [_MAIN if v >= 0 else _BAD for v in np.nan_to_num(e)]
+        a.barh(np.arange(len(e)), np.nan_to_num(e), color=colours)
+        a.set_yticks(np.arange(len(e)), names, fontsize=8)
+        a.axvline(0.0, color="k", lw=0.8)
+        a.set_title(f"{o.replace('_', ' ')} = {sens.nominal[sens.outputs.index(o)]:.4g} {OUTPUTS[o].unit}", fontsize=9)
+        a.grid(True, axis="x", alpha=0.35)
+    ax[-1, 0].set_xlabel("% change of the outcome per 1 % change of the parameter")
+    fig.suptitle("Local sensitivities at the model's values")
+    return fig
+
+
+def optimisation_figure(opt: Any) -> Figure:
+    """The objective of every flown design, in order, with the feasible ones and the best marked."""
+    fig, ax = _new()
+    a = ax[0, 0]
+    t = opt.table
+    y = t.column(opt.objective)
+    n = np.arange(len(y))
+    feas = t.ok.copy()
+    for lim in opt.limits:
+        v = t.column(lim.output)
+        m = np.array([lim.margin(float(q)) if math.isfinite(q) else -math.inf for q in v])
+        feas &= m >= -1e-6 * max(abs(lim.si()), 1.0)
+    a.plot(n[t.ok], y[t.ok], ".", color="#999999", label="flown")
+    a.plot(n[feas], y[feas], ".", color=_MAIN, label="within the limits")
+    if math.isfinite(opt.value):
+        a.axhline(opt.value, color=_BAD, lw=1.0, ls="--", label=f"best {opt.value:.5g} {OUTPUTS[opt.objective].unit}")
+    a.set_xlabel("design flown (in order)")
+    a.set_ylabel(_label(opt.objective))
+    a.grid(True, alpha=0.35)
+    a.legend(loc="best")
+    a.set_title(f"{'Maximise' if opt.maximise else 'Minimise'} {opt.objective.replace('_', ' ')} ({opt.method})")
+    return fig
+
+
+def save_study_plots(result: Any, directory: str | Path, *, fmt: str = "png", output: str | None = None) -> list[Path]:
+    """Draw the figures that fit a study result and write them to ``directory``; return the paths."""
+    from .dispersion import Dispersion
+    from .modelfile import atomic_write
+    from .optimisation import OptimisationResult
+    from .studies import DesignTable, Sensitivity
+
+    d = Path(directory)
+    d.mkdir(parents=True, exist_ok=True)
+    figs: dict[str, Figure] = {}
+    if isinstance(result, DesignTable):
+        figs["sweep"] = sweep_figure(result, output)
+    elif isinstance(result, Dispersion):
+        figs["footprint"] = footprint_figure(result)
+        first = output or ("range" if "range" in result.table.outputs else result.table.outputs[0])
+        figs["dispersion-histogram"] = _histogram(result, first)
+    elif isinstance(result, Sensitivity):
+        figs["sensitivity"] = sensitivity_figure(result)
+    elif isinstance(result, OptimisationResult):
+        figs["optimisation"] = optimisation_figure(result)
+        if len(result.params) >= 2 or len(result.params) == 1:
+            figs["optimisation-designs"] = sweep_figure(result.table, result.objective)
+    paths = []
+    for name, fig in figs.items():
+        p = d / f"{name}.{fmt}"
+        atomic_write(p, render(fig, fmt))
+        paths.append(p)
+    return paths
+
+
+def _histogram(dispersion: Any, output: str) -> Figure:
+    fig, ax = _new(size=(7.0, 4.2))
+    a = ax[0, 0]
+    v = dispersion.table.column(output)[dispersion.table.ok]
+    v = v[np.isfinite(v)]
+    if len(v):
+        a.hist(v, bins=min(40, max(8, int(math.sqrt(len(v))))), color=_MAIN, alpha=0.8)
+        s = dispersion.stats[output]
+        for key, ls in (("p05", ":"), ("p50", "-"), ("p95", ":")):
+            a.axvline(s[key], color=_BAD, ls=ls, lw=1.2)
+    a.set_xlabel(_label(output))
+    a.set_ylabel("designs")
+    a.grid(True, alpha=0.35)
+    a.set_title(f"{output.replace('_', ' ')}: 5 %, median and 95 % marked")
+    return fig
