@@ -136,7 +136,7 @@ class Balance:
     # ------------------------------------------------------------------
     def rhs(self, t: float, y: Any) -> list[float]:
         """Time derivative of the flat state vector (SI); what solve_ivp calls."""
-        return self._balance(t, y, None)
+        return self._balance(t, y if type(y) is list else y.tolist(), None)
 
     def drives(self, t: float, y: Any) -> dict[str, float]:
         """Drive pressure (Pa) per vessel and per discharging element, for events.
@@ -163,7 +163,7 @@ class Balance:
 
     # ------------------------------------------------------------------
     def _balance(self, t: float, y: Any, rec: dict | None) -> list[float]:
-        s = y.tolist() if hasattr(y, "tolist") else list(y)
+        s = y if type(y) is list else (y.tolist() if hasattr(y, "tolist") else list(y))
         sysm = self.system
         vx, vy, vz = s[3], s[4], s[5]
         rho, pa, Ta, wx, wy, wz = sysm.medium(s[2], t)
@@ -233,7 +233,7 @@ class Balance:
         gx, gy, gz = 0.0, 0.0, -g
         ax = ay = az = 0.0
         first = self._lines_at(t, s, outs, supplies, pa, gx, gy, gz)          # flows at a = 0
-        flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = first
+        flows, Tx, Ty, Tz, Qx, Qy, Qz, Ix, Iy, Iz = first
         Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz      # every applied force, at the current a
         Cx = Cy = Cz = 0.0   # friction on the guide or track
         if kin == Kinematics.HELD:
@@ -258,7 +258,7 @@ class Balance:
                     except ZeroDivisionError:
                         raise IntegrationError(_SINGULAR) from None
                     ax -= dx; ay -= dy_; az -= dz
-                    flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = self._lines_at(
+                    flows, Tx, Ty, Tz, Qx, Qy, Qz, Ix, Iy, Iz = self._lines_at(
                         t, s, outs, supplies, pa, gx - ax, gy - ay, gz - az)
                     Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
         else:  # guide or track: a = alpha u; friction mu |N| against the motion
@@ -293,12 +293,12 @@ class Balance:
                 alpha -= r / J
                 if alpha < 0.0 and at_foot:
                     alpha = 0.0
-                    flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = first
+                    flows, Tx, Ty, Tz, Qx, Qy, Qz, Ix, Iy, Iz = first
                     Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
                     break
                 if not coupled:
                     break
-                flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz) = self._lines_at(
+                flows, Tx, Ty, Tz, Qx, Qy, Qz, Ix, Iy, Iz = self._lines_at(
                     t, s, outs, supplies, pa, gx - alpha * u[0], gy - alpha * u[1], gz - alpha * u[2])
                 Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
             if alpha == 0.0 and at_foot:
@@ -402,7 +402,7 @@ class Balance:
             if vin is not None:
                 Ix += mdot * vin[0]; Iy += mdot * vin[1]; Iz += mdot * vin[2]
             flows.append((mdot, ve, pe, Ae, fl[4], up[0], p_in, vint, vin, rises))
-        return flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz)
+        return flows, Tx, Ty, Tz, Qx, Qy, Qz, Ix, Iy, Iz
 
     # ------------------------------------------------------------------
     def _record(self, rec, t, s, M, e, a, drags, weight, reaction, friction, outs, flows, jet_out, supplies,
