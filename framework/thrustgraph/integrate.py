@@ -144,11 +144,12 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
                  method: str | None = None, end_time: float | None = None,
                  progress: Callable[[float, float], None] | None = None, t0: float = 0.0,
                  y0: Any = None, modes0: list[int] | None = None, kin0: int | None = None,
-                 descending: bool = False) -> Segments:
+                 descending: bool = False, dense: bool = True) -> Segments:
     """The phase-by-phase integration alone, without building the result's signals and ledger.
 
     ``t0``, ``y0``, ``modes0``, ``kin0`` start the run from a given state (a dropped stage). Studies and
-    benchmarks that only need end states use this directly.
+    benchmarks that only need end states use this directly, with ``dense=False`` (no dense output: DOP853
+    then spends no extra evaluations per step on interpolants; results cannot be built from such segments).
     """
     run = system.run
     rtol = run.rtol if rtol is None else rtol
@@ -246,7 +247,7 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
             break
         try:
             sol = solve_ivp(bal.rhs, (t, t_end), y, method=method, rtol=rtol, atol=state.atol, events=fns,
-                            dense_output=True)
+                            dense_output=dense)
         except (ValueError, ZeroDivisionError, OverflowError) as exc:
             raise IntegrationError(f"integration failed at t = {t:.6g} s in phase {_label(sysm, ph)!r}: {exc}") from None
         segs.nfev += sol.nfev
