@@ -1,4 +1,11 @@
-"""The bundled bottle rocket flown from first principles: phases, ledger, audits, the head-acceleration coupling."""
+"""The bundled bottle rocket flown from first principles: phases, ledger, audits, the head-acceleration coupling.
+
+Sources of the checks: the mass and momentum residuals are closed-form identities of the control-volume balance
+(any fluid-mechanics text, e.g. White, Fluid Mechanics, "linear momentum for an accelerating control volume");
+the inertial head rho (g + a) h in the bottle frame is Gommes, Am. J. Phys. 78 (2010) 236; the water-jet thrust
+2 Cd A dp is the quasi-steady Bernoulli result (WJTA proceedings, references.md section 7). Everything else here is
+a consistency check of the model against itself (common practice, no source).
+"""
 
 from __future__ import annotations
 
