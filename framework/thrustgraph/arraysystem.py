@@ -47,7 +47,7 @@ from .arrayops import array_ops, vectorised
 from .assembly import KINEMATIC
 from .balance import Kinematics
 from .component import Ambient
-from .designs import DesignParameter
+from .designs import DesignParameter, with_values
 from .model import ParsedModel
 
 __all__ = ["ArraySystem", "unsupported", "IMPULSE", "GUIDE", "FREE"]
@@ -222,7 +222,7 @@ class ArraySystem:
             pa, Ta, rho = (np.broadcast_to(np.asarray(v, dtype=float), (self.n,))
                            for v in (self.amb.pressure, self.amb.temperature, self.amb.density))
             for r in range(self.n):
-                p = dataclasses.replace(base, **{f: float(col[r]) for f, col in changes.items()}) if changes else base
+                p = with_values(base, {f: float(col[r]) for f, col in changes.items()}) if changes else base
                 amb = Ambient(pressure=float(pa[r]), temperature=float(Ta[r]), density=float(rho[r]))
                 self.mode0[k, r] = names.index(cls.initial_mode(p, amb))
 

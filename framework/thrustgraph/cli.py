@@ -25,7 +25,7 @@ from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError
 __all__ = ["main", "COMMANDS", "build_parser"]
 
 # Sub-command modules, in the order `thrustgraph --help` lists them.
-COMMANDS = ["run", "compare", "calibrate", "check", "kinds", "new", "export", "graph", "plot", "report"]
+COMMANDS = ["run", "compare", "calibrate", "check", "kinds", "new", "export", "graph", "plot", "report", "study"]
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -46,7 +46,6 @@ Examples
 
 from __future__ import annotations
 
-import copy
 import math
 import time
 from dataclasses import dataclass
@@ -56,7 +55,7 @@ import numpy as np
 
 from .arrayops import keep_heap
 from .arraysystem import FREE, GUIDE, IMPULSE, ArraySystem, unsupported
-from .designs import DesignParameter, bounds_text, within_bounds
+from .designs import DesignParameter, bounds_text, with_values, within_bounds
 from .errors import ModelError
 from .model import ParsedModel
 from .outcomes import OUTPUTS, STATUS_OK, STATUS_SCREENED, check_outputs
@@ -146,8 +145,18 @@ class _Events:
         return Y[2].copy()
 
 
+def _rowsum(x: np.ndarray) -> np.ndarray:
+    """Sum over the first axis, row after row: the same rounding for every design whatever the array's size
+    (numpy's own reduction sums a contiguous axis pairwise, so a one-design array would round differently)."""
+    acc = x[0].copy()
+    for r in range(1, len(x)):
+        acc += x[r]
+    return acc
+
+
 def _norm(x: np.ndarray) -> np.ndarray:
-    return np.sqrt(np.mean(x * x, axis=0))
+    """RMS over the states (first axis), per design."""
+    return np.sqrt(_rowsum(x * x) / len(x))
 
 
 def _dense(Y0: np.ndarray, h: np.ndarray, Q: np.ndarray, theta: np.ndarray) -> np.ndarray:
@@ -186,14 +195,6 @@ def _golden_max(fun, hi: np.ndarray, iters: int = 24) -> tuple[np.ndarray, np.nd
     return th, np.maximum(fc, fd)
 
 
-def _with(base: Any, changes: dict[str, float]) -> Any:
-    """A copy of a frozen parameter object with some fields changed (dataclasses.replace without its cost)."""
-    p = copy.copy(base)
-    for k, v in changes.items():
-        object.__setattr__(p, k, v)
-    return p
-
-
 def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray, status: list[str],
                     notes: list[str]) -> np.ndarray:
     """Designs outside their bounds, or combinations a component kind refuses, are screened out here."""
@@ -216,7 +217,7 @@ def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: n
         base = parsed.params[owner]
         for i in np.flatnonzero(good):
             try:
-                cls.check(_with(base, {nm: float(x[i, j]) for nm, j in cols}), f"components.{owner}")
+                cls.check(with_values(base, {nm: float(x[i, j]) for nm, j in cols}), f"components.{owner}")
             except ModelError as exc:
                 status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"
                 good[i] = False
@@ -491,7 +492,7 @@ class _Run:
         tmp += self.atol
         err /= tmp
         err *= err
-        en = np.sqrt(np.sum(err[:self.nctrl], axis=0) / self.nctrl)
+        en = np.sqrt(_rowsum(err[:self.nctrl]) / self.nctrl)
         en = np.where(np.isfinite(en), en, np.inf)
         self.steps_taken[self.gid[live]] += 1
         acc = live & (en < 1.0)
@@ -573,14 +574,14 @@ class _Run:
                         self.finish(rows, STATUS_OK, pl[5])
                 elif kind == "guide":
                     kin[rows] = FREE
-                    self.exit_speed[rows] = np.sqrt(np.sum(Y[3:6, rows] ** 2, axis=0))
+                    self.exit_speed[rows] = np.sqrt(_rowsum(Y[3:6, rows] ** 2))
                 elif kind == "apogee":
                     self.desc[rows] = True
                     self.apogee[rows] = Y[2, rows]
                     if self.stop_at_apogee:
                         self.finish(rows, STATUS_OK, "stopped at apogee")
                 else:
-                    self.impact_speed[rows] = np.sqrt(np.sum(Y[3:6, rows] ** 2, axis=0))
+                    self.impact_speed[rows] = np.sqrt(_rowsum(Y[3:6, rows] ** 2))
                     self.finish(rows, STATUS_OK, "")
             keep_e = live[evi]
             cont = evi[keep_e]
@@ -647,7 +648,7 @@ class _Run:
 
                 def speed(th):
                     v = _dense(Yv, hv, Qs, th)
-                    return np.sqrt(np.sum(v * v, axis=0))
+                    return np.sqrt(_rowsum(v * v))
                 _, best = _golden_max(speed, te[rows[sel]])
                 self.vmax[rows[sel]] = np.maximum(self.vmax[rows[sel]], best)
             if np.any(ainner):
@@ -656,7 +657,7 @@ class _Run:
 
                 def accel(th):
                     a = _dense_rate(Qa, th)
-                    return np.sqrt(np.sum(a * a, axis=0))
+                    return np.sqrt(_rowsum(a * a))
                 _, best = _golden_max(accel, te[rows[sel]])
                 self.amax[rows[sel]] = np.maximum(self.amax[rows[sel]], best)
         prop = sysa.propulsive(self.modes)

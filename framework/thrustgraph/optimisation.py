@@ -331,6 +331,7 @@ def optimise(model: Model | str | None, vary: Sequence[Vary | str], objective: s
         margins[str(lim)] = lim.margin(y) if math.isfinite(y) else -math.inf
     feasible = st == STATUS_OK and all(m >= -1e-6 * max(abs(lim.si()), 1.0) for lim, m in zip(limits, margins.values()))
     table = _table_of(prob, parsed, objective, maximise, method)
+    table.engine, table.flights = getattr(engine, "name", ""), str(run.get("flights", ""))
     table.interrupted = prob.interrupted or message.startswith("interrupted")
     return OptimisationResult(params=tuple(params), objective=objective, maximise=maximise, limits=limits,
                               x=prob.x_of(z_best), value=outcomes.get(objective, math.nan), outcomes=outcomes,

@@ -40,8 +40,8 @@ from matplotlib.figure import Figure
 from .outcomes import OUTPUTS, STATUS_OK
 from .plots import render
 
-__all__ = ["sweep_figure", "footprint_figure", "sensitivity_figure", "optimisation_figure", "save_study_plots",
-           "render"]
+__all__ = ["sweep_figure", "footprint_figure", "sensitivity_figure", "optimisation_figure",
+           "optimisation_designs_figure", "save_study_plots", "render"]
 
 _MAIN = "#1f5fbf"
 _BAD = "#c0392b"
@@ -147,7 +147,8 @@ def footprint_figure(dispersion: Any) -> Figure:
 
 def sensitivity_figure(sens: Any, outputs: Sequence[str] | None = None) -> Figure:
     """Elasticities of each outcome to each parameter, one panel per outcome."""
-    outs = [o for o in (outputs or sens.outputs) if o in sens.outputs]
+    outs = [o for o in (outputs or [o for o in sens.outputs if o not in ("impact_x", "impact_y", "launch_mass")])
+            if o in sens.outputs]
     outs = [o for o in outs if np.any(np.isfinite(sens.elasticity[sens.outputs.index(o)]))][:6] or outs[:1]
     fig, ax = _new(len(outs), 1, (7.5, 1.0 + (0.45 * len(sens.params) + 0.7) * len(outs)))
     names = [p.path if p.nominal != 0.0 else f"{p.path} (per 1 {p.unit or 'unit'})" for p in sens.params]
@@ -157,6 +158,7 @@ def sensitivity_figure(sens: Any, outputs: Sequence[str] | None = None) -> Figur
         colours = [_MAIN if v >= 0 else _BAD for v in np.nan_to_num(e)]
         a.barh(np.arange(len(e)), np.nan_to_num(e), color=colours)
         a.set_yticks(np.arange(len(e)), names, fontsize=8)
+        a.invert_yaxis()                    # the first parameter on top
         a.axvline(0.0, color="k", lw=0.8)
         a.set_title(f"{o.replace('_', ' ')} = {sens.nominal[sens.outputs.index(o)]:.4g} {OUTPUTS[o].unit}", fontsize=9)
         a.grid(True, axis="x", alpha=0.35)
@@ -172,11 +174,7 @@ def optimisation_figure(opt: Any) -> Figure:
     t = opt.table
     y = t.column(opt.objective)
     n = np.arange(len(y))
-    feas = t.ok.copy()
-    for lim in opt.limits:
-        v = t.column(lim.output)
-        m = np.array([lim.margin(float(q)) if math.isfinite(q) else -math.inf for q in v])
-        feas &= m >= -1e-6 * max(abs(lim.si()), 1.0)
+    feas = _feasible(opt)
     a.plot(n[t.ok], y[t.ok], ".", color="#999999", label="flown")
     a.plot(n[feas], y[feas], ".", color=_MAIN, label="within the limits")
     if math.isfinite(opt.value):
@@ -186,6 +184,50 @@ def optimisation_figure(opt: Any) -> Figure:
     a.grid(True, alpha=0.35)
     a.legend(loc="best")
     a.set_title(f"{'Maximise' if opt.maximise else 'Minimise'} {opt.objective.replace('_', ' ')} ({opt.method})")
+    return fig
+
+
+def _feasible(opt: Any) -> np.ndarray:
+    t = opt.table
+    feas = t.ok.copy()
+    for lim in opt.limits:
+        v = t.column(lim.output)
+        m = np.array([lim.margin(float(q)) if math.isfinite(q) else -math.inf for q in v])
+        feas &= m >= -1e-6 * max(abs(lim.si()), 1.0)
+    return feas
+
+
+def optimisation_designs_figure(opt: Any) -> Figure:
+    """The flown designs on the parameter plane (or against the one parameter), coloured by the objective;
+    designs outside the limits as grey crosses, the best design as a star."""
+    t = opt.table
+    feas = _feasible(opt)
+    y = t.column(opt.objective)
+    fig, ax = _new()
+    a = ax[0, 0]
+    p0 = opt.params[0]
+    x0 = np.atleast_1d(p0.shown(t.x[:, 0]))
+    b0 = float(p0.shown(opt.x[0]))
+    if len(opt.params) == 1:
+        order = np.argsort(x0)
+        a.plot(x0[order][feas[order]], y[order][feas[order]], "o", color=_MAIN, ms=4, label="within the limits")
+        a.plot(x0[~feas & t.ok], y[~feas & t.ok], "x", color="#888888", label="outside the limits")
+        a.plot([b0], [opt.value], "*", color=_BAD, ms=14, mec="k", label="best")
+        a.set_xlabel(_plabel(p0))
+        a.set_ylabel(_label(opt.objective))
+    else:
+        p1 = opt.params[1]
+        x1 = np.atleast_1d(p1.shown(t.x[:, 1]))
+        m = a.scatter(x0[feas], x1[feas], c=y[feas], cmap="viridis", s=22, label="within the limits")
+        a.plot(x0[~feas], x1[~feas], "x", color="#888888", ms=6, label="outside the limits or screened")
+        a.plot([b0], [float(p1.shown(opt.x[1]))], "*", color=_BAD, ms=16, mec="k", label="best")
+        fig.colorbar(m, ax=a, label=_label(opt.objective))
+        a.set_xlabel(_plabel(p0))
+        a.set_ylabel(_plabel(p1))
+    a.grid(True, alpha=0.35)
+    a.legend(loc="best", fontsize=8)
+    lims = "; ".join(str(lim) for lim in opt.limits) or "no limits"
+    a.set_title(f"{len(t)} designs flown ({lims})")
     return fig
 
 
@@ -209,8 +251,7 @@ def save_study_plots(result: Any, directory: str | Path, *, fmt: str = "png", ou
         figs["sensitivity"] = sensitivity_figure(result)
     elif isinstance(result, OptimisationResult):
         figs["optimisation"] = optimisation_figure(result)
-        if len(result.params) >= 2 or len(result.params) == 1:
-            figs["optimisation-designs"] = sweep_figure(result.table, result.objective)
+        figs["optimisation-designs"] = optimisation_designs_figure(result)
     paths = []
     for name, fig in figs.items():
         p = d / f"{name}.{fmt}"

@@ -178,7 +178,15 @@ class Vary:
         if n is None:
             raise ModelError(where, f"gives bounds {self.low}..{self.high} but not how many values",
                              f"add a count, e.g. \"{self.low}..{self.high} in 11\"")
-        return np.array([lo]) if n == 1 else np.linspace(lo, hi, n)
+        if n == 1:
+            return np.array([lo])
+        if param.unit and param.unit != param.si:
+            # evenly spaced in the unit the values are written in (3 bar .. 6 bar gives 3, 4, 5, 6 bar exactly)
+            shown = np.linspace(float(param.shown(lo)), float(param.shown(hi)), n)
+            si = Q_(shown, param.unit).to(param.si).magnitude
+            si[0], si[-1] = lo, hi
+            return np.asarray(si, dtype=float)
+        return np.linspace(lo, hi, n)
 
     def si_bounds(self, param: DesignParameter, where: str | None = None) -> tuple[float, float]:
         """LOW and HIGH in SI, each within the parameter's declared bounds, LOW < HIGH."""

@@ -1,0 +1,247 @@
+"""``thrustgraph study``: sweeps, optimisation, dispersion and sensitivities of a model, on any engine.
+
+The study comes from the model's ``[study]`` table, from the options, or
+both (options replace what the table says for the same item). The table of
+designs is written as CSV (``--table``) and the plots into a directory
+(``--plots``). Ctrl-C stops the study and still writes the designs already
+flown (the rest are marked "not run"); the exit status is then 130.
+docs/studies.md describes the options and the ``[study]`` table.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+from typing import Any
+
+import numpy as np
+
+from ..errors import ModelError
+from ..outcomes import OUTPUTS, check_outputs
+from ..studyspec import KINDS, Limit, Spread, StudyDefinition, Vary, read_study
+from .common import add_model_argument, add_set_option
+from .outputs import add_quiet_option, load_checked, need_matplotlib, write_outputs
+
+NAME = "study"
+HELP = ("run a design study: a sweep, an optimisation, a dispersion (Monte Carlo) or local sensitivities, "
+        "on this machine's cores or a Dask cluster")
+
+
+def add_arguments(p: argparse.ArgumentParser) -> None:
+    add_model_argument(p)
+    p.add_argument("kind", nargs="?", default=None, choices=KINDS + (None,), metavar="KIND",
+                   help=f"which study: {', '.join(KINDS)} (default: the one in the model's [study] table)")
+    add_set_option(p)
+    g = p.add_argument_group("what to vary")
+    g.add_argument("--vary", action="append", default=[], metavar="PATH=VALUES",
+                   help='a parameter and its values: "components.bottle.fill=0.1..0.6 in 11" (a sweep), '
+                        '"components.bottle.gauge_pressure=3 bar, 4 bar", bounds "PATH=LOW..HIGH" (an '
+                        "optimisation) or just PATH (a sensitivity); repeatable")
+    g.add_argument("--combine", choices=("grid", "list"), default=None,
+                   help="sweep every combination (grid, the default) or the n-th values together (list)")
+    g.add_argument("--spread", action="append", default=[], metavar="PATH=DISTRIBUTION",
+                   help='a dispersion: "environment.medium.wind_x=normal(mean=0 m/s, sd=2 m/s)", '
+                        '"launch.elevation=normal(sd=1 deg)", "PATH=uniform(LOW, HIGH)", '
+                        '"PATH=triangular(LOW, MODE, HIGH)"; repeatable')
+    g.add_argument("--samples", type=int, default=None, help="designs drawn for a dispersion (default 1000)")
+    g.add_argument("--seed", type=int, default=None, help="seed of the dispersion's random draws (default 0)")
+    o = g.add_mutually_exclusive_group()
+    o.add_argument("--maximise", "--maximize", metavar="OUTCOME", default=None, help="optimise: the outcome to raise")
+    o.add_argument("--minimise", "--minimize", metavar="OUTCOME", default=None, help="optimise: the outcome to lower")
+    g.add_argument("--limit", action="append", default=[], metavar="LIMIT",
+                   help='optimise subject to "peak_acceleration <= 60 g0", "guide_exit_speed >= 12 m/s", '
+                        '"peak_vessel_pressure <= 6 bar"; repeatable')
+    g.add_argument("--method", default=None, help="optimisation method: slsqp (default) or differential-evolution")
+    g.add_argument("--start", choices=("grid", "model"), default=None,
+                   help="SLSQP starts from the best point of a coarse grid (default) or the model's values")
+    g.add_argument("--step", type=float, default=None,
+                   help="sensitivity: finite-difference step as a fraction of each value (default 0.001)")
+    g.add_argument("--outputs", default=None, metavar="NAMES",
+                   help=f"outcome columns, comma separated (default: all: {', '.join(OUTPUTS)})")
+    r = p.add_argument_group("where to fly")
+    r.add_argument("--engine", default="auto", choices=("auto", "serial", "processes", "dask"),
+                   help="this process (serial), a pool of local processes (processes) or a Dask cluster (dask); "
+                        "auto picks a pool for mid-size studies")
+    r.add_argument("--flights", default="auto", choices=("auto", "single", "ensemble"),
+                   help="fly each design alone (single) or each chunk as one vectorised ensemble; auto uses the "
+                        "ensemble from a few hundred designs when the model's devices support it")
+    r.add_argument("--workers", type=int, default=None, help="processes of the local pool (default: one per core)")
+    r.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                   help="address of the Dask scheduler, e.g. tcp://10.0.0.5:8786 (implies --engine dask)")
+    r.add_argument("--wait", type=float, default=10.0, metavar="SECONDS",
+                   help="how long to wait for the Dask scheduler before giving up (default 10 s)")
+    r.add_argument("--chunk", type=int, default=None, metavar="N", help="designs per chunk sent to a worker")
+    w = p.add_argument_group("results")
+    w.add_argument("--table", metavar="FILE", help="write every design and its outcomes to FILE (CSV)")
+    w.add_argument("--summary", metavar="FILE",
+                   help="write the study's summary to FILE (CSV): sensitivities, dispersion statistics")
+    w.add_argument("--plots", metavar="DIR", help="draw the study's plots (PNG) into DIR")
+    add_quiet_option(p)
+
+
+def _definition(args: argparse.Namespace, model: Any) -> StudyDefinition:
+    kind = args.kind
+    if kind is None and not model.study:
+        guess = ("sweep" if args.vary and not (args.maximise or args.minimise) else
+                 "optimise" if (args.maximise or args.minimise) else "dispersion" if args.spread else None)
+        if guess is None:
+            raise ModelError("study", "the model has no [study] table and the command names no study",
+                             "say which study, e.g. 'thrustgraph study MODEL sweep --vary "
+                             "\"components.bottle.fill=0.1..0.6 in 11\"' (docs/studies.md)")
+        kind = guess
+    base = read_study(model.study, kind, source=model.source or "")
+    if base is None:
+        raise ModelError(f"{model.source}: study" if model.source else "study", "holds no study",
+                         "add e.g. [study.sweep] or name the study on the command line")
+    kw: dict[str, Any] = {}
+    if args.vary:
+        kw["vary"] = tuple(Vary.parse(v) for v in args.vary)
+    if args.combine:
+        kw["combine"] = args.combine
+    if args.spread:
+        kw["spreads"] = tuple(Spread.parse(s) for s in args.spread)
+    if args.samples is not None:
+        if args.samples < 1:
+            raise ModelError("--samples", f"must be at least 1, got {args.samples}", "use e.g. --samples 1000")
+        kw["samples"] = args.samples
+    if args.seed is not None:
+        if args.seed < 0:
+            raise ModelError("--seed", f"must be at least 0, got {args.seed}", "use e.g. --seed 1")
+        kw["seed"] = args.seed
+    if args.maximise or args.minimise:
+        name = args.maximise or args.minimise
+        check_outputs([name], where="--maximise" if args.maximise else "--minimise")
+        kw["objective"], kw["maximise"] = name, bool(args.maximise)
+    if args.limit:
+        kw["limits"] = tuple(Limit.parse(s) for s in args.limit)
+    if args.method:
+        kw["method"] = args.method
+    if args.step is not None:
+        if not 0.0 < args.step < 0.5:
+            raise ModelError("--step", f"must be a fraction between 0 and 0.5, got {args.step}", "use e.g. 0.001")
+        kw["step"] = args.step
+    if args.outputs:
+        kw["outputs"] = tuple(check_outputs([s.strip() for s in args.outputs.split(",") if s.strip()],
+                                            where="--outputs"))
+    if args.start:
+        kw["extras"] = dict(base.extras, start=args.start)
+    from dataclasses import replace
+
+    return replace(base, **kw)
+
+
+def main(args: argparse.Namespace) -> int:
+    import os
+
+    if args.kind is None and args.model in KINDS and not os.path.exists(args.model):
+        args.kind, args.model = args.model, None      # "thrustgraph study sweep ...": the bundled model
+    if args.plots:
+        need_matplotlib()
+    model, parsed = load_checked(args.model, args.overrides)
+    d = _definition(args, model)
+    engine = "dask" if args.scheduler and args.engine in ("auto", "dask") else args.engine
+    if engine == "dask" and not args.scheduler:
+        raise ModelError("--engine dask", "needs the address of a Dask scheduler",
+                         "add --scheduler tcp://HOST:8786 (start one with 'dask scheduler')")
+    if args.workers is not None and args.workers < 1:
+        raise ModelError("--workers", f"must be at least 1, got {args.workers}", "give a positive number")
+    if args.chunk is not None and args.chunk < 1:
+        raise ModelError("--chunk", f"must be at least 1, got {args.chunk}", "give a positive number")
+    run = dict(engine=engine, flights=args.flights, workers=args.workers, scheduler=args.scheduler,
+               timeout=args.wait, chunk_size=args.chunk, quiet=args.quiet)
+    from .. import studies
+
+    summary_csv = None
+    if d.kind == "sweep":
+        if not d.vary:
+            raise ModelError("sweep", "varies no parameter", 'add --vary "components.bottle.fill=0.1..0.6 in 11"')
+        result = studies.sweep(model, d.vary, combine=d.combine, outputs=d.outputs, **run)
+        table, text = result, _sweep_text(result)
+    elif d.kind == "sensitivity":
+        result = studies.sensitivities(model, d.vary, outputs=d.outputs, step=d.step, **run)
+        table, text, summary_csv = result.table, _sensitivity_text(result), result.to_csv()
+    elif d.kind == "dispersion":
+        from ..dispersion import disperse
+
+        levels = tuple(d.extras.get("levels", (0.5, 0.95)))
+        result = disperse(model, d.spreads, samples=d.samples, seed=d.seed, outputs=d.outputs, levels=levels, **run)
+        table, text, summary_csv = result.table, result.report(), result.stats_csv()
+    else:
+        from ..optimisation import optimise
+
+        if d.objective is None:
+            raise ModelError("optimise", "has no objective", "add --maximise apogee (or --minimise OUTCOME)")
+        result = optimise(model, d.vary, d.objective, maximise=d.maximise, limits=d.limits, method=d.method,
+                          start=str(d.extras.get("start", "grid")), outputs=d.outputs, **run)
+        table, text = result.table, result.report()
+    print(f"thrustgraph study: {d.kind} of {parsed.model.name!r}")
+    print(f"  {len(table)} designs ({table.counts['ok']} flew, {table.counts['screened']} screened) on "
+          f"{getattr(table, 'engine', '') or run['engine']}, flights {getattr(table, 'flights', '') or args.flights}")
+    print()
+    print(text)
+    screened = table.screened()
+    if screened:
+        print()
+        print(f"Screened designs ({len(screened)}):")
+        for i, note in screened[:8]:
+            vals = ", ".join(p.text(table.x[i, j]) for j, p in enumerate(table.params))
+            print(f"  design {i} ({vals}): {note}")
+        if len(screened) > 8:
+            print(f"  ... and {len(screened) - 8} more (see the table)")
+    outputs: list[tuple[str, Any]] = []
+    if args.table:
+        outputs.append((args.table, table.to_csv()))
+    if args.summary:
+        if summary_csv is None:
+            raise ModelError("--summary", f"a {d.kind} has no summary table", "use --table for its designs")
+        outputs.append((args.summary, summary_csv))
+    print()
+    write_outputs(outputs)
+    if args.plots:
+        from ..studyplots import save_study_plots
+
+        for path in save_study_plots(result, args.plots):
+            print(f"wrote {path}")
+    cautions = parsed.cautions()
+    if cautions:
+        print()
+        print("Cautions")
+        for c in cautions:
+            print(f"  ! {c}")
+    if table.interrupted:
+        done = len(table) - table.counts["not run"]
+        where = f"; wrote them to {args.table}" if args.table else ""
+        print(f"thrustgraph: interrupted: {done} of {len(table)} designs were flown{where}", file=sys.stderr)
+        return 130
+    return 0
+
+
+def _sweep_text(table: Any) -> str:
+    lines = []
+    ok = table.ok
+    if not np.any(ok):
+        return "No design flew."
+    shown = [o for o in table.outputs if o not in ("impact_x", "impact_y", "launch_mass")][:5]
+    for o in shown:
+        v = np.where(ok, table.column(o), np.nan)
+        if not np.any(np.isfinite(v)):
+            continue
+        i, j = int(np.nanargmax(v)), int(np.nanargmin(v))
+        unit = OUTPUTS[o].unit
+        best = ", ".join(p.text(table.x[i, k]) for k, p in enumerate(table.params))
+        lines.append(f"  {o:<20s} {np.nanmin(v):10.5g} .. {np.nanmax(v):10.5g} {unit:<6s} highest at {best}")
+    return "Outcome ranges over the designs that flew\n" + "\n".join(lines)
+
+
+def _sensitivity_text(sens: Any) -> str:
+    lines = ["Local sensitivities at the model's values (central differences, step "
+             f"{sens.steps[0] / max(abs(sens.params[0].nominal), 1e-300):.3g} of each value)", ""]
+    head = f"  {'outcome':<22s}" + "".join(f" {p.path.split('.')[-1][:16]:>17s}" for p in sens.params)
+    lines.append(head + "   (% change per 1 % change)")
+    for k, o in enumerate(sens.outputs):
+        if not np.any(np.isfinite(sens.elasticity[k])):
+            continue
+        lines.append(f"  {o:<22s}" + "".join(f" {v:17.4g}" if math.isfinite(v) else f" {'-':>17s}"
+                                               for v in sens.elasticity[k]))
+    return "\n".join(lines)
