@@ -113,7 +113,9 @@ class FlightTask:
             hit = _PARSED[self.token] = (parsed, params)
         return hit
 
-    def __call__(self, start: int, x: np.ndarray) -> ChunkRows:
+    def __call__(self, start: int, x: np.ndarray, progress: Any = None) -> ChunkRows:
+        """Fly rows ``x`` (the chunk starting at row ``start``); ``progress(done)`` is told the designs finished
+        so far in this chunk (in-process runs only)."""
         import time
 
         from .designs import apply, within_bounds
@@ -126,7 +128,7 @@ class FlightTask:
         if self.flights == "ensemble":
             from .ensemble import fly_designs
 
-            res = fly_designs(parsed, params, x, self.outputs, rtol=self.rtol, atol=self.atol)
+            res = fly_designs(parsed, params, x, self.outputs, rtol=self.rtol, atol=self.atol, progress=progress)
             return ChunkRows(start, res.status, res.notes, res.values, "ensemble", time.perf_counter() - t0)
         status, notes = [], []
         values = np.full((n, k), np.nan)
@@ -146,6 +148,8 @@ class FlightTask:
                 notes.append(f"model error: {exc}")
                 continue
             out = fly_design(design, self.outputs, rtol=self.rtol, atol=self.atol)
+            if progress is not None:
+                progress(r + 1)
             status.append(out.status)
             notes.append(out.message)
             for j, name in enumerate(self.outputs):
@@ -189,9 +193,11 @@ class SerialEngine:
     name = "serial"
     workers = 1
 
-    def run(self, task: FlightTask, parts: Iterable[tuple[int, np.ndarray]]) -> Iterator[ChunkRows]:
+    def run(self, task: FlightTask, parts: Iterable[tuple[int, np.ndarray]], progress: Any = None
+            ) -> Iterator[ChunkRows]:
+        """``progress(start, done)`` hears about designs finished inside the chunk at ``start``."""
         for start, x in parts:
-            yield task(start, x)
+            yield task(start, x, None if progress is None else (lambda done, s=start: progress(s, done)))
 
     def close(self) -> None:
         pass

@@ -248,7 +248,7 @@ class _Buffers:
 
 def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray,
                 outputs: Sequence[str] | None = None, *, rtol: float | None = None, atol: float | None = None,
-                max_steps: int = 20000, compact: float = 0.5) -> EnsembleResult:
+                max_steps: int = 20000, compact: float = 0.5, progress=None) -> EnsembleResult:
     """Fly N designs as one vectorised ensemble and return their summary rows.
 
     Parameters
@@ -259,6 +259,7 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
     rtol, atol : tolerances (default: the model's ``[run]`` values; the same meaning as for solve_ivp)
     max_steps : step budget per design (attempted steps); a design that exceeds it is screened out
     compact : shrink the arrays when fewer than this fraction of the designs are still flying
+    progress : called now and then with the number of designs finished (flown or screened)
     """
     t_start = time.perf_counter()
     why = unsupported(parsed)
@@ -285,7 +286,7 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
     with np.errstate(all="ignore"):
         run = _Run(parsed, params, x, gid, rtol, atol, t_end, stop_at_apogee, max_steps, compact, out,
                    steps_taken)
-        run.fly()
+        run.fly(progress, N - len(gid))
         for i, g in enumerate(run.done_gid):
             status[g], notes[g] = run.done_status[i], run.done_note[i]
     for i in range(N):
@@ -457,11 +458,15 @@ class _Run:
         out["impact_speed"][g] = self.impact_speed[idx]
 
     # --- the loop -----------------------------------------------------------------------------------------
-    def fly(self) -> None:
+    def fly(self, progress=None, screened_before: int = 0) -> None:
+        it = 0
         while np.any(self.live):
             if self.live.sum() < self.compact_at * self.n and self.n > 16:
                 self.compact()
             self.step()
+            it += 1
+            if progress is not None and it % 8 == 0:
+                progress(len(self.done_gid) + int(np.sum(~self.live)) + screened_before)
         self.store(np.arange(self.n))
         for i in range(self.n):
             self.done_gid.append(int(self.gid[i]))
