@@ -247,8 +247,11 @@ def optimise(model: Model | str | None, vary: Sequence[Vary | str], objective: s
                              timeout=run.get("timeout", 10.0))
     run = {k: v for k, v in run.items() if k not in ("workers", "scheduler", "timeout")}
     run.setdefault("flights", "single")
+    import uuid
+
+    # one task name for every batch, so a process pool started for the first batch serves them all
     prob = _Problem(model, parsed, params, lo, hi, objective, maximise, limits, tuple(outs),
-                    dict(run, engine=engine))
+                    dict(run, engine=engine, token=uuid.uuid4().hex))
     P = len(params)
     history: list[float] = []
     iterations = 0

@@ -184,7 +184,7 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
              parsed: ParsedModel | None = None, kind: str = "designs", engine: Any = "auto", flights: str = "auto",
              workers: int | None = None, scheduler: Any = None, timeout: float = 10.0, chunk_size: int | None = None,
              quiet: bool = False, stream: Any = None, rtol: float | None = None, atol: float | None = None,
-             info: dict[str, Any] | None = None) -> DesignTable:
+             info: dict[str, Any] | None = None, token: str | None = None) -> DesignTable:
     """Fly a table of designs and return their outcomes.
 
     Parameters
@@ -200,6 +200,7 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     chunk_size : designs per chunk (default: :func:`~thrustgraph.engines.default_chunk_size`)
     quiet, stream : progress bar off / where to draw it (default standard error, only on a terminal)
     rtol, atol : integration tolerances (default: the model's ``[run]`` values)
+    token : names the flight task, so that batches of one study (an optimiser's) reuse a kept process pool
     """
     parsed = parsed or parse_model(model)
     outputs = tuple(check_outputs(outputs if outputs is not None else DEFAULT_OUTPUTS))
@@ -219,7 +220,7 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     own = isinstance(engine, str)
     eng = make_engine(eng_name, workers=workers, scheduler=scheduler, timeout=timeout) if own else engine
     task = FlightTask(model, tuple(p.path for p in params), tuple(p.unit for p in params), outputs, flights,
-                      rtol, atol)
+                      rtol, atol, **({"token": token} if token else {}))
     size = chunk_size or default_chunk_size(n, eng.workers, flights)
     if eng.name == "serial" and flights == "single" and chunk_size is None:
         size = min(size, 8)
