@@ -52,6 +52,10 @@ The implementer's contract
    ``ops.maximum``, clipping arguments of square roots), so the same code can
    run over numpy arrays of designs.
 7. Units inside are SI: Pa, K, kg, m, s, kg/m^3, N.
+   A kind that can also fly in the vectorised ensemble sets ``vectorised = True``
+   and builds array callables when ``ops`` is :data:`thrustgraph.arrayops.array_ops`
+   (the full convention is in that module's docstring); its scalar build must
+   stay bit-identical.
 8. Return safety cautions for the model from :meth:`ComponentKind.cautions`.
 """
 
@@ -314,6 +318,8 @@ class ComponentKind(_Declared):
     states: ClassVar[tuple[StateVar, ...]] = ()
     modes: ClassVar[tuple[Mode, ...]] = ()
     stores_pressure: ClassVar[bool] = False
+    #: True when the builders also accept :data:`thrustgraph.arrayops.array_ops` (vectorised ensembles).
+    vectorised: ClassVar[bool] = False
     #: SI units of the signals this kind reports (signal key -> unit), for results, CSV headers and triggers.
     signal_units: ClassVar[dict[str, str]] = {}
     #: SI units of the entries :meth:`summarize` returns.
