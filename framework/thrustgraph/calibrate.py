@@ -49,6 +49,7 @@ from typing import Any, Callable, Sequence, TextIO
 
 import numpy as np
 
+from .progress import Progress
 from .errors import IntegrationError, ModelError
 from .model import LAUNCH_SPECS, Model, parse_model
 from .parameters import Quantity
@@ -228,8 +229,10 @@ class FittedValue:
         return _text_delta(dx, self.si_unit, self.unit)
 
 
-class ProgressLine:
+class ProgressLine(Progress):
     """A one-line progress display on stderr, rewritten in place; silent unless stderr is a terminal.
+
+    Calibration has no known total, so it shows counts and the residual; the last line stays on screen.
 
     >>> import io
     >>> p = ProgressLine(io.StringIO())   # not a terminal: prints nothing
@@ -238,22 +241,17 @@ class ProgressLine:
     """
 
     def __init__(self, stream: TextIO | None = None, *, enabled: bool | None = None) -> None:
-        self.stream = sys.stderr if stream is None else stream
-        isatty = getattr(self.stream, "isatty", None)
-        self.enabled = bool(isatty and isatty()) if enabled is None else enabled
-        self._shown = False
+        super().__init__("calibrating", stream=stream, enabled=enabled)
 
-    def __call__(self, evaluations: int, runs: int, cost: float) -> None:
+    def __call__(self, evaluations: int, runs: int, cost: float) -> None:  # type: ignore[override]
         if self.enabled:
-            self.stream.write(f"\rcalibrating: evaluation {evaluations}, {runs} model runs, "
-                              f"residual {cost:.6g}      ")
-            self.stream.flush()
-            self._shown = True
+            self._write(f"calibrating: evaluation {evaluations}, {runs} model runs, residual {cost:.6g}")
 
     def close(self) -> None:
         if self.enabled and self._shown:
             self.stream.write("\n")
             self.stream.flush()
+            self._shown = 0
 
 
 @dataclass(frozen=True)

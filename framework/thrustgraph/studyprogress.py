@@ -22,28 +22,19 @@ import sys
 import time
 from typing import IO
 
+from .progress import Progress
+
 __all__ = ["StudyProgress"]
 
 
-class StudyProgress:
+class StudyProgress(Progress):
     """``update(done, screened)`` after each chunk; ``close()`` at the end."""
 
     def __init__(self, total: int, label: str = "study", *, stream: IO[str] | None = None, quiet: bool = False,
                  enabled: bool | None = None, width: int = 24, every: float = 0.1) -> None:
+        super().__init__(label, stream=stream, quiet=quiet, enabled=enabled, width=width, every=every)
         self.total = max(int(total), 0)
-        self.label = label
-        self.stream = stream if stream is not None else sys.stderr
-        if enabled is None:
-            try:
-                enabled = bool(self.stream.isatty())
-            except (AttributeError, ValueError):
-                enabled = False
-        self.enabled = bool(enabled) and not quiet
-        self.width = width
-        self.every = every
         self._t0 = time.monotonic()
-        self._last = -1.0
-        self._shown = 0
 
     def update(self, done: int, screened: int = 0) -> None:
         if not self.enabled:
@@ -53,20 +44,9 @@ class StudyProgress:
             return
         self._last = now
         frac = done / self.total if self.total else 1.0
-        n = int(round(frac * self.width))
         el = now - self._t0
         rate = done / el if el > 0 else 0.0
         left = (self.total - done) / rate if rate > 0 else float("nan")
         eta = f", {left:.0f} s left" if rate > 0 and done < self.total else ""
         scr = f", {screened} screened" if screened else ""
-        text = (f"{self.label} [{'#' * n}{'.' * (self.width - n)}] {done}/{self.total} designs "
-                f"({rate:.4g}/s{eta}{scr})")
-        self.stream.write("\r" + text + " " * max(0, self._shown - len(text)))
-        self.stream.flush()
-        self._shown = len(text)
-
-    def close(self) -> None:
-        if self.enabled and self._shown:
-            self.stream.write("\r" + " " * self._shown + "\r")
-            self.stream.flush()
-            self._shown = 0
+        self._write(f"{self._bar(frac)} {done}/{self.total} designs ({rate:.4g}/s{eta}{scr})")
