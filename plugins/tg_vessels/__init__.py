@@ -142,19 +142,19 @@ class LiquidTank(ComponentKind):
 
     vectorised = True
 
+    @staticmethod
+    def _fixed(p):
+        """Constants both builds use: T0, rho_l, V, n, gamma, R, bore area, inertial-head switch."""
+        return (p.gas_temperature, p.liquid_density, p.volume, p.expansion_exponent, p.gas_gamma,
+                p.gas_constant, math.pi * p.bore ** 2 / 4.0, p.inertial_head)
+
     @classmethod
     def build_volume(cls, p, i, ops, amb):
         if getattr(ops, "arrays", False):
             return cls._build_volume_arrays(p, i, amb)
         p0, vg0, mg0 = cls._gas0(p, amb)
         rho0 = mg0 / vg0 if vg0 > 0 else 1.0
-        T0 = p.gas_temperature
-        rho_l = p.liquid_density
-        V = p.volume
-        n = p.expansion_exponent
-        gam, R = p.gas_gamma, p.gas_constant
-        area = math.pi * p.bore ** 2 / 4.0
-        head_on = p.inertial_head
+        T0, rho_l, V, n, gam, R, area, head_on = cls._fixed(p)
         def gas(s):
             m_l, m_g = s[i], s[i + 1]
             vg = V - m_l / rho_l
@@ -218,13 +218,7 @@ class LiquidTank(ComponentKind):
         p0, vg0, mg0 = cls._gas0(p, amb)
         vg0_safe = np.where(np.greater(vg0, 0.0), vg0, 1.0)
         rho0 = np.where(np.greater(vg0, 0.0), mg0 / vg0_safe, 1.0)
-        T0 = p.gas_temperature
-        rho_l = p.liquid_density
-        V = p.volume
-        n = p.expansion_exponent
-        gam, R = p.gas_gamma, p.gas_constant
-        area = math.pi * p.bore ** 2 / 4.0
-        head_on = p.inertial_head
+        T0, rho_l, V, n, gam, R, area, head_on = cls._fixed(p)
 
         def gas(s):
             m_l, m_g = s[i], s[i + 1]
