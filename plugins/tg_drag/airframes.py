@@ -94,14 +94,19 @@ class _TableAirframe(ComponentKind):
         return math.pi * p.reference_diameter ** 2 / 4.0
 
 
+#: The parameters every table airframe has.
+_STRUCTURE = (
+    Quantity("dry_mass", "kg", low=0.0, low_open=True, doc="mass of the empty vehicle"),
+    Quantity("reference_diameter", "m", low=0.0, low_open=True, doc="diameter of the frontal reference area"),
+)
+
+
 class MachTableAirframe(_TableAirframe):
     """Dry structure with a drag coefficient tabulated against Mach number (see the module docstring)."""
 
     kind = "mach-table-airframe"
     summary = "dry structure: mass, reference diameter and a drag coefficient table against Mach number"
-    parameters = (
-        Quantity("dry_mass", "kg", low=0.0, low_open=True, doc="mass of the empty vehicle"),
-        Quantity("reference_diameter", "m", low=0.0, low_open=True, doc="diameter of the frontal reference area"),
+    parameters = _STRUCTURE + (
         Table("drag_table", columns=(("mach", ""), ("drag_coefficient", "")),
               doc="drag coefficient against Mach number (write units = [\"\", \"\"])"),
         Number("gas_gamma", default=1.4, low=1.0, low_open=True, high=1.7,
@@ -142,9 +147,7 @@ class SpeedTableAirframe(_TableAirframe):
 
     kind = "speed-table-airframe"
     summary = "dry structure: mass, reference diameter and a drag coefficient table against speed"
-    parameters = (
-        Quantity("dry_mass", "kg", low=0.0, low_open=True, doc="mass of the empty vehicle"),
-        Quantity("reference_diameter", "m", low=0.0, low_open=True, doc="diameter of the frontal reference area"),
+    parameters = _STRUCTURE + (
         Table("drag_table", columns=(("speed", "m/s"), ("drag_coefficient", "")),
               doc="drag coefficient against speed through the medium (write units = [\"m/s\", \"\"])"),
     )

@@ -33,7 +33,7 @@ from thrustgraph.parameters import Spec
 
 from .gases import IDEAL_GASES, lookup_gas
 
-__all__ = ["FluidName", "require_coolprop", "resolve_fluid", "new_state", "expansion_exponent"]
+__all__ = ["FluidName", "require_coolprop", "resolve_fluid", "new_state", "expansion_exponent", "wall_heat_specs"]
 
 
 @dataclass(frozen=True)
@@ -118,3 +118,20 @@ def expansion_exponent(expander: Any, p0: float, rho0: float, s0: float, kappa0:
     except ValueError:
         return k
     return min(max(n, EXPONENT_RANGE[0]), EXPONENT_RANGE[1])
+
+
+def wall_heat_specs(what: str, note: str = "") -> tuple:
+    """Parameters of Newton wall heat transfer, Q = h A (T_wall - T), shared by the tank kinds.
+
+    >>> [s.name for s in wall_heat_specs("the gas")]
+    ['wall_heat_transfer_coefficient', 'wall_area', 'wall_temperature']
+    """
+    from thrustgraph.parameters import Quantity
+
+    return (
+        Quantity("wall_heat_transfer_coefficient", "W/m^2/K", default="0 W/m^2/K", low=0.0,
+                 doc=f"film coefficient between {what} and the wall{note}"),
+        Quantity("wall_area", "m^2", default="0 m^2", low=0.0, doc="inner wall area for the heat transfer"),
+        Quantity("wall_temperature", "K", default="0 K", low=0.0,
+                 doc=f"wall temperature; 0 K means the temperature of {what} at launch"),
+    )

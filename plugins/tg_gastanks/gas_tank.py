@@ -89,7 +89,7 @@ from thrustgraph.parameters import Choice, Number, Quantity
 
 from tg_vessels import PRESSURE_CAUTIONS
 
-from .fluids import FluidName, expansion_exponent, new_state, require_coolprop, resolve_fluid
+from .fluids import FluidName, expansion_exponent, new_state, require_coolprop, resolve_fluid, wall_heat_specs
 from .gases import IDEAL_GASES, UNIVERSAL_GAS_CONSTANT, lookup_gas
 
 __all__ = ["GasTank", "GAS_CYLINDER_CAUTIONS"]
@@ -123,12 +123,7 @@ class GasTank(ComponentKind):
                doc="how the gas left in the tank changes state as it blows down"),
         Number("polytropic_exponent", default=1.2, low=1.0, high=1.7,
                doc="exponent n of p ~ rho^n (process = polytropic, ideal gas only)"),
-        Quantity("wall_heat_transfer_coefficient", "W/m^2/K", default="0 W/m^2/K", low=0.0,
-                 doc="film coefficient between the gas and the wall (process = adiabatic)"),
-        Quantity("wall_area", "m^2", default="0 m^2", low=0.0, doc="inner wall area for the heat transfer"),
-        Quantity("wall_temperature", "K", default="0 K", low=0.0,
-                 doc="wall temperature; 0 K means the gas temperature at launch"),
-    )
+    ) + wall_heat_specs("the gas", " (process = adiabatic)")
     states = (
         StateVar("gas_mass", "kg", "gas in the tank"),
         StateVar("temperature", "K", "gas temperature"),

@@ -74,7 +74,7 @@ from thrustgraph.parameters import Choice, Quantity
 
 from tg_vessels import PRESSURE_CAUTIONS
 
-from .fluids import FluidName, expansion_exponent, new_state, require_coolprop, resolve_fluid
+from .fluids import FluidName, expansion_exponent, new_state, require_coolprop, resolve_fluid, wall_heat_specs
 
 __all__ = ["SelfPressurisingTank", "CARTRIDGE_CAUTIONS"]
 
@@ -104,12 +104,7 @@ class SelfPressurisingTank(ComponentKind):
                  doc="temperature of the contents at launch"),
         Choice("outlet", options=("liquid-first", "vapour"), default="liquid-first",
                doc="liquid-first: the outlet is under the liquid; vapour: it is above the liquid"),
-        Quantity("wall_heat_transfer_coefficient", "W/m^2/K", default="0 W/m^2/K", low=0.0,
-                 doc="film coefficient between the contents and the wall"),
-        Quantity("wall_area", "m^2", default="0 m^2", low=0.0, doc="inner wall area for the heat transfer"),
-        Quantity("wall_temperature", "K", default="0 K", low=0.0,
-                 doc="wall temperature; 0 K means the temperature at launch"),
-    )
+    ) + wall_heat_specs("the contents")
     states = (
         StateVar("propellant_mass", "kg", "liquid and vapour in the tank"),
         StateVar("temperature", "K", "temperature of the contents"),
