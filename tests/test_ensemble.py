@@ -94,7 +94,7 @@ def test_array_rhs_equals_the_scalar_balance_in_every_phase(parsed):
     for r in range(4):
         segs = fly_segments(assemble(apply(parsed, params, x[r])))
         for ph, sol, bal in segs.segments:
-            bal.set_phase(ph.modes, ph.kin, ph.descending)
+            bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
             for k in (0, len(sol.t) // 2, len(sol.t) - 1):
                 y = sol.y[:, k]
                 ref = np.array(bal.rhs(float(sol.t[k]), y))[:8]

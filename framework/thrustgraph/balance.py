@@ -41,6 +41,7 @@ import numpy as np
 
 from .assembly import System
 from .errors import IntegrationError
+from .kernel import phase_functions
 from .vectors import body_frame, solve_rank_one, to_world
 from scipy.optimize import brentq
 
@@ -68,8 +69,10 @@ class Balance:
 
     max_newton = 8
 
-    def __init__(self, system: System) -> None:
+    def __init__(self, system: System, *, generated: bool = True) -> None:
         self.system = system
+        self.generated = generated
+        self._phase_fns: dict[tuple, tuple] = {}
         sysm = system
         slot = {n: k for k, n in enumerate(sysm.moded)}
         self._slot = slot
@@ -118,11 +121,18 @@ class Balance:
         self.set_phase(list(sysm.mode0), kin, False)
 
     # ------------------------------------------------------------------
-    def set_phase(self, modes: Sequence[int], kinematics: int, descending: bool) -> None:
-        """Fix the discrete phase for the next integration segment."""
+    def set_phase(self, modes: Sequence[int], kinematics: int, descending: bool, slide: float = 0.0) -> None:
+        """Fix the discrete phase for the next integration segment.
+
+        ``slide`` is the way the vehicle moves along a guide or track during the segment (+1 along the guide
+        direction, -1 against it): kinetic friction then opposes that direction for the whole segment, and the
+        integrator ends the segment when the vehicle comes to rest. With 0 the friction follows the sign of the
+        current speed (static friction at rest), as for a vehicle that starts the segment at rest.
+        """
         self.modes = list(modes)
         self.kinematics = kinematics
         self.descending = descending
+        self.slide = 0.0 if kinematics not in (Kinematics.GUIDE, Kinematics.TRACK) else float(slide)
         m = self.modes
 
         def mode_of(k: int) -> int:
@@ -132,10 +142,26 @@ class Balance:
         self._smode = [mode_of(k) for _, _, k in self._srcs]
         self._jmode = [mode_of(k) for _, _, k in self._jets]
         self._lmode = [(mode_of(tk), tuple(mode_of(k) for k in sk)) for _, _, tk, sk, _, _, _ in self._line_info]
+        if self.generated:
+            key = (tuple(self.modes), kinematics, self.slide)
+            fns = self._phase_fns.get(key)
+            if fns is None:
+                fns = self._phase_fns[key] = phase_functions(self)
+            self.phase_rhs, self._phase_drives = fns
+        else:
+            self.phase_rhs, self._phase_drives = self.reference_rhs, self._reference_drives
 
     # ------------------------------------------------------------------
     def rhs(self, t: float, y: Any) -> list[float]:
-        """Time derivative of the flat state vector (SI); what solve_ivp calls."""
+        """Time derivative of the flat state vector (SI) in the current phase.
+
+        This calls the phase's generated function (:mod:`thrustgraph.kernel`); the integrator passes
+        :attr:`phase_rhs` to solve_ivp directly, saving this call.
+        """
+        return self.phase_rhs(t, y)
+
+    def reference_rhs(self, t: float, y: Any) -> list[float]:
+        """The same derivatives from the general (loop-and-branch) balance; the generated one must equal it."""
         return self._balance(t, y if type(y) is list else y.tolist(), None)
 
     def drives(self, t: float, y: Any) -> dict[str, float]:
@@ -144,6 +170,9 @@ class Balance:
         A vessel's drive is its outlet pressure with the liquid head minus
         ambient; an element's is the pressure at its inlet minus ambient.
         """
+        return self._phase_drives(t, y)
+
+    def _reference_drives(self, t: float, y: Any) -> dict[str, float]:
         rec: dict[str, Any] = {"_light": True}
         self._balance(t, y, rec)
         return rec
@@ -274,9 +303,10 @@ class Balance:
                 if mu > 0.0:
                     nx_, ny_, nz_ = Gx - Gu * u[0], Gy - Gu * u[1], Gz - Gu * u[2]
                     fmax = mu * math.sqrt(nx_ * nx_ + ny_ * ny_ + nz_ * nz_)
-                    if v_along > 0.0:
+                    slide = self.slide or v_along
+                    if slide > 0.0:
                         fr = -fmax
-                    elif v_along < 0.0:
+                    elif slide < 0.0:
                         fr = fmax
                     else:  # at rest: static friction holds up to fmax
                         fr = -fmax if Gu > fmax else (fmax if Gu < -fmax else -Gu)

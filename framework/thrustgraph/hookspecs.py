@@ -67,7 +67,10 @@ def thrustgraph_environment_kinds() -> Sequence[type[EnvironmentKind]]:
     Called once per plugin manager; all results are merged by ``kind``, and
     duplicates are refused. Media build ``fn(z, t) -> (rho [kg/m^3], p [Pa],
     T [K], wind_x, wind_y, wind_z [m/s])``; gravity fields build
-    ``fn(z) -> g [m/s^2]``.
+    ``fn(z) -> g [m/s^2]``. A medium or field that is the same everywhere and
+    always may say so by setting ``fn.uniform`` to its constant result (the
+    tuple, or g); the generated right-hand side then uses that value instead of
+    calling ``fn``. It must equal what ``fn`` returns.
 
     Returns
     -------

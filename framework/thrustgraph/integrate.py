@@ -61,9 +61,27 @@ class _Phase:
 
     def __init__(self, modes: list[int], kin: int, descending: bool) -> None:
         self.modes, self.kin, self.descending = modes, kin, descending
+        self.slide = 0.0   # the way it slides along a guide or track in this segment (Balance.set_phase)
 
     def copy(self) -> "_Phase":
-        return _Phase(list(self.modes), self.kin, self.descending)
+        c = _Phase(list(self.modes), self.kin, self.descending)
+        c.slide = self.slide
+        return c
+
+
+def _set_segment_phase(bal: Balance, ph: _Phase, t: float, y: np.ndarray) -> None:
+    """Set the balance to the segment's phase, with the way it slides on a guide or track: the sign of the
+    speed along it, or, starting at rest, the way it is about to move (0 if friction holds it)."""
+    ph.slide = 0.0
+    bal.set_phase(ph.modes, ph.kin, ph.descending)
+    if ph.kin in (Kinematics.GUIDE, Kinematics.TRACK):
+        u = bal.system.guide_dir
+        v = float(y[3] * u[0] + y[4] * u[1] + y[5] * u[2])
+        if v == 0.0:
+            d = bal.rhs(t, y)
+            v = d[3] * u[0] + d[4] * u[1] + d[5] * u[2]
+        ph.slide = 1.0 if v > 0.0 else (-1.0 if v < 0.0 else 0.0)
+        bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
 
 
 def _label(system: System, ph: _Phase) -> str:
@@ -202,7 +220,7 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
     while t < t_end:
         sysm = state.system
         bal = state.bal
-        bal.set_phase(ph.modes, ph.kin, ph.descending)
+        _set_segment_phase(bal, ph, t, y)
         bal._y_start = y
         fns, actions = _events(sysm, bal, ph, x0, triggers, pending, t)
         # Component events and triggers already past their zero when a segment starts fire at once.
@@ -223,7 +241,8 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
                 ph.modes[sysm.moded.index(comp)] = [m.name for m in sysm.modes[comp]].index(target)
                 events.append(Event(t, name, comp, f"mode -> {target} (at once)"))
             sysm, bal = state.system, state.bal
-            bal.set_phase(ph.modes, ph.kin, ph.descending)
+            _set_segment_phase(bal, ph, t, y)
+            bal._y_start = y
             fns, actions = _events(sysm, bal, ph, x0, triggers, pending, t)
         if stop:
             break
@@ -246,7 +265,7 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
                                             "weight and the guide friction")
             break
         try:
-            sol = solve_ivp(bal.rhs, (t, t_end), y, method=method, rtol=rtol, atol=state.atol, events=fns,
+            sol = solve_ivp(bal.phase_rhs, (t, t_end), y, method=method, rtol=rtol, atol=state.atol, events=fns,
                             dense_output=dense)
         except (ValueError, ZeroDivisionError, OverflowError) as exc:
             raise IntegrationError(f"integration failed at t = {t:.6g} s in phase {_label(sysm, ph)!r}: {exc}") from None
@@ -298,7 +317,8 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
                 held = d[3] == 0.0 and d[4] == 0.0 and d[5] == 0.0
                 if held and _label(sysm, ph) in _NOT_PROPULSIVE and not pending and not triggers:
                     stop = True
-                    segs.message = "came to rest on the track"
+                    segs.message = "came to rest on the track" if ph.kin == Kinematics.TRACK else \
+                        "came to rest on the launch guide"
             elif kind == "foot":
                 events.append(Event(t, "back at the guide foot", "vehicle", "slid back down the guide"))
                 y[:3] = x0
@@ -445,19 +465,15 @@ def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: 
         foot.direction = -1.0
         fns.append(foot)
         actions.append(("foot", "back at the guide foot", "vehicle", None))
-    if ph.kin == Kinematics.TRACK:
-        y_now = getattr(bal, "_y_start", None)
-        v_along = 0.0 if y_now is None else float(np.dot(y_now[3:6], u))
-        if v_along == 0.0 and y_now is not None:
-            d = bal.rhs(t_now, y_now)
-            v_along = d[3] * u[0] + d[4] * u[1] + d[5] * u[2]   # the way it is about to move
-        if v_along != 0.0:
-            def rest(t, y):
-                return y[3] * u[0] + y[4] * u[1] + y[5] * u[2]
-            rest.terminal = True
-            rest.direction = -1.0 if v_along > 0.0 else 1.0
-            fns.append(rest)
-            actions.append(("rest", "came to rest", "vehicle", None))
+    if ph.kin in (Kinematics.TRACK, Kinematics.GUIDE) and ph.slide != 0.0:
+        # sliding: the segment ends where the speed along the guide or track reaches zero (kinetic friction
+        # opposes the sliding direction, fixed for the segment, so the turn-round is a segment boundary)
+        def rest(t, y):
+            return y[3] * u[0] + y[4] * u[1] + y[5] * u[2]
+        rest.terminal = True
+        rest.direction = -ph.slide
+        fns.append(rest)
+        actions.append(("rest", "came to rest", "vehicle", None))
     if ph.kin == Kinematics.FREE and system.gravity(float(x0[2])) > 0.0:
         if not ph.descending:
             def apogee(t, y):
@@ -495,7 +511,7 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
         uniq_t, first = np.unique(sol.t, return_index=True)
         yy = sol.sol(tt) if len(tt) > len(uniq_t) else sol.y[:, first].copy()
         yy[:, np.searchsorted(tt, uniq_t)] = sol.y[:, first]   # keep the solver's own points exact
-        bal.set_phase(ph.modes, ph.kin, ph.descending)
+        bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
         for k in range(len(tt)):
             snaps.append(bal.evaluate(float(tt[k]), yy[:, k]))
         ts.append(tt)

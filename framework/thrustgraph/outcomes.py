@@ -172,7 +172,8 @@ def summarise(system: System, segs: Any, outputs: Sequence[str] | None = None) -
 
     bal0 = segments[0][2]
     if "launch_mass" in want:
-        bal0.set_phase(segments[0][0].modes, segments[0][0].kin, segments[0][0].descending)
+        bal0.set_phase(segments[0][0].modes, segments[0][0].kin, segments[0][0].descending,
+                        segments[0][0].slide)
         out["launch_mass"] = float(bal0.evaluate(t_first, y_first)["mass"])
 
     if "peak_vessel_pressure" in want:
@@ -211,7 +212,7 @@ def summarise(system: System, segs: Any, outputs: Sequence[str] | None = None) -
         best, where = -1.0, None
         accs = []
         for j, (ph, sol, bal) in enumerate(segments):
-            bal.set_phase(ph.modes, ph.kin, ph.descending)
+            bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
             a = np.array([bal.rhs(float(sol.t[k]), sol.y[:, k])[3:6] for k in range(len(sol.t))])
             if ph.kin == Kinematics.HELD:
                 a[:] = 0.0
@@ -224,7 +225,7 @@ def summarise(system: System, segs: Any, outputs: Sequence[str] | None = None) -
         ph, sol, bal = segments[j]
         n = len(sol.t)
         if n > 2 and 0 < k < n - 1 or (n > 1 and (k == 0 or k == n - 1)):
-            bal.set_phase(ph.modes, ph.kin, ph.descending)
+            bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
 
             def accel(t, sol=sol, bal=bal):
                 a = bal.rhs(t, sol.sol(t))
@@ -237,7 +238,7 @@ def summarise(system: System, segs: Any, outputs: Sequence[str] | None = None) -
         for ph, sol, bal in segments:
             if not _propulsive(bal.system, ph.modes) and not bal.system.jets:
                 continue
-            bal.set_phase(ph.modes, ph.kin, ph.descending)
+            bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
             t = sol.t
             for k in range(len(t) - 1):
                 a, b = float(t[k]), float(t[k + 1])

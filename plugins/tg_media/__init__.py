@@ -46,6 +46,7 @@ class StillAir(EnvironmentKind):
 
         def medium(z, t):
             return out
+        medium.uniform = out  # the same everywhere, always: the core may use the tuple itself
         return medium
 
 
@@ -62,6 +63,7 @@ class Vacuum(EnvironmentKind):
 
         def medium(z, t):
             return out
+        medium.uniform = out
         return medium
 
 
@@ -81,6 +83,7 @@ class UniformGravity(EnvironmentKind):
 
         def gravity(z):
             return g
+        gravity.uniform = g
         return gravity
 
 
