@@ -39,7 +39,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from .assembly import System
+from .assembly import ACCUMULATORS, System
 from .errors import IntegrationError
 from .kernel import phase_functions
 from .vectors import body_frame, solve_rank_one, to_world
@@ -147,9 +147,10 @@ class Balance:
             fns = self._phase_fns.get(key)
             if fns is None:
                 fns = self._phase_fns[key] = phase_functions(self)
-            self.phase_rhs, self._phase_drives = fns
+            self.phase_rhs, self.phase_core, self._phase_drives = fns
         else:
-            self.phase_rhs, self._phase_drives = self.reference_rhs, self._reference_drives
+            self.phase_rhs, self.phase_core, self._phase_drives = \
+                self.reference_rhs, self._reference_core, self._reference_drives
 
     # ------------------------------------------------------------------
     def rhs(self, t: float, y: Any) -> list[float]:
@@ -163,6 +164,9 @@ class Balance:
     def reference_rhs(self, t: float, y: Any) -> list[float]:
         """The same derivatives from the general (loop-and-branch) balance; the generated one must equal it."""
         return self._balance(t, y if type(y) is list else y.tolist(), None)
+
+    def _reference_core(self, t: float, y: Any) -> list[float]:
+        return self.reference_rhs(t, y)[:self.system.n_states - len(ACCUMULATORS)]
 
     def drives(self, t: float, y: Any) -> dict[str, float]:
         """Drive pressure (Pa) per vessel and per discharging element, for events.

@@ -90,11 +90,16 @@ class Mode:
 
     ``label`` names the flight phase while the mode is active (e.g. "liquid
     thrust"); ``propulsive`` says whether the component can push in it.
+    ``outflow=False`` promises that nothing flows through the component in
+    this mode (a sealed vessel, a closed valve): its flows would be exact
+    zeros, so the generated right-hand side skips the discharge lines it is on
+    (a test checks the promise on the bundled models).
     """
 
     name: str
     label: str
     propulsive: bool = True
+    outflow: bool = True
 
 
 @dataclass(frozen=True)

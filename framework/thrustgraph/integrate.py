@@ -162,12 +162,18 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
                  method: str | None = None, end_time: float | None = None,
                  progress: Callable[[float, float], None] | None = None, t0: float = 0.0,
                  y0: Any = None, modes0: list[int] | None = None, kin0: int | None = None,
-                 descending: bool = False, dense: bool = True) -> Segments:
+                 descending: bool = False, dense: bool = True, audit: bool = True) -> Segments:
     """The phase-by-phase integration alone, without building the result's signals and ledger.
 
     ``t0``, ``y0``, ``modes0``, ``kin0`` start the run from a given state (a dropped stage). Studies and
     benchmarks that only need end states use this directly, with ``dense=False`` (no dense output: DOP853
     then spends no extra evaluations per step on interpolants; results cannot be built from such segments).
+
+    ``audit=False`` leaves the closure-audit accumulators out of the integrated state (the segments' ``y``
+    then holds the physical states only, and the accumulators of the state between segments are NaN). They
+    never feed back into the motion and are left out of the error control anyway; so that the error norm (an
+    RMS over the state) and hence every step stay those of the audited run, rtol and atol are scaled by
+    sqrt(n_states / n_physical). Results cannot be built from such segments either.
     """
     run = system.run
     rtol = run.rtol if rtol is None else rtol
@@ -265,8 +271,14 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
                                             "weight and the guide friction")
             break
         try:
-            sol = solve_ivp(bal.phase_rhs, (t, t_end), y, method=method, rtol=rtol, atol=state.atol, events=fns,
-                            dense_output=dense)
+            if audit:
+                sol = solve_ivp(bal.phase_rhs, (t, t_end), y, method=method, rtol=rtol, atol=state.atol,
+                                events=fns, dense_output=dense)
+            else:
+                n_phys = sysm.n_states - len(ACCUMULATORS)
+                k = math.sqrt(sysm.n_states / n_phys)
+                sol = solve_ivp(bal.phase_core, (t, t_end), y[:n_phys], method=method, rtol=rtol * k,
+                                atol=state.atol[:n_phys] * k, events=fns, dense_output=dense)
         except (ValueError, ZeroDivisionError, OverflowError) as exc:
             raise IntegrationError(f"integration failed at t = {t:.6g} s in phase {_label(sysm, ph)!r}: {exc}") from None
         segs.nfev += sol.nfev
@@ -277,7 +289,7 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
             raise IntegrationError(f"solve_ivp failed at t = {sol.t[-1]:.6g} s in phase "
                                    f"{_label(sysm, ph)!r}: {sol.message}")
         t = float(sol.t[-1])
-        y = sol.y[:, -1].copy()
+        y = sol.y[:, -1].copy() if audit else np.concatenate([sol.y[:, -1], np.full(len(ACCUMULATORS), np.nan)])
         if sol.status == 0:
             events.append(Event(t, "end time", "vehicle", "the run reached run.end_time"))
             segs.status, segs.message = 0, "end time reached"

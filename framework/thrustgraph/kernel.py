@@ -25,7 +25,7 @@ Examples
 >>> from thrustgraph.assembly import assemble
 >>> from thrustgraph.balance import Balance
 >>> bal = Balance(assemble(load_model(default_model_path())))
->>> fast, _drives = phase_functions(bal)
+>>> fast, _core, _drives = phase_functions(bal)
 >>> fast(0.0, list(bal.system.y0)) == bal.reference_rhs(0.0, list(bal.system.y0))
 True
 """
@@ -76,7 +76,18 @@ def _structure(bal) -> tuple:
             tuple((k, stateful) for k, stateful, _ in bal._force_fns), tuple(bal._jet_aft), len(bal._vols),
             len(bal._srcs), tuple((i[0], i[1], i[4], i[5]) for i in bal._line_info),
             tuple((rt[3], rt[4] is not None, rt[5] is not None) for rt in bal._line_rt), tuple(bal._owners),
-            tuple((ln.start, ln.terminal) for ln in bal._lines), bal._mu > 0.0, bal.slide)
+            tuple((ln.start, ln.terminal) for ln in bal._lines), bal._mu > 0.0, bal.slide, tuple(_idle_lines(bal)))
+
+
+def _idle_lines(bal) -> list[bool]:
+    """Per line: does a component on it sit in a mode that promises no outflow (Mode.outflow=False)?"""
+    sysm = bal.system
+    current = {n: sysm.modes[n][bal.modes[k]] for k, n in enumerate(sysm.moded)}
+    out = []
+    for ln in bal._lines:
+        names = [ln.start, ln.terminal] + [m for m, _ in ln.series]
+        out.append(any(n in current and not current[n].outflow for n in names))
+    return out
 
 
 def _namespace(bal) -> dict[str, Any]:
@@ -116,7 +127,8 @@ def phase_source(bal) -> str:
     """Python source of the current phase's right-hand side and drives.
 
     ``bal`` is a :class:`~thrustgraph.balance.Balance` whose phase is set. The source defines
-    ``rhs(t, y)`` (derivatives, a list) and ``drives(t, y)`` (the drive pressures the events read); the names
+    ``rhs(t, y)`` (derivatives, a list), ``core(t, y)`` (the same without the audit accumulators: the
+    derivatives of the physical states only) and ``drives(t, y)`` (the drive pressures the events read); the names
     it uses are filled in by :func:`_namespace`. Terms that are zero by structure in this phase (pressure
     thrust without jets, internal and inflow momentum without such lines, friction without a friction
     coefficient) are left out; adding an exact zero changes no value.
@@ -133,12 +145,16 @@ def phase_source(bal) -> str:
     has_i = any(rt[4] is not None or not info[0] for info, rt in zip(line_info, line_rt))
     has_c = guided and bal._mu > 0.0
     aft = ("ax_", "ay_", "az_")
+    idle = _idle_lines(bal)
     uni_m = getattr(bal.system.medium, "uniform", None) is not None
     uni_g = getattr(bal.system.gravity, "uniform", None) is not None
     dwn = [aft if info[4] else (f"dw{j}x", f"dw{j}y", f"dw{j}z") for j, info in enumerate(line_info)]
     jdn = [aft if info[5] else (f"jd{j}x", f"jd{j}y", f"jd{j}z") for j, info in enumerate(line_info)]
 
     def body(kind: str) -> None:
+        # lines that cannot flow in this phase (a component on them in a mode with outflow=False) are left out of
+        # the derivatives; the drives still see every line's pressures
+        live = [kind == "drives" or not idle[j] for j in range(nlines)]
         w("try:", "    s = y.tolist()", "except AttributeError:", "    s = list(y)",
           "vx = s[3]; vy = s[4]; vz = s[5]",
           "rho, pa, Ta, wx, wy, wz = MEDIUM_U" if uni_m else "rho, pa, Ta, wx, wy, wz = medium(s[2], t)",
@@ -164,8 +180,11 @@ def phase_source(bal) -> str:
                 w(f"Dx, Dy, Dz = {call}")
             else:
                 w(f"f = {call}", "Dx += f[0]; Dy += f[1]; Dz += f[2]")
-        w("Wz = -M * g", "Fx = Dx; Fy = Dy; Fz = Dz + Wz", "mout = 0.0", "Ex = Ey = Ez = 0.0")
-        if has_p:
+        acc = kind == "rhs"    # the audit accumulators' derivatives ("core" and "drives" leave them out)
+        w("Wz = -M * g", "Fx = Dx; Fy = Dy; Fz = Dz + Wz")
+        if acc:
+            w("mout = 0.0", "Ex = Ey = Ez = 0.0")
+        if has_p and acc:
             w("Px = Py = Pz = 0.0")
         for k, (_, jf, _) in enumerate(jets):
             w(f"jm{k}, ve, pe, Ae = jet{k}(t, s, JMODE{k}, pa)")
@@ -174,17 +193,22 @@ def phase_source(bal) -> str:
             else:
                 w(f"j0, j1, j2 = to_world(JDIR{k}, frame)")
             w("pth = (pe - pa) * Ae", f"T = jm{k} * ve + pth",
-              "Fx -= T * j0; Fy -= T * j1; Fz -= T * j2",
-              "Px -= pth * j0; Py -= pth * j1; Pz -= pth * j2",
-              f"mout += jm{k}",
-              f"Ex += jm{k} * (vx + ve * j0); Ey += jm{k} * (vy + ve * j1); Ez += jm{k} * (vz + ve * j2)")
+              "Fx -= T * j0; Fy -= T * j1; Fz -= T * j2")
+            if acc:
+                w("Px -= pth * j0; Py -= pth * j1; Pz -= pth * j2",
+                  f"mout += jm{k}",
+                  f"Ex += jm{k} * (vx + ve * j0); Ey += jm{k} * (vy + ve * j1); Ez += jm{k} * (vz + ve * j2)")
         for k in range(len(vols)):
-            w(f"vo{k} = outlet{k}(s, VMODE{k})")
+            if any(live[j] and info[0] and info[1] == k for j, info in enumerate(line_info)):
+                w(f"vo{k} = outlet{k}(s, VMODE{k})")
         for k in range(len(srcs)):
             w(f"su{k} = supply{k}(t, s, SMODE{k}, air)")
         coupled = []
         for j, info in enumerate(line_info):
             isvol, idx = info[0], info[1]
+            if not live[j]:
+                w(f"m{j} = 0.0; ve{j} = 0.0")
+                continue
             w(f"o{j} = vo{idx}" if isvol else f"o{j} = su{idx}[0]")
             if not info[4]:
                 w(f"{', '.join(dwn[j])} = to_world(ODIR{j}, frame)")
@@ -201,6 +225,8 @@ def phase_source(bal) -> str:
             if has_i:
                 w("Ix = Iy = Iz = 0.0")
             for j, (info, rt) in enumerate(zip(line_info, line_rt)):
+                if not live[j]:
+                    continue
                 isvol, idx = info[0], info[1]
                 _, _, _flowfn, simple, internal, inflow, _ln = rt
                 dx, dy, dz = dwn[j]
@@ -240,7 +266,7 @@ def phase_source(bal) -> str:
 
         ix, iy, iz = (" + Ix", " + Iy", " + Iz") if has_i else ("", "", "")
         sum_g = f"Gx = Fx + Tx{ix}; Gy = Fy + Ty{iy}; Gz = Fz + Tz{iz}"
-        names = [f"{p}{j}" for j, info in enumerate(line_info)
+        names = [f"{p}{j}" for j, info in enumerate(line_info) if live[j]
                  for p in (("m", "ve", "c", "ps", "pi") if info[0] else ("m", "ve", "c", "ps", "pi", "vn"))] + \
             ["Tx", "Ty", "Tz", "Qx", "Qy", "Qz"] + (["Ix", "Iy", "Iz"] if has_i else [])
         lines_at(lambda x, y, z: f"gz * {z}")        # f = g = (0, 0, -g): the other products are zeros
@@ -256,7 +282,7 @@ def phase_source(bal) -> str:
                       "if it and abs(rx) + abs(ry) + abs(rz) <= 1e-12 * (abs(Gx) + abs(Gy) + abs(Gz) + M * g):",
                       "    break",
                       )
-                    vlines = [j for j, info in enumerate(line_info) if info[0]]
+                    vlines = [j for j, info in enumerate(line_info) if info[0] and live[j]]
                     if len(vlines) == 1:
                         # one coupled line: the Sherman-Morrison step of solve_rank_one, written out
                         j = vlines[0]
@@ -309,7 +335,7 @@ def phase_source(bal) -> str:
                     w("r = M * alpha - Gu")
                 w("if it and abs(r) <= 1e-12 * (abs(Gu) + M * g + 1e-30):", "    break", "J = M")
                 for j, info in enumerate(line_info):
-                    if info[0]:
+                    if info[0] and live[j]:
                         dx, dy, dz = dwn[j]
                         jx, jy, jz = jdn[j]
                         w(f"if o{j}[6] != 0.0:",
@@ -356,10 +382,15 @@ def phase_source(bal) -> str:
                 else:
                     w(f"d{n} = bderivs{k}(t, s, BMODE{k}, air)")
                 parts.append(f"*d{n}")
-        has_n = not all(info[0] for info in line_info)
+        if not acc:
+            w("return [" + ", ".join(parts) + "]")
+            return
+        has_n = not all(info[0] or not live[j] for j, info in enumerate(line_info))
         if has_n:
             w("Nx = Ny = Nz = 0.0")
         for j, info in enumerate(line_info):
+            if not live[j]:
+                continue
             jx, jy, jz = jdn[j]
             w(f"Ex += m{j} * (vx + ve{j} * {jx}); Ey += m{j} * (vy + ve{j} * {jy}); "
               f"Ez += m{j} * (vz + ve{j} * {jz})")
@@ -379,7 +410,7 @@ def phase_source(bal) -> str:
             parts += ["-Ix", "-Iy", "-Iz"] if has_i else ["0.0", "0.0", "0.0"]
         w("return [" + ", ".join(parts) + "]")
 
-    for kind in ("rhs", "drives"):
+    for kind in ("rhs", "core", "drives"):
         w(f"def {kind}(t, y):")
         with w.block():
             body(kind)
@@ -387,8 +418,8 @@ def phase_source(bal) -> str:
     return w.text()
 
 
-def phase_functions(bal) -> tuple[Callable, Callable]:
-    """Compiled ``(rhs, drives)`` for the phase ``bal`` is set to.
+def phase_functions(bal) -> tuple[Callable, Callable, Callable]:
+    """Compiled ``(rhs, core, drives)`` for the phase ``bal`` is set to.
 
     The source is generated and compiled once per structure (:func:`_structure`) in the process; each
     vehicle then only binds its own values and callables.
@@ -404,4 +435,4 @@ def phase_functions(bal) -> tuple[Callable, Callable]:
         _CODE_CACHE.move_to_end(key)
     ns = _namespace(bal)
     exec(code, ns)
-    return ns["rhs"], ns["drives"]
+    return ns["rhs"], ns["core"], ns["drives"]

@@ -167,14 +167,13 @@ def summarise(system: System, segs: Any, outputs: Sequence[str] | None = None) -
             out["impact_speed"] = float(np.linalg.norm(y_last[3:6]))
     out["burn_time"] = float(sum(sol.t[-1] - sol.t[0] for ph, sol, bal in segments
                                  if _propulsive(bal.system, ph.modes)))
-    lsys = last_bal.system
-    out["propellant_expelled"] = float(y_last[lsys.index("audit.mass_out")]) - segs.dropped_mass
-
+    # what left through the control surface, by conservation of mass (the run carries no audit accumulators)
     bal0 = segments[0][2]
-    if "launch_mass" in want:
-        bal0.set_phase(segments[0][0].modes, segments[0][0].kin, segments[0][0].descending,
-                        segments[0][0].slide)
-        out["launch_mass"] = float(bal0.evaluate(t_first, y_first)["mass"])
+    bal0.set_phase(segments[0][0].modes, segments[0][0].kin, segments[0][0].descending, segments[0][0].slide)
+    out["launch_mass"] = float(bal0.evaluate(t_first, y_first)["mass"])
+    last_bal.set_phase(last_ph.modes, last_ph.kin, last_ph.descending, last_ph.slide)
+    m_final = float(last_bal.evaluate(t_last, y_last)["mass"])
+    out["propellant_expelled"] = out["launch_mass"] - m_final - segs.dropped_mass
 
     if "peak_vessel_pressure" in want:
         best = -math.inf
@@ -268,7 +267,7 @@ def fly_design(parsed: ParsedModel, outputs: Sequence[str] | None = None, *, rto
 
     try:
         system = assemble(parsed)
-        segs = fly_segments(system, rtol=rtol, atol=atol)
+        segs = fly_segments(system, rtol=rtol, atol=atol, audit=False)
     except ModelError as exc:
         return Outcome(STATUS_SCREENED, f"model error: {exc}")
     except IntegrationError as exc:

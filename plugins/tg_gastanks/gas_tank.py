@@ -128,7 +128,7 @@ class GasTank(ComponentKind):
         StateVar("gas_mass", "kg", "gas in the tank"),
         StateVar("temperature", "K", "gas temperature"),
     )
-    modes = (Mode("gas", "gas thrust"), Mode("sealed", "sealed", propulsive=False))
+    modes = (Mode("gas", "gas thrust"), Mode("sealed", "sealed", propulsive=False, outflow=False))
 
     # --- validation -----------------------------------------------------------
     @classmethod

@@ -109,7 +109,7 @@ class SelfPressurisingTank(ComponentKind):
         StateVar("propellant_mass", "kg", "liquid and vapour in the tank"),
         StateVar("temperature", "K", "temperature of the contents"),
     )
-    modes = (Mode("liquid", "liquid thrust"), Mode("vapour", "gas thrust"), Mode("sealed", "sealed", propulsive=False))
+    modes = (Mode("liquid", "liquid thrust"), Mode("vapour", "gas thrust"), Mode("sealed", "sealed", propulsive=False, outflow=False))
 
     @classmethod
     def check(cls, p, where):

@@ -108,7 +108,7 @@ class ReliefValve(ComponentKind):
         Quantity("cracking_pressure", "bar", low=0.0, low_open=True, doc="inlet pressure above ambient at which it opens"),
         Quantity("reseat_pressure", "bar", low=0.0, doc="inlet pressure above ambient at which it closes again"),
     ) + _COMMON
-    modes = (Mode("closed", "relief closed", propulsive=False), Mode("open", "relief venting"))
+    modes = (Mode("closed", "relief closed", propulsive=False, outflow=False), Mode("open", "relief venting"))
 
     @classmethod
     def check(cls, p, where):

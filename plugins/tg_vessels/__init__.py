@@ -106,7 +106,7 @@ class LiquidTank(ComponentKind):
     modes = (
         Mode("liquid", "liquid thrust"),
         Mode("gas", "gas thrust"),
-        Mode("sealed", "sealed", propulsive=False),
+        Mode("sealed", "sealed", propulsive=False, outflow=False),
     )
 
     @classmethod
