@@ -38,7 +38,6 @@ True
 from __future__ import annotations
 
 import dataclasses
-import math
 from typing import Any, Sequence
 
 import numpy as np
@@ -200,12 +199,13 @@ class ArraySystem:
         self.internal = any(v.internal is not None for _, v in self.volumes)
         self.newton = 3 if self.internal else 1
         self._friction = bool(np.any(np.asarray(self.mu) > 0.0))
-        # per vessel and mode: True where it cannot push and watches no drive (its lines pass nothing)
+        # per vessel and mode: True where it promises no outflow (Mode.outflow, as the single-flight kernel
+        # reads it) and watches no drive, so that its outlet need not be evaluated either
         self._quiet = []
         for nm, v in self.volumes:
             ms = self.modes.get(nm, ())
             watch = {w for e in v.events if e.needs_drive for w in e.when}
-            self._quiet.append(np.array([not m.propulsive and m.name not in watch for m in ms] or [False]))
+            self._quiet.append(np.array([not m.outflow and m.name not in watch for m in ms] or [False]))
 
     # ------------------------------------------------------------------
     def _initial_modes(self) -> None:

@@ -37,8 +37,6 @@ from __future__ import annotations
 import math
 from typing import Any, Sequence
 
-import numpy as np
-
 from .assembly import ACCUMULATORS, System
 from .errors import IntegrationError
 from .kernel import phase_functions
@@ -68,10 +66,11 @@ class Balance:
     """
 
     max_newton = 8
+    generate = True   # default for ``generated``: the per-phase generated right-hand side, or the general one
 
-    def __init__(self, system: System, *, generated: bool = True) -> None:
+    def __init__(self, system: System, *, generated: bool | None = None) -> None:
         self.system = system
-        self.generated = generated
+        self.generated = type(self).generate if generated is None else generated
         self._phase_fns: dict[tuple, tuple] = {}
         sysm = system
         slot = {n: k for k, n in enumerate(sysm.moded)}
@@ -441,7 +440,6 @@ class Balance:
     # ------------------------------------------------------------------
     def _record(self, rec, t, s, M, e, a, drags, weight, reaction, friction, outs, flows, jet_out, supplies,
                 rho, pa, Ta, wind, sp, g):
-        sysm = self.system
         rec.update(time=t, mass=M, axis=e, acceleration=a, weight=weight, reaction=reaction,
                    position=(s[0], s[1], s[2]), velocity=(s[3], s[4], s[5]), airspeed=sp,
                    ambient_pressure=pa, ambient_density=rho, ambient_temperature=Ta, wind=wind, gravity=g)
