@@ -240,6 +240,7 @@ class _Buffers:
 
         einsum, not BLAS: a threaded BLAS on a busy 2-core machine made this 100x slower (measured).
         """
+        assert out.flags.c_contiguous   # else reshape would copy and the sum would be lost
         np.einsum("s,sk->k", coeffs[:m], self.Kf[:m], out=out.reshape(-1))
         out *= h
         out += Y
@@ -427,7 +428,9 @@ class _Run:
         self.sysa = self.sysa.subset(keep)
         for name in self._PER_DESIGN:
             setattr(self, name, getattr(self, name)[keep])
-        self.Y, self.F, self.modes = self.Y[:, keep], self.F[:, keep], self.modes[:, keep]
+        # row-major copies: the state array and the step's buffers trade places (see step)
+        self.Y, self.F = np.ascontiguousarray(self.Y[:, keep]), np.ascontiguousarray(self.F[:, keep])
+        self.modes = self.modes[:, keep]
         self.gold = [g[keep] for g in self.gold]
         self.fate = [self.fate[i] for i in keep]
         self.fate_status = [self.fate_status[i] for i in keep]
@@ -556,13 +559,19 @@ class _Run:
         if np.any(acc):
             self.track(acc, cut, th_end, Y, F, K, Yn, aux_n, hh, evi if len(evi) else None,
                        (Ye, Fe, aux_e) if len(evi) else None, sub_e if len(evi) else None)
-        # advance the accepted designs without an event
+        # advance the accepted designs without an event: the new states become the state array (the old
+        # one is the next step's buffer) and the few other designs' columns are copied back
         plain = acc & ~cut
-        Y[:, plain] = Yn[:, plain]
-        F[:, plain] = K[6][:, plain]
-        t[plain] = t[plain] + hh[plain]
+        stay = np.flatnonzero(~plain)
+        Yn[:, stay] = Y[:, stay]
+        K[6][:, stay] = F[:, stay]
+        self.Y, buf.Yn = Yn, Y
+        Y = Yn
+        np.copyto(F, K[6])
+        t += hh * plain
         for j in range(nev):
-            self.gold[j][plain] = gnew[j][plain]
+            gnew[j][stay] = self.gold[j][stay]
+        self.gold = gnew
         # designs cut at an event: move to the event point and switch their phase
         if len(evi):
             t[evi] = te

@@ -127,37 +127,71 @@ class ConvergentNozzle(ComponentKind):
 
     @classmethod
     def _build_flow_arrays(cls, p):
-        """The same nozzle over arrays of designs: ``up`` holds arrays (or floats), parameters arrays or floats."""
+        """The same nozzle over arrays of designs: ``up`` holds arrays (or floats), parameters arrays or floats.
+
+        Each regime (liquid, choked gas, unchoked gas) is evaluated only when
+        some design is in it; a design's numbers do not depend on which other
+        designs share the arrays.
+        """
         import numpy as np
 
         area = p.discharge_coefficient * math.pi * p.diameter ** 2 / 4.0
+        memo: list = [None, None, None]       # (gamma, R) -> their constants, for the last pair seen
+
+        def consts(gam, R):
+            if memo[0] is not gam or memo[1] is not R:
+                k = (gam - 1.0) / gam
+                crit = (2.0 / (gam + 1.0)) ** (gam / (gam - 1.0))
+                flux = np.sqrt(gam / R) * (2.0 / (gam + 1.0)) ** ((gam + 1.0) / (2.0 * (gam - 1.0)))
+                vu2 = 2.0 * gam * R / (gam - 1.0)           # (unchoked exit speed)^2 / (T (1 - x))
+                memo[:] = [gam, R, (crit, flux, k, gam * R, vu2)]
+            return memo[2]
 
         def flow(up, p_down, mode=0):
             pu, T, rho, gam, R, phase, head = up
             liquid = phase > 0.5
             dp = pu - p_down
             wet = dp > 0.0
-            v_l = np.sqrt(2.0 * np.maximum(dp, 0.0) / rho)
             open_ = (phase > -0.5) & wet
+            gas = open_ & ~liquid
+            any_l, any_g = bool(liquid.any()), bool(gas.any())
+            zero = np.zeros(np.shape(liquid))
+            if any_l:
+                v_l = np.sqrt(2.0 * np.maximum(dp, 0.0) / rho)
+                md_l, c_l = rho * area * v_l, np.where(wet, 2.0 * area, 0.0)
+            if not any_g:
+                if not any_l:
+                    return (zero, zero, p_down + zero, area, zero)
+                return (np.where(liquid, md_l, 0.0), np.where(liquid, v_l, 0.0), p_down + zero, area,
+                        np.where(liquid, c_l, 0.0))
+            crit, flux, k, gR, vu2 = consts(gam, R)
             pus = np.where(open_, pu, p_down + 1.0)
-            crit = (2.0 / (gam + 1.0)) ** (gam / (gam - 1.0))
             pr = p_down / pus
             choked = pr <= crit
-            flux = np.sqrt(gam / R) * (2.0 / (gam + 1.0)) ** ((gam + 1.0) / (2.0 * (gam - 1.0)))
-            md_c = area * pus * flux / np.sqrt(T)
-            ve_c = np.sqrt(gam * R * (2.0 * T / (gam + 1.0)))
-            pe_c = crit * pus
-            x = np.maximum(pr, 1e-300) ** ((gam - 1.0) / gam)
-            ve_u = np.sqrt(2.0 * gam * R / (gam - 1.0) * T * np.maximum(1.0 - x, 0.0))
-            md_u = (p_down / (R * T * x)) * ve_u * area
-            md_g = np.where(choked, md_c, md_u)
-            ve_g = np.where(choked, ve_c, ve_u)
-            pe_g = np.where(choked, pe_c, p_down)
-            c_g = np.where(choked, (md_c * ve_c + pe_c * area) / pus, 2.0 * area)
-            mdot = np.where(liquid, rho * area * v_l, np.where(open_, md_g, 0.0))
-            ve = np.where(liquid, v_l, np.where(open_, ve_g, 0.0))
-            pe = np.where(liquid | ~open_, p_down, pe_g)
-            c = np.where(liquid, np.where(wet, 2.0 * area, 0.0), np.where(open_, c_g, 0.0))
+            any_c, any_u = bool((gas & choked).any()), bool((gas & ~choked).any())
+            if any_c:
+                md_c = area * pus * flux / np.sqrt(T)
+                ve_c = np.sqrt(gR * (2.0 * T / (gam + 1.0)))
+                pe_c = crit * pus
+                c_c = (md_c * ve_c + pe_c * area) / pus
+            if any_u:
+                x = np.maximum(pr, 1e-300) ** k
+                ve_u = np.sqrt(vu2 * T * np.maximum(1.0 - x, 0.0))
+                md_u = (p_down / (R * T * x)) * ve_u * area
+            if any_c and any_u:
+                md_g, ve_g = np.where(choked, md_c, md_u), np.where(choked, ve_c, ve_u)
+                pe_g, c_g = np.where(choked, pe_c, p_down), np.where(choked, c_c, 2.0 * area)
+            elif any_c:
+                md_g, ve_g, pe_g, c_g = md_c, ve_c, pe_c, c_c
+            else:
+                md_g, ve_g, pe_g, c_g = md_u, ve_u, p_down + zero, 2.0 * area + zero
+            if not any_l:
+                return (np.where(gas, md_g, 0.0), np.where(gas, ve_g, 0.0), np.where(gas, pe_g, p_down), area,
+                        np.where(gas, c_g, 0.0))
+            mdot = np.where(liquid, md_l, np.where(gas, md_g, 0.0))
+            ve = np.where(liquid, v_l, np.where(gas, ve_g, 0.0))
+            pe = np.where(gas, pe_g, p_down)
+            c = np.where(liquid, c_l, np.where(gas, c_g, 0.0))
             return (mdot, ve, pe, area, c)
 
         return FlowFns(flow=flow, jet_dir=p.direction)
