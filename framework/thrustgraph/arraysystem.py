@@ -221,10 +221,16 @@ class ArraySystem:
             base = parsed.params[nm]
             pa, Ta, rho = (np.broadcast_to(np.asarray(v, dtype=float), (self.n,))
                            for v in (self.amb.pressure, self.amb.temperature, self.amb.density))
-            for r in range(self.n):
-                p = with_values(base, {f: float(col[r]) for f, col in changes.items()}) if changes else base
-                amb = Ambient(pressure=float(pa[r]), temperature=float(Ta[r]), density=float(rho[r]))
-                self.mode0[k, r] = names.index(cls.initial_mode(p, amb))
+            fields = list(changes)
+            # the kind is asked once per distinct row of (its varied fields, ambient): a grid repeats them
+            rows = np.column_stack([changes[f] for f in fields] + [pa, Ta, rho])
+            uniq, inverse = np.unique(rows, axis=0, return_inverse=True)
+            picked = np.empty(len(uniq), dtype=np.int8)
+            for u, row in enumerate(uniq):
+                p = with_values(base, {f: float(v) for f, v in zip(fields, row)}) if fields else base
+                amb = Ambient(pressure=float(row[-3]), temperature=float(row[-2]), density=float(row[-1]))
+                picked[u] = names.index(cls.initial_mode(p, amb))
+            self.mode0[k, :] = picked[inverse.reshape(-1)]
 
     def subset(self, idx: np.ndarray) -> "ArraySystem":
         """The same model for some of the designs (rows ``idx``), for compaction and event location."""

@@ -215,12 +215,16 @@ def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: n
             continue   # the kind checks nothing
         cols = [(p.name, j) for j, p in enumerate(params) if p.section == "components" and p.owner == owner]
         base = parsed.params[owner]
-        for i in np.flatnonzero(good):
+        live = np.flatnonzero(good)
+        # one check per distinct row of the owner's values (a grid repeats them)
+        uniq, inverse = np.unique(x[np.ix_(live, [j for _, j in cols])], axis=0, return_inverse=True)
+        for u, row in enumerate(uniq):
             try:
-                cls.check(with_values(base, {nm: float(x[i, j]) for nm, j in cols}), f"components.{owner}")
+                cls.check(with_values(base, {nm: float(v) for (nm, _), v in zip(cols, row)}), f"components.{owner}")
             except ModelError as exc:
-                status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"
-                good[i] = False
+                for i in live[inverse.reshape(-1) == u]:
+                    status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"
+                    good[i] = False
     return good
 
 
