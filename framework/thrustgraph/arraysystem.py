@@ -265,6 +265,18 @@ class ArraySystem:
                 best = p if best is None else np.maximum(best, p)
         return best
 
+    def _all_quiet(self, k: int, mode: Any) -> bool:
+        """Whether vessel ``k`` is in a quiet mode (no outflow, no watched drive) in every design."""
+        q = self._quiet[k]
+        if not q.any():
+            return False
+        if np.ndim(mode) == 0:
+            return bool(q[int(mode)])
+        lo, hi = int(mode.min()), int(mode.max())
+        if q[lo:hi + 1].all():
+            return True
+        return False if lo == hi else bool(np.all(q[mode]))
+
     # ------------------------------------------------------------------
     def rhs(self, t: np.ndarray, Y: np.ndarray, modes: np.ndarray, kin: np.ndarray,
             out: np.ndarray | None = None) -> tuple[np.ndarray, dict]:
@@ -286,8 +298,11 @@ class ArraySystem:
         ux, uy, uz = self.u
         if self.follow:
             use = free & (sp > self.vmin)
-            d = np.where(use, sp, 1.0)
-            ex, ey, ez = np.where(use, vrx / d, ux), np.where(use, vry / d, uy), np.where(use, vrz / d, uz)
+            if use.all():      # the common case in flight: the same numbers without the selections
+                ex, ey, ez = vrx / sp, vry / sp, vrz / sp
+            else:
+                d = np.where(use, sp, 1.0)
+                ex, ey, ez = np.where(use, vrx / d, ux), np.where(use, vry / d, uy), np.where(use, vrz / d, uz)
         else:
             ex, ey, ez = ux, uy, uz
         M = self.fixed_mass
@@ -300,7 +315,7 @@ class ArraySystem:
             f = b.force(air)
             Fx, Fy, Fz = Fx + f[0], Fy + f[1], Fz + f[2]
         vmode = [modes[self.slot[nm]] if nm in self.slot else 0 for nm, _ in self.volumes]
-        quiet = [bool(np.all(self._quiet[k][vmode[k]])) for k in range(len(self.volumes))]
+        quiet = [self._all_quiet(k, vmode[k]) for k in range(len(self.volumes))]
         outs = [None if quiet[k] else v.outlet(s, vmode[k]) for k, (_, v) in enumerate(self.volumes)]
         lines = [ln for ln in self.lines if not quiet[ln[0]]]
 
