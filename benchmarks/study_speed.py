@@ -5,7 +5,8 @@
 1. A 10,000-design sweep (fill x pressure x nozzle diameter x dry mass, a 10^4 grid) flown as one
    vectorised ensemble on one core (median of 3 sweeps after a warm-up), against a loop of single flights
    measured on an evenly spaced sample of the same designs (``--sample``) and scaled per flight; both at the
-   model's tolerance (rtol = atol = 1e-9) and both computing the same outcomes. Target: ensemble >= 100x faster per flight.
+   model's tolerance (rtol = atol = 1e-9) and both computing the same outcomes. Target: ensemble >= 100x
+   faster per flight.
 2. One single flight (integration only) against the hand-written single-function scipy model of the same vehicle
    (benchmarks/handwritten_bottle.py); medians of interleaved repeats. Target: ratio <= 1.0.
 3. The same sweep on a Dask LocalCluster with 2 workers against 1 worker (one thread each, ensemble chunks),

@@ -136,16 +136,6 @@ class ConvergentNozzle(ComponentKind):
         import numpy as np
 
         area = p.discharge_coefficient * math.pi * p.diameter ** 2 / 4.0
-        memo: list = [None, None, None]       # (gamma, R) -> their constants, for the last pair seen
-
-        def consts(gam, R):
-            if memo[0] is not gam or memo[1] is not R:
-                k = (gam - 1.0) / gam
-                crit = (2.0 / (gam + 1.0)) ** (gam / (gam - 1.0))
-                flux = np.sqrt(gam / R) * (2.0 / (gam + 1.0)) ** ((gam + 1.0) / (2.0 * (gam - 1.0)))
-                vu2 = 2.0 * gam * R / (gam - 1.0)           # (unchoked exit speed)^2 / (T (1 - x))
-                memo[:] = [gam, R, (crit, flux, k, gam * R, vu2)]
-            return memo[2]
 
         def flow(up, p_down, mode=0):
             pu, T, rho, gam, R, phase, head = up
@@ -154,40 +144,28 @@ class ConvergentNozzle(ComponentKind):
             wet = dp > 0.0
             open_ = (phase > -0.5) & wet
             gas = open_ & ~liquid
-            any_l, any_g = bool(liquid.any()), bool(gas.any())
-            zero = np.zeros(np.shape(liquid))
-            if any_l:
+            md_l = v_l = c_l = md_g = ve_g = c_g = 0.0
+            pe_g = p_down
+            if liquid.any():
                 v_l = np.sqrt(2.0 * np.maximum(dp, 0.0) / rho)
                 md_l, c_l = rho * area * v_l, np.where(wet, 2.0 * area, 0.0)
-            if not any_g:
-                if not any_l:
-                    return (zero, zero, p_down + zero, area, zero)
-                return (np.where(liquid, md_l, 0.0), np.where(liquid, v_l, 0.0), p_down + zero, area,
-                        np.where(liquid, c_l, 0.0))
-            crit, flux, k, gR, vu2 = consts(gam, R)
-            pus = np.where(open_, pu, p_down + 1.0)
-            pr = p_down / pus
-            choked = pr <= crit
-            any_c, any_u = bool((gas & choked).any()), bool((gas & ~choked).any())
-            if any_c:
-                md_c = area * pus * flux / np.sqrt(T)
-                ve_c = np.sqrt(gR * (2.0 * T / (gam + 1.0)))
-                pe_c = crit * pus
-                c_c = (md_c * ve_c + pe_c * area) / pus
-            if any_u:
-                x = np.maximum(pr, 1e-300) ** k
-                ve_u = np.sqrt(vu2 * T * np.maximum(1.0 - x, 0.0))
-                md_u = (p_down / (R * T * x)) * ve_u * area
-            if any_c and any_u:
-                md_g, ve_g = np.where(choked, md_c, md_u), np.where(choked, ve_c, ve_u)
-                pe_g, c_g = np.where(choked, pe_c, p_down), np.where(choked, c_c, 2.0 * area)
-            elif any_c:
-                md_g, ve_g, pe_g, c_g = md_c, ve_c, pe_c, c_c
-            else:
-                md_g, ve_g, pe_g, c_g = md_u, ve_u, p_down + zero, 2.0 * area + zero
-            if not any_l:
-                return (np.where(gas, md_g, 0.0), np.where(gas, ve_g, 0.0), np.where(gas, pe_g, p_down), area,
-                        np.where(gas, c_g, 0.0))
+            if gas.any():
+                pus = np.where(open_, pu, p_down + 1.0)
+                crit = (2.0 / (gam + 1.0)) ** (gam / (gam - 1.0))
+                pr = p_down / pus
+                choked = pr <= crit
+                if (gas & choked).any():
+                    flux = np.sqrt(gam / R) * (2.0 / (gam + 1.0)) ** ((gam + 1.0) / (2.0 * (gam - 1.0)))
+                    md_g = area * pus * flux / np.sqrt(T)
+                    ve_g = np.sqrt(gam * R * (2.0 * T / (gam + 1.0)))
+                    pe_g = crit * pus
+                    c_g = (md_g * ve_g + pe_g * area) / pus
+                if (gas & ~choked).any():
+                    x = np.maximum(pr, 1e-300) ** ((gam - 1.0) / gam)
+                    ve_u = np.sqrt(2.0 * gam * R / (gam - 1.0) * T * np.maximum(1.0 - x, 0.0))
+                    md_u = (p_down / (R * T * x)) * ve_u * area
+                    md_g, ve_g = np.where(choked, md_g, md_u), np.where(choked, ve_g, ve_u)
+                    pe_g, c_g = np.where(choked, pe_g, p_down), np.where(choked, c_g, 2.0 * area)
             mdot = np.where(liquid, md_l, np.where(gas, md_g, 0.0))
             ve = np.where(liquid, v_l, np.where(gas, ve_g, 0.0))
             pe = np.where(gas, pe_g, p_down)
