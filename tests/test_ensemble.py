@@ -138,3 +138,26 @@ def test_models_outside_the_family_are_refused_with_the_reason():
     assert why and ("array callables" in why or "jet" in why)
     with pytest.raises(ModelError, match="vectorised ensemble cannot fly this model"):
         fly_designs(p, [resolve(p, "launch.elevation")], np.array([[1.5]]))
+
+
+def test_a_shared_mode_gives_the_numbers_of_a_mixed_batch(parsed):
+    """Where every design shares a mode the kinds receive it as a plain int and skip their selections; each
+    design's derivatives and flows must be bit for bit those it gets in a batch of mixed modes."""
+    params = [resolve(parsed, p) for p in PATHS]
+    x = _designs(4, seed=11)
+    sysa = ArraySystem(parsed, params, x)
+    Y = sysa.y0.copy()
+    Y[6, 1:] *= 0.5                                  # some liquid gone
+    Y[3:6] += 3.0                                    # moving
+    modes = np.array([[0, 1, 2, 1]], dtype=np.int8)
+    for kin in (1, 2):
+        k = np.full(4, kin, dtype=np.int8)
+        mixed, aux = sysa.rhs(np.zeros(4), Y, modes, k)
+        assert not isinstance(sysa.phase(modes, k).vmode[0], int)
+        for r in range(4):
+            one = sysa.subset(np.array([r]))
+            ph = one.phase(modes[:, [r]], k[[r]])
+            assert ph.vmode[0] == modes[0, r] and isinstance(ph.vmode[0], int)
+            alone, aux1 = one.rhs(np.zeros(1), Y[:, [r]], modes[:, [r]], k[[r]])
+            assert np.array_equal(alone[:, 0], mixed[:, r]), (r, kin)
+            assert np.array_equal(np.broadcast_to(aux1["thrust"], (1,)), np.broadcast_to(aux["thrust"], (4,))[[r]])

@@ -10,10 +10,14 @@ The contract for a kind that can do this:
    shape ``(N,)``, one value per design, or floats shared by all designs.
    Flags, choices and vectors are shared by all designs.
 3. The callables then receive ``s`` as a list of arrays of shape ``(N,)``
-   (one per state), ``mode`` as an integer array of mode indices, ``air``
-   and ``up`` tuples of arrays, and return arrays (or floats) in the same
-   tuple layout as the scalar callables. They must be branch-free
-   (``np.where`` over both branches, clipped square roots and powers).
+   (one per state), ``mode`` as an integer array of mode indices (or a
+   plain ``int`` when every design is in that mode, so a kind may skip its
+   selections), ``air`` and ``up`` tuples of arrays (an outlet's phase and
+   head may be plain floats shared by all designs), and return arrays (or
+   floats) in the same tuple layout as the scalar callables. They must be
+   branch-free over designs (``np.where`` over both branches, clipped square
+   roots and powers); a design's numbers must not depend on which other
+   designs share the arrays.
 4. ``initial_state(p, amb)`` must accept array parameters;
    ``initial_mode`` and ``check`` are still called per design with floats.
 5. The scalar build (``scalar_ops``) stays exactly as it was: array support

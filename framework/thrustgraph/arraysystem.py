@@ -49,7 +49,7 @@ from .component import Ambient
 from .designs import DesignParameter, with_values
 from .model import ParsedModel
 
-__all__ = ["ArraySystem", "unsupported", "IMPULSE", "GUIDE", "FREE"]
+__all__ = ["ArraySystem", "Phase", "unsupported", "IMPULSE", "GUIDE", "FREE"]
 
 GUIDE, FREE = Kinematics.GUIDE, Kinematics.FREE
 #: Name of the quadrature state the ensemble adds: the time integral of the thrust magnitude.
@@ -88,6 +88,17 @@ def unsupported(parsed: ParsedModel) -> str | None:
 
 def _vary(p: Any, changes: dict[str, np.ndarray]) -> Any:
     return dataclasses.replace(p, **changes) if changes else p
+
+
+@dataclasses.dataclass(frozen=True)
+class Phase:
+    """The discrete phase of the designs as :meth:`ArraySystem.rhs` uses it: which are free, whether all are,
+    each vessel's mode (an ``int`` when shared by every design) and whether it is quiet in every design."""
+
+    free: np.ndarray
+    all_free: bool
+    vmode: list
+    quiet: list
 
 
 class ArraySystem:
@@ -265,6 +276,30 @@ class ArraySystem:
                 best = p if best is None else np.maximum(best, p)
         return best
 
+    def phase(self, modes: np.ndarray, kin: np.ndarray) -> "Phase":
+        """What :meth:`rhs` reads of the discrete phase, worked out once (a step's stages share it).
+
+        A vessel's mode is passed to its callables as an ``int`` when every design shares it (so a kind can
+        skip its per-design selections), else as the integer array.
+        """
+        free = kin == FREE
+        vmode: list[Any] = []
+        for nm, _ in self.volumes:
+            if nm not in self.slot:
+                vmode.append(0)
+                continue
+            m = modes[self.slot[nm]]
+            lo, hi = int(m.min()), int(m.max())
+            vmode.append(lo if lo == hi else m)
+        quiet = [self._all_quiet(k, vmode[k]) for k in range(len(self.volumes))]
+        return Phase(free, bool(free.all()), vmode, quiet)
+
+    def frozen(self, modes: np.ndarray) -> bool:
+        """Whether every vessel is quiet in every design: :meth:`rhs` then holds their states (zero
+        derivatives), so nothing a vessel reports (pressure...) can change."""
+        return all(self._all_quiet(k, modes[self.slot[nm]] if nm in self.slot else 0)
+                   for k, (nm, _) in enumerate(self.volumes))
+
     def _all_quiet(self, k: int, mode: Any) -> bool:
         """Whether vessel ``k`` is in a quiet mode (no outflow, no watched drive) in every design."""
         q = self._quiet[k]
@@ -277,24 +312,51 @@ class ArraySystem:
             return True
         return False if lo == hi else bool(np.all(q[mode]))
 
+    def drives(self, t: np.ndarray, Y: np.ndarray, phase: "Phase") -> dict | None:
+        """``aux["drive"]`` of :meth:`rhs` where it does not depend on the acceleration, else None.
+
+        A line's drive is its upstream pressure less ambient, ``p - head (f . e) - pa``: without a liquid
+        head in any design (a gas-phase vessel) it is ``p - pa``, the same numbers as :meth:`rhs` gives,
+        from the outlets alone (event location calls this many times per step).
+        """
+        s = list(Y)
+        _, pa, *_ = self.medium(s[2], t)
+        vmode = phase.vmode
+        outs: dict[int, tuple] = {}
+        drive: dict[str, Any] = {}
+        for (vi, _vs, tn, _ts, _fl) in self.lines:
+            if phase.quiet[vi]:
+                continue
+            o = outs.get(vi)
+            if o is None:
+                o = outs[vi] = self.volumes[vi][1].outlet(s, vmode[vi])
+                if np.any(o[6] != 0.0):
+                    return None
+            d = o[0] - pa
+            drive.setdefault(self.volumes[vi][0], d)
+            drive[tn] = d
+        return drive
+
     # ------------------------------------------------------------------
     def rhs(self, t: np.ndarray, Y: np.ndarray, modes: np.ndarray, kin: np.ndarray,
-            out: np.ndarray | None = None) -> tuple[np.ndarray, dict]:
+            out: np.ndarray | None = None, phase: "Phase | None" = None) -> tuple[np.ndarray, dict]:
         """Derivatives of the states (shape of ``Y``, written into ``out`` when given) and, in ``aux``:
         ``drive`` (name -> Pa), ``accel`` (acceleration magnitude), ``thrust`` (thrust magnitude), ``mass``
         and ``singular`` (designs whose head coupling has no solution).
 
         A vessel whose every design is in a mode that cannot push (``Mode.propulsive`` false) and watches
-        no drive in it passes no flow, so its lines are not evaluated.
+        no drive in it passes no flow, so its lines are not evaluated. ``phase`` is
+        :meth:`phase` of ``modes`` and ``kin`` (worked out here when not given).
         """
+        if phase is None:
+            phase = self.phase(modes, kin)
         s = list(Y)
         x, y, z, vx, vy, vz = s[:6]
         rho, pa, Ta, wx, wy, wz = self.medium(z, t)
         g = self.gravity(z)
         vrx, vry, vrz = vx - wx, vy - wy, vz - wz
         sp = np.sqrt(vrx * vrx + vry * vry + vrz * vrz)
-        free = kin == FREE
-        all_free = bool(np.all(free))
+        free, all_free = phase.free, phase.all_free
         ux, uy, uz = self.u
         if self.follow:
             use = free & (sp > self.vmin)
@@ -314,8 +376,7 @@ class ArraySystem:
         for _, b in self.bodies:
             f = b.force(air)
             Fx, Fy, Fz = Fx + f[0], Fy + f[1], Fz + f[2]
-        vmode = [modes[self.slot[nm]] if nm in self.slot else 0 for nm, _ in self.volumes]
-        quiet = [self._all_quiet(k, vmode[k]) for k in range(len(self.volumes))]
+        vmode, quiet = phase.vmode, phase.quiet
         outs = [None if quiet[k] else v.outlet(s, vmode[k]) for k, (_, v) in enumerate(self.volumes)]
         lines = [ln for ln in self.lines if not quiet[ln[0]]]
 
@@ -328,15 +389,19 @@ class ArraySystem:
             for (vi, _vs, _tn, ts, fl) in lines:
                 o = outs[vi]
                 head = o[6]
-                p_up = o[0] - head * fe   # head (f . d) with d = -e (outlet aft)
-                up = (p_up,) + tuple(o[1:])
+                if type(head) is float and head == 0.0:    # no liquid head in any design: p_up = p exactly
+                    p_up, up = o[0], o
+                else:
+                    p_up = o[0] - head * fe   # head (f . d) with d = -e (outlet aft)
+                    up = (p_up,) + tuple(o[1:])
                 mdot, ve, pe, Ae, c = fl.flow(up, pa, modes[ts] if ts >= 0 else 0)
                 T = T + mdot * ve + (pe - pa) * Ae
                 vol = self.volumes[vi][1]
                 if vol.internal is not None:
                     vint, _ = vol.internal(s, vmode[vi], mdot)
                     I = I + mdot * vint
-                beta = beta + c * head
+                if not (type(head) is float and head == 0.0):
+                    beta = beta + c * head
                 res.append((mdot, p_up))
             return res, T, I, beta
 

@@ -161,38 +161,40 @@ def _norm(x: np.ndarray) -> np.ndarray:
 
 def _dense(Y0: np.ndarray, h: np.ndarray, Q: np.ndarray, theta: np.ndarray) -> np.ndarray:
     """State on the step's dense output at fraction ``theta`` (per design)."""
-    th = theta
-    return Y0 + h * (Q[:, 0] * th + Q[:, 1] * th * th + Q[:, 2] * th ** 3 + Q[:, 3] * th ** 4)
+    th = theta   # Horner's rule: no powers (a float power costs 5-30 times a multiplication here)
+    return Y0 + h * (th * (Q[:, 0] + th * (Q[:, 1] + th * (Q[:, 2] + th * Q[:, 3]))))
 
 
-def _dense_rate(Q: np.ndarray, theta: np.ndarray) -> np.ndarray:
-    th = theta
-    return Q[:, 0] + 2.0 * Q[:, 1] * th + 3.0 * Q[:, 2] * th * th + 4.0 * Q[:, 3] * th ** 3
+def _norm_max(C: np.ndarray, hi: np.ndarray, iters: int = 5) -> np.ndarray:
+    """Largest |P(theta)| on [0, hi] per design, for the vector polynomial P(theta) = sum_k C[:, k] theta^k
+    (C of shape (3, degree + 1, m)) whose square rises at 0 and falls at hi, so that it has an interior
+    maximum: Newton on the root of P . P' from the regula-falsi point of the ends, iterates kept in [0, hi];
+    returns the largest |P| met (each is a lower bound of the maximum; Newton converges quadratically, so
+    the last is the maximum to rounding)."""
+    deg = C.shape[1] - 1
 
+    def parts(th):
+        p, d1, d2 = C[:, deg], 0.0, 0.0
+        for k in range(deg - 1, -1, -1):       # Horner's rule with the first two derivatives
+            d2 = d2 * th + 2.0 * d1
+            d1 = d1 * th + p
+            p = p * th + C[:, k]
+        return p, d1, d2
 
-def _golden_max(fun, hi: np.ndarray, iters: int = 24) -> tuple[np.ndarray, np.ndarray]:
-    """Vectorised golden-section search for the maximum of fun(theta) on [0, hi] (one evaluation per
-    iteration; the bracket shrinks to 0.618**iters of the step); returns (theta, value)."""
-    r = (math.sqrt(5.0) - 1.0) / 2.0
-    a = np.zeros_like(hi)
-    b = hi.copy()
-    c = b - r * (b - a)
-    d = a + r * (b - a)
-    fc, fd = fun(c), fun(d)
+    p0, d0, _ = parts(np.zeros_like(hi))
+    p1, d1, _ = parts(hi)
+    phi0, phi1 = _rowsum(p0 * d0), _rowsum(p1 * d1)
+    den = phi0 - phi1
+    th = np.clip(hi * phi0 / np.where(den > 0.0, den, 1.0), 0.0, hi)
+    best = np.zeros_like(hi)
     for _ in range(iters):
-        left = fc > fd                      # the maximum lies in [a, d]
-        a = np.where(left, a, c)
-        b = np.where(left, d, b)
-        keep_x = np.where(left, c, d)       # the interior point that stays
-        keep_f = np.where(left, fc, fd)
-        new_x = np.where(left, b - r * (b - a), a + r * (b - a))
-        new_f = fun(new_x)
-        c = np.where(left, new_x, keep_x)
-        fc = np.where(left, new_f, keep_f)
-        d = np.where(left, keep_x, new_x)
-        fd = np.where(left, keep_f, new_f)
-    th = np.where(fc > fd, c, d)
-    return th, np.maximum(fc, fd)
+        p, d1, d2 = parts(th)
+        best = np.maximum(best, _rowsum(p * p))
+        dphi = _rowsum(d1 * d1 + p * d2)
+        step = _rowsum(p * d1) / np.where(dphi < 0.0, dphi, -1.0)
+        th = np.clip(th - np.where(dphi < 0.0, step, 0.0), 0.0, hi)
+    p, _, _ = parts(th)
+    return np.sqrt(np.maximum(best, _rowsum(p * p)))
 
 
 def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray, status: list[str],
@@ -488,11 +490,12 @@ class _Run:
         hh = np.where(live, np.minimum(self.h, self.t_end - t), 0.0)
         # one attempted step for every design, each with its own h
         K[0] = F
+        ph = sysa.phase(modes, kin)          # the stages share the phase
         for st in range(1, 6):
             Ys = buf.combine(DOPRI_A[st], st, hh, Y, buf.Ys)
-            sysa.rhs(t + DOPRI_C[st] * hh, Ys, modes, kin, out=K[st])
+            sysa.rhs(t + DOPRI_C[st] * hh, Ys, modes, kin, out=K[st], phase=ph)
         Yn = buf.combine(DOPRI_B, 6, hh, Y, buf.Yn)
-        _, aux_n = sysa.rhs(t + hh, Yn, modes, kin, out=K[6])
+        _, aux_n = sysa.rhs(t + hh, Yn, modes, kin, out=K[6], phase=ph)
         self.calls += 6
         err = buf.err
         np.einsum("s,sk->k", DOPRI_E, buf.Kf, out=err.reshape(-1))
@@ -662,25 +665,20 @@ class _Run:
             loc = {int(r): k for k, r in enumerate(rows)}
             if np.any(inner):
                 sel = np.array([loc[int(r)] for r in np.flatnonzero(inner)])
-                Qs, Yv, hv = Qv[:, :, sel], Y[3:6, rows[sel]], hh[rows[sel]]
-
-                def speed(th):
-                    v = _dense(Yv, hv, Qs, th)
-                    return np.sqrt(_rowsum(v * v))
-                _, best = _golden_max(speed, te[rows[sel]])
+                Qs, hv = Qv[:, :, sel], hh[rows[sel]]
+                # v(theta) = v0 + h (q0 theta + q1 theta^2 + q2 theta^3 + q3 theta^4)
+                C = np.concatenate([Y[3:6, rows[sel]][:, None, :], hv * Qs], axis=1)
+                best = _norm_max(C, te[rows[sel]])
                 self.vmax[rows[sel]] = np.maximum(self.vmax[rows[sel]], best)
             if np.any(ainner):
                 sel = np.array([loc[int(r)] for r in np.flatnonzero(ainner)])
-                Qa = Qv[:, :, sel]
-
-                def accel(th):
-                    a = _dense_rate(Qa, th)
-                    return np.sqrt(_rowsum(a * a))
-                _, best = _golden_max(accel, te[rows[sel]])
+                # a(theta) = dv/dt = q0 + 2 q1 theta + 3 q2 theta^2 + 4 q3 theta^3
+                C = Qv[:, :, sel] * np.array([1.0, 2.0, 3.0, 4.0])[None, :, None]
+                best = _norm_max(C, te[rows[sel]])
                 self.amax[rows[sel]] = np.maximum(self.amax[rows[sel]], best)
         prop = sysa.propulsive(self.modes)
         self.burn = self.burn + np.where(acc & prop, hh * te, 0.0)
-        if self.has_p:
+        if self.has_p and not sysa.frozen(self.modes):   # frozen vessels keep their pressure
             pn = np.broadcast_to(sysa.pressures(Yn, self.modes), (n,)).copy()
             if evi is not None:
                 pn[evi] = np.broadcast_to(sub_e.pressures(event[0], self.modes[:, evi]), (len(evi),))
@@ -700,17 +698,32 @@ def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel
     if need:
         local = sub.subset(sel) if sub is not None and len(sel) != sub.n else sub
         m_loc, k_loc = modes[:, rows], kin[rows]
+        ph_loc = local.phase(m_loc, k_loc)
+
+    kind = ev.slots[j][0]
+    if kind in ("apogee", "impact"):      # one state: only its row of the dense output
+        r = 5 if kind == "apogee" else 2
+        Y0r, Qr = Y0[r:r + 1], Q[r:r + 1]
+        return _illinois(lambda theta: _dense(Y0r, hh, Qr, theta)[0], ga, gb, t0, hh)
 
     def g(theta):
         yy = _dense(Y0, hh, Q, theta)
         tt = t0 + theta * hh
         if need:
-            _, ax_ = local.rhs(tt, yy, m_loc, k_loc)
-            return ev.value(j, local, tt, yy, ax_)
+            drive = local.drives(tt, yy, ph_loc)
+            if drive is None:
+                drive = local.rhs(tt, yy, m_loc, k_loc, phase=ph_loc)[1]["drive"]
+            return ev.value(j, local, tt, yy, {"drive": drive})
         return ev.value(j, sysa, tt, yy, None, rows)
 
-    a = np.zeros(len(rows))
-    b = np.ones(len(rows))
+    return _illinois(g, ga, gb, t0, hh)
+
+
+def _illinois(g, ga: np.ndarray, gb: np.ndarray, t0: np.ndarray, hh: np.ndarray) -> np.ndarray:
+    """Vectorised Illinois (modified regula falsi) for the zero of ``g(theta)`` on [0, 1], per design; ``ga``,
+    ``gb`` its values at the ends; returns the later end of the final bracket (the post-crossing side)."""
+    a = np.zeros(len(ga))
+    b = np.ones(len(ga))
     fa, fb = ga.astype(float).copy(), gb.astype(float).copy()
     done = (fa == 0.0)
     root = np.where(done, 0.0, np.where(fb == 0.0, 1.0, np.nan))

@@ -139,6 +139,14 @@ class ConvergentNozzle(ComponentKind):
 
         def flow(up, p_down, mode=0):
             pu, T, rho, gam, R, phase, head = up
+            if type(phase) is float:            # every design in the same phase
+                if phase > 0.5:                  # liquid: the jet alone
+                    dp = pu - p_down
+                    v_l = np.sqrt(2.0 * np.maximum(dp, 0.0) / rho)
+                    return (rho * area * v_l, v_l, p_down, area, np.where(dp > 0.0, 2.0 * area, 0.0))
+                if phase < -0.5:                 # sealed
+                    return (0.0, 0.0, p_down, area, 0.0)
+                phase = np.float64(phase)
             liquid = phase > 0.5
             dp = pu - p_down
             wet = dp > 0.0

@@ -233,12 +233,18 @@ class LiquidTank(ComponentKind):
 
         def outlet(s, mode):
             pg, Tg, rg, vg = gas(s)
+            if type(mode) is int:        # every design in the same mode: no selections
+                if mode == 0:
+                    return (pg, Tg, rho_l, gam, R, 1.0, s[i] / area if head_on else 0.0)
+                return (pg, Tg, rg, gam, R, 0.0 if mode == 1 else -1.0, 0.0)
             liquid = mode == 0
             head = np.where(liquid, s[i] / area, 0.0) if head_on else 0.0
             phase = np.where(liquid, 1.0, np.where(mode == 1, 0.0, -1.0))
             return (pg, Tg, np.where(liquid, rho_l, rg), gam, R, phase, head)
 
         def derivs(s, mode, mdot):
+            if type(mode) is int:
+                return (-mdot, 0.0) if mode == 0 else (0.0, -mdot) if mode == 1 else (0.0, 0.0)
             return (np.where(mode == 0, -mdot, 0.0), np.where(mode == 1, -mdot, 0.0))
 
         def signals(s, mode):
@@ -249,6 +255,8 @@ class LiquidTank(ComponentKind):
         internal = None
         if p.internal_momentum:
             def internal(s, mode, mdot):
+                if type(mode) is int:
+                    return (mdot / (rho_l * area), s[i]) if mode == 0 else (0.0, 0.0)
                 liquid = mode == 0
                 return (np.where(liquid, mdot / (rho_l * area), 0.0), np.where(liquid, s[i], 0.0))
 
