@@ -109,7 +109,8 @@ class ArraySystem:
     parsed : the base model
     params : the varied parameters
     x : their SI values, shape (N, parameters)
-    initial : also compute the initial modes per design (False for the subsets the integrator builds)
+    initial : also compute the initial states and modes per design (False for the subsets the integrator
+        builds: their ``y0`` is None)
     """
 
     def __init__(self, parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray, *,
@@ -163,10 +164,11 @@ class ArraySystem:
         for nm in order:
             cls = parsed.kinds[nm]
             if cls.states:
-                init = cls.initial_state(self.kp[nm], amb)
-                slices[nm] = (len(names), len(init))
+                slices[nm] = (len(names), len(cls.states))
                 names.extend(f"{nm}.{sv.name}" for sv in cls.states)
-                y0.extend(np.broadcast_to(np.asarray(v, dtype=float), (n,)).copy() for v in init)
+                if initial:     # the subsets the integrator builds carry no initial state
+                    init = cls.initial_state(self.kp[nm], amb)
+                    y0.extend(np.broadcast_to(np.asarray(v, dtype=float), (n,)).copy() for v in init)
             if cls.modes:
                 self.moded.append(nm)
                 self.modes[nm] = cls.modes
@@ -174,7 +176,7 @@ class ArraySystem:
         y0.append(np.zeros(n))
         self.state_names = tuple(names)
         self.slices = slices
-        self.y0 = np.array(y0)
+        self.y0 = np.array(y0) if initial else None
         self.kin0 = np.full(n, FREE if parsed.launch.mount == "free" else GUIDE, dtype=np.int8)
         self.mode0 = np.zeros((len(self.moded), n), dtype=np.int8)
         if initial:

@@ -650,7 +650,7 @@ class _Run:
         inner = acc & (v0x * a0x + v0y * a0y + v0z * a0z > 0.0) & (v1x * a1x + v1y * a1y + v1z * a1z < 0.0)
         # an acceleration maximum inside the step: the dense output's rate of |a| goes from + to -
         kv = K[:, 3:6, :].reshape(7, 3 * n)           # a view: each stage's velocity rows are contiguous
-        q = [np.einsum("s,sk->k", DOPRI_P[:, c], kv).reshape(3, n) for c in (1, 2, 3)]
+        q = np.einsum("sp,sk->pk", DOPRI_P[:, 1:4], kv).reshape(3, 3, n)   # one pass over the stages
         hs = np.where(hh > 0, hh, 1.0)
         te = th_end
         j0 = 2.0 * q[0] / hs

@@ -244,8 +244,7 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     bar.update(done, screened)
     interrupted = False
     t0 = time.perf_counter()
-    # contiguous runs of in-bounds rows, cut into chunks
-    parts = [part[:, 0] for _, part in chunks(rows.reshape(-1, 1), size)]
+    parts = _parts(rows, size, flights)
     index_of = {int(idx[0]): idx for idx in parts}
     feed = ((int(idx[0]), x[idx]) for idx in parts)
     if eng.name == "serial" and bar.enabled:
@@ -278,6 +277,21 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     return DesignTable(kind=kind, params=tuple(params), outputs=outputs, x=x, values=values,
                        status=np.asarray(status, dtype=str), notes=notes, interrupted=interrupted, info=head,
                        engine=eng_name, flights=flights, seconds=time.perf_counter() - t0)
+
+
+def _parts(rows: np.ndarray, size: int, flights: str) -> list[np.ndarray]:
+    """The in-bounds rows cut into chunks of at most ``size``: runs of consecutive rows for single flights;
+    for ensembles every k-th row (k the number of chunks), so that each chunk samples the whole study and the
+    chunks cost alike (a grid's consecutive rows differ in cost: fills, pressures...), which keeps the workers
+    of a pool or cluster equally busy. A design's row does not depend on its chunk.
+
+    >>> [p.tolist() for p in _parts(np.arange(5), 2, "single")], [p.tolist() for p in _parts(np.arange(5), 2, "ensemble")]
+    ([[0, 1], [2, 3], [4]], [[0, 3], [1, 4], [2]])
+    """
+    if flights != "ensemble":
+        return [part[:, 0] for _, part in chunks(rows.reshape(-1, 1), size)]
+    k = -(-len(rows) // max(1, int(size)))
+    return [rows[j::k] for j in range(k)]
 
 
 def as_vary(item: Vary | str) -> Vary:
