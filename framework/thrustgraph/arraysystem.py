@@ -341,10 +341,12 @@ class ArraySystem:
 
     # ------------------------------------------------------------------
     def rhs(self, t: np.ndarray, Y: np.ndarray, modes: np.ndarray, kin: np.ndarray,
-            out: np.ndarray | None = None, phase: "Phase | None" = None) -> tuple[np.ndarray, dict]:
+            out: np.ndarray | None = None, phase: "Phase | None" = None, aux: bool = True
+            ) -> tuple[np.ndarray, dict | None]:
         """Derivatives of the states (shape of ``Y``, written into ``out`` when given) and, in ``aux``:
         ``drive`` (name -> Pa), ``accel`` (acceleration magnitude), ``thrust`` (thrust magnitude), ``mass``
-        and ``singular`` (designs whose head coupling has no solution).
+        and ``singular`` (designs whose head coupling has no solution); ``aux=False`` skips those (None
+        instead), for the inner stages of a step, which use the derivatives alone.
 
         A vessel whose every design is in a mode that cannot push (``Mode.propulsive`` false) and watches
         no drive in it passes no flow, so its lines are not evaluated. ``phase`` is
@@ -471,10 +473,12 @@ class ArraySystem:
             ds = v.derivs(s, vmode[k], vol_out[k])
             for q in range(cnt):
                 out[i0 + q] = ds[q]
-        out[-1] = np.abs(T)
+        thrust = out[-1] = np.abs(T)
+        if not aux:
+            return out, None
         drive: dict[str, Any] = {}
         for (vi, _vs, tn, _ts, _fl), (mdot, p_up) in zip(lines, res):
             drive.setdefault(self.volumes[vi][0], p_up - pa)
             drive[tn] = p_up - pa
         accel = np.sqrt(ax * ax + ay * ay + az * az)
-        return out, {"drive": drive, "accel": accel, "thrust": np.abs(T), "mass": M, "singular": singular}
+        return out, {"drive": drive, "accel": accel, "thrust": thrust, "mass": M, "singular": singular}

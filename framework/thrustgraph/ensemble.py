@@ -82,6 +82,10 @@ DOPRI_P = np.array([
     [0, -282668133 / 205662961, 2019193451 / 616988883, -1453857185 / 822651844],
     [0, 40617522 / 29380423, -110615467 / 29380423, 69997945 / 29380423]])
 _SAFETY, _MIN_FACTOR, _MAX_FACTOR, _EXPONENT = 0.9, 0.2, 10.0, -1.0 / 5.0
+# the jerk times the step at the start (theta = 0) and end (theta = 1) of a step, from the dense output's
+# velocity v0 + h (q0 theta + q1 theta^2 + q2 theta^3 + q3 theta^4), q_k = sum_s DOPRI_P[s, k] K_s:
+# h da/dt = 2 q1 + 6 q2 theta + 12 q3 theta^2
+_JERK_ENDS = np.column_stack([2.0 * DOPRI_P[:, 1], 2.0 * DOPRI_P[:, 1] + 6.0 * DOPRI_P[:, 2] + 12.0 * DOPRI_P[:, 3]])
 _EPS = np.finfo(float).eps
 
 
@@ -493,7 +497,7 @@ class _Run:
         ph = sysa.phase(modes, kin)          # the stages share the phase
         for st in range(1, 6):
             Ys = buf.combine(DOPRI_A[st], st, hh, Y, buf.Ys)
-            sysa.rhs(t + DOPRI_C[st] * hh, Ys, modes, kin, out=K[st], phase=ph)
+            sysa.rhs(t + DOPRI_C[st] * hh, Ys, modes, kin, out=K[st], phase=ph, aux=False)
         Yn = buf.combine(DOPRI_B, 6, hh, Y, buf.Yn)
         _, aux_n = sysa.rhs(t + hh, Yn, modes, kin, out=K[6], phase=ph)
         self.calls += 6
@@ -535,6 +539,9 @@ class _Run:
         cross_any = np.zeros(n, dtype=bool)
         for j, (kind, direction, pl) in enumerate(ev.slots):
             act = acc & ev.active(j, modes, kin, self.desc, self.gpos)
+            if not act.any():                 # e.g. a vessel's events once every design has sealed it
+                hit.append(act)
+                continue
             go, gn = self.gold[j], gnew[j]
             up = (go <= 0.0) & (gn >= 0.0)
             down = (go >= 0.0) & (gn <= 0.0)
@@ -643,46 +650,50 @@ class _Run:
             v1, a1, an, z1 = Yn[3:6], K[6][3:6], np.asarray(aux_n["accel"], dtype=float), Yn[2]
         v1x, v1y, v1z = v1
         a1x, a1y, a1z = a1
-        self.vmax = np.where(acc, np.maximum(self.vmax, np.sqrt(v1x * v1x + v1y * v1y + v1z * v1z)), self.vmax)
-        self.amax = np.where(acc, np.maximum(self.amax, an), self.amax)
-        self.zmax = np.where(acc, np.maximum(self.zmax, z1), self.zmax)
+        np.maximum(self.vmax, np.sqrt(v1x * v1x + v1y * v1y + v1z * v1z), out=self.vmax, where=acc)
+        np.maximum(self.amax, an, out=self.amax, where=acc)
+        np.maximum(self.zmax, z1, out=self.zmax, where=acc)
         # a speed maximum inside the step: v . a goes from + to -
         inner = acc & (v0x * a0x + v0y * a0y + v0z * a0z > 0.0) & (v1x * a1x + v1y * a1y + v1z * a1z < 0.0)
-        # an acceleration maximum inside the step: the dense output's rate of |a| goes from + to -
+        # an acceleration maximum inside the step: the dense output's rate of |a| goes from + to -; the jerk
+        # times the step (its sign is all the test needs) at both ends of whole steps in one pass over the stages
         kv = K[:, 3:6, :].reshape(7, 3 * n)           # a view: each stage's velocity rows are contiguous
-        q = np.einsum("sp,sk->pk", DOPRI_P[:, 1:4], kv).reshape(3, 3, n)   # one pass over the stages
-        hs = np.where(hh > 0, hh, 1.0)
+        jh = np.einsum("sp,sk->pk", _JERK_ENDS, kv).reshape(2, 3, n)
+        j0, j1 = jh[0], jh[1]
+        if cut.any():                                   # steps cut at an event end at theta < 1
+            rc = np.flatnonzero(cut)
+            qc = np.einsum("sp,snm->pnm", DOPRI_P[:, 1:4], K[:, 3:6, rc])
+            tc = th_end[rc]
+            j1[:, rc] = 2.0 * qc[0] + 6.0 * qc[1] * tc + 12.0 * qc[2] * tc * tc
         te = th_end
-        j0 = 2.0 * q[0] / hs
-        j1 = (2.0 * q[0] + 6.0 * q[1] * te + 12.0 * q[2] * te * te) / hs
         ainner = acc & (a0x * j0[0] + a0y * j0[1] + a0z * j0[2] > 0.0) & (a1x * j1[0] + a1y * j1[1] + a1z * j1[2] < 0.0)
         if np.any(inner) or np.any(ainner):
             rows = np.flatnonzero(inner | ainner)
+            q = np.einsum("sp,snm->pnm", DOPRI_P[:, 1:4], K[:, 3:6, rows])
             Qv = np.empty((3, 4, len(rows)))
             Qv[:, 0] = F[3:6, rows]
             for c in range(3):
-                Qv[:, c + 1] = q[c][:, rows]
-            loc = {int(r): k for k, r in enumerate(rows)}
+                Qv[:, c + 1] = q[c]
             if np.any(inner):
-                sel = np.array([loc[int(r)] for r in np.flatnonzero(inner)])
+                sel = np.flatnonzero(inner[rows])          # positions in rows (both sorted)
                 Qs, hv = Qv[:, :, sel], hh[rows[sel]]
                 # v(theta) = v0 + h (q0 theta + q1 theta^2 + q2 theta^3 + q3 theta^4)
                 C = np.concatenate([Y[3:6, rows[sel]][:, None, :], hv * Qs], axis=1)
                 best = _norm_max(C, te[rows[sel]])
                 self.vmax[rows[sel]] = np.maximum(self.vmax[rows[sel]], best)
             if np.any(ainner):
-                sel = np.array([loc[int(r)] for r in np.flatnonzero(ainner)])
+                sel = np.flatnonzero(ainner[rows])
                 # a(theta) = dv/dt = q0 + 2 q1 theta + 3 q2 theta^2 + 4 q3 theta^3
                 C = Qv[:, :, sel] * np.array([1.0, 2.0, 3.0, 4.0])[None, :, None]
                 best = _norm_max(C, te[rows[sel]])
                 self.amax[rows[sel]] = np.maximum(self.amax[rows[sel]], best)
         prop = sysa.propulsive(self.modes)
-        self.burn = self.burn + np.where(acc & prop, hh * te, 0.0)
+        np.add(self.burn, hh * te, out=self.burn, where=acc & prop)
         if self.has_p and not sysa.frozen(self.modes):   # frozen vessels keep their pressure
             pn = np.broadcast_to(sysa.pressures(Yn, self.modes), (n,)).copy()
             if evi is not None:
                 pn[evi] = np.broadcast_to(sub_e.pressures(event[0], self.modes[:, evi]), (len(evi),))
-            self.peak_p = np.where(acc, np.maximum(self.peak_p, pn), self.peak_p)
+            np.maximum(self.peak_p, pn, out=self.peak_p, where=acc)
 
 
 def _table(out: dict[str, np.ndarray], outputs: Sequence[str]) -> np.ndarray:
