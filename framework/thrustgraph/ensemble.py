@@ -237,13 +237,17 @@ def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: n
 class _Buffers:
     """Preallocated stage arrays, so the 2-D stage combinations make no temporaries."""
 
-    def __init__(self, ns: int, n: int) -> None:
+    def __init__(self, ns: int, n: int, nctrl: int) -> None:
         self.K = np.empty((7, ns, n))
         self.Kf = self.K.reshape(7, ns * n)
+        # the step-control rows of every stage (each stage's first nctrl rows are contiguous): a view
+        self.Kc = self.K[:, :nctrl, :].reshape(7, nctrl * n)
+        assert np.shares_memory(self.Kc, self.K)
         self.Ys = np.empty((ns, n))
         self.Yn = np.empty((ns, n))
-        self.err = np.empty((ns, n))
-        self.tmp = np.empty((ns, n))
+        self.err = np.empty((nctrl, n))
+        self.tmp = np.empty((nctrl, n))
+        self.tmp2 = np.empty((nctrl, n))
 
     def combine(self, coeffs: np.ndarray, m: int, h: np.ndarray, Y: np.ndarray, out: np.ndarray) -> np.ndarray:
         """out = Y + h * sum_j coeffs[j] K[j] over the first m stages.
@@ -353,7 +357,7 @@ class _Run:
         self.fate_status = [STATUS_OK] * n
         self.gold = self.g_all(sysa, self.t, self.Y, aux)
         self.rejected = np.zeros(n, dtype=bool)
-        self.buf = _Buffers(ns, n)
+        self.buf = _Buffers(ns, n, self.nctrl)
         everyone = np.arange(n)
         self.fire_at_once(everyone)
         self.no_liftoff(everyone)
@@ -445,7 +449,7 @@ class _Run:
         self.fate = [self.fate[i] for i in keep]
         self.fate_status = [self.fate_status[i] for i in keep]
         self.n = len(keep)
-        self.buf = _Buffers(self.ns, self.n)
+        self.buf = _Buffers(self.ns, self.n, self.nctrl)
 
     def store(self, idx: np.ndarray) -> None:
         """Write the outcomes of designs ``idx`` (current slots) into the global rows."""
@@ -501,17 +505,19 @@ class _Run:
         Yn = buf.combine(DOPRI_B, 6, hh, Y, buf.Yn)
         _, aux_n = sysa.rhs(t + hh, Yn, modes, kin, out=K[6], phase=ph)
         self.calls += 6
+        # the error norm over the step-control rows only (the impulse quadrature is left out)
+        nc = self.nctrl
         err = buf.err
-        np.einsum("s,sk->k", DOPRI_E, buf.Kf, out=err.reshape(-1))
+        np.einsum("s,sk->k", DOPRI_E, buf.Kc, out=err.reshape(-1))
         err *= hh
         tmp = buf.tmp
-        np.abs(Y, out=tmp)
-        np.maximum(tmp, np.abs(Yn), out=tmp)
+        np.abs(Y[:nc], out=tmp)
+        np.maximum(tmp, np.abs(Yn[:nc], out=buf.tmp2), out=tmp)
         tmp *= self.rtol
         tmp += self.atol
         err /= tmp
         err *= err
-        en = np.sqrt(_rowsum(err[:self.nctrl]) / self.nctrl)
+        en = np.sqrt(_rowsum(err) / nc)
         en = np.where(np.isfinite(en), en, np.inf)
         self.steps_taken[self.gid[live]] += 1
         acc = live & (en < 1.0)
@@ -533,13 +539,16 @@ class _Run:
                     "integration failed: the liquid head makes the acceleration undetermined (nozzle too large "
                     "for the vessel's bore)")
         acc &= live
-        # events on the accepted steps
-        gnew = self.g_all(sysa, t + hh, Yn, aux_n)
+        # events on the accepted steps. An event that no design watches now (a vessel's events once every
+        # design has sealed it, guide exit once all are free) keeps its old values: a design starts watching
+        # an event only at a phase switch, where all its event values are evaluated afresh
+        acts = [acc & ev.active(j, modes, kin, self.desc, self.gpos) for j in range(nev)]
+        gnew = [ev.value(j, sysa, t + hh, Yn, aux_n) if act.any() else self.gold[j] for j, act in enumerate(acts)]
         hit = []
         cross_any = np.zeros(n, dtype=bool)
         for j, (kind, direction, pl) in enumerate(ev.slots):
-            act = acc & ev.active(j, modes, kin, self.desc, self.gpos)
-            if not act.any():                 # e.g. a vessel's events once every design has sealed it
+            act = acts[j]
+            if gnew[j] is self.gold[j]:
                 hit.append(act)
                 continue
             go, gn = self.gold[j], gnew[j]
@@ -584,7 +593,8 @@ class _Run:
         np.copyto(F, K[6])
         t += hh * plain
         for j in range(nev):
-            gnew[j][stay] = self.gold[j][stay]
+            if gnew[j] is not self.gold[j]:
+                gnew[j][stay] = self.gold[j][stay]
         self.gold = gnew
         # designs cut at an event: move to the event point and switch their phase
         if len(evi):

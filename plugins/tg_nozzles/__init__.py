@@ -172,11 +172,16 @@ class ConvergentNozzle(ComponentKind):
                     x = np.maximum(pr, 1e-300) ** ((gam - 1.0) / gam)
                     ve_u = np.sqrt(2.0 * gam * R / (gam - 1.0) * T * np.maximum(1.0 - x, 0.0))
                     md_u = (p_down / (R * T * x)) * ve_u * area
-                    md_g, ve_g = np.where(choked, md_g, md_u), np.where(choked, ve_g, ve_u)
-                    pe_g, c_g = np.where(choked, pe_g, p_down), np.where(choked, c_g, 2.0 * area)
+                    if (gas & choked).any():
+                        md_g, ve_g = np.where(choked, md_g, md_u), np.where(choked, ve_g, ve_u)
+                        pe_g, c_g = np.where(choked, pe_g, p_down), np.where(choked, c_g, 2.0 * area)
+                    else:                        # no open design is choked: the selections would pick these
+                        md_g, ve_g, pe_g, c_g = md_u, ve_u, p_down, 2.0 * area
+            pe = np.where(gas, pe_g, p_down)
+            if not liquid.any():                 # the selections below would pick the gas values alone
+                return (np.where(gas, md_g, 0.0), np.where(gas, ve_g, 0.0), pe, area, np.where(gas, c_g, 0.0))
             mdot = np.where(liquid, md_l, np.where(gas, md_g, 0.0))
             ve = np.where(liquid, v_l, np.where(gas, ve_g, 0.0))
-            pe = np.where(gas, pe_g, p_down)
             c = np.where(liquid, c_l, np.where(gas, c_g, 0.0))
             return (mdot, ve, pe, area, c)
 
