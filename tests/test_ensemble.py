@@ -161,3 +161,34 @@ def test_a_shared_mode_gives_the_numbers_of_a_mixed_batch(parsed):
             alone, aux1 = one.rhs(np.zeros(1), Y[:, [r]], modes[:, [r]], k[[r]])
             assert np.array_equal(alone[:, 0], mixed[:, r]), (r, kin)
             assert np.array_equal(np.broadcast_to(aux1["thrust"], (1,)), np.broadcast_to(aux["thrust"], (4,))[[r]])
+
+
+def test_a_subset_is_the_system_built_for_its_rows(parsed):
+    """subset() takes rows of the per-design arrays instead of building the system anew; for every phase its
+    derivatives, event drives and pressures are bit for bit those of ArraySystem built on the same rows."""
+    comp = [p for p in PATHS if p.startswith("components.")]
+    params = [resolve(parsed, p) for p in comp]
+    x = _designs(9, seed=5)[:, :len(comp)]
+    full = ArraySystem(parsed, params, x)
+    rows = np.array([7, 1, 4, 4, 0])
+    fast, built = full.subset(rows), ArraySystem(parsed, params, x[rows], initial=False)
+    assert fast.y0 is None and fast.n == built.n == 5
+    rng = np.random.default_rng(6)
+    Y = full.y0[:, rows] * rng.uniform(0.3, 1.0, (len(full.y0), 5))
+    Y[3:6] += rng.uniform(-5, 20, (3, 5))
+    t = rng.uniform(0, 0.2, 5)
+    for modes in (np.zeros((1, 5), np.int8), np.array([[0, 1, 2, 1, 0]], np.int8), np.ones((1, 5), np.int8)):
+        for kin in (1, 2):
+            k = np.full(5, kin, dtype=np.int8)
+            d1, a1 = fast.rhs(t, Y, modes, k)
+            d2, a2 = built.rhs(t, Y, modes, k)
+            assert np.array_equal(d1, d2), (modes, kin)
+            assert a1["drive"].keys() == a2["drive"].keys()
+            for key in a1["drive"]:
+                assert np.array_equal(np.broadcast_to(a1["drive"][key], (5,)), np.broadcast_to(a2["drive"][key], (5,)))
+            assert np.array_equal(fast.pressures(Y, modes), built.pressures(Y, modes))
+    # a varied launch or environment value: built anew (the same system either way)
+    params2 = [resolve(parsed, "launch.elevation")]
+    full2 = ArraySystem(parsed, params2, np.radians([[80.0], [85.0], [90.0]]))
+    sub2 = full2.subset(np.array([2, 0]))
+    assert np.array_equal(sub2.u[2], np.sin(np.radians([90.0, 80.0])))

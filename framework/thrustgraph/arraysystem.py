@@ -182,20 +182,25 @@ class ArraySystem:
         if initial:
             self._initial_modes()
 
-        # Callables from the plugins, built over arrays.
+        self._build()
+
+    def _build(self) -> None:
+        """The callables from the plugins, built over this system's arrays of designs, and what the balance
+        reads of their structure."""
+        parsed = self.parsed
         self.fixed_mass: Any = 0.0
         self.bodies, self.volumes, flows = [], [], {}
         self.events = []
-        for nm in order:
+        for nm in parsed.model.components:
             cls, p = parsed.kinds[nm], self.kp[nm]
-            i = slices.get(nm, (-1, 0))[0]
+            i = self.slices.get(nm, (-1, 0))[0]
             if cls.role == "body":
                 b = cls.build_body(p, array_ops)
                 self.fixed_mass = self.fixed_mass + b.mass
                 if b.force is not None:
                     self.bodies.append((nm, b))
             elif cls.role == "volume":
-                v = cls.build_volume(p, i, array_ops, amb)
+                v = cls.build_volume(p, i, array_ops, self.amb)
                 self.volumes.append((nm, v))
                 self.events.extend((nm, e) for e in v.events)
             elif cls.role == "flow":
@@ -246,8 +251,32 @@ class ArraySystem:
             self.mode0[k, :] = picked[inverse.reshape(-1)]
 
     def subset(self, idx: np.ndarray) -> "ArraySystem":
-        """The same model for some of the designs (rows ``idx``), for compaction and event location."""
-        return ArraySystem(self.parsed, self.params, self.x[idx], initial=False)
+        """The same model for some of the designs (rows ``idx``), for compaction and event location.
+
+        The same system as ``ArraySystem(parsed, params, x[idx], initial=False)`` (no initial states),
+        made by taking rows of this one's per-design arrays and building only the plugins' callables anew
+        (the integrator asks for a subset at most steps: one per step with events).
+        """
+        idx = np.asarray(idx)
+        if any(p.section != "components" for p in self.params):   # varied environment or launch
+            return ArraySystem(self.parsed, self.params, self.x[idx], initial=False)
+        new = object.__new__(ArraySystem)
+        new.__dict__.update(self.__dict__)        # the state layout, modes and launch are shared
+        new.x = self.x[idx]
+        n = new.n = len(new.x)
+        new._comp_changes = {nm: {f: v[idx] for f, v in ch.items()} for nm, ch in self._comp_changes.items()}
+        new.kp = {nm: _vary(self.parsed.params[nm], new._comp_changes[nm]) if nm in new._comp_changes else p
+                  for nm, p in self.kp.items()}
+        a = self.amb
+        new.amb = Ambient(*(v[idx] if np.ndim(v) else v for v in (a.pressure, a.temperature, a.density)))
+        new.u = tuple(c[idx] for c in self.u)
+        new.guide_length = self.guide_length[idx]
+        new.x0 = tuple(c[idx] for c in self.x0)
+        new.y0 = None
+        new.kin0 = np.full(n, FREE if self.parsed.launch.mount == "free" else GUIDE, dtype=np.int8)
+        new.mode0 = np.zeros((len(self.moded), n), dtype=np.int8)
+        new._build()
+        return new
 
     def index(self, name: str) -> int:
         return self.state_names.index(name)

@@ -581,7 +581,7 @@ class _Run:
         th_end = np.where(cut, theta_ev, 1.0)
         if np.any(acc):
             self.track(acc, cut, th_end, Y, F, K, Yn, aux_n, hh, evi if len(evi) else None,
-                       (Ye, Fe, aux_e) if len(evi) else None, sub_e if len(evi) else None)
+                       (Ye, Fe, aux_e, Q) if len(evi) else None, sub_e if len(evi) else None)
         # advance the accepted designs without an event: the new states become the state array (the old
         # one is the next step's buffer) and the few other designs' columns are copied back
         plain = acc & ~cut
@@ -651,7 +651,7 @@ class _Run:
             v1, a1 = Yn[3:6].copy(), K[6][3:6].copy()
             an = np.broadcast_to(np.asarray(aux_n["accel"], dtype=float), (n,)).copy()
             z1 = Yn[2].copy()
-            Ye, Fe, aux_e = event
+            Ye, Fe, aux_e, _ = event
             v1[:, evi] = Ye[3:6]
             a1[:, evi] = Fe[3:6]
             an[evi] = np.broadcast_to(np.asarray(aux_e["accel"], dtype=float), (len(evi),))
@@ -670,11 +670,10 @@ class _Run:
         kv = K[:, 3:6, :].reshape(7, 3 * n)           # a view: each stage's velocity rows are contiguous
         jh = np.einsum("sp,sk->pk", _JERK_ENDS, kv).reshape(2, 3, n)
         j0, j1 = jh[0], jh[1]
-        if cut.any():                                   # steps cut at an event end at theta < 1
-            rc = np.flatnonzero(cut)
-            qc = np.einsum("sp,snm->pnm", DOPRI_P[:, 1:4], K[:, 3:6, rc])
-            tc = th_end[rc]
-            j1[:, rc] = 2.0 * qc[0] + 6.0 * qc[1] * tc + 12.0 * qc[2] * tc * tc
+        if evi is not None:          # steps cut at an event (the designs evi) end at theta < 1
+            Qv = event[3][3:6]       # their dense-output coefficients, velocity rows
+            tc = th_end[evi]
+            j1[:, evi] = 2.0 * Qv[:, 1] + 6.0 * Qv[:, 2] * tc + 12.0 * Qv[:, 3] * tc * tc
         te = th_end
         ainner = acc & (a0x * j0[0] + a0y * j0[1] + a0z * j0[2] > 0.0) & (a1x * j1[0] + a1y * j1[1] + a1z * j1[2] < 0.0)
         if np.any(inner) or np.any(ainner):
