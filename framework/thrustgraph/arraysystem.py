@@ -444,7 +444,8 @@ class ArraySystem:
         coupled = bool(np.any(beta != 0.0)) if lines else False
         res0, T0, I0, beta0 = res, T, I, beta
         # applied force at the current a: G = F + (T - I) e
-        Gx, Gy, Gz = Fx + (T - I) * ex, Fy + (T - I) * ey, Fz + (T - I) * ez
+        TI = T - I
+        Gx, Gy, Gz = Fx + TI * ex, Fy + TI * ey, Fz + TI * ez
         singular = np.zeros(self.n, dtype=bool)
         # free flight: Newton on M a - G(a) = 0 with J = M I - beta e e^T, from a = 0
         if coupled:
@@ -458,12 +459,14 @@ class ArraySystem:
                 ax, ay, az = ax - (rx / M + k * re * ex), ay - (ry / M + k * re * ey), az - (rz / M + k * re * ez)
                 if it + 1 < self.newton:
                     res, T, I, beta = flows_at(fe0 - (ax * ex + ay * ey + az * ez))
-                    Gx, Gy, Gz = Fx + (T - I) * ex, Fy + (T - I) * ey, Fz + (T - I) * ez
+                    TI = T - I
+                    Gx, Gy, Gz = Fx + TI * ex, Fy + TI * ey, Fz + TI * ez
         else:
             ax, ay, az = Gx / M, Gy / M, Gz / M
         # on the guide: a = alpha u, from a = 0 (the scalar loop: one step, then its residual check)
         if not all_free:
-            G0x, G0y, G0z = Fx + (T0 - I0) * ex, Fy + (T0 - I0) * ey, Fz + (T0 - I0) * ez
+            TI0 = T0 - I0
+            G0x, G0y, G0z = Fx + TI0 * ex, Fy + TI0 * ey, Fz + TI0 * ez
             Gu = G0x * ux + G0y * uy + G0z * uz
             v_along = vx * ux + vy * uy + vz * uz
             at_foot = (v_along <= 0.0) & ((x - self.x0[0]) * ux + (y - self.x0[1]) * uy
@@ -489,7 +492,7 @@ class ArraySystem:
             res, T, I = res0, T0, I0
         if out is None:
             out = np.empty_like(Y)
-        out[0], out[1], out[2] = vx, vy, vz
+        out[0:3] = Y[3:6]
         out[3], out[4], out[5] = ax, ay, az
         vol_out = [0.0] * len(self.volumes)
         for (vi, *_), (mdot, _p) in zip(lines, res):
