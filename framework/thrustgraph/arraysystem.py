@@ -93,12 +93,14 @@ def _vary(p: Any, changes: dict[str, np.ndarray]) -> Any:
 @dataclasses.dataclass(frozen=True)
 class Phase:
     """The discrete phase of the designs as :meth:`ArraySystem.rhs` uses it: which are free, whether all are,
-    each vessel's mode (an ``int`` when shared by every design) and whether it is quiet in every design."""
+    whether any is, each vessel's mode (an ``int`` when shared by every design) and whether it is quiet in every
+    design."""
 
     free: np.ndarray
     all_free: bool
     vmode: list
     quiet: list
+    any_free: bool = True
 
 
 class ArraySystem:
@@ -323,7 +325,7 @@ class ArraySystem:
             lo, hi = int(m.min()), int(m.max())
             vmode.append(lo if lo == hi else m)
         quiet = [self._all_quiet(k, vmode[k]) for k in range(len(self.volumes))]
-        return Phase(free, bool(free.all()), vmode, quiet)
+        return Phase(free, bool(free.all()), vmode, quiet, bool(free.any()))
 
     def frozen(self, modes: np.ndarray) -> bool:
         """Whether every vessel is quiet in every design: :meth:`rhs` then holds their states (zero
@@ -447,8 +449,11 @@ class ArraySystem:
         TI = T - I
         Gx, Gy, Gz = Fx + TI * ex, Fy + TI * ey, Fz + TI * ez
         singular = np.zeros(self.n, dtype=bool)
-        # free flight: Newton on M a - G(a) = 0 with J = M I - beta e e^T, from a = 0
-        if coupled:
+        # free flight: Newton on M a - G(a) = 0 with J = M I - beta e e^T, from a = 0 (not solved while every
+        # design is on the guide: the guide's acceleration below replaces it in every design)
+        if not phase.any_free:
+            ax = ay = az = 0.0
+        elif coupled:
             ax = ay = az = 0.0
             for it in range(self.newton):
                 den = M - beta
