@@ -333,6 +333,7 @@ class _Run:
         assert sysa.index(IMPULSE) == ns - 1
         self.ev = _Events(sysa)
         self.nev = len(self.ev.slots)
+        self.j_apogee = [k for k, sl in enumerate(self.ev.slots) if sl[0] == "apogee"][0]
         self.Y = sysa.y0.copy()
         self.t = np.zeros(n)
         self.modes = sysa.mode0.copy()
@@ -567,14 +568,33 @@ class _Run:
             Ke = K[:, :, evi]
             Q = np.einsum("sp,sk->pk", DOPRI_P, Ke.reshape(7, -1)).reshape(4, self.ns, -1).transpose(1, 0, 2)
             need = any(ev.needs_drive[j] and np.any(hit[j][evi]) for j in range(nev))
-            sub_e = sysa.subset(evi)
+            sub_e = sysa.subset(evi) if need else None
             thetas = np.full((nev, len(evi)), np.inf)
             for j in range(nev):
                 sel = np.flatnonzero(hit[j][evi])
                 if len(sel):
                     rows = evi[sel]
-                    thetas[j, sel] = _locate(ev, j, sysa, sub_e if need else None, sel, rows, t, hh, Y, Q[:, :, sel],
+                    thetas[j, sel] = _locate(ev, j, sysa, sub_e, sel, rows, t, hh, Y, Q[:, :, sel],
                                              modes, kin, self.gold[j][rows], gnew[j][rows])
+            if not self.stop_at_apogee:
+                # apogee switches nothing in the dynamics: it is recorded where it falls inside the step (on the
+                # dense output, before any other event of the design in this step) and does not cut the step
+                ja = self.j_apogee
+                ta = thetas[ja].copy()
+                thetas[ja] = np.inf
+                passed = np.isfinite(ta) & (ta <= np.min(thetas, axis=0))
+                if passed.any():
+                    pr = evi[passed]
+                    self.desc[pr] = True
+                    self.apogee[pr] = _dense(Y[2:3, pr], hh[pr], Q[2:3, :, passed], ta[passed])[0]
+                keep = np.isfinite(np.min(thetas, axis=0))
+                if not keep.all():
+                    evi, thetas, Q = evi[keep], thetas[:, keep], Q[:, :, keep]
+                    if sub_e is not None:
+                        sub_e = sub_e.subset(np.flatnonzero(keep))
+        if len(evi):
+            if sub_e is None:
+                sub_e = sysa.subset(evi)
             th_min = np.min(thetas, axis=0)
             which = thetas == th_min[None, :]
             theta_ev[evi] = th_min
