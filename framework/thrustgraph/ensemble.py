@@ -777,14 +777,16 @@ def _illinois(g, ga: np.ndarray, gb: np.ndarray, t0: np.ndarray, hh: np.ndarray)
     for _ in range(80):
         if np.all(done):
             break
-        den = fb - fa
-        c = np.where(den != 0.0, b - fb * (b - a) / np.where(den != 0.0, den, 1.0), 0.5 * (a + b))
-        lo, hi = np.minimum(a, b), np.maximum(a, b)
-        c = np.where((c <= lo) | (c >= hi) | ~np.isfinite(c), 0.5 * (a + b), c)
+        # the secant point; where fb = fa it is inf or nan, and the bracket test below sends it to the
+        # midpoint, as any point not strictly inside the bracket
+        with np.errstate(divide="ignore", invalid="ignore"):
+            c = b - fb * (b - a) / (fb - fa)
+        c = np.where((c > np.minimum(a, b)) & (c < np.maximum(a, b)), c, 0.5 * (a + b))
         fc = g(c)
         exact = (fc == 0.0) & ~done
-        root = np.where(exact, c, root)
-        done |= exact
+        if exact.any():
+            root = np.where(exact, c, root)
+            done |= exact
         opp = np.sign(fc) != np.sign(fb)       # root between c and b
         # Illinois: halve the retained end's value when the same end is kept twice
         fa_new = np.where(opp, fb, fa * 0.5)
