@@ -259,6 +259,33 @@ def test_same_seed_same_table_on_every_local_engine(bottle, flights):
     assert d.table.to_csv() != a.table.to_csv()
 
 
+def test_a_task_is_named_by_its_content_and_a_kept_pool_serves_only_its_own_task(bottle):
+    """The same study again finds its model parsed in the workers (same name); any change of model, outputs or
+    way of flying is another task, and a kept process pool is restarted for it rather than flying the old one."""
+    from thrustgraph.engines import FlightTask, ProcessEngine
+
+    paths, units = ("components.bottle.fill",), ("",)
+    a = FlightTask(bottle, paths, units, ("apogee",))
+    assert a.token == FlightTask(bottle.copy(), paths, units, ("apogee",)).token
+    others = [FlightTask(bottle, paths, units, ("range",)), FlightTask(bottle, paths, units, ("apogee",), "ensemble"),
+              FlightTask(bottle.copy().set("components.bottle.gauge_pressure", "5 bar"), paths, units, ("apogee",)),
+              FlightTask(bottle, paths, units, ("apogee",), rtol=1e-8)]
+    assert len({a.token} | {o.token for o in others}) == 5
+    x = np.array([[0.3]])
+    eng = ProcessEngine(workers=1)
+    try:
+        first = list(eng.run(a, [(0, x)]))[0].values[0, 0]
+        pool = eng._pool
+        again = list(eng.run(FlightTask(bottle, paths, units, ("apogee",)), [(0, x)]))[0].values[0, 0]
+        assert eng._pool is pool and again == first
+        rng = list(eng.run(others[0], [(0, x)]))[0].values[0, 0]
+        assert eng._pool is not pool
+    finally:
+        eng.close()
+    single = fly_design(parse_model(bottle.copy().set("components.bottle.fill", 0.3))).values
+    assert first == pytest.approx(single["apogee"], rel=1e-12) and rng == pytest.approx(single["range"], rel=1e-12)
+
+
 def test_dask_local_cluster_with_two_workers_gives_the_local_table(bottle):
     distributed = pytest.importorskip("distributed")
     spreads = ["environment.medium.wind_x=normal(mean=1 m/s, sd=2 m/s)", "launch.azimuth=normal(sd=3 deg)"]

@@ -37,12 +37,12 @@ Examples
 
 from __future__ import annotations
 
+import hashlib
 import math
 import multiprocessing
 import os
 import signal
-import uuid
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, Iterable, Iterator, Sequence
 
 import numpy as np
@@ -87,7 +87,9 @@ class FlightTask:
     outputs : outcome names to compute
     flights : ``single`` or ``ensemble``
     rtol, atol : integration tolerances (None: the model's ``[run]`` values)
-    token : identifies the parsed base model in each worker's cache
+    token : names the task in each worker's cache of parsed models and for a kept process pool; by default a
+        hash of everything above, so that the same task again (a repeated study of an unchanged model) finds
+        its model already parsed in the workers of a pool or cluster
     """
 
     model: Model
@@ -97,7 +99,12 @@ class FlightTask:
     flights: str = "single"
     rtol: float | None = None
     atol: float | None = None
-    token: str = field(default_factory=lambda: uuid.uuid4().hex)
+    token: str = ""
+
+    def __post_init__(self) -> None:
+        if not self.token:
+            content = repr((self.model, self.paths, self.units, self.outputs, self.flights, self.rtol, self.atol))
+            object.__setattr__(self, "token", hashlib.sha256(content.encode()).hexdigest()[:32])
 
     def prepared(self) -> tuple[Any, list]:
         """The parsed base model and the resolved parameters (cached per process)."""

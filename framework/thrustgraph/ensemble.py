@@ -21,7 +21,10 @@ What each design owns (lessons of the prototype in docs/studies.md):
   guide exit, apogee and ground impact, each a continuous function with a
   direction, located on the dense output by a vectorised Illinois
   (modified regula falsi) iteration; the step is cut at the earliest event
-  and the phase switch (reset map) is applied to that design alone;
+  and the phase switch (reset map) is applied to that design alone. Apogee
+  switches nothing in the dynamics, so it is recorded where it falls inside
+  the step without cutting it (unless ``run.stop_at_apogee`` ends the flight
+  there);
 * a step budget: a design that needs more than ``max_steps`` steps, or whose
   step collapses, is screened out and reported, not left to stall the batch.
 
