@@ -10,7 +10,8 @@
 2. One single flight (integration only) against the hand-written single-function scipy model of the same vehicle
    (benchmarks/handwritten_bottle.py); medians of interleaved repeats. Target: ratio <= 1.0.
 3. The same sweep on a Dask LocalCluster with 2 workers against 1 worker (one thread each, ensemble chunks),
-   one cluster up at a time, the two alternating, start-up and a first sweep untimed (steady state), medians.
+   with Dask's default settings and with thrustgraph.engines.STUDY_CLUSTER_CONFIG (housekeeping loops run
+   rarely); one cluster up at a time, alternating, start-up and a first sweep untimed (steady state), medians.
    Target: >= 1.8x on a 2-core machine.
 4. Peak memory of the 10,000-design sweep with summary outputs: the Python heap peak (tracemalloc, numpy
    arrays included) and the process's maximum resident set. Target: < 1 GiB.
@@ -150,33 +151,41 @@ def main() -> int:
         except ImportError:
             print("\n3. Dask: not installed (pip install 'thrustgraph[dask]')")
         else:
-            runs: dict[int, list[float]] = {1: [], 2: []}
+            import dask
+
+            from thrustgraph.engines import STUDY_CLUSTER_CONFIG
+
+            configs = {"Dask's default settings": {}, "thrustgraph.engines.STUDY_CLUSTER_CONFIG": STUDY_CLUSTER_CONFIG}
+            runs = {(c, w): [] for c in configs for w in (1, 2)}
             chunk = max(1, n // 4)
             same = True
             # one cluster up at a time: the event loops of an idle cluster are not free (two idle LocalClusters
             # took 9-14 % of one core here, measured), and a busy 2-worker cluster on 2 cores would pay for them.
-            # Clusters of 1 and 2 workers alternate (1, 2, 1, 2, ...) so a slow spell of the shared machine falls on
-            # both sides. Steady state on both sides, as for the one-core ensemble above: start-up and one untimed
-            # sweep (imports, the model parsed in each worker, the workers' heaps grown to the chunks' arrays)
-            # before the timed one; medians of --dask-repeat
+            # Clusters of 1 and 2 workers, with Dask's default settings and with the study settings, alternate so
+            # that a slow spell of the shared machine falls on every side. Steady state, as for the one-core
+            # ensemble above: start-up and one untimed sweep (imports, the model parsed in each worker, the
+            # workers' heaps grown to the chunks' arrays) before the timed one; medians of --dask-repeat
             for _ in range(args.dask_repeat):
-                for workers in (1, 2):
-                    with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
-                                      dashboard_address=None) as c:
-                        evaluate(model, params, x, parsed=parsed, engine="dask", flights="ensemble",
-                                 scheduler=c.scheduler_address, chunk_size=chunk, quiet=True)
-                        t0 = time.perf_counter()
-                        td = evaluate(model, params, x, parsed=parsed, engine="dask", flights="ensemble",
-                                      scheduler=c.scheduler_address, chunk_size=chunk, quiet=True)
-                        runs[workers].append(time.perf_counter() - t0)
-                        same = same and np.array_equal(td.values, table.values, equal_nan=True)
-            t1, t2 = statistics.median(runs[1]), statistics.median(runs[2])
+                for cname, cfg in configs.items():
+                    for workers in (1, 2):
+                        with dask.config.set(cfg), LocalCluster(n_workers=workers, threads_per_worker=1,
+                                                                processes=True, dashboard_address=None) as c:
+                            evaluate(model, params, x, parsed=parsed, engine="dask", flights="ensemble",
+                                     scheduler=c.scheduler_address, chunk_size=chunk, quiet=True)
+                            t0 = time.perf_counter()
+                            td = evaluate(model, params, x, parsed=parsed, engine="dask", flights="ensemble",
+                                          scheduler=c.scheduler_address, chunk_size=chunk, quiet=True)
+                            runs[cname, workers].append(time.perf_counter() - t0)
+                            same = same and np.array_equal(td.values, table.values, equal_nan=True)
             print()
             print(f"3. Dask LocalCluster, the same {n}-design sweep, ensemble chunks of {chunk}, one cluster at a "
-                  f"time, alternating")
-            print(f"   1 worker: {t1:.2f} s, 2 workers: {t2:.2f} s (medians of "
-                  f"{', '.join(f'{a:.2f}' for a in runs[1])} and {', '.join(f'{b:.2f}' for b in runs[2])} s), "
-                  f"speed-up {t1 / t2:.2f}x (target >= 1.8x); tables equal to the local one: {same}")
+                  f"time, alternating; tables equal to the local one: {same}")
+            for cname in configs:
+                r1, r2 = runs[cname, 1], runs[cname, 2]
+                t1, t2 = statistics.median(r1), statistics.median(r2)
+                print(f"   {cname}: 1 worker {t1:.2f} s, 2 workers {t2:.2f} s (medians of "
+                      f"{', '.join(f'{a:.2f}' for a in r1)} and {', '.join(f'{b:.2f}' for b in r2)} s), "
+                      f"speed-up {t1 / t2:.2f}x (target >= 1.8x)")
 
     # 4. memory (tracemalloc slows numpy-heavy code ~8x, so this is a separate run; the resident set is
     #    measured in a fresh process that does nothing but the sweep) ----------------------------------------------

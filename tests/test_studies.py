@@ -286,6 +286,19 @@ def test_a_task_is_named_by_its_content_and_a_kept_pool_serves_only_its_own_task
     assert first == pytest.approx(single["apogee"], rel=1e-12) and rng == pytest.approx(single["range"], rel=1e-12)
 
 
+def test_the_study_cluster_settings_are_dask_settings():
+    """Each key of STUDY_CLUSTER_CONFIG is one Dask knows (a misspelt key would be ignored by Dask, silently)."""
+    dask = pytest.importorskip("dask")
+    pytest.importorskip("distributed")
+    from thrustgraph.engines import STUDY_CLUSTER_CONFIG
+
+    for key, value in STUDY_CLUSTER_CONFIG.items():
+        default = dask.config.get(key)                  # KeyError for a key Dask does not have
+        assert type(default) is type(value), key
+        with dask.config.set({key: value}):
+            assert dask.config.get(key) == value
+
+
 def test_dask_local_cluster_with_two_workers_gives_the_local_table(bottle):
     distributed = pytest.importorskip("distributed")
     spreads = ["environment.medium.wind_x=normal(mean=1 m/s, sd=2 m/s)", "launch.azimuth=normal(sd=3 deg)"]

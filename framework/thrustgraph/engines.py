@@ -51,7 +51,7 @@ from .errors import ModelError
 from .model import Model
 
 __all__ = ["FlightTask", "ChunkRows", "chunks", "SerialEngine", "ProcessEngine", "DaskEngine", "make_engine",
-           "ENGINES", "FLIGHTS", "default_chunk_size"]
+           "ENGINES", "FLIGHTS", "default_chunk_size", "STUDY_CLUSTER_CONFIG"]
 
 ENGINES = ("serial", "processes", "dask")
 FLIGHTS = ("single", "ensemble")
@@ -269,6 +269,20 @@ class ProcessEngine:
 # --- Dask -----------------------------------------------------------------------------------------------------
 def _dask_chunk(task: FlightTask, start: int, x: np.ndarray) -> ChunkRows:
     return task(start, x)
+
+
+#: Dask settings for a cluster that flies studies: long CPU-bound tasks, so the housekeeping loops of the
+#: scheduler, nannies and workers can run rarely. With Dask's defaults (a 20 ms event-loop tick, a 10 ms
+#: statistical profiler, 0.5 s system monitor, 0.1 s memory monitor) an idle 2-worker LocalCluster took 6.5 % of
+#: one core here, with these 0.7 % (measured): on a machine whose cores are all workers, that is time taken from
+#: the flights. Use them as ``dask.config.set(STUDY_CLUSTER_CONFIG)`` around a ``LocalCluster``, or as the
+#: environment of ``dask scheduler`` and ``dask worker`` (docs/studies.md gives the variables).
+STUDY_CLUSTER_CONFIG = {
+    "distributed.worker.profile.enabled": False,
+    "distributed.admin.tick.interval": "1s",
+    "distributed.admin.system-monitor.interval": "5s",
+    "distributed.worker.memory.monitor-interval": "1s",
+}
 
 
 class DaskEngine:
