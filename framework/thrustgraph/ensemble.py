@@ -608,7 +608,7 @@ class _Run:
         cut = np.isfinite(theta_ev)
         th_end = np.where(cut, theta_ev, 1.0)
         if np.any(acc):
-            self.track(acc, cut, th_end, Y, F, K, Yn, aux_n, hh, evi if len(evi) else None,
+            self.track(acc, th_end, Y, F, K, Yn, aux_n, hh, evi if len(evi) else None,
                        (Ye, Fe, aux_e, Q) if len(evi) else None, sub_e if len(evi) else None)
         # advance the accepted designs without an event: the new states become the state array (the old
         # one is the next step's buffer) and the few other designs' columns are copied back
@@ -667,7 +667,7 @@ class _Run:
         self.finish(np.flatnonzero(bad), STATUS_SCREENED, "integration failed: the state is not finite")
         self.h = np.where(acc | rej, h_next, self.h)
 
-    def track(self, acc, cut, th_end, Y, F, K, Yn, aux_n, hh, evi, event, sub_e) -> None:
+    def track(self, acc, th_end, Y, F, K, Yn, aux_n, hh, evi, event, sub_e) -> None:
         """Running maxima (speed, acceleration, altitude, vessel pressure) and burn time over accepted steps.
 
         Works on whole arrays (masks, not gathers): most designs are accepted at most steps.
