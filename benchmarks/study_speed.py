@@ -61,7 +61,7 @@ def main() -> int:
     ap.add_argument("--sample", type=int, default=200)
     ap.add_argument("--repeat", type=int, default=7)
     ap.add_argument("--skip-dask", action="store_true")
-    ap.add_argument("--dask-repeat", type=int, default=5, help="interleaved Dask sweeps per worker count")
+    ap.add_argument("--dask-repeat", type=int, default=5, help="timed Dask sweeps per cluster kind")
     args = ap.parse_args()
 
     model = tg.load_model(tg.default_model_path())

@@ -100,7 +100,7 @@ class Phase:
     all_free: bool
     vmode: list
     quiet: list
-    any_free: bool = True
+    any_free: bool
 
 
 class ArraySystem:

@@ -699,9 +699,9 @@ class _Run:
         jh = np.einsum("sp,sk->pk", _JERK_ENDS, kv).reshape(2, 3, n)
         j0, j1 = jh[0], jh[1]
         if evi is not None:          # steps cut at an event (the designs evi) end at theta < 1
-            Qv = event[3][3:6]       # their dense-output coefficients, velocity rows
+            Qe = event[3][3:6]       # their dense-output coefficients, velocity rows
             tc = th_end[evi]
-            j1[:, evi] = 2.0 * Qv[:, 1] + 6.0 * Qv[:, 2] * tc + 12.0 * Qv[:, 3] * tc * tc
+            j1[:, evi] = 2.0 * Qe[:, 1] + 6.0 * Qe[:, 2] * tc + 12.0 * Qe[:, 3] * tc * tc
         te = th_end
         ainner = acc & (a0x * j0[0] + a0y * j0[1] + a0z * j0[2] > 0.0) & (a1x * j1[0] + a1y * j1[1] + a1z * j1[2] < 0.0)
         if np.any(inner) or np.any(ainner):

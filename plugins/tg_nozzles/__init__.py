@@ -162,7 +162,8 @@ class ConvergentNozzle(ComponentKind):
                 crit = (2.0 / (gam + 1.0)) ** (gam / (gam - 1.0))
                 pr = p_down / pus
                 choked = pr <= crit
-                if (gas & choked).any():
+                some_choked = bool((gas & choked).any())
+                if some_choked:
                     flux = np.sqrt(gam / R) * (2.0 / (gam + 1.0)) ** ((gam + 1.0) / (2.0 * (gam - 1.0)))
                     md_g = area * pus * flux / np.sqrt(T)
                     ve_g = np.sqrt(gam * R * (2.0 * T / (gam + 1.0)))
@@ -172,7 +173,7 @@ class ConvergentNozzle(ComponentKind):
                     x = np.maximum(pr, 1e-300) ** ((gam - 1.0) / gam)
                     ve_u = np.sqrt(2.0 * gam * R / (gam - 1.0) * T * np.maximum(1.0 - x, 0.0))
                     md_u = (p_down / (R * T * x)) * ve_u * area
-                    if (gas & choked).any():
+                    if some_choked:
                         md_g, ve_g = np.where(choked, md_g, md_u), np.where(choked, ve_g, ve_u)
                         pe_g, c_g = np.where(choked, pe_g, p_down), np.where(choked, c_g, 2.0 * area)
                     else:                        # no open design is choked: the selections would pick these
