@@ -40,7 +40,7 @@ import thrustgraph as tg  # noqa: E402
 from thrustgraph.designs import apply, resolve  # noqa: E402
 from thrustgraph.integrate import fly_segments  # noqa: E402
 from thrustgraph.model import parse_model  # noqa: E402
-from thrustgraph.outcomes import OUTPUTS, fly_design  # noqa: E402
+from thrustgraph.studyflight import fly_design  # noqa: E402
 from thrustgraph.studies import evaluate  # noqa: E402
 
 PATHS = ("components.bottle.fill", "components.bottle.gauge_pressure", "components.neck.diameter",
@@ -207,7 +207,7 @@ def main() -> int:
     print(f"4. peak memory of the {n}-design sweep (summary outputs): Python heap peak {peak / 2 ** 20:.1f} MiB "
           f"(tracemalloc, numpy arrays included); maximum resident set of a process doing only the sweep "
           f"{rss:.0f} MiB, interpreter and libraries included (target < 1024 MiB)")
-    print(f"   the table of {len(OUTPUTS)} outcomes per design: {table.values.nbytes / 2 ** 20:.2f} MiB")
+    print(f"   the table of {len(table.outputs)} outcomes per design: {table.values.nbytes / 2 ** 20:.2f} MiB")
     return 0
 
 

@@ -27,7 +27,7 @@ from thrustgraph.errors import ModelError
 from thrustgraph.model import parse_model
 from thrustgraph.modelfile import default_model_path, load_model
 from thrustgraph.optimisation import optimise
-from thrustgraph.outcomes import fly_design
+from thrustgraph.studyflight import fly_design
 from thrustgraph.studies import sensitivities, sweep
 from thrustgraph.studyspec import Limit, Spread, Vary, read_study
 

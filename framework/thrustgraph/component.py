@@ -57,6 +57,10 @@ The implementer's contract
    (the full convention is in that module's docstring); its scalar build must
    stay bit-identical.
 8. Return safety cautions for the model from :meth:`ComponentKind.cautions`.
+9. Numbers that sum up a run for this component (a parachute's deployment
+   speed) are outcomes: declare each once in ``outcomes`` (a tuple of
+   :class:`~thrustgraph.outcomespec.OutcomeSpec`) and return their values
+   from :meth:`ComponentKind.summarize`.
 """
 
 from __future__ import annotations
@@ -65,6 +69,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Any, Callable, ClassVar, Sequence
 
+from .outcomespec import OutcomeSpec
 from .parameters import Spec, make_params_class
 
 __all__ = [
@@ -327,15 +332,18 @@ class ComponentKind(_Declared):
     vectorised: ClassVar[bool] = False
     #: SI units of the signals this kind reports (signal key -> unit), for results, CSV headers and triggers.
     signal_units: ClassVar[dict[str, str]] = {}
-    #: SI units of the entries :meth:`summarize` returns.
-    summary_units: ClassVar[dict[str, str]] = {}
+    #: The outcomes :meth:`summarize` returns, each declared once (key, quantity, SI and display unit, label,
+    #: meaning): they join the outcome registry (:mod:`thrustgraph.outcomes`), which refuses a key declared twice
+    #: or defined differently by two kinds.
+    outcomes: ClassVar[tuple[OutcomeSpec, ...]] = ()
 
     @classmethod
     def summarize(cls, name: str, p: Any, result: Any) -> dict[str, float]:
         """Headline numbers of this component after a run (e.g. a parachute's deployment speed), SI.
 
-        Called once per finished run with the component's name, its parameters and the FlightResult; the
-        entries appear in the result's summary as ``NAME.KEY``.
+        Called once per finished run with the component's name, its parameters and the FlightResult; returns
+        values of outcomes the kind declares in :attr:`outcomes`. The entries appear in the result's summary
+        as ``NAME.KEY``, labelled ``NAME label``.
         """
         return {}
 

@@ -39,7 +39,7 @@ import numpy as np
 
 from .errors import ModelError
 from .model import Model
-from .outcomes import OUTPUTS, STATUS_OK
+from .outcomes import OUTCOMES, STATUS_OK
 from .studies import DEFAULT_OUTPUTS, DesignTable, _fmt, _prepare, evaluate
 from .studyspec import Spread
 
@@ -143,7 +143,7 @@ class Dispersion:
                  f"screened{', interrupted' if self.table.interrupted else ''}", "",
                  f"  {'outcome':<22s} {'mean':>12s} {'sd':>11s} {'5 %':>11s} {'median':>11s} {'95 %':>11s}"]
         for o, s in self.stats.items():
-            lines.append(f"  {o + ' [' + (OUTPUTS[o].unit or '1') + ']':<22s} {s['mean']:12.5g} {s['sd']:11.4g} "
+            lines.append(f"  {OUTCOMES[o].header:<22s} {s['mean']:12.5g} {s['sd']:11.4g} "
                          f"{s['p05']:11.5g} {s['p50']:11.5g} {s['p95']:11.5g}")
         fp = self.footprint
         if fp is not None:
@@ -161,7 +161,7 @@ class Dispersion:
             buf.write(f"# {k}: {v}\n")
         buf.write("outcome,unit," + ",".join(_STATS) + "\n")
         for o, s in self.stats.items():
-            buf.write(",".join([o, OUTPUTS[o].unit or "1"] + [_fmt(float(s[k])) for k in _STATS]) + "\n")
+            buf.write(",".join([o, OUTCOMES[o].unit or "1"] + [_fmt(float(s[k])) for k in _STATS]) + "\n")
         fp = self.footprint
         if fp is not None:
             buf.write("# footprint: mean x [m], mean y [m], var x [m^2], cov xy [m^2], var y [m^2]\n")

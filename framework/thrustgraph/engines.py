@@ -126,7 +126,8 @@ class FlightTask:
         import time
 
         from .designs import apply, within_bounds
-        from .outcomes import STATUS_SCREENED, fly_design
+        from .outcomes import STATUS_SCREENED
+        from .studyflight import fly_design
 
         t0 = time.perf_counter()
         parsed, params = self.prepared()

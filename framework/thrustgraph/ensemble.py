@@ -30,7 +30,8 @@ What each design owns (lessons of the prototype in docs/studies.md):
 
 Finished designs are compacted away (the arrays shrink) when fewer than
 half of them are still flying. The results are summary rows only
-(:data:`thrustgraph.outcomes.OUTPUTS`); no trajectory is kept, so memory
+(the registry outcomes in :data:`COMPUTED`, keyed as in
+:data:`thrustgraph.outcomes.OUTCOMES`); no trajectory is kept, so memory
 does not grow with flight length. Each row depends only on its own design
 (every operation is elementwise), so a design gives the same numbers in any
 chunk of any size.
@@ -61,9 +62,16 @@ from .arraysystem import FREE, GUIDE, IMPULSE, ArraySystem, unsupported
 from .designs import DesignParameter, bounds_text, with_values, within_bounds
 from .errors import ModelError
 from .model import ParsedModel
-from .outcomes import OUTPUTS, STATUS_OK, STATUS_SCREENED, check_outputs
+from .outcomes import OUTCOMES, STATUS_OK, STATUS_SCREENED, check_outputs
 
-__all__ = ["fly_designs", "EnsembleResult", "unsupported", "DOPRI_C", "DOPRI_A", "DOPRI_B", "DOPRI_E", "DOPRI_P"]
+__all__ = ["fly_designs", "EnsembleResult", "unsupported", "COMPUTED", "DOPRI_C", "DOPRI_A", "DOPRI_B", "DOPRI_E",
+           "DOPRI_P"]
+
+#: The registry outcomes the ensemble computes itself (its own running maxima, burn clock and impulse quadrature
+#: state, not the registry's functions); a study that asks for another one flies single flights.
+COMPUTED = ("apogee", "range", "impact_x", "impact_y", "flight_time", "max_speed", "peak_acceleration",
+            "total_impulse", "burn_time", "propellant_expelled", "launch_mass", "peak_vessel_pressure",
+            "guide_exit_speed", "impact_speed")
 
 # Dormand-Prince 5(4) (scipy RK45's arrays).
 DOPRI_C = np.array([0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1])
@@ -273,7 +281,7 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
     ----------
     parsed : the base model (its family must be supported: :func:`unsupported` returns None)
     params : the varied parameters; ``x`` their SI values, shape (N, parameters)
-    outputs : outcome names (default: all of :data:`~thrustgraph.outcomes.OUTPUTS`)
+    outputs : registry outcome keys (default: :data:`COMPUTED`; any other is NaN)
     rtol, atol : tolerances (default: the model's ``[run]`` values; the same meaning as for solve_ivp)
     max_steps : step budget per design (attempted steps); a design that exceeds it is screened out
     compact : shrink the arrays when fewer than this fraction of the designs are still flying
@@ -285,7 +293,7 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
         raise ModelError("ensemble", f"the vectorised ensemble cannot fly this model: {why}",
                          "fly it with single flights (--flights single)")
     keep_heap()
-    outputs = tuple(check_outputs(outputs if outputs is not None else list(OUTPUTS)))
+    outputs = tuple(check_outputs(outputs if outputs is not None else list(COMPUTED)))
     x = np.asarray(x, dtype=float).reshape(-1, len(params))
     N = len(x)
     rtol = float(parsed.run.rtol if rtol is None else rtol)
@@ -294,7 +302,7 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
     stop_at_apogee = bool(parsed.run.stop_at_apogee)
     status = [STATUS_OK] * N
     notes = [""] * N
-    out = {k: np.full(N, np.nan) for k in OUTPUTS}
+    out = {k: np.full(N, np.nan) for k in OUTCOMES}
     steps_taken = np.zeros(N, dtype=np.int64)
     good = _screen_designs(parsed, params, x, status, notes)
     gid = np.flatnonzero(good)

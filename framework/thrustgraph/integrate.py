@@ -28,8 +28,9 @@ from scipy.integrate import solve_ivp
 
 from .assembly import ACCUMULATORS, System, assemble
 from .balance import Balance, Kinematics
-from .errors import IntegrationError, ModelError
+from .errors import IntegrationError, ModelError, PluginError
 from .model import Model, ParsedModel
+from .outcomes import OUTCOMES, kind_outcomes, run_summary
 from .result import Audit, Event, FlightResult, Phase
 from .staging import KINEMATIC_SIGNALS, Trigger, resolve_thresholds, separate
 
@@ -602,55 +603,21 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
     for n, cls in system.parsed.kinds.items():
         for key, u in cls.signal_units.items():
             res.units[f"{n}.{key}"] = u
-    res.summary = _summary(res, system, segs.dropped_mass)
+    res.summary = run_summary(system, segs)
+    res.outcome_specs = {k: OUTCOMES[k] for k in res.summary}
+    declared = kind_outcomes(system.parsed.kinds)
     for n, cls in system.parsed.kinds.items():
         for key, value in cls.summarize(n, system.parsed.params[n], res).items():
-            res.summary[f"{n}.{key}"] = float(value)
-            res.units[f"{n}.{key}"] = cls.summary_units.get(key, "")
+            spec = declared.get(f"{n}.{key}")
+            if spec is None:
+                raise PluginError(f"kind {cls.kind!r}: summarize returned {key!r}, which the kind does not declare. "
+                                  f"Fix: add OutcomeSpec({key!r}, ...) to {cls.__name__}.outcomes")
+            res.summary[spec.key] = float(value)
+            res.units[spec.key] = spec.unit
+            res.outcome_specs[spec.key] = spec
     res.cautions = system.parsed.cautions()
     res.provenance = provenance(system.parsed)
     return res
-
-
-def _summary(r: FlightResult, system: System, dropped_mass: float = 0.0) -> dict[str, float]:
-    s = r.signals
-    t = r.t
-    thrust = s["thrust"]
-    out: dict[str, float] = {
-        "flight_time": float(t[-1] - t[0]),
-        "launch_mass": float(s["mass"][0]),
-        "final_mass": float(s["mass"][-1]),
-        "propellant_expelled": float(r.state("audit.mass_out")[-1]) - dropped_mass,
-        "peak_thrust": float(np.max(thrust)),
-        "peak_acceleration": float(np.max(s["acceleration_magnitude"])),
-        "max_speed": float(np.max(s["speed"])),
-        "apogee": float(np.max(s["altitude"]) + 0.0),
-        "range": float(s["range"][-1]),
-        "total_impulse": float(np.trapezoid(np.linalg.norm(s["thrust_vector"], axis=1), t)),
-        "burn_time": float(sum(p.duration for p in r.phases if p.name not in _NOT_PROPULSIVE)),
-    }
-    # downrange along the launch azimuth and drift across it (e.g. under wind)
-    az = system.launch.azimuth
-    dx = s["position"][-1, 0] - s["position"][0, 0]
-    dy = s["position"][-1, 1] - s["position"][0, 1]
-    out["downrange"] = float(dx * math.cos(az) + dy * math.sin(az))
-    out["drift"] = float(-dx * math.sin(az) + dy * math.cos(az))
-    if dropped_mass:
-        out["dropped_mass"] = dropped_mass
-    if out["propellant_expelled"] > 1e-12:
-        out["specific_impulse"] = out["total_impulse"] / out["propellant_expelled"] / 9.80665
-    for e in r.events:
-        if e.name == "guide exit":
-            out["guide_exit_speed"] = float(np.linalg.norm(r.y[3:6, np.searchsorted(r.t, e.t, side="right") - 1]))
-        if e.name == "ground impact":
-            out["impact_speed"] = float(s["speed"][-1])
-    press = [k for k in s if k.endswith(".pressure")]
-    if press:
-        out["peak_vessel_pressure"] = float(max(np.nanmax(s[k]) for k in press))
-    if system.launch.mount == "held":
-        for k in ("max_speed", "apogee", "range", "downrange", "drift"):
-            out.pop(k, None)
-    return out
 
 
 def provenance(parsed: ParsedModel) -> dict[str, Any]:

@@ -52,7 +52,7 @@ from .designs import DesignParameter
 from .engines import make_engine
 from .errors import ModelError
 from .model import Model
-from .outcomes import OUTPUTS, STATUS_OK, check_outputs
+from .outcomes import OUTCOMES, STATUS_OK, check_outputs
 from .studies import DEFAULT_OUTPUTS, DesignTable, _prepare, as_vary, choose_engine, evaluate
 from .studyspec import Limit, Vary
 
@@ -105,12 +105,12 @@ class OptimisationResult:
                  f"  {self.iterations} iterations, {self.evaluations} designs flown", "", "Best design"]
         for p, v in zip(self.params, self.x):
             lines.append(f"  {p.path:<42s} {p.text(v)}")
-        lines.append(f"  {self.objective:<42s} {self.value:.6g} {OUTPUTS[self.objective].unit}")
+        lines.append(f"  {self.objective:<42s} {OUTCOMES[self.objective].text(self.value, 6)}")
         for lim in self.limits:
             m = self.margins[str(lim)]
             v = self.outcomes.get(lim.output, math.nan)
             state = "met" if m >= -1e-6 * max(abs(lim.si()), 1.0) else "NOT met"
-            lines.append(f"  limit {str(lim):<36s} {state}: {lim.output} = {v:.6g} {OUTPUTS[lim.output].unit}")
+            lines.append(f"  limit {str(lim):<36s} {state}: {lim.output} = {OUTCOMES[lim.output].text(v, 6)}")
         return "\n".join(lines)
 
 

@@ -1,134 +1,85 @@
-"""Outcomes of one design: the summary numbers a study needs, computed from the integration segments alone.
+"""The outcome registry: every number a flight is summed up by, defined once and computed once.
 
-:func:`thrustgraph.integrate.integrate` builds every signal and the balance
-ledger on an output grid (about 4x the cost of the integration itself).
-A study needs a dozen numbers per flight, so :func:`summarise` reads them
-from :func:`~thrustgraph.integrate.fly_segments` directly:
+:data:`OUTCOMES` holds one :class:`~thrustgraph.outcomespec.OutcomeSpec` per
+core outcome: key, quantity, SI and display units, label, meaning, the
+function that computes it from the integrated solution and the vehicles it
+applies to. A single run (:func:`thrustgraph.integrate.integrate`, whose
+``result.summary`` is keyed by these keys) and a study
+(:func:`thrustgraph.studyflight.fly_design`) both call :func:`summarise`, so
+the two report the same numbers. Component kinds add their own outcomes
+(``ComponentKind.outcomes``, checked by :func:`check_kind_outcomes` when the
+plugins load); they appear in a run's summary as ``COMPONENT.KEY``.
 
-* event values (apogee, guide-exit speed, impact point and speed, burn time)
-  are the states at the located events, exact to the integration tolerance;
-* ``max_speed`` and ``peak_acceleration`` are the largest values at the
-  solver's steps, refined between the neighbouring steps on the dense output
-  (a bounded scalar search) when the largest value lies inside a phase;
+Every value comes from the segments of
+:func:`~thrustgraph.integrate.fly_segments` (the solver's own steps, their
+dense output and the located events), never from the evenly spaced output
+grid:
+
+* event values (guide-exit speed, impact speed) are the states at the
+  located events, exact to the integration tolerance;
+* the peaks (``apogee``, ``max_speed``, ``peak_acceleration``,
+  ``peak_thrust``) are the largest values at the solver's steps, refined
+  between the neighbouring steps on the dense output by a bounded scalar
+  search;
 * ``total_impulse`` integrates the thrust magnitude over every powered step
   with 3-point Gauss-Legendre quadrature on the dense output (exact for
-  polynomials of degree 5 on each step), so it is smooth in the parameters
-  (an optimiser can differentiate it), unlike a trapezoid on the output grid;
+  polynomials of degree 5 on each step, and smooth in the parameters, so an
+  optimiser can differentiate it);
+* masses come from the integrated states: ``propellant_expelled`` is the
+  launch mass less the final mass and what separations dropped;
 * ``peak_vessel_pressure`` is the largest vessel pressure at the steps.
-
-:data:`OUTPUTS` lists every outcome with its SI unit. :func:`fly_design`
-flies one parsed model and returns an :class:`Outcome`: the values, or why
-the design was screened out (a model error, no lift-off, an integration
-failure), never an exception.
 
 Examples
 --------
 >>> from thrustgraph.modelfile import load_model, default_model_path
->>> from thrustgraph.model import parse_model
->>> out = fly_design(parse_model(load_model(default_model_path())))
->>> out.status, round(out.values["apogee"], 3)
-('ok', 54.318)
+>>> from thrustgraph.assembly import assemble
+>>> from thrustgraph.integrate import fly_segments
+>>> system = assemble(load_model(default_model_path()))
+>>> values = summarise(system, fly_segments(system), ["apogee", "burn_time"])
+>>> round(values["apogee"], 3), OUTCOMES["burn_time"].label
+(54.318, 'burn time')
+>>> OUTCOMES["peak_acceleration"].text(117.6798)
+'117.68 m/s^2 (12 g0)'
 """
 
 from __future__ import annotations
 
+import difflib
 import math
-from dataclasses import dataclass, field
-from typing import Any, Sequence
+from dataclasses import replace
+from functools import cached_property
+from typing import Any, Callable, Iterable, Mapping, Sequence
 
 import numpy as np
 from scipy.optimize import minimize_scalar
 
-from .assembly import System, assemble
+from .assembly import System
 from .balance import Kinematics
-from .errors import IntegrationError, ModelError, ThrustgraphError
-from .model import ParsedModel
+from .errors import ModelError, PluginError
+from .outcomespec import KEY_PATTERN, OutcomeSpec
+from .units import Q_
 
-__all__ = ["Output", "OUTPUTS", "output_names", "check_outputs", "Outcome", "summarise", "fly_design",
+__all__ = ["OutcomeSpec", "OUTCOMES", "OUTPUTS", "G0", "Flight", "summarise", "run_summary", "output_names",
+           "default_outputs", "check_outputs", "outcome", "kind_outcomes", "check_kind_outcomes",
            "STATUS_OK", "STATUS_SCREENED", "STATUS_NOT_RUN"]
+
+#: Standard gravity, m/s^2 (exact by definition; CGPM 1901): the g0 of specific impulse and of accelerations
+#: shown in standard gravities.
+G0 = 9.80665
 
 STATUS_OK = "ok"
 STATUS_SCREENED = "screened"
 STATUS_NOT_RUN = "not run"
 
-
-@dataclass(frozen=True)
-class Output:
-    """A study outcome: name, SI unit, meaning."""
-
-    name: str
-    unit: str
-    doc: str
-
-    @property
-    def header(self) -> str:
-        return f"{self.name} [{self.unit or '1'}]"
-
-
-OUTPUTS: dict[str, Output] = {o.name: o for o in (
-    Output("apogee", "m", "highest altitude above the launch point"),
-    Output("range", "m", "horizontal distance from the launch point at the end of the flight"),
-    Output("impact_x", "m", "downrange (x) position at the end of the flight"),
-    Output("impact_y", "m", "cross-range (y) position at the end of the flight"),
-    Output("flight_time", "s", "time from launch to the end of the flight (ground impact)"),
-    Output("max_speed", "m/s", "highest speed"),
-    Output("peak_acceleration", "m/s^2", "largest acceleration magnitude"),
-    Output("total_impulse", "N*s", "time integral of the thrust magnitude"),
-    Output("burn_time", "s", "time spent in powered phases"),
-    Output("propellant_expelled", "kg", "mass that left through the control surface"),
-    Output("launch_mass", "kg", "mass at launch"),
-    Output("peak_vessel_pressure", "Pa", "highest absolute pressure in any vessel"),
-    Output("guide_exit_speed", "m/s", "speed at the end of the launch guide"),
-    Output("impact_speed", "m/s", "speed at ground impact"),
-)}
-
-
-def output_names() -> list[str]:
-    """Every outcome a study can report, in table order."""
-    return list(OUTPUTS)
-
-
-def check_outputs(names: Sequence[str], where: str = "outputs") -> list[str]:
-    """Refuse outcome names that do not exist (with the closest name).
-
-    >>> check_outputs(["apogee"])
-    ['apogee']
-    >>> check_outputs(["apogey"])
-    Traceback (most recent call last):
-    ...
-    thrustgraph.errors.ModelError: outputs: there is no outcome 'apogey'. Fix: did you mean 'apogee'?
-    """
-    import difflib
-
-    out = []
-    for n in names:
-        if n not in OUTPUTS:
-            c = difflib.get_close_matches(str(n), list(OUTPUTS), n=1)
-            hint = f"did you mean {c[0]!r}?" if c else f"outcomes: {', '.join(OUTPUTS)}"
-            raise ModelError(where, f"there is no outcome {n!r}", hint)
-        if n not in out:
-            out.append(n)
-    return out
-
-
-@dataclass(frozen=True)
-class Outcome:
-    """What flying one design gave: ``status`` ('ok' or 'screened'), the reason, and the outcome values (SI)."""
-
-    status: str
-    message: str = ""
-    values: dict[str, float] = field(default_factory=dict)
+_GAUSS_X = np.array([-math.sqrt(0.6), 0.0, math.sqrt(0.6)])
+_GAUSS_W = np.array([5.0, 8.0, 5.0]) / 9.0
 
 
 def _propulsive(system: System, modes: Sequence[int]) -> bool:
     return any(system.modes[n][modes[k]].propulsive for k, n in enumerate(system.moded))
 
 
-_GAUSS_X = np.array([-math.sqrt(0.6), 0.0, math.sqrt(0.6)])
-_GAUSS_W = np.array([5.0, 8.0, 5.0]) / 9.0
-
-
-def _refine_max(fun, t_lo: float, t_hi: float, best: float) -> float:
+def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: float) -> float:
     """Largest value of ``fun`` on [t_lo, t_hi] by a bounded scalar search, never below ``best``."""
     if not t_hi > t_lo:
         return best
@@ -137,107 +88,103 @@ def _refine_max(fun, t_lo: float, t_hi: float, best: float) -> float:
     return max(best, -float(res.fun))
 
 
-def summarise(system: System, segs: Any, outputs: Sequence[str] | None = None) -> dict[str, float]:
-    """Outcome values (SI) from the segments of :func:`~thrustgraph.integrate.fly_segments`.
+class Flight:
+    """The integrated solution of one flight, as the outcome functions read it.
 
-    Outcomes that do not apply (no guide, no impact, no vessel) are NaN.
-    ``outputs`` limits the work to the outcomes asked for (the impulse
-    quadrature and the peak searches cost about a tenth of the flight).
+    Built from an assembled :class:`~thrustgraph.assembly.System` and the
+    :class:`~thrustgraph.integrate.Segments` of its integration (with dense
+    output). :meth:`value` computes an outcome once and keeps it, so an
+    outcome may use another (specific impulse uses the total impulse).
     """
-    want = set(OUTPUTS if outputs is None else outputs)
-    nan = math.nan
-    out = {k: nan for k in OUTPUTS}
-    segments = segs.segments
-    if not segments:
-        return {k: out[k] for k in OUTPUTS if k in want}
-    first_sol = segments[0][1]
-    last_ph, last_sol, last_bal = segments[-1]
-    y_first, y_last = first_sol.y[:, 0], last_sol.y[:, -1]
-    t_first, t_last = float(first_sol.t[0]), float(last_sol.t[-1])
-    out["flight_time"] = t_last - t_first
-    out["impact_x"] = float(y_last[0] - y_first[0])
-    out["impact_y"] = float(y_last[1] - y_first[1])
-    out["range"] = math.hypot(out["impact_x"], out["impact_y"])
-    out["apogee"] = max(float(np.max(sol.y[2])) for _, sol, _ in segments) - 0.0
-    ends = {float(sol.t[-1]): sol.y[:, -1] for _, sol, _ in segments}
-    for e in segs.events:
-        if e.name == "guide exit" and e.t in ends:
-            out["guide_exit_speed"] = float(np.linalg.norm(ends[e.t][3:6]))
-        elif e.name == "ground impact":
-            out["impact_speed"] = float(np.linalg.norm(y_last[3:6]))
-    out["burn_time"] = float(sum(sol.t[-1] - sol.t[0] for ph, sol, bal in segments
-                                 if _propulsive(bal.system, ph.modes)))
-    # what left through the control surface, by conservation of mass (the run carries no audit accumulators)
-    bal0 = segments[0][2]
-    bal0.set_phase(segments[0][0].modes, segments[0][0].kin, segments[0][0].descending, segments[0][0].slide)
-    out["launch_mass"] = float(bal0.evaluate(t_first, y_first)["mass"])
-    last_bal.set_phase(last_ph.modes, last_ph.kin, last_ph.descending, last_ph.slide)
-    m_final = float(last_bal.evaluate(t_last, y_last)["mass"])
-    out["propellant_expelled"] = out["launch_mass"] - m_final - segs.dropped_mass
 
-    if "peak_vessel_pressure" in want:
-        best = -math.inf
-        for ph, sol, bal in segments:
-            sysm = bal.system
-            slot = {n: k for k, n in enumerate(sysm.moded)}
-            for n, vf in sysm.volumes:
-                mode = ph.modes[slot[n]] if n in slot else 0
-                for k in range(sol.y.shape[1]):
-                    p = vf.signals(sol.y[:, k].tolist(), mode).get("pressure")
-                    if p is not None and p > best:
-                        best = p
-        if best > -math.inf:
-            out["peak_vessel_pressure"] = float(best)
+    def __init__(self, system: System, segs: Any) -> None:
+        self.system = system
+        self.segments = list(segs.segments)
+        self.events = list(segs.events)
+        self.dropped_mass = float(segs.dropped_mass)
+        self._values: dict[str, float] = {}
 
-    if "max_speed" in want:
-        best, where = -1.0, None
-        for j, (ph, sol, bal) in enumerate(segments):
-            sp = np.linalg.norm(sol.y[3:6], axis=0)
-            k = int(np.argmax(sp))
-            if sp[k] > best:
-                best, where = float(sp[k]), (j, k)
-        j, k = where
-        sol = segments[j][1]
+    # -- what outcome functions read ------------------------------------------
+    def value(self, key: str) -> float:
+        """An outcome's SI value (NaN where it does not apply or did not happen)."""
+        if key not in self._values:
+            spec = OUTCOMES[key]
+            self._values[key] = float(spec.compute(self)) if spec.applies(self.system) else math.nan
+        return self._values[key]
 
-        def speed(t, sol=sol):
-            v = sol.sol(t)[3:6]
-            return float(math.sqrt(v[0] * v[0] + v[1] * v[1] + v[2] * v[2]))
-        n = len(sol.t)
-        if n > 1:
-            best = _refine_max(speed, float(sol.t[max(k - 1, 0)]), float(sol.t[min(k + 1, n - 1)]), best)
-        out["max_speed"] = best
-
-    if "peak_acceleration" in want:
-        best, where = -1.0, None
-        accs = []
-        for j, (ph, sol, bal) in enumerate(segments):
+    def phased(self) -> Iterable[tuple[Any, Any, Any]]:
+        """(phase, solution, balance) of every segment, the balance set to the segment's phase."""
+        for ph, sol, bal in self.segments:
             bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
-            a = np.array([bal.rhs(float(sol.t[k]), sol.y[:, k])[3:6] for k in range(len(sol.t))])
-            if ph.kin == Kinematics.HELD:
-                a[:] = 0.0
-            am = np.linalg.norm(a, axis=1)
-            accs.append(am)
-            k = int(np.argmax(am))
-            if am[k] > best:
-                best, where = float(am[k]), (j, k)
+            yield ph, sol, bal
+
+    @property
+    def t_first(self) -> float:
+        return float(self.segments[0][1].t[0])
+
+    @property
+    def t_last(self) -> float:
+        return float(self.segments[-1][1].t[-1])
+
+    @property
+    def y_first(self) -> np.ndarray:
+        return self.segments[0][1].y[:, 0]
+
+    @property
+    def y_last(self) -> np.ndarray:
+        return self.segments[-1][1].y[:, -1]
+
+    def mass_at(self, which: int) -> float:
+        """Vehicle mass at the first (0) or last (-1) state, kg."""
+        ph, sol, bal = self.segments[which]
+        bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
+        return float(bal.evaluate(float(sol.t[which]), sol.y[:, which])["mass"])
+
+    def event_state(self, name: str) -> np.ndarray | None:
+        """The state at the first event called ``name`` (the end of the segment it closed), or None."""
+        ends = {float(sol.t[-1]): sol.y[:, -1] for _, sol, _ in self.segments}
+        for e in self.events:
+            if e.name == name:
+                return ends.get(e.t, self.y_last if e.t == self.t_last else None)
+        return None
+
+    def happened(self, name: str) -> bool:
+        return any(e.name == name for e in self.events)
+
+    def peak(self, at_steps: Callable[[Any, Any, Any], np.ndarray],
+             dense: Callable[[Any, Any, Any], Callable[[float], float]]) -> float:
+        """Largest value over the flight: the largest at the solver's steps, refined on the dense output between
+        the neighbouring steps (a bounded scalar search).
+
+        ``at_steps(phase, sol, balance)`` gives the values at ``sol.t``; ``dense(phase, sol, balance)`` a
+        function of time inside that segment.
+        """
+        best, where = -math.inf, None
+        for j, (ph, sol, bal) in enumerate(self.phased()):
+            v = np.asarray(at_steps(ph, sol, bal), dtype=float)
+            k = int(np.argmax(v))
+            if v[k] > best:
+                best, where = float(v[k]), (j, k)
+        if where is None:
+            return math.nan
         j, k = where
-        ph, sol, bal = segments[j]
+        ph, sol, bal = self.segments[j]
         n = len(sol.t)
-        if n > 2 and 0 < k < n - 1 or (n > 1 and (k == 0 or k == n - 1)):
+        if n > 1 and getattr(sol, "sol", None) is not None:
             bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
+            best = _refine_max(dense(ph, sol, bal), float(sol.t[max(k - 1, 0)]), float(sol.t[min(k + 1, n - 1)]),
+                               best)
+        return best
 
-            def accel(t, sol=sol, bal=bal):
-                a = bal.rhs(t, sol.sol(t))
-                return float(math.sqrt(a[3] * a[3] + a[4] * a[4] + a[5] * a[5]))
-            best = _refine_max(accel, float(sol.t[max(k - 1, 0)]), float(sol.t[min(k + 1, n - 1)]), best)
-        out["peak_acceleration"] = best
-
-    if "total_impulse" in want:
+    @cached_property
+    def thrust_impulse(self) -> float:
+        """Integral of the thrust magnitude over every powered step: 3-point Gauss-Legendre on the dense output."""
         total = 0.0
-        for ph, sol, bal in segments:
+        for ph, sol, bal in self.phased():
             if not _propulsive(bal.system, ph.modes) and not bal.system.jets:
                 continue
-            bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
+            if getattr(sol, "sol", None) is None:
+                continue
             t = sol.t
             for k in range(len(t) - 1):
                 a, b = float(t[k]), float(t[k + 1])
@@ -251,37 +198,303 @@ def summarise(system: System, segs: Any, outputs: Sequence[str] | None = None) -
                     tv = bal.evaluate(float(nodes[q]), ys[:, q])["thrust_vector"]
                     f += _GAUSS_W[q] * math.sqrt(tv[0] * tv[0] + tv[1] * tv[1] + tv[2] * tv[2])
                 total += half * f
-        out["total_impulse"] = total
-    return {k: out[k] for k in OUTPUTS if k in want}
+        return total
 
 
-def fly_design(parsed: ParsedModel, outputs: Sequence[str] | None = None, *, rtol: float | None = None,
-               atol: float | None = None) -> Outcome:
-    """Fly one parsed model to its outcome values, or say why it was screened out.
+# -- how each outcome is computed -----------------------------------------------------------------------------
 
-    Never raises for a bad design: a model error (a parameter combination a
-    kind refuses), no lift-off, or an integration failure give
-    ``Outcome("screened", reason)``.
+def _norm3(v: Any) -> float:
+    return float(math.sqrt(v[0] * v[0] + v[1] * v[1] + v[2] * v[2]))
+
+
+def _apogee(f: Flight) -> float:
+    return f.peak(lambda ph, sol, bal: sol.y[2],
+                  lambda ph, sol, bal: (lambda t: float(sol.sol(t)[2]))) + 0.0
+
+
+def _max_speed(f: Flight) -> float:
+    return f.peak(lambda ph, sol, bal: np.linalg.norm(sol.y[3:6], axis=0),
+                  lambda ph, sol, bal: (lambda t: _norm3(sol.sol(t)[3:6])))
+
+
+def _accel_steps(ph: Any, sol: Any, bal: Any) -> np.ndarray:
+    if ph.kin == Kinematics.HELD:
+        return np.zeros(len(sol.t))
+    return np.array([_norm3(bal.rhs(float(sol.t[k]), sol.y[:, k])[3:6]) for k in range(len(sol.t))])
+
+
+def _accel_dense(ph: Any, sol: Any, bal: Any) -> Callable[[float], float]:
+    if ph.kin == Kinematics.HELD:
+        return lambda t: 0.0
+    return lambda t: _norm3(bal.rhs(t, sol.sol(t))[3:6])
+
+
+def _peak_acceleration(f: Flight) -> float:
+    return f.peak(_accel_steps, _accel_dense)
+
+
+def _peak_thrust(f: Flight) -> float:
+    return f.peak(lambda ph, sol, bal: [bal.evaluate(float(sol.t[k]), sol.y[:, k])["thrust"]
+                                        for k in range(len(sol.t))],
+                  lambda ph, sol, bal: (lambda t: float(bal.evaluate(t, sol.sol(t))["thrust"])))
+
+
+def _peak_vessel_pressure(f: Flight) -> float:
+    best = -math.inf
+    for ph, sol, bal in f.segments:
+        sysm = bal.system
+        slot = {n: k for k, n in enumerate(sysm.moded)}
+        for n, vf in sysm.volumes:
+            mode = ph.modes[slot[n]] if n in slot else 0
+            for k in range(sol.y.shape[1]):
+                p = vf.signals(sol.y[:, k].tolist(), mode).get("pressure")
+                if p is not None and p > best:
+                    best = p
+    return float(best) if best > -math.inf else math.nan
+
+
+def _azimuth_frame(f: Flight) -> tuple[float, float]:
+    """(downrange, drift) of the end point: along the launch azimuth and across it (to its left)."""
+    dx, dy = f.value("impact_x"), f.value("impact_y")
+    az = f.system.launch.azimuth
+    return dx * math.cos(az) + dy * math.sin(az), -dx * math.sin(az) + dy * math.cos(az)
+
+
+def _guide_exit_speed(f: Flight) -> float:
+    y = f.event_state("guide exit")
+    return _norm3(y[3:6]) if y is not None else math.nan
+
+
+def _impact_speed(f: Flight) -> float:
+    return _norm3(f.y_last[3:6]) if f.happened("ground impact") else math.nan
+
+
+def _burn_time(f: Flight) -> float:
+    return float(sum(sol.t[-1] - sol.t[0] for ph, sol, bal in f.segments if _propulsive(bal.system, ph.modes)))
+
+
+def _specific_impulse(f: Flight) -> float:
+    m = f.value("propellant_expelled")
+    return f.value("total_impulse") / m / G0 if m > 1e-12 else math.nan
+
+
+def _differs_from_range(values: Mapping[str, float]) -> bool:
+    """Downrange and drift add nothing when the flight stayed in the launch plane (drift within 1e-9 of range)."""
+    drift, rng = values.get("drift", math.nan), values.get("range", math.nan)
+    return not (math.isfinite(drift) and abs(drift) <= 1e-9 * max(abs(rng), 1.0))
+
+
+def _never(_: Any) -> bool:
+    return False
+
+
+def _moves(system: System) -> bool:
+    return system.launch.mount != "held"
+
+
+def _flies(system: System) -> bool:
+    """Guide and free launches under gravity: they climb, peak and come down."""
+    return system.launch.mount in ("guide", "free") and system.gravity(float(system.y0[2])) > 0.0
+
+
+def _on_guide(system: System) -> bool:
+    return system.launch.mount == "guide"
+
+
+def _has_vessels(system: System) -> bool:
+    return bool(system.volumes)
+
+
+def _staged(system: System) -> bool:
+    return bool(system.parsed.stages)
+
+
+_O = OutcomeSpec
+
+#: Every core outcome, in the order people read them.
+OUTCOMES: dict[str, OutcomeSpec] = {o.key: o for o in (
+    _O("flight_time", "time", "s", "s", "flight time",
+       "time from launch to the end of the flight (ground impact, or the end time)",
+       lambda f: f.t_last - f.t_first),
+    _O("burn_time", "time", "s", "s", "burn time",
+       "time spent in powered phases (a mode a component declares propulsive)", _burn_time),
+    _O("launch_mass", "mass", "kg", "kg", "launch mass", "vehicle mass at launch, from the initial state",
+       lambda f: f.mass_at(0)),
+    _O("final_mass", "mass", "kg", "kg", "final mass", "vehicle mass at the end of the flight, from the final state",
+       lambda f: f.mass_at(-1), default=False),
+    _O("propellant_expelled", "mass", "kg", "kg", "propellant expelled",
+       "mass that left through the control surface: launch mass less final mass and the stages dropped",
+       lambda f: f.value("launch_mass") - f.value("final_mass") - f.dropped_mass),
+    _O("dropped_mass", "mass", "kg", "kg", "mass dropped at separations", "mass of the stages dropped",
+       lambda f: f.dropped_mass, applies=_staged, default=False),
+    _O("peak_thrust", "force", "N", "N", "peak thrust",
+       "largest thrust along the body axis: at the steps, refined inside the step where it peaks",
+       _peak_thrust, default=False),
+    _O("total_impulse", "impulse", "N*s", "N*s", "total impulse",
+       "time integral of the thrust magnitude: 3-point Gauss-Legendre quadrature of the dense solution on every "
+       "powered step", lambda f: f.thrust_impulse),
+    _O("specific_impulse", "time", "s", "s", "specific impulse",
+       "total impulse per unit weight (g0) of propellant expelled; none when nothing was expelled (a hose-fed rig)",
+       _specific_impulse, default=False),
+    _O("peak_acceleration", "acceleration", "m/s^2", "m/s^2", "peak acceleration",
+       "largest acceleration magnitude: at the steps, refined inside the step where it peaks (0 on a stand)",
+       _peak_acceleration, also=("g0",)),
+    _O("max_speed", "speed", "m/s", "m/s", "maximum speed",
+       "largest speed: at the steps, refined inside the step where it peaks", _max_speed, applies=_moves),
+    _O("guide_exit_speed", "speed", "m/s", "m/s", "guide exit speed", "speed at the end of the launch guide",
+       _guide_exit_speed, applies=_on_guide),
+    _O("apogee", "length", "m", "m", "apogee",
+       "highest altitude above the launch point: at the steps (the apogee event is one), refined inside the "
+       "step where it peaks", _apogee, applies=_flies),
+    _O("range", "length", "m", "m", "range", "horizontal distance from the launch point at the end of the flight",
+       lambda f: math.hypot(f.value("impact_x"), f.value("impact_y")), applies=_moves),
+    _O("downrange", "length", "m", "m", "downrange distance",
+       "horizontal distance along the launch azimuth at the end of the flight (shown when it differs from the "
+       "range)", lambda f: _azimuth_frame(f)[0], applies=_moves, show=_differs_from_range, default=False),
+    _O("drift", "length", "m", "m", "drift across the azimuth",
+       "horizontal distance across the launch azimuth (to its left) at the end of the flight, e.g. under a "
+       "cross wind (shown when not zero)", lambda f: _azimuth_frame(f)[1], applies=_moves, show=_differs_from_range,
+       default=False),
+    _O("impact_x", "length", "m", "m", "end point x", "x position at the end of the flight, from the launch point",
+       lambda f: float(f.y_last[0] - f.y_first[0]), applies=_moves, show=_never),
+    _O("impact_y", "length", "m", "m", "end point y", "y position at the end of the flight, from the launch point",
+       lambda f: float(f.y_last[1] - f.y_first[1]), applies=_moves, show=_never),
+    _O("impact_speed", "speed", "m/s", "m/s", "impact speed", "speed at ground impact", _impact_speed,
+       applies=_flies),
+    _O("peak_vessel_pressure", "pressure", "Pa", "bar", "peak vessel pressure (absolute)",
+       "highest absolute pressure in any vessel, at the steps; a prediction, never a rating",
+       _peak_vessel_pressure, applies=_has_vessels),
+)}
+
+#: The core outcomes (the name studies have always used for them).
+OUTPUTS = OUTCOMES
+
+
+def outcome(key: str) -> OutcomeSpec:
+    """The spec of a core outcome; a clear error with the closest key when there is none."""
+    return OUTCOMES[check_outputs([key])[0]]
+
+
+def output_names() -> list[str]:
+    """Every core outcome, in table order."""
+    return list(OUTCOMES)
+
+
+def default_outputs() -> tuple[str, ...]:
+    """The outcomes a study reports when none are named."""
+    return tuple(k for k, o in OUTCOMES.items() if o.default)
+
+
+def check_outputs(names: Sequence[str], where: str = "outputs") -> list[str]:
+    """Refuse outcome names that do not exist (with the closest name).
+
+    >>> check_outputs(["apogee"])
+    ['apogee']
+    >>> check_outputs(["apogey"])
+    Traceback (most recent call last):
+    ...
+    thrustgraph.errors.ModelError: outputs: there is no outcome 'apogey'. Fix: did you mean 'apogee'?
     """
-    from .integrate import fly_segments
+    out = []
+    for n in names:
+        if n not in OUTCOMES:
+            c = difflib.get_close_matches(str(n), list(OUTCOMES), n=1)
+            hint = f"did you mean {c[0]!r}?" if c else f"outcomes: {', '.join(OUTCOMES)}"
+            raise ModelError(where, f"there is no outcome {n!r}", hint)
+        if n not in out:
+            out.append(n)
+    return out
 
-    try:
-        system = assemble(parsed)
-        segs = fly_segments(system, rtol=rtol, atol=atol, audit=False)
-    except ModelError as exc:
-        return Outcome(STATUS_SCREENED, f"model error: {exc}")
-    except IntegrationError as exc:
-        return Outcome(STATUS_SCREENED, f"integration failed: {exc}")
-    except ThrustgraphError as exc:
-        return Outcome(STATUS_SCREENED, f"error: {exc}")
-    except (ArithmeticError, ValueError) as exc:
-        return Outcome(STATUS_SCREENED, f"integration failed: {type(exc).__name__}: {exc}")
-    if segs.status == 2:
-        return Outcome(STATUS_SCREENED, "no lift-off: the thrust never exceeded the weight along the guide")
-    try:
-        values = summarise(system, segs, outputs)
-    except (ArithmeticError, ValueError, ThrustgraphError) as exc:
-        return Outcome(STATUS_SCREENED, f"summary failed: {exc}")
-    if segs.message not in ("ground impact", "stopped at apogee"):
-        return Outcome(STATUS_OK, segs.message, values)
-    return Outcome(STATUS_OK, "", values)
+
+def summarise(system: System, segs: Any, outputs: Sequence[str] | None = None) -> dict[str, float]:
+    """Outcome values (SI) from the segments of :func:`~thrustgraph.integrate.fly_segments`, in table order.
+
+    Outcomes that do not apply or did not happen (no guide, no impact, no
+    vessel) are NaN. ``outputs`` limits the work to the outcomes asked for
+    (the impulse quadrature and the peak searches cost about a tenth of the
+    flight).
+    """
+    want = set(OUTCOMES if outputs is None else check_outputs(outputs))
+    if not segs.segments:
+        return {k: math.nan for k in OUTCOMES if k in want}
+    flight = Flight(system, segs)
+    return {k: flight.value(k) for k in OUTCOMES if k in want}
+
+
+def run_summary(system: System, segs: Any) -> dict[str, float]:
+    """The summary of a single run: every core outcome that applies to the vehicle and happened (finite)."""
+    flight = Flight(system, segs)
+    out = {}
+    for k, spec in OUTCOMES.items():
+        if spec.applies(system):
+            v = flight.value(k)
+            if math.isfinite(v):
+                out[k] = v
+    return out
+
+
+# -- outcomes of component kinds ------------------------------------------------------------------------------
+
+def check_kind_outcomes(kind: type, plugin: str, seen: dict[str, tuple[OutcomeSpec, str, str]]) -> None:
+    """Check the outcomes a component kind declares; ``seen`` holds (spec, kind, plugin) of every key so far.
+
+    Raises :class:`~thrustgraph.errors.PluginError` naming the plugin and what to change: a key declared twice
+    by one kind, a key two kinds define differently, a key of the core, a label used twice, a unit pint
+    cannot read, or the old ``summary_units`` table.
+    """
+    name = getattr(kind, "kind", kind.__name__)
+    if "summary_units" in vars(kind):
+        raise PluginError(f"plugin {plugin!r}: kind {name!r} sets summary_units, which thrustgraph no longer reads. "
+                          "Fix: declare outcomes = (OutcomeSpec(key, quantity, unit, display, label, doc), ...) "
+                          "instead (thrustgraph.outcomespec)")
+    keys: set[str] = set()
+    labels: set[str] = set()
+    for spec in getattr(kind, "outcomes", ()):
+        if not isinstance(spec, OutcomeSpec):
+            raise PluginError(f"plugin {plugin!r}: kind {name!r} declares outcome {spec!r}, which is not an "
+                              "OutcomeSpec. Fix: declare outcomes = (OutcomeSpec(...), ...)")
+        if not KEY_PATTERN.match(spec.key):
+            raise PluginError(f"plugin {plugin!r}: kind {name!r} declares outcome key {spec.key!r}. Fix: use lower "
+                              "case words joined by underscores (the summary names it COMPONENT.KEY)")
+        if spec.key in keys:
+            raise PluginError(f"plugin {plugin!r}: kind {name!r} declares outcome {spec.key!r} twice. Fix: declare "
+                              "each outcome once in its outcomes tuple")
+        if spec.label in labels:
+            raise PluginError(f"plugin {plugin!r}: kind {name!r} gives two outcomes the label {spec.label!r}. Fix: "
+                              "give each outcome its own label")
+        if spec.key in OUTCOMES:
+            raise PluginError(f"plugin {plugin!r}: kind {name!r} declares outcome {spec.key!r}, a core outcome "
+                              f"({OUTCOMES[spec.key].label}). Fix: give the kind's outcome its own key")
+        for u in (spec.unit, spec.display, *spec.also):
+            try:
+                Q_(1.0, u).to(spec.unit) if u else None
+            except Exception as exc:  # noqa: BLE001 - pint raises several types
+                raise PluginError(f"plugin {plugin!r}: kind {name!r} outcome {spec.key!r}: unit {u!r} is not a "
+                                  f"unit of {spec.unit or 'a plain number'!r} ({type(exc).__name__}). Fix: write a "
+                                  "pint unit of the outcome's dimension") from None
+        if spec.key in seen and seen[spec.key][0] != spec:
+            other, okind, oplugin = seen[spec.key]
+            raise PluginError(f"outcome {spec.key!r} is declared by kind {okind!r} (plugin {oplugin!r}) as "
+                              f"{other.label!r} [{other.unit}] and by kind {name!r} (plugin {plugin!r}) as "
+                              f"{spec.label!r} [{spec.unit}]. Fix: rename one of them, or have both kinds declare "
+                              "the same OutcomeSpec object")
+        keys.add(spec.key)
+        labels.add(spec.label)
+        seen.setdefault(spec.key, (spec, name, plugin))
+
+
+def kind_outcomes(parsed_kinds: Mapping[str, type]) -> dict[str, OutcomeSpec]:
+    """The outcomes the components of a model add: ``COMPONENT.KEY`` -> spec labelled ``COMPONENT label``.
+
+    >>> class Chute:
+    ...     outcomes = (OutcomeSpec("deployment_speed", "speed", "m/s", "m/s", "deployment speed", "speed at deployment"),)
+    >>> spec = kind_outcomes({"drogue": Chute})["drogue.deployment_speed"]
+    >>> spec.label, spec.header
+    ('drogue deployment speed', 'drogue.deployment_speed [m/s]')
+    """
+    out = {}
+    for comp, cls in parsed_kinds.items():
+        for spec in getattr(cls, "outcomes", ()):
+            out[f"{comp}.{spec.key}"] = replace(spec, key=f"{comp}.{spec.key}", label=f"{comp} {spec.label}",
+                                                default=False)
+    return out

@@ -40,7 +40,6 @@ True
 from __future__ import annotations
 
 import io
-import math
 import re
 from pathlib import Path
 from typing import Any, Iterable
@@ -53,7 +52,7 @@ from matplotlib.patches import FancyBboxPatch, Patch
 
 from .result import FlightResult
 
-__all__ = ["PLOT_NAMES", "FORMATS", "figure", "figures", "render", "save_plots", "graph_figure",
+__all__ = ["PLOT_NAMES", "FORMATS", "figure", "figures", "render", "save_plots", "graph_figure", "summary_title",
            "powered_window"]
 
 PLOT_NAMES = ("thrust", "mass", "pressure", "motion", "trajectory", "ledger", "ledger-world")
@@ -131,6 +130,17 @@ def _title(fig, result: FlightResult, what: str) -> None:
     fig.suptitle(f"{what}: {name}" if name else what, fontsize=11)
 
 
+def summary_title(r: FlightResult, keys: Iterable[str]) -> str:
+    """Summary entries as a figure title, labels and units from the outcome registry.
+
+    >>> from thrustgraph import fly
+    >>> summary_title(fly(), ("apogee", "peak_acceleration"))
+    'apogee 54.32 m, peak acceleration 1177 m/s^2 (120 g0)'
+    """
+    return ", ".join(f"{r.outcome_specs[k].label} {r.outcome_specs[k].text(r.summary[k], 4)}"
+                     for k in keys if k in r.summary and k in r.outcome_specs)
+
+
 # ---------------------------------------------------------------------------
 # the figures
 # ---------------------------------------------------------------------------
@@ -146,9 +156,9 @@ def _thrust(r: FlightResult) -> Figure:
             a.plot(r.t, r.signals[f"{n}.thrust"], lw=1.0, color=_TERM_COLOURS[(k + 1) % 10], label=f"{n}")
     a.set_ylabel("thrust [N]")
     a.legend(loc="upper right")
-    peak = r.summary.get("peak_thrust")
-    if peak is not None:
-        a.set_title(f"peak thrust {peak:.4g} N, total impulse {r.summary.get('total_impulse', math.nan):.4g} N s")
+    title = summary_title(r, ("peak_thrust", "total_impulse"))
+    if title:
+        a.set_title(title)
     flows = [n for n in sources if f"{n}.mass_flow" in r.signals]
     peak_flow = max((float(np.max(r.signals[f"{n}.mass_flow"])) for n in flows), default=0.0)
     unit, f = ("kg/s", 1.0) if peak_flow >= 1.0 else ("g/s", 1e3)
@@ -219,9 +229,7 @@ def _motion(r: FlightResult) -> Figure:
         a.set_ylabel(label)
         _phases(a, r)
         _limit(a, r, None)
-    ax[0, 0].set_title(f"apogee {r.summary.get('apogee', float(np.max(s['altitude']))):.4g} m, max speed "
-                       f"{r.summary.get('max_speed', float(np.max(s['speed']))):.4g} m/s, peak acceleration "
-                       f"{r.summary.get('peak_acceleration', 0.0) / 9.80665:.3g} g")
+    ax[0, 0].set_title(summary_title(r, ("apogee", "max_speed", "peak_acceleration")))
     ax[2, 0].set_xlabel("time [s]")
     _phases(ax[2, 0], r, label=True)
     _title(fig, r, "Altitude, speed, acceleration")

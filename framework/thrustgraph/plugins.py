@@ -21,6 +21,7 @@ import pluggy
 from . import hookspecs
 from .component import ROLES, ComponentKind, EnvironmentKind
 from .errors import PluginError
+from .outcomes import check_kind_outcomes
 
 __all__ = ["get_plugin_manager", "component_kinds", "environment_kinds", "plugin_versions"]
 
@@ -54,6 +55,7 @@ def _merge(pm: pluggy.PluginManager, hook_name: str, base: type) -> dict[str, ty
     hook = getattr(pm.hook, hook_name)
     table: dict[str, type] = {}
     owner: dict[str, str] = {}
+    outcomes: dict = {}
     for impl in hook.get_hookimpls():
         plugin_name = pm.get_name(impl.plugin) or repr(impl.plugin)
         result = impl.function() if not impl.argnames else None
@@ -69,6 +71,8 @@ def _merge(pm: pluggy.PluginManager, hook_name: str, base: type) -> dict[str, ty
             if base is ComponentKind and cls.role not in ROLES:
                 raise PluginError(f"plugin {plugin_name!r}: kind {cls.kind!r} has role {cls.role!r}; "
                                   f"expected one of {ROLES}")
+            if base is ComponentKind:
+                check_kind_outcomes(cls, plugin_name, outcomes)
             table[cls.kind] = cls
             owner[cls.kind] = plugin_name
     return table

@@ -32,22 +32,9 @@ import numpy as np
 
 from .model import Model
 from .modelfile import atomic_write, check_model, dumps_model
-from .result import SUMMARY_UNITS, FlightResult
-from .units import Q_
+from .result import FlightResult
 
-__all__ = ["render_report", "write_report", "ledger_audit", "SUMMARY_DISPLAY"]
-
-#: How each summary value is shown: label and display unit.
-SUMMARY_DISPLAY = {
-    "flight_time": ("flight time", "s"), "burn_time": ("powered time", "s"),
-    "launch_mass": ("launch mass", "g"), "final_mass": ("final mass", "g"),
-    "propellant_expelled": ("mass expelled", "g"), "peak_thrust": ("peak thrust", "N"),
-    "total_impulse": ("total impulse", "N*s"), "specific_impulse": ("specific impulse", "s"),
-    "peak_acceleration": ("peak acceleration", "m/s^2"), "max_speed": ("maximum speed", "m/s"),
-    "guide_exit_speed": ("speed leaving the guide", "m/s"), "apogee": ("apogee", "m"),
-    "range": ("horizontal distance at the end", "m"), "max_distance": ("greatest distance", "m"),
-    "impact_speed": ("impact speed", "m/s"), "peak_vessel_pressure": ("peak vessel pressure (absolute)", "bar"),
-}
+__all__ = ["render_report", "write_report", "ledger_audit"]
 
 _CSS = """
 body { font-family: system-ui, -apple-system, "Segoe UI", sans-serif; margin: 0 auto; max-width: 1100px;
@@ -214,10 +201,14 @@ def render_report(result: FlightResult, model: Model, *, parsed: Any = None, plo
     # Summary.
     rows = []
     for key, value in result.summary.items():
-        label, unit = SUMMARY_DISPLAY.get(key, (key.replace("_", " "), SUMMARY_UNITS.get(key, "")))
-        si = SUMMARY_UNITS.get(key, "")
-        shown = Q_(value, si).to(unit).magnitude if si and unit else value
-        rows.append((label, _num(shown, 5), _unit_text(unit), _num(value, 9), _unit_text(si)))
+        spec = result.outcome_specs.get(key)
+        if spec is None:
+            unit = result.unit(key)
+            rows.append((key, _num(value, 5), _unit_text(unit), _num(value, 9), _unit_text(unit)))
+        elif spec.show(result.summary):
+            unit = _unit_text(spec.display) + "".join(f" ({_num(spec.shown(value, u), 4)} {_unit_text(u)})"
+                                                      for u in spec.also)
+            rows.append((spec.label, _num(spec.shown(value), 5), unit, _num(value, 9), _unit_text(spec.unit)))
     parts.append('<section id="summary"><h2>Summary</h2>')
     parts.append(_table(("quantity", "value", "unit", "SI value", "SI unit"), rows, numeric=(1, 3)))
     parts.append("</section>")

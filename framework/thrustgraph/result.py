@@ -107,11 +107,13 @@ class FlightResult:
     audit : closure residuals
     success, status, message : how the run ended (status 0 ended normally)
     nfev : right-hand-side evaluations
-    summary : headline numbers in SI (see :meth:`summary_quantities`)
+    summary : outcome key -> SI value: every outcome of the registry (:mod:`thrustgraph.outcomes`) that applies
+        to the vehicle and happened, then the outcomes component kinds add, as ``COMPONENT.KEY``
     cautions : safety cautions of the model
     provenance : tool and plugin versions, model hash
     dropped : stage name -> the flight of a stage dropped at a separation, flown on as its own vehicle
     units : SI units of the signals and summary entries that component kinds declare
+    outcome_specs : summary key -> its :class:`~thrustgraph.outcomespec.OutcomeSpec` (label, units, meaning)
     """
 
     t: np.ndarray
@@ -131,6 +133,7 @@ class FlightResult:
     provenance: dict[str, Any] = field(default_factory=dict)
     dropped: dict[str, "FlightResult"] = field(default_factory=dict)
     units: dict[str, str] = field(default_factory=dict)
+    outcome_specs: dict[str, Any] = field(default_factory=dict)
 
     # -- access ------------------------------------------------------------
     @staticmethod
@@ -143,7 +146,8 @@ class FlightResult:
 
     def unit(self, name: str) -> str:
         """SI unit of a signal or summary entry of this result (declared by its kind, else by its name)."""
-        return self.units.get(name) or SUMMARY_UNITS.get(name) or self.unit_of(name)
+        spec = self.outcome_specs.get(name)
+        return self.units.get(name) or (spec.unit if spec is not None else "") or self.unit_of(name)
 
     def signal(self, name: str) -> np.ndarray:
         """A signal as an SI array; raises KeyError listing the valid names."""
@@ -201,10 +205,12 @@ class FlightResult:
         return buf.getvalue()
 
     def to_json(self) -> str:
-        """JSON text: summary, phases, events, audit and provenance (no time series)."""
+        """JSON text: summary, phases, events, audit and provenance (no time series).
+
+        Each summary entry holds its SI ``value``, its SI ``unit`` and its ``label``, from the outcome registry.
+        """
         doc = {
-            "summary": {k: {"value": v, "unit": self.unit(k) if k in self.units or k in SUMMARY_UNITS else ""}
-                        for k, v in self.summary.items()},
+            "summary": {k: self._summary_entry(k, v) for k, v in self.summary.items()},
             "phases": [{"name": p.name, "start_s": p.t_start, "end_s": p.t_end} for p in self.phases],
             "events": [{"t_s": e.t, "name": e.name, "component": e.component, "detail": e.detail} for e in self.events],
             "audit": {"mass_residual_kg": self.audit.mass_residual, "mass_relative": self.audit.mass_relative,
@@ -214,6 +220,12 @@ class FlightResult:
             "provenance": self.provenance,
         }
         return json.dumps(doc, indent=2, allow_nan=True)
+
+    def _summary_entry(self, key: str, value: float) -> dict[str, Any]:
+        spec = self.outcome_specs.get(key)
+        if spec is None:
+            return {"value": value, "unit": self.units.get(key, "")}
+        return {"value": value, "unit": spec.unit, "label": spec.label}
 
     # -- export to files (added for the command line and the Python API) -----
     def provenance_lines(self) -> list[str]:
@@ -301,11 +313,3 @@ class FlightResult:
         k = "xyz".index(direction)
         return {key: v[:, k].copy() for key, v in self.ledger.items()}
 
-
-SUMMARY_UNITS = {
-    "flight_time": "s", "peak_thrust": "N", "peak_acceleration": "m/s^2", "max_speed": "m/s", "apogee": "m",
-    "range": "m", "total_impulse": "N*s", "impact_speed": "m/s", "guide_exit_speed": "m/s", "burn_time": "s",
-    "launch_mass": "kg", "final_mass": "kg", "propellant_expelled": "kg", "specific_impulse": "s",
-    "peak_vessel_pressure": "Pa", "max_distance": "m", "dropped_mass": "kg",
-    "downrange": "m", "drift": "m",
-}

@@ -48,15 +48,15 @@ from .designs import DesignParameter, within_bounds
 from .engines import FLIGHTS, ENGINES, FlightTask, chunks, default_chunk_size, make_engine
 from .errors import ModelError
 from .model import Model, ParsedModel, parse_model
-from .outcomes import OUTPUTS, STATUS_NOT_RUN, STATUS_OK, STATUS_SCREENED, check_outputs, output_names
+from .outcomes import OUTCOMES, STATUS_NOT_RUN, STATUS_OK, STATUS_SCREENED, check_outputs, default_outputs
 from .studyprogress import StudyProgress
 from .studyspec import Vary
 
 __all__ = ["DesignTable", "evaluate", "sweep", "sensitivities", "Sensitivity", "choose_engine", "run_options",
            "DEFAULT_OUTPUTS", "as_vary"]
 
-#: Outcomes a study reports when none are named.
-DEFAULT_OUTPUTS = tuple(output_names())
+#: Outcomes a study reports when none are named (the registry's defaults; any other outcome can be named).
+DEFAULT_OUTPUTS = default_outputs()
 
 #: Keyword options every study passes on to :func:`evaluate`.
 run_options = ("engine", "flights", "workers", "scheduler", "timeout", "chunk_size", "quiet", "stream", "rtol",
@@ -140,7 +140,7 @@ class DesignTable:
         if self.interrupted:
             buf.write(f"# interrupted: {len(self) - c['not run']} of {len(self)} designs were flown before the "
                       "study was stopped; the rest are marked 'not run'\n")
-        heads = ["design", "status"] + [p.header for p in self.params] + [OUTPUTS[o].header for o in self.outputs]
+        heads = ["design", "status"] + [p.header for p in self.params] + [OUTCOMES[o].header for o in self.outputs]
         buf.write(",".join(heads + ["note"]) + "\n")
         shown = [np.atleast_1d(p.shown(self.x[:, j])) for j, p in enumerate(self.params)]
         for i in range(len(self)):
@@ -159,9 +159,11 @@ class DesignTable:
         atomic_write(path, self.to_csv())
 
 
-def choose_engine(n: int, parsed: ParsedModel, engine: str = "auto", flights: str = "auto") -> tuple[str, str]:
-    """Resolve ``auto``: vectorised ensembles from a few hundred designs of a family they support, a process pool
-    for mid-size studies on a machine with more than one core, this process otherwise."""
+def choose_engine(n: int, parsed: ParsedModel, engine: str = "auto", flights: str = "auto",
+                  outputs: Sequence[str] | None = None) -> tuple[str, str]:
+    """Resolve ``auto``: vectorised ensembles from a few hundred designs of a family they support (and outcomes
+    they compute), a process pool for mid-size studies on a machine with more than one core, this process
+    otherwise."""
     if flights not in FLIGHTS + ("auto",):
         raise ModelError("--flights", f"unknown way to fly {flights!r}", f"choose one of {', '.join(FLIGHTS)}, auto")
     if engine not in ENGINES + ("auto",) and not hasattr(engine, "run"):
@@ -169,9 +171,9 @@ def choose_engine(n: int, parsed: ParsedModel, engine: str = "auto", flights: st
     if flights == "auto":
         flights = "single"
         if n >= 200:
-            from .ensemble import unsupported
+            from .ensemble import COMPUTED, unsupported
 
-            if unsupported(parsed) is None:
+            if unsupported(parsed) is None and all(o in COMPUTED for o in (outputs or DEFAULT_OUTPUTS)):
                 flights = "ensemble"
     if engine == "auto":
         cores = os.cpu_count() or 1
@@ -207,16 +209,20 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     x = np.asarray(x, dtype=float).reshape(-1, len(params))
     n = len(x)
     if isinstance(engine, str):
-        eng_name, flights = choose_engine(n, parsed, engine, flights)
+        eng_name, flights = choose_engine(n, parsed, engine, flights, outputs)
     else:
-        eng_name, flights = engine.name, choose_engine(n, parsed, "serial", flights)[1]
+        eng_name, flights = engine.name, choose_engine(n, parsed, "serial", flights, outputs)[1]
     if flights == "ensemble":
-        from .ensemble import unsupported
+        from .ensemble import COMPUTED, unsupported
 
         why = unsupported(parsed)
         if why:
             raise ModelError("--flights ensemble", f"the vectorised ensemble cannot fly this model: {why}",
                              "use --flights single")
+        missing = [o for o in outputs if o not in COMPUTED]
+        if missing:
+            raise ModelError("--flights ensemble", f"the vectorised ensemble does not compute {', '.join(missing)}",
+                             "use --flights single, or leave them out of the outputs")
     own = isinstance(engine, str)
     eng = make_engine(eng_name, workers=workers, scheduler=scheduler, timeout=timeout) if own else engine
     task = FlightTask(model, tuple(p.path for p in params), tuple(p.unit for p in params), outputs, flights,
@@ -377,7 +383,7 @@ class Sensitivity:
                   "parameter unit,elasticity [1],step,scheme\n")
         for k, o in enumerate(self.outputs):
             for j, p in enumerate(self.params):
-                buf.write(",".join([o, p.path, _fmt(self.nominal[k]), OUTPUTS[o].unit or "1",
+                buf.write(",".join([o, p.path, _fmt(self.nominal[k]), OUTCOMES[o].unit or "1",
                                     _fmt(float(p.shown(p.nominal))), p.unit or "1",
                                     _fmt(self.derivative[k, j] * _unit_size(p)), _fmt(self.elasticity[k, j]),
                                     _fmt(float(p.shown(p.nominal + self.steps[j])) - float(p.shown(p.nominal))),

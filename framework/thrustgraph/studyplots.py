@@ -37,7 +37,7 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from .outcomes import OUTPUTS, STATUS_OK
+from .outcomes import OUTCOMES, STATUS_OK
 from .plots import render
 
 __all__ = ["sweep_figure", "footprint_figure", "sensitivity_figure", "optimisation_figure",
@@ -54,8 +54,11 @@ def _new(rows: int = 1, cols: int = 1, size: tuple[float, float] = (7.5, 4.8)):
 
 
 def _label(name: str) -> str:
-    o = OUTPUTS.get(name)
-    return f"{name.replace('_', ' ')} [{o.unit}]" if o and o.unit else name.replace("_", " ")
+    """An outcome's axis label: its registry label and the SI unit the study holds its values in."""
+    o = OUTCOMES.get(name)
+    if o is None:
+        return name.replace("_", " ")
+    return f"{o.label} [{o.unit}]" if o.unit else o.label
 
 
 def _plabel(p) -> str:
@@ -160,7 +163,7 @@ def sensitivity_figure(sens: Any, outputs: Sequence[str] | None = None) -> Figur
         a.set_yticks(np.arange(len(e)), names, fontsize=8)
         a.invert_yaxis()                    # the first parameter on top
         a.axvline(0.0, color="k", lw=0.8)
-        a.set_title(f"{o.replace('_', ' ')} = {sens.nominal[sens.outputs.index(o)]:.4g} {OUTPUTS[o].unit}", fontsize=9)
+        a.set_title(f"{OUTCOMES[o].label} = {OUTCOMES[o].text(sens.nominal[sens.outputs.index(o)], 4)}", fontsize=9)
         a.grid(True, axis="x", alpha=0.35)
     ax[-1, 0].set_xlabel("% change of the outcome per 1 % change of the parameter")
     fig.suptitle("Local sensitivities at the model's values")
@@ -178,7 +181,7 @@ def optimisation_figure(opt: Any) -> Figure:
     a.plot(n[t.ok], y[t.ok], ".", color="#999999", label="flown")
     a.plot(n[feas], y[feas], ".", color=_MAIN, label="within the limits")
     if math.isfinite(opt.value):
-        a.axhline(opt.value, color=_BAD, lw=1.0, ls="--", label=f"best {opt.value:.5g} {OUTPUTS[opt.objective].unit}")
+        a.axhline(opt.value, color=_BAD, lw=1.0, ls="--", label=f"best {OUTCOMES[opt.objective].text(opt.value)}")
     a.set_xlabel("design flown (in order)")
     a.set_ylabel(_label(opt.objective))
     a.grid(True, alpha=0.35)

@@ -46,7 +46,7 @@ import numpy as np
 from .designs import DesignParameter, bounds_text, resolve
 from .errors import ModelError
 from .model import ParsedModel
-from .outcomes import OUTPUTS, check_outputs
+from .outcomes import check_outputs, outcome
 from .units import Q_, to_si
 
 __all__ = ["Vary", "Spread", "Limit", "StudyDefinition", "KINDS", "DISTRIBUTIONS", "read_study", "display_unit",
@@ -317,8 +317,7 @@ class Limit:
     def si(self, where: str = "--limit") -> float:
         """The limit in the outcome's SI unit (refuses an unknown outcome or a value in the wrong units)."""
         check_outputs([self.output], where=f"{where} {self.output}")
-        unit = OUTPUTS[self.output].unit
-        return float(to_si(self.value, unit, where=f"{where} {self.output}"))
+        return outcome(self.output).to_si(self.value, where=f"{where} {self.output}")
 
     def margin(self, value: float, where: str = "--limit") -> float:
         """How far inside the limit a value is (>= 0 satisfied), in SI."""

@@ -89,6 +89,8 @@ from thrustgraph.component import BodyFns, ComponentKind, EventSpec, Mode, State
 from thrustgraph.errors import ModelError
 from thrustgraph.parameters import Choice, Number, Quantity
 
+from .summary import OUTCOMES, recovery_summary
+
 __all__ = ["RecoveryDevice", "DEPLOY_OPTIONS", "APOGEE_SPEED", "RECOVERY_CAUTION", "RANGE_CAUTION", "MECHANISM_CAUTION"]
 
 DEPLOY_OPTIONS = ("apogee", "delay-after-apogee", "altitude", "on-trigger")
@@ -125,9 +127,7 @@ class RecoveryDevice(ComponentKind):
     kind = "recovery-device"
     role = "body"
     signal_units = {"drag_area": "m^2", "drag_area_ratio": "", "deployed": "", "delay_timer": "s"}
-    summary_units = {"deployed": "", "deployment_time": "s", "deployment_altitude": "m", "deployment_speed": "m/s",
-                     "deployment_airspeed": "m/s", "peak_opening_load": "N", "peak_opening_load_time": "s",
-                     "fully_open_time": "s"}
+    outcomes = OUTCOMES
     summary = ("parachute or streamer: own mass and drag area, deploys at apogee, after a delay or at an altitude, "
                "opens over an opening time")
     parameters = (
@@ -160,8 +160,6 @@ class RecoveryDevice(ComponentKind):
     @classmethod
     def summarize(cls, name, p, result):
         """Deployment time, altitude, speed and airspeed, peak opening load (see :func:`recovery_summary`)."""
-        from .summary import recovery_summary
-
         return recovery_summary(result, [name]).get(name, {})
 
     @classmethod

@@ -53,15 +53,28 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["recovery_summary", "SUMMARY_UNITS", "DEPLOY_EVENTS"]
+from thrustgraph.outcomespec import OutcomeSpec
+
+__all__ = ["recovery_summary", "OUTCOMES", "DEPLOY_EVENTS"]
 
 #: Event names a recovery device logs when it deploys by itself (a trigger logs its own name).
 DEPLOY_EVENTS = ("deploy at apogee", "deploy after delay", "deploy at altitude")
 
-#: SI unit of each entry of a device's summary.
-SUMMARY_UNITS = {"deployment_time": "s", "deployment_altitude": "m", "deployment_speed": "m/s",
-                 "deployment_airspeed": "m/s", "peak_opening_load": "N", "peak_opening_load_time": "s",
-                 "fully_open_time": "s"}
+#: Each entry of a device's summary, defined once: they join the outcome registry as ``NAME.KEY``.
+OUTCOMES = (
+    OutcomeSpec("deployed", "flag", "", "", "deployed", "1 when the device deployed during the run, else 0"),
+    OutcomeSpec("deployment_time", "time", "s", "s", "deployment time", "time of deployment"),
+    OutcomeSpec("deployment_altitude", "length", "m", "m", "deployment altitude",
+                "altitude above the launch point at deployment"),
+    OutcomeSpec("deployment_speed", "speed", "m/s", "m/s", "deployment speed", "vehicle speed at deployment"),
+    OutcomeSpec("deployment_airspeed", "speed", "m/s", "m/s", "deployment airspeed",
+                "speed relative to the air at deployment"),
+    OutcomeSpec("peak_opening_load", "force", "N", "N", "peak opening load",
+                "largest quasi-steady drag force of the device from deployment on, on the recorded samples"),
+    OutcomeSpec("peak_opening_load_time", "time", "s", "s", "peak opening load time",
+                "time of the peak opening load"),
+    OutcomeSpec("fully_open_time", "time", "s", "s", "fully open time", "time the device reached its full drag area"),
+)
 
 
 def recovery_summary(result: Any, names: list[str] | None = None) -> dict[str, dict[str, float]]:
@@ -78,7 +91,7 @@ def recovery_summary(result: Any, names: list[str] | None = None) -> dict[str, d
     Returns
     -------
     dict
-        Component name -> {key: SI value} with the keys of :data:`SUMMARY_UNITS`.
+        Component name -> {key: SI value} with the keys of :data:`OUTCOMES`.
         A device that never deployed reports only ``{"deployed": 0.0}``.
         With ``names`` None, a device that left the vehicle (its signals end
         in NaN) before deploying is not listed.

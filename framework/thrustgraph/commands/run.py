@@ -4,31 +4,16 @@ from __future__ import annotations
 
 import argparse
 import math
-import sys
+from typing import Sequence
 
 from ..integrate import integrate
 from ..modelfile import atomic_write
-from ..result import SUMMARY_UNITS, FlightResult
-from ..units import Q_
+from ..result import FlightResult
 from .common import add_model_argument, add_set_option, load_with_overrides
 from .outputs import add_quiet_option, fly_model, load_checked, need_matplotlib, write_outputs
 
 NAME = "run"
 HELP = "fly a model and print the summary (burn time, peak thrust and acceleration, apogee or range, audits)"
-
-# How each summary value is shown to people.
-_DISPLAY = {
-    "flight_time": ("flight time", "s"), "burn_time": ("powered time", "s"),
-    "launch_mass": ("launch mass", "g"), "final_mass": ("final mass", "g"),
-    "propellant_expelled": ("mass expelled", "g"), "peak_thrust": ("peak thrust", "N"),
-    "peak_acceleration": ("peak acceleration", "m/s^2"), "max_speed": ("max speed", "m/s"),
-    "guide_exit_speed": ("guide exit speed", "m/s"), "apogee": ("apogee", "m"), "range": ("range", "m"),
-    "downrange": ("downrange", "m"), "drift": ("drift (across azimuth)", "m"),
-    "total_impulse": ("total impulse", "N*s"), "specific_impulse": ("specific impulse", "s"),
-    "impact_speed": ("impact speed", "m/s"), "peak_vessel_pressure": ("peak vessel pressure (abs)", "bar"),
-    "dropped_mass": ("mass dropped at separations", "g"),
-}
-
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
     add_model_argument(p)
@@ -40,6 +25,25 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     add_quiet_option(p)
 
 
+def summary_lines(r: FlightResult, keys: Sequence[str] | None = None) -> list[str]:
+    """One line per summary entry people need to see: label, value in its display unit (and in ``also`` units).
+
+    Labels and units come from the outcome registry (``r.outcome_specs``); an
+    entry whose ``show`` predicate says it adds nothing (a downrange equal to
+    the range) is left out.
+    """
+    lines = []
+    for key in (r.summary if keys is None else [k for k in keys if k in r.summary]):
+        spec = r.outcome_specs.get(key)
+        if spec is None:
+            lines.append(f"  {key:<32s} {r.summary[key]:12.5g} {r.unit(key)}")
+        elif spec.show(r.summary):
+            v = r.summary[key]
+            extra = ", ".join(f"{spec.shown(v, u):.4g} {u}" for u in spec.also)
+            lines.append(f"  {spec.label:<32s} {spec.shown(v):12.5g} {spec.display}" + (f"   ({extra})" if extra else ""))
+    return lines
+
+
 def format_summary(r: FlightResult, name: str) -> str:
     lines = [f"thrustgraph: {name}", ""]
     lines.append("Phases")
@@ -47,16 +51,7 @@ def format_summary(r: FlightResult, name: str) -> str:
         lines.append(f"  {ph.name:<24s} {ph.t_start:9.4f} s -> {ph.t_end:9.4f} s   ({ph.duration:.4f} s)")
     lines.append("")
     lines.append("Summary")
-    for key, (label, unit) in _DISPLAY.items():
-        if key not in r.summary:
-            continue
-        q = Q_(r.summary[key], SUMMARY_UNITS[key]).to(unit)
-        extra = f"   ({r.summary[key] / 9.80665:.3g} g)" if key == "peak_acceleration" else ""
-        lines.append(f"  {label:<28s} {q.magnitude:12.5g} {unit}{extra}")
-    for key in r.summary:
-        if "." in key:  # entries of a component kind (e.g. a parachute's deployment speed)
-            unit = r.unit(key)
-            lines.append(f"  {key:<28s} {r.summary[key]:12.5g} {unit}")
+    lines += summary_lines(r)
     lines.append("")
     lines.append("Events")
     for e in r.events:
@@ -70,11 +65,7 @@ def format_summary(r: FlightResult, name: str) -> str:
     for stage, sub in r.dropped.items():
         lines.append("")
         lines.append(f"Dropped stage {stage!r} (flown on from {sub.t[0]:.4f} s)")
-        for key in ("apogee", "range", "impact_speed", "flight_time"):
-            if key in sub.summary:
-                label, unit = _DISPLAY[key]
-                q = Q_(sub.summary[key], SUMMARY_UNITS[key]).to(unit)
-                lines.append(f"  {label:<28s} {q.magnitude:12.5g} {unit}")
+        lines += summary_lines(sub, ("apogee", "range", "impact_speed", "flight_time"))
         lines.append(f"  outcome: {sub.message}")
     lines.append("")
     lines.append(f"Outcome: {r.message}")

@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 
 from ..errors import ModelError
-from ..outcomes import OUTPUTS, check_outputs
+from ..outcomes import OUTCOMES, check_outputs, default_outputs
 from ..studyspec import KINDS, Limit, Spread, StudyDefinition, Vary, read_study
 from .common import add_model_argument, add_set_option
 from .outputs import add_quiet_option, load_checked, need_matplotlib, write_outputs
@@ -58,7 +58,8 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     g.add_argument("--step", type=float, default=None,
                    help="sensitivity: finite-difference step as a fraction of each value (default 0.001)")
     g.add_argument("--outputs", default=None, metavar="NAMES",
-                   help=f"outcome columns, comma separated (default: all: {', '.join(OUTPUTS)})")
+                   help=f"outcome columns, comma separated, of: {', '.join(OUTCOMES)} (default: "
+                        f"{', '.join(default_outputs())})")
     r = p.add_argument_group("where to fly")
     r.add_argument("--engine", default="auto", choices=("auto", "serial", "processes", "dask"),
                    help="this process (serial), a pool of local processes (processes) or a Dask cluster (dask); "
@@ -227,10 +228,11 @@ def _sweep_text(table: Any) -> str:
         v = np.where(ok, table.column(o), np.nan)
         if not np.any(np.isfinite(v)):
             continue
-        i, j = int(np.nanargmax(v)), int(np.nanargmin(v))
-        unit = OUTPUTS[o].unit
+        i = int(np.nanargmax(v))
+        spec = OUTCOMES[o]
         best = ", ".join(p.text(table.x[i, k]) for k, p in enumerate(table.params))
-        lines.append(f"  {o:<20s} {np.nanmin(v):10.5g} .. {np.nanmax(v):10.5g} {unit:<6s} highest at {best}")
+        lines.append(f"  {spec.label:<20s} {spec.shown(float(np.nanmin(v))):10.5g} .. "
+                     f"{spec.shown(float(np.nanmax(v))):10.5g} {spec.display:<6s} highest at {best}")
     return "Outcome ranges over the designs that flew\n" + "\n".join(lines)
 
 

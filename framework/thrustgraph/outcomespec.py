@@ -1,0 +1,119 @@
+"""An outcome's definition: key, quantity, SI and display units, label, meaning, how it is computed, where it applies.
+
+Every number a flight is summed up by (apogee, total impulse, a parachute's
+deployment speed) is one :class:`OutcomeSpec`. The core's outcomes are the
+table in :mod:`thrustgraph.outcomes`; a component kind adds its own through
+``ComponentKind.outcomes``. The terminal summary, the JSON export, the HTML
+report, study tables, optimisation limits and plot labels all read the label
+and units from the spec, so each is written once.
+
+Units are pint-readable text: ``unit`` is the SI unit the value is held in
+(``""`` for a plain number), ``display`` the unit people read it in, and
+``also`` further units shown beside it (an acceleration also in standard
+gravities, ``g0``: ``g`` alone is a gram to pint).
+
+Examples
+--------
+>>> spec = OutcomeSpec("peak_acceleration", "acceleration", "m/s^2", "m/s^2", "peak acceleration",
+...                    "largest acceleration magnitude", also=("g0",))
+>>> spec.header
+'peak_acceleration [m/s^2]'
+>>> spec.text(98.0665)
+'98.067 m/s^2 (10 g0)'
+>>> spec.to_si("12 g0", where="--limit peak_acceleration")
+117.6798
+>>> spec.to_si("12 g", where="--limit peak_acceleration")
+Traceback (most recent call last):
+...
+thrustgraph.errors.ModelError: --limit peak_acceleration: expected an acceleration (unit like m/s^2), got '12 g' ([mass]). Fix: write the value with a unit of acceleration, e.g. "9.80665 m/s^2" (standard gravities are g0: g is a gram).
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass
+from typing import Any, Callable, Mapping
+
+from .errors import ModelError
+from .units import Q_, to_si
+
+__all__ = ["OutcomeSpec", "always", "KEY_PATTERN"]
+
+#: What an outcome key looks like: lower-case words joined by underscores.
+KEY_PATTERN = re.compile(r"^[a-z][a-z0-9_]*$")
+
+
+def always(_: Any) -> bool:
+    """The predicate of an outcome that applies to every vehicle (and is always shown)."""
+    return True
+
+
+@dataclass(frozen=True)
+class OutcomeSpec:
+    """One outcome, defined once.
+
+    Fields
+    ------
+    key : name in summaries, tables and JSON (``apogee``); a kind's outcome appears as ``COMPONENT.KEY``
+    quantity : what it measures, in words (``length``, ``speed``, ``impulse``)
+    unit : SI unit of the value, pint-readable (``""`` for a plain number)
+    display : unit people read it in (``bar`` for a pressure held in Pa)
+    label : words people read (unique across the registry)
+    doc : what it is and how it is computed
+    compute : ``compute(flight) -> float`` from the integrated solution
+        (:class:`thrustgraph.outcomes.Flight`); NaN where it did not happen.
+        None for a component kind's outcome (its ``summarize`` computes it).
+    applies : ``applies(system) -> bool``: which vehicles and mounts have it
+        (a vehicle held on a stand has no apogee)
+    also : further display units shown beside ``display`` (``g0``)
+    show : ``show(values) -> bool``: whether people need to see it, given every
+        outcome value of the flight (a downrange equal to the range is not
+        printed twice); tables and JSON always hold it
+    default : a study reports it when no outcomes are named
+    """
+
+    key: str
+    quantity: str
+    unit: str
+    display: str
+    label: str
+    doc: str
+    compute: Callable[[Any], float] | None = None
+    applies: Callable[[Any], bool] = always
+    also: tuple[str, ...] = ()
+    show: Callable[[Mapping[str, float]], bool] = always
+    default: bool = True
+
+    @property
+    def header(self) -> str:
+        """Column header in tables: ``key [unit]`` (``[1]`` for a plain number)."""
+        return f"{self.key} [{self.unit or '1'}]"
+
+    @property
+    def axis_label(self) -> str:
+        """Axis label of a plot: ``label [display unit]``."""
+        return f"{self.label} [{self.display}]" if self.display else self.label
+
+    def shown(self, value: float, unit: str | None = None) -> float:
+        """An SI value in the display unit (or in ``unit``)."""
+        unit = self.display if unit is None else unit
+        if not self.unit or unit == self.unit or not math.isfinite(value):
+            return float(value)
+        return float(Q_(value, self.unit).to(unit).magnitude)
+
+    def text(self, value: float, digits: int = 5) -> str:
+        """A value as people read it: ``'1176.6 m/s^2 (119.98 g0)'``."""
+        main = f"{self.shown(value):.{digits}g}" + (f" {self.display}" if self.display else "")
+        extra = ", ".join(f"{self.shown(value, u):.{digits}g} {u}" for u in self.also)
+        return f"{main} ({extra})" if extra else main
+
+    def to_si(self, value: Any, where: str) -> float:
+        """A value written with a unit (``"60 g0"``, ``"6 bar"``) in this outcome's SI unit, dimension checked."""
+        try:
+            return float(to_si(value, self.unit, where=where))
+        except ModelError as exc:
+            if self.quantity == "acceleration" and exc.fix and "g0" not in exc.fix:
+                raise ModelError(exc.where, exc.what, exc.fix.rstrip(".") +
+                                 " (standard gravities are g0: g is a gram)") from None
+            raise
