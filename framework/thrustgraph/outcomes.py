@@ -60,7 +60,7 @@ from .outcomespec import KEY_PATTERN, OutcomeSpec
 from .units import Q_
 
 __all__ = ["OutcomeSpec", "OUTCOMES", "OUTPUTS", "G0", "Flight", "summarise", "run_summary", "output_names",
-           "default_outputs", "check_outputs", "outcome", "kind_outcomes", "check_kind_outcomes",
+           "default_outputs", "check_outputs", "outcome", "kind_outcomes", "check_kind_outcomes", "markdown_table",
            "STATUS_OK", "STATUS_SCREENED", "STATUS_NOT_RUN"]
 
 #: Standard gravity, m/s^2 (exact by definition; CGPM 1901): the g0 of specific impulse and of accelerations
@@ -289,23 +289,27 @@ def _never(_: Any) -> bool:
 
 
 def _moves(system: System) -> bool:
+    """every mount but a test stand (held)"""
     return system.launch.mount != "held"
 
 
 def _flies(system: System) -> bool:
-    """Guide and free launches under gravity: they climb, peak and come down."""
+    """guide and free launches under gravity"""
     return system.launch.mount in ("guide", "free") and system.gravity(float(system.y0[2])) > 0.0
 
 
 def _on_guide(system: System) -> bool:
+    """guide launches"""
     return system.launch.mount == "guide"
 
 
 def _has_vessels(system: System) -> bool:
+    """vehicles with a vessel"""
     return bool(system.volumes)
 
 
 def _staged(system: System) -> bool:
+    """models with stages"""
     return bool(system.parsed.stages)
 
 
@@ -344,7 +348,7 @@ OUTCOMES: dict[str, OutcomeSpec] = {o.key: o for o in (
     _O("guide_exit_speed", "speed", "m/s", "m/s", "guide exit speed", "speed at the end of the launch guide",
        _guide_exit_speed, applies=_on_guide),
     _O("apogee", "length", "m", "m", "apogee",
-       "highest altitude above the launch point: at the steps (the apogee event is one), refined inside the "
+       "highest altitude (above the ground datum): at the steps (the apogee event is one), refined inside the "
        "step where it peaks", _apogee, applies=_flies),
     _O("range", "length", "m", "m", "range", "horizontal distance from the launch point at the end of the flight",
        lambda f: math.hypot(f.value("impact_x"), f.value("impact_y")), applies=_moves),
@@ -404,6 +408,22 @@ def check_outputs(names: Sequence[str], where: str = "outputs") -> list[str]:
         if n not in out:
             out.append(n)
     return out
+
+
+def markdown_table(specs: Iterable[OutcomeSpec] | None = None) -> str:
+    """The registry as a Markdown table (docs/studies.md holds it; a test checks it is current).
+
+    >>> print(markdown_table([OUTCOMES["apogee"]]).splitlines()[2][:67])
+    | `apogee` | m | m | apogee | guide and free launches under gravity
+    """
+    rows = ["| key | SI unit | shown in | label | applies to | what it is and how it is computed |",
+            "| --- | --- | --- | --- | --- | --- |"]
+    for o in (OUTCOMES.values() if specs is None else specs):
+        shown = ", ".join((o.display or "1",) + o.also)
+        where = (o.applies.__doc__ or "").strip().splitlines()[0]
+        rows.append(f"| `{o.key}` | {o.unit or '1'} | {shown} | {o.label} | {where} | {o.doc}"
+                    f"{'' if o.default else ' (in a study only when named)'} |")
+    return "\n".join(rows) + "\n"
 
 
 def summarise(system: System, segs: Any, outputs: Sequence[str] | None = None) -> dict[str, float]:
@@ -487,7 +507,7 @@ def kind_outcomes(parsed_kinds: Mapping[str, type]) -> dict[str, OutcomeSpec]:
     """The outcomes the components of a model add: ``COMPONENT.KEY`` -> spec labelled ``COMPONENT label``.
 
     >>> class Chute:
-    ...     outcomes = (OutcomeSpec("deployment_speed", "speed", "m/s", "m/s", "deployment speed", "speed at deployment"),)
+    ...     outcomes = (OutcomeSpec("deployment_speed", "speed", "m/s", "m/s", "deployment speed", "at deployment"),)
     >>> spec = kind_outcomes({"drogue": Chute})["drogue.deployment_speed"]
     >>> spec.label, spec.header
     ('drogue deployment speed', 'drogue.deployment_speed [m/s]')

@@ -45,7 +45,10 @@ KEY_PATTERN = re.compile(r"^[a-z][a-z0-9_]*$")
 
 
 def always(_: Any) -> bool:
-    """The predicate of an outcome that applies to every vehicle (and is always shown)."""
+    """every vehicle
+
+    The predicate of an outcome that applies to every vehicle (and is always shown).
+    """
     return True
 
 

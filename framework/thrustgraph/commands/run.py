@@ -40,7 +40,9 @@ def summary_lines(r: FlightResult, keys: Sequence[str] | None = None) -> list[st
         elif spec.show(r.summary):
             v = r.summary[key]
             extra = ", ".join(f"{spec.shown(v, u):.4g} {u}" for u in spec.also)
-            lines.append(f"  {spec.label:<32s} {spec.shown(v):12.5g} {spec.display}" + (f"   ({extra})" if extra else ""))
+            extra = f"   ({extra})" if extra else ""
+            unit = f" {spec.display}" if spec.display else ""
+            lines.append(f"  {spec.label:<32s} {spec.shown(v):12.5g}{unit}{extra}")
     return lines
 
 
