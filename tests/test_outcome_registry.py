@@ -26,10 +26,14 @@ from conftest import model_from_toml
 from thrustgraph import PluginError, hookimpl, integrate, load_model, parse_model
 from thrustgraph.cli import main
 from thrustgraph.component import ComponentKind
+from thrustgraph.designs import resolve
+from thrustgraph.ensemble import COMPUTED
+from thrustgraph.errors import ModelError
 from thrustgraph.modelfile import bundled_models
 from thrustgraph.outcomes import G0, OUTCOMES, check_kind_outcomes, default_outputs, markdown_table
 from thrustgraph.outcomespec import OutcomeSpec
 from thrustgraph.plugins import component_kinds, get_plugin_manager
+from thrustgraph.studies import choose_engine, evaluate
 from thrustgraph.studyflight import fly_design
 from thrustgraph.studyspec import Limit
 from thrustgraph.units import Q_
@@ -175,7 +179,7 @@ def test_a_cross_wind_shows_downrange_and_drift():
 
 def test_limits_read_their_units_through_the_registry():
     assert Limit.parse("peak_acceleration <= 60 g0").si() == pytest.approx(60 * G0)
-    with pytest.raises(Exception, match=r"standard gravities are g0: g is a gram"):
+    with pytest.raises(ModelError, match=r"standard gravities are g0: g is a gram"):
         Limit.parse("peak_acceleration <= 60 g")
     assert Limit.parse("peak_vessel_pressure <= 6 bar").si() == pytest.approx(6e5)
 
@@ -257,3 +261,14 @@ def test_a_kind_returning_an_undeclared_outcome_is_named(toml_model):
     with pytest.raises(PluginError, match=r"kind 'loud-airframe': summarize returned 'releas_speed', which the kind "
                                           r"does not declare"):
         integrate(parsed)
+
+
+def test_a_study_asking_for_an_outcome_the_ensemble_does_not_compute_flies_single_flights():
+    model = load_model(bundled_models()["bottle-rocket"])
+    parsed = parse_model(model)
+    assert "peak_thrust" not in COMPUTED and set(COMPUTED) <= set(OUTCOMES)
+    assert choose_engine(500, parsed, "serial", "auto", ["apogee"])[1] == "ensemble"
+    assert choose_engine(500, parsed, "serial", "auto", ["apogee", "peak_thrust"])[1] == "single"
+    with pytest.raises(ModelError, match="the vectorised ensemble does not compute peak_thrust"):
+        evaluate(model, [resolve(parsed, "components.bottle.fill")], [[0.3]], ["apogee", "peak_thrust"],
+                 parsed=parsed, engine="serial", flights="ensemble", quiet=True)
