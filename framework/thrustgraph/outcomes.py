@@ -335,8 +335,9 @@ OUTCOMES: dict[str, OutcomeSpec] = {o.key: o for o in (
        "largest thrust along the body axis: at the steps, refined inside the step where it peaks",
        _peak_thrust, default=False),
     _O("total_impulse", "impulse", "N*s", "N*s", "total impulse",
-       "time integral of the thrust magnitude: 3-point Gauss-Legendre quadrature of the dense solution on every "
-       "powered step", lambda f: f.thrust_impulse),
+       "time integral of the thrust magnitude over the powered phases (those of the burn time; every phase of a "
+       "vehicle with a prescribed jet): 3-point Gauss-Legendre quadrature of the dense solution on every step",
+       lambda f: f.thrust_impulse),
     _O("specific_impulse", "time", "s", "s", "specific impulse",
        "total impulse per unit weight (g0) of propellant expelled; none when nothing was expelled (a hose-fed rig)",
        _specific_impulse, default=False),
