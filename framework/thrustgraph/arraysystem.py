@@ -43,7 +43,6 @@ __all__ = ["ArraySystem", "Phase", "unsupported", "IMPULSE", "GUIDE", "FREE"]
 GUIDE, FREE = Kinematics.GUIDE, Kinematics.FREE
 #: Name of the quadrature state the ensemble adds: the time integral of the thrust magnitude.
 IMPULSE = "ensemble.impulse"
-_AFT = (-1.0, 0.0, 0.0)
 
 
 def unsupported(parsed: ParsedModel) -> str | None:
@@ -64,14 +63,9 @@ def unsupported(parsed: ParsedModel) -> str | None:
         if cls.role == "body" and cls.states:
             return f"components.{n} is a body with states"
         if cls.role == "volume":
-            p = parsed.params[n]
-            if tuple(getattr(p, "outlet_direction", _AFT)) != _AFT:
-                return f"components.{n} has an outlet off the body axis"
             for m in g.successors(n):
                 if parsed.kinds[m].role != "flow" or any(parsed.kinds[k].role != "boundary" for k in g.successors(m)):
                     return f"components.{n} discharges through elements in series"
-        if cls.role == "flow" and tuple(getattr(parsed.params[n], "direction", _AFT)) != _AFT:
-            return f"components.{n} jets off the body axis"
     return None
 
 
