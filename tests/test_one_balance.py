@@ -89,7 +89,9 @@ options_st = st.fixed_dictionaries({k: st.sampled_from(v) for k, v in OPTIONS.it
 @given(model=st.sampled_from(FLYABLE), options=options_st, seed=st.integers(0, 2**32 - 1))
 def test_array_and_scalar_right_hand_sides_agree_to_rounding(model, options, seed):
     """Random designs, random states and random phases (every mode of every slot, guide or free per design):
-    each design's derivatives from the array balance equal those of its own single-flight balance."""
+    each design's derivatives from the array balance equal those of its own single-flight balance. (The Newton
+    solve of the head coupling stops when every design has converged, so a design may take one more step in a
+    batch than alone: a difference at the rounding level of the terms it sums.)"""
     rng = np.random.default_rng(seed)
     parsed = parse_model(_model(model, options))
     params, x = _designs(parsed, 6, rng)
@@ -118,6 +120,10 @@ def test_array_and_scalar_right_hand_sides_agree_to_rounding(model, options, see
             continue
         got = out[:-1, r]
         scale = np.maximum(np.abs(ref), 1e-300)
+        # an acceleration is a sum of terms that largely cancel (thrust, weight, drag): its rounding is relative
+        # to the terms, (thrust + weight) / M
+        terms = float(np.broadcast_to(aux["thrust"], (n,))[r] / np.broadcast_to(aux["mass"], (n,))[r]) + 9.80665
+        scale[3:6] = np.maximum(scale[3:6], terms)
         assert np.all(np.abs(got - np.array(ref)) <= 1e-12 * scale + 1e-300), (r, got, ref)
         drives = bal.drives(float(t[r]), y)
         for key, d in aux["drive"].items():
