@@ -99,6 +99,8 @@ class _Sums(NamedTuple):
 
 _Z3 = (0.0, 0.0, 0.0)
 _FREE_ONLY = {Kinematics.FREE}
+#: the sums of a phase whose lines are all idle, by number of lines (never mutated)
+_NO_FLOW = {n: _Sums([None] * n, _Z3, _Z3, _Z3, _Z3) for n in range(1, 5)}
 
 
 def _dot(a: Sequence[Any], b: Sequence[Any]) -> Any:
@@ -204,9 +206,11 @@ class Balance:
                         seen = True
             live_terms.append(seen)
         self._live_terms = live_terms
+        self._only = next(iter(present)) if len(present) == 1 else None
         self._vessel_lines = [(j, ln.start_index) for j, ln in enumerate(plan.lines) if ln.from_vessel]
         self._outlets = sorted({k for j, k in self._vessel_lines if self._live[j]})
         self._outlets_all = sorted({k for j, k in self._vessel_lines})
+        self._outlets_terms = sorted({k for j, k in self._vessel_lines if self._live_terms[j]})
 
     def _start_mode(self, ln: LinePlan) -> Any:
         return self._vmode[ln.start_index] if ln.from_vessel else self._smode[ln.start_index]
@@ -286,7 +290,7 @@ class Balance:
         # 2. The start of every line: vessel outlets (without head) and source supplies, and directions.
         live = self._live_all if full else (self._live_terms if want == "terms" else self._live)
         outs: list[Any] = [None] * len(plan.vessels)
-        for k in (self._outlets_all if full else sorted({k for j, k in self._vessel_lines if live[j]})):
+        for k in (self._outlets_all if full else (self._outlets_terms if want == "terms" else self._outlets)):
             o = plan.vessels[k].fns.outlet(s, self._vmode[k])
             outs[k] = o if type(o) is Outlet else Outlet(*o)
         supplies = [src.fns.supply(t, s, md, air) for src, md in zip(plan.sources, self._smode)] \
@@ -355,6 +359,11 @@ class Balance:
         ops = self.ops
         g = ctx[3]
         first = self._lines_at(ctx, (0.0, 0.0, -g))          # flows at a = 0
+        only = self._only
+        if only == Kinematics.FREE:
+            return self._free(ctx, M, F, first, coupled)
+        if only == Kinematics.GUIDE or only == Kinematics.TRACK:
+            return self._guided(ctx, M, F, first, coupled, only)
         results = {}
         for kin in self._present:
             if kin == Kinematics.HELD:
@@ -472,6 +481,9 @@ class Balance:
     def _lines_at(self, ctx: tuple, f: tuple) -> _Sums:
         """Flows of every line at the apparent acceleration ``f = g - a`` and their sums."""
         t, s, pa, g, outs, supplies, dirs, live = ctx
+        if not any(live):
+            return _NO_FLOW[len(live)] if len(live) in _NO_FLOW else \
+                _Sums([None] * len(live), _Z3, _Z3, _Z3, _Z3)
         flows = []
         Tx = Ty = Tz = 0.0
         Qx = Qy = Qz = 0.0
