@@ -168,3 +168,21 @@ def test_internal_momentum_no_longer_differs_between_paths():
     single = fly_design(parsed).values
     assert res.values[0, 0] == pytest.approx(single["apogee"], rel=1e-6)
     assert res.values[0, 1] == pytest.approx(single["max_speed"], rel=1e-6)
+
+
+def test_a_large_study_the_ensemble_cannot_fly_says_so_when_it_starts():
+    """200 designs of a model with a kind that builds no array callables: the study says at its start that it
+    flies them one at a time, and why. (The designs are outside their declared bounds, so they are screened
+    before any flight: the notice comes first.)"""
+    import io
+
+    from thrustgraph.studies import evaluate
+
+    m = tg.load_model(Path(tg.default_model_path()).parent / "rocket-with-parachute.toml")
+    parsed = parse_model(m)
+    p = resolve(parsed, "components.airframe.dry_mass")
+    out = io.StringIO()
+    table = evaluate(m, [p], np.full((200, 1), -1.0), ["apogee"], parsed=parsed, engine="serial", stream=out)
+    text = out.getvalue().splitlines()[0]
+    assert "flying 200 designs one at a time" in text and "prescribed-jet" in text, text
+    assert table.counts["screened"] == 200
