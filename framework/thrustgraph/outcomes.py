@@ -59,7 +59,7 @@ from .errors import ModelError, PluginError
 from .outcomespec import KEY_PATTERN, OutcomeSpec
 from .units import Q_
 
-__all__ = ["OutcomeSpec", "OUTCOMES", "OUTPUTS", "G0", "Flight", "summarise", "run_summary", "output_names",
+__all__ = ["OutcomeSpec", "OUTCOMES", "G0", "Flight", "summarise", "run_summary", "output_names",
            "default_outputs", "check_outputs", "outcome", "kind_outcomes", "check_kind_outcomes", "markdown_table",
            "STATUS_OK", "STATUS_SCREENED", "STATUS_NOT_RUN"]
 
@@ -370,9 +370,6 @@ OUTCOMES: dict[str, OutcomeSpec] = {o.key: o for o in (
        "highest absolute pressure in any vessel, at the steps; a prediction, never a rating",
        _peak_vessel_pressure, applies=_has_vessels),
 )}
-
-#: The core outcomes (the name studies have always used for them).
-OUTPUTS = OUTCOMES
 
 
 def outcome(key: str) -> OutcomeSpec:
