@@ -15,6 +15,7 @@ import pytest
 from ambiance import Atmosphere
 from fluids.atmosphere import ATMOSPHERE_1976
 
+from thrustgraph.xp import scalar_ops
 from thrustgraph import integrate, parse_model
 from thrustgraph.cli import main as cli_main
 from thrustgraph.errors import ModelError
@@ -39,7 +40,7 @@ def build(kinds, kind, **raw):
     cls = kinds[kind]
     p = parse_params(cls.parameters, raw, where="environment.medium", params_class=cls.params_class())
     cls.check(p, "environment.medium")
-    return cls.build(p, None)
+    return cls.build(p, scalar_ops)
 
 
 def half_unit(printed: str) -> float:
@@ -181,7 +182,7 @@ def test_hydrostatic_equation_holds_with_inverse_square_gravity(kinds):
     # inside each layer (the pressure is smooth there).
     air = build(kinds, "standard-atmosphere-1976")
     gk = kinds["inverse-square-gravity"]
-    gravity = gk.build(parse_params(gk.parameters, {}, where="environment.gravity", params_class=gk.params_class()), None)
+    gravity = gk.build(parse_params(gk.parameters, {}, where="environment.gravity", params_class=gk.params_class()), scalar_ops)
     h = 0.5
     for Z in (500.0, 8000.0, 15000.0, 26000.0, 40000.0, 49000.0, 60000.0, 78000.0):
         dpdz = (air(Z + h, 0.0)[1] - air(Z - h, 0.0)[1]) / (2 * h)
@@ -369,13 +370,13 @@ def test_still_water_current_and_gravity_parameter(kinds):
 def test_inverse_square_gravity_closed_form(kinds):
     # g(z) = g0 (r0 / (r0 + z_datum + z))^2, r0 = 6356766 m (1976 standard; references.md section 5).
     cls = kinds["inverse-square-gravity"]
-    g = cls.build(parse_params(cls.parameters, {}, where="environment.gravity", params_class=cls.params_class()), None)
+    g = cls.build(parse_params(cls.parameters, {}, where="environment.gravity", params_class=cls.params_class()), scalar_ops)
     assert g(0.0) == G0
     assert g(R0) == pytest.approx(G0 / 4.0, rel=1e-15)         # twice the radius: a quarter
     for z in (1000.0, 11000.0, 86000.0, 400e3):
         assert g(z) == pytest.approx(G0 * (R0 / (R0 + z)) ** 2, rel=1e-15)
     g2 = cls.build(parse_params(cls.parameters, {"datum_altitude": "1400 m", "g0": "9.8 m/s^2"},
-                                where="environment.gravity", params_class=cls.params_class()), None)
+                                where="environment.gravity", params_class=cls.params_class()), scalar_ops)
     assert g2(600.0) == pytest.approx(9.8 * (R0 / (R0 + 2000.0)) ** 2, rel=1e-15)
     # at 86 km the 1976 standard lists g = 9.5466 m/s^2 (fluids ATMOSPHERE_1976(86e3).g, L)
     assert g(86000.0) == pytest.approx(ATMOSPHERE_1976(86000.0).g, rel=1e-9)

@@ -11,6 +11,7 @@ import math
 import numpy as np
 import pytest
 
+from thrustgraph.xp import scalar_ops
 from thrustgraph import integrate, parse_model
 from thrustgraph.errors import ModelError
 from thrustgraph.parameters import parse_params
@@ -32,7 +33,7 @@ def body(kinds, kind, **raw):
     cls = kinds[kind]
     p = parse_params(cls.parameters, raw, where="components.body", params_class=cls.params_class())
     cls.check(p, "components.body")
-    return cls.build_body(p, None)
+    return cls.build_body(p, scalar_ops)
 
 
 def air_tuple(rho, T, v):

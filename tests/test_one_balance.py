@@ -31,22 +31,35 @@ from thrustgraph.model import parse_model
 from thrustgraph.studyflight import fly_design
 
 MODELS = sorted(Path(tg.default_model_path()).parent.glob("*.toml"))
-# the physics options of the kinds and mounts these models use: (path, values)
+# the physics options of the kinds and mounts these models use: (path, values); a model takes those of its
+# components
 OPTIONS = {
     "components.bottle.internal_momentum": (False, True),
     "components.bottle.inertial_head": (True, False),
     "components.bottle.expansion_exponent": (1.4, 1.0, 1.2),
+    "environment.medium.wind_exponent": (0.142857, 0.0),
     "launch.attitude": ("follow-wind", "fixed"),
     "launch.mount": ("guide", "free"),
     "launch.friction": (0.0, 0.3),
 }
-# varied per design, with ranges inside the declared bounds
+# varied per design, with ranges inside the declared bounds (a model takes those of its components)
 VARIED = {
     "components.bottle.fill": (0.05, 0.6),
     "components.bottle.gauge_pressure": (2e5, 7e5),
-    "components.airframe.dry_mass": (0.08, 0.3),
+    "components.airframe.dry_mass": (0.08, 0.6),
+    "components.motor.exhaust_velocity": (1500.0, 2200.0),
+    "environment.medium.wind_speed": (0.0, 8.0),
     "launch.elevation": (np.radians(60.0), np.radians(90.0)),
 }
+
+
+def _applies(parsed, path: str) -> bool:
+    section, owner = path.split(".")[:2]
+    if section == "components":
+        return owner in parsed.params
+    if section == "environment":
+        return path.split(".")[-1] in {f.name for f in parsed.env_kinds[owner].parameters}
+    return True
 
 
 def _flyable() -> list[Path]:
@@ -59,13 +72,16 @@ FLYABLE = _flyable()
 def test_the_ensemble_flies_the_bottle_rocket_family():
     # the models whose every kind builds array callables; the others fly one design at a time (the study says
     # so at its start)
-    assert {p.stem for p in FLYABLE} >= {"bottle-rocket", "twin-nozzle-bottle-rocket"}
+    assert {p.stem for p in FLYABLE} >= {"bottle-rocket", "twin-nozzle-bottle-rocket",
+                                        "small-rocket-standard-atmosphere"}
 
 
 def _model(path: Path, options: dict):
     m = tg.load_model(path)
+    parsed = parse_model(m)
     for k, v in options.items():
-        m.set(k, v)
+        if _applies(parsed, k):
+            m.set(k, v)
     if options.get("launch.mount") == "free":
         m.set("launch.speed", "5 m/s")
     m.set("run.rtol", 1e-9)
@@ -77,8 +93,9 @@ def _model(path: Path, options: dict):
 
 
 def _designs(parsed, n: int, rng: np.random.Generator):
-    params = [resolve(parsed, p) for p in VARIED]
-    x = np.column_stack([rng.uniform(lo, hi, n) for lo, hi in VARIED.values()])
+    used = {k: v for k, v in VARIED.items() if _applies(parsed, k)}
+    params = [resolve(parsed, p) for p in used]
+    x = np.column_stack([rng.uniform(lo, hi, n) for lo, hi in used.values()])
     return params, x
 
 
@@ -154,6 +171,10 @@ def test_ensemble_outcomes_equal_single_flights(model, options, seed):
                 assert np.isnan(a), (r, name)
             elif name == "burn_time":
                 assert a == pytest.approx(b, rel=5e-3), (r, name)
+            elif name == "peak_acceleration" and "motor" in parsed.params:
+                # the peak sits on a corner of the thrust table (a kink no event marks): each path finds it on
+                # its own dense output, whose polynomial rounds the corner (measured 1.8e-5 to 1.2e-4)
+                assert a == pytest.approx(b, rel=5e-4), (r, name)
             else:
                 assert a == pytest.approx(b, rel=1e-6, abs=1e-9), (r, name, a, b)
 
@@ -184,5 +205,5 @@ def test_a_large_study_the_ensemble_cannot_fly_says_so_when_it_starts():
     out = io.StringIO()
     table = evaluate(m, [p], np.full((200, 1), -1.0), ["apogee"], parsed=parsed, engine="serial", stream=out)
     text = out.getvalue().splitlines()[0]
-    assert "flying 200 designs one at a time" in text and "prescribed-jet" in text, text
+    assert "flying 200 designs one at a time" in text and "drogue" in text, text
     assert table.counts["screened"] == 200

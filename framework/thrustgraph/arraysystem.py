@@ -58,7 +58,7 @@ def unsupported(parsed: ParsedModel) -> str | None:
     for n, cls in parsed.kinds.items():
         if not vectorised(cls):
             return f"components.{n} kind {cls.kind!r} builds no array callables"
-        if cls.role in ("jet", "source"):
+        if cls.role == "source":
             return f"components.{n} is a {cls.role}"
         if cls.role == "body" and cls.states:
             return f"components.{n} is a body with states"

@@ -39,6 +39,7 @@ from .errors import ModelError
 from .model import LAUNCH_SPECS, ParsedModel
 from .parameters import Quantity
 from .units import Q_, si_unit, to_si
+from .xp import scalar_ops
 
 __all__ = ["DesignParameter", "resolve", "apply", "within_bounds", "bounds_text", "with_values", "SECTIONS"]
 
@@ -280,7 +281,7 @@ def apply(parsed: ParsedModel, params: Sequence[DesignParameter], x: Sequence[fl
     if "medium" in env or "altitude" in launch:
         from .component import Ambient
 
-        medium = parsed.env_kinds["medium"].build(new_env["medium"], None)
+        medium = parsed.env_kinds["medium"].build(new_env["medium"], scalar_ops)
         rho, pa, Ta, *_ = medium(new_launch.altitude, 0.0)
         ambient = Ambient(pressure=pa, temperature=Ta, density=rho)
     new = dataclasses.replace(parsed, params=new_params, env_params=new_env, launch=new_launch, ambient=ambient)

@@ -25,6 +25,7 @@ import networkx as nx
 import pluggy
 
 from .component import Ambient, ComponentKind, EnvironmentKind
+from .xp import scalar_ops
 from .errors import ModelError
 from .parameters import Choice, Flag, Number, Quantity, parse_params
 
@@ -273,7 +274,7 @@ def parse_model(model: Model, *, plugin_manager: pluggy.PluginManager | None = N
     stages = parse_stages(model, kinds)
     check_stages(stages, graph, kinds)
     triggers = parse_triggers(model, kinds, stages)
-    medium = env_kinds["medium"].build(env_params["medium"], None)
+    medium = env_kinds["medium"].build(env_params["medium"], scalar_ops)
     rho, pa, Ta, *_ = medium(launch.altitude, 0.0)
     ambient = Ambient(pressure=pa, temperature=Ta, density=rho)
 

@@ -153,27 +153,31 @@ class Flight:
 
     def peak(self, at_steps: Callable[[Any, Any, Any], np.ndarray],
              dense: Callable[[Any, Any, Any], Callable[[float], float]]) -> float:
-        """Largest value over the flight: the largest at the solver's steps, refined on the dense output between
-        the neighbouring steps (a bounded scalar search).
+        """Largest value over the flight: the largest at the solver's steps of each segment, refined on the dense
+        output between the neighbouring steps (a bounded scalar search).
 
         ``at_steps(phase, sol, balance)`` gives the values at ``sol.t``; ``dense(phase, sol, balance)`` a
         function of time inside that segment.
         """
-        best, where = -math.inf, None
+        # every segment's largest step is refined: a peak on a segment boundary (an event) may rise just inside
+        # either neighbour, where no step of that segment shows it
+        best, where = -math.inf, []
         for j, (ph, sol, bal) in enumerate(self.phased()):
             v = np.asarray(at_steps(ph, sol, bal), dtype=float)
             k = int(np.argmax(v))
-            if v[k] > best:
-                best, where = float(v[k]), (j, k)
-        if where is None:
+            best = max(best, float(v[k]))
+            where.append((j, k))
+        if not where:
             return math.nan
-        j, k = where
-        ph, sol, bal = self.segments[j]
-        n = len(sol.t)
-        if n > 1 and getattr(sol, "sol", None) is not None:
-            bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
-            best = _refine_max(dense(ph, sol, bal), float(sol.t[max(k - 1, 0)]), float(sol.t[min(k + 1, n - 1)]),
-                               best)
+        top = best
+        for j, k in where:
+            ph, sol, bal = self.segments[j]
+            n = len(sol.t)
+            if n > 1 and getattr(sol, "sol", None) is not None:
+                bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
+                top = _refine_max(dense(ph, sol, bal), float(sol.t[max(k - 1, 0)]), float(sol.t[min(k + 1, n - 1)]),
+                                  top)
+        best = top
         return best
 
     @cached_property

@@ -6,7 +6,8 @@ functions under fixed names. Assembly passes :data:`scalar_ops` for a single fli
 The convention for code written against it:
 
 1. Use ``ops.sqrt``, ``ops.exp``, ``ops.log``, ``ops.sin``, ``ops.cos``, ``ops.maximum``, ``ops.minimum``,
-   ``ops.abs``, ``ops.clip``, ``ops.interp`` for arithmetic that Python's operators do not cover.
+   ``ops.abs``, ``ops.clip``, ``ops.interp`` (linear, held at the ends), ``ops.layer`` (which interval of a
+   sorted table) and ``ops.take`` for arithmetic and look-ups that Python's operators do not cover.
 2. Do not branch with ``if`` on a value that may differ between designs. Choose with
    ``ops.where(cond, a, b)`` (both already computed) or ``ops.branch(cond, f_true, f_false, *args)`` (a
    regime choice: one function is called for a float; for arrays each function is called only when some
@@ -38,6 +39,7 @@ Examples
 from __future__ import annotations
 
 import math
+from bisect import bisect_right
 from typing import Any, Callable
 
 import numpy as np
@@ -76,7 +78,25 @@ class ScalarOps:
 
     @staticmethod
     def interp(x: float, xp: Any, fp: Any) -> float:
-        return float(np.interp(x, xp, fp))
+        """Linear interpolation, held at the end values outside ``xp`` (as ``numpy.interp``)."""
+        if x <= xp[0]:
+            return float(fp[0])
+        if x >= xp[-1]:
+            return float(fp[-1])
+        k = bisect_right(xp, x) - 1
+        x0, f0 = xp[k], fp[k]
+        return float(f0 + (fp[k + 1] - f0) * (x - x0) / (xp[k + 1] - x0))
+
+    @staticmethod
+    def layer(x: float, edges: Any) -> int:
+        """Index k of the interval edges[k] <= x < edges[k + 1] (0 below the first edge)."""
+        k = bisect_right(edges, x) - 1
+        return k if k > 0 else 0
+
+    @staticmethod
+    def take(values: Any, k: Any) -> Any:
+        """``values[k]`` (for arrays: per design)."""
+        return values[k]
 
     @staticmethod
     def branch(cond: Any, f_true: Callable, f_false: Callable, *args: Any) -> Any:
@@ -109,6 +129,14 @@ class ArrayOps:
     @staticmethod
     def interp(x: Any, xp: Any, fp: Any) -> Any:
         return np.interp(x, xp, fp)
+
+    @staticmethod
+    def layer(x: Any, edges: Any) -> Any:
+        return np.maximum(np.searchsorted(edges, x, side="right") - 1, 0)
+
+    @staticmethod
+    def take(values: Any, k: Any) -> Any:
+        return np.asarray(values)[k]
 
     @staticmethod
     def branch(cond: Any, f_true: Callable, f_false: Callable, *args: Any) -> Any:

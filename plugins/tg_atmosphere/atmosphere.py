@@ -91,22 +91,24 @@ class StandardAtmosphere1976(EnvironmentKind):
                              "so the wind never reaches wind_speed",
                              "raise wind_ceiling above the reference height or lower the reference height")
 
+    vectorised = True
+
     @classmethod
     def build(cls, p, ops):
-        """``medium(z, t) -> (rho, p, T, wind_x, wind_y, wind_z)`` in SI; scalar z only."""
+        """``medium(z, t) -> (rho, p, T, wind_x, wind_y, wind_z)`` in SI; one definition for floats and arrays."""
         datum = p.datum_altitude
         wind = power_law_wind(speed=p.wind_speed, azimuth_rad=p.wind_azimuth,   # parsed to radians (SI)
                               reference_height=p.wind_reference_height, exponent=p.wind_exponent,
-                              ceiling=p.wind_ceiling)
+                              ceiling=p.wind_ceiling, ops=ops)
         if p.altitude_type == "geopotential":
             def medium(z, t):
-                T, pa, rho = atmosphere_1976(datum + z)
+                T, pa, rho = atmosphere_1976(datum + z, ops)
                 wx, wy, wz = wind(z)
                 return (rho, pa, T, wx, wy, wz)
         else:
             def medium(z, t):
                 Z = datum + z
-                T, pa, rho = atmosphere_1976(R0 * Z / (R0 + Z))
+                T, pa, rho = atmosphere_1976(R0 * Z / (R0 + Z), ops)
                 wx, wy, wz = wind(z)
                 return (rho, pa, T, wx, wy, wz)
         return medium

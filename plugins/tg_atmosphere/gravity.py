@@ -66,9 +66,11 @@ class InverseSquareGravity(EnvironmentKind):
                              f"(radius {p.radius:g} m)",
                              "give the launch site's height above sea level, e.g. \"1400 m\"")
 
+    vectorised = True
+
     @classmethod
     def build(cls, p, ops):
-        """``gravity(z) -> g`` (m/s^2, acting along -z); scalar z only."""
+        """``gravity(z) -> g`` (m/s^2, acting along -z); one definition for floats and arrays."""
         g0, r0, base = p.g0, p.radius, p.radius + p.datum_altitude
 
         def gravity(z):

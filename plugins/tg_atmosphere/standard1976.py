@@ -82,7 +82,9 @@ Examples
 from __future__ import annotations
 
 import math
-from bisect import bisect_right
+from typing import Any
+
+from thrustgraph.xp import scalar_ops
 
 __all__ = [
     "G0", "M0", "R_STAR", "R_AIR", "R0", "T0", "P0", "LAYERS", "H_TOP", "Z_TOP", "H_LOW",
@@ -163,21 +165,34 @@ def in_range(H: float) -> bool:
     return 0.0 <= H <= geopotential_altitude(Z_TOP)
 
 
-def atmosphere_1976(H: float) -> tuple[float, float, float]:
+_LB = [row[1] for row in LAYERS]
+_TB = [row[2] for row in LAYERS]
+_PB = [row[3] for row in LAYERS]
+
+
+def atmosphere_1976(H: Any, ops: Any = scalar_ops) -> tuple[Any, Any, Any]:
     """Temperature (K), pressure (Pa) and density (kg/m^3) at geopotential altitude H (m).
 
     Exact to the standard from H = 0 to 84 852 m; outside, the stated
-    extrapolation of the module docstring.
+    extrapolation of the module docstring. One definition for floats and for arrays of designs (``ops``:
+    :mod:`thrustgraph.xp`).
 
     >>> T, p, rho = atmosphere_1976(0.0)
     >>> T, p, round(rho, 5)
     (288.15, 101325.0, 1.225)
     """
-    if H < H_LOW:
-        H = H_LOW
-    k = bisect_right(_HB, H) - 1
-    if k < 0:
-        k = 0  # below sea level: layer 0 continues
-    Hb, L, Tb, pb = LAYERS[k]
-    T, p = _layer_pressure(pb, Tb, L, H - Hb)
+    H = ops.maximum(H, H_LOW)
+    k = ops.layer(H, _HB)      # below sea level: layer 0 continues
+    Hb, L, Tb, pb = ops.take(_HB, k), ops.take(_LB, k), ops.take(_TB, k), ops.take(_PB, k)
+    dH = H - Hb
+    T = Tb + L * dH
+    p = ops.branch(L == 0.0, _isothermal, _gradient, pb, Tb, T, L, dH, ops)
     return T, p, p / (R_AIR * T)
+
+
+def _isothermal(pb, Tb, T, L, dH, ops):
+    return pb * ops.exp(-_GMR * dH / Tb)
+
+
+def _gradient(pb, Tb, T, L, dH, ops):
+    return pb * (Tb / T) ** (_GMR / ops.where(L == 0.0, 1.0, L))

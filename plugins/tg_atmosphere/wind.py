@@ -31,15 +31,19 @@ Examples
 
 from __future__ import annotations
 
-import math
-from typing import Callable
+from typing import Any, Callable
+
+from thrustgraph.xp import scalar_ops
 
 __all__ = ["power_law_wind"]
 
 
-def power_law_wind(*, speed: float, azimuth_rad: float, reference_height: float, exponent: float,
-                   ceiling: float) -> Callable[[float], tuple[float, float, float]]:
+def power_law_wind(*, speed: Any, azimuth_rad: Any, reference_height: Any, exponent: Any,
+                   ceiling: Any, ops: Any = scalar_ops) -> Callable[[Any], tuple[Any, Any, Any]]:
     """Build ``wind(z) -> (wx, wy, wz)`` (m/s) for the power-law profile of the module docstring.
+
+    One definition for floats and for arrays of designs (``ops``: :mod:`thrustgraph.xp`; the parameters
+    may then be arrays too).
 
     Parameters
     ----------
@@ -54,26 +58,21 @@ def power_law_wind(*, speed: float, azimuth_rad: float, reference_height: float,
     ceiling : float
         Height above which the speed stays constant, m (> 0).
     """
-    cx, cy = math.cos(azimuth_rad), math.sin(azimuth_rad)
-    if speed == 0.0:
-        calm = (0.0, 0.0, 0.0)
-
-        def wind(z: float) -> tuple[float, float, float]:
-            return calm
-        return wind
-    if exponent == 0.0:
-        const = (speed * cx, speed * cy, 0.0)
-
-        def wind(z: float) -> tuple[float, float, float]:
-            return const
-        return wind
-    ux, uy = speed * cx, speed * cy
+    ux, uy = speed * ops.cos(azimuth_rad), speed * ops.sin(azimuth_rad)
+    if ops.all(speed == 0.0):
+        def calm(z: Any) -> tuple[Any, Any, Any]:
+            return (0.0 * z, 0.0 * z, 0.0 * z)
+        return calm
+    if ops.all(exponent == 0.0):
+        def const(z: Any) -> tuple[Any, Any, Any]:
+            return (ux + 0.0 * z, uy + 0.0 * z, 0.0 * z)
+        return const
     inv = 1.0 / reference_height
 
-    def wind(z: float) -> tuple[float, float, float]:
-        zc = z if z < ceiling else ceiling
-        if zc <= 0.0:
-            return (0.0, 0.0, 0.0)
-        f = (zc * inv) ** exponent
-        return (ux * f, uy * f, 0.0)
+    def wind(z: Any) -> tuple[Any, Any, Any]:
+        zc = ops.minimum(z, ceiling)
+        above = zc > 0.0
+        # below the datum the speed is 0 (the power of a clipped height stays finite there)
+        f = ops.where(above, (ops.maximum(zc, 1e-300) * inv) ** exponent, 0.0)
+        return (ux * f, uy * f, 0.0 * f)
     return wind

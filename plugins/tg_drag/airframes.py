@@ -84,6 +84,7 @@ class _TableAirframe(ComponentKind):
     """Shared parts: dry mass, reference area and the drag force of a table coefficient."""
 
     role = "body"
+    vectorised = True   # one definition for floats and arrays (thrustgraph.xp)
 
     @classmethod
     def describe_mass(cls, p, amb):
@@ -125,18 +126,16 @@ class MachTableAirframe(_TableAirframe):
 
     @classmethod
     def build_body(cls, p, ops):
-        cd = clamped_interpolator(p.drag_table[:, 0], p.drag_table[:, 1])
+        cd = clamped_interpolator(p.drag_table[:, 0], p.drag_table[:, 1], ops)
         k = 0.5 * cls._area(p)
         gr = p.gas_gamma * p.gas_constant
         cd_top = float(p.drag_table[-1, 1])
-        sqrt = math.sqrt
 
         def drag(air):
             rho, T, sp = air[0], air[2], air[6]
-            if T > 0.0:
-                c = cd(sp / sqrt(gr * T))
-            else:
-                c = cd_top          # no temperature (vacuum): Mach number infinite, the last row applies
+            # no temperature (vacuum): the Mach number is infinite and the last row applies
+            warm = T > 0.0
+            c = ops.where(warm, cd(sp / ops.sqrt(gr * ops.where(warm, T, 1.0))), cd_top)
             f = -k * rho * c * sp
             return (f * air[3], f * air[4], f * air[5])
         return BodyFns(mass=p.dry_mass, force=drag, force_name="drag")
@@ -158,7 +157,7 @@ class SpeedTableAirframe(_TableAirframe):
 
     @classmethod
     def build_body(cls, p, ops):
-        cd = clamped_interpolator(p.drag_table[:, 0], p.drag_table[:, 1])
+        cd = clamped_interpolator(p.drag_table[:, 0], p.drag_table[:, 1], ops)
         k = 0.5 * cls._area(p)
 
         def drag(air):

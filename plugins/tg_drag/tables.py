@@ -2,8 +2,8 @@
 
 The interpolators are built once at assembly from a parsed
 :class:`~thrustgraph.parameters.Table` (an SI array whose first column
-increases strictly) and are plain-float functions (a bisection over a tuple:
-no numpy call per evaluation, so they are cheap inside the right-hand side).
+increases strictly) and are written once for floats and arrays through ``ops.interp`` (for floats a
+bisection over a tuple, no numpy call per evaluation; for arrays of designs ``numpy.interp``).
 
 Examples
 --------
@@ -14,18 +14,21 @@ Examples
 
 from __future__ import annotations
 
-from bisect import bisect_right
-from typing import Callable, Sequence
+from typing import Any, Callable, Sequence
 
 import numpy as np
+
+from thrustgraph.xp import scalar_ops
 
 from thrustgraph.errors import ModelError
 
 __all__ = ["clamped_interpolator", "check_column"]
 
 
-def clamped_interpolator(xs: Sequence[float], ys: Sequence[float]) -> Callable[[float], float]:
+def clamped_interpolator(xs: Sequence[float], ys: Sequence[float], ops: Any = scalar_ops) -> Callable[[Any], Any]:
     """``f(x)``: linear interpolation in (xs, ys); below xs[0] it returns ys[0], above xs[-1] ys[-1].
+
+    One definition for floats and arrays of designs (``ops``: :mod:`thrustgraph.xp`).
 
     Parameters
     ----------
@@ -33,19 +36,19 @@ def clamped_interpolator(xs: Sequence[float], ys: Sequence[float]) -> Callable[[
         Strictly increasing abscissae (at least two).
     ys : sequence of float
         Values at ``xs``.
+
+    >>> f = clamped_interpolator([0.0, 1.0], [2.0, 4.0])
+    >>> f(-1.0), f(0.25), f(3.0)
+    (2.0, 2.5, 4.0)
     """
     x = tuple(float(v) for v in xs)
     y = tuple(float(v) for v in ys)
-    slope = tuple((y[k + 1] - y[k]) / (x[k + 1] - x[k]) for k in range(len(x) - 1))
-    x0, xn, y0, yn = x[0], x[-1], y[0], y[-1]
+    if ops.arrays:
+        x, y = np.array(x), np.array(y)  # type: ignore[assignment]
+    interp = ops.interp
 
-    def f(v: float) -> float:
-        if v <= x0:
-            return y0
-        if v >= xn:
-            return yn
-        k = bisect_right(x, v) - 1
-        return y[k] + slope[k] * (v - x[k])
+    def f(v: Any) -> Any:
+        return interp(v, x, y)
     return f
 
 

@@ -106,35 +106,47 @@ class PrescribedJet(ComponentKind):
     def describe_mass(cls, p, amb):
         return {"propellant": cls._propellant(p)}
 
+    vectorised = True
+
     @classmethod
     def build_jet(cls, p, i, ops, amb):
+        """One definition for one design (floats) and for an ensemble (``s[k]``, ``mode`` and numeric ``p``
+        fields arrays; a mode shared by every design arrives as an ``int``). The thrust table is shared by
+        every design."""
         ve = p.exhaust_velocity
         if p.programme == "constant-flow":
             mdot0 = p.mass_flow
 
-            def jet(t, s, mode, pa):
-                if mode != 0:
-                    return (0.0, 0.0, pa, 0.0)
-                return (mdot0, ve, pa, 0.0)
+            def burning(t, s, pa):
+                return (mdot0 + 0.0 * s[i], ve + 0.0 * s[i])
             burnout = EventSpec("burnout", lambda t, s, drive: s[i], -1.0, ("burning",), "spent", needs_drive=False)
         else:
             tt = [float(x) for x in p.thrust_curve[:, 0]]
             ff = [float(x) for x in p.thrust_curve[:, 1]]
             t_last = tt[-1]
 
-            def jet(t, s, mode, pa):
-                if mode != 0:
-                    return (0.0, 0.0, pa, 0.0)
-                F = float(np.interp(s[i + 1], tt, ff))
-                return (F / ve, ve, pa, 0.0)
+            def burning(t, s, pa):
+                return (ops.interp(s[i + 1], tt, ff) / ve, ve + 0.0 * s[i])
             burnout = EventSpec("burnout", lambda t, s, drive: s[i + 1] - t_last, 1.0, ("burning",), "spent",
                                 needs_drive=False)
+
+        def jet(t, s, mode, pa):
+            if type(mode) is int:          # every design in the same mode (always so for one design)
+                if mode != 0:
+                    return (0.0, 0.0, pa, 0.0)
+                mdot, v = burning(t, s, pa)
+                return (mdot, v, pa, 0.0)
+            on = mode == 0
+            mdot, v = burning(t, s, pa)
+            return (ops.where(on, mdot, 0.0), ops.where(on, v, 0.0), pa, 0.0)
 
         def mass(s):
             return s[i]
 
         def derivs(t, s, mode, mdot):
-            return (-mdot, 1.0 if mode == 0 else 0.0)
+            if type(mode) is int:
+                return (-mdot, 1.0 if mode == 0 else 0.0)
+            return (-mdot, ops.where(mode == 0, 1.0, 0.0))
 
         def signals(t, s, mode):
             return {"propellant_mass": s[i], "burn_clock": s[i + 1]}
