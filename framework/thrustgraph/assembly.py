@@ -21,6 +21,7 @@ from typing import Any
 import pluggy
 
 from .component import BodyFns, EventSpec, FlowFns, JetFns, Mode, SourceFns, VolumeFns, scalar_ops
+from .contract import check_system
 from .errors import ModelError
 from .model import Model, ParsedModel, parse_model
 from .vectors import Vec, unit_from_angles
@@ -220,7 +221,8 @@ def assemble(model: Model | ParsedModel, *, plugin_manager: pluggy.PluginManager
 
     medium = parsed.env_kinds["medium"].build(parsed.env_params["medium"], ops)
     gravity = parsed.env_kinds["gravity"].build(parsed.env_params["gravity"], ops)
-    return System(parsed=parsed, state_names=tuple(names), y0=tuple(y0), slices=slices, owners=tuple(owners),
+    system = System(parsed=parsed, state_names=tuple(names), y0=tuple(y0), slices=slices, owners=tuple(owners),
                   moded=tuple(moded), modes=modes, mode0=tuple(mode0), fixed_mass=fixed_mass, bodies=tuple(bodies),
                   volumes=tuple(volumes), lines=tuple(lines), jets=tuple(jets), sources=tuple(sources),
                   medium=medium, gravity=gravity, launch=launch, run=parsed.run, guide_dir=u, events=tuple(events))
+    return check_system(system, ops)  # the plugin contract, once per callable (thrustgraph.contract)

@@ -41,7 +41,7 @@ from scipy.optimize import minimize_scalar
 
 from .assembly import System, assemble
 from .balance import Kinematics
-from .errors import IntegrationError, ModelError, ThrustgraphError
+from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError
 from .model import ParsedModel
 
 __all__ = ["Output", "OUTPUTS", "output_names", "check_outputs", "Outcome", "summarise", "fly_design",
@@ -261,13 +261,16 @@ def fly_design(parsed: ParsedModel, outputs: Sequence[str] | None = None, *, rto
 
     Never raises for a bad design: a model error (a parameter combination a
     kind refuses), no lift-off, or an integration failure give
-    ``Outcome("screened", reason)``.
+    ``Outcome("screened", reason)``. A plugin that breaks the contract
+    (:class:`~thrustgraph.errors.PluginError`) is not a bad design: it raises.
     """
     from .integrate import fly_segments
 
     try:
         system = assemble(parsed)
         segs = fly_segments(system, rtol=rtol, atol=atol, audit=False)
+    except PluginError:     # a broken plugin is not a bad design: the study stops with the plugin's message
+        raise
     except ModelError as exc:
         return Outcome(STATUS_SCREENED, f"model error: {exc}")
     except IntegrationError as exc:

@@ -20,6 +20,7 @@ import pluggy
 
 from . import hookspecs
 from .component import ROLES, ComponentKind, EnvironmentKind
+from .contract import check_declaration
 from .errors import PluginError
 
 __all__ = ["get_plugin_manager", "component_kinds", "environment_kinds", "plugin_versions"]
@@ -69,6 +70,7 @@ def _merge(pm: pluggy.PluginManager, hook_name: str, base: type) -> dict[str, ty
             if base is ComponentKind and cls.role not in ROLES:
                 raise PluginError(f"plugin {plugin_name!r}: kind {cls.kind!r} has role {cls.role!r}; "
                                   f"expected one of {ROLES}")
+            check_declaration(cls, pm, impl.plugin)
             table[cls.kind] = cls
             owner[cls.kind] = plugin_name
     return table
