@@ -9,11 +9,9 @@ Every fenced block of the guide is one of three things, and each is exercised he
 * an excerpt: a shorter block quoting one of the files (its lines appear in that file, in order).
 
 Installing: pip would build a wheel and unpack it into site-packages together with a ``*.dist-info`` directory
-whose ``entry_points.txt`` carries the ``[project.entry-points.thrustgraph]`` table. The test writes that
-installed layout itself, into a temporary directory put on ``PYTHONPATH`` (building a wheel needs ``wheel`` and
-writes into the test's own environment): the package directories named in ``[tool.setuptools] packages``, and
-``METADATA`` and ``entry_points.txt`` from the page's ``[project]`` table. ``importlib.metadata`` then finds the
-distribution as it finds any installed one, and thrustgraph's plugin manager loads it through the entry point.
+whose ``entry_points.txt`` carries the ``[project.entry-points.thrustgraph]`` table. :mod:`pluginguide` writes that
+installed layout itself, into a temporary directory put on ``PYTHONPATH`` (building a wheel needs ``wheel``, which
+the test environment need not have, and ``pip install`` would write into the test's own environment).
 """
 
 from __future__ import annotations
@@ -21,81 +19,26 @@ from __future__ import annotations
 import csv
 import json
 import math
-import os
-import re
 import shlex
-import shutil
-import subprocess
-import sys
 import tomllib
 from pathlib import Path
 
 import pytest
 import tomli_w
+from pluginguide import FILE, GUIDE, cli, guide_blocks, guide_files, install_guide_family
 
 from thrustgraph.contract import BUILDERS, HOOKS
-
-ROOT = Path(__file__).resolve().parents[1]
-GUIDE = ROOT / "docs" / "plugins.md"
-FENCE = re.compile(r"^```(\w*)\n(.*?)^```", re.S | re.M)
-FILE = re.compile(r"#\s*file:\s*(\S+)")
-
-
-def guide_blocks() -> list[tuple[str, str]]:
-    """(language, text) of every fenced block of the guide, in order."""
-    return FENCE.findall(GUIDE.read_text())
-
-
-def guide_files() -> dict[str, str]:
-    return {FILE.match(body).group(1): body for _, body in guide_blocks() if FILE.match(body)}
-
-
-def install_from_source(src: Path, site: Path) -> dict:
-    """Install the distribution whose pyproject.toml is in ``src`` into ``site`` as an installer lays it out."""
-    project_file = tomllib.loads((src / "pyproject.toml").read_text())
-    assert project_file["build-system"]["build-backend"] == "setuptools.build_meta"
-    project = project_file["project"]
-    site.mkdir(parents=True, exist_ok=True)
-    for package in project_file["tool"]["setuptools"]["packages"]:
-        shutil.copytree(src / package, site / package)
-    dist = site / f"{project['name'].replace('-', '_')}-{project['version']}.dist-info"
-    dist.mkdir()
-    (dist / "METADATA").write_text(f"Metadata-Version: 2.1\nName: {project['name']}\nVersion: {project['version']}\n"
-                                   f"Summary: {project.get('description', '')}\n")
-    groups = project.get("entry-points", {})
-    (dist / "entry_points.txt").write_text("".join(
-        f"[{group}]\n" + "".join(f"{name} = {target}\n" for name, target in table.items()) + "\n"
-        for group, table in groups.items()))
-    (dist / "top_level.txt").write_text("".join(f"{p}\n" for p in project_file["tool"]["setuptools"]["packages"]))
-    (dist / "INSTALLER").write_text("thrustgraph-tests\n")
-    return project
-
-
-def cli(args: list[str], cwd: Path, site: Path) -> subprocess.CompletedProcess:
-    env = {"PYTHONPATH": str(site), "PATH": os.environ.get("PATH", "/usr/bin:/bin"), "MPLBACKEND": "Agg"}
-    return subprocess.run([sys.executable, "-m", "thrustgraph.cli", *args], cwd=cwd, env=env, capture_output=True,
-                          text=True)
 
 
 @pytest.fixture(scope="module")
 def guide(tmp_path_factory):
     """The guide's family, written from the page and installed; the page's commands run once, in order."""
     work = tmp_path_factory.mktemp("guide")
-    src, site = work / "sharp-orifices", work / "site"
-    models = []
-    for path, body in guide_files().items():
-        if path.endswith(".toml") and path != "pyproject.toml":
-            target = work / path          # a model: where the commands run
-            models.append(target)
-        else:
-            target = src / path
-        target.parent.mkdir(parents=True, exist_ok=True)
-        target.write_text(body)
-    project = install_from_source(src, site)
+    site, models = install_guide_family(work)
     commands = [line for lang, body in guide_blocks() if lang == "sh"
                 for line in body.splitlines() if line.startswith("thrustgraph ")]
     runs = [(line, cli(shlex.split(line)[1:], work, site)) for line in commands]
-    return {"work": work, "site": site, "project": project, "models": models, "runs": runs}
+    return {"work": work, "site": site, "models": models, "runs": runs}
 
 
 def test_every_block_is_a_file_a_command_or_an_excerpt_of_a_file():

@@ -57,6 +57,14 @@ The implementer's contract
    (the full convention is in that module's docstring); its scalar build must
    stay bit-identical.
 8. Return safety cautions for the model from :meth:`ComponentKind.cautions`.
+9. Write every :class:`~thrustgraph.parameters.Quantity` default with its
+   unit (``default="20 mm"``) and declare each parameter, state, mode and
+   signal or summary key once. :mod:`thrustgraph.contract` checks this when
+   the kind is registered, and checks at assembly that every callable accepts
+   the positional arguments listed in the bundles' docstrings below and
+   returns the documented tuple length, finite numbers at the initial state,
+   and a dict for signals; a mismatch is a
+   :class:`~thrustgraph.errors.ContractError` naming the plugin and the hook.
 """
 
 from __future__ import annotations

@@ -39,6 +39,7 @@ import math
 import numbers
 import textwrap
 import traceback
+import warnings
 import weakref
 from dataclasses import dataclass
 from typing import Any, Callable, Iterator
@@ -134,7 +135,9 @@ _BUNDLE_FIELDS = {
 _DOC = "see the contract in thrustgraph/component.py and docs/plugins.md"
 
 _DECLARED: "weakref.WeakSet[type]" = weakref.WeakSet()   # kinds whose declaration passed (once per class)
-_PASSED: set[tuple] = set()                               # (kind, hook, code) that passed at an initial state
+# (kind, hook, id of the code, number of defaults) -> the code object, for the callables that passed at an initial
+# state; the value keeps the code alive, so that its id is not reused while the key stands
+_PASSED: dict[tuple, Any] = {}
 _PASSED_LIMIT = 4096
 
 
@@ -146,9 +149,10 @@ def describe_plugin(pm: pluggy.PluginManager, plugin: object, cls: type | None =
     """``plugin 'NAME' (distribution DIST VERSION, module MOD)``: who to tell about a broken contract."""
     name = pm.get_name(plugin) or ""
     if not name or name.isdigit():      # an object registered without a name: pluggy names it by id
-        name = getattr(plugin, "__name__", None) or type(plugin).__qualname__
+        name = getattr(plugin, "__name__", None) or type(plugin).__name__
     parts = [f"distribution {d.project_name} {d.version}" for p, d in pm.list_plugin_distinfo() if p is plugin]
-    parts.append(f"module {cls.__module__ if cls is not None else getattr(plugin, '__name__', type(plugin).__module__)}")
+    module = cls.__module__ if cls is not None else getattr(plugin, "__name__", type(plugin).__module__)
+    parts.append(f"module {module}")
     return f"plugin {name!r} ({', '.join(parts)})"
 
 
@@ -369,7 +373,7 @@ def _check_callables(cls: type, where: Callable[[str], str]) -> None:
 # Callables, when a vehicle is assembled
 # ---------------------------------------------------------------------------
 
-def _code_key(fn: Any) -> Any:
+def _code_of(fn: Any) -> tuple[Any, int] | None:
     f = getattr(fn, "__func__", fn)
     code = getattr(f, "__code__", None)
     return None if code is None else (code, len(getattr(f, "__defaults__", None) or ()))
@@ -416,14 +420,14 @@ def check_system(system: Any, ops: Any = scalar_ops) -> Any:
     """
     if ops is not scalar_ops:
         return system
-    keys = []
+    keys: list | None = []
     for n, cls, hook, fn in _callables(system):
-        code = _code_key(fn)
-        if code is None:
+        code = _code_of(fn)
+        if code is None:            # a callable object or a built-in: tried at every assembly
             keys = None
             break
-        keys.append((cls, hook.name, code))
-    if keys is not None and all(k in _PASSED for k in keys):
+        keys.append(((cls, hook.name, id(code[0]), code[1]), code[0]))
+    if keys is not None and all(k in _PASSED for k, _ in keys):
         return system
     _Trial(system).run()
     if keys is not None:
@@ -466,23 +470,28 @@ class _Trial:
             raise self.fail(comp, cls, item, problem, expect)
         state = args[hook.args.index("s")] if "s" in hook.args else None
         before = list(state) if state is not None else None
-        try:
-            out = fn(*args)
-        except ThrustgraphError:
-            raise
-        except Exception as exc:
-            frames = traceback.extract_tb(exc.__traceback__)
-            at = f" (at {'/'.join(frames[-1].filename.split('/')[-2:])}:{frames[-1].lineno})" if frames else ""
-            raise self.fail(comp, cls, item, f"raised {type(exc).__name__}: {exc}{at} when called as {hook.call} "
-                            f"at the initial state", f"{expect}; refuse in check() the parameter values it cannot "
-                            "handle") from None
+        with warnings.catch_warnings(record=True) as warned:   # numpy's warnings join the message, if any
+            warnings.simplefilter("always")
+            try:
+                out = fn(*args)
+            except ThrustgraphError:
+                raise
+            except Exception as exc:
+                frames = traceback.extract_tb(exc.__traceback__)
+                at = f" (at {'/'.join(frames[-1].filename.split('/')[-2:])}:{frames[-1].lineno})" if frames else ""
+                raise self.fail(comp, cls, item, f"raised {type(exc).__name__}: {exc}{at} when called as "
+                                f"{hook.call} at the initial state", f"{expect}; refuse in check() the parameter "
+                                "values it cannot handle") from None
         if before is not None and state != before:
             raise self.fail(comp, cls, item, "changed the state list s it was given", "never modify s: adaptive "
                             "solvers evaluate and reject trial steps; return new values instead")
         bad = self._shape(cls, hook, out)
         if bad:
+            said = "; ".join(dict.fromkeys(f"{w.category.__name__}: {w.message}" for w in warned))
             raise self.fail(comp, cls, item, f"{bad} when called as {hook.call} at the initial state, where "
-                            f"{hook.returns} was expected", expect)
+                            f"{hook.returns} was expected" + (f" (it warned {said})" if said else ""), expect)
+        for w in warned:                  # a callable that keeps the contract keeps its warnings too
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
         return out
 
     def _shape(self, cls: type, hook: Hook, out: Any) -> str | None:
