@@ -7,6 +7,7 @@ through a real entry point (see tests/pluginguide.py) and run through the comman
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import pickle
 import re
@@ -16,13 +17,16 @@ from pluginguide import GUIDE, cli, install_guide_family
 
 from thrustgraph import contract, hookimpl
 from thrustgraph.assembly import assemble
-from thrustgraph.component import BodyFns, ComponentKind, EnvironmentKind, FlowFns, JetFns, SourceFns, VolumeFns
+from thrustgraph.component import (BodyFns, ComponentKind, EnvironmentKind, FlowFns, JetFns, SourceFns, StateVar,
+                                   VolumeFns)
 from thrustgraph.contract import HOOKS, check_system
+from thrustgraph.designs import resolve
 from thrustgraph.errors import ContractError, PluginError
 from thrustgraph.model import parse_model
 from thrustgraph.modelfile import default_model_path, load_model
 from thrustgraph.parameters import Number, Quantity
 from thrustgraph.plugins import component_kinds, environment_kinds, get_plugin_manager
+from thrustgraph.studies import evaluate
 
 PLUGIN = "plugin 'sharp_orifices' (distribution sharp-orifices 0.1.0, module sharp_orifices"
 
@@ -125,8 +129,6 @@ def test_a_study_with_a_broken_plugin_stops_with_the_one_error(tmp_path):
 
 def test_hooks_table_lists_every_callable_of_every_bundle():
     """The checker's table and component.py's bundles name the same callables."""
-    import dataclasses
-
     for bundle in (BodyFns, VolumeFns, FlowFns, SourceFns, JetFns):
         fields = {f.name for f in dataclasses.fields(bundle) if "Callable" in str(f.type)}
         listed = {h.field for h in HOOKS.values() if h.owner == bundle.__name__}
@@ -189,7 +191,6 @@ def test_a_callable_that_changes_the_state_list_is_refused():
         role = "volume"
         summary = "a tank whose outlet writes into s"
         parameters = ()
-        from thrustgraph.component import StateVar
         states = (StateVar("mass", "kg"),)
 
         @classmethod
@@ -332,9 +333,7 @@ def test_a_dimensionless_number_takes_a_bare_default():
 
 
 def test_every_bundled_model_keeps_the_contract():
-    from thrustgraph.modelfile import default_model_path as d
-
-    for path in sorted(d().parent.glob("*.toml")):
+    for path in sorted(default_model_path().parent.glob("*.toml")):
         contract._PASSED.clear()
         system = assemble(load_model(path))
         assert check_system(system) is system
@@ -342,9 +341,6 @@ def test_every_bundled_model_keeps_the_contract():
 
 def test_the_callables_are_tried_once_not_once_per_design(monkeypatch):
     """A study assembles its vehicle per design (single flights); the contract is tried on the first only."""
-    from thrustgraph.designs import resolve
-    from thrustgraph.studies import evaluate
-
     tried = []
     real = contract._Trial.run
     monkeypatch.setattr(contract._Trial, "run", lambda self: (tried.append(1), real(self))[1])

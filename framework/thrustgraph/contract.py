@@ -18,11 +18,12 @@ never in a traceback from inside the generated right-hand side.
   numbers, a dict of numbers for signals; it must not change the state list it
   is given. A callable whose code has passed once is not tried again: a study
   that assembles 10,000 designs of one vehicle checks its callables once (per
-  process), the first time.
+  process), the first time; a later design whose own numbers go wrong at its
+  start is the integrator's to report, as a screened design. Only the scalar
+  build is tried (the vectorised ensemble builds its arrays elsewhere).
 
 Examples
 --------
->>> from thrustgraph.component import FlowFns
 >>> print(HOOKS["FlowFns.flow"].call, "->", HOOKS["FlowFns.flow"].returns)
 flow(up, p_down, mode) -> (mdot, v_e, p_e, A_e, dthrust_dp)
 >>> def flow(up, p_down):          # the mode argument forgotten
