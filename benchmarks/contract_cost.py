@@ -49,7 +49,7 @@ def main() -> None:
 
     parsed = parse_model(load_model(default_model_path()))
     real_check = assembly_module.check_system
-    bypass = lambda system, ops=None: system  # noqa: E731
+    bypass = lambda system: system  # noqa: E731
 
     def without():
         assembly_module.check_system = bypass

@@ -153,11 +153,11 @@ def test_a_shared_mode_gives_the_numbers_of_a_mixed_batch(parsed):
     for kin in (1, 2):
         k = np.full(4, kin, dtype=np.int8)
         mixed, aux = sysa.rhs(np.zeros(4), Y, modes, k)
-        assert not isinstance(sysa.phase(modes, k).vmode[0], int)
+        assert not isinstance(sysa.phase(modes, k).modes[0], int)
         for r in range(4):
             one = sysa.subset(np.array([r]))
             ph = one.phase(modes[:, [r]], k[[r]])
-            assert ph.vmode[0] == modes[0, r] and isinstance(ph.vmode[0], int)
+            assert ph.modes[0] == modes[0, r] and isinstance(ph.modes[0], int)
             alone, aux1 = one.rhs(np.zeros(1), Y[:, [r]], modes[:, [r]], k[[r]])
             assert np.array_equal(alone[:, 0], mixed[:, r]), (r, kin)
             assert np.array_equal(np.broadcast_to(aux1["thrust"], (1,)), np.broadcast_to(aux["thrust"], (4,))[[r]])

@@ -1,27 +1,7 @@
-"""The array twin of :data:`thrustgraph.component.scalar_ops`: elementwise helpers over numpy arrays of designs.
+"""Helpers of the vectorised ensemble: which kinds build array callables, and the allocator's trim threshold.
 
-When the vectorised ensemble (:mod:`thrustgraph.ensemble`) assembles N
-designs at once it passes :data:`array_ops` to the component kinds' builders.
-The contract for a kind that can do this:
-
-1. Set the class attribute ``vectorised = True``.
-2. In ``build_*``, test ``getattr(ops, "arrays", False)``; when true, the
-   numeric parameter fields of ``p`` (and of ``amb``) may be numpy arrays of
-   shape ``(N,)``, one value per design, or floats shared by all designs.
-   Flags, choices and vectors are shared by all designs.
-3. The callables then receive ``s`` as a list of arrays of shape ``(N,)``
-   (one per state), ``mode`` as an integer array of mode indices (or a
-   plain ``int`` when every design is in that mode, so a kind may skip its
-   selections), ``air`` and ``up`` tuples of arrays (an outlet's phase and
-   head may be plain floats shared by all designs), and return arrays (or
-   floats) in the same tuple layout as the scalar callables. They must be
-   branch-free over designs (``np.where`` over both branches, clipped square
-   roots and powers); a design's numbers must not depend on which other
-   designs share the arrays.
-4. ``initial_state(p, amb)`` must accept array parameters;
-   ``initial_mode`` and ``check`` are still called per design with floats.
-5. The scalar build (``scalar_ops``) stays exactly as it was: array support
-   must not change a single flight by one bit.
+The namespace itself (``array_ops``, the array twin of ``scalar_ops``) lives in :mod:`thrustgraph.xp`, with
+the convention for physics written once for floats and arrays; it is re-exported here.
 
 Examples
 --------
@@ -36,26 +16,11 @@ from typing import Any
 
 import numpy as np
 
+from .xp import ArrayOps, array_ops
+
 __all__ = ["ArrayOps", "array_ops", "vectorised", "keep_heap"]
 
 
-class ArrayOps:
-    """numpy ufuncs under the names of :class:`~thrustgraph.component.ScalarOps`."""
-
-    arrays = True
-    sqrt = staticmethod(np.sqrt)
-    exp = staticmethod(np.exp)
-    log = staticmethod(np.log)
-    where = staticmethod(np.where)
-    maximum = staticmethod(np.maximum)
-    minimum = staticmethod(np.minimum)
-
-    @staticmethod
-    def interp(x: Any, xp: Any, fp: Any) -> Any:
-        return np.interp(x, xp, fp)
-
-
-array_ops = ArrayOps()
 
 
 def vectorised(kind: Any) -> bool:

@@ -1,23 +1,11 @@
-"""N designs of one model assembled as arrays, and the vectorised momentum balance over them.
+"""N designs of one model assembled as arrays, flown by the one balance of :mod:`thrustgraph.balance`.
 
-:class:`ArraySystem` is the array twin of :class:`thrustgraph.assembly.System`
-plus :class:`thrustgraph.balance.Balance` for the family the vectorised
-ensemble flies: bodies without states, vessels discharging straight through
-one element to the outside along the body axis, a medium and a gravity field,
-on a launch guide or free. Every number that differs between designs is a
-numpy array of shape ``(N,)``; the component kinds build their callables with
-:data:`thrustgraph.arrayops.array_ops` (so the physics still comes from the
-plugins, and this module knows no device). The discrete phase is explicit
-per design: the mode of every moded component (integer arrays) and the
-kinematic constraint (guide or free).
-
-The balance follows :mod:`thrustgraph.balance` term by term: weight, drag,
-thrust ``mdot v_e + (p_e - p_a) A_e`` of each line along the axis, the
-internal-momentum term, and the liquid head in the accelerating frame solved
-with the acceleration by one Newton step from ``a = 0`` (exact when the thrust
-is affine in the outlet pressure, as for the quasi-steady Bernoulli jet; three
-steps when a vessel adds its internal momentum). On the guide, the
-acceleration is along the guide, with friction and the hold at its foot.
+:class:`ArraySystem` is the array twin of :class:`thrustgraph.assembly.System`: the same balance plan
+(:func:`thrustgraph.plan.build_plan`), built with :data:`thrustgraph.xp.array_ops` so that every number that
+differs between designs is a numpy array of shape ``(N,)``, and evaluated by the same
+:class:`~thrustgraph.balance.Balance` as a single flight (the physics still comes from the plugins; this
+module knows no device and restates no term of the balance). The discrete phase is explicit per design: the
+mode of every moded component (integer arrays) and the kinematic constraint (guide or free).
 
 Examples
 --------
@@ -42,9 +30,10 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from .arrayops import array_ops, vectorised
-from .assembly import KINEMATIC
-from .balance import Kinematics
+from .arrayops import vectorised
+from .balance import Balance, Kinematics
+from .plan import KINEMATIC, Constraint, build_plan
+from .xp import array_ops
 from .component import Ambient
 from .designs import DesignParameter, with_values
 from .model import ParsedModel
@@ -54,7 +43,6 @@ __all__ = ["ArraySystem", "Phase", "unsupported", "IMPULSE", "GUIDE", "FREE"]
 GUIDE, FREE = Kinematics.GUIDE, Kinematics.FREE
 #: Name of the quadrature state the ensemble adds: the time integral of the thrust magnitude.
 IMPULSE = "ensemble.impulse"
-_AFT = (-1.0, 0.0, 0.0)
 
 
 def unsupported(parsed: ParsedModel) -> str | None:
@@ -75,14 +63,9 @@ def unsupported(parsed: ParsedModel) -> str | None:
         if cls.role == "body" and cls.states:
             return f"components.{n} is a body with states"
         if cls.role == "volume":
-            p = parsed.params[n]
-            if tuple(getattr(p, "outlet_direction", _AFT)) != _AFT:
-                return f"components.{n} has an outlet off the body axis"
             for m in g.successors(n):
                 if parsed.kinds[m].role != "flow" or any(parsed.kinds[k].role != "boundary" for k in g.successors(m)):
                     return f"components.{n} discharges through elements in series"
-        if cls.role == "flow" and tuple(getattr(parsed.params[n], "direction", _AFT)) != _AFT:
-            return f"components.{n} jets off the body axis"
     return None
 
 
@@ -92,15 +75,11 @@ def _vary(p: Any, changes: dict[str, np.ndarray]) -> Any:
 
 @dataclasses.dataclass(frozen=True)
 class Phase:
-    """The discrete phase of the designs as :meth:`ArraySystem.rhs` uses it: which are free, whether all are,
-    whether any is, each vessel's mode (an ``int`` when shared by every design) and whether it is quiet in every
-    design."""
+    """The discrete phase of the designs as the balance takes it: each moded component's mode and the
+    kinematic constraint, each an ``int`` when every design shares it, else an integer array."""
 
-    free: np.ndarray
-    all_free: bool
-    vmode: list
-    quiet: list
-    any_free: bool
+    modes: tuple
+    kin: Any
 
 
 class ArraySystem:
@@ -187,45 +166,17 @@ class ArraySystem:
         self._build()
 
     def _build(self) -> None:
-        """The callables from the plugins, built over this system's arrays of designs, and what the balance
-        reads of their structure."""
+        """The plan from the plugins' callables, built over this system's arrays of designs, and its balance."""
         parsed = self.parsed
-        self.fixed_mass: Any = 0.0
-        self.bodies, self.volumes, flows = [], [], {}
-        self.events = []
-        for nm in parsed.model.components:
-            cls, p = parsed.kinds[nm], self.kp[nm]
-            i = self.slices.get(nm, (-1, 0))[0]
-            if cls.role == "body":
-                b = cls.build_body(p, array_ops)
-                self.fixed_mass = self.fixed_mass + b.mass
-                if b.force is not None:
-                    self.bodies.append((nm, b))
-            elif cls.role == "volume":
-                v = cls.build_volume(p, i, array_ops, self.amb)
-                self.volumes.append((nm, v))
-                self.events.extend((nm, e) for e in v.events)
-            elif cls.role == "flow":
-                f = cls.build_flow(p, array_ops)
-                flows[nm] = f
-                self.events.extend((nm, e) for e in f.events)
-        slot = {nm: k for k, nm in enumerate(self.moded)}
-        self.slot = slot
-        self.lines = []   # (volume index, volume slot, terminal name, terminal slot, FlowFns)
-        vindex = {nm: k for k, (nm, _) in enumerate(self.volumes)}
-        for nm, _ in self.volumes:
-            for m in parsed.graph.successors(nm):
-                self.lines.append((vindex[nm], slot.get(nm, -1), m, slot.get(m, -1), flows[m]))
-        self.internal = any(v.internal is not None for _, v in self.volumes)
-        self.newton = 3 if self.internal else 1
-        self._friction = bool(np.any(np.asarray(self.mu) > 0.0))
-        # per vessel and mode: True where it promises no outflow (Mode.outflow, as the single-flight kernel
-        # reads it) and watches no drive, so that its outlet need not be evaluated either
-        self._quiet = []
-        for nm, v in self.volumes:
-            ms = self.modes.get(nm, ())
-            watch = {w for e in v.events if e.needs_drive for w in e.when}
-            self._quiet.append(np.array([not m.outflow and m.name not in watch for m in ms] or [False]))
+        L = self.launch
+        constraint = Constraint(mount=parsed.launch.mount, u=self.u, x0=self.x0, friction=L.friction,
+                                guide_length=self.guide_length, follow_wind=self.follow,
+                                min_follow_speed=self.vmin, azimuth=L.azimuth)
+        self.plan = build_plan(parsed, self.kp, self.ep, array_ops, self.amb, self.slices, self.moded, constraint)
+        self.events = list(self.plan.events)
+        self.fixed_mass = self.plan.fixed_mass
+        self.slot = {nm: k for k, nm in enumerate(self.moded)}
+        self.balance = Balance(self, ops=array_ops)
 
     # ------------------------------------------------------------------
     def _initial_modes(self) -> None:
@@ -294,81 +245,51 @@ class ArraySystem:
     def masses(self, Y: np.ndarray) -> np.ndarray:
         s = list(Y)
         M = self.fixed_mass + 0.0 * s[0]
-        for _, v in self.volumes:
-            M = M + v.mass(s)
+        for v in self.plan.vessels:
+            M = M + v.fns.mass(s)
+        for j in self.plan.jets:
+            M = M + j.fns.mass(s)
         return M
 
     def pressures(self, Y: np.ndarray, modes: np.ndarray) -> np.ndarray | None:
         """Largest vessel pressure per design (Pa), or None without vessels."""
         s = list(Y)
         best = None
-        for nm, v in self.volumes:
-            mode = modes[self.slot[nm]] if nm in self.slot else 0
-            p = v.signals(s, mode).get("pressure")
+        for v in self.plan.vessels:
+            mode = modes[v.slot] if v.slot >= 0 else 0
+            p = v.fns.signals(s, mode).get("pressure")
             if p is not None:
                 best = p if best is None else np.maximum(best, p)
         return best
 
     def phase(self, modes: np.ndarray, kin: np.ndarray) -> "Phase":
-        """What :meth:`rhs` reads of the discrete phase, worked out once (a step's stages share it).
-
-        A vessel's mode is passed to its callables as an ``int`` when every design shares it (so a kind can
-        skip its per-design selections), else as the integer array.
-        """
-        free = kin == FREE
-        vmode: list[Any] = []
-        for nm, _ in self.volumes:
-            if nm not in self.slot:
-                vmode.append(0)
-                continue
-            m = modes[self.slot[nm]]
+        """The discrete phase as the balance takes it, worked out once (a step's stages share it): each slot's
+        mode as an ``int`` when every design shares it (so a kind can skip its per-design selections), else
+        the integer array; the constraint likewise."""
+        shared = []
+        for k in range(len(self.moded)):
+            m = modes[k]
             lo, hi = int(m.min()), int(m.max())
-            vmode.append(lo if lo == hi else m)
-        quiet = [self._all_quiet(k, vmode[k]) for k in range(len(self.volumes))]
-        return Phase(free, bool(free.all()), vmode, quiet, bool(free.any()))
+            shared.append(lo if lo == hi else m)
+        lo, hi = int(kin.min()), int(kin.max())
+        return Phase(tuple(shared), lo if lo == hi else kin)
 
     def frozen(self, modes: np.ndarray) -> bool:
-        """Whether every vessel is quiet in every design: :meth:`rhs` then holds their states (zero
-        derivatives), so nothing a vessel reports (pressure...) can change."""
-        return all(self._all_quiet(k, modes[self.slot[nm]] if nm in self.slot else 0)
-                   for k, (nm, _) in enumerate(self.volumes))
-
-    def _all_quiet(self, k: int, mode: Any) -> bool:
-        """Whether vessel ``k`` is in a quiet mode (no outflow, no watched drive) in every design."""
-        q = self._quiet[k]
-        if not q.any():
-            return False
-        if np.ndim(mode) == 0:
-            return bool(q[int(mode)])
-        lo, hi = int(mode.min()), int(mode.max())
-        if q[lo:hi + 1].all():
-            return True
-        return False if lo == hi else bool(np.all(q[mode]))
+        """Whether every vessel is in a mode without outflow in every design: their states are then held, so
+        nothing a vessel reports (pressure...) can change."""
+        for v in self.plan.vessels:
+            if v.slot < 0:
+                return False
+            m = modes[v.slot]
+            if not all(not self.modes[v.name][int(k)].outflow for k in np.unique(m)):
+                return False
+        return bool(self.plan.vessels)
 
     def drives(self, t: np.ndarray, Y: np.ndarray, phase: "Phase") -> dict | None:
-        """``aux["drive"]`` of :meth:`rhs` where it does not depend on the acceleration, else None.
-
-        A line's drive is its upstream pressure less ambient, ``p - head (f . e) - pa``: without a liquid
-        head in any design (a gas-phase vessel) it is ``p - pa``, the same numbers as :meth:`rhs` gives,
-        from the outlets alone (event location calls this many times per step).
-        """
-        s = list(Y)
-        _, pa, *_ = self.medium(s[2], t)
-        vmode = phase.vmode
-        outs: dict[int, tuple] = {}
-        drive: dict[str, Any] = {}
-        for (vi, _vs, tn, _ts, _fl) in self.lines:
-            if phase.quiet[vi]:
-                continue
-            o = outs.get(vi)
-            if o is None:
-                o = outs[vi] = self.volumes[vi][1].outlet(s, vmode[vi])
-                if np.any(o[6] != 0.0):
-                    return None
-            d = o[0] - pa
-            drive.setdefault(self.volumes[vi][0], d)
-            drive[tn] = d
-        return drive
+        """The drive pressures (name -> Pa) the events read, from the one balance."""
+        bal = self.balance
+        bal.set_phase(phase.modes, phase.kin, False)
+        return bal.drives(t, list(Y))
 
     # ------------------------------------------------------------------
     def rhs(self, t: np.ndarray, Y: np.ndarray, modes: np.ndarray, kin: np.ndarray,
@@ -379,143 +300,26 @@ class ArraySystem:
         and ``singular`` (designs whose head coupling has no solution); ``aux=False`` skips those (None
         instead), for the inner stages of a step, which use the derivatives alone.
 
-        A vessel whose every design is in a mode that cannot push (``Mode.propulsive`` false) and watches
-        no drive in it passes no flow, so its lines are not evaluated. ``phase`` is
-        :meth:`phase` of ``modes`` and ``kin`` (worked out here when not given).
+        Every term comes from :class:`~thrustgraph.balance.Balance`, the single flight's balance, over arrays;
+        the last state is the impulse quadrature (the thrust magnitude). ``phase`` is :meth:`phase` of
+        ``modes`` and ``kin`` (worked out here when not given).
         """
         if phase is None:
             phase = self.phase(modes, kin)
-        s = list(Y)
-        x, y, z, vx, vy, vz = s[:6]
-        rho, pa, Ta, wx, wy, wz = self.medium(z, t)
-        g = self.gravity(z)
-        vrx, vry, vrz = vx - wx, vy - wy, vz - wz
-        sp = np.sqrt(vrx * vrx + vry * vry + vrz * vrz)
-        free, all_free = phase.free, phase.all_free
-        ux, uy, uz = self.u
-        if self.follow:
-            use = free & (sp > self.vmin)
-            if use.all():      # the common case in flight: the same numbers without the selections
-                ex, ey, ez = vrx / sp, vry / sp, vrz / sp
-            else:
-                d = np.where(use, sp, 1.0)
-                ex, ey, ez = np.where(use, vrx / d, ux), np.where(use, vry / d, uy), np.where(use, vrz / d, uz)
-        else:
-            ex, ey, ez = ux, uy, uz
-        M = self.fixed_mass
-        for _, v in self.volumes:
-            M = M + v.mass(s)
-        air = (rho, pa, Ta, vrx, vry, vrz, sp)
-        Fx = Fy = 0.0
-        Fz = -M * g
-        for _, b in self.bodies:
-            f = b.force(air)
-            Fx, Fy, Fz = Fx + f[0], Fy + f[1], Fz + f[2]
-        vmode, quiet = phase.vmode, phase.quiet
-        outs = [None if quiet[k] else v.outlet(s, vmode[k]) for k, (_, v) in enumerate(self.volumes)]
-        lines = [ln for ln in self.lines if not quiet[ln[0]]]
-
-        def flows_at(fe):
-            """Flows of every line at f.e (apparent acceleration along the axis): T along +e, I (internal)."""
-            res = []
-            T = 0.0
-            I = 0.0
-            beta = 0.0
-            for (vi, _vs, _tn, ts, fl) in lines:
-                o = outs[vi]
-                head = o[6]
-                if type(head) is float and head == 0.0:    # no liquid head in any design: p_up = p exactly
-                    p_up, up = o[0], o
-                else:
-                    p_up = o[0] - head * fe   # head (f . d) with d = -e (outlet aft)
-                    up = (p_up,) + tuple(o[1:])
-                mdot, ve, pe, Ae, c = fl.flow(up, pa, modes[ts] if ts >= 0 else 0)
-                T = T + mdot * ve + (pe - pa) * Ae
-                vol = self.volumes[vi][1]
-                if vol.internal is not None:
-                    vint, _ = vol.internal(s, vmode[vi], mdot)
-                    I = I + mdot * vint
-                if not (type(head) is float and head == 0.0):
-                    beta = beta + c * head
-                res.append((mdot, p_up))
-            return res, T, I, beta
-
-        # flows at a = 0: f = g_vec, f.e = -g ez
-        fe0 = -g * ez
-        res, T, I, beta = flows_at(fe0)
-        coupled = bool(np.any(beta != 0.0)) if lines else False
-        res0, T0, I0, beta0 = res, T, I, beta
-        # applied force at the current a: G = F + (T - I) e
-        TI = T - I
-        Gx, Gy, Gz = Fx + TI * ex, Fy + TI * ey, Fz + TI * ez
-        singular = np.zeros(self.n, dtype=bool)
-        # free flight: Newton on M a - G(a) = 0 with J = M I - beta e e^T, from a = 0 (not solved while every
-        # design is on the guide: the guide's acceleration below replaces it in every design)
-        if not phase.any_free:
-            ax = ay = az = 0.0
-        elif coupled:
-            ax = ay = az = 0.0
-            for it in range(self.newton):
-                den = M - beta
-                singular = singular | (free & (den <= 1e-12 * M))
-                rx, ry, rz = M * ax - Gx, M * ay - Gy, M * az - Gz
-                re = rx * ex + ry * ey + rz * ez
-                k = beta / np.where(den > 0.0, M * den, 1.0)
-                ax, ay, az = ax - (rx / M + k * re * ex), ay - (ry / M + k * re * ey), az - (rz / M + k * re * ez)
-                if it + 1 < self.newton:
-                    res, T, I, beta = flows_at(fe0 - (ax * ex + ay * ey + az * ez))
-                    TI = T - I
-                    Gx, Gy, Gz = Fx + TI * ex, Fy + TI * ey, Fz + TI * ez
-        else:
-            ax, ay, az = Gx / M, Gy / M, Gz / M
-        # on the guide: a = alpha u, from a = 0 (the scalar loop: one step, then its residual check)
-        if not all_free:
-            TI0 = T0 - I0
-            G0x, G0y, G0z = Fx + TI0 * ex, Fy + TI0 * ey, Fz + TI0 * ez
-            Gu = G0x * ux + G0y * uy + G0z * uz
-            v_along = vx * ux + vy * uy + vz * uz
-            at_foot = (v_along <= 0.0) & ((x - self.x0[0]) * ux + (y - self.x0[1]) * uy
-                                          + (z - self.x0[2]) * uz <= 0.0)
-            fr = 0.0
-            if self._friction:
-                nx_, ny_, nz_ = G0x - Gu * ux, G0y - Gu * uy, G0z - Gu * uz
-                fmax = self.mu * np.sqrt(nx_ * nx_ + ny_ * ny_ + nz_ * nz_)
-                fr = np.where(v_along > 0.0, -fmax, np.where(v_along < 0.0, fmax, np.clip(-Gu, -fmax, fmax)))
-            # on the guide e = u, so J = M - beta (e . u)^2 = M - beta
-            J = M - beta0
-            singular = singular | (~free & (J <= 0.0))
-            alpha = (Gu + fr) / np.where(J > 0.0, J, 1.0)
-            alpha = np.where((alpha < 0.0) & at_foot, 0.0, alpha)
-            ax = np.where(free, ax, alpha * ux)
-            ay = np.where(free, ay, alpha * uy)
-            az = np.where(free, az, alpha * uz)
-        # final flows at the chosen acceleration (the derivatives use these); without a liquid head the
-        # flows do not depend on the acceleration
-        if coupled:
-            res, T, I, beta = flows_at(fe0 - (ax * ex + ay * ey + az * ez))
-        else:
-            res, T, I = res0, T0, I0
+        bal = self.balance
+        bal.set_phase(phase.modes, phase.kin, False)
+        terms = bal.terms(t, list(Y))
         if out is None:
             out = np.empty_like(Y)
-        out[0:3] = Y[3:6]
-        out[3], out[4], out[5] = ax, ay, az
-        vol_out = [0.0] * len(self.volumes)
-        for (vi, *_), (mdot, _p) in zip(lines, res):
-            vol_out[vi] = vol_out[vi] + mdot
-        for k, (nm, v) in enumerate(self.volumes):
-            i0, cnt = self.slices[nm]
-            if quiet[k]:
-                out[i0:i0 + cnt] = 0.0
-                continue
-            ds = v.derivs(s, vmode[k], vol_out[k])
-            for q in range(cnt):
-                out[i0 + q] = ds[q]
-        thrust = out[-1] = np.abs(T)
+        d = terms["derivs"]
+        for k in range(len(d)):
+            out[k] = d[k]
+        tx, ty, tz = terms["thrust"]
+        out[-1] = np.sqrt(tx * tx + ty * ty + tz * tz)
         if not aux:
             return out, None
-        drive: dict[str, Any] = {}
-        for (vi, _vs, tn, _ts, _fl), (mdot, p_up) in zip(lines, res):
-            drive.setdefault(self.volumes[vi][0], p_up - pa)
-            drive[tn] = p_up - pa
+        ax, ay, az = terms["accel"]
         accel = np.sqrt(ax * ax + ay * ay + az * az)
-        return out, {"drive": drive, "accel": accel, "thrust": thrust, "mass": M, "singular": singular}
+        singular = np.broadcast_to(np.asarray(terms["singular"], dtype=bool), (self.n,))
+        return out, {"drive": terms["drive"], "accel": accel, "thrust": out[-1], "mass": terms["mass"],
+                     "singular": singular}

@@ -1,26 +1,31 @@
-"""The momentum balance of the vehicle as an accelerating control volume.
+"""The momentum balance of the vehicle as an accelerating control volume, written once for floats and arrays.
 
-The vehicle is the control volume; its frame translates with acceleration
-``a`` without rotating. With uniform exit conditions at each opening the
-balance reads::
+The vehicle is the control volume; its frame translates with acceleration ``a`` without rotating. With
+uniform exit conditions at each opening the balance reads::
 
-    M a = sum(F_surface) + sum(F_body)                     drag, weight, guide/stand reaction
+    M a = sum(F_surface) + sum(F_body)                     drag, weight, guide/stand reaction, friction
           + sum_k [ mdot_k v_e,k + (p_e,k - p_a) A_e,k ] t_k   thrust of each opening, t_k = -jet_k
+          + sum_sources mdot v_in                           momentum of fluid entering (ram drag, hose inflow)
           - d/dt (integral of v_rel rho dV)                 internal momentum (when a vessel turns it on)
 
-Liquid leaving a vessel is pushed by its ullage pressure and by the liquid
-head in the accelerating frame, ``p_out = p + rho h (f . d)`` with the
-apparent acceleration ``f = g - a`` and ``d`` the direction from the liquid
-toward the outlet. Because the thrust depends on ``a`` through that head and
-``a`` depends on the thrust, the two are solved together on every evaluation:
-a Newton iteration on ``a`` whose Jacobian ``M I + sum c_k t_k (rho h d_k)^T``
-comes from each flow element's ``dthrust/dp`` (exact in one step when the
-thrust is affine in the outlet pressure, as for a quasi-steady Bernoulli jet).
+Liquid leaving a vessel is pushed by its ullage pressure and by the liquid head in the accelerating frame,
+``p_out = p + rho h (f . d)`` with the apparent acceleration ``f = g - a`` and ``d`` the direction from the
+liquid toward the outlet. The thrust depends on ``a`` through that head and ``a`` on the thrust, so the two
+are solved together on every evaluation: a Newton iteration on ``a`` whose Jacobian
+``M I + sum c_k t_k (rho h d_k)^T`` comes from each flow element's ``dthrust/dp`` (exact in one step when the
+thrust is affine in the outlet pressure, as for a quasi-steady Bernoulli jet). On a guide or track the
+acceleration is along the guide, with Coulomb friction ``mu |N|`` against the motion and the hold at the
+guide's foot; on a stand it is zero and the stand's reaction closes the balance.
 
-Closure audits integrate, alongside the states, the mass that left through
-the control surface, the ground-frame momentum it carried away and the impulse
-of the external forces (drag, weight, reactions and the pressure part of the
-thrust), so that a result can show both residuals.
+:class:`Balance` evaluates this for one design with Python floats (single flights) and for N designs with
+numpy arrays (ensembles): the same code, through the namespace of :mod:`thrustgraph.xp`. The discrete phase
+(each component's mode, the kinematic constraint) is set with :meth:`Balance.set_phase`; for an ensemble a
+mode or the constraint may be an array over designs, and the kinematics of every constraint present is
+solved and chosen per design. Closure audits integrate, alongside the states, the mass and ground-frame
+momentum that left through the control surface and the impulse of the external forces.
+
+This module may import the plan, the component records, :mod:`thrustgraph.xp`, :mod:`thrustgraph.vectors`
+and the errors; it knows no device.
 
 Examples
 --------
@@ -35,547 +40,730 @@ True
 from __future__ import annotations
 
 import math
-from typing import Any, Sequence
+from typing import Any, NamedTuple, Sequence
 
-from .assembly import ACCUMULATORS, System
-from .errors import IntegrationError
-from .kernel import phase_functions
-from .vectors import body_frame, solve_rank_one, to_world
 from scipy.optimize import brentq
 
-__all__ = ["Balance", "Kinematics"]
+from .component import Flow, Outlet
+from .errors import IntegrationError
+from .plan import ACCUMULATORS, LinePlan, Plan
+from .vectors import frame_of, to_world
+from .xp import scalar_ops
 
+__all__ = ["Balance", "Kinematics", "LineFlow", "ACCUMULATORS", "SINGULAR"]
+
+SINGULAR = ("the liquid head makes the acceleration undetermined (the nozzle is too large for the vessel's "
+            "bore under the quasi-steady model). Fix: use a vessel bore larger than about 1.5 times the "
+            "nozzle diameter")
 
 
 class Kinematics:
     """How the vehicle may move in the current phase: held, on the guide, free, or on an endless track."""
 
     HELD, GUIDE, FREE, TRACK = 0, 1, 2, 3
+    BY_MOUNT = {"held": HELD, "guide": GUIDE, "free": FREE, "track": TRACK}
+    NAMES = {HELD: "stand", GUIDE: "guide", TRACK: "track"}
 
 
-_AFT = (-1.0, 0.0, 0.0)
-_ZERO_FLOW = (0.0, 0.0, 0.0, 0.0, 0.0)
+class LineFlow(NamedTuple):
+    """What one discharge line passes at the current acceleration (SI, floats or arrays).
+
+    ``p_start`` is the pressure at the start of the line (a vessel's outlet with its liquid head), ``p_in``
+    the pressure at the terminal element's inlet, ``v_int`` and ``moving`` the vessel contents' speed toward
+    the outlet and the mass moving at it (internal momentum), ``v_in`` the entering fluid's velocity (a
+    source's line, else None), ``rises`` the pressure change across each element in series.
+    """
+
+    mdot: Any
+    v_e: Any
+    p_e: Any
+    A_e: Any
+    slope: Any
+    p_start: Any
+    p_in: Any
+    v_int: Any
+    moving: Any
+    v_in: Any
+    rises: tuple
+
+
+class _Sums(NamedTuple):
+    """The lines' flows and their sums: thrust T, its pressure part Q, internal-momentum term I, inflow N."""
+
+    flows: list
+    T: tuple
+    Q: tuple
+    I: tuple
+    N: tuple
+
+
+_Z3 = (0.0, 0.0, 0.0)
+_FREE_ONLY = {Kinematics.FREE}
+#: the sums of a phase whose lines are all idle, by number of lines (never mutated)
+_NO_FLOW = {n: _Sums([None] * n, _Z3, _Z3, _Z3, _Z3) for n in range(1, 5)}
+
+
+def _dot(a: Sequence[Any], b: Sequence[Any]) -> Any:
+    return a[0] * b[0] + a[1] * b[1] + a[2] * b[2]
+
+
+def _is_zero(x: Any) -> bool:
+    """True when ``x`` is a float zero shared by every design (not an array)."""
+    return type(x) is float and x == 0.0
 
 
 class Balance:
-    """Right-hand side and snapshot evaluation of an assembled :class:`System`.
+    """Right-hand side, event drives and snapshot (every term) of a vehicle's balance.
 
-    The discrete phase (each component's mode, the kinematic constraint, and
-    whether apogee has passed) is set with :meth:`set_phase` between
-    integration segments; within a segment it is fixed.
+    ``system`` is an assembled :class:`~thrustgraph.assembly.System` (a single design, floats) or anything
+    with a ``plan`` attribute and the ``ops`` it was built with (the ensemble's array system).
     """
 
     max_newton = 8
-    generate = True   # default for ``generated``: the per-phase generated right-hand side, or the general one
 
-    def __init__(self, system: System, *, generated: bool | None = None) -> None:
+    def __init__(self, system: Any, *, ops: Any = scalar_ops) -> None:
         self.system = system
-        self.generated = type(self).generate if generated is None else generated
-        self._phase_fns: dict[tuple, tuple] = {}
-        sysm = system
-        slot = {n: k for k, n in enumerate(sysm.moded)}
-        self._slot = slot
-        self._bodies = [(n, b, slot.get(n, -1)) for n, b in sysm.bodies]
-        self._vols = [(n, v, slot.get(n, -1)) for n, v in sysm.volumes]
-        self._vol_index = {n: k for k, (n, _, _) in enumerate(self._vols)}
-        self._srcs = [(n, src, slot.get(n, -1)) for n, src in sysm.sources]
-        self._src_index = {n: k for k, (n, _, _) in enumerate(self._srcs)}
-        self._jets = [(n, j, slot.get(n, -1)) for n, j in sysm.jets]
-        self._lines = sysm.lines
-        # per line: (is_volume, start index, terminal slot, series slots, outlet-aft, jet-aft)
-        self._line_info = []
-        for ln in sysm.lines:
-            isvol = ln.start_kind == "volume"
-            idx = self._vol_index[ln.start] if isvol else self._src_index[ln.start]
-            out_dir = ln.vol.outlet_dir if isvol else _AFT
-            self._line_info.append((isvol, idx, slot.get(ln.terminal, -1),
-                                    tuple(slot.get(m, -1) for m, _ in ln.series),
-                                    out_dir == _AFT, ln.fl.jet_dir == _AFT, out_dir))
-        self._owners = []
-        for role, n in sysm.owners:
-            table = {"volume": self._vol_index, "jet": {m: k for k, (m, _, _) in enumerate(self._jets)},
-                     "body": {m: k for k, (m, _, _) in enumerate(self._bodies)}}.get(role)
-            if table is None:
-                raise IntegrationError(f"components.{n}: a {role} cannot carry states in this release")
-            self._owners.append((role, table[n]))
-        self._jet_aft = [j.jet_dir == _AFT for _, j, _ in self._jets]
-        self._need_frame = not all(a and b for _, _, _, _, a, b, _ in self._line_info) or not all(self._jet_aft)
-        self._u = sysm.guide_dir
-        self._az = sysm.launch.azimuth
-        self._mu = sysm.launch.friction
-        self._follow = sysm.launch.attitude == "follow-wind"
-        self._vmin = max(sysm.launch.min_follow_speed, 1e-9)
-        self._x0 = (sysm.y0[0], sysm.y0[1], sysm.y0[2])
-        # Runtime tables, so the right-hand side does no attribute look-ups it can avoid.
-        self._mass_fns = [vf.mass for _, vf, _ in self._vols] + [jf.mass for _, jf, _ in self._jets]
-        self._force_fns = [(k, bf.force_state is not None, bf.force_state or bf.force)
-                           for k, (_, bf, _) in enumerate(self._bodies) if (bf.force_state or bf.force) is not None]
-        self._line_rt = [(info[0], info[1], ln.fl.flow, not ln.series,
-                          ln.vol.internal if info[0] else None,
-                          ln.src.inflow if not info[0] and getattr(ln.src, "inflow", None) else None, ln)
-                         for info, ln in zip(self._line_info, sysm.lines)]
-        mount = sysm.launch.mount
-        kin = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.FREE,
-               "track": Kinematics.TRACK}[mount]
-        self.set_phase(list(sysm.mode0), kin, False)
+        self.plan: Plan = system.plan
+        self.ops = ops
+        plan = self.plan
+        c = plan.constraint
+        self._u = c.u
+        self._mu = c.friction
+        self._friction = bool(ops.any(ops.abs(c.friction) > 0.0)) if ops.arrays else c.friction > 0.0
+        self._follow = c.follow_wind
+        self._vmin = ops.maximum(c.min_follow_speed, 1e-9)
+        self._need_frame = any(not ln.outlet_aft or not ln.jet_aft for ln in plan.lines) or \
+            any(not j.aft for j in plan.jets)
+        self._forces = plan.forces
+        self._masses = [v.fns.mass for v in plan.vessels] + [j.fns.mass for j in plan.jets]
+        self._n_owned = sum(1 for _ in plan.owners)
+        self.set_phase([0] * len(plan.moded) if not hasattr(system, "mode0") else list(system.mode0),
+                       Kinematics.BY_MOUNT[c.mount], False)
 
     # ------------------------------------------------------------------
-    def set_phase(self, modes: Sequence[int], kinematics: int, descending: bool, slide: float = 0.0) -> None:
-        """Fix the discrete phase for the next integration segment.
+    def set_phase(self, modes: Sequence[Any], kinematics: Any, descending: bool, slide: float = 0.0) -> None:
+        """Fix the discrete phase for the next integration segment (or the next ensemble step).
 
-        ``slide`` is the way the vehicle moves along a guide or track during the segment (+1 along the guide
-        direction, -1 against it): kinetic friction then opposes that direction for the whole segment, and the
-        integrator ends the segment when the vehicle comes to rest. With 0 the friction follows the sign of the
-        current speed (static friction at rest), as for a vehicle that starts the segment at rest.
+        ``modes`` holds each moded component's mode index (an int, or an int array over designs);
+        ``kinematics`` a :class:`Kinematics` value (or an array). ``slide`` is the way a vehicle slides along
+        a guide or track for the whole segment (+1, -1): kinetic friction opposes it and the integrator ends
+        the segment when the vehicle comes to rest; 0 lets the friction follow the current speed (static
+        friction at rest).
         """
+        ops = self.ops
+        plan = self.plan
         self.modes = list(modes)
         self.kinematics = kinematics
         self.descending = descending
-        self.slide = 0.0 if kinematics not in (Kinematics.GUIDE, Kinematics.TRACK) else float(slide)
         m = self.modes
 
-        def mode_of(k: int) -> int:
+        def mode_of(k: int) -> Any:
             return m[k] if k >= 0 else 0
-        self._bmode = [mode_of(k) for _, _, k in self._bodies]
-        self._vmode = [mode_of(k) for _, _, k in self._vols]
-        self._smode = [mode_of(k) for _, _, k in self._srcs]
-        self._jmode = [mode_of(k) for _, _, k in self._jets]
-        self._lmode = [(mode_of(tk), tuple(mode_of(k) for k in sk)) for _, _, tk, sk, _, _, _ in self._line_info]
-        if self.generated:
-            key = (tuple(self.modes), kinematics, self.slide)
-            fns = self._phase_fns.get(key)
-            if fns is None:
-                fns = self._phase_fns[key] = phase_functions(self)
-            self.phase_rhs, self.phase_core, self._phase_drives = fns
+        self._bmode = [mode_of(b.slot) for b in plan.bodies]
+        self._force_fns = [(b, b.force, b.stateful, mode_of(b.slot)) for b in self._forces]
+        self._vmode = [mode_of(v.slot) for v in plan.vessels]
+        self._smode = [mode_of(s.slot) for s in plan.sources]
+        self._jmode = [mode_of(j.slot) for j in plan.jets]
+        self._tmode = [mode_of(ln.terminal_slot) for ln in plan.lines]
+        self._emode = [tuple(mode_of(e.slot) for e in ln.series) for ln in plan.lines]
+        # kinematic constraints present (one for a single design; the distinct ones of an ensemble's designs)
+        if ops.arrays and not isinstance(kinematics, int):
+            import numpy as np
+            present = {int(k) for k in np.unique(kinematics)}
+            if len(present) == 1:
+                kinematics = present.pop()
+                present = {kinematics}
         else:
-            self.phase_rhs, self.phase_core, self._phase_drives = \
-                self.reference_rhs, self._reference_core, self._reference_drives
+            present = {int(kinematics)}
+        self._kin = kinematics
+        self._present = present
+        self._held_only = present == {Kinematics.HELD}
+        self.slide = float(slide) if present <= {Kinematics.GUIDE, Kinematics.TRACK} else 0.0
+        # a line is idle when a component on it is, in every design, in a mode that promises no outflow
+        idle = []
+        for j, ln in enumerate(plan.lines):
+            quiet = False
+            for name, md in zip(ln.members, (self._start_mode(ln), self._tmode[j]) + self._emode[j]):
+                if name in plan.modes and isinstance(md, int) and not plan.modes[name][md].outflow:
+                    quiet = True
+            idle.append(quiet)
+        self._idle = idle
+        self._live = [not q for q in idle]
+        self._live_all = [True] * len(idle)
+        # for the ensemble's snapshot: idle lines still evaluated where an event of a component on them reads
+        # its drive in the current mode
+        watch: dict[str, list] = {}
+        for n, e in plan.events:
+            if e.needs_drive:
+                watch.setdefault(n, []).append(e)
+        live_terms = []
+        for j, ln in enumerate(plan.lines):
+            seen = not idle[j]
+            for name, md in zip(ln.members, (self._start_mode(ln), self._tmode[j]) + self._emode[j]):
+                for e in watch.get(name, ()):
+                    names = [mm.name for mm in plan.modes.get(name, ())]
+                    if not isinstance(md, int) or (names and names[md] in e.when):
+                        seen = True
+            live_terms.append(seen)
+        self._live_terms = live_terms
+        self._only = next(iter(present)) if len(present) == 1 else None
+        self._vessel_lines = [(j, ln.start_index) for j, ln in enumerate(plan.lines) if ln.from_vessel]
+        self._outlets = sorted({k for j, k in self._vessel_lines if self._live[j]})
+        self._outlets_all = sorted({k for j, k in self._vessel_lines})
+        self._outlets_terms = sorted({k for j, k in self._vessel_lines if self._live_terms[j]})
+
+    def _start_mode(self, ln: LinePlan) -> Any:
+        return self._vmode[ln.start_index] if ln.from_vessel else self._smode[ln.start_index]
 
     # ------------------------------------------------------------------
     def rhs(self, t: float, y: Any) -> list[float]:
-        """Time derivative of the flat state vector (SI) in the current phase.
+        """Time derivative of the flat state vector (SI): kinematics, component states, audit accumulators."""
+        return self._solve(t, _as_list(y), "rhs")
 
-        This calls the phase's generated function (:mod:`thrustgraph.kernel`); the integrator passes
-        :attr:`phase_rhs` to solve_ivp directly, saving this call.
-        """
-        return self.phase_rhs(t, y)
+    def core(self, t: float, y: Any) -> list[float]:
+        """The derivatives of the physical states alone (no audit accumulators), for runs without audits."""
+        return self._solve(t, _as_list(y), "core")
 
-    def reference_rhs(self, t: float, y: Any) -> list[float]:
-        """The same derivatives from the general (loop-and-branch) balance; the generated one must equal it."""
-        return self._balance(t, y if type(y) is list else y.tolist(), None)
-
-    def _reference_core(self, t: float, y: Any) -> list[float]:
-        return self.reference_rhs(t, y)[:self.system.n_states - len(ACCUMULATORS)]
-
-    def drives(self, t: float, y: Any) -> dict[str, float]:
+    def drives(self, t: float, y: Any) -> dict[str, Any]:
         """Drive pressure (Pa) per vessel and per discharging element, for events.
 
-        A vessel's drive is its outlet pressure with the liquid head minus
-        ambient; an element's is the pressure at its inlet minus ambient.
+        A vessel's drive is its outlet pressure with the liquid head minus ambient; an element's is the
+        pressure at its inlet minus ambient.
         """
-        return self._phase_drives(t, y)
-
-    def _reference_drives(self, t: float, y: Any) -> dict[str, float]:
-        rec: dict[str, Any] = {"_light": True}
-        self._balance(t, y, rec)
-        return rec
+        return self._solve(t, _as_list(y), "drives")
 
     def evaluate(self, t: float, y: Any) -> dict[str, Any]:
         """Every term of the balance at one instant, as a flat dict of SI values.
 
-        Vectors are 3-tuples. Keys include ``acceleration``, ``mass``,
-        ``thrust`` (along the body axis), ``thrust_vector``, per component
-        ``NAME.mass_flow``, ``NAME.exit_velocity``, ``NAME.momentum_flux``,
-        ``NAME.pressure_thrust``, ``NAME.drag`` and the vessel signals, and the
-        ``ledger``: a list of ``(component, term, vector)`` whose sum is M a.
+        Vectors are 3-tuples. Keys include ``acceleration``, ``mass``, ``thrust`` (along the body axis),
+        ``thrust_vector``, per component ``NAME.mass_flow``, ``NAME.exit_velocity``, ``NAME.drag`` and the
+        vessel signals, ``derivatives``, and the ``ledger``: a list of ``(component, term, vector)`` whose sum
+        is M a.
         """
-        rec: dict[str, Any] = {}
-        rec["derivatives"] = self._balance(t, y, rec)
-        return rec
+        return self._solve(t, _as_list(y), "ledger")
+
+    def terms(self, t: Any, s: Sequence[Any]) -> dict[str, Any]:
+        """The array-friendly snapshot the ensemble reads: ``derivs`` (per state, in layout order, without
+        accumulators), ``accel`` (3-vector), ``thrust`` (thrust vector), ``mass``, ``drive`` (name -> Pa) and
+        ``singular`` (designs whose head coupling has no solution)."""
+        return self._solve(t, s, "terms")
 
     # ------------------------------------------------------------------
-    def _balance(self, t: float, y: Any, rec: dict | None) -> list[float]:
-        s = y if type(y) is list else (y.tolist() if hasattr(y, "tolist") else list(y))
-        sysm = self.system
+    def _solve(self, t: Any, s: Sequence[Any], want: str) -> Any:
+        ops = self.ops
+        plan = self.plan
+        full = want == "drives" or want == "ledger"
         vx, vy, vz = s[3], s[4], s[5]
-        rho, pa, Ta, wx, wy, wz = sysm.medium(s[2], t)
-        g = sysm.gravity(s[2])
-        vrx, vry, vrz = vx - wx, vy - wy, vz - wz
-        sp = math.sqrt(vrx * vrx + vry * vry + vrz * vrz)
-        kin = self.kinematics
-        u = self._u
-        if self._follow and kin == Kinematics.FREE and sp > self._vmin:
-            e = (vrx / sp, vry / sp, vrz / sp)
-        else:
-            e = u
-        frame = body_frame(e, self._az) if self._need_frame else None
-        ax_, ay_, az_ = -e[0], -e[1], -e[2]
+        rho, pa, Ta, wx, wy, wz = plan.medium(s[2], t)
+        g = plan.gravity(s[2])
+        vr = (vx - wx, vy - wy, vz - wz)
+        sp = ops.sqrt(vr[0] * vr[0] + vr[1] * vr[1] + vr[2] * vr[2])
+        e = self._axis(vr, sp)
+        frame = frame_of(e, plan.constraint.azimuth, ops) if self._need_frame else None
+        aft = (-e[0], -e[1], -e[2])
 
-        # Mass and the forces that do not depend on the acceleration.
-        M = sysm.fixed_mass
-        vmode = self._vmode
-        vols = self._vols
-        for fn in self._mass_fns:
-            M += fn(s)
-        jmode = self._jmode
-        air = (rho, pa, Ta, vrx, vry, vrz, sp)
+        # 1. Mass and the forces that do not depend on the acceleration.
+        M = plan.fixed_mass
+        for fn in self._masses:
+            M = M + fn(s)
+        air = (rho, pa, Ta, vr[0], vr[1], vr[2], sp)
+        drags = []
         Dx = Dy = Dz = 0.0
-        drags = [] if rec is not None else None
-        bmode = self._bmode
-        for k, stateful, fn in self._force_fns:
-            f = fn(t, s, bmode[k], air) if stateful else fn(air)
-            Dx += f[0]; Dy += f[1]; Dz += f[2]
-            if drags is not None:
-                drags.append((k, f))
-        Wz = -M * g
-        Fx, Fy, Fz = Dx, Dy, Dz + Wz
-        Px = Py = Pz = 0.0      # pressure-thrust part (a surface force: enters the impulse audit)
-        mout = 0.0
-        Ex = Ey = Ez = 0.0      # ground-frame momentum carried away per second
-        jet_out = []
-        for k, (_, jf, _) in enumerate(self._jets):
-            mdot, ve, pe, Ae = jf.jet(t, s, jmode[k], pa)
-            jd = (ax_, ay_, az_) if self._jet_aft[k] else to_world(jf.jet_dir, frame)
+        for b, fn, stateful, md in self._force_fns:
+            f = fn(t, s, md, air) if stateful else fn(air)
+            Dx = Dx + f[0]; Dy = Dy + f[1]; Dz = Dz + f[2]
+            drags.append((b, f))
+        W = -M * g
+        Fx, Fy, Fz = Dx, Dy, Dz + W
+        Px = Py = Pz = 0.0           # the jets' pressure thrust (a surface force: enters the impulse audit)
+        jets = []
+        for j, md in zip(plan.jets, self._jmode):
+            mdot, ve, pe, Ae = j.fns.jet(t, s, md, pa)
+            jd = aft if j.aft else to_world(j.fns.jet_dir, frame)
             pth = (pe - pa) * Ae
             T = mdot * ve + pth
-            Fx -= T * jd[0]; Fy -= T * jd[1]; Fz -= T * jd[2]
-            Px -= pth * jd[0]; Py -= pth * jd[1]; Pz -= pth * jd[2]
-            mout += mdot
-            Ex += mdot * (vx + ve * jd[0]); Ey += mdot * (vy + ve * jd[1]); Ez += mdot * (vz + ve * jd[2])
-            jet_out.append((mdot, ve, pe, Ae, jd, T))
+            Fx = Fx - T * jd[0]; Fy = Fy - T * jd[1]; Fz = Fz - T * jd[2]
+            Px = Px - pth * jd[0]; Py = Py - pth * jd[1]; Pz = Pz - pth * jd[2]
+            jets.append((mdot, ve, pe, Ae, jd, T))
+        F = (Fx, Fy, Fz)
 
-        # Starting conditions of every line (vessel outlets without head, source supplies).
-        vouts = [vf.outlet(s, vmode[k]) for k, (_, vf, _) in enumerate(vols)]
-        if self._srcs:
-            smode = self._smode
-            supplies = [sf.supply(t, s, smode[k], air) for k, (_, sf, _) in enumerate(self._srcs)]
+        # 2. The start of every line: vessel outlets (without head) and source supplies, and directions.
+        live = self._live_all if full else (self._live_terms if want == "terms" else self._live)
+        outs: list[Any] = [None] * len(plan.vessels)
+        for k in (self._outlets_all if full else (self._outlets_terms if want == "terms" else self._outlets)):
+            o = plan.vessels[k].fns.outlet(s, self._vmode[k])
+            outs[k] = o if type(o) is Outlet else Outlet(*o)
+        supplies = [src.fns.supply(t, s, md, air) for src, md in zip(plan.sources, self._smode)] \
+            if plan.sources else ()
+        if self._need_frame:
+            dirs = [(aft if ln.outlet_aft else to_world(ln.outlet_dir, frame),
+                     aft if ln.jet_aft else to_world(ln.jet_dir, frame)) for ln in plan.lines]
         else:
-            supplies = ()
-        outs = []
+            dirs = [(aft, aft)] * len(plan.lines)
         coupled = False
-        aft = (ax_, ay_, az_)
-        for info, rt in zip(self._line_info, self._line_rt):
-            isvol, idx, _, _, a_out, a_jet, odir = info
-            o = vouts[idx] if isvol else supplies[idx][0]
-            outs.append((o, aft if a_out else to_world(odir, frame),
-                         aft if a_jet else to_world(rt[6].fl.jet_dir, frame)))
-            if isvol and o[6] != 0.0:
+        for j, k in self._vessel_lines:
+            if live[j] and not _is_zero(outs[k].head):
                 coupled = True
 
-        gx, gy, gz = 0.0, 0.0, -g
-        ax = ay = az = 0.0
-        first = self._lines_at(t, s, outs, supplies, pa, gx, gy, gz)          # flows at a = 0
-        flows, Tx, Ty, Tz, Qx, Qy, Qz, Ix, Iy, Iz = first
-        Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz      # every applied force, at the current a
-        Cx = Cy = Cz = 0.0   # friction on the guide or track
-        if kin == Kinematics.HELD:
-            Rx, Ry, Rz = -Gx, -Gy, -Gz
-        elif kin == Kinematics.FREE:
-            Rx = Ry = Rz = 0.0
-            if not coupled:
-                ax, ay, az = Gx / M, Gy / M, Gz / M
-            else:
-                # Newton on M a - G(a) = 0; exact in one step when the thrust is affine in the outlet pressure.
-                for it in range(self.max_newton):
-                    rx, ry, rz = M * ax - Gx, M * ay - Gy, M * az - Gz
-                    if it and abs(rx) + abs(ry) + abs(rz) <= 1e-12 * (abs(Gx) + abs(Gy) + abs(Gz) + M * g):
-                        break
-                    pairs = []
-                    for (o, dw, jd), fl, info in zip(outs, flows, self._line_info):
-                        if info[0] and o[6] != 0.0:
-                            c, hd = fl[4], o[6]
-                            pairs.append(((-c * jd[0], -c * jd[1], -c * jd[2]), (hd * dw[0], hd * dw[1], hd * dw[2])))
-                    try:
-                        dx, dy_, dz = solve_rank_one(M, pairs, (rx, ry, rz))
-                    except ZeroDivisionError:
-                        raise IntegrationError(_SINGULAR) from None
-                    ax -= dx; ay -= dy_; az -= dz
-                    flows, Tx, Ty, Tz, Qx, Qy, Qz, Ix, Iy, Iz = self._lines_at(
-                        t, s, outs, supplies, pa, gx - ax, gy - ay, gz - az)
-                    Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
-        else:  # guide or track: a = alpha u; friction mu |N| against the motion
-            x0 = self._x0
-            mu = self._mu
-            v_along = vx * u[0] + vy * u[1] + vz * u[2]
-            at_foot = kin == Kinematics.GUIDE and v_along <= 0.0 and \
-                (s[0] - x0[0]) * u[0] + (s[1] - x0[1]) * u[1] + (s[2] - x0[2]) * u[2] <= 0.0
-            alpha = 0.0
-            for it in range(self.max_newton if coupled else 1):
-                Gu = Gx * u[0] + Gy * u[1] + Gz * u[2]
-                fr = 0.0
-                if mu > 0.0:
-                    nx_, ny_, nz_ = Gx - Gu * u[0], Gy - Gu * u[1], Gz - Gu * u[2]
-                    fmax = mu * math.sqrt(nx_ * nx_ + ny_ * ny_ + nz_ * nz_)
-                    slide = self.slide or v_along
-                    if slide > 0.0:
-                        fr = -fmax
-                    elif slide < 0.0:
-                        fr = fmax
-                    else:  # at rest: static friction holds up to fmax
-                        fr = -fmax if Gu > fmax else (fmax if Gu < -fmax else -Gu)
-                r = M * alpha - Gu - fr
-                if it and abs(r) <= 1e-12 * (abs(Gu) + M * g + 1e-30):
-                    break
-                J = M
-                for (o, dw, jd), fl, info in zip(outs, flows, self._line_info):
-                    if info[0] and o[6] != 0.0:
-                        J -= fl[4] * (jd[0] * u[0] + jd[1] * u[1] + jd[2] * u[2]) * o[6] * (
-                            dw[0] * u[0] + dw[1] * u[1] + dw[2] * u[2])
-                if J <= 0.0:
-                    raise IntegrationError(_SINGULAR)
-                alpha -= r / J
-                if alpha < 0.0 and at_foot:
-                    alpha = 0.0
-                    flows, Tx, Ty, Tz, Qx, Qy, Qz, Ix, Iy, Iz = first
-                    Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
-                    break
-                if not coupled:
-                    break
-                flows, Tx, Ty, Tz, Qx, Qy, Qz, Ix, Iy, Iz = self._lines_at(
-                    t, s, outs, supplies, pa, gx - alpha * u[0], gy - alpha * u[1], gz - alpha * u[2])
-                Gx, Gy, Gz = Fx + Tx + Ix, Fy + Ty + Iy, Fz + Tz + Iz
-            if alpha == 0.0 and at_foot:
-                fr = 0.0
-            Cx, Cy, Cz = fr * u[0], fr * u[1], fr * u[2]
-            ax, ay, az = alpha * u[0], alpha * u[1], alpha * u[2]
-            Rx, Ry, Rz = M * ax - Gx - Cx, M * ay - Gy - Cy, M * az - Gz - Cz
-
-        # Derivatives: kinematics, component states (in layout order), audit accumulators.
-        if kin == Kinematics.HELD:
-            out = [0.0, 0.0, 0.0, 0.0, 0.0, 0.0]
-            vx = vy = vz = 0.0
+        # 3. The acceleration, solved with the flows it drives.
+        ctx = (t, s, pa, g, outs, supplies, dirs, live)
+        a, sums, C, singular = self._accelerate(ctx, M, F, coupled)
+        T, I, N = sums.T, sums.I, sums.N
+        if self._present == _FREE_ONLY:
+            R = _Z3
         else:
-            out = [vx, vy, vz, ax, ay, az]
-        if self._owners:
-            vol_out = [0.0] * len(vols)
-            for info, fl in zip(self._line_info, flows):
-                if info[0]:
-                    vol_out[info[1]] += fl[0]
-            for role, k in self._owners:
-                if role == "volume":
-                    out.extend(vols[k][1].derivs(s, vmode[k], vol_out[k]))
-                elif role == "jet":
-                    out.extend(self._jets[k][1].derivs(t, s, jmode[k], jet_out[k][0]))
-                else:
-                    out.extend(self._bodies[k][1].derivs(t, s, bmode[k], air))
-        Nx = Ny = Nz = 0.0  # momentum of the entering fluid (ram drag, hose inflow)
-        for (o, dw, jd), fl, info in zip(outs, flows, self._line_info):
-            mdot, ve = fl[0], fl[1]
-            Ex += mdot * (vx + ve * jd[0]); Ey += mdot * (vy + ve * jd[1]); Ez += mdot * (vz + ve * jd[2])
-            if info[0]:
-                mout += mdot
+            R = (M * a[0] - (Fx + T[0] + I[0] + N[0]) - C[0], M * a[1] - (Fy + T[1] + I[1] + N[1]) - C[1],
+                 M * a[2] - (Fz + T[2] + I[2] + N[2]) - C[2])
+            if Kinematics.FREE in self._present:
+                free = self._kin == Kinematics.FREE
+                R = (ops.where(free, 0.0, R[0]), ops.where(free, 0.0, R[1]), ops.where(free, 0.0, R[2]))
+
+        if want == "drives":
+            return self._drives(sums.flows, pa)
+        derivs = self._derivatives(t, s, air, a, sums.flows, jets)
+        if want == "core":
+            return derivs
+        if want == "terms":
+            tx, ty, tz = T
+            for mdot, ve, pe, Ae, jd, Tj in jets:
+                tx = tx - Tj * jd[0]; ty = ty - Tj * jd[1]; tz = tz - Tj * jd[2]
+            return {"derivs": derivs, "accel": a, "thrust": (tx, ty, tz), "mass": M,
+                    "drive": self._drives(sums.flows, pa), "singular": singular}
+        derivs.extend(self._accumulators(s, sums, jets, dirs, (Dx, Dy, Dz), W, (Px, Py, Pz), R, C))
+        if want == "rhs":
+            return derivs
+        rec: dict[str, Any] = {"derivatives": derivs}
+        self._record(rec, t, s, M, e, a, drags, (0.0, 0.0, W), R, C, outs, sums, jets, supplies, dirs,
+                     rho, pa, Ta, (wx, wy, wz), sp, g)
+        return rec
+
+    def _axis(self, vr: tuple, sp: Any) -> tuple:
+        """The body axis (world frame): the guide direction, or into the relative wind in free flight."""
+        u = self._u
+        if not self._follow or Kinematics.FREE not in self._present:
+            return u
+        ops = self.ops
+        use = sp > self._vmin
+        if len(self._present) > 1:
+            use = use & (self._kin == Kinematics.FREE)
+        if not ops.arrays:
+            return (vr[0] / sp, vr[1] / sp, vr[2] / sp) if use else u
+        if ops.all(use):
+            return (vr[0] / sp, vr[1] / sp, vr[2] / sp)
+        d = ops.where(use, sp, 1.0)
+        return tuple(ops.where(use, vr[k] / d, u[k]) for k in range(3))
+
+    # ------------------------------------------------------------------
+    def _accelerate(self, ctx: tuple, M: Any, F: tuple, coupled: bool):
+        """The acceleration of every constraint present, chosen per design; the flows at it; friction."""
+        ops = self.ops
+        g = ctx[3]
+        first = self._lines_at(ctx, (0.0, 0.0, -g))          # flows at a = 0
+        only = self._only
+        if only == Kinematics.FREE:
+            return self._free(ctx, M, F, first, coupled)
+        if only == Kinematics.GUIDE or only == Kinematics.TRACK:
+            return self._guided(ctx, M, F, first, coupled, only)
+        results = {}
+        for kin in self._present:
+            if kin == Kinematics.HELD:
+                results[kin] = (_Z3, first, _Z3, False)
+            elif kin == Kinematics.FREE:
+                results[kin] = self._free(ctx, M, F, first, coupled)
             else:
-                vin = fl[8]
-                Ex -= mdot * (vx + vin[0]); Ey -= mdot * (vy + vin[1]); Ez -= mdot * (vz + vin[2])
-                Nx += mdot * vin[0]; Ny += mdot * vin[1]; Nz += mdot * vin[2]
-        out.append(mout)
-        out.extend((Ex, Ey, Ez))
-        out.extend((Dx + Px + Qx + Rx + Cx, Dy + Py + Qy + Ry + Cy, Dz + Wz + Pz + Qz + Rz + Cz))
-        # modelled d/dt of the internal momentum; the inflow momentum is already in the exhaust accumulator
-        out.extend((Nx - Ix, Ny - Iy, Nz - Iz))
+                results[kin] = self._guided(ctx, M, F, first, coupled, kin)
+        if len(results) == 1:
+            return next(iter(results.values()))
+        # an ensemble with designs under several constraints: each design takes its own
+        kin = self._kin
+        a, C = [0.0, 0.0, 0.0], [0.0, 0.0, 0.0]
+        singular = False
+        for k, (ak, _, Ck, sk) in results.items():
+            sel = kin == k
+            a = [ops.where(sel, ak[i], a[i]) for i in range(3)]
+            C = [ops.where(sel, Ck[i], C[i]) for i in range(3)]
+            singular = singular | (sel & sk)
+        sums = self._lines_at(ctx, (-a[0], -a[1], -g - a[2])) if coupled else first
+        return tuple(a), sums, tuple(C), singular
 
-        if rec is not None:
-            if "_light" in rec:
-                for ln, fl in zip(self._lines, flows):
-                    rec.setdefault(ln.start, fl[5] - pa)
-                    rec[ln.terminal] = fl[6] - pa
-            else:
-                self._record(rec, t, s, M, e, (ax, ay, az), drags, (0.0, 0.0, Wz), (Rx, Ry, Rz), (Cx, Cy, Cz),
-                             outs, flows, jet_out, supplies, rho, pa, Ta, (wx, wy, wz), sp, g)
-        return out
+    def _free(self, ctx: tuple, M: Any, F: tuple, first: _Sums, coupled: bool):
+        """Free flight: Newton on M a - G(a) = 0 (one evaluation without a liquid head)."""
+        ops = self.ops
+        g = ctx[3]
+        sums = first
+        T, I, N = sums.T, sums.I, sums.N
+        Gx, Gy, Gz = F[0] + T[0] + I[0] + N[0], F[1] + T[1] + I[1] + N[1], F[2] + T[2] + I[2] + N[2]
+        if not coupled:
+            return (Gx / M, Gy / M, Gz / M), sums, _Z3, False
+        ax: Any = 0.0
+        ay: Any = 0.0
+        az: Any = 0.0
+        singular: Any = False
+        outs, dirs, live = ctx[4], ctx[6], ctx[7]
+        for it in range(self.max_newton):
+            rx, ry, rz = M * ax - Gx, M * ay - Gy, M * az - Gz
+            if it and ops.all(ops.abs(rx) + ops.abs(ry) + ops.abs(rz)
+                              <= 1e-12 * (ops.abs(Gx) + ops.abs(Gy) + ops.abs(Gz) + M * g)):
+                break
+            pairs = []
+            for j, k in self._vessel_lines:
+                if live[j] and not _is_zero(outs[k].head):
+                    head = outs[k].head
+                    c = sums.flows[j].slope
+                    dw, jd = dirs[j]
+                    pairs.append(((-c * jd[0], -c * jd[1], -c * jd[2]), (head * dw[0], head * dw[1], head * dw[2])))
+            d, sing = _solve_rank_one(M, pairs, (rx, ry, rz), ops)
+            singular = singular | sing
+            ax, ay, az = ax - d[0], ay - d[1], az - d[2]
+            sums = self._lines_at(ctx, (-ax, -ay, -g - az))
+            T, I, N = sums.T, sums.I, sums.N
+            Gx, Gy, Gz = F[0] + T[0] + I[0] + N[0], F[1] + T[1] + I[1] + N[1], F[2] + T[2] + I[2] + N[2]
+        return (ax, ay, az), sums, _Z3, singular
 
-    def _lines_at(self, t, s, outs, supplies, pa, fx, fy, fz):
-        """Flows of every line at apparent acceleration f = g - a.
+    def _guided(self, ctx: tuple, M: Any, F: tuple, first: _Sums, coupled: bool, kin: int):
+        """On a guide or track: a = alpha u, with friction mu |N| against the motion, held at the guide's foot."""
+        ops = self.ops
+        arrays = ops.arrays
+        t, s, pa, g, outs, _supplies, dirs, live = ctx
+        u0, u1, u2 = self._u
+        mu = self._mu
+        v_along = s[3] * u0 + s[4] * u1 + s[5] * u2
+        at_foot: Any = False
+        if kin == Kinematics.GUIDE:
+            x0 = self.plan.constraint.x0
+            below = (s[0] - x0[0]) * u0 + (s[1] - x0[1]) * u1 + (s[2] - x0[2]) * u2 <= 0.0
+            at_foot = ((v_along <= 0.0) & below) if arrays else (v_along <= 0.0 and below)
+        way = self.slide if self.slide != 0.0 else v_along
+        sums = first
+        alpha: Any = 0.0
+        fr: Any = 0.0
+        held: Any = False
+        singular: Any = False
+        for it in range(self.max_newton if coupled else 1):
+            T, I, N = sums.T, sums.I, sums.N
+            Gx, Gy, Gz = F[0] + T[0] + I[0] + N[0], F[1] + T[1] + I[1] + N[1], F[2] + T[2] + I[2] + N[2]
+            Gu = Gx * u0 + Gy * u1 + Gz * u2
+            fr = 0.0
+            if self._friction:
+                nx, ny, nz = Gx - Gu * u0, Gy - Gu * u1, Gz - Gu * u2
+                fmax = mu * ops.sqrt(nx * nx + ny * ny + nz * nz)
+                # kinetic friction against the motion; at rest, static friction holds up to fmax
+                fr = ops.where(way > 0.0, -fmax, ops.where(way < 0.0, fmax, ops.clip(-Gu, -fmax, fmax)))
+            r = M * alpha - Gu - fr
+            if it and ops.all(held | (ops.abs(r) <= 1e-12 * (ops.abs(Gu) + M * g + 1e-30))):
+                break
+            J = M
+            for j, k in self._vessel_lines:
+                if live[j] and not _is_zero(outs[k].head):
+                    head = outs[k].head
+                    dw, jd = dirs[j]
+                    J = J - sums.flows[j].slope * (jd[0] * u0 + jd[1] * u1 + jd[2] * u2) * head * (
+                        dw[0] * u0 + dw[1] * u1 + dw[2] * u2)
+            bad = J <= 0.0
+            if not arrays and bad:
+                raise IntegrationError(SINGULAR)
+            singular = singular | bad
+            alpha = alpha - r / ops.where(bad, 1.0, J)
+            if arrays:
+                held = held | ((alpha < 0.0) & at_foot)
+                alpha = ops.where(held, 0.0, alpha)
+            elif alpha < 0.0 and at_foot:
+                alpha, sums = 0.0, first
+                break
+            if not coupled:
+                break
+            sums = self._lines_at(ctx, (-alpha * u0, -alpha * u1, -g - alpha * u2))
+        if kin == Kinematics.GUIDE:
+            fr = ops.where(((alpha == 0.0) & at_foot) if arrays else (alpha == 0.0 and at_foot), 0.0, fr)
+        return (alpha * u0, alpha * u1, alpha * u2), sums, (fr * u0, fr * u1, fr * u2), singular
 
-        Returns per line ``(mdot, ve, pe, Ae, c, p_start, p_terminal_in, v_int, v_in, rises)`` and the sums of
-        thrust, pressure thrust and the internal-momentum and inflow terms. The inflow term is folded into the
-        third sum (it does not depend on a for a given flow).
-        """
+    # ------------------------------------------------------------------
+    def _lines_at(self, ctx: tuple, f: tuple) -> _Sums:
+        """Flows of every line at the apparent acceleration ``f = g - a`` and their sums."""
+        t, s, pa, g, outs, supplies, dirs, live = ctx
+        if not any(live):
+            return _NO_FLOW[len(live)] if len(live) in _NO_FLOW else \
+                _Sums([None] * len(live), _Z3, _Z3, _Z3, _Z3)
         flows = []
         Tx = Ty = Tz = 0.0
         Qx = Qy = Qz = 0.0
         Ix = Iy = Iz = 0.0
-        lmode = self._lmode
-        vmode = self._vmode
-        for j, rt in enumerate(self._line_rt):
-            isvol, idx, flowfn, simple, internal, inflow, ln = rt
-            o, dw, jd = outs[j]
-            tmode = lmode[j][0]
-            mfix = -1.0
-            vin = None
-            if isvol:
-                if o[6] != 0.0:
-                    up = (o[0] + o[6] * (fx * dw[0] + fy * dw[1] + fz * dw[2]), o[1], o[2], o[3], o[4], o[5], o[6])
-                else:
-                    up = o
+        Nx = Ny = Nz = 0.0
+        fx, fy, fz = f
+        for j, ln in enumerate(self.plan.lines):
+            if not live[j]:
+                flows.append(None)
+                continue
+            dw, jd = dirs[j]
+            mfix: Any = -1.0
+            v_in = None
+            if ln.from_vessel:
+                o = outs[ln.start_index]
+                head = o.head
+                up = o if _is_zero(head) else \
+                    Outlet(o.p + head * (fx * dw[0] + fy * dw[1] + fz * dw[2]), o.T, o.rho, o.gamma, o.R, o.phase, head)
             else:
-                sup = supplies[idx]
-                mfix, vin = sup[1], (sup[2], sup[3], sup[4])
-                up = o
-            if simple and mfix < 0.0:
-                fl = flowfn(up, pa, tmode)
-                rises = ()
-                p_in = up[0]
+                sup = supplies[ln.start_index]
+                up = sup[0] if type(sup[0]) is Outlet else Outlet(*sup[0])
+                mfix, v_in = sup[1], (sup[2], sup[3], sup[4])
+            tmode = self._tmode[j]
+            if not ln.series and (ln.from_vessel or mfix < 0.0):
+                fl = ln.terminal_fns.flow(up, pa, tmode)
+                p_in, rises = up.p, ()
             else:
-                fl, p_in, rises = _solve_line(ln, up, pa, tmode, lmode[j][1], mfix)
-            mdot, ve, pe, Ae = fl[0], fl[1], fl[2], fl[3]
-            if inflow is not None:
-                vin = inflow(mdot, up)
+                fl, p_in, rises = _solve_line(ln, up, pa, tmode, self._emode[j], mfix)
+            mdot, ve, pe, Ae, slope = fl
+            if ln.inflow is not None:
+                v_in = ln.inflow(mdot, up)
             pth = (pe - pa) * Ae
-            T = mdot * ve + pth
-            Tx -= T * jd[0]; Ty -= T * jd[1]; Tz -= T * jd[2]
-            if pth != 0.0:
-                Qx -= pth * jd[0]; Qy -= pth * jd[1]; Qz -= pth * jd[2]
-            vint = 0.0
-            if internal is not None:
-                vint, _moving = internal(s, vmode[idx], mdot)
-                # d/dt of the contents' momentum toward the outlet is -mdot * v_int (quasi-steady);
-                # it enters the balance with a minus sign.
-                Ix += mdot * vint * dw[0]; Iy += mdot * vint * dw[1]; Iz += mdot * vint * dw[2]
-            if vin is not None:
-                Ix += mdot * vin[0]; Iy += mdot * vin[1]; Iz += mdot * vin[2]
-            flows.append((mdot, ve, pe, Ae, fl[4], up[0], p_in, vint, vin, rises))
-        return flows, Tx, Ty, Tz, Qx, Qy, Qz, Ix, Iy, Iz
+            thrust = mdot * ve + pth
+            Tx = Tx - thrust * jd[0]; Ty = Ty - thrust * jd[1]; Tz = Tz - thrust * jd[2]
+            Qx = Qx - pth * jd[0]; Qy = Qy - pth * jd[1]; Qz = Qz - pth * jd[2]
+            v_int: Any = 0.0
+            moving: Any = 0.0
+            if ln.internal is not None:
+                # d/dt of the contents' momentum toward the outlet is -mdot v_int (quasi-steady); it enters
+                # the balance with a minus sign
+                v_int, moving = ln.internal(s, self._vmode[ln.start_index], mdot)
+                mv = mdot * v_int
+                Ix = Ix + mv * dw[0]; Iy = Iy + mv * dw[1]; Iz = Iz + mv * dw[2]
+            if v_in is not None:
+                Nx = Nx + mdot * v_in[0]; Ny = Ny + mdot * v_in[1]; Nz = Nz + mdot * v_in[2]
+            flows.append(LineFlow(mdot, ve, pe, Ae, slope, up.p, p_in, v_int, moving, v_in, rises))
+        return _Sums(flows, (Tx, Ty, Tz), (Qx, Qy, Qz), (Ix, Iy, Iz), (Nx, Ny, Nz))
 
     # ------------------------------------------------------------------
-    def _record(self, rec, t, s, M, e, a, drags, weight, reaction, friction, outs, flows, jet_out, supplies,
+    def _derivatives(self, t: Any, s: Sequence[Any], air: tuple, a: tuple, flows: list, jets: list) -> list:
+        """Kinematics, then every owner's state derivatives in layout order."""
+        plan = self.plan
+        if self._held_only:
+            out: list = [0.0, 0.0, 0.0, 0.0, 0.0, 0.0]
+        else:
+            out = [s[3], s[4], s[5], a[0], a[1], a[2]]
+            if Kinematics.HELD in self._present:
+                moving = self._kin != Kinematics.HELD
+                out = [self.ops.where(moving, x, 0.0) for x in out]
+        if not plan.owners:
+            return out
+        vol_out: list[Any] = [0.0] * len(plan.vessels)
+        for ln, fl in zip(plan.lines, flows):
+            if ln.from_vessel and fl is not None:
+                vol_out[ln.start_index] = vol_out[ln.start_index] + fl.mdot
+        for ow in plan.owners:
+            if ow.role == "volume":
+                d = plan.vessels[ow.index].fns.derivs(s, self._vmode[ow.index], vol_out[ow.index])
+            elif ow.role == "jet":
+                d = plan.jets[ow.index].fns.derivs(t, s, self._jmode[ow.index], jets[ow.index][0])
+            else:
+                d = plan.bodies[ow.index].fns.derivs(t, s, self._bmode[ow.index], air)
+            out.extend(d)
+        return out
+
+    def _accumulators(self, s, sums: _Sums, jets, dirs, D, W, P, R, C) -> list:
+        """Derivatives of the closure-audit accumulators: mass out, exhaust momentum, external impulse, internal
+        momentum change."""
+        vx, vy, vz = s[3], s[4], s[5]
+        mout = 0.0
+        Ex = Ey = Ez = 0.0
+        for mdot, ve, pe, Ae, jd, T in jets:
+            mout = mout + mdot
+            Ex = Ex + mdot * (vx + ve * jd[0]); Ey = Ey + mdot * (vy + ve * jd[1]); Ez = Ez + mdot * (vz + ve * jd[2])
+        for ln, fl, (_dw, jd) in zip(self.plan.lines, sums.flows, dirs):
+            if fl is None:
+                continue
+            mdot, ve = fl.mdot, fl.v_e
+            Ex = Ex + mdot * (vx + ve * jd[0]); Ey = Ey + mdot * (vy + ve * jd[1]); Ez = Ez + mdot * (vz + ve * jd[2])
+            if ln.from_vessel:
+                mout = mout + mdot
+            else:
+                vin = fl.v_in
+                Ex = Ex - mdot * (vx + vin[0]); Ey = Ey - mdot * (vy + vin[1]); Ez = Ez - mdot * (vz + vin[2])
+        Q, I = sums.Q, sums.I
+        return [mout, Ex, Ey, Ez, D[0] + P[0] + Q[0] + R[0] + C[0], D[1] + P[1] + Q[1] + R[1] + C[1],
+                D[2] + W + P[2] + Q[2] + R[2] + C[2], -I[0], -I[1], -I[2]]
+
+    def _drives(self, flows: list, pa: Any) -> dict[str, Any]:
+        rec: dict[str, Any] = {}
+        for ln, fl in zip(self.plan.lines, flows):
+            if fl is None:
+                continue
+            rec.setdefault(ln.start, fl.p_start - pa)
+            rec[ln.terminal] = fl.p_in - pa
+        return rec
+
+    # ------------------------------------------------------------------
+    def _record(self, rec, t, s, M, e, a, drags, weight, reaction, friction, outs, sums, jets, supplies, dirs,
                 rho, pa, Ta, wind, sp, g):
+        plan = self.plan
         rec.update(time=t, mass=M, axis=e, acceleration=a, weight=weight, reaction=reaction,
                    position=(s[0], s[1], s[2]), velocity=(s[3], s[4], s[5]), airspeed=sp,
                    ambient_pressure=pa, ambient_density=rho, ambient_temperature=Ta, wind=wind, gravity=g)
         ledger: list[tuple[str, str, tuple]] = []
-        for k, f in drags:
-            n, bf, _ = self._bodies[k]
-            rec[f"{n}.{bf.force_name}"] = f
-            ledger.append((n, bf.force_name, f))
-        for k, (n, bf, _) in enumerate(self._bodies):
-            if bf.signals is not None:
-                for key, val in bf.signals(t, s, self._bmode[k]).items():
-                    rec[f"{n}.{key}"] = val
+        for b, f in drags:
+            rec[f"{b.name}.{b.fns.force_name}"] = tuple(f)
+            ledger.append((b.name, b.fns.force_name, tuple(f)))
+        for b, md in zip(plan.bodies, self._bmode):
+            if b.fns.signals is not None:
+                for key, val in b.fns.signals(t, s, md).items():
+                    rec[f"{b.name}.{key}"] = val
         ledger.append(("vehicle", "weight", weight))
         kin = self.kinematics
         if kin != Kinematics.FREE:
-            name = {Kinematics.HELD: "stand reaction", Kinematics.GUIDE: "guide reaction",
-                    Kinematics.TRACK: "track reaction"}[kin]
-            ledger.append(("vehicle", name, reaction))
-            if self._mu > 0.0 and kin != Kinematics.HELD:
+            ledger.append(("vehicle", f"{Kinematics.NAMES[kin]} reaction", reaction))
+            if self._friction and kin != Kinematics.HELD:
                 ledger.append(("vehicle", "friction", friction))
-        tvx = tvy = tvz = 0.0
+        tv = [0.0, 0.0, 0.0]
         mass_flow = 0.0
         seen = set()
-        for j, ln in enumerate(self._lines):
-            o, dw, jd = outs[j]
-            mdot, ve, pe, Ae, _c, p_start, p_in, vint, vin, rises = flows[j]
-            info = self._line_info[j]
+        for j, (ln, fl) in enumerate(zip(plan.lines, sums.flows)):
+            dw, jd = dirs[j]
+            mdot, ve = fl.mdot, fl.v_e
             mf = (-mdot * ve * jd[0], -mdot * ve * jd[1], -mdot * ve * jd[2])
-            pth = (pe - pa) * Ae
+            pth = (fl.p_e - pa) * fl.A_e
             pf = (-pth * jd[0], -pth * jd[1], -pth * jd[2])
             ledger.append((ln.terminal, "momentum flux", mf))
             ledger.append((ln.terminal, "pressure thrust", pf))
-            if info[0] and ln.vol.internal is not None:
-                im = (mdot * vint * dw[0], mdot * vint * dw[1], mdot * vint * dw[2])
-                ledger.append((ln.start, "internal momentum rate", im))
-                _v, moving = ln.vol.internal(s, self._vmode[info[1]], mdot)
-                prev = rec.get(f"{ln.start}.internal_momentum", (0.0, 0.0, 0.0))
-                rec[f"{ln.start}.internal_momentum"] = (prev[0] + moving * vint * dw[0], prev[1] + moving * vint * dw[1],
-                                                        prev[2] + moving * vint * dw[2])
-            if vin is not None:
-                ledger.append((ln.start, "inflow momentum", (mdot * vin[0], mdot * vin[1], mdot * vin[2])))
+            if ln.internal is not None:
+                ledger.append((ln.start, "internal momentum rate",
+                               (mdot * fl.v_int * dw[0], mdot * fl.v_int * dw[1], mdot * fl.v_int * dw[2])))
+                prev = rec.get(f"{ln.start}.internal_momentum", _Z3)
+                rec[f"{ln.start}.internal_momentum"] = tuple(prev[k] + fl.moving * fl.v_int * dw[k] for k in range(3))
+            if fl.v_in is not None:
+                ledger.append((ln.start, "inflow momentum", tuple(mdot * fl.v_in[k] for k in range(3))))
                 rec[f"{ln.start}.mass_flow"] = mdot
-            tvx += mf[0] + pf[0]; tvy += mf[1] + pf[1]; tvz += mf[2] + pf[2]
-            mass_flow += mdot
+            for k in range(3):
+                tv[k] = tv[k] + mf[k] + pf[k]
+            mass_flow = mass_flow + mdot
             rec[f"{ln.terminal}.mass_flow"] = mdot
             rec[f"{ln.terminal}.exit_velocity"] = ve
-            rec[f"{ln.terminal}.exit_pressure"] = pe
+            rec[f"{ln.terminal}.exit_pressure"] = fl.p_e
             rec[f"{ln.terminal}.thrust"] = mdot * ve + pth
-            rec[f"{ln.terminal}.inlet_pressure"] = p_in
-            rec[f"{ln.terminal}.drive"] = p_in - pa
-            up = _with_pressure(o, p_start)
-            for (m, fns), rise, md in zip(ln.series, rises, self._lmode[j][1]):
-                rec[f"{m}.pressure_rise"] = rise
-                rec[f"{m}.mass_flow"] = mdot
-                if fns.signals is not None:
-                    for key, val in fns.signals(up, pa, md).items():
-                        rec[f"{m}.{key}"] = val
-                up = _with_pressure(up, up[0] + rise)
-            if ln.fl.signals is not None:
-                for key, val in ln.fl.signals(_with_pressure(o, p_in), pa, self._lmode[j][0]).items():
+            rec[f"{ln.terminal}.inlet_pressure"] = fl.p_in
+            rec[f"{ln.terminal}.drive"] = fl.p_in - pa
+            o = outs[ln.start_index] if ln.from_vessel else Outlet(*supplies[ln.start_index][0])
+            up = o._replace(p=fl.p_start)
+            for el, rise, md in zip(ln.series, fl.rises, self._emode[j]):
+                rec[f"{el.name}.pressure_rise"] = rise
+                rec[f"{el.name}.mass_flow"] = mdot
+                if el.signals is not None:
+                    for key, val in el.signals(up, pa, md).items():
+                        rec[f"{el.name}.{key}"] = val
+                up = up._replace(p=up.p + rise)
+            if ln.terminal_fns.signals is not None:
+                for key, val in ln.terminal_fns.signals(o._replace(p=fl.p_in), pa, self._tmode[j]).items():
                     rec[f"{ln.terminal}.{key}"] = val
             if ln.start in seen:
                 continue
             seen.add(ln.start)
-            if info[0]:
-                rec[f"{ln.start}.head_pressure"] = p_start - o[0]
-                rec[f"{ln.start}.outlet_pressure"] = p_start
-                rec[f"{ln.start}.drive"] = p_start - pa
-                for key, val in ln.vol.signals(s, self._vmode[info[1]]).items():
+            if ln.from_vessel:
+                rec[f"{ln.start}.head_pressure"] = fl.p_start - o.p
+                rec[f"{ln.start}.outlet_pressure"] = fl.p_start
+                rec[f"{ln.start}.drive"] = fl.p_start - pa
+                for key, val in plan.vessels[ln.start_index].fns.signals(s, self._vmode[ln.start_index]).items():
                     rec[f"{ln.start}.{key}"] = val
-            elif ln.src.signals is not None:
-                for key, val in ln.src.signals(t, s, self._smode[info[1]]).items():
-                    rec[f"{ln.start}.{key}"] = val
-        for k, (n, jf, _) in enumerate(self._jets):
-            mdot, ve, pe, Ae, jd, T = jet_out[k]
+            else:
+                src = plan.sources[ln.start_index]
+                if src.fns.signals is not None:
+                    for key, val in src.fns.signals(t, s, self._smode[ln.start_index]).items():
+                        rec[f"{ln.start}.{key}"] = val
+        for j, (mdot, ve, pe, Ae, jd, T) in zip(plan.jets, jets):
             mf = (-mdot * ve * jd[0], -mdot * ve * jd[1], -mdot * ve * jd[2])
             pth = (pe - pa) * Ae
             pf = (-pth * jd[0], -pth * jd[1], -pth * jd[2])
-            ledger.append((n, "momentum flux", mf))
-            ledger.append((n, "pressure thrust", pf))
-            tvx += mf[0] + pf[0]; tvy += mf[1] + pf[1]; tvz += mf[2] + pf[2]
-            mass_flow += mdot
-            rec[f"{n}.mass_flow"] = mdot
-            rec[f"{n}.exit_velocity"] = ve
-            rec[f"{n}.thrust"] = T
-            for key, val in jf.signals(t, s, self._jmode[k]).items():
-                rec[f"{n}.{key}"] = val
-        rec["thrust_vector"] = (tvx, tvy, tvz)
-        rec["thrust"] = tvx * e[0] + tvy * e[1] + tvz * e[2]
+            ledger.append((j.name, "momentum flux", mf))
+            ledger.append((j.name, "pressure thrust", pf))
+            for k in range(3):
+                tv[k] = tv[k] + mf[k] + pf[k]
+            mass_flow = mass_flow + mdot
+            rec[f"{j.name}.mass_flow"] = mdot
+            rec[f"{j.name}.exit_velocity"] = ve
+            rec[f"{j.name}.thrust"] = T
+            for key, val in j.fns.signals(t, s, self._jmode[plan.jets.index(j)]).items():
+                rec[f"{j.name}.{key}"] = val
+        rec["thrust_vector"] = tuple(tv)
+        rec["thrust"] = _dot(tv, e)
         rec["mass_flow"] = mass_flow
         rec["ledger"] = ledger
         rec["inertia"] = (M * a[0], M * a[1], M * a[2])
 
 
-def _with_pressure(up: tuple, p: float) -> tuple:
-    return (p,) + tuple(up[1:])
+def _as_list(y: Any) -> list:
+    if type(y) is list:
+        return y
+    return y.tolist() if hasattr(y, "tolist") else list(y)
 
 
-def _solve_line(ln, up, pa, tmode, smodes, mfix):
+def _solve_rank_one(m: Any, pairs: list, b: Sequence[Any], ops: Any):
+    """Solve ``(m I + sum_k u_k v_k^T) x = b`` by repeated Sherman-Morrison updates, over floats or arrays.
+
+    Returns ``(x, singular)``; for one design a singular system raises :class:`IntegrationError`.
+
+    >>> from thrustgraph.xp import scalar_ops
+    >>> _solve_rank_one(2.0, [((1.0, 0.0, 0.0), (1.0, 0.0, 0.0))], (3.0, 2.0, 0.0), scalar_ops)
+    ((1.0, 1.0, 0.0), False)
+    """
+    x = (b[0] / m, b[1] / m, b[2] / m)
+    ws = [(u[0] / m, u[1] / m, u[2] / m) for u, _ in pairs]
+    singular: Any = False
+    for k, (_, v) in enumerate(pairs):
+        wk = ws[k]
+        den = 1.0 + v[0] * wk[0] + v[1] * wk[1] + v[2] * wk[2]
+        bad = ops.abs(den) < 1e-12
+        if not ops.arrays and bad:
+            raise IntegrationError(SINGULAR)
+        singular = singular | bad
+        den = ops.where(bad, 1.0, den)
+        cx = (v[0] * x[0] + v[1] * x[1] + v[2] * x[2]) / den
+        x = (x[0] - cx * wk[0], x[1] - cx * wk[1], x[2] - cx * wk[2])
+        for j in range(k + 1, len(ws)):
+            wj = ws[j]
+            cj = (v[0] * wj[0] + v[1] * wj[1] + v[2] * wj[2]) / den
+            ws[j] = (wj[0] - cj * wk[0], wj[1] - cj * wk[1], wj[2] - cj * wk[2])
+    return x, singular
+
+
+def _solve_line(ln: LinePlan, up: Outlet, pa: float, tmode: int, smodes: tuple, mfix: float):
     """Mass flow through elements in series: the flow the terminal element passes at the pressure the series
     elements deliver at that same flow (scalar root). A source that fixes the flow sets it instead, and the
-    pressure at the terminal element is whatever passes that flow."""
+    pressure at the terminal element is whatever passes that flow. One design at a time (floats)."""
+    flow = ln.terminal_fns.flow
 
     def after(mdot):
         cur = up
         rises = []
-        for (m, fns), md in zip(ln.series, smodes):
-            r = fns.rise(cur, mdot, md)
+        for el, md in zip(ln.series, smodes):
+            r = el.rise(cur, mdot, md)
             rises.append(r)
-            cur = _with_pressure(cur, cur[0] + r)
+            cur = cur._replace(p=cur.p + r)
         return cur, tuple(rises)
+
+    def through(cur, p):
+        fl = flow(cur._replace(p=p), pa, tmode)
+        return fl if type(fl) is Flow else Flow(*fl)
 
     if mfix >= 0.0:
         cur, rises = after(mfix)
         if mfix == 0.0:
-            return _ZERO_FLOW, cur[0], rises
+            return Flow(0.0, 0.0, 0.0, 0.0, 0.0), cur.p, rises
         # the supply delivers mfix: find the terminal inlet pressure that passes it
         lo, hi = pa, max(pa * 2.0, 1e5) + pa
-        while ln.fl.flow(_with_pressure(cur, hi), pa, tmode)[0] < mfix:
+        while through(cur, hi).mdot < mfix:
             hi = 2.0 * hi
             if hi > 1e12:
                 raise IntegrationError(f"components.{ln.terminal}: cannot pass the flow its supply fixes "
                                        f"({mfix:.4g} kg/s)")
-        p = brentq(lambda p: ln.fl.flow(_with_pressure(cur, p), pa, tmode)[0] - mfix, lo, hi,
-                   xtol=1e-12, rtol=1e-13)
+        p = brentq(lambda p: through(cur, p).mdot - mfix, lo, hi, xtol=1e-12, rtol=1e-13)
         # what enters leaves: the line passes exactly the flow its supply fixes (not the root's last digit)
-        return (mfix,) + tuple(ln.fl.flow(_with_pressure(cur, p), pa, tmode)[1:]), p, rises
+        return through(cur, p)._replace(mdot=mfix), p, rises
 
     def gap(mdot):
         cur, _ = after(mdot)
-        return ln.fl.flow(cur, pa, tmode)[0] - mdot
+        return through(cur, cur.p).mdot - mdot
 
     g0 = gap(0.0)
     if g0 <= 0.0:
         cur, rises = after(0.0)
-        return ln.fl.flow(cur, pa, tmode), cur[0], rises
+        return through(cur, cur.p), cur.p, rises
     hi = max(g0, 1e-6)
     while gap(hi) > 0.0:
         hi *= 2.0
@@ -583,10 +771,4 @@ def _solve_line(ln, up, pa, tmode, smodes, mfix):
             raise IntegrationError(f"components.{ln.terminal}: the line's mass flow has no finite solution")
     mdot = brentq(gap, 0.0, hi, xtol=1e-14, rtol=1e-13)
     cur, rises = after(mdot)
-    fl = ln.fl.flow(cur, pa, tmode)
-    return (mdot,) + tuple(fl[1:]), cur[0], rises
-
-
-_SINGULAR = ("the liquid head makes the acceleration undetermined (the nozzle is too large for the vessel's "
-             "bore under the quasi-steady model). Fix: use a vessel bore larger than about 1.5 times the "
-             "nozzle diameter")
+    return through(cur, cur.p)._replace(mdot=mdot), cur.p, rises

@@ -71,12 +71,13 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any, Callable, ClassVar, Sequence
+from typing import Any, Callable, ClassVar, NamedTuple, Sequence
 
 from .parameters import Spec, make_params_class
+from .xp import ScalarOps, scalar_ops
 
 __all__ = [
-    "ROLES", "StateVar", "Mode", "EventSpec", "Outlet", "BodyFns", "VolumeFns", "FlowFns", "JetFns", "SourceFns",
+    "ROLES", "StateVar", "Mode", "EventSpec", "Outlet", "Flow", "BodyFns", "VolumeFns", "FlowFns", "JetFns", "SourceFns",
     "ComponentKind", "EnvironmentKind", "ScalarOps", "scalar_ops", "Ambient",
 ]
 
@@ -140,50 +141,45 @@ class Ambient:
     density: float
 
 
-class ScalarOps:
-    """Elementwise helpers for plain floats; the array twin uses numpy.
 
-    Physics written against these helpers runs on scalars (single flights)
-    and on numpy arrays (ensembles) unchanged.
+class Outlet(NamedTuple):
+    """What leaves a volume's outlet (or enters from a source), SI; floats, or arrays over designs.
 
-    >>> scalar_ops.where(True, 1.0, 2.0), scalar_ops.maximum(-1.0, 0.0)
-    (1.0, 0.0)
+    ``p`` is the static pressure at the outlet without the liquid head (Pa); ``T`` the temperature of what
+    flows out (K); ``rho`` its density (kg/m^3); ``gamma`` and ``R`` the gas's ratio of specific heats and
+    specific gas constant (J/(kg K); ignored for a liquid); ``phase`` 1.0 when liquid flows out, 0.0 for gas,
+    -1.0 when the outlet is shut; ``head`` is rho_liquid h (kg/m^2): the pressure at the outlet is
+    ``p + head (f . d)``, f the apparent acceleration g - a and d the outlet direction.
+
+    >>> Outlet(5e5, 288.15, 998.2, 1.4, 287.05, 1.0, 0.0).phase
+    1.0
     """
 
-    sqrt = staticmethod(math.sqrt)
-    exp = staticmethod(math.exp)
-    log = staticmethod(math.log)
-
-    @staticmethod
-    def where(c: Any, a: Any, b: Any) -> Any:
-        return a if c else b
-
-    @staticmethod
-    def maximum(a: float, b: float) -> float:
-        return a if a > b else b
-
-    @staticmethod
-    def minimum(a: float, b: float) -> float:
-        return a if a < b else b
-
-    @staticmethod
-    def interp(x: float, xp: Any, fp: Any) -> float:
-        import numpy as np
-        return float(np.interp(x, xp, fp))
+    p: Any
+    T: Any
+    rho: Any
+    gamma: Any
+    R: Any
+    phase: Any
+    head: Any
 
 
-scalar_ops = ScalarOps()
+class Flow(NamedTuple):
+    """What a flow element discharging to the surroundings passes, SI; floats, or arrays over designs.
 
-# Outlet condition of a volume: (p, T, rho, gamma, R, liquid, head)
-#   p      static pressure at the outlet without liquid head, Pa
-#   T      temperature of what flows out, K
-#   rho    density of what flows out, kg/m^3
-#   gamma  ratio of specific heats of the gas (ignored for liquid)
-#   R      specific gas constant, J/(kg K) (ignored for liquid)
-#   phase  1.0 when liquid flows out, 0.0 for gas, -1.0 when the outlet is shut
-#   head   rho_liquid * h, kg/m^2: the outlet pressure is p + head * (f . d),
-#          f the apparent acceleration g - a and d the outlet direction
-Outlet = tuple
+    ``mdot`` mass flow (kg/s, >= 0); ``v_e`` exit velocity relative to the vehicle (m/s); ``p_e`` exit
+    pressure (Pa); ``A_e`` the area over which p_e - p_a acts (m^2); ``slope`` the derivative of the thrust
+    magnitude with respect to the upstream pressure (N/Pa; it solves the liquid-head coupling).
+
+    >>> Flow(1.0, 20.0, 101325.0, 3e-4, 6e-4).mdot
+    1.0
+    """
+
+    mdot: Any
+    v_e: Any
+    p_e: Any
+    A_e: Any
+    slope: Any
 
 
 @dataclass(frozen=True)

@@ -47,7 +47,7 @@ from typing import Any, Callable, Iterator
 
 import pluggy
 
-from .component import ComponentKind, EnvironmentKind, scalar_ops
+from .component import ComponentKind, EnvironmentKind
 from .errors import ContractError, ModelError, ThrustgraphError
 from .parameters import Quantity, Spec
 from .units import Q_
@@ -381,37 +381,38 @@ def _code_of(fn: Any) -> tuple[Any, int] | None:
 
 
 def _callables(system: Any) -> Iterator[tuple[str, type, Hook, Any]]:
-    """(component, kind, hook, callable) for every callable of the assembled vehicle, environment included."""
-    parsed = system.parsed
+    """(component, kind, hook, callable) for every callable of the assembled vehicle's plan, environment included."""
+    parsed, plan = system.parsed, system.plan
     kinds = parsed.kinds
-    yield "environment.medium", parsed.env_kinds["medium"], HOOKS["medium.fn"], system.medium
-    yield "environment.gravity", parsed.env_kinds["gravity"], HOOKS["gravity.fn"], system.gravity
-    groups = [("body", system.bodies), ("volume", system.volumes), ("jet", system.jets), ("source", system.sources)]
-    seen = set()
-    flows = []
-    for ln in system.lines:
-        for m, fns in ln.series + ((ln.terminal, ln.fl),):
-            if m not in seen and kinds[m].role == "flow":
-                seen.add(m)
-                flows.append((m, fns))
-    groups.append(("flow", flows))
-    for role, members in groups:
+    yield "environment.medium", parsed.env_kinds["medium"], HOOKS["medium.fn"], plan.medium
+    yield "environment.gravity", parsed.env_kinds["gravity"], HOOKS["gravity.fn"], plan.gravity
+    for role, members in (("body", plan.bodies), ("volume", plan.vessels), ("jet", plan.jets),
+                          ("source", plan.sources)):
         owner, fields = _BUNDLE_FIELDS[role]
-        for n, fns in members:
+        for member in members:
             for f in fields:
-                fn = getattr(fns, f)
+                fn = getattr(member.fns, f)
                 if fn is not None:
-                    yield n, kinds[n], HOOKS[f"{owner}.{f}"], fn
-            for e in fns.events:
-                yield n, kinds[n], HOOKS["EventSpec.fn"], e.fn
+                    yield member.name, kinds[member.name], HOOKS[f"{owner}.{f}"], fn
+    for ln in plan.lines:
+        for e in ln.series:
+            if kinds[e.name].role == "flow":           # a source's own loss is listed with the source
+                yield e.name, kinds[e.name], HOOKS["FlowFns.rise"], e.rise
+                if e.signals is not None:
+                    yield e.name, kinds[e.name], HOOKS["FlowFns.signals"], e.signals
+        yield ln.terminal, kinds[ln.terminal], HOOKS["FlowFns.flow"], ln.terminal_fns.flow
+        if ln.terminal_fns.signals is not None:
+            yield ln.terminal, kinds[ln.terminal], HOOKS["FlowFns.signals"], ln.terminal_fns.signals
+    for n, e in plan.events:
+        yield n, kinds[n], HOOKS["EventSpec.fn"], e.fn
 
 
-def check_system(system: Any, ops: Any = scalar_ops) -> Any:
+def check_system(system: Any) -> Any:
     """Check every callable of an assembled vehicle against the contract; return the system unchanged.
 
-    Array builds (``ops`` other than :data:`~thrustgraph.component.scalar_ops`)
-    are not tried here. Raises :class:`ContractError` naming the plugin, the
-    kind, the component, the hook and the callable.
+    Raises :class:`ContractError` naming the plugin, the kind, the component,
+    the hook and the callable. The ensemble's array builds
+    (:mod:`thrustgraph.arraysystem`) are not tried here.
 
     >>> from thrustgraph.assembly import assemble
     >>> from thrustgraph.modelfile import load_model, default_model_path
@@ -419,8 +420,6 @@ def check_system(system: Any, ops: Any = scalar_ops) -> Any:
     >>> check_system(system) is system
     True
     """
-    if ops is not scalar_ops:
-        return system
     keys: list | None = []
     for n, cls, hook, fn in _callables(system):
         code = _code_of(fn)
@@ -537,12 +536,13 @@ class _Trial:
 
     def run(self) -> None:
         sysm = self.system
+        plan = sysm.plan
         s = list(sysm.y0)
         t = 0.0
         mode = self.mode
-        med = self.call("environment.medium", HOOKS["medium.fn"], sysm.medium, (s[2], t))
-        g = self.call("environment.gravity", HOOKS["gravity.fn"], sysm.gravity, (s[2],))
-        for slot, fn, out in (("medium", sysm.medium, med), ("gravity", sysm.gravity, g)):
+        med = self.call("environment.medium", HOOKS["medium.fn"], plan.medium, (s[2], t))
+        g = self.call("environment.gravity", HOOKS["gravity.fn"], plan.gravity, (s[2],))
+        for slot, fn, out in (("medium", plan.medium, med), ("gravity", plan.gravity, g)):
             uni = getattr(fn, "uniform", None)
             if uni is not None and uni != out:
                 raise self.fail(f"environment.{slot}", self.parsed.env_kinds[slot], f"{slot} fn.uniform",
@@ -552,8 +552,8 @@ class _Trial:
         vr = (s[3] - wx, s[4] - wy, s[5] - wz)
         air = (rho, pa, Ta) + vr + (math.sqrt(vr[0] ** 2 + vr[1] ** 2 + vr[2] ** 2),)
         H = HOOKS
-        for n, b in sysm.bodies:
-            m = mode.get(n, 0)
+        for body in plan.bodies:
+            n, b, m = body.name, body.fns, mode.get(body.name, 0)
             self.value(n, "BodyFns.mass", b.mass)
             if b.force_state is not None:
                 self.call(n, H["BodyFns.force_state"], b.force_state, (t, s, m, air))
@@ -563,50 +563,52 @@ class _Trial:
                 self.call(n, H["BodyFns.derivs"], b.derivs, (t, s, m, air))
             if b.signals is not None:
                 self.call(n, H["BodyFns.signals"], b.signals, (t, s, m))
-        for n, j in sysm.jets:
-            m = mode.get(n, 0)
+        for jet in plan.jets:
+            n, j, m = jet.name, jet.fns, mode.get(jet.name, 0)
             self.value(n, "JetFns.jet_dir", j.jet_dir, 3)
             self.call(n, H["JetFns.mass"], j.mass, (s,))
             out = self.call(n, H["JetFns.jet"], j.jet, (t, s, m, pa))
             self.call(n, H["JetFns.derivs"], j.derivs, (t, s, m, out[0]))
             self.call(n, H["JetFns.signals"], j.signals, (t, s, m))
         outlets = {}
-        for n, v in sysm.volumes:
+        for vessel in plan.vessels:
+            n, v = vessel.name, vessel.fns
             self.value(n, "VolumeFns.outlet_dir", v.outlet_dir, 3)
             self.call(n, H["VolumeFns.mass"], v.mass, (s,))
             outlets[n] = tuple(self.call(n, H["VolumeFns.outlet"], v.outlet, (s, mode.get(n, 0))))
-        supplies = {n: self.call(n, H["SourceFns.supply"], src.supply, (t, s, mode.get(n, 0), air))
-                    for n, src in sysm.sources}
+        supplies = {src.name: self.call(src.name, H["SourceFns.supply"], src.fns.supply,
+                                        (t, s, mode.get(src.name, 0), air)) for src in plan.sources}
         drive: dict[str, float] = {}
         out_flow: dict[str, float] = {}
-        for ln in sysm.lines:
-            up = outlets[ln.start] if ln.start_kind == "volume" else tuple(supplies[ln.start][0])
+        for ln in plan.lines:
+            up = outlets[ln.start] if ln.from_vessel else tuple(supplies[ln.start][0])
             drive.setdefault(ln.start, up[0] - pa)
             cur = up
-            for m_, fns in ln.series:
-                hook = H["SourceFns.rise"] if m_ == ln.start else H["FlowFns.rise"]
-                r = self.call(m_, hook, fns.rise, (cur, 0.0, mode.get(m_, 0)))
-                if m_ != ln.start and fns.signals is not None:
-                    self.call(m_, H["FlowFns.signals"], fns.signals, (cur, pa, mode.get(m_, 0)))
+            for e in ln.series:
+                own = not ln.from_vessel and e.name == ln.start       # a source's own loss (a hose)
+                m = mode.get(e.name, 0)
+                r = self.call(e.name, H["SourceFns.rise" if own else "FlowFns.rise"], e.rise, (cur, 0.0, m))
+                if e.signals is not None:
+                    self.call(e.name, H["FlowFns.signals"], e.signals, (cur, pa, m))
                 cur = (cur[0] + r,) + tuple(cur[1:])
-            term = ln.terminal
-            self.value(term, "FlowFns.jet_dir", ln.fl.jet_dir, 3)
-            fl = self.call(term, H["FlowFns.flow"], ln.fl.flow, (cur, pa, mode.get(term, 0)))
-            if ln.fl.signals is not None:
-                self.call(term, H["FlowFns.signals"], ln.fl.signals, (cur, pa, mode.get(term, 0)))
+            term, fns = ln.terminal, ln.terminal_fns
+            self.value(term, "FlowFns.jet_dir", fns.jet_dir, 3)
+            fl = self.call(term, H["FlowFns.flow"], fns.flow, (cur, pa, mode.get(term, 0)))
+            if fns.signals is not None:
+                self.call(term, H["FlowFns.signals"], fns.signals, (cur, pa, mode.get(term, 0)))
             drive[term] = cur[0] - pa
-            if ln.src is not None and ln.src.inflow is not None:
-                self.call(ln.start, H["SourceFns.inflow"], ln.src.inflow, (fl[0], up))
+            if ln.inflow is not None:
+                self.call(ln.start, H["SourceFns.inflow"], ln.inflow, (fl[0], up))
             out_flow[ln.start] = out_flow.get(ln.start, 0.0) + fl[0]
-        for n, v in sysm.volumes:
-            m = mode.get(n, 0)
+        for vessel in plan.vessels:
+            n, v, m = vessel.name, vessel.fns, mode.get(vessel.name, 0)
             self.call(n, H["VolumeFns.derivs"], v.derivs, (s, m, out_flow.get(n, 0.0)))
             if v.internal is not None:
                 self.call(n, H["VolumeFns.internal"], v.internal, (s, m, out_flow.get(n, 0.0)))
             self.call(n, H["VolumeFns.signals"], v.signals, (s, m))
-        for n, src in sysm.sources:
-            if src.signals is not None:
-                self.call(n, H["SourceFns.signals"], src.signals, (t, s, mode.get(n, 0)))
-        for n, e in sysm.events:
+        for src in plan.sources:
+            if src.fns.signals is not None:
+                self.call(src.name, H["SourceFns.signals"], src.fns.signals, (t, s, mode.get(src.name, 0)))
+        for n, e in plan.events:
             self.call(n, H["EventSpec.fn"], e.fn, (t, list(s), drive.get(n, 0.0) if e.needs_drive else 0.0),
                       label=f"event {e.name!r}, ")

@@ -272,12 +272,12 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
             break
         try:
             if audit:
-                sol = solve_ivp(bal.phase_rhs, (t, t_end), y, method=method, rtol=rtol, atol=state.atol,
+                sol = solve_ivp(bal.rhs, (t, t_end), y, method=method, rtol=rtol, atol=state.atol,
                                 events=fns, dense_output=dense)
             else:
                 n_phys = sysm.n_states - len(ACCUMULATORS)
                 k = math.sqrt(sysm.n_states / n_phys)
-                sol = solve_ivp(bal.phase_core, (t, t_end), y[:n_phys], method=method, rtol=rtol * k,
+                sol = solve_ivp(bal.core, (t, t_end), y[:n_phys], method=method, rtol=rtol * k,
                                 atol=state.atol[:n_phys] * k, events=fns, dense_output=dense)
         except (ValueError, ZeroDivisionError, OverflowError) as exc:
             raise IntegrationError(f"integration failed at t = {t:.6g} s in phase {_label(sysm, ph)!r}: {exc}") from None

@@ -38,12 +38,14 @@ import io
 import itertools
 import math
 import os
+import sys
 import time
 from dataclasses import dataclass, field
 from typing import Any, Sequence
 
 import numpy as np
 
+from .arraysystem import unsupported
 from .assembly import assemble
 from .designs import DesignParameter, within_bounds
 from .engines import FLIGHTS, ENGINES, FlightTask, chunks, default_chunk_size, make_engine
@@ -170,8 +172,6 @@ def choose_engine(n: int, parsed: ParsedModel, engine: str = "auto", flights: st
     if flights == "auto":
         flights = "single"
         if n >= 200:
-            from .ensemble import unsupported
-
             if unsupported(parsed) is None:
                 flights = "ensemble"
     if engine == "auto":
@@ -212,13 +212,14 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
         eng_name, flights = choose_engine(n, parsed, engine, flights)
     else:
         eng_name, flights = engine.name, choose_engine(n, parsed, "serial", flights)[1]
-    if flights == "ensemble":
-        from .ensemble import unsupported
-
-        why = unsupported(parsed)
-        if why:
-            raise ModelError("--flights ensemble", f"the vectorised ensemble cannot fly this model: {why}",
-                             "use --flights single")
+    why = unsupported(parsed) if flights == "ensemble" or n >= 200 else None
+    if flights == "ensemble" and why:
+        raise ModelError("--flights ensemble", f"the vectorised ensemble cannot fly this model: {why}",
+                         "use --flights single")
+    if why and not quiet:
+        # said at the start: a large study of a model the ensemble cannot fly runs at single-flight speed
+        print(f"thrustgraph: flying {n} designs one at a time: the vectorised ensemble cannot fly this model "
+              f"({why})", file=stream or sys.stderr)
     own = isinstance(engine, str)
     eng = make_engine(eng_name, workers=workers, scheduler=scheduler, timeout=timeout) if own else engine
     task = FlightTask(model, tuple(p.path for p in params), tuple(p.unit for p in params), outputs, flights,

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 
-__all__ = ["unit_from_angles", "body_frame", "to_world", "solve_rank_one"]
+__all__ = ["unit_from_angles", "body_frame", "to_world", "solve_rank_one", "frame_of"]
 
 Vec = tuple[float, float, float]
 
@@ -37,6 +37,24 @@ def body_frame(e: Vec, azimuth: float) -> tuple[Vec, Vec, Vec]:
         yb = (-ey / n, ex / n, 0.0)
     else:
         yb = (-math.sin(azimuth), math.cos(azimuth), 0.0)
+    zb = (ey * yb[2] - ez * yb[1], ez * yb[0] - ex * yb[2], ex * yb[1] - ey * yb[0])
+    return e, yb, zb
+
+
+def frame_of(e: Vec, azimuth, ops) -> tuple[Vec, Vec, Vec]:
+    """:func:`body_frame` over floats or arrays of designs (``ops`` is the namespace: see :mod:`thrustgraph.xp`).
+
+    >>> from thrustgraph.xp import scalar_ops
+    >>> frame_of((0.0, 0.0, 1.0), 0.0, scalar_ops) == body_frame((0.0, 0.0, 1.0), 0.0)
+    True
+    """
+    if not ops.arrays:
+        return body_frame(e, azimuth)
+    ex, ey, ez = e
+    n = ops.sqrt(ex * ex + ey * ey)
+    tilted = n > 1e-12
+    d = ops.where(tilted, n, 1.0)
+    yb = (ops.where(tilted, -ey / d, -ops.sin(azimuth)), ops.where(tilted, ex / d, ops.cos(azimuth)), 0.0 * n)
     zb = (ey * yb[2] - ez * yb[1], ez * yb[0] - ex * yb[2], ex * yb[1] - ey * yb[0])
     return e, yb, zb
 

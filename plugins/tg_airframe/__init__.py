@@ -5,8 +5,8 @@ with A the reference (frontal) area of the given diameter. The drag
 coefficient is constant here; tables against Mach number or speed belong to
 a later family.
 
-The kind is ``vectorised``: given :data:`thrustgraph.arrayops.array_ops` it
-builds the same drag over numpy arrays of designs (one value per design).
+The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.xp`
+and runs on floats (a single flight) and on numpy arrays of designs (an ensemble).
 
 Examples
 --------
@@ -46,21 +46,10 @@ class Airframe(ComponentKind):
 
     @classmethod
     def build_body(cls, p, ops):
-        if getattr(ops, "arrays", False):
-            return cls._build_body_arrays(p)
+        """One definition for one design (floats) and for an ensemble (``p`` fields and ``air`` arrays)."""
         k = 0.5 * p.drag_coefficient * math.pi * p.reference_diameter ** 2 / 4.0
-        if k == 0.0:
+        if ops.all(k == 0.0):
             return BodyFns(mass=p.dry_mass, force=None)
-
-        def drag(air):
-            c = -k * air[0] * air[6]
-            return (c * air[3], c * air[4], c * air[5])
-        return BodyFns(mass=p.dry_mass, force=drag, force_name="drag")
-
-    @classmethod
-    def _build_body_arrays(cls, p):
-        """The drag over arrays of designs (``air`` holds arrays; parameters may be arrays)."""
-        k = 0.5 * p.drag_coefficient * math.pi * p.reference_diameter ** 2 / 4.0
 
         def drag(air):
             c = -k * air[0] * air[6]

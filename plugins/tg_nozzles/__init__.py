@@ -22,10 +22,9 @@ area (an assumption: common practice, no source). The liquid relation assumes
 the nozzle is much narrower than the vessel bore (the column's velocity head
 is neglected). The flow never reverses: below ambient pressure nothing flows.
 
-The kind is ``vectorised``: given :data:`thrustgraph.arrayops.array_ops` it
-builds the same flow over numpy arrays of designs, evaluating the liquid,
-choked and unchoked branches for every design and picking one with
-``np.where`` (square roots and powers clipped so unused branches stay finite).
+The kind is ``vectorised``: its one definition is written against the namespace of
+:mod:`thrustgraph.xp` and runs on floats (a single flight) and on numpy arrays of designs (an ensemble),
+choosing the regime with ``ops.branch`` (square roots and powers clipped so unused branches stay finite).
 
 Examples
 --------
@@ -43,7 +42,7 @@ from __future__ import annotations
 import math
 
 from thrustgraph import hookimpl
-from thrustgraph.component import ComponentKind, FlowFns
+from thrustgraph.component import ComponentKind, Flow, FlowFns
 from thrustgraph.parameters import Number, Quantity, Vector
 
 __all__ = ["ConvergentNozzle", "critical_pressure_ratio", "choked_flux_factor"]
@@ -64,7 +63,7 @@ def choked_flux_factor(gamma: float) -> float:
     >>> round(choked_flux_factor(1.4) / math.sqrt(287.05), 6)
     0.040415
     """
-    return math.sqrt(gamma) * (2.0 / (gamma + 1.0)) ** ((gamma + 1.0) / (2.0 * (gamma - 1.0)))
+    return gamma ** 0.5 * (2.0 / (gamma + 1.0)) ** ((gamma + 1.0) / (2.0 * (gamma - 1.0)))
 
 
 class ConvergentNozzle(ComponentKind):
@@ -83,108 +82,56 @@ class ConvergentNozzle(ComponentKind):
 
     @classmethod
     def build_flow(cls, p, ops):
-        if getattr(ops, "arrays", False):
-            return cls._build_flow_arrays(p)
-        area = p.discharge_coefficient * math.pi * p.diameter ** 2 / 4.0
-        sqrt = math.sqrt
-        cache: dict[tuple[float, float], tuple[float, float, float, float]] = {}
+        """One definition for one design (floats) and for an ensemble (``up`` and parameters arrays).
 
-        def consts(gam, R):
-            key = (gam, R)
-            c = cache.get(key)
-            if c is None:
-                crit = critical_pressure_ratio(gam)
-                c = (crit, choked_flux_factor(gam) / sqrt(R), (gam - 1.0) / gam, 2.0 * gam * R / (gam - 1.0))
-                cache[key] = c
-            return c
-
-        def flow(up, p_down, mode=0):
-            pu, T, rho, gam, R, phase, head = up
-            if phase > 0.5:  # liquid
-                dp = pu - p_down
-                if dp <= 0.0:
-                    return (0.0, 0.0, p_down, area, 0.0)
-                v = sqrt(2.0 * dp / rho)
-                return (rho * area * v, v, p_down, area, 2.0 * area)
-            if phase < -0.5 or pu <= p_down:
-                return (0.0, 0.0, p_down, area, 0.0)
-            crit, flux, k1, k2 = consts(gam, R)
-            pr = p_down / pu
-            if pr <= crit:
-                mdot = area * pu * flux / sqrt(T)
-                Te = 2.0 * T / (gam + 1.0)
-                ve = sqrt(gam * R * Te)
-                pe = crit * pu
-                # thrust = pu * area * const - p_down * area  ->  d/dpu = (thrust + p_down area) / pu
-                return (mdot, ve, pe, area, (mdot * ve + pe * area) / pu)
-            x = pr ** k1
-            ve = sqrt(k2 * T * (1.0 - x))
-            Te = T * x
-            mdot = (p_down / (R * Te)) * ve * area
-            return (mdot, ve, p_down, area, 2.0 * area)
-
-        return FlowFns(flow=flow, jet_dir=p.direction)
-
-    @classmethod
-    def _build_flow_arrays(cls, p):
-        """The same nozzle over arrays of designs: ``up`` holds arrays (or floats), parameters arrays or floats.
-
-        Each regime (liquid, choked gas, unchoked gas) is evaluated only when
-        some design is in it; a design's numbers do not depend on which other
-        designs share the arrays.
+        The regimes (liquid, choked gas, unchoked gas, shut) are chosen by ``ops.branch``: one function runs
+        for a float; over arrays each runs only when some design is in it, over every design, with its square
+        roots and powers clipped so that designs in other regimes stay finite.
         """
-        import numpy as np
-
         area = p.discharge_coefficient * math.pi * p.diameter ** 2 / 4.0
+
+        def shut(pu, T, rho, gam, R, p_down):
+            return Flow(0.0 * pu, 0.0 * pu, p_down + 0.0 * pu, area, 0.0 * pu)
+
+        def liquid(pu, T, rho, gam, R, p_down):
+            dp = pu - p_down
+            v = ops.sqrt(2.0 * ops.maximum(dp, 0.0) / rho)
+            return Flow(rho * area * v, v, p_down + 0.0 * pu, area, ops.where(dp > 0.0, 2.0 * area, 0.0))
+
+        def choked(pu, T, rho, gam, R, p_down):
+            crit = critical_pressure_ratio(gam)
+            mdot = area * pu * choked_flux_factor(gam) / ops.sqrt(R * T)
+            ve = ops.sqrt(gam * R * (2.0 * T / (gam + 1.0)))
+            pe = crit * pu
+            # thrust = pu * area * const - p_down * area  ->  d/dpu = (thrust + p_down area) / pu
+            return Flow(mdot, ve, pe, area, (mdot * ve + pe * area) / pu)
+
+        def unchoked(pu, T, rho, gam, R, p_down):
+            x = ops.maximum(p_down / pu, 1e-300) ** ((gam - 1.0) / gam)
+            ve = ops.sqrt(2.0 * gam * R / (gam - 1.0) * T * ops.maximum(1.0 - x, 0.0))
+            mdot = (p_down / (R * T * x)) * ve * area
+            return Flow(mdot, ve, p_down + 0.0 * pu, area, 2.0 * area + 0.0 * pu)
+
+        def gas(pu, T, rho, gam, R, p_down):
+            return ops.branch(p_down / pu <= critical_pressure_ratio(gam), choked, unchoked,
+                              pu, T, rho, gam, R, p_down)
+
+        def open_gas(pu, T, rho, gam, R, p_down):
+            flowing = pu > p_down
+            # designs that cannot flow are evaluated at a pressure just above ambient, then zeroed
+            return ops.branch(flowing, gas, shut, ops.where(flowing, pu, p_down + 1.0), T, rho, gam, R, p_down)
 
         def flow(up, p_down, mode=0):
             pu, T, rho, gam, R, phase, head = up
-            if type(phase) is float:            # every design in the same phase
-                if phase > 0.5:                  # liquid: the jet alone
-                    dp = pu - p_down
-                    v_l = np.sqrt(2.0 * np.maximum(dp, 0.0) / rho)
-                    return (rho * area * v_l, v_l, p_down, area, np.where(dp > 0.0, 2.0 * area, 0.0))
-                if phase < -0.5:                 # sealed
-                    return (0.0, 0.0, p_down, area, 0.0)
-                phase = np.float64(phase)
-            liquid = phase > 0.5
-            dp = pu - p_down
-            wet = dp > 0.0
-            open_ = (phase > -0.5) & wet
-            gas = open_ & ~liquid
-            md_l = v_l = c_l = md_g = ve_g = c_g = 0.0
-            pe_g = p_down
-            if liquid.any():
-                v_l = np.sqrt(2.0 * np.maximum(dp, 0.0) / rho)
-                md_l, c_l = rho * area * v_l, np.where(wet, 2.0 * area, 0.0)
-            if gas.any():
-                pus = np.where(open_, pu, p_down + 1.0)
-                crit = (2.0 / (gam + 1.0)) ** (gam / (gam - 1.0))
-                pr = p_down / pus
-                choked = pr <= crit
-                some_choked = bool((gas & choked).any())
-                if some_choked:
-                    flux = np.sqrt(gam / R) * (2.0 / (gam + 1.0)) ** ((gam + 1.0) / (2.0 * (gam - 1.0)))
-                    md_g = area * pus * flux / np.sqrt(T)
-                    ve_g = np.sqrt(gam * R * (2.0 * T / (gam + 1.0)))
-                    pe_g = crit * pus
-                    c_g = (md_g * ve_g + pe_g * area) / pus
-                if (gas & ~choked).any():
-                    x = np.maximum(pr, 1e-300) ** ((gam - 1.0) / gam)
-                    ve_u = np.sqrt(2.0 * gam * R / (gam - 1.0) * T * np.maximum(1.0 - x, 0.0))
-                    md_u = (p_down / (R * T * x)) * ve_u * area
-                    if some_choked:
-                        md_g, ve_g = np.where(choked, md_g, md_u), np.where(choked, ve_g, ve_u)
-                        pe_g, c_g = np.where(choked, pe_g, p_down), np.where(choked, c_g, 2.0 * area)
-                    else:                        # no open design is choked: the selections would pick these
-                        md_g, ve_g, pe_g, c_g = md_u, ve_u, p_down, 2.0 * area
-            pe = np.where(gas, pe_g, p_down)
-            if not liquid.any():                 # the selections below would pick the gas values alone
-                return (np.where(gas, md_g, 0.0), np.where(gas, ve_g, 0.0), pe, area, np.where(gas, c_g, 0.0))
-            mdot = np.where(liquid, md_l, np.where(gas, md_g, 0.0))
-            ve = np.where(liquid, v_l, np.where(gas, ve_g, 0.0))
-            c = np.where(liquid, c_l, np.where(gas, c_g, 0.0))
-            return (mdot, ve, pe, area, c)
+            if type(phase) is float:            # every design in the same phase (always so for one design)
+                if phase > 0.5:
+                    return liquid(pu, T, rho, gam, R, p_down)
+                if phase < -0.5:
+                    return shut(pu, T, rho, gam, R, p_down)
+                return open_gas(pu, T, rho, gam, R, p_down)
+            return ops.branch(phase > 0.5, liquid,
+                              lambda *a: ops.branch(phase < -0.5, shut, open_gas, *a),
+                              pu, T, rho, gam, R, p_down)
 
         return FlowFns(flow=flow, jet_dir=p.direction)
 

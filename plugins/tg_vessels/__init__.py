@@ -21,9 +21,9 @@ d the outlet direction. The balance solves it together with the acceleration.
 Modes: ``liquid`` (liquid thrust) -> ``gas`` (gas thrust) when the liquid is
 gone; either -> ``sealed`` when the pressure can no longer push anything out.
 
-The kind is ``vectorised``: given :data:`thrustgraph.arrayops.array_ops` it
-builds the same physics over numpy arrays of designs (modes as arrays of mode
-indices, branches as ``np.where``), for the vectorised ensemble.
+The kind is ``vectorised``: its one definition is written against the namespace of
+:mod:`thrustgraph.xp` and runs on floats (a single flight) and on numpy arrays of designs (an ensemble;
+modes as arrays of mode indices, choices by ``ops.where``).
 
 Assumptions and limits: quasi-steady outflow (the column's own acceleration is
 neglected), a prismatic column of the given bore, no vapour condensation or
@@ -49,7 +49,7 @@ from __future__ import annotations
 import math
 
 from thrustgraph import hookimpl
-from thrustgraph.component import ComponentKind, EventSpec, Mode, StateVar, VolumeFns
+from thrustgraph.component import ComponentKind, EventSpec, Mode, Outlet, StateVar, VolumeFns
 from thrustgraph.errors import ModelError
 from thrustgraph.parameters import Flag, Number, Quantity, Vector
 
@@ -142,89 +142,25 @@ class LiquidTank(ComponentKind):
 
     vectorised = True
 
-    @staticmethod
-    def _fixed(p):
-        """Constants both builds use: T0, rho_l, V, n, gamma, R, bore area, inertial-head switch."""
-        return (p.gas_temperature, p.liquid_density, p.volume, p.expansion_exponent, p.gas_gamma,
-                p.gas_constant, math.pi * p.bore ** 2 / 4.0, p.inertial_head)
-
     @classmethod
     def build_volume(cls, p, i, ops, amb):
-        if getattr(ops, "arrays", False):
-            return cls._build_volume_arrays(p, i, amb)
+        """One definition for one design (floats) and for an ensemble (``p`` fields, ``s[k]`` and ``mode``
+        arrays; a mode shared by every design arrives as an ``int``). Mode indices: 0 liquid, 1 gas, 2 sealed.
+        Trial stages of an adaptive step may overshoot past empty: the power law is kept real by a 1e-12 floor
+        on the density ratio."""
         p0, vg0, mg0 = cls._gas0(p, amb)
-        rho0 = mg0 / vg0 if vg0 > 0 else 1.0
-        T0, rho_l, V, n, gam, R, area, head_on = cls._fixed(p)
-        def gas(s):
-            m_l, m_g = s[i], s[i + 1]
-            vg = V - m_l / rho_l
-            rg = m_g / vg
-            # trial stages of an adaptive step may overshoot past empty: keep the power law real
-            r = rg / rho0 if rg > 1e-12 * rho0 else 1e-12
-            pg = p0 * r ** n
-            Tg = T0 * r ** (n - 1.0)
-            return pg, Tg, rg, vg
-
-        def mass(s):
-            return s[i] + s[i + 1]
-
-        def outlet(s, mode):
-            pg, Tg, rg, vg = gas(s)
-            if mode == 0:
-                head = rho_l * (s[i] / (rho_l * area)) if head_on else 0.0
-                return (pg, Tg, rho_l, gam, R, 1.0, head)
-            if mode == 1:
-                return (pg, Tg, rg, gam, R, 0.0, 0.0)
-            return (pg, Tg, rg, gam, R, -1.0, 0.0)
-
-        def derivs(s, mode, mdot):
-            if mode == 0:
-                return (-mdot, 0.0)
-            if mode == 1:
-                return (0.0, -mdot)
-            return (0.0, 0.0)
-
-        def signals(s, mode):
-            pg, Tg, rg, vg = gas(s)
-            return {"pressure": pg, "temperature": Tg, "liquid_mass": s[i], "gas_mass": s[i + 1],
-                    "liquid_volume": s[i] / rho_l, "liquid_height": s[i] / (rho_l * area)}
-
-        internal = None
-        if p.internal_momentum:
-            def internal(s, mode, mdot):
-                if mode != 0:
-                    return (0.0, 0.0)
-                return (mdot / (rho_l * area), s[i])
-
-        events = (
-            EventSpec("liquid exhausted", lambda t, s, drive: s[i], -1.0, ("liquid",), "gas", needs_drive=False),
-            EventSpec("liquid flow stops", lambda t, s, drive: drive, -1.0, ("liquid",), "sealed"),
-            EventSpec("gas exhausted", lambda t, s, drive: drive, -1.0, ("gas",), "sealed"),
-        )
-        fns = VolumeFns(mass=mass, outlet=outlet, derivs=derivs, signals=signals,
-                        outlet_dir=p.outlet_direction, internal=internal, events=events)
-        return fns
-
-    @classmethod
-    def _build_volume_arrays(cls, p, i, amb):
-        """The same vessel over arrays of designs: ``s[k]`` and ``mode`` are arrays, parameters arrays or floats.
-
-        Mode indices: 0 liquid, 1 gas, 2 sealed. The power law is kept real
-        past empty (trial stages overshoot) by the same 1e-12 floor as the
-        scalar build.
-        """
-        import numpy as np
-
-        p0, vg0, mg0 = cls._gas0(p, amb)
-        vg0_safe = np.where(np.greater(vg0, 0.0), vg0, 1.0)
-        rho0 = np.where(np.greater(vg0, 0.0), mg0 / vg0_safe, 1.0)
-        T0, rho_l, V, n, gam, R, area, head_on = cls._fixed(p)
+        charged = vg0 > 0.0
+        rho0 = ops.where(charged, mg0 / ops.where(charged, vg0, 1.0), 1.0)
+        T0, rho_l, V, n, gam, R = (p.gas_temperature, p.liquid_density, p.volume, p.expansion_exponent,
+                                   p.gas_gamma, p.gas_constant)
+        area = math.pi * p.bore ** 2 / 4.0
+        head_on = p.inertial_head
 
         def gas(s):
             m_l, m_g = s[i], s[i + 1]
             vg = V - m_l / rho_l
             rg = m_g / vg
-            r = np.maximum(rg / rho0, 1e-12)
+            r = ops.maximum(rg / rho0, 1e-12)
             rn = r ** n
             return p0 * rn, T0 * rn / r, rg, vg
 
@@ -233,19 +169,19 @@ class LiquidTank(ComponentKind):
 
         def outlet(s, mode):
             pg, Tg, rg, vg = gas(s)
-            if type(mode) is int:        # every design in the same mode: no selections
+            if type(mode) is int:        # every design in the same mode
                 if mode == 0:
-                    return (pg, Tg, rho_l, gam, R, 1.0, s[i] / area if head_on else 0.0)
-                return (pg, Tg, rg, gam, R, 0.0 if mode == 1 else -1.0, 0.0)
+                    return Outlet(pg, Tg, rho_l, gam, R, 1.0, s[i] / area if head_on else 0.0)
+                return Outlet(pg, Tg, rg, gam, R, 0.0 if mode == 1 else -1.0, 0.0)
             liquid = mode == 0
-            head = np.where(liquid, s[i] / area, 0.0) if head_on else 0.0
-            phase = np.where(liquid, 1.0, np.where(mode == 1, 0.0, -1.0))
-            return (pg, Tg, np.where(liquid, rho_l, rg), gam, R, phase, head)
+            head = ops.where(liquid, s[i] / area, 0.0) if head_on else 0.0
+            phase = ops.where(liquid, 1.0, ops.where(mode == 1, 0.0, -1.0))
+            return Outlet(pg, Tg, ops.where(liquid, rho_l, rg), gam, R, phase, head)
 
         def derivs(s, mode, mdot):
             if type(mode) is int:
                 return (-mdot, 0.0) if mode == 0 else (0.0, -mdot) if mode == 1 else (0.0, 0.0)
-            return (np.where(mode == 0, -mdot, 0.0), np.where(mode == 1, -mdot, 0.0))
+            return (ops.where(mode == 0, -mdot, 0.0), ops.where(mode == 1, -mdot, 0.0))
 
         def signals(s, mode):
             pg, Tg, rg, vg = gas(s)
@@ -258,7 +194,7 @@ class LiquidTank(ComponentKind):
                 if type(mode) is int:
                     return (mdot / (rho_l * area), s[i]) if mode == 0 else (0.0, 0.0)
                 liquid = mode == 0
-                return (np.where(liquid, mdot / (rho_l * area), 0.0), np.where(liquid, s[i], 0.0))
+                return (ops.where(liquid, mdot / (rho_l * area), 0.0), ops.where(liquid, s[i], 0.0))
 
         events = (
             EventSpec("liquid exhausted", lambda t, s, drive: s[i], -1.0, ("liquid",), "gas", needs_drive=False),

@@ -1,0 +1,130 @@
+"""The array namespace physics is written against: one definition for one design (floats) and for many (arrays).
+
+A device's physics, and the core's balance, are written once against ``ops``, an object with elementwise
+functions under fixed names. Assembly passes :data:`scalar_ops` for a single flight (Python floats, the
+``math`` module) and :data:`array_ops` for an ensemble (numpy arrays of shape ``(N,)``, one value per design).
+The convention for code written against it:
+
+1. Use ``ops.sqrt``, ``ops.exp``, ``ops.log``, ``ops.sin``, ``ops.cos``, ``ops.maximum``, ``ops.minimum``,
+   ``ops.abs``, ``ops.clip``, ``ops.interp`` for arithmetic that Python's operators do not cover.
+2. Do not branch with ``if`` on a value that may differ between designs. Choose with
+   ``ops.where(cond, a, b)`` (both already computed) or ``ops.branch(cond, f_true, f_false, *args)`` (a
+   regime choice: one function is called for a float; for arrays each function is called only when some
+   design needs it, over every design, so both must stay finite for every design: clip the arguments of
+   square roots and powers). ``ops.any`` and ``ops.all`` reduce a condition to one bool (a float condition
+   is itself).
+3. Parameters may be floats (shared by every design) or arrays; modes reach a callable as an ``int`` when
+   every design shares it, else as an integer array. Return floats or arrays; a design's numbers must not
+   depend on which other designs share the arrays.
+4. Never mutate what you are given; keep no state between calls (adaptive solvers try stages and reject them).
+
+``ops.arrays`` tells which namespace is in use; code needs it only to skip work, never to compute differently.
+
+Examples
+--------
+>>> import numpy as np
+>>> def jet_speed(dp, rho, ops):
+...     return ops.sqrt(2.0 * ops.maximum(dp, 0.0) / rho)
+>>> jet_speed(4e5, 1000.0, scalar_ops)
+28.284271247461902
+>>> jet_speed(np.array([4e5, -1.0]), 1000.0, array_ops).tolist()
+[28.284271247461902, 0.0]
+>>> scalar_ops.branch(True, lambda x: x + 1.0, lambda x: x - 1.0, 1.0)
+2.0
+>>> array_ops.branch(np.array([True, False]), lambda x: x + 1.0, lambda x: x - 1.0, np.ones(2)).tolist()
+[2.0, 0.0]
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any, Callable
+
+import numpy as np
+
+__all__ = ["ScalarOps", "ArrayOps", "scalar_ops", "array_ops"]
+
+
+class ScalarOps:
+    """The namespace over Python floats (single flights)."""
+
+    arrays = False
+    sqrt = staticmethod(math.sqrt)
+    exp = staticmethod(math.exp)
+    log = staticmethod(math.log)
+    sin = staticmethod(math.sin)
+    cos = staticmethod(math.cos)
+    abs = staticmethod(abs)
+    any = staticmethod(bool)
+    all = staticmethod(bool)
+
+    @staticmethod
+    def where(c: Any, a: Any, b: Any) -> Any:
+        return a if c else b
+
+    @staticmethod
+    def maximum(a: float, b: float) -> float:
+        return a if a > b else b
+
+    @staticmethod
+    def minimum(a: float, b: float) -> float:
+        return a if a < b else b
+
+    @staticmethod
+    def clip(x: float, lo: float, hi: float) -> float:
+        return lo if x < lo else (hi if x > hi else x)
+
+    @staticmethod
+    def interp(x: float, xp: Any, fp: Any) -> float:
+        return float(np.interp(x, xp, fp))
+
+    @staticmethod
+    def branch(cond: Any, f_true: Callable, f_false: Callable, *args: Any) -> Any:
+        return f_true(*args) if cond else f_false(*args)
+
+
+class ArrayOps:
+    """The namespace over numpy arrays of designs (ensembles)."""
+
+    arrays = True
+    sqrt = staticmethod(np.sqrt)
+    exp = staticmethod(np.exp)
+    log = staticmethod(np.log)
+    sin = staticmethod(np.sin)
+    cos = staticmethod(np.cos)
+    abs = staticmethod(np.abs)
+    where = staticmethod(np.where)
+    maximum = staticmethod(np.maximum)
+    minimum = staticmethod(np.minimum)
+    clip = staticmethod(np.clip)
+
+    @staticmethod
+    def any(c: Any) -> bool:
+        return bool(np.any(c))
+
+    @staticmethod
+    def all(c: Any) -> bool:
+        return bool(np.all(c))
+
+    @staticmethod
+    def interp(x: Any, xp: Any, fp: Any) -> Any:
+        return np.interp(x, xp, fp)
+
+    @staticmethod
+    def branch(cond: Any, f_true: Callable, f_false: Callable, *args: Any) -> Any:
+        c = np.asarray(cond)
+        if c.ndim == 0:
+            return f_true(*args) if bool(c) else f_false(*args)
+        if c.all():
+            return f_true(*args)
+        if not c.any():
+            return f_false(*args)
+        a, b = f_true(*args), f_false(*args)
+        if isinstance(a, tuple):
+            return type(a)(*(np.where(c, x, y) for x, y in zip(a, b))) if hasattr(a, "_fields") else \
+                tuple(np.where(c, x, y) for x, y in zip(a, b))
+        return np.where(c, a, b)
+
+
+scalar_ops = ScalarOps()
+array_ops = ArrayOps()
