@@ -374,12 +374,6 @@ def _check_callables(cls: type, where: Callable[[str], str]) -> None:
 # Callables, when a vehicle is assembled
 # ---------------------------------------------------------------------------
 
-def _code_of(fn: Any) -> tuple[Any, int] | None:
-    f = getattr(fn, "__func__", fn)
-    code = getattr(f, "__code__", None)
-    return None if code is None else (code, len(getattr(f, "__defaults__", None) or ()))
-
-
 def _callables(system: Any) -> Iterator[tuple[str, type, Hook, Any]]:
     """(component, kind, hook, callable) for every callable of the assembled vehicle's plan, environment included."""
     parsed, plan = system.parsed, system.plan
@@ -421,13 +415,17 @@ def check_system(system: Any) -> Any:
     True
     """
     keys: list | None = []
+    known = True
     for n, cls, hook, fn in _callables(system):
-        code = _code_of(fn)
+        f = getattr(fn, "__func__", fn)
+        code = getattr(f, "__code__", None)
         if code is None:            # a callable object or a built-in: tried at every assembly
             keys = None
             break
-        keys.append(((cls, hook.name, id(code[0]), code[1]), code[0]))
-    if keys is not None and all(k in _PASSED for k, _ in keys):
+        key = (cls, hook.name, id(code), len(f.__defaults__ or ()))
+        keys.append((key, code))
+        known = known and key in _PASSED
+    if keys is not None and known:
         return system
     _Trial(system).run()
     if keys is not None:
