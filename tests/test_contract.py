@@ -135,7 +135,7 @@ def test_hooks_table_lists_every_callable_of_every_bundle():
         assert fields == listed, bundle.__name__
 
 
-def _fly_default_with(kind_cls, component="neck", **extra_components):
+def _default_with(kind_cls, component="neck", **extra_components):
     """The default model with ``component`` replaced by a kind registered from a plugin object."""
     class Family:
         @hookimpl
@@ -148,13 +148,13 @@ def _fly_default_with(kind_cls, component="neck", **extra_components):
 
 
 class _Nozzle(ComponentKind):
-    """A plain liquid/gas nozzle whose flow function the tests below break in one way each."""
+    """A nozzle whose flow function a test supplies (``make(area)`` returns it)."""
 
     kind = "test-nozzle"
     role = "flow"
     summary = "test nozzle"
     parameters = (Quantity("diameter", "mm", default="21 mm"),)
-    make = None   # set per test: (area) -> flow function
+    make = None
 
     @classmethod
     def build_flow(cls, p, ops):
@@ -166,14 +166,6 @@ def _nozzle(make):
                                        "make": staticmethod(make)})
 
 
-def _good(area):
-    def flow(up, p_down, mode):
-        dp = max(up[0] - p_down, 0.0)
-        v = math.sqrt(2.0 * dp / up[2])
-        return (up[2] * area * v, v, p_down, area, 2.0 * area)
-    return flow
-
-
 def test_a_callable_that_raises_is_named_with_its_exception():
     def raising(area):
         def flow(up, p_down, mode):
@@ -182,7 +174,7 @@ def test_a_callable_that_raises_is_named_with_its_exception():
 
     with pytest.raises(ContractError, match=r"FlowFns.flow = .*raised KeyError: 'm_dot' \(at tests/test_contract.py:"
                                              r"\d+\) when called as flow\(up, p_down, mode\) at the initial state"):
-        assemble(_fly_default_with(_nozzle(raising)))
+        assemble(_default_with(_nozzle(raising)))
 
 
 def test_a_callable_that_changes_the_state_list_is_refused():
@@ -206,7 +198,7 @@ def test_a_callable_that_changes_the_state_list_is_refused():
                              signals=lambda s, mode: {})
 
     with pytest.raises(ContractError, match="VolumeFns.outlet = .*changed the state list s it was given"):
-        assemble(_fly_default_with(Tank, component="bottle"))
+        assemble(_default_with(Tank, component="bottle"))
 
 
 def test_a_uniform_medium_must_return_its_uniform_value():
