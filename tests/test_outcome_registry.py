@@ -25,7 +25,7 @@ import pytest
 from conftest import model_from_toml
 from thrustgraph import PluginError, hookimpl, integrate, load_model, parse_model
 from thrustgraph.cli import main
-from thrustgraph.component import ComponentKind
+from thrustgraph.component import BodyFns, ComponentKind
 from thrustgraph.designs import resolve
 from thrustgraph.ensemble import COMPUTED
 from thrustgraph.errors import ModelError
@@ -206,9 +206,14 @@ def _plugin(*kinds):
     return Plugin()
 
 
+def _build_body(cls, p, ops):
+    return BodyFns(mass=0.01)
+
+
 def _kind(name: str, outcomes: tuple) -> type:
     return type(f"Kind_{name.replace('-', '_')}", (ComponentKind,), {"kind": name, "role": "body", "summary": "test",
-                                                                     "outcomes": outcomes})
+                                                                     "outcomes": outcomes,
+                                                                     "build_body": classmethod(_build_body)})
 
 
 SPEED = OutcomeSpec("release_speed", "speed", "m/s", "m/s", "release speed", "speed at release")

@@ -21,6 +21,7 @@ from typing import Any
 import pluggy
 
 from .component import EventSpec, Mode
+from .contract import check_system
 from .errors import ModelError
 from .model import Model, ParsedModel, parse_model
 from .plan import ACCUMULATORS, KINEMATIC, Constraint, Plan, build_plan
@@ -144,6 +145,7 @@ def assemble(model: Model | ParsedModel, *, plugin_manager: pluggy.PluginManager
 
     names.extend(ACCUMULATORS)
     y0.extend([0.0] * len(ACCUMULATORS))
-    return System(parsed=parsed, state_names=tuple(names), y0=tuple(y0), slices=slices, moded=tuple(moded),
-                  modes=modes, mode0=tuple(mode0), plan=plan, launch=launch, run=parsed.run, guide_dir=u,
-                  events=tuple(events))
+    system = System(parsed=parsed, state_names=tuple(names), y0=tuple(y0), slices=slices, moded=tuple(moded),
+                    modes=modes, mode0=tuple(mode0), plan=plan, launch=launch, run=parsed.run, guide_dir=u,
+                    events=tuple(events))
+    return check_system(system)  # the plugin contract, once per callable (thrustgraph.contract)

@@ -61,6 +61,14 @@ The implementer's contract
    speed) are outcomes: declare each once in ``outcomes`` (a tuple of
    :class:`~thrustgraph.outcomespec.OutcomeSpec`) and return their values
    from :meth:`ComponentKind.summarize`.
+10. Write every :class:`~thrustgraph.parameters.Quantity` default with its
+    unit (``default="20 mm"``) and declare each parameter, state, mode and
+    signal key once. :mod:`thrustgraph.contract` checks this when the kind is
+    registered, and checks at assembly that every callable accepts the
+    positional arguments listed in the bundles' docstrings below and returns
+    the documented tuple length, finite numbers at the initial state, and a
+    dict for signals; a mismatch is a :class:`~thrustgraph.errors.ContractError`
+    naming the plugin and the hook.
 """
 
 from __future__ import annotations

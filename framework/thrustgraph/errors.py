@@ -14,7 +14,7 @@ components.bottle.volume: must be positive, got -1 L. Fix: give the bottle's int
 
 from __future__ import annotations
 
-__all__ = ["ThrustgraphError", "ModelError", "PluginError", "IntegrationError"]
+__all__ = ["ThrustgraphError", "ModelError", "PluginError", "ContractError", "IntegrationError"]
 
 
 class ThrustgraphError(Exception):
@@ -52,6 +52,41 @@ class ModelError(ThrustgraphError):
 
 class PluginError(ThrustgraphError):
     """A plugin broke the contract (duplicate kind, bad declaration)."""
+
+
+class ContractError(PluginError):
+    """A component kind broke the plugin contract of :mod:`thrustgraph.component`.
+
+    Raised when kinds are registered (a parameter default without its unit, a
+    key declared twice, a builder that cannot be called as documented) and when
+    a vehicle is assembled (a callable with the wrong signature, a result of the
+    wrong shape or not finite at the initial state). It is the plugin's fault,
+    not the model file's: ``where`` names the plugin (entry point,
+    distribution, module), the kind and the hook.
+
+    Parameters
+    ----------
+    where : str
+        The plugin, the kind and the hook or declaration at fault.
+    what : str
+        What the contract expects and what was found.
+    fix : str
+        What the plugin's author should change.
+
+    Examples
+    --------
+    >>> print(ContractError("plugin 'demo', kind 'jet-x' (jet), JetFns.jet", "returned 3 values, expected 4",
+    ...                     "return (mdot, v_e, p_e, A_e)"))
+    plugin 'demo', kind 'jet-x' (jet), JetFns.jet: returned 3 values, expected 4. Fix: return (mdot, v_e, p_e, A_e).
+    """
+
+    def __init__(self, where: str, what: str, fix: str = "") -> None:
+        self.where, self.what, self.fix = where, what, fix
+        fix = fix.rstrip(".")
+        super().__init__(f"{where}: {what}" + (f". Fix: {fix}." if fix else ""))
+
+    def __reduce__(self):  # keep the three parts when a worker process sends the error back
+        return (type(self), (self.where, self.what, self.fix))
 
 
 class IntegrationError(ThrustgraphError):

@@ -20,6 +20,7 @@ import pluggy
 
 from . import hookspecs
 from .component import ROLES, ComponentKind, EnvironmentKind
+from .contract import check_declaration
 from .errors import PluginError
 from .outcomes import check_kind_outcomes
 
@@ -71,6 +72,7 @@ def _merge(pm: pluggy.PluginManager, hook_name: str, base: type) -> dict[str, ty
             if base is ComponentKind and cls.role not in ROLES:
                 raise PluginError(f"plugin {plugin_name!r}: kind {cls.kind!r} has role {cls.role!r}; "
                                   f"expected one of {ROLES}")
+            check_declaration(cls, pm, impl.plugin)
             if base is ComponentKind:
                 check_kind_outcomes(cls, plugin_name, outcomes)
             table[cls.kind] = cls

@@ -46,6 +46,7 @@ from typing import Any, Sequence
 import numpy as np
 
 from .arraysystem import unsupported
+from .assembly import assemble
 from .ensemble import COMPUTED
 from .designs import DesignParameter, within_bounds
 from .engines import FLIGHTS, ENGINES, FlightTask, chunks, default_chunk_size, make_engine
@@ -206,6 +207,7 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     token : names the flight task, so that batches of one study (an optimiser's) reuse a kept process pool
     """
     parsed = parsed or parse_model(model)
+    assemble(parsed)  # the plugin contract, checked once for the study here, not once per design
     outputs = tuple(check_outputs(outputs if outputs is not None else DEFAULT_OUTPUTS))
     x = np.asarray(x, dtype=float).reshape(-1, len(params))
     n = len(x)

@@ -21,7 +21,7 @@ from dataclasses import dataclass, field
 from typing import Sequence
 
 from .assembly import assemble
-from .errors import IntegrationError, ModelError, ThrustgraphError
+from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError
 from .integrate import fly_segments
 from .model import ParsedModel
 from .outcomes import STATUS_OK, STATUS_SCREENED, summarise
@@ -47,11 +47,14 @@ def fly_design(parsed: ParsedModel, outputs: Sequence[str] | None = None, *, rto
     error norm, so leaving them out would change the steps (by rounding) and
     the outcomes by up to the tolerance. Never raises for a bad design: a
     model error (a parameter combination a kind refuses), no lift-off, or an
-    integration failure give ``Outcome("screened", reason)``.
+    integration failure give ``Outcome("screened", reason)``. A plugin that breaks the contract
+    (:class:`~thrustgraph.errors.PluginError`) is not a bad design: it raises.
     """
     try:
         system = assemble(parsed)
         segs = fly_segments(system, rtol=rtol, atol=atol)
+    except PluginError:     # a broken plugin is not a bad design: the study stops with the plugin's message
+        raise
     except ModelError as exc:
         return Outcome(STATUS_SCREENED, f"model error: {exc}")
     except IntegrationError as exc:

@@ -1,7 +1,9 @@
 """``thrustgraph check``: validate a model and print its components, graph, mass at launch and cautions.
 
-Nothing is flown. The exit status is 0 for a valid model and 2 (with one
-message naming the file, the key and the fix) for an invalid one.
+Nothing is flown, but the vehicle is assembled, so the plugin contract is
+checked too (:mod:`thrustgraph.contract`). The exit status is 0 for a valid
+model and 2 (with one message naming the file, the key and the fix, or the
+plugin, the kind and the hook) for an invalid one.
 """
 
 from __future__ import annotations
@@ -10,6 +12,7 @@ import argparse
 
 import networkx as nx
 
+from ..assembly import assemble
 from ..model import ParsedModel
 from .common import add_model_argument, add_set_option
 from .outputs import load_checked
@@ -89,5 +92,6 @@ def format_check(parsed: ParsedModel) -> str:
 
 def main(args: argparse.Namespace) -> int:
     _, parsed = load_checked(args.model, args.overrides)
+    assemble(parsed)  # builds every component's callables: a plugin that breaks the contract is named here
     print(format_check(parsed))
     return 0
