@@ -213,7 +213,8 @@ class FlightResult:
             "success": self.success, "message": self.message, "cautions": self.cautions,
             "provenance": self.provenance,
         }
-        return json.dumps(doc, indent=2, allow_nan=True)
+        # Strict JSON: a number that is not finite (an audit left out of a run) is written as null.
+        return json.dumps(_finite(doc), indent=2, allow_nan=False)
 
     # -- export to files (added for the command line and the Python API) -----
     def provenance_lines(self) -> list[str]:
@@ -309,3 +310,18 @@ SUMMARY_UNITS = {
     "peak_vessel_pressure": "Pa", "max_distance": "m", "dropped_mass": "kg",
     "downrange": "m", "drift": "m",
 }
+
+
+def _finite(value: Any) -> Any:
+    """A copy of a JSON document with every NaN or infinity replaced by None (null).
+
+    >>> _finite({"a": [1.0, float("nan")], "b": float("inf")})
+    {'a': [1.0, None], 'b': None}
+    """
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_finite(v) for v in value]
+    return value

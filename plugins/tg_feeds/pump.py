@@ -71,15 +71,15 @@ class Pump(ComponentKind):
     parameters = (
         Choice("programme", options=("power", "head-curve"), default="power",
                doc="power: shaft power and efficiency; head-curve: a measured head against flow"),
-        Quantity("shaft_power", "W", default="0 W", low=0.0, doc="shaft power (programme = power)"),
+        Quantity("shaft_power", "W", default="0 W", low=0.0, high=1e9, doc="shaft power (programme = power)"),
         # Small centrifugal and axial pumps run at 0.5-0.8 (common practice, no source).
         Number("efficiency", default=0.7, low=0.0, low_open=True, high=1.0,
                doc="hydraulic power over shaft power (programme = power)"),
-        Quantity("shutoff_pressure", "bar", default="0 bar", low=0.0,
+        Quantity("shutoff_pressure", "bar", default="0 bar", low=0.0, high=10_000.0,
                  doc="pressure rise at zero flow, the cap of eta P / Q (programme = power)"),
-        Table("head_curve", columns=(("volume_flow", "L/s"), ("head", "m")), default="absent",
+        Table("head_curve", columns=(("volume_flow", "L/s"), ("head", "m")), default="absent", bounds=((0.0, 1e6), (-1e5, 1e5)),
               doc="head against volume flow (programme = head-curve)"),
-        Quantity("run_time", "s", default="0 s", low=0.0, doc="stop the pump after this time; 0 s: never"),
+        Quantity("run_time", "s", default="0 s", low=0.0, high=1e6, doc="stop the pump after this time; 0 s: never"),
     )
     modes = (Mode("running", "pump thrust"), Mode("stopped", "pump stopped", propulsive=False))
 
