@@ -33,6 +33,8 @@ def main(argv: list[str] | None = None) -> int:
                    help="seconds a case may run before it counts as a hang (default 120)")
     p.add_argument("--show", type=int, metavar="INDEX", help="print case INDEX's file and outcome, then exit")
     p.add_argument("--slowest", type=int, default=5, help="list the N slowest cases at the end (default 5)")
+    p.add_argument("--minutes", type=float, default=None,
+                   help="stop after this many minutes and count the cases done so far (default: run them all)")
     args = p.parse_args(argv)
     if args.show is not None:
         case = make_case(args.seed, args.show)
@@ -56,6 +58,9 @@ def main(argv: list[str] | None = None) -> int:
             detail = out.detail.strip().splitlines()
             print(f"{out.kind}: seed {args.seed} index {index} ({case.base}; {'; '.join(case.mutations)}): "
                   f"{detail[-1] if detail else ''}", flush=True)
+        if args.minutes is not None and time.monotonic() - t0 > 60.0 * args.minutes:
+            print(f"stopped after {args.minutes:g} minutes", file=sys.stderr)
+            break
         if done % 1000 == 0:
             print(f"... {done} cases, {time.monotonic() - t0:.0f} s: "
                   + ", ".join(f"{counts[k]} {k}" for k in KINDS), file=sys.stderr, flush=True)

@@ -31,12 +31,13 @@ array([  -1., -300.])
 >>> g.watch(broken, "blowdown")(0.5, np.array([0.5, float("nan")]))
 Traceback (most recent call last):
 ...
-thrustgraph.errors.IntegrationError: at t = 0.5 s in phase 'blowdown' the state vessel.temperature (nan K) left its valid range; the device model said: T [nan K] below Ttriple. Fix: the vessel stopped being physical here: check its charge (pressure, temperature, fill) and its outlet size, or end the run sooner (run.end_time).
+thrustgraph.errors.IntegrationError: at t = 0.5 s in phase 'blowdown' the state vessel.temperature (not a number) left its valid range; the device model said: T [not-a-number K] below Ttriple. Fix: the vessel stopped being physical here: check its charge (pressure, temperature, fill) and its outlet size, or end the run sooner (run.end_time).
 """
 
 from __future__ import annotations
 
 import math
+import re
 from typing import Any, Callable, Sequence
 
 import numpy as np
@@ -54,6 +55,22 @@ MIN_PACE = 1e-5
 #: any bundled scenario needs (5,665, the real-gas cold-gas track). At 30-150 us an evaluation that is at
 #: most about 8 s of work.
 MAX_EVALUATIONS = 50_000
+
+_NONFINITE = re.compile(r"(?<![\w.])([-+]?)(nan|inf|infinity)(?!\w)", re.IGNORECASE)
+
+
+def _words(text: str) -> str:
+    """A device's message with its non-finite numbers in words ("T [nan K]" -> "T [not-a-number K]").
+
+    >>> _words("The function value at x=0.0 is NaN; T [-inf K]")
+    'The function value at x=0.0 is not-a-number; T [minus-infinite K]'
+    """
+    def word(m: re.Match) -> str:
+        if m.group(2).lower() == "nan":
+            return "not-a-number"
+        return ("minus-" if m.group(1) == "-" else "") + "infinite"
+    return _NONFINITE.sub(word, text)
+
 
 _FIX = ("check the model for values far outside the usual range (a huge drag area or density, a tiny mass or "
         "outlet, an extreme pressure), or end the run sooner (run.end_time)")
@@ -113,8 +130,9 @@ class StepGuard:
     # -- what went wrong, in the model's terms ----------------------------------------------------------------
     def _show(self, k: int, value: float) -> str:
         u = self.units[k]
-        return f"{self.names[k]} ({value:.4g}{' ' + u if u else ''})" if math.isfinite(value) else \
-            f"{self.names[k]} ({value!r}{' ' + u if u else ''})"
+        if not math.isfinite(value):
+            return f"{self.names[k]} ({'not a number' if math.isnan(value) else 'infinite'})"
+        return f"{self.names[k]} ({value:.4g}{' ' + u if u else ''})"
 
     def _fastest(self, y: np.ndarray, d: np.ndarray) -> str:
         n = min(len(self.names), len(y), len(d))
@@ -122,9 +140,9 @@ class StepGuard:
         with np.errstate(all="ignore"):
             rate = np.abs(d[:n]) / np.where(scale > 0.0, scale, 1.0)
         rate = np.where(np.isfinite(rate), rate, np.inf)
-        phys = [k for k in range(n) if not self.names[k].startswith("audit.")]
-        k = max(phys, key=lambda j: rate[j]) if phys else 0
-        return f"{self._show(k, float(y[k]))}, changing at {float(d[k]):.3g}{'/s' if not self.units[k] else ' ' + self.units[k] + '/s'}"
+        phys = sorted((k for k in range(n) if not self.names[k].startswith("audit.")), key=lambda j: -rate[j])
+        return " then ".join(f"{self._show(k, float(y[k]))}, changing at {float(d[k]):.3g} "
+                             f"{self.units[k] + '/s' if self.units[k] else 'per s'}" for k in phys[:2])
 
     def _out_of_range(self, y: np.ndarray) -> str:
         n = min(len(self.names), len(y))
@@ -148,28 +166,34 @@ class StepGuard:
         return ""
 
     def _failure(self, t: float, y: np.ndarray, phase: str, exc: BaseException) -> IntegrationError:
+        said = _words(shorten(str(exc) or type(exc).__name__, 200).strip("'\"").rstrip("."))
+        if self.bad is not None and not np.all(np.isfinite(y[:len(self.names)])):
+            # the states went bad because a rate did first: name that one
+            return IntegrationError(f"{self.explain('the flight cannot go on.')}; then the device model said: "
+                                    f"{said}. Fix: {_FIX}.")
         where = self._out_of_range(y)
         comp = self._component(where)
         fix = f"the {comp} stopped being physical here: check its charge (pressure, temperature, fill) and its " \
               "outlet size, or end the run sooner (run.end_time)" if comp else _FIX
-        said = shorten(str(exc) or type(exc).__name__, 200).strip("'\"")
-        return IntegrationError(f"at t = {t:.6g} s in phase {phase!r} {where} left its valid range; the device "
+        verb = "left their valid range" if where.startswith("the states") else "left its valid range"
+        return IntegrationError(f"at t = {t:.6g} s in phase {phase!r} {where} {verb}; the device "
                                 f"model said: {said}. Fix: {fix}.")
 
     def _check_pace(self, t: float, y: np.ndarray, d: np.ndarray, phase: str) -> None:
         if self.count >= MAX_EVALUATIONS:
             raise IntegrationError(
                 f"the flight used {self.count} evaluations of its equations by t = {t:.6g} s (phase {phase!r}), "
-                f"the most one flight may use; the state changing fastest is {self._fastest(y, d)}. Fix: {_FIX}.")
+                f"the most one flight may use; the states changing fastest are {self._fastest(y, d)}. Fix: {_FIX}.")
         if self.mark_t is not None and t - self.mark_t < WINDOW * MIN_PACE:
             raise IntegrationError(
                 f"the step size collapsed at t = {t:.6g} s in phase {phase!r}: the last {WINDOW} evaluations "
-                f"advanced the flight by only {t - self.mark_t:.3g} s; the state changing fastest is "
+                f"advanced the flight by only {t - self.mark_t:.3g} s; the states changing fastest are "
                 f"{self._fastest(y, d)}. Fix: {_FIX}.")
         self.mark_t = t
 
     def explain(self, message: str) -> str:
         """Why the solver gave up (its ``message``), in the model's terms when a derivative was not finite."""
+        message = _words(message)
         if self.bad is None:
             return message
         t, y, d, phase = self.bad
