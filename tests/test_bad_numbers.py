@@ -347,3 +347,14 @@ def test_a_flight_whose_rates_blow_up_says_which_and_when_without_printing_nan(t
     line = refused(tmp_path, capsys, text, "integration failed", "stopped being a finite number at t = ",
                    "hose-fed thrust", "Fix:", rc=1)
     assert not NONFINITE.search(line)
+
+
+@pytest.mark.parametrize("text, unit, si", [
+    ("60 g0", "m/s^2", 60 * 9.80665), ("1 1/s", "Hz", 1.0), ("2 /s", "Hz", 2.0), ("287 J/(kg*K)", "J/kg/K", 287.0),
+    ("3.8 cm^2", "m^2", 3.8e-4), ("2 m**2", "m^2", 2.0), ("15 degC", "K", 288.15), ("-40 degF", "K", 233.15),
+    (".5 mm", "m", 5e-4), ("1e-3 s", "s", 1e-3), ("+5 m", "m", 5.0), ("30 W/m^2/K", "W/m^2/K", 30.0),
+])
+def test_ordinary_quantities_still_read(text, unit, si):
+    from thrustgraph.units import to_si
+
+    assert to_si(text, unit) == pytest.approx(si)

@@ -185,7 +185,7 @@ class Table(Spec):
     min_rows: int = field(default=2, kw_only=True)
     #: Bounds of each column, ``(low, high)`` in the column's declared unit (None: unbounded on that side).
     bounds: tuple[tuple[float | None, float | None], ...] = field(default=(), kw_only=True)
-    max_rows: int = field(default=100_000, kw_only=True)
+    max_rows: int = field(default=10_000, kw_only=True)
 
     def parse(self, value: Any, *, where: str) -> np.ndarray | None:
         if isinstance(value, str) and value == "absent":

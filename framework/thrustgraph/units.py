@@ -107,11 +107,8 @@ _WORDS = re.compile(r"^\s*[-+]?(nan|inf|infinity)\b", re.IGNORECASE)
 
 def _unit_ok(unit: str) -> bool:
     """A unit is names, products, quotients and small whole exponents: no numbers to compute."""
-    if unit.startswith("/"):
-        unit = "1" + unit
-        rest = unit[1:]
-    else:
-        rest = unit
+    # "1/s" (per second) is the one place a unit may hold a number
+    rest = unit[1:].lstrip() if unit.startswith("1") and unit[1:].lstrip().startswith("/") else unit
     if not rest:
         return True
     if not _UNIT_CHARS.match(rest.lstrip("/ ")) and rest.strip():

@@ -116,16 +116,18 @@ class Pump(ComponentKind):
             def lift(q):
                 return dp0 if q <= qk else wh / q
         else:
-            qs = [float(x) for x in p.head_curve[:, 0]]
-            hs = [float(x) for x in p.head_curve[:, 1]]
-            s0 = (hs[1] - hs[0]) / (qs[1] - qs[0])
-            s1 = (hs[-1] - hs[-2]) / (qs[-1] - qs[-2])
+            # arrays, converted once: np.interp would convert a list on every call (slow for long curves)
+            qs = np.ascontiguousarray(p.head_curve[:, 0], dtype=float)
+            hs = np.ascontiguousarray(p.head_curve[:, 1], dtype=float)
+            q0, q1, h0, h1 = float(qs[0]), float(qs[-1]), float(hs[0]), float(hs[-1])
+            s0 = (float(hs[1]) - h0) / (float(qs[1]) - q0)
+            s1 = (h1 - float(hs[-2])) / (q1 - float(qs[-2]))
 
             def head(q):
-                if q <= qs[0]:
-                    return hs[0] + s0 * (q - qs[0])
-                if q >= qs[-1]:
-                    return hs[-1] + s1 * (q - qs[-1])
+                if q <= q0:
+                    return h0 + s0 * (q - q0)
+                if q >= q1:
+                    return h1 + s1 * (q - q1)
                 return float(np.interp(q, qs, hs))
 
             def lift(q):

@@ -118,9 +118,10 @@ class PrescribedJet(ComponentKind):
                 return (mdot0, ve, pa, 0.0)
             burnout = EventSpec("burnout", lambda t, s, drive: s[i], -1.0, ("burning",), "spent", needs_drive=False)
         else:
-            tt = [float(x) for x in p.thrust_curve[:, 0]]
-            ff = [float(x) for x in p.thrust_curve[:, 1]]
-            t_last = tt[-1]
+            # arrays, converted once: np.interp would convert a list on every call (slow for long curves)
+            tt = np.ascontiguousarray(p.thrust_curve[:, 0], dtype=float)
+            ff = np.ascontiguousarray(p.thrust_curve[:, 1], dtype=float)
+            t_last = float(tt[-1])
 
             def jet(t, s, mode, pa):
                 if mode != 0:
