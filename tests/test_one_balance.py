@@ -102,7 +102,7 @@ def _designs(parsed, n: int, rng: np.random.Generator):
 options_st = st.fixed_dictionaries({k: st.sampled_from(v) for k, v in OPTIONS.items()})
 
 
-@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=25, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow])
 @given(model=st.sampled_from(FLYABLE), options=options_st, seed=st.integers(0, 2**32 - 1))
 def test_array_and_scalar_right_hand_sides_agree_to_rounding(model, options, seed):
     """Random designs, random states and random phases (every mode of every slot, guide or free per design):
@@ -147,7 +147,7 @@ def test_array_and_scalar_right_hand_sides_agree_to_rounding(model, options, see
             assert np.asarray(d)[r] == pytest.approx(drives[key], rel=1e-12, abs=1e-9)
 
 
-@settings(max_examples=8, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=12, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow])
 @given(model=st.sampled_from(FLYABLE), options=options_st, seed=st.integers(0, 2**32 - 1))
 def test_ensemble_outcomes_equal_single_flights(model, options, seed):
     """The same designs flown as an ensemble and one at a time, rtol = atol = 1e-9: every outcome within 1e-6
@@ -175,6 +175,11 @@ def test_ensemble_outcomes_equal_single_flights(model, options, seed):
                 # the peak sits on a corner of the thrust table (a kink no event marks): each path finds it on
                 # its own dense output, whose polynomial rounds the corner (measured 1.8e-5 to 1.2e-4)
                 assert a == pytest.approx(b, rel=5e-4), (r, name)
+            elif name in ("range", "impact_x", "impact_y"):
+                # where the vehicle lands: its error is relative to the size of the flight, not to the distance
+                # (a near-vertical flight lands close to the pad)
+                size = max(abs(single.values.get("apogee", 0.0)), abs(b), 1.0)
+                assert a == pytest.approx(b, rel=1e-6, abs=1e-6 * size), (r, name, a, b)
             else:
                 assert a == pytest.approx(b, rel=1e-6, abs=1e-9), (r, name, a, b)
 

@@ -54,7 +54,7 @@ from .errors import IntegrationError, ModelError
 from .model import LAUNCH_SPECS, Model, parse_model
 from .parameters import Quantity
 from .records import ColumnMap, Record
-from .units import Q_, si_unit, to_si
+from .units import Q_, parse_quantity, si_unit, to_si
 
 __all__ = ["FitParameter", "MeasuredRun", "FittedValue", "Calibration", "ProgressLine", "calibrate",
            "write_calibrated_model", "compare_runs"]
@@ -187,7 +187,7 @@ def _resolve(model: Model, fp: FitParameter, parsed: Any = None) -> _Param:
     try:
         raw = model.get(path)
         if isinstance(raw, str):
-            q = Q_(raw)
+            q = parse_quantity(raw)
             if hasattr(q, "units") and str(q.units) != "dimensionless":
                 display = format(q.units, "~")
     except ModelError:

@@ -38,7 +38,7 @@ import numpy as np
 from .errors import ModelError
 from .model import LAUNCH_SPECS, ParsedModel
 from .parameters import Quantity
-from .units import Q_, si_unit, to_si
+from .units import Q_, parse_quantity, si_unit, to_si
 from .xp import scalar_ops
 
 __all__ = ["DesignParameter", "resolve", "apply", "within_bounds", "bounds_text", "with_values", "SECTIONS"]
@@ -96,7 +96,7 @@ class DesignParameter:
             raise ModelError(where, f"expected a {self.spec.unit} difference with a unit, got the bare number "
                              f"{value!r}", f"write it with a unit, e.g. \"1 {self.unit or self.spec.unit}\"")
         try:
-            q = Q_(value) if isinstance(value, str) else value
+            q = parse_quantity(value) if isinstance(value, str) else value
             mag, unit = float(q.magnitude), q.units
         except Exception:  # noqa: BLE001 - pint raises several types; to_si gives the clear message
             return float(to_si(value, self.spec.unit, where=where))
@@ -180,7 +180,7 @@ def resolve(parsed: ParsedModel, path: str, *, unit: str | None = None, where: s
         raw = raw_table.get(name) if isinstance(raw_table, dict) else None
         if isinstance(raw, str):
             try:
-                q = Q_(raw)
+                q = parse_quantity(raw)
                 if hasattr(q, "units") and str(q.units) != "dimensionless":
                     shown = format(q.units, "~")
             except Exception:  # noqa: BLE001 - the model parsed, so this only picks a display unit

@@ -38,6 +38,7 @@ from typing import Any, Sequence
 import numpy as np
 
 from .errors import ModelError
+from .limits import MAX_DESIGNS, check_count
 from .model import Model
 from .outcomes import OUTCOMES, STATUS_OK
 from .studies import DEFAULT_OUTPUTS, DesignTable, _fmt, _prepare, evaluate
@@ -203,6 +204,7 @@ def disperse(model: Model | str | None, spreads: Sequence[Spread | str], *, samp
         raise ModelError("dispersion", "spreads no parameter", 'add --spread "launch.elevation=normal(sd=1 deg)"')
     if not isinstance(samples, int) or isinstance(samples, bool) or samples < 1:
         raise ModelError("--samples", f"must be a whole number of at least 1, got {samples!r}", "use e.g. 1000")
+    check_count(samples, MAX_DESIGNS, where="--samples", what="samples")
     params = [s.resolve(parsed, where=f"spread {s.path}") for s in spreads]
     x = sample(spreads, params, samples, seed)
     outs = list(outputs if outputs is not None else DEFAULT_OUTPUTS)

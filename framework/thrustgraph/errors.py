@@ -14,7 +14,84 @@ components.bottle.volume: must be positive, got -1 L. Fix: give the bottle's int
 
 from __future__ import annotations
 
-__all__ = ["ThrustgraphError", "ModelError", "PluginError", "ContractError", "IntegrationError"]
+__all__ = ["ThrustgraphError", "ModelError", "PluginError", "ContractError", "IntegrationError", "shorten",
+           "ECHO_LENGTH"]
+
+#: How many characters of a user's input a message echoes before it is cut.
+ECHO_LENGTH = 80
+# Longest key path and text of each part of a message: a safety net for paths built from long names.
+_PART_LENGTH = 600
+
+
+def shorten(value: object, n: int = ECHO_LENGTH) -> str:
+    """The ``repr`` of a value (text as it is), cut to ``n`` characters and an ellipsis.
+
+    >>> shorten("5 bar"), shorten(0.25)
+    ("'5 bar'", '0.25')
+    >>> shorten("x" * 1000, 10)
+    "'xxxxxxxx…"
+    """
+    if isinstance(value, str) and len(value) > 20 * n:
+        value = value[: 20 * n]  # repr of a huge string costs time: cut before
+    text = repr(value) if not isinstance(value, (list, tuple, dict)) or _small(value) else _repr_cut(value, n)
+    return text if len(text) <= n else text[: n - 1] + "…"
+
+
+def _small(value: object, budget: int = 1000) -> bool:
+    """Is a container's repr cheap (few items)?"""
+    stack, seen = [value], 0
+    while stack:
+        v = stack.pop()
+        seen += 1
+        if seen > budget:
+            return False
+        if isinstance(v, (list, tuple)):
+            stack.extend(v[:budget])
+        elif isinstance(v, dict):
+            stack.extend(list(v.values())[:budget])
+        elif isinstance(v, str) and len(v) > budget:
+            return False
+    return True
+
+
+def _repr_cut(value: object, n: int) -> str:
+    """The opening of a large (or deeply nested) container's repr without building all of it."""
+    out: list[str] = []
+    size = 0
+
+    def walk(v: object, depth: int) -> None:
+        nonlocal size
+        if size > n or depth > n:
+            return
+        if isinstance(v, (list, tuple)):
+            out.append("["); size += 1
+            for k, item in enumerate(v):
+                if size > n:
+                    return
+                if k:
+                    out.append(", "); size += 2
+                walk(item, depth + 1)
+            out.append("]"); size += 1
+        elif isinstance(v, dict):
+            out.append("{"); size += 1
+            for k, (key, item) in enumerate(v.items()):
+                if size > n:
+                    return
+                text = ("" if not k else ", ") + repr(key)[:n] + ": "
+                out.append(text); size += len(text)
+                walk(item, depth + 1)
+            out.append("}"); size += 1
+        else:
+            text = repr(v[: n + 2] if isinstance(v, str) else v)[: n + 2]
+            out.append(text); size += len(text)
+
+    walk(value, 0)
+    text = "".join(out)
+    return text[: n - 1] + "…" if len(text) >= n else text
+
+
+def _cut(text: str, n: int = _PART_LENGTH) -> str:
+    return text if len(text) <= n else text[: n // 2 - 1] + "…" + text[-(n // 2):]
 
 
 class ThrustgraphError(Exception):
@@ -35,6 +112,7 @@ class ModelError(ThrustgraphError):
     """
 
     def __init__(self, where: str, what: str, fix: str = "") -> None:
+        where, what, fix = _cut(where), _cut(what), _cut(fix)
         self.where = where
         self.what = what
         self.fix = fix

@@ -29,10 +29,12 @@ from scipy.integrate import solve_ivp
 from .assembly import ACCUMULATORS, System, assemble
 from .balance import Balance, Kinematics
 from .errors import IntegrationError, ModelError, PluginError
+from .limits import check_output_samples
 from .model import Model, ParsedModel
 from .outcomes import OUTCOMES, kind_outcomes, run_summary
 from .result import Audit, Event, FlightResult, Phase
 from .staging import KINEMATIC_SIGNALS, Trigger, resolve_thresholds, separate
+from .stepguard import StepGuard
 
 __all__ = ["integrate", "fly", "fly_segments", "provenance", "Segments", "available_signals"]
 
@@ -199,6 +201,7 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
                     status=0, message="end time reached", nfev=0)
     events = segs.events
     zero_len = 0
+    guard = StepGuard.for_system(system, t_end=t_end, rtol=rtol, atol=atol)  # bounded work, failures in model terms
 
     def apply_trigger(tr: Trigger, t: float, y: np.ndarray):
         """Carry out a trigger's action; returns (stop, y)."""
@@ -273,13 +276,14 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
             break
         try:
             if audit:
-                sol = solve_ivp(bal.rhs, (t, t_end), y, method=method, rtol=rtol, atol=state.atol,
-                                events=fns, dense_output=dense)
+                sol = solve_ivp(guard.watch(bal.rhs, _label(sysm, ph), sysm), (t, t_end), y, method=method,
+                                rtol=rtol, atol=state.atol, events=fns, dense_output=dense)
             else:
                 n_phys = sysm.n_states - len(ACCUMULATORS)
                 k = math.sqrt(sysm.n_states / n_phys)
-                sol = solve_ivp(bal.core, (t, t_end), y[:n_phys], method=method, rtol=rtol * k,
-                                atol=state.atol[:n_phys] * k, events=fns, dense_output=dense)
+                sol = solve_ivp(guard.watch(bal.core, _label(sysm, ph), sysm), (t, t_end), y[:n_phys],
+                                method=method, rtol=rtol * k, atol=state.atol[:n_phys] * k, events=fns,
+                                dense_output=dense)
         except (ValueError, ZeroDivisionError, OverflowError) as exc:
             raise IntegrationError(f"integration failed at t = {t:.6g} s in phase {_label(sysm, ph)!r}: {exc}") from None
         segs.nfev += sol.nfev
@@ -287,8 +291,8 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
         if progress is not None:
             progress(float(sol.t[-1]), t_end)
         if sol.status == -1:
-            raise IntegrationError(f"solve_ivp failed at t = {sol.t[-1]:.6g} s in phase "
-                                   f"{_label(sysm, ph)!r}: {sol.message}")
+            raise IntegrationError(guard.explain(f"solve_ivp failed at t = {sol.t[-1]:.6g} s in phase "
+                                                 f"{_label(sysm, ph)!r}: {sol.message}"))
         t = float(sol.t[-1])
         y = sol.y[:, -1].copy() if audit else np.concatenate([sol.y[:, -1], np.full(len(ACCUMULATORS), np.nan)])
         if sol.status == 0:
@@ -512,6 +516,7 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
     snaps: list[dict] = []
     phases: list[Phase] = []
     names: list[str] = []
+    check_output_samples(float(segs.segments[-1][1].t[-1] - segs.segments[0][1].t[0]), run.output_interval)
     for ph, sol, bal in segs.segments:
         t0, t1 = float(sol.t[0]), float(sol.t[-1])
         name = _label(bal.system, ph)

@@ -26,7 +26,7 @@ import pluggy
 
 from .component import Ambient, ComponentKind, EnvironmentKind
 from .xp import scalar_ops
-from .errors import ModelError
+from .errors import ModelError, shorten
 from .parameters import Choice, Flag, Number, Quantity, parse_params
 
 __all__ = ["Model", "ParsedModel", "parse_model", "LAUNCH_SPECS", "RUN_SPECS", "parse_paths"]
@@ -36,25 +36,27 @@ LAUNCH_SPECS = (
     Choice("mount", options=("guide", "held", "free", "track"), default="guide",
            doc="guide: slides along a launch guide, then flies; held: fixed on a test stand; free: free from "
                "t = 0; track: stays on an endless straight track or water lane (carts, boats)"),
-    Quantity("guide_length", "m", default="0 m", low=0.0, doc="length the vehicle travels along the guide"),
+    Quantity("guide_length", "m", default="0 m", low=0.0, high=10_000.0,
+             doc="length the vehicle travels along the guide"),
     Number("friction", default=0.0, low=0.0, high=2.0,
            doc="friction (or rolling-resistance) coefficient on the guide or track, times the normal force"),
     Quantity("elevation", "deg", default="90 deg", low=0.0, high=90.0, doc="guide (and initial axis) angle above the horizon"),
     Quantity("azimuth", "deg", default="0 deg", low=-360.0, high=360.0, doc="direction of the guide, from +x toward +y"),
     Choice("attitude", options=("follow-wind", "fixed"), default="follow-wind",
            doc="after the guide, the body axis follows the relative wind or stays fixed"),
-    Quantity("min_follow_speed", "m/s", default="1 m/s", low=0.0,
+    Quantity("min_follow_speed", "m/s", default="1 m/s", low=0.0, high=1000.0,
              doc="with attitude follow-wind: below this airspeed the axis keeps the launch direction"),
-    Quantity("altitude", "m", default="0 m", doc="height of the launch point above the ground datum"),
-    Quantity("speed", "m/s", default="0 m/s", doc="initial speed along the initial axis"),
+    Quantity("altitude", "m", default="0 m", low=-11_000.0, high=1_000_000.0,
+             doc="height of the launch point above the ground datum"),
+    Quantity("speed", "m/s", default="0 m/s", low=-10_000.0, high=10_000.0, doc="initial speed along the initial axis"),
 )
 
 RUN_SPECS = (
-    Quantity("end_time", "s", default="120 s", low=0.0, low_open=True, doc="longest simulated time"),
+    Quantity("end_time", "s", default="120 s", low=0.0, low_open=True, high=1e6, doc="longest simulated time"),
     Number("rtol", default=1e-9, low=1e-13, high=1e-2, doc="relative tolerance of the integrator"),
     Number("atol", default=1e-9, low=1e-15, high=1.0, doc="absolute tolerance of the integrator (SI units)"),
     Choice("method", options=("DOP853", "RK45", "Radau", "LSODA"), default="DOP853", doc="solve_ivp method"),
-    Quantity("output_interval", "s", default="0.01 s", low=0.0, low_open=True,
+    Quantity("output_interval", "s", default="0.01 s", low=0.0, low_open=True, high=1e6,
              doc="spacing of the evenly sampled output added to the solver's own steps"),
     Flag("stop_at_apogee", default=False, doc="end the flight at apogee"),
 )
@@ -69,16 +71,16 @@ def parse_paths(paths: list[Any], where: str = "flow_paths") -> list[tuple[str, 
     [('bottle', 'neck'), ('neck', 'outside')]
     """
     if not isinstance(paths, list):
-        raise ModelError(where, f"expected a list of paths like \"tank -> nozzle -> outside\", got {paths!r}",
+        raise ModelError(where, f"expected a list of paths like \"tank -> nozzle -> outside\", got {shorten(paths)}",
                          "write flow_paths = [\"tank -> nozzle -> outside\"]")
     edges = []
     for k, path in enumerate(paths):
         if not isinstance(path, str) or "->" not in path:
-            raise ModelError(f"{where}[{k}]", f"expected a path like \"tank -> nozzle -> outside\", got {path!r}",
+            raise ModelError(f"{where}[{k}]", f"expected a path like \"tank -> nozzle -> outside\", got {shorten(path)}",
                              "join component names with ->")
         names = [n.strip() for n in path.split("->")]
         if any(not n for n in names):
-            raise ModelError(f"{where}[{k}]", f"path {path!r} has an empty name", "remove the stray ->")
+            raise ModelError(f"{where}[{k}]", f"path {shorten(path)} has an empty name", "remove the stray ->")
         edges.extend(zip(names[:-1], names[1:]))
     return edges
 
@@ -144,14 +146,14 @@ class Model:
         tables = self._tables()
         if parts[0] not in tables or len(parts) < 2:
             close = difflib.get_close_matches(parts[0], list(tables), n=1)
-            hint = f"did you mean {close[0]!r}? " if close else ""
+            hint = f"did you mean {shorten(close[0])}? " if close else ""
             raise ModelError(path, "does not name a parameter",
                              f"{hint}use a path such as components.NAME.PARAMETER, launch.elevation or run.end_time")
         node = tables[parts[0]]
         for k, part in enumerate(parts[1:-1], start=1):
             if part not in node or not isinstance(node[part], dict):
                 close = difflib.get_close_matches(part, list(node), n=1)
-                hint = f"did you mean {close[0]!r}? " if close else ""
+                hint = f"did you mean {shorten(close[0])}? " if close else ""
                 raise ModelError(".".join(parts[:k + 1]), "no such section", f"{hint}check the name")
             node = node[part]
         node[parts[-1]] = value
@@ -202,7 +204,7 @@ class ParsedModel:
 
 def _suggest(name: str, options: list[str]) -> str:
     close = difflib.get_close_matches(name, options, n=1)
-    return f"did you mean {close[0]!r}?" if close else f"installed kinds: {', '.join(sorted(options))}"
+    return f"did you mean {shorten(close[0])}?" if close else f"installed kinds: {', '.join(sorted(options))}"
 
 
 def parse_model(model: Model, *, plugin_manager: pluggy.PluginManager | None = None) -> ParsedModel:
@@ -228,12 +230,12 @@ def parse_model(model: Model, *, plugin_manager: pluggy.PluginManager | None = N
     for cname, table in model.components.items():
         where = f"components.{cname}"
         if not isinstance(table, dict):
-            raise ModelError(where, f"expected a table of parameters, got {table!r}", f"write [components.{cname}]")
+            raise ModelError(where, f"expected a table of parameters, got {shorten(table)}", f"write [components.{cname}]")
         kind = table.get("kind")
         if kind is None:
             raise ModelError(f"{where}.kind", "is missing", f"add kind = \"...\"; {_suggest('', list(all_kinds))}")
         if kind not in all_kinds:
-            raise ModelError(f"{where}.kind", f"unknown component kind {kind!r}", _suggest(str(kind), list(all_kinds)))
+            raise ModelError(f"{where}.kind", f"unknown component kind {shorten(kind)}", _suggest(str(kind), list(all_kinds)))
         cls = all_kinds[kind]
         raw = {k: v for k, v in table.items() if k != "kind"}
         p = parse_params(cls.parameters, raw, where=where, params_class=cls.params_class())
@@ -257,7 +259,7 @@ def parse_model(model: Model, *, plugin_manager: pluggy.PluginManager | None = N
         kind = table["kind"]
         options = [k for k, c in all_env.items() if c.slot == slot]
         if kind not in options:
-            raise ModelError(f"{where}.kind", f"unknown {slot} kind {kind!r}", _suggest(str(kind), options))
+            raise ModelError(f"{where}.kind", f"unknown {slot} kind {shorten(kind)}", _suggest(str(kind), options))
         cls = all_env[kind]
         p = parse_params(cls.parameters, {k: v for k, v in table.items() if k != "kind"}, where=where,
                          params_class=cls.params_class())
@@ -297,9 +299,9 @@ def _check_graph(model: Model, kinds: dict[str, type[ComponentKind]]) -> nx.DiGr
     for a, b in edges:
         for n in (a, b):
             if n not in kinds:
-                raise ModelError("flow_paths", f"names {n!r}, which is not a component", _suggest(n, names))
+                raise ModelError("flow_paths", f"names {shorten(n)}, which is not a component", _suggest(n, names))
         if a == b:
-            raise ModelError("flow_paths", f"connects {a!r} to itself", "remove the loop")
+            raise ModelError("flow_paths", f"connects {shorten(a)} to itself", "remove the loop")
         g.add_edge(a, b)
     role = {n: kinds[n].role for n in kinds}
     boundaries = [n for n in names if role[n] == "boundary"]
@@ -331,19 +333,19 @@ def _check_graph(model: Model, kinds: dict[str, type[ComponentKind]]) -> nx.DiGr
                                  f"continue the path: \"{n} -> OUTSIDE\"")
         if r == "volume":
             if ins:
-                raise ModelError(where, f"is fed by {ins[0]!r}; flow into a vessel is not supported yet",
+                raise ModelError(where, f"is fed by {shorten(ins[0])}; flow into a vessel is not supported yet",
                                  "feed the nozzle directly from the source instead")
             if any(role[m] != "flow" for m in outs):
                 bad = [m for m in outs if role[m] != "flow"][0]
-                raise ModelError(where, f"connects directly to {bad!r}; vessels connect through a flow element",
-                                 f"put a nozzle or orifice between {n!r} and {bad!r}")
+                raise ModelError(where, f"connects directly to {shorten(bad)}; vessels connect through a flow element",
+                                 f"put a nozzle or orifice between {shorten(n)} and {shorten(bad)}")
             if not outs:
                 raise ModelError(where, "has no outlet, so it can never empty",
                                  f"add a path such as \"{n} -> NOZZLE -> OUTSIDE\"")
         if r == "source":
             if ins:
-                raise ModelError(where, f"({kind}) takes fluid from outside the vehicle and cannot be fed by {ins[0]!r}",
-                                 f"start the path at {n!r}")
+                raise ModelError(where, f"({kind}) takes fluid from outside the vehicle and cannot be fed by {shorten(ins[0])}",
+                                 f"start the path at {shorten(n)}")
             if len(outs) != 1 or role[outs[0]] != "flow":
                 raise ModelError(where, f"({kind}) must feed exactly one flow element (a pump or a nozzle)",
                                  f"write a path such as \"{n} -> PUMP -> NOZZLE -> OUTSIDE\"")

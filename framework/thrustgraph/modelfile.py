@@ -67,8 +67,9 @@ from typing import Any, Callable, Mapping
 
 import tomli_w
 
-from .errors import ModelError
+from .errors import ModelError, shorten
 from .model import LAUNCH_SPECS, RUN_SPECS, Model
+from .units import finite_number
 
 __all__ = ["FORMAT_NAME", "FORMAT_VERSION", "OLDEST_VERSION", "UPGRADES", "TOP_LEVEL_KEYS", "load_model",
            "loads_model", "save_model", "dumps_model", "check_model", "upgrade_data", "default_model_path",
@@ -140,7 +141,11 @@ def loads_model(text: str, *, source: str = "<text>") -> Model:
     except tomllib.TOMLDecodeError as exc:
         raise ModelError(source, f"is not valid TOML: {exc}",
                          "fix the syntax at the line and column given (quantities are quoted: volume = \"2 L\")") from None
+    except RecursionError:
+        raise ModelError(source, "nests lists or tables too deeply to be read (hundreds of levels)",
+                         f"a model file needs at most a few levels; nest at most {MAX_DEPTH}") from None
     try:
+        _check_depth(data)
         return _from_data(data, source)
     except ModelError as exc:
         raise exc.located(source) from None
@@ -288,10 +293,25 @@ def _type_name(value: Any) -> str:
 
 
 def _found(value: Any) -> str:
-    text = repr(value)
-    if len(text) > 60:
-        text = text[:57] + "..."
-    return f"{_type_name(value)} {text}"
+    return f"{_type_name(value)} {shorten(value)}"
+
+
+#: Deepest nesting of lists and tables a model file may use (a thrust table inside a component is 4 levels).
+MAX_DEPTH = 16
+
+
+def _check_depth(data: dict[str, Any]) -> None:
+    """Refuse lists and tables nested deeper than :data:`MAX_DEPTH` (walked without recursion)."""
+    stack: list[tuple[Any, str, int]] = [(data, "", 0)]
+    while stack:
+        node, where, depth = stack.pop()
+        if depth > MAX_DEPTH:
+            raise ModelError(where, f"nests lists or tables more than {MAX_DEPTH} levels deep",
+                             "a model file needs a few levels at most; check the brackets")
+        if isinstance(node, dict):
+            stack.extend((v, f"{where}.{k}" if where else str(k), depth + 1) for k, v in node.items())
+        elif isinstance(node, list):
+            stack.extend((v, f"{where}[{k}]", depth + 1) for k, v in enumerate(node))
 
 
 def _table(data: dict[str, Any], key: str, where: str | None = None) -> dict[str, Any]:
@@ -314,6 +334,8 @@ def _check_values(value: Any, where: str) -> None:
     elif not isinstance(value, _PLAIN):
         raise ModelError(where, f"expected a quantity, number, word or flag, found {_found(value)}",
                          'quote quantities with their unit, e.g. "5 bar"')
+    elif isinstance(value, (int, float)) and not isinstance(value, bool):
+        finite_number(value, where=where)  # NaN, infinities and integers beyond 64 bits mean nothing in a model
 
 
 def _check_settings(table: dict[str, Any], section: str, specs: tuple) -> None:
@@ -390,6 +412,8 @@ def _from_data(data: dict[str, Any], source: str) -> Model:
     stages = _table(data, "stages")        # checked when the model is parsed (thrustgraph.staging)
     triggers = _table(data, "triggers")
     study = _table(data, "study")
+    for key, table in (("stages", stages), ("triggers", triggers), ("study", study), ("flow_paths", paths)):
+        _check_values(table, key)
     calibration = _table(data, "calibration")  # written by thrustgraph.calibrate: where fitted values came from
     for key, entry in calibration.items():
         if not isinstance(entry, dict):

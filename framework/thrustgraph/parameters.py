@@ -19,16 +19,18 @@ thrustgraph.errors.ModelError: components.bottle.volume: must be greater than 0 
 from __future__ import annotations
 
 import dataclasses
+import difflib
 import math
 from dataclasses import dataclass, field
 from typing import Any, Sequence
 
 import numpy as np
 
-from .errors import ModelError
-from .units import Q_, to_si
+from .errors import ModelError, shorten
+from .units import Q_, finite_number, to_si
 
-__all__ = ["Spec", "Quantity", "Number", "Choice", "Flag", "Vector", "Table", "make_params_class", "parse_params"]
+__all__ = ["Spec", "Quantity", "Number", "Choice", "Flag", "Vector", "Table", "make_params_class", "parse_params",
+           "check_finite"]
 
 
 @dataclass(frozen=True)
@@ -68,28 +70,33 @@ class Quantity(Spec):
         return float(Q_(b, self.unit).to_base_units().magnitude) if self.unit else float(b)
 
     def parse(self, value: Any, *, where: str) -> float:
-        x = to_si(value, self.unit, where=where)
+        x = to_si(value, self.unit, where=where)  # always finite
         u = f" {self.unit}" if self.unit else ""
+        # Written so that a NaN fails every comparison, hence every check: `ok` must be proved true.
         if self.low is not None:
             lo = self._bound_si(self.low)
-            if x < lo or (self.low_open and x == lo):
+            if not (x > lo if self.low_open else x >= lo):
                 word = "greater than" if self.low_open else "at least"
-                raise ModelError(where, f"must be {word} {self.low:g}{u}, got {value!r}",
+                raise ModelError(where, f"must be {word} {self.low:g}{u}, got {shorten(value)}",
                                  f"{self.doc or self.name}; give a value {word} {self.low:g}{u}")
         if self.high is not None:
             hi = self._bound_si(self.high)
-            if x > hi or (self.high_open and x == hi):
+            if not (x < hi if self.high_open else x <= hi):
                 word = "less than" if self.high_open else "at most"
-                raise ModelError(where, f"must be {word} {self.high:g}{u}, got {value!r}",
+                raise ModelError(where, f"must be {word} {self.high:g}{u}, got {shorten(value)}",
                                  f"{self.doc or self.name}; give a value {word} {self.high:g}{u}")
         return x
 
     def describe(self) -> str:
         u = self.unit or "-"
-        lo = "(" if self.low_open else "["
-        hi = ")" if self.high_open else "]"
-        rng = f"{lo}{'-inf' if self.low is None else format(self.low, 'g')}, " \
-              f"{'inf' if self.high is None else format(self.high, 'g')}{hi}"
+        if self.low is None and self.high is None:
+            rng = "any finite value"
+        elif self.high is None:
+            rng = f"{'>' if self.low_open else '>='} {self.low:g}"
+        elif self.low is None:
+            rng = f"{'<' if self.high_open else '<='} {self.high:g}"
+        else:
+            rng = f"{'(' if self.low_open else '['}{self.low:g}, {self.high:g}{')' if self.high_open else ']'}"
         d = "required" if self.default is None else f"default {self.default}"
         return f"{self.doc} [{u}] range {rng}, {d}"
 
@@ -110,11 +117,10 @@ class Choice(Spec):
 
     def parse(self, value: Any, *, where: str) -> str:
         if not isinstance(value, str) or value not in self.options:
-            import difflib
-
-            close = difflib.get_close_matches(str(value), self.options, n=1)
+            close = difflib.get_close_matches(value, self.options, n=1) if isinstance(value, str) \
+                and len(value) < 200 else []
             hint = f"did you mean {close[0]!r}? " if close else ""
-            raise ModelError(where, f"expected one of {', '.join(map(repr, self.options))}, got {value!r}",
+            raise ModelError(where, f"expected one of {', '.join(map(repr, self.options))}, got {shorten(value)}",
                              f"{hint}choose one of the listed words")
         return value
 
@@ -130,7 +136,7 @@ class Flag(Spec):
 
     def parse(self, value: Any, *, where: str) -> bool:
         if not isinstance(value, bool):
-            raise ModelError(where, f"expected true or false, got {value!r}", "write true or false (no quotes)")
+            raise ModelError(where, f"expected true or false, got {shorten(value)}", "write true or false (no quotes)")
         return value
 
     def describe(self) -> str:
@@ -144,15 +150,20 @@ class Vector(Spec):
     default: tuple[float, float, float] | None = field(default=None, kw_only=True)
 
     def parse(self, value: Any, *, where: str) -> tuple[float, float, float]:
+        fix = "write e.g. [-1, 0, 0] for a jet pointing aft along the body axis"
         ok = isinstance(value, (list, tuple)) and len(value) == 3 and all(
-            isinstance(c, (int, float)) and not isinstance(c, bool) and math.isfinite(c) for c in value)
+            isinstance(c, (int, float)) and not isinstance(c, bool) for c in value)
         if not ok:
-            raise ModelError(where, f"expected a direction of three numbers [x, y, z], got {value!r}",
-                             "write e.g. [-1, 0, 0] for a jet pointing aft along the body axis")
-        n = math.sqrt(sum(float(c) ** 2 for c in value))
-        if n == 0.0:
+            raise ModelError(where, f"expected a direction of three numbers [x, y, z], got {shorten(value)}", fix)
+        c = [finite_number(v, where=f"{where}[{k}]", example="-1") for k, v in enumerate(value)]
+        # The norm is taken on components scaled by the largest, so [1e200, 0, 0] and [5e-324, 0, 0] both read
+        # as the unit vector [1, 0, 0] (squaring them would overflow or underflow).
+        big = max(abs(v) for v in c)
+        if not big > 0.0:
             raise ModelError(where, "the direction [0, 0, 0] has no length", "give a non-zero direction")
-        return tuple(float(c) / n for c in value)  # type: ignore[return-value]
+        u = [v / big for v in c]
+        n = math.sqrt(sum(v * v for v in u))
+        return tuple(v / n for v in u)  # type: ignore[return-value]
 
     def describe(self) -> str:
         return f"{self.doc} body-frame direction [x, y, z], default {list(self.default or ())}"
@@ -172,30 +183,52 @@ class Table(Spec):
     columns: tuple[tuple[str, str], ...] = field(default=(), kw_only=True)
     default: Any = field(default=None, kw_only=True)
     min_rows: int = field(default=2, kw_only=True)
+    #: Bounds of each column, ``(low, high)`` in the column's declared unit (None: unbounded on that side).
+    bounds: tuple[tuple[float | None, float | None], ...] = field(default=(), kw_only=True)
+    max_rows: int = field(default=10_000, kw_only=True)
 
     def parse(self, value: Any, *, where: str) -> np.ndarray | None:
-        if value == "absent":
+        if isinstance(value, str) and value == "absent":
             return None
         names = ", ".join(f"{n} [{u}]" for n, u in self.columns)
         fix = f'write {{ units = [{", ".join(repr(u) for _, u in self.columns)}], rows = [[...], ...] }} with columns {names}'
         if not isinstance(value, dict) or set(value) != {"units", "rows"}:
-            raise ModelError(where, f"expected a table with keys 'units' and 'rows', got {value!r}", fix)
+            raise ModelError(where, f"expected a table with keys 'units' and 'rows', got {shorten(value)}", fix)
         units, rows = value["units"], value["rows"]
-        if not isinstance(units, list) or len(units) != len(self.columns):
-            raise ModelError(f"{where}.units", f"expected {len(self.columns)} units ({names}), got {units!r}", fix)
+        if not isinstance(units, list) or len(units) != len(self.columns) or not all(isinstance(u, str) for u in units):
+            raise ModelError(f"{where}.units", f"expected {len(self.columns)} units ({names}), got {shorten(units)}", fix)
         if not isinstance(rows, list) or len(rows) < self.min_rows:
-            raise ModelError(f"{where}.rows", f"expected at least {self.min_rows} rows, got {rows!r}", fix)
+            raise ModelError(f"{where}.rows", f"expected at least {self.min_rows} rows, got {shorten(rows)}", fix)
+        if len(rows) > self.max_rows:
+            raise ModelError(f"{where}.rows", f"has {len(rows)} rows, more than the {self.max_rows} a table may hold",
+                             "thin the table out (a curve rarely needs more than a few hundred rows)")
         scale = []
         for k, ((cname, cunit), u) in enumerate(zip(self.columns, units)):
-            scale.append(to_si(f"1 {u}", cunit, where=f"{where}.units[{k}]"))
+            if u.startswith(("-", "+")) or (u.strip() and u.strip()[0].isdigit()):
+                raise ModelError(f"{where}.units[{k}]", f"expected a unit, got {shorten(u)}", fix)
+            scale.append(to_si(f"1 {u}".strip(), cunit, where=f"{where}.units[{k}]"))
         out = np.empty((len(rows), len(self.columns)))
         for i, row in enumerate(rows):
             if not isinstance(row, list) or len(row) != len(self.columns) or not all(
                     isinstance(c, (int, float)) and not isinstance(c, bool) for c in row):
-                raise ModelError(f"{where}.rows[{i}]", f"expected {len(self.columns)} numbers, got {row!r}", fix)
-            out[i] = [float(c) * s for c, s in zip(row, scale)]
-        if not np.all(np.isfinite(out)):
-            raise ModelError(f"{where}.rows", "contains a value that is not finite", "remove inf/nan entries")
+                raise ModelError(f"{where}.rows[{i}]", f"expected {len(self.columns)} numbers, got {shorten(row)}",
+                                 fix)
+            vals = [finite_number(c, where=f"{where}.rows[{i}][{k}]") * s for k, (c, s) in enumerate(zip(row, scale))]
+            if not all(math.isfinite(v) for v in vals):
+                raise ModelError(f"{where}.rows[{i}]", f"{shorten(row)} overflows in SI units", fix)
+            out[i] = vals
+        for k, (lo, hi) in enumerate(self.bounds):
+            cname, cunit = self.columns[k]
+            lo_si = None if lo is None else to_si(f"{lo!r} {cunit}".strip(), cunit)
+            hi_si = None if hi is None else to_si(f"{hi!r} {cunit}".strip(), cunit)
+            col = out[:, k]
+            bad = np.flatnonzero(~((col >= (-np.inf if lo_si is None else lo_si))
+                                   & (col <= (np.inf if hi_si is None else hi_si))))
+            if len(bad):
+                i = int(bad[0])
+                rng = f"from {lo:g}" if hi is None else (f"up to {hi:g}" if lo is None else f"from {lo:g} to {hi:g}")
+                raise ModelError(f"{where}.rows[{i}]", f"the {cname} {shorten(rows[i][k])} is outside the range "
+                                 f"{rng} {cunit}".rstrip(), f"give {cname} values {rng} {cunit}".rstrip())
         if np.any(np.diff(out[:, 0]) <= 0):
             i = int(np.argmax(np.diff(out[:, 0]) <= 0)) + 1
             raise ModelError(f"{where}.rows[{i}]", f"the {self.columns[0][0]} column must increase strictly",
@@ -224,8 +257,6 @@ def parse_params(specs: Sequence[Spec], raw: dict[str, Any], *, where: str,
 
     Unknown keys are refused with the closest valid name suggested.
     """
-    import difflib
-
     names = [s.name for s in specs]
     for key in raw:
         if key not in names:
@@ -235,7 +266,7 @@ def parse_params(specs: Sequence[Spec], raw: dict[str, Any], *, where: str,
     values = {}
     for s in specs:
         if s.name in raw:
-            values[s.name] = s.parse(raw[s.name], where=f"{where}.{s.name}")
+            values[s.name] = check_finite(s.parse(raw[s.name], where=f"{where}.{s.name}"), where=f"{where}.{s.name}")
         elif getattr(s, "default", None) is not None:
             values[s.name] = s.parse(s.default, where=f"{where}.{s.name} (default)")
         else:
@@ -243,3 +274,27 @@ def parse_params(specs: Sequence[Spec], raw: dict[str, Any], *, where: str,
                              f"add {s.name} = ... ({s.describe()})")
     cls = params_class or make_params_class("params", specs)
     return cls(**values)
+
+
+def check_finite(value: Any, *, where: str) -> Any:
+    """Refuse a parsed value holding a NaN or an infinity, whatever spec (built in or a plugin's) produced it.
+
+    Every spec refuses non-finite input itself; this is the net under them all, applied by :func:`parse_params`.
+
+    >>> check_finite((1.0, 2.0), where="x")
+    (1.0, 2.0)
+    >>> check_finite(float("nan"), where="components.bottle.fill")
+    Traceback (most recent call last):
+    ...
+    thrustgraph.errors.ModelError: components.bottle.fill: is not a finite number (nan). Fix: give a finite value.
+    """
+    if isinstance(value, (float, int)) and not isinstance(value, bool):
+        if not math.isfinite(value):
+            raise ModelError(where, f"is not a finite number ({value!r})", "give a finite value")
+    elif isinstance(value, np.ndarray) and value.dtype.kind in "fc":
+        if not np.all(np.isfinite(value)):
+            raise ModelError(where, "holds a value that is not finite", "give finite values")
+    elif isinstance(value, (tuple, list)):
+        for v in value:
+            check_finite(v, where=where)
+    return value

@@ -65,7 +65,9 @@ _TERM_COLOURS = ["#1f5fbf", "#e07b00", "#2a9d3a", "#c0392b", "#7d4cb0", "#8c5a3c
 _PHASE_COLOURS = ["#fff1d6", "#e3f0ff", "#eaf6e3", "#f4e6f7", "#f2f2f2", "#fde8e8"]
 _NOT_POWERED = ("coast", "descent", "on guide", "spent")
 _RC = {"font.size": 9, "axes.titlesize": 10, "axes.labelsize": 9, "legend.fontsize": 8,
-       "svg.hashsalt": "thrustgraph", "svg.fonttype": "path", "axes.grid": True, "grid.alpha": 0.35}
+       "svg.hashsalt": "thrustgraph", "svg.fonttype": "path", "axes.grid": True, "grid.alpha": 0.35,
+       # Names come from the model file ("rocket $\\frac{1}{$"): show them as written, never as math text.
+       "text.parse_math": False}
 
 
 # ---------------------------------------------------------------------------

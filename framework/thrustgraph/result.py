@@ -219,7 +219,8 @@ class FlightResult:
             "success": self.success, "message": self.message, "cautions": self.cautions,
             "provenance": self.provenance,
         }
-        return json.dumps(doc, indent=2, allow_nan=True)
+        # Strict JSON: a number that is not finite (an audit left out of a run) is written as null.
+        return json.dumps(_finite(doc), indent=2, allow_nan=False)
 
     def _summary_entry(self, key: str, value: float) -> dict[str, Any]:
         spec = self.outcome_specs.get(key)
@@ -313,3 +314,18 @@ class FlightResult:
         k = "xyz".index(direction)
         return {key: v[:, k].copy() for key, v in self.ledger.items()}
 
+
+
+def _finite(value: Any) -> Any:
+    """A copy of a JSON document with every NaN or infinity replaced by None (null).
+
+    >>> _finite({"a": [1.0, float("nan")], "b": float("inf")})
+    {'a': [1.0, None], 'b': None}
+    """
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_finite(v) for v in value]
+    return value

@@ -46,7 +46,8 @@ from typing import Any
 
 import numpy as np
 
-from .errors import ModelError
+from .errors import ModelError, shorten
+from .parameters import Quantity
 from .units import to_si
 
 __all__ = ["Trigger", "parse_condition", "parse_stages", "parse_triggers", "check_stages", "KINEMATIC_SIGNALS",
@@ -57,6 +58,7 @@ KINEMATIC_SIGNALS = {"time": "s", "altitude": "m", "speed": "m/s", "vertical_spe
                      "mass": "kg"}
 _COND = re.compile(r"^\s*([A-Za-z_][\w.\-]*)\s*([<>])\s*(.+?)\s*$")
 _ACTIONS = ("separate", "switch", "stop")
+_DELAY = Quantity("after", "s", low=0.0, high=1e6, doc="the delay between the condition and the action")
 
 
 @dataclass(frozen=True)
@@ -78,7 +80,7 @@ def parse_condition(text: Any, where: str) -> tuple[str, float, str]:
     """Split ``"SIGNAL < VALUE"`` into (signal, direction, value text)."""
     m = _COND.match(text) if isinstance(text, str) else None
     if not m:
-        raise ModelError(where, f"expected a condition like \"altitude < 150 m\", got {text!r}",
+        raise ModelError(where, f"expected a condition like \"altitude < 150 m\", got {shorten(text)}",
                          "write SIGNAL < VALUE or SIGNAL > VALUE, the value with its unit")
     return m.group(1), (-1.0 if m.group(2) == "<" else 1.0), m.group(3)
 
@@ -89,19 +91,19 @@ def parse_stages(model, kinds: dict[str, Any]) -> dict[str, tuple[str, ...]]:
     for name, table in model.stages.items():
         where = f"stages.{name}"
         if not isinstance(table, dict) or set(table) != {"components"}:
-            raise ModelError(where, f"expected a table with the key 'components' only, got {table!r}",
+            raise ModelError(where, f"expected a table with the key 'components' only, got {shorten(table)}",
                              f"write [stages.{name}] components = [\"...\"]")
         comps = table["components"]
         if not isinstance(comps, list) or not comps or not all(isinstance(c, str) for c in comps):
-            raise ModelError(f"{where}.components", f"expected a list of component names, got {comps!r}",
+            raise ModelError(f"{where}.components", f"expected a list of component names, got {shorten(comps)}",
                              "name the components the separation drops")
         for c in comps:
             if c not in kinds:
                 close = difflib.get_close_matches(c, list(kinds), n=1)
-                raise ModelError(f"{where}.components", f"names {c!r}, which is not a component",
-                                 f"did you mean {close[0]!r}?" if close else "check the name")
+                raise ModelError(f"{where}.components", f"names {shorten(c)}, which is not a component",
+                                 f"did you mean {shorten(close[0])}?" if close else "check the name")
             if kinds[c].role == "boundary":
-                raise ModelError(f"{where}.components", f"{c!r} is the surroundings and cannot be dropped",
+                raise ModelError(f"{where}.components", f"{shorten(c)} is the surroundings and cannot be dropped",
                                  "leave the surroundings out of the stage")
         out[name] = tuple(comps)
     return out
@@ -116,9 +118,9 @@ def check_stages(stages: dict[str, tuple[str, ...]], graph, kinds) -> None:
                 continue
             if (a in inside) != (b in inside):
                 dropped, kept = (a, b) if a in inside else (b, a)
-                raise ModelError(f"stages.{name}.components", f"separating it would split {dropped!r} from "
-                                 f"{kept!r}, which it is connected to by a flow path",
-                                 f"drop both {a!r} and {b!r} in the same stage, or neither")
+                raise ModelError(f"stages.{name}.components", f"separating it would split {shorten(dropped)} from "
+                                 f"{shorten(kept)}, which it is connected to by a flow path",
+                                 f"drop both {shorten(a)} and {shorten(b)} in the same stage, or neither")
         rest = [n for n in kinds if n not in inside and kinds[n].role != "boundary"]
         if not any(kinds[n].role in ("body", "volume", "jet") for n in rest):
             raise ModelError(f"stages.{name}.components", "the separation would leave nothing with mass",
@@ -132,38 +134,43 @@ def parse_triggers(model, kinds: dict[str, Any], stages: dict[str, tuple[str, ..
     for name, table in model.triggers.items():
         where = f"triggers.{name}"
         if not isinstance(table, dict):
-            raise ModelError(where, f"expected a table, got {table!r}", f"write [triggers.{name}] when = ... then = ...")
+            raise ModelError(where, f"expected a table, got {shorten(table)}", f"write [triggers.{name}] when = ... then = ...")
         for k in table:
             if k not in keys:
                 close = difflib.get_close_matches(k, sorted(keys), n=1)
                 raise ModelError(f"{where}.{k}", "unknown key",
-                                 f"did you mean {close[0]!r}?" if close else f"valid keys: {', '.join(sorted(keys))}")
+                                 f"did you mean {shorten(close[0])}?" if close else f"valid keys: {', '.join(sorted(keys))}")
         if "when" not in table or "then" not in table:
             raise ModelError(where, "needs both 'when' and 'then'", 'write when = "altitude < 150 m", then = "stop"')
         signal, direction, value = parse_condition(table["when"], f"{where}.when")
         action = table["then"]
         if action not in _ACTIONS:
             close = difflib.get_close_matches(str(action), _ACTIONS, n=1)
-            raise ModelError(f"{where}.then", f"expected one of {', '.join(_ACTIONS)}, got {action!r}",
-                             f"did you mean {close[0]!r}?" if close else "choose one of the listed words")
+            raise ModelError(f"{where}.then", f"expected one of {', '.join(_ACTIONS)}, got {shorten(action)}",
+                             f"did you mean {shorten(close[0])}?" if close else "choose one of the listed words")
+        for key in ("stage", "component", "mode"):
+            if key in table and not isinstance(table[key], str):
+                raise ModelError(f"{where}.{key}", f"expected one {key} name as text, got {shorten(table[key])}",
+                                 f'write {key} = "NAME" (one name, in quotes, not a list)')
+        if not isinstance(action, str):
+            raise ModelError(f"{where}.then", f"expected one of {', '.join(_ACTIONS)}, got {shorten(action)}",
+                             'write then = "separate", "switch" or "stop"')
         stage = component = mode = ""
         if action == "separate":
             stage = table.get("stage", "")
             if stage not in stages:
-                raise ModelError(f"{where}.stage", f"names stage {stage!r}, which the model does not define",
+                raise ModelError(f"{where}.stage", f"names stage {shorten(stage)}, which the model does not define",
                                  f"add [stages.{stage or 'NAME'}] components = [...] or use one of {sorted(stages)}")
         if action == "switch":
             component, mode = table.get("component", ""), table.get("mode", "")
             if component not in kinds:
-                raise ModelError(f"{where}.component", f"names {component!r}, which is not a component",
+                raise ModelError(f"{where}.component", f"names {shorten(component)}, which is not a component",
                                  "name the component whose mode the trigger switches")
             names = [m.name for m in kinds[component].modes]
             if mode not in names:
-                raise ModelError(f"{where}.mode", f"{component!r} ({kinds[component].kind}) has no mode {mode!r}",
+                raise ModelError(f"{where}.mode", f"{shorten(component)} ({kinds[component].kind}) has no mode {shorten(mode)}",
                                  f"choose one of {names}" if names else "this component has no modes")
-        delay = to_si(table["after"], "s", where=f"{where}.after") if "after" in table else 0.0
-        if delay < 0:
-            raise ModelError(f"{where}.after", "a delay cannot be negative", "give a delay of 0 s or more")
+        delay = _DELAY.parse(table["after"], where=f"{where}.after") if "after" in table else 0.0
         out.append(Trigger(name=name, signal=signal, direction=direction, threshold=value, action=action,
                            stage=stage, component=component, mode=mode, delay=delay))
     return tuple(out)
@@ -178,7 +185,7 @@ def resolve_thresholds(triggers, available: dict[str, str]) -> tuple[Trigger, ..
             close = difflib.get_close_matches(tr.signal, sorted(available), n=3)
             hint = f"did you mean {', '.join(repr(c) for c in close)}?" if close else \
                 f"signals: {', '.join(sorted(available))}"
-            raise ModelError(where, f"no signal {tr.signal!r} on this vehicle", hint)
+            raise ModelError(where, f"no signal {shorten(tr.signal)} on this vehicle", hint)
         unit = available[tr.signal]
         value = to_si(tr.threshold, unit, where=where) if unit else to_si(
             float(tr.threshold) if _is_number(tr.threshold) else tr.threshold, "", where=where)

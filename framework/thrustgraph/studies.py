@@ -51,6 +51,7 @@ from .ensemble import COMPUTED
 from .designs import DesignParameter, within_bounds
 from .engines import FLIGHTS, ENGINES, FlightTask, chunks, default_chunk_size, make_engine
 from .errors import ModelError
+from .limits import MAX_DESIGNS, check_count
 from .model import Model, ParsedModel, parse_model
 from .outcomes import OUTCOMES, STATUS_NOT_RUN, STATUS_OK, STATUS_SCREENED, check_outputs, default_outputs
 from .studyprogress import StudyProgress
@@ -331,8 +332,8 @@ def sweep(model: Model | str | None, vary: Sequence[Vary | str], *, combine: str
     cols = [v.si_values(p, where=f"sweep {v.path}") for v, p in zip(vary, params)]
     if combine == "grid":
         total = math.prod(len(c) for c in cols)
-        if total > 50_000_000:
-            raise ModelError("sweep", f"the grid has {total} designs", "use fewer values per parameter")
+        check_count(total, MAX_DESIGNS, where="sweep", what=f"designs (a grid of {' x '.join(str(len(c)) for c in cols)})",
+                    fix="use fewer values per parameter")
         x = np.array(list(itertools.product(*cols)), dtype=float).reshape(total, len(cols))
     elif combine == "list":
         lengths = {len(c) for c in cols}

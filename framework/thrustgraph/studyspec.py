@@ -44,10 +44,11 @@ from typing import Any, Sequence
 import numpy as np
 
 from .designs import DesignParameter, bounds_text, resolve
-from .errors import ModelError
+from .errors import ModelError, shorten
+from .limits import MAX_DESIGNS, check_count
 from .model import ParsedModel
 from .outcomes import check_outputs, outcome
-from .units import Q_, to_si
+from .units import Q_, parse_quantity, to_si
 
 __all__ = ["Vary", "Spread", "Limit", "StudyDefinition", "KINDS", "DISTRIBUTIONS", "read_study", "display_unit",
            "literal"]
@@ -78,8 +79,8 @@ def display_unit(values: Sequence[Any]) -> str | None:
     for v in values:
         if isinstance(v, str):
             try:
-                q = Q_(v)
-            except Exception:  # noqa: BLE001 - a bad value is reported where it is converted
+                q = parse_quantity(v)
+            except ModelError:  # a bad value is reported where it is converted
                 continue
             if hasattr(q, "units") and str(q.units) != "dimensionless":
                 return format(q.units, "~")
@@ -129,11 +130,14 @@ class Vary:
                 raise ModelError(where, "needs both low and high", fix)
             count = value.get("count")
             if count is not None and (not isinstance(count, int) or isinstance(count, bool) or count < 1):
-                raise ModelError(f"{where}.count", f"must be a whole number of at least 1, got {count!r}", fix)
+                raise ModelError(f"{where}.count", f"must be a whole number of at least 1, got {shorten(count)}", fix)
+            if count is not None:
+                check_count(count, MAX_DESIGNS, where=f"{where}.count", what="values")
             return cls(path, low=value["low"], high=value["high"], count=count)
         if isinstance(value, list):
             if not value:
                 raise ModelError(where, "the list of values is empty", fix)
+            check_count(len(value), MAX_DESIGNS, where=where, what="values")
             return cls(path, values=tuple(value))
         if isinstance(value, (int, float)) and not isinstance(value, bool):
             return cls(path, values=(value,))
@@ -152,6 +156,7 @@ class Vary:
                     raise ModelError(where, f"the count {m.group(2)!r} is not a whole number", fix) from None
                 if count < 1:
                     raise ModelError(where, f"the count must be at least 1, got {count}", fix)
+                check_count(count, MAX_DESIGNS, where=where, what="values")
             if not lo.strip() or not rest.strip():
                 raise ModelError(where, f"{text!r} lacks a bound on one side of '..'", fix)
             return cls(path, low=literal(lo), high=literal(rest), count=count)
@@ -357,9 +362,12 @@ _ALIASES = {"optimize": "optimise", "monte-carlo": "dispersion", "montecarlo": "
             "sensitivities": "sensitivity"}
 
 
-def _int(value: Any, where: str, low: int) -> int:
+def _int(value: Any, where: str, low: int, high: int | None = None, what: str = "") -> int:
     if not isinstance(value, int) or isinstance(value, bool) or value < low:
-        raise ModelError(where, f"must be a whole number of at least {low}, got {value!r}", f"write e.g. {max(low, 1)}")
+        raise ModelError(where, f"must be a whole number of at least {low}, got {shorten(value)}",
+                         f"write e.g. {max(low, 1)}")
+    if high is not None:
+        check_count(value, high, where=where, what=what)
     return value
 
 
@@ -428,7 +436,7 @@ def read_study(table: dict[str, Any], kind: str | None = None, *, source: str = 
                              'write spread = { "launch.elevation" = "normal(sd=1 deg)" }')
         kw["spreads"] = tuple(Spread.from_entry(p, v, where=f"{where}.spread.{p}") for p, v in sp.items())
     if "samples" in sub:
-        kw["samples"] = _int(sub["samples"], f"{where}.samples", 1)
+        kw["samples"] = _int(sub["samples"], f"{where}.samples", 1, MAX_DESIGNS, "samples")
     if "seed" in sub:
         kw["seed"] = _int(sub["seed"], f"{where}.seed", 0)
     if "maximise" in sub and "minimise" in sub:

@@ -23,14 +23,18 @@ thrustgraph.errors.ModelError: components.bottle.gauge_pressure: expected a pres
 
 from __future__ import annotations
 
+import functools
 import math
+import re
 from typing import Any
 
+import numpy as np
 import pint
 
-from .errors import ModelError
+from .errors import ModelError, shorten
 
-__all__ = ["ureg", "Q_", "to_si", "si_unit", "format_quantity", "describe_dimension"]
+__all__ = ["ureg", "Q_", "to_si", "si_unit", "format_quantity", "describe_dimension", "parse_quantity",
+           "finite_number", "MAX_QUANTITY_TEXT"]
 
 ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
 pint.set_application_registry(ureg)
@@ -92,6 +96,73 @@ def si_unit(unit: str) -> str:
     return _SI_CACHE[unit]
 
 
+#: Longest quantity text read (number, spaces and unit): longer text is refused before any parsing.
+MAX_QUANTITY_TEXT = 100
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+_UNIT_CHARS = re.compile(r"^[A-Za-z_µμΩ°%][\w µμΩ°%*/^().·-]*$")
+_EXPONENT = re.compile(r"(\*\*|\^)\s*\(?\s*[-+]?\d{1,2}(\.\d{1,3})?\s*\)?")
+_NUMBER_IN_UNIT = re.compile(r"(?<![A-Za-z_µμΩ°])\d")
+_WORDS = re.compile(r"^\s*[-+]?(nan|inf|infinity)\b", re.IGNORECASE)
+
+
+def _unit_ok(unit: str) -> bool:
+    """A unit is names, products, quotients and small whole exponents: no numbers to compute."""
+    # "1/s" (per second) is the one place a unit may hold a number
+    rest = unit[1:].lstrip() if unit.startswith("1") and unit[1:].lstrip().startswith("/") else unit
+    if not rest:
+        return True
+    if not _UNIT_CHARS.match(rest.lstrip("/ ")) and rest.strip():
+        return False
+    return not _NUMBER_IN_UNIT.search(_EXPONENT.sub("", rest))
+
+
+@functools.lru_cache(maxsize=1024)
+def _parse_unit(unit: str) -> Any:
+    """The pint unit of a short, checked unit text (cached: model files repeat their units)."""
+    if unit.startswith("/"):
+        unit = "1" + unit
+    return ureg.parse_units(unit) if unit else ureg.dimensionless
+
+
+def parse_quantity(text: str, *, where: str = "", example: str = '"5 bar" or "2 L"') -> "pint.Quantity":
+    """Read text as a number and a unit, never as arithmetic.
+
+    The number is read by a regular expression (digits, a point, an exponent), the unit (at most
+    :data:`MAX_QUANTITY_TEXT` characters in all) by the unit registry alone, so ``"9**9**9 bar"`` is refused
+    at once instead of being computed. Non-finite numbers and numbers too large for a float are refused.
+
+    >>> parse_quantity("4.5 bar")
+    <Quantity(4.5, 'bar')>
+    >>> parse_quantity("10**400 L", where="components.bottle.volume")
+    Traceback (most recent call last):
+    ...
+    thrustgraph.errors.ModelError: components.bottle.volume: cannot read '10**400 L' as a number and a unit: the unit '**400 L' holds a number or arithmetic. Fix: write the number in decimal or e-notation followed by a unit, e.g. "5 bar" or "2 L".
+    """
+    fix = f"write the number in decimal or e-notation followed by a unit, e.g. {example}"
+    if len(text) > MAX_QUANTITY_TEXT:
+        raise ModelError(where, f"the quantity text is {len(text)} characters long, more than the "
+                         f"{MAX_QUANTITY_TEXT} a number and a unit need: {shorten(text)}", fix)
+    if _WORDS.match(text):
+        raise ModelError(where, f"{text!r} is not a finite number", f"write a finite value, e.g. {example}")
+    m = _NUMBER.match(text)
+    if not m:
+        raise ModelError(where, f"cannot read {text!r} as a number and a unit", fix)
+    number, unit = m.group(1), m.group(2)
+    mag = float(number)
+    if not math.isfinite(mag):
+        raise ModelError(where, f"the number in {text!r} is too large for a floating-point number "
+                         "(the largest is about 1.8e308)", f"write a finite value, e.g. {example}")
+    if not _unit_ok(unit):
+        raise ModelError(where, f"cannot read {text!r} as a number and a unit: the unit {unit!r} holds a number "
+                         "or arithmetic", fix)
+    try:
+        u = _parse_unit(unit)
+    except Exception:  # noqa: BLE001 - pint raises several types for a bad unit
+        raise ModelError(where, f"cannot read {text!r} as a number and a unit: {unit!r} is not a unit I know",
+                         fix) from None
+    return Q_(mag, u)
+
+
 def to_si(value: Any, unit: str, *, where: str = "") -> float:
     """Convert a quantity given as text, number or pint quantity to SI.
 
@@ -99,7 +170,8 @@ def to_si(value: Any, unit: str, *, where: str = "") -> float:
     ----------
     value : str, float, int or pint.Quantity
         The value as the user wrote it. A bare number is accepted only for a
-        dimensionless parameter (``unit == ""``).
+        dimensionless parameter (``unit == ""``). Text is read by
+        :func:`parse_quantity` (a number and a unit, never arithmetic).
     unit : str
         The declared unit of the parameter; the value must have its dimension.
         The result is in the coherent SI unit of that dimension.
@@ -109,43 +181,76 @@ def to_si(value: Any, unit: str, *, where: str = "") -> float:
     Returns
     -------
     float
-        The magnitude in SI base units.
+        The magnitude in SI base units, always finite.
+
+    Examples
+    --------
+    >>> to_si(float("nan"), "", where="components.bottle.fill")
+    Traceback (most recent call last):
+    ...
+    thrustgraph.errors.ModelError: components.bottle.fill: nan is not a finite number. Fix: write a finite value, e.g. 0.6.
+    >>> to_si("1e308 km", "m", where="components.airframe.reference_diameter")
+    Traceback (most recent call last):
+    ...
+    thrustgraph.errors.ModelError: components.airframe.reference_diameter: '1e308 km' is too large: it overflows in SI units. Fix: write a finite value, e.g. "22 mm" or "1.2 m".
     """
     name, example = describe_dimension(unit)
     if isinstance(value, bool):
         raise ModelError(where, f"expected {_an(name)}, got the flag {value!r}", f"write a value such as {example}")
     if isinstance(value, (int, float)):
         if unit:
-            raise ModelError(where, f"expected {_an(name)} with a unit, got the bare number {value!r}",
+            raise ModelError(where, f"expected {_an(name)} with a unit, got the bare number {shorten(value)}",
                              f"write the value with its unit, e.g. {example}")
-        return float(value)
+        return finite_number(value, where=where, example=example)
     if isinstance(value, str):
-        try:
-            q = Q_(value)
-        except Exception as exc:  # pint raises several types for bad text
-            raise ModelError(where, f"cannot read {value!r} as a quantity ({type(exc).__name__})",
-                             f"write a number followed by a unit, e.g. {example}") from None
+        q = parse_quantity(value, where=where, example=example)
     elif isinstance(value, pint.Quantity):
         q = value
+        if not np.all(np.isfinite(np.asarray(q.magnitude, dtype=float))):
+            raise ModelError(where, f"{shorten(value)} is not a finite number", f"write a finite value, e.g. {example}")
     else:
-        raise ModelError(where, f"expected {_an(name)}, got {type(value).__name__} {value!r}",
+        raise ModelError(where, f"expected {_an(name)}, got {type(value).__name__} {shorten(value)}",
                          f"write a value such as {example}")
-    if not isinstance(q, pint.Quantity):  # a bare number written as text
-        q = Q_(float(q), "")
     if _is_angle(unit) and q.unitless:
-        raise ModelError(where, f"expected an angle with its unit, got {value!r}",
+        raise ModelError(where, f"expected an angle with its unit, got {shorten(value)}",
                          'write the unit, e.g. "45 deg" (a bare number would be read as radians)')
     target = Q_(1.0, unit) if unit else Q_(1.0, "")
     if q.dimensionality != target.dimensionality:
         found = str(q.dimensionality)
         found = "no unit" if found == "dimensionless" else found
         expected = f"{_an(name)} (unit like {unit})" if unit else "a plain number"
-        raise ModelError(where, f"expected {expected}, got {value!r} ({found})",
+        raise ModelError(where, f"expected {expected}, got {shorten(value)} ({found})",
                          f"write the value with a unit of {name}, e.g. {example}")
-    mag = float(q.to_base_units().magnitude)
+    try:
+        mag = float(q.to_base_units().magnitude)
+    except (OverflowError, ZeroDivisionError, ValueError):
+        mag = math.inf
     if not math.isfinite(mag):
-        raise ModelError(where, f"{value!r} is not a finite number", f"write a finite value, e.g. {example}")
+        raise ModelError(where, f"{shorten(value)} is too large: it overflows in SI units",
+                         f"write a finite value, e.g. {example}")
     return mag
+
+
+def finite_number(value: Any, *, where: str = "", example: str = "0.6") -> float:
+    """A plain number (int or float) as a finite float; NaN, infinities and integers beyond 64 bits are refused.
+
+    >>> finite_number(3, where="x")
+    3.0
+    >>> finite_number(10 ** 400, where="components.bottle.fill")
+    Traceback (most recent call last):
+    ...
+    thrustgraph.errors.ModelError: components.bottle.fill: a whole number of 401 digits is beyond the 64-bit range of model files. Fix: write a value such as 0.6.
+    """
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise ModelError(where, f"expected a number, got {shorten(value)}", f"write a value such as {example}")
+    if isinstance(value, int) and not -2**63 <= value < 2**63:
+        digits = len(str(abs(value))) if abs(value) < 10**4000 else "over 4000"
+        raise ModelError(where, f"a whole number of {digits} digits is beyond the 64-bit range of model files",
+                         f"write a value such as {example}")
+    x = float(value)
+    if not math.isfinite(x):
+        raise ModelError(where, f"{x!r} is not a finite number", f"write a finite value, e.g. {example}")
+    return x
 
 
 def format_quantity(value: float, si: str, display: str, digits: int = 4) -> str:

@@ -33,8 +33,8 @@ class Airframe(ComponentKind):
     role = "body"
     summary = "dry structure: mass, reference diameter and a constant drag coefficient"
     parameters = (
-        Quantity("dry_mass", "kg", low=0.0, low_open=True, doc="mass of the empty vehicle"),
-        Quantity("reference_diameter", "m", default="0 m", low=0.0, doc="diameter of the frontal reference area"),
+        Quantity("dry_mass", "kg", low=1e-6, high=1e6, doc="mass of the empty vehicle"),
+        Quantity("reference_diameter", "m", default="0 m", low=0.0, high=100.0, doc="diameter of the frontal reference area"),
         Number("drag_coefficient", default=0.0, low=0.0, high=5.0, doc="drag coefficient on the reference area"),
     )
 

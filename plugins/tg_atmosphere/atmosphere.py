@@ -65,15 +65,15 @@ class StandardAtmosphere1976(EnvironmentKind):
                doc="scale of z and datum_altitude: geometric (tape-measure) or geopotential height"),
         Quantity("datum_altitude", "m", default="0 m",
                  doc="height of the launch datum (z = 0) above sea level, on the altitude_type scale"),
-        Quantity("wind_speed", "m/s", default="0 m/s", low=0.0,
+        Quantity("wind_speed", "m/s", default="0 m/s", low=0.0, high=200.0,
                  doc="wind speed at wind_reference_height above the datum"),
         Quantity("wind_azimuth", "deg", default="0 deg", low=-360.0, high=360.0,
                  doc="direction the wind blows toward, from +x toward +y (like launch.azimuth)"),
-        Quantity("wind_reference_height", "m", default="10 m", low=0.0, low_open=True,
+        Quantity("wind_reference_height", "m", default="10 m", low=0.01, high=1e5,
                  doc="height above the datum where wind_speed is given (10 m: common anemometer height)"),
         Number("wind_exponent", default=1.0 / 7.0, low=0.0, high=1.0,
                doc="power-law exponent alpha of w(z) = w_ref (z / z_ref)^alpha; 1/7 common practice, 0 constant"),
-        Quantity("wind_ceiling", "m", default="100 km", low=0.0, low_open=True,
+        Quantity("wind_ceiling", "m", default="100 km", low=0.01, high=1e6,
                  doc="height above the datum above which the wind speed stays constant"),
     )
 

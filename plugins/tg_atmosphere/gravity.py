@@ -50,11 +50,11 @@ class InverseSquareGravity(EnvironmentKind):
     summary = "g0 (r0 / (r0 + h))^2 with h the height above sea level; r0 the 1976 standard's earth radius"
     parameters = (
         # Standard acceleration of gravity, exact by definition (3rd CGPM, 1901).
-        Quantity("g0", "m/s^2", default="9.80665 m/s^2", low=0.0, doc="gravity at sea level (the reference sphere)"),
+        Quantity("g0", "m/s^2", default="9.80665 m/s^2", low=0.0, high=1000.0, doc="gravity at sea level (the reference sphere)"),
         # Effective earth radius of the US Standard Atmosphere 1976 (S: crnslab.org; references.md section 5).
-        Quantity("radius", "m", default="6356766 m", low=0.0, low_open=True,
+        Quantity("radius", "m", default="6356766 m", low=1.0, high=1e10,
                  doc="radius of the reference sphere (6356766 m: the 1976 standard's effective earth radius)"),
-        Quantity("datum_altitude", "m", default="0 m",
+        Quantity("datum_altitude", "m", default="0 m", low=-1e5, high=1e10,
                  doc="geometric height of the launch datum (z = 0) above the reference sphere"),
     )
 

@@ -97,8 +97,8 @@ class _TableAirframe(ComponentKind):
 
 #: The parameters every table airframe has.
 _STRUCTURE = (
-    Quantity("dry_mass", "kg", low=0.0, low_open=True, doc="mass of the empty vehicle"),
-    Quantity("reference_diameter", "m", low=0.0, low_open=True, doc="diameter of the frontal reference area"),
+    Quantity("dry_mass", "kg", low=1e-6, high=1e6, doc="mass of the empty vehicle"),
+    Quantity("reference_diameter", "m", low=0.0, low_open=True, high=100.0, doc="diameter of the frontal reference area"),
 )
 
 
@@ -108,11 +108,11 @@ class MachTableAirframe(_TableAirframe):
     kind = "mach-table-airframe"
     summary = "dry structure: mass, reference diameter and a drag coefficient table against Mach number"
     parameters = _STRUCTURE + (
-        Table("drag_table", columns=(("mach", ""), ("drag_coefficient", "")),
+        Table("drag_table", columns=(("mach", ""), ("drag_coefficient", "")), bounds=((None, 50.0), (None, None)),
               doc="drag coefficient against Mach number (write units = [\"\", \"\"])"),
         Number("gas_gamma", default=1.4, low=1.0, low_open=True, high=1.7,
                doc="ratio of specific heats of the medium gas, for the speed of sound"),
-        Quantity("gas_constant", "J/(kg*K)", default=f"{_R_1976!r} J/(kg*K)", low=0.0, low_open=True,
+        Quantity("gas_constant", "J/(kg*K)", default=f"{_R_1976!r} J/(kg*K)", low=10.0, high=10_000.0,
                  doc="specific gas constant of the medium gas (287.053 J/(kg K): the 1976 standard's air)"),
     )
 
@@ -147,7 +147,7 @@ class SpeedTableAirframe(_TableAirframe):
     kind = "speed-table-airframe"
     summary = "dry structure: mass, reference diameter and a drag coefficient table against speed"
     parameters = _STRUCTURE + (
-        Table("drag_table", columns=(("speed", "m/s"), ("drag_coefficient", "")),
+        Table("drag_table", columns=(("speed", "m/s"), ("drag_coefficient", "")), bounds=((None, 20_000.0), (None, None)),
               doc="drag coefficient against speed through the medium (write units = [\"m/s\", \"\"])"),
     )
 

@@ -55,9 +55,9 @@ class Buoyancy(ComponentKind):
     role = "body"
     summary = "upward force rho g V of a fully immersed constant volume (no mass of its own)"
     parameters = (
-        Quantity("displaced_volume", "m^3", low=0.0, low_open=True, doc="volume of medium the vehicle displaces"),
+        Quantity("displaced_volume", "m^3", low=1e-9, high=1e6, doc="volume of medium the vehicle displaces"),
         # Standard acceleration of gravity, exact by definition (3rd CGPM, 1901).
-        Quantity("g", "m/s^2", default="9.80665 m/s^2", low=0.0,
+        Quantity("g", "m/s^2", default="9.80665 m/s^2", low=0.0, high=1000.0,
                  doc="gravity for the buoyancy (set it equal to the model's gravity field)"),
     )
 

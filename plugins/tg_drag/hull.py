@@ -68,8 +68,8 @@ class BoatHull(ComponentKind):
     role = "body"
     summary = "boat hull: dry mass and a resistance table (force against speed through the water)"
     parameters = (
-        Quantity("dry_mass", "kg", low=0.0, low_open=True, doc="mass of the empty boat"),
-        Table("resistance_table", columns=(("speed", "m/s"), ("resistance", "N")),
+        Quantity("dry_mass", "kg", low=1e-6, high=1e7, doc="mass of the empty boat"),
+        Table("resistance_table", columns=(("speed", "m/s"), ("resistance", "N")), bounds=((None, 1000.0), (-1e9, 1e9)),
               doc="total resistance against speed through the water (write units = [\"m/s\", \"N\"])"),
         Choice("acts", options=("horizontal", "along-motion"), default="horizontal",
                doc="horizontal: resistance from the horizontal speed only (a surface hull); along-motion: 3-D"),

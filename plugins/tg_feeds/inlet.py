@@ -57,7 +57,7 @@ class Inlet(ComponentKind):
         Number("gas_gamma", default=1.4, low=1.0, low_open=True, high=1.7,
                doc="ratio of specific heats of the captured gas"),
         # Dry air: R = 8314.32 / 28.9644 J/(kg K) (US Standard Atmosphere 1976).
-        Quantity("gas_constant", "J/kg/K", default="287.05 J/kg/K", low=0.0, low_open=True,
+        Quantity("gas_constant", "J/kg/K", default="287.05 J/kg/K", low=10.0, high=10_000.0,
                  doc="specific gas constant of the captured gas"),
     )
 

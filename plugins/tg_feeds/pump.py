@@ -71,15 +71,15 @@ class Pump(ComponentKind):
     parameters = (
         Choice("programme", options=("power", "head-curve"), default="power",
                doc="power: shaft power and efficiency; head-curve: a measured head against flow"),
-        Quantity("shaft_power", "W", default="0 W", low=0.0, doc="shaft power (programme = power)"),
+        Quantity("shaft_power", "W", default="0 W", low=0.0, high=1e9, doc="shaft power (programme = power)"),
         # Small centrifugal and axial pumps run at 0.5-0.8 (common practice, no source).
         Number("efficiency", default=0.7, low=0.0, low_open=True, high=1.0,
                doc="hydraulic power over shaft power (programme = power)"),
-        Quantity("shutoff_pressure", "bar", default="0 bar", low=0.0,
+        Quantity("shutoff_pressure", "bar", default="0 bar", low=0.0, high=10_000.0,
                  doc="pressure rise at zero flow, the cap of eta P / Q (programme = power)"),
-        Table("head_curve", columns=(("volume_flow", "L/s"), ("head", "m")), default="absent",
+        Table("head_curve", columns=(("volume_flow", "L/s"), ("head", "m")), default="absent", bounds=((0.0, 1e6), (-1e5, 1e5)),
               doc="head against volume flow (programme = head-curve)"),
-        Quantity("run_time", "s", default="0 s", low=0.0, doc="stop the pump after this time; 0 s: never"),
+        Quantity("run_time", "s", default="0 s", low=0.0, high=1e6, doc="stop the pump after this time; 0 s: never"),
     )
     modes = (Mode("running", "pump thrust"), Mode("stopped", "pump stopped", propulsive=False))
 
@@ -116,16 +116,18 @@ class Pump(ComponentKind):
             def lift(q):
                 return dp0 if q <= qk else wh / q
         else:
-            qs = [float(x) for x in p.head_curve[:, 0]]
-            hs = [float(x) for x in p.head_curve[:, 1]]
-            s0 = (hs[1] - hs[0]) / (qs[1] - qs[0])
-            s1 = (hs[-1] - hs[-2]) / (qs[-1] - qs[-2])
+            # arrays, converted once: np.interp would convert a list on every call (slow for long curves)
+            qs = np.ascontiguousarray(p.head_curve[:, 0], dtype=float)
+            hs = np.ascontiguousarray(p.head_curve[:, 1], dtype=float)
+            q0, q1, h0, h1 = float(qs[0]), float(qs[-1]), float(hs[0]), float(hs[-1])
+            s0 = (float(hs[1]) - h0) / (float(qs[1]) - q0)
+            s1 = (h1 - float(hs[-2])) / (q1 - float(qs[-2]))
 
             def head(q):
-                if q <= qs[0]:
-                    return hs[0] + s0 * (q - qs[0])
-                if q >= qs[-1]:
-                    return hs[-1] + s1 * (q - qs[-1])
+                if q <= q0:
+                    return h0 + s0 * (q - q0)
+                if q >= q1:
+                    return h1 + s1 * (q - q1)
                 return float(np.interp(q, qs, hs))
 
             def lift(q):

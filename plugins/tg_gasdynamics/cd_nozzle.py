@@ -97,8 +97,8 @@ class ConvergingDivergingNozzle(ComponentKind):
     role = "flow"
     summary = "converging-diverging nozzle: choked/unchoked, shock inside, pressure thrust, conical loss"
     parameters = (
-        Quantity("throat_diameter", "mm", low=0.0, low_open=True, doc="diameter of the throat"),
-        Number("area_ratio", low=0.0, low_open=True, doc="exit area over throat area, A_e/A_t (1 or more)"),
+        Quantity("throat_diameter", "mm", low=1e-3, high=10_000.0, doc="diameter of the throat"),
+        Number("area_ratio", low=0.0, low_open=True, high=10_000.0, doc="exit area over throat area, A_e/A_t (1 or more)"),
         Quantity("half_angle", "deg", default="15 deg", low=0.0, high=45.0, high_open=True,
                  doc="half angle of the conical divergent section (0 for an ideal contoured nozzle)"),
         # A well-made nozzle passes 0.97-0.99 of the ideal flow (common practice, no source).

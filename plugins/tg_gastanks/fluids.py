@@ -28,7 +28,7 @@ import difflib
 from dataclasses import dataclass, field
 from typing import Any
 
-from thrustgraph.errors import ModelError
+from thrustgraph.errors import ModelError, shorten
 from thrustgraph.parameters import Spec
 
 from .gases import IDEAL_GASES, lookup_gas
@@ -44,7 +44,7 @@ class FluidName(Spec):
 
     def parse(self, value: Any, *, where: str) -> str:
         if not isinstance(value, str) or not value.strip():
-            raise ModelError(where, f"expected the name of a fluid in quotes, got {value!r}",
+            raise ModelError(where, f"expected the name of a fluid in quotes, got {shorten(value)}",
                              f"write e.g. {self.name} = \"nitrogen\"")
         return value.strip()
 
@@ -129,9 +129,9 @@ def wall_heat_specs(what: str, note: str = "") -> tuple:
     from thrustgraph.parameters import Quantity
 
     return (
-        Quantity("wall_heat_transfer_coefficient", "W/m^2/K", default="0 W/m^2/K", low=0.0,
+        Quantity("wall_heat_transfer_coefficient", "W/m^2/K", default="0 W/m^2/K", low=0.0, high=1e6,
                  doc=f"film coefficient between {what} and the wall{note}"),
-        Quantity("wall_area", "m^2", default="0 m^2", low=0.0, doc="inner wall area for the heat transfer"),
-        Quantity("wall_temperature", "K", default="0 K", low=0.0,
+        Quantity("wall_area", "m^2", default="0 m^2", low=0.0, high=10_000.0, doc="inner wall area for the heat transfer"),
+        Quantity("wall_temperature", "K", default="0 K", low=0.0, high=5000.0,
                  doc=f"wall temperature; 0 K means the temperature of {what} at launch"),
     )

@@ -111,13 +111,13 @@ class GasTank(ComponentKind):
     stores_pressure = True
     summary = "rigid tank of compressed gas: ideal-gas table or CoolProp, with optional wall heat transfer"
     parameters = (
-        Quantity("volume", "L", low=0.0, low_open=True, doc="internal volume of the tank"),
+        Quantity("volume", "L", low=0.0, low_open=True, high=1e6, doc="internal volume of the tank"),
         FluidName("gas", default="nitrogen",
                   doc=f"the gas: one of {', '.join(IDEAL_GASES)}, or (with CoolProp) any fluid it knows"),
         Choice("equation_of_state", options=("ideal", "coolprop"), default="ideal",
                doc="ideal: perfect gas from the built-in table; coolprop: the fluid's reference equation of state"),
-        Quantity("gauge_pressure", "bar", low=0.0, doc="charge pressure above ambient at launch"),
-        Quantity("temperature", "K", default="293.15 K", low=0.0, low_open=True,
+        Quantity("gauge_pressure", "bar", low=0.0, high=10_000.0, doc="charge pressure above ambient at launch"),
+        Quantity("temperature", "K", default="293.15 K", low=1.0, high=5000.0,
                  doc="gas temperature at launch"),
         Choice("process", options=("adiabatic", "isothermal", "polytropic"), default="adiabatic",
                doc="how the gas left in the tank changes state as it blows down"),

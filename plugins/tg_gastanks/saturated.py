@@ -97,10 +97,10 @@ class SelfPressurisingTank(ComponentKind):
     stores_pressure = True
     summary = "liquefied gas over its own vapour (e.g. a CO2 cartridge): liquid then vapour outflow, boil-off cooling"
     parameters = (
-        Quantity("volume", "L", low=0.0, low_open=True, doc="internal volume of the tank or cartridge"),
+        Quantity("volume", "L", low=0.0, low_open=True, high=1e6, doc="internal volume of the tank or cartridge"),
         FluidName("fluid", default="CarbonDioxide", doc="the liquefied gas (a fluid CoolProp knows)"),
-        Quantity("propellant_mass", "g", low=0.0, low_open=True, doc="mass of fluid in the tank at launch"),
-        Quantity("temperature", "K", default="293.15 K", low=0.0, low_open=True,
+        Quantity("propellant_mass", "g", low=1e-3, high=1e9, doc="mass of fluid in the tank at launch"),
+        Quantity("temperature", "K", default="293.15 K", low=1.0, high=5000.0,
                  doc="temperature of the contents at launch"),
         Choice("outlet", options=("liquid-first", "vapour"), default="liquid-first",
                doc="liquid-first: the outlet is under the liquid; vapour: it is above the liquid"),

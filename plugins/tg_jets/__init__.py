@@ -47,11 +47,11 @@ class PrescribedJet(ComponentKind):
     parameters = (
         Choice("programme", options=("constant-flow", "thrust-table"), default="constant-flow",
                doc="how the jet is prescribed"),
-        Quantity("propellant_mass", "kg", default="0 kg", low=0.0,
+        Quantity("propellant_mass", "kg", default="0 kg", low=0.0, high=1e6,
                  doc="propellant carried (constant-flow); ignored for a thrust table"),
-        Quantity("mass_flow", "kg/s", default="0 kg/s", low=0.0, doc="mass flow (constant-flow)"),
-        Quantity("exhaust_velocity", "m/s", low=0.0, low_open=True, doc="exhaust velocity relative to the vehicle"),
-        Table("thrust_curve", columns=(("time", "s"), ("thrust", "N")), default="absent",
+        Quantity("mass_flow", "kg/s", default="0 kg/s", low=0.0, high=1e6, doc="mass flow (constant-flow)"),
+        Quantity("exhaust_velocity", "m/s", low=0.0, low_open=True, high=1e8, doc="exhaust velocity relative to the vehicle"),
+        Table("thrust_curve", columns=(("time", "s"), ("thrust", "N")), default="absent", bounds=((0.0, 1e5), (0.0, 1e8)),
               doc="thrust against time since ignition (thrust-table)"),
         Vector("direction", default=(-1.0, 0.0, 0.0), doc="body-frame direction the jet leaves in"),
         Choice("ignition", options=("at-launch", "on-trigger"), default="at-launch",
@@ -121,9 +121,10 @@ class PrescribedJet(ComponentKind):
                 return (mdot0 + 0.0 * s[i], ve + 0.0 * s[i])
             burnout = EventSpec("burnout", lambda t, s, drive: s[i], -1.0, ("burning",), "spent", needs_drive=False)
         else:
-            tt = [float(x) for x in p.thrust_curve[:, 0]]
-            ff = [float(x) for x in p.thrust_curve[:, 1]]
-            t_last = tt[-1]
+            # arrays, converted once: np.interp would convert a list on every call (slow for long curves)
+            tt = np.ascontiguousarray(p.thrust_curve[:, 0], dtype=float)
+            ff = np.ascontiguousarray(p.thrust_curve[:, 1], dtype=float)
+            t_last = float(tt[-1])
 
             def burning(t, s, pa):
                 return (ops.interp(s[i + 1], tt, ff) / ve, ve + 0.0 * s[i])

@@ -33,11 +33,11 @@ class StillAir(EnvironmentKind):
     vectorised = True
     parameters = (
         # 1976 US Standard Atmosphere sea-level values (NOAA/NASA/USAF, 1976, Table I).
-        Quantity("density", "kg/m^3", default="1.225 kg/m^3", low=0.0, doc="air density"),
-        Quantity("pressure", "Pa", default="101325 Pa", low=0.0, doc="air pressure"),
-        Quantity("temperature", "K", default="288.15 K", low=0.0, low_open=True, doc="air temperature"),
-        Quantity("wind_x", "m/s", default="0 m/s", doc="wind velocity along +x (downrange)"),
-        Quantity("wind_y", "m/s", default="0 m/s", doc="wind velocity along +y"),
+        Quantity("density", "kg/m^3", default="1.225 kg/m^3", low=0.0, high=2000.0, doc="air density"),
+        Quantity("pressure", "Pa", default="101325 Pa", low=0.0, high=1e8, doc="air pressure"),
+        Quantity("temperature", "K", default="288.15 K", low=1.0, high=5000.0, doc="air temperature"),
+        Quantity("wind_x", "m/s", default="0 m/s", low=-200.0, high=200.0, doc="wind velocity along +x (downrange)"),
+        Quantity("wind_y", "m/s", default="0 m/s", low=-200.0, high=200.0, doc="wind velocity along +y"),
     )
 
     @classmethod
@@ -74,7 +74,7 @@ class UniformGravity(EnvironmentKind):
     vectorised = True
     parameters = (
         # Standard acceleration of gravity, exact by definition (3rd CGPM, 1901).
-        Quantity("g", "m/s^2", default="9.80665 m/s^2", low=0.0, doc="acceleration of gravity"),
+        Quantity("g", "m/s^2", default="9.80665 m/s^2", low=0.0, high=1000.0, doc="acceleration of gravity"),
     )
 
     @classmethod

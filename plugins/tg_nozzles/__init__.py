@@ -71,7 +71,7 @@ class ConvergentNozzle(ComponentKind):
     role = "flow"
     summary = "convergent nozzle or orifice: Bernoulli for liquid, isentropic (choked or not) for gas"
     parameters = (
-        Quantity("diameter", "mm", low=0.0, low_open=True, doc="exit (throat) diameter"),
+        Quantity("diameter", "mm", low=1e-3, high=10_000.0, doc="exit (throat) diameter"),
         # A well-rounded nozzle is near 0.97-0.99, a sharp-edged orifice near 0.61 (common practice, no source).
         Number("discharge_coefficient", default=0.98, low=0.0, low_open=True, high=1.0,
                doc="ratio of actual to ideal flow area"),

@@ -55,7 +55,7 @@ from tg_nozzles import ConvergentNozzle
 __all__ = ["Vent", "ReliefValve"]
 
 _COMMON = (
-    Quantity("flow_area", "mm^2", low=0.0, low_open=True, doc="geometric flow area of the opening (all ports)"),
+    Quantity("flow_area", "mm^2", low=1e-6, high=1e7, doc="geometric flow area of the opening (all ports)"),
     # A sharp-edged hole passes about 0.61-0.62 of its area (common practice, no source).
     Number("discharge_coefficient", default=0.62, low=0.0, low_open=True, high=1.0,
            doc="ratio of effective to geometric flow area"),
@@ -105,8 +105,8 @@ class ReliefValve(ComponentKind):
     role = "flow"
     summary = "relief valve: opens at the cracking pressure, reseats at the reseat pressure (gauge)"
     parameters = (
-        Quantity("cracking_pressure", "bar", low=0.0, low_open=True, doc="inlet pressure above ambient at which it opens"),
-        Quantity("reseat_pressure", "bar", low=0.0, doc="inlet pressure above ambient at which it closes again"),
+        Quantity("cracking_pressure", "bar", low=1e-6, high=10_000.0, doc="inlet pressure above ambient at which it opens"),
+        Quantity("reseat_pressure", "bar", low=0.0, high=10_000.0, doc="inlet pressure above ambient at which it closes again"),
     ) + _COMMON
     modes = (Mode("closed", "relief closed", propulsive=False, outflow=False), Mode("open", "relief venting"))
 

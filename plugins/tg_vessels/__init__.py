@@ -74,23 +74,23 @@ class LiquidTank(ComponentKind):
     stores_pressure = True
     summary = "liquid pushed out by a polytropic gas ullage, then gas blowdown (water-rocket bottle)"
     parameters = (
-        Quantity("volume", "L", low=0.0, low_open=True, doc="internal volume of the vessel"),
+        Quantity("volume", "L", low=0.0, low_open=True, high=1e6, doc="internal volume of the vessel"),
         Number("fill", default=0.33, low=0.0, high=1.0, high_open=True,
                doc="fraction of the volume filled with liquid at launch"),
-        Quantity("gauge_pressure", "bar", low=0.0, doc="charge pressure above ambient at launch"),
+        Quantity("gauge_pressure", "bar", low=0.0, high=10_000.0, doc="charge pressure above ambient at launch"),
         # Water at 20 degC and 1 atm: IAPWS-95 via CoolProp gives 998.207 kg/m^3.
-        Quantity("liquid_density", "kg/m^3", default="998.2 kg/m^3", low=0.0, low_open=True,
+        Quantity("liquid_density", "kg/m^3", default="998.2 kg/m^3", low=10.0, high=25_000.0,
                  doc="density of the liquid"),
-        Quantity("bore", "mm", default="100 mm", low=0.0, low_open=True,
+        Quantity("bore", "mm", default="100 mm", low=0.1, high=10_000.0,
                  doc="inner diameter of the liquid column above the outlet"),
         Number("expansion_exponent", default=1.4, low=0.0, high=2.0,
                doc="polytropic exponent n of the ullage gas (1.4 adiabatic air, 1 isothermal, 0 vented)"),
         Number("gas_gamma", default=1.4, low=1.0, low_open=True, high=1.7,
                doc="ratio of specific heats of the gas, for the nozzle flow"),
         # Dry air: R = 8314.32 / 28.9644 J/(kg K) (US Standard Atmosphere 1976).
-        Quantity("gas_constant", "J/kg/K", default="287.05 J/kg/K", low=0.0, low_open=True,
+        Quantity("gas_constant", "J/kg/K", default="287.05 J/kg/K", low=10.0, high=10_000.0,
                  doc="specific gas constant of the gas"),
-        Quantity("gas_temperature", "K", default="288.15 K", low=0.0, low_open=True,
+        Quantity("gas_temperature", "K", default="288.15 K", low=1.0, high=5000.0,
                  doc="temperature of the gas at launch"),
         Flag("inertial_head", default=True,
              doc="include the liquid head rho (g + a) h in the accelerating frame"),
