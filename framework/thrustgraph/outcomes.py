@@ -159,14 +159,21 @@ class Flight:
         ``at_steps(phase, sol, balance)`` gives the values at ``sol.t``; ``dense(phase, sol, balance)`` a
         function of time inside that segment.
         """
-        # every segment's largest step is refined: a peak on a segment boundary (an event) may rise just inside
-        # either neighbour, where no step of that segment shows it
-        best, where = -math.inf, []
+        # the largest step is refined; when it ends or starts its segment (an event), the neighbouring segment's
+        # first or last step is refined too: the peak may rise just inside it, where none of its steps shows it
+        best, where, ends = -math.inf, [], []
         for j, (ph, sol, bal) in enumerate(self.phased()):
             v = np.asarray(at_steps(ph, sol, bal), dtype=float)
             k = int(np.argmax(v))
-            best = max(best, float(v[k]))
-            where.append((j, k))
+            ends.append(len(v) - 1)
+            if v[k] > best:
+                best, where = float(v[k]), [(j, k)]
+        if where:
+            j, k = where[0]
+            if k == ends[j] and j + 1 < len(ends):
+                where.append((j + 1, 0))
+            if k == 0 and j > 0:
+                where.append((j - 1, ends[j - 1]))
         if not where:
             return math.nan
         top = best

@@ -1,0 +1,81 @@
+"""Benchmark: the vectorised ensemble against a loop of single flights, for every bundled vehicle it flies.
+
+    python benchmarks/ensemble_vehicles.py [--designs N] [--sample K]
+
+For each bundled model the ensemble can fly, a sweep of N designs over two of its parameters is flown as one
+ensemble on one core (after a 100-design warm-up), and K of the same designs are flown one at a time; the
+script prints the time per flight of each, their ratio (target >= 100x; the goal is 200x) and the largest
+relative difference of the outcomes the ensemble computes on the sampled designs. Both sides use the model's
+own tolerances and run in this process, side by side.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import time
+from pathlib import Path
+
+import numpy as np
+
+import thrustgraph as tg
+from thrustgraph.arraysystem import unsupported
+from thrustgraph.designs import apply, resolve
+from thrustgraph.ensemble import COMPUTED
+from thrustgraph.model import parse_model
+from thrustgraph.studies import evaluate
+from thrustgraph.studyflight import fly_design
+
+#: two varied parameters per vehicle, with ranges inside their declared bounds (SI)
+SWEEPS = {
+    "bottle-rocket": {"components.bottle.fill": (0.15, 0.5), "components.bottle.gauge_pressure": (3e5, 6e5)},
+    "twin-nozzle-bottle-rocket": {"components.bottle.fill": (0.15, 0.5),
+                                  "components.airframe.dry_mass": (0.08, 0.16)},
+    "small-rocket-standard-atmosphere": {"components.airframe.dry_mass": (0.3, 0.9),
+                                         "launch.elevation": (np.radians(70.0), np.radians(89.0))},
+}
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--designs", type=int, default=10000)
+    ap.add_argument("--sample", type=int, default=50)
+    args = ap.parse_args()
+    folder = Path(tg.default_model_path()).parent
+    print(f"{args.designs} designs per vehicle, {args.sample} of them also flown one at a time; "
+          f"load average {os.getloadavg()[0]:.2f}")
+    for name, sweep in SWEEPS.items():
+        model = tg.load_model(folder / f"{name}.toml")
+        parsed = parse_model(model)
+        why = unsupported(parsed)
+        if why:
+            print(f"{name}: the ensemble cannot fly it ({why})")
+            continue
+        params = [resolve(parsed, p) for p in sweep]
+        rng = np.random.default_rng(7)
+        x = np.column_stack([rng.uniform(lo, hi, args.designs) for lo, hi in sweep.values()])
+        outs = [o for o in COMPUTED]
+        evaluate(model, params, x[:100], outs, parsed=parsed, engine="serial", flights="ensemble", quiet=True)
+        t0 = time.perf_counter()
+        table = evaluate(model, params, x, outs, parsed=parsed, engine="serial", flights="ensemble", quiet=True)
+        t_ens = (time.perf_counter() - t0) / len(x)
+        pick = np.linspace(0, len(x) - 1, args.sample).astype(int)
+        t0 = time.perf_counter()
+        singles = [fly_design(apply(parsed, params, x[i]), outs) for i in pick]
+        t_one = (time.perf_counter() - t0) / len(pick)
+        worst, which = 0.0, ""
+        for k, o in enumerate(table.outputs):
+            for i, s in zip(pick, singles):
+                b = s.values.get(o, np.nan) if s.status == "ok" else np.nan
+                a = table.values[i, k]
+                if np.isfinite(a) and np.isfinite(b) and abs(b) > 1e-3 and o != "burn_time":
+                    e = abs(a - b) / abs(b)
+                    if e > worst:
+                        worst, which = e, o
+        print(f"{name:34s} ensemble {t_ens * 1e3:7.3f} ms/flight ({int(table.ok.sum())} flew), single "
+              f"{t_one * 1e3:7.2f} ms/flight: {t_one / t_ens:6.1f}x; largest outcome difference {worst:.1e} "
+              f"({which})")
+
+
+if __name__ == "__main__":
+    main()
