@@ -3,7 +3,6 @@ side against the scalar balance, the family it supports, and a closed form."""
 
 from __future__ import annotations
 
-import math
 
 import numpy as np
 import pytest

@@ -15,7 +15,7 @@ True
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
+from .version import __version__
 
 from .hookspecs import hookimpl, hookspec
 from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError

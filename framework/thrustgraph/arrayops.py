@@ -14,7 +14,6 @@ from __future__ import annotations
 
 from typing import Any
 
-import numpy as np
 
 from .xp import ArrayOps, array_ops
 

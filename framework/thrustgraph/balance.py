@@ -39,7 +39,6 @@ True
 
 from __future__ import annotations
 
-import math
 from typing import Any, NamedTuple, Sequence
 
 from scipy.optimize import brentq

@@ -43,7 +43,6 @@ import datetime as _dt
 import difflib
 import json
 import math
-import sys
 from dataclasses import dataclass, field, replace
 from typing import Any, Callable, Sequence, TextIO
 
@@ -55,6 +54,14 @@ from .model import LAUNCH_SPECS, Model, parse_model
 from .parameters import Quantity
 from .records import ColumnMap, Record
 from .units import Q_, parse_quantity, si_unit, to_si
+from .result import FlightResult
+from .records import shift, trim
+from .compare import compare, match, model_for_records
+from .plugins import get_plugin_manager
+from .assembly import assemble
+from .integrate import integrate
+from .version import __version__
+from .modelfile import atomic_write, dumps_model
 
 __all__ = ["FitParameter", "MeasuredRun", "FittedValue", "Calibration", "ProgressLine", "calibrate",
            "write_calibrated_model", "compare_runs"]
@@ -378,7 +385,6 @@ class Calibration:
 
 
 def _unit_guess(signal: str) -> str:
-    from .result import FlightResult
 
     base = signal.rsplit(".", 1)[0] if signal.endswith((".x", ".y", ".z")) else signal
     return FlightResult.unit_of(base)
@@ -388,7 +394,6 @@ def _unit_guess(signal: str) -> str:
 
 def _room_to_shift(run: MeasuredRun, bound: float) -> Record:
     """The run's record without the samples a start-time shift of up to +-bound could push out of the window."""
-    from .records import trim
 
     rec = run.record
     gap = rec.interval
@@ -408,8 +413,6 @@ class _Problem:
 
     def __init__(self, model: Model, runs: Sequence[MeasuredRun], params: Sequence[_Param],
                  progress: Callable[[int, int, float], None] | None) -> None:
-        from .compare import model_for_records
-        from .plugins import get_plugin_manager
 
         self.params = list(params)
         self.runs = list(runs)
@@ -443,9 +446,6 @@ class _Problem:
 
     def evaluate(self, z: np.ndarray, *, count: bool = True) -> tuple[np.ndarray, list]:
         """Scaled residual vector and the per-signal RMS errors at z."""
-        from .assembly import assemble
-        from .compare import match
-        from .integrate import integrate
 
         key = np.asarray(z, dtype=float).tobytes()
         if self._cache is not None and self._cache[0] == key:
@@ -584,7 +584,6 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
     from scipy.optimize import least_squares
     from scipy.stats import t as student_t
 
-    from . import __version__
 
     if not parameters:
         raise ModelError("calibration", "no parameter to fit", "name one, e.g. "
@@ -659,7 +658,6 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
                                   start_time_of=None if q.shift_of is None else runs[q.shift_of].record.source))
     before = dict(rms0)
     signal_rms = {key: (before[key], after) for key, after in rms1}
-    from .records import shift
 
     fixed = []
     for k, (run, w) in enumerate(zip(prob.runs, prob.windows)):
@@ -681,15 +679,12 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
 
 def write_calibrated_model(calibration: Calibration, path: str) -> None:
     """Write the calibrated model file atomically (all or nothing)."""
-    from .modelfile import atomic_write, dumps_model
 
     atomic_write(path, dumps_model(calibration.calibrated_model()))
 
 
 def compare_runs(model: Model, runs: Sequence[MeasuredRun]) -> list:
     """Fly ``model`` for each run (with its settings) and compare it with the run's record."""
-    from .compare import compare, model_for_records
-    from .integrate import integrate
 
     out = []
     for run in runs:

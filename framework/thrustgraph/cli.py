@@ -19,7 +19,7 @@ import importlib
 import sys
 from typing import Sequence
 
-from . import __version__
+from .version import __version__
 from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError
 
 __all__ = ["main", "COMMANDS", "build_parser"]

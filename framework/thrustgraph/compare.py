@@ -59,6 +59,7 @@ from .model import RUN_SPECS, Model
 from .records import ColumnMap, Record, Trigger, align, crossing_time, lowpass, resample
 from .result import FlightResult
 from .units import Q_, to_si
+from .modelfile import atomic_write
 
 __all__ = ["SignalComparison", "Comparison", "Matched", "compare", "match", "signal_series", "interval_means",
            "align_to_prediction", "prepare_record", "model_for_records", "plot_comparison"]
@@ -505,7 +506,6 @@ def plot_comparison(comparisons: Comparison | Sequence[Comparison], path: str | 
     (matplotlib's Agg canvas, no window, no global backend change) and
     written atomically.
     """
-    from .modelfile import atomic_write
 
     p = Path(path)
     fmt = p.suffix.lower().lstrip(".")

@@ -73,9 +73,8 @@ The implementer's contract
 
 from __future__ import annotations
 
-import math
-from dataclasses import dataclass, field
-from typing import Any, Callable, ClassVar, NamedTuple, Sequence
+from dataclasses import dataclass
+from typing import Any, Callable, ClassVar, NamedTuple
 
 from .outcomespec import OutcomeSpec
 from .parameters import Spec, make_params_class

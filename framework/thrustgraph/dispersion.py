@@ -40,7 +40,7 @@ import numpy as np
 from .errors import ModelError
 from .limits import MAX_DESIGNS, check_count
 from .model import Model
-from .outcomes import OUTCOMES, STATUS_OK
+from .outcomes import OUTCOMES
 from .studies import DEFAULT_OUTPUTS, DesignTable, _fmt, _prepare, evaluate
 from .studyspec import Spread
 

@@ -43,12 +43,17 @@ import multiprocessing
 import os
 import signal
 from dataclasses import dataclass
-from typing import Any, Iterable, Iterator, Sequence
+from typing import Any, Iterable, Iterator
 
 import numpy as np
 
 from .errors import ModelError
 from .model import Model
+from .designs import apply, bounds_text, resolve, within_bounds
+from .model import parse_model
+from .outcomes import STATUS_SCREENED
+from .studyflight import fly_design
+from .ensemble import fly_designs
 
 __all__ = ["FlightTask", "ChunkRows", "chunks", "SerialEngine", "ProcessEngine", "DaskEngine", "make_engine",
            "ENGINES", "FLIGHTS", "default_chunk_size", "STUDY_CLUSTER_CONFIG"]
@@ -110,8 +115,6 @@ class FlightTask:
         """The parsed base model and the resolved parameters (cached per process)."""
         hit = _PARSED.get(self.token)
         if hit is None:
-            from .designs import resolve
-            from .model import parse_model
 
             parsed = parse_model(self.model)
             params = [resolve(parsed, p, unit=u or None) for p, u in zip(self.paths, self.units)]
@@ -125,16 +128,12 @@ class FlightTask:
         so far in this chunk (in-process runs only)."""
         import time
 
-        from .designs import apply, within_bounds
-        from .outcomes import STATUS_SCREENED
-        from .studyflight import fly_design
 
         t0 = time.perf_counter()
         parsed, params = self.prepared()
         x = np.asarray(x, dtype=float).reshape(len(x), len(params))
         n, k = len(x), len(self.outputs)
         if self.flights == "ensemble":
-            from .ensemble import fly_designs
 
             res = fly_designs(parsed, params, x, self.outputs, rtol=self.rtol, atol=self.atol, progress=progress)
             return ChunkRows(start, res.status, res.notes, res.values, "ensemble", time.perf_counter() - t0)
@@ -143,7 +142,6 @@ class FlightTask:
         for r in range(n):
             bad = [p for j, p in enumerate(params) if not within_bounds(p, x[r, j])]
             if bad:
-                from .designs import bounds_text
 
                 status.append(STATUS_SCREENED)
                 notes.append(f"{bad[0].path} = {bad[0].text(x[r, params.index(bad[0])])} is outside its bounds "

@@ -50,10 +50,9 @@ Examples
 
 from __future__ import annotations
 
-import math
 import time
 from dataclasses import dataclass
-from typing import Any, Sequence
+from typing import Sequence
 
 import numpy as np
 
@@ -63,6 +62,7 @@ from .designs import DesignParameter, bounds_text, with_values, within_bounds
 from .errors import ModelError
 from .model import ParsedModel
 from .outcomes import OUTCOMES, STATUS_OK, STATUS_SCREENED, check_outputs
+from .component import ComponentKind
 
 __all__ = ["fly_designs", "EnsembleResult", "unsupported", "COMPUTED", "DOPRI_C", "DOPRI_A", "DOPRI_B", "DOPRI_E",
            "DOPRI_P"]
@@ -223,7 +223,6 @@ def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: n
             status[i] = STATUS_SCREENED
             notes[i] = f"{p.path} = {p.text(x[i, j])} is outside its bounds ({bounds_text(p)})"
         good &= ok
-    from .component import ComponentKind
 
     owners = {p.owner for p in params if p.section == "components"}
     for owner in owners:

@@ -30,7 +30,7 @@ import pluggy
 
 if TYPE_CHECKING:  # pragma: no cover
     from .component import ComponentKind, EnvironmentKind
-    from .model import ParsedModel
+    from .modeldata import ParsedModel
 
 __all__ = ["hookspec", "hookimpl", "PROJECT"]
 

@@ -33,8 +33,12 @@ from .limits import check_output_samples
 from .model import Model, ParsedModel
 from .outcomes import OUTCOMES, kind_outcomes, run_summary
 from .result import Audit, Event, FlightResult, Phase
-from .staging import KINEMATIC_SIGNALS, Trigger, resolve_thresholds, separate
+from .separation import separate
+from .staging import KINEMATIC_SIGNALS, Trigger, resolve_thresholds
 from .stepguard import StepGuard
+from .modelfile import default_model_path, dumps_model, load_model
+from .version import __version__
+from .plugins import plugin_versions
 
 __all__ = ["integrate", "fly", "fly_segments", "provenance", "Segments", "available_signals"]
 
@@ -48,7 +52,6 @@ def fly(model: Model | str | None = None, **overrides: Any) -> FlightResult:
     >>> fly(**{"components.bottle.fill": 0.0}).summary["apogee"] < fly().summary["apogee"]
     True
     """
-    from .modelfile import default_model_path, load_model
 
     if model is None or isinstance(model, str):
         model = load_model(model or default_model_path())
@@ -627,9 +630,6 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
 
 def provenance(parsed: ParsedModel) -> dict[str, Any]:
     """Tool version, plugin versions and the hash of the model text."""
-    from . import __version__
-    from .modelfile import dumps_model
-    from .plugins import plugin_versions
 
     text = dumps_model(parsed.model)
     return {"thrustgraph": __version__, "plugins": plugin_versions(parsed.plugin_manager),

@@ -70,6 +70,8 @@ import tomli_w
 from .errors import ModelError, shorten
 from .model import LAUNCH_SPECS, RUN_SPECS, Model
 from .units import finite_number
+from .model import parse_model, parse_paths
+from .version import __version__
 
 __all__ = ["FORMAT_NAME", "FORMAT_VERSION", "OLDEST_VERSION", "UPGRADES", "TOP_LEVEL_KEYS", "load_model",
            "loads_model", "save_model", "dumps_model", "check_model", "upgrade_data", "default_model_path",
@@ -193,7 +195,6 @@ def check_model(model: Model, *, plugin_manager: Any = None) -> Any:
     ...
     thrustgraph.errors.ModelError: ...bottle-rocket.toml: components.bottle.volum: unknown parameter. Fix: did you mean 'volume'?
     """
-    from .model import parse_model
 
     try:
         return parse_model(model, plugin_manager=plugin_manager)
@@ -232,7 +233,6 @@ def upgrade_data(data: dict[str, Any], *, target: int = FORMAT_VERSION, oldest: 
     >>> upgrade_data({"version": 1, "title": "x"}, target=2, steps={1: rename})
     {'version': 2, 'name': 'x'}
     """
-    from . import __version__
 
     steps = UPGRADES if steps is None else steps
     version = data.get("version")
@@ -361,7 +361,6 @@ def _check_kind_table(table: Any, where: str, header: str) -> None:
 
 
 def _from_data(data: dict[str, Any], source: str) -> Model:
-    from .model import parse_paths
 
     for key in data:
         if key not in TOP_LEVEL_KEYS:

@@ -48,16 +48,28 @@ import difflib
 import math
 from dataclasses import replace
 from functools import cached_property
-from typing import Any, Callable, Iterable, Mapping, Sequence
+from typing import Protocol, Any, Callable, Iterable, Mapping, Sequence
 
 import numpy as np
 from scipy.optimize import minimize_scalar
 
-from .assembly import System
 from .balance import Kinematics
 from .errors import ModelError, PluginError
 from .outcomespec import KEY_PATTERN, OutcomeSpec
 from .units import Q_
+
+
+class System(Protocol):
+    """What outcomes read of an assembled vehicle (:class:`thrustgraph.assembly.System`; outcomes never build
+    one, so this module does not import the assembly layer)."""
+
+    parsed: Any
+    moded: tuple[str, ...]
+    modes: Mapping[str, tuple]
+    launch: Any
+    gravity: Any
+    volumes: tuple
+    jets: tuple
 
 __all__ = ["OutcomeSpec", "OUTCOMES", "G0", "Flight", "summarise", "run_summary", "output_names",
            "default_outputs", "check_outputs", "outcome", "kind_outcomes", "check_kind_outcomes", "markdown_table",

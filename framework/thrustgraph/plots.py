@@ -51,6 +51,7 @@ from matplotlib.figure import Figure
 from matplotlib.patches import FancyBboxPatch, Patch
 
 from .result import FlightResult
+from .modelfile import atomic_write
 
 __all__ = ["PLOT_NAMES", "FORMATS", "figure", "figures", "render", "save_plots", "graph_figure", "summary_title",
            "powered_window"]
@@ -390,7 +391,6 @@ def save_plots(result: FlightResult, directory: str | Path, *, formats: Iterable
     Everything is rendered before the first file is written; each file is
     written atomically.
     """
-    from .modelfile import atomic_write
 
     formats = tuple(formats)
     for f in formats:

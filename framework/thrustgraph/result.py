@@ -26,6 +26,8 @@ from typing import Any
 import numpy as np
 
 from .units import Q_
+from .modelfile import atomic_write
+from .errors import ThrustgraphError
 
 __all__ = ["Phase", "Event", "Audit", "FlightResult", "SIGNAL_UNITS"]
 
@@ -246,13 +248,11 @@ class FlightResult:
 
     def write_csv(self, path: Any) -> None:
         """Write the time series to a CSV file (atomically), with provenance comment lines (``#``) first."""
-        from .modelfile import atomic_write
 
         atomic_write(path, self.to_csv(provenance=True))
 
     def write_json(self, path: Any) -> None:
         """Write summary, phases, events, audits, cautions and provenance to a JSON file (atomically)."""
-        from .modelfile import atomic_write
 
         atomic_write(path, self.to_json())
 
@@ -266,7 +266,6 @@ class FlightResult:
         try:
             import pyarrow as pa
         except ImportError:
-            from .errors import ThrustgraphError
             raise ThrustgraphError("Parquet output needs pyarrow, which is not installed. Fix: pip install "
                                    "'thrustgraph[parquet]' (or pip install pyarrow), or write CSV instead.") from None
         fields, arrays = [], []
@@ -290,7 +289,6 @@ class FlightResult:
 
     def write_parquet(self, path: Any) -> None:
         """Write the time series to a Parquet file (atomically); needs pyarrow."""
-        from .modelfile import atomic_write
 
         atomic_write(path, self.to_parquet())
 

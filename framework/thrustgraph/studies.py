@@ -56,6 +56,9 @@ from .model import Model, ParsedModel, parse_model
 from .outcomes import OUTCOMES, STATUS_NOT_RUN, STATUS_OK, STATUS_SCREENED, check_outputs, default_outputs
 from .studyprogress import StudyProgress
 from .studyspec import Vary
+from .modelfile import atomic_write, default_model_path, load_model
+from .designs import bounds_text
+from .units import Q_
 
 __all__ = ["DesignTable", "evaluate", "sweep", "sensitivities", "Sensitivity", "choose_engine", "run_options",
            "DEFAULT_OUTPUTS", "as_vary"]
@@ -159,7 +162,6 @@ class DesignTable:
 
     def write_csv(self, path: str | os.PathLike[str]) -> None:
         """Write :meth:`to_csv` atomically (a temporary file renamed into place)."""
-        from .modelfile import atomic_write
 
         atomic_write(path, self.to_csv())
 
@@ -243,7 +245,6 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     for j, p in enumerate(params):
         ok = within_bounds(p, x[:, j]) if n else np.ones(0, bool)
         for i in np.flatnonzero(inside & ~ok):
-            from .designs import bounds_text
 
             status[i] = STATUS_SCREENED
             notes[i] = f"{p.path} = {p.text(x[i, j])} is outside its bounds ({bounds_text(p)})"
@@ -311,7 +312,6 @@ def as_vary(item: Vary | str) -> Vary:
 
 
 def _prepare(model: Model | str | None) -> tuple[Model, ParsedModel]:
-    from .modelfile import default_model_path, load_model
 
     if model is None or isinstance(model, (str, os.PathLike)):
         model = load_model(model or default_model_path())
@@ -396,7 +396,6 @@ class Sensitivity:
         return buf.getvalue()
 
     def write_csv(self, path: str | os.PathLike[str]) -> None:
-        from .modelfile import atomic_write
 
         atomic_write(path, self.to_csv())
 
@@ -405,7 +404,6 @@ def _unit_size(p: DesignParameter) -> float:
     """Size of one shown unit of a parameter in SI (without the offset of degC)."""
     if not p.unit or p.unit == p.si:
         return 1.0
-    from .units import Q_
 
     return float(Q_(1.0, p.unit).to(p.si).magnitude - Q_(0.0, p.unit).to(p.si).magnitude)
 

@@ -37,7 +37,7 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from .outcomes import OUTCOMES, STATUS_OK
+from .outcomes import OUTCOMES
 from .plots import render
 
 __all__ = ["sweep_figure", "footprint_figure", "sensitivity_figure", "optimisation_figure",

@@ -18,7 +18,6 @@ False
 
 from __future__ import annotations
 
-import sys
 import time
 from typing import IO
 

@@ -81,7 +81,6 @@ Examples
 
 from __future__ import annotations
 
-import math
 
 from thrustgraph.component import ComponentKind, EventSpec, Mode, StateVar, VolumeFns
 from thrustgraph.errors import ModelError
