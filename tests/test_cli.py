@@ -299,7 +299,7 @@ def test_an_unwritable_output_is_one_message_and_writes_nothing(tmp_path, capsys
     (tmp_path / "busy").write_text("a file, not a directory")
     rc, _, err = tg_here(capsys, "run", "--csv", "ok.csv", "--plots", "busy", cwd=tmp_path)
     assert rc == 2
-    assert "busy is a file, not a directory" in err
+    assert "cannot write busy: it is a file, not a folder" in err
     assert files_in(tmp_path) == ["busy"]
 
 

@@ -52,6 +52,7 @@ import numpy as np
 from .progress import Progress
 from .errors import IntegrationError, ModelError
 from .model import LAUNCH_SPECS, Model, parse_model
+from .outputfiles import atomic_write
 from .parameters import Quantity
 from .records import ColumnMap, Record
 from .units import Q_, si_unit, to_si
@@ -681,7 +682,7 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
 
 def write_calibrated_model(calibration: Calibration, path: str) -> None:
     """Write the calibrated model file atomically (all or nothing)."""
-    from .modelfile import atomic_write, dumps_model
+    from .modelfile import dumps_model
 
     atomic_write(path, dumps_model(calibration.calibrated_model()))
 

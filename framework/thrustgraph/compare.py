@@ -45,7 +45,6 @@ Examples
 from __future__ import annotations
 
 import difflib
-import io
 import json
 import math
 from dataclasses import dataclass, field
@@ -53,15 +52,18 @@ from pathlib import Path
 from typing import Any, Sequence
 
 import numpy as np
+from scipy.integrate import trapezoid
 
 from .errors import ModelError, ThrustgraphError
 from .model import RUN_SPECS, Model
+from .outputfiles import atomic_write
 from .records import ColumnMap, Record, Trigger, align, crossing_time, lowpass, resample
 from .result import FlightResult
 from .units import Q_, to_si
 
 __all__ = ["SignalComparison", "Comparison", "Matched", "compare", "match", "signal_series", "interval_means",
-           "align_to_prediction", "prepare_record", "model_for_records", "plot_comparison"]
+           "align_to_prediction", "prepare_record", "model_for_records", "plot_comparison", "render_comparison",
+           "plot_format"]
 
 
 # -- signals of a result --------------------------------------------------------
@@ -386,7 +388,7 @@ def _metrics(mt: Matched) -> SignalComparison:
     imp_m = imp_p = imp_e = None
     if dim == Q_(1.0, "N").dimensionality:
         a, b = float(mt.t[0]), float(mt.t[-1])
-        imp_m = float(np.trapezoid(mt.measured, mt.t))
+        imp_m = float(trapezoid(mt.measured, mt.t))
         imp_p = float(interval_means(mt.t_model, mt.y_model, np.array([a, b]))[0] * (b - a))
         imp_e = imp_p - imp_m
     ap_m = ap_p = ap_e = None
@@ -497,30 +499,27 @@ def compare(result: FlightResult, record: Record, mapping: Sequence[ColumnMap], 
 
 # -- plots -----------------------------------------------------------------------
 
-def plot_comparison(comparisons: Comparison | Sequence[Comparison], path: str | Path, *,
-                    title: str | None = None) -> None:
-    """Overlay (measured and predicted) and residual plots, one pair per signal, to PNG or SVG.
+def render_comparison(comparisons: Comparison | Sequence[Comparison], fmt: str = "png", *,
+                      title: str | None = None) -> bytes:
+    """Overlay (measured and predicted) and residual plots, one pair per signal, as PNG or SVG bytes.
 
-    The format follows the file's suffix. The figure is drawn off-screen
-    (matplotlib's Agg canvas, no window, no global backend change) and
-    written atomically.
+    The figure is drawn off-screen (matplotlib's Agg canvas, no window, no
+    global backend change). Names from the record (columns, the file) are
+    shown as written, never read as math notation.
     """
-    from .modelfile import atomic_write
-
-    p = Path(path)
-    fmt = p.suffix.lower().lstrip(".")
     if fmt not in ("png", "svg"):
-        raise ModelError(str(p), f"cannot write a plot as {p.suffix or 'a file without a suffix'}",
-                         "name the plot file .png or .svg")
+        raise ModelError(f"plot format {fmt!r}", "cannot write a plot in this format", "name the plot file .png or .svg")
     try:
         from matplotlib.backends.backend_agg import FigureCanvasAgg
         from matplotlib.figure import Figure
+
+        from .plots import plain, render   # matplotlib is optional: imported only when a plot is drawn
     except ImportError:  # pragma: no cover - matplotlib is in the test extra
         raise ThrustgraphError("plots need matplotlib: pip install 'thrustgraph[plots]'") from None
     comps = [comparisons] if isinstance(comparisons, Comparison) else list(comparisons)
     pairs = [(c, s) for c in comps for s in c.signals]
     if not pairs:
-        raise ModelError(str(p), "nothing to plot", "compare at least one signal")
+        raise ModelError("plot", "nothing to plot", "compare at least one signal")
     fig = Figure(figsize=(8.0, 3.6 * len(pairs)), layout="constrained")
     FigureCanvasAgg(fig)
     grid = fig.add_gridspec(2 * len(pairs), 1, height_ratios=[3, 1] * len(pairs))
@@ -528,20 +527,35 @@ def plot_comparison(comparisons: Comparison | Sequence[Comparison], path: str | 
         name, scale = _DISPLAY.get(s.unit, (s.unit, 1.0))
         top = fig.add_subplot(grid[2 * k])
         bottom = fig.add_subplot(grid[2 * k + 1], sharex=top)
-        top.plot(s.t, s.measured * scale, ".", ms=2.5, color="0.35", label=f"measured ({Path(c.source).name})")
+        top.plot(s.t, s.measured * scale, ".", ms=2.5, color="0.35", label=plain(f"measured ({Path(c.source).name})"))
         top.plot(s.t_model, s.y_model * scale, "-", lw=1.4, color="C0", label="predicted")
         ref = f", {s.pressure} column" if s.pressure else ""
-        top.set_ylabel(f"{s.signal} [{name or '1'}]")
-        top.set_title(f"{s.signal}  <-  {s.column}{ref}: RMS error {_show(s.rms_error, s.unit)}", fontsize=9)
+        top.set_ylabel(plain(f"{s.signal} [{name or '1'}]"))
+        top.set_title(plain(f"{s.signal}  <-  {s.column}{ref}: RMS error {_show(s.rms_error, s.unit)}"), fontsize=9)
         top.legend(fontsize=8, loc="best")
         top.grid(True, lw=0.3)
         bottom.plot(s.t, s.residual * scale, ".", ms=2.0, color="C3")
         bottom.axhline(0.0, color="0.2", lw=0.6)
-        bottom.set_ylabel(f"residual [{name or '1'}]", fontsize=8)
+        bottom.set_ylabel(plain(f"residual [{name or '1'}]"), fontsize=8)
         bottom.set_xlabel("model time [s]")
         bottom.grid(True, lw=0.3)
     if title:
-        fig.suptitle(title, fontsize=10)
-    buf = io.BytesIO()
-    fig.savefig(buf, format=fmt, dpi=110)
-    atomic_write(p, buf.getvalue())
+        fig.suptitle(plain(title), fontsize=10)
+    return render(fig, fmt)
+
+
+def plot_format(path: str | Path) -> str:
+    """``png`` or ``svg`` from a plot file's suffix; anything else is refused."""
+    p = Path(path)
+    fmt = p.suffix.lower().lstrip(".")
+    if fmt not in ("png", "svg"):
+        raise ModelError(str(p), f"cannot write a plot as {p.suffix or 'a file without a suffix'}",
+                         "name the plot file .png or .svg")
+    return fmt
+
+
+def plot_comparison(comparisons: Comparison | Sequence[Comparison], path: str | Path, *,
+                    title: str | None = None) -> None:
+    """Write :func:`render_comparison` to a PNG or SVG file (the format follows the suffix), atomically."""
+    fmt = plot_format(path)
+    atomic_write(path, render_comparison(comparisons, fmt, title=title))

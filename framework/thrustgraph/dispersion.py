@@ -40,6 +40,7 @@ import numpy as np
 from .errors import ModelError
 from .model import Model
 from .outcomes import OUTPUTS, STATUS_OK
+from .outputfiles import atomic_write
 from .studies import DEFAULT_OUTPUTS, DesignTable, _fmt, _prepare, evaluate
 from .studyspec import Spread
 
@@ -170,7 +171,6 @@ class Dispersion:
         return buf.getvalue()
 
     def write_stats_csv(self, path: str | os.PathLike[str]) -> None:
-        from .modelfile import atomic_write
 
         atomic_write(path, self.stats_csv())
 

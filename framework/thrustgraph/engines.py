@@ -13,7 +13,9 @@ Engines
 ``processes``
     A :mod:`multiprocessing` pool over the local cores (the default for
     mid-size studies). Workers start from a fork server (numpy, scipy and
-    thrustgraph imported once) and ignore Ctrl-C: the parent stops the pool.
+    thrustgraph imported once) and never see Ctrl-C, not even while they
+    start (SIGINT is held back while the pool starts, so they inherit it
+    blocked): the parent stops the pool, and no worker prints a traceback.
 ``dask``
     A Dask distributed cluster, given a scheduler address (``tcp://host:8786``)
     or a :class:`distributed.Client`. An address that cannot be reached within
@@ -48,6 +50,7 @@ from typing import Any, Iterable, Iterator, Sequence
 import numpy as np
 
 from .errors import ModelError
+from .interrupts import sigint_held
 from .model import Model
 
 __all__ = ["FlightTask", "ChunkRows", "chunks", "SerialEngine", "ProcessEngine", "DaskEngine", "make_engine",
@@ -244,14 +247,17 @@ class ProcessEngine:
             ctx = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
             if "forkserver" in methods:
                 ctx.set_forkserver_preload(["thrustgraph.engines", "thrustgraph.outcomes", "scipy.integrate"])
-            self._pool = ctx.Pool(self.workers, initializer=_init_worker, initargs=(task,))
-            self._token = task.token
+            # A Ctrl-C while the fork server and the workers start waits until they are up (they inherit SIGINT
+            # blocked and never see it), then stops this process, which stops the pool.
+            with sigint_held():
+                self._pool = ctx.Pool(self.workers, initializer=_init_worker, initargs=(task,))
+                self._token = task.token
         return self._pool
 
     def run(self, task: FlightTask, parts: Iterable[tuple[int, np.ndarray]]) -> Iterator[ChunkRows]:
-        pool = self._pool_for(task)
         done = False
         try:
+            pool = self._pool_for(task)
             yield from pool.imap_unordered(_run_chunk, parts, chunksize=1)
             done = True
         finally:

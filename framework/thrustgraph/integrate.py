@@ -24,7 +24,7 @@ from dataclasses import dataclass, field
 from typing import Any, Callable
 
 import numpy as np
-from scipy.integrate import solve_ivp
+from scipy.integrate import solve_ivp, trapezoid
 
 from .assembly import ACCUMULATORS, System, assemble
 from .balance import Balance, Kinematics
@@ -626,7 +626,7 @@ def _summary(r: FlightResult, system: System, dropped_mass: float = 0.0) -> dict
         "max_speed": float(np.max(s["speed"])),
         "apogee": float(np.max(s["altitude"]) + 0.0),
         "range": float(s["range"][-1]),
-        "total_impulse": float(np.trapezoid(np.linalg.norm(s["thrust_vector"], axis=1), t)),
+        "total_impulse": float(trapezoid(np.linalg.norm(s["thrust_vector"], axis=1), t)),
         "burn_time": float(sum(p.duration for p in r.phases if p.name not in _NOT_PROPULSIVE)),
     }
     # downrange along the launch azimuth and drift across it (e.g. under wind)

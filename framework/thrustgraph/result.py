@@ -25,6 +25,7 @@ from typing import Any
 
 import numpy as np
 
+from .outputfiles import atomic_write
 from .units import Q_
 
 __all__ = ["Phase", "Event", "Audit", "FlightResult", "SIGNAL_UNITS"]
@@ -233,13 +234,11 @@ class FlightResult:
 
     def write_csv(self, path: Any) -> None:
         """Write the time series to a CSV file (atomically), with provenance comment lines (``#``) first."""
-        from .modelfile import atomic_write
 
         atomic_write(path, self.to_csv(provenance=True))
 
     def write_json(self, path: Any) -> None:
         """Write summary, phases, events, audits, cautions and provenance to a JSON file (atomically)."""
-        from .modelfile import atomic_write
 
         atomic_write(path, self.to_json())
 
@@ -277,7 +276,6 @@ class FlightResult:
 
     def write_parquet(self, path: Any) -> None:
         """Write the time series to a Parquet file (atomically); needs pyarrow."""
-        from .modelfile import atomic_write
 
         atomic_write(path, self.to_parquet())
 

@@ -49,6 +49,7 @@ from .engines import FLIGHTS, ENGINES, FlightTask, chunks, default_chunk_size, m
 from .errors import ModelError
 from .model import Model, ParsedModel, parse_model
 from .outcomes import OUTPUTS, STATUS_NOT_RUN, STATUS_OK, STATUS_SCREENED, check_outputs, output_names
+from .outputfiles import atomic_write
 from .studyprogress import StudyProgress
 from .studyspec import Vary
 
@@ -154,7 +155,6 @@ class DesignTable:
 
     def write_csv(self, path: str | os.PathLike[str]) -> None:
         """Write :meth:`to_csv` atomically (a temporary file renamed into place)."""
-        from .modelfile import atomic_write
 
         atomic_write(path, self.to_csv())
 
@@ -385,7 +385,6 @@ class Sensitivity:
         return buf.getvalue()
 
     def write_csv(self, path: str | os.PathLike[str]) -> None:
-        from .modelfile import atomic_write
 
         atomic_write(path, self.to_csv())
 
@@ -440,6 +439,8 @@ def sensitivities(model: Model | str | None, vary: Sequence[Vary | str], *, outp
         rows += [up, down]
     table = evaluate(model, params, np.array(rows), outputs, parsed=parsed, kind="sensitivity",
                      info={"step": f"{step:g} of each value"}, **run)
+    if table.interrupted:   # differences need every design: there is nothing partial to report
+        raise KeyboardInterrupt
     if table.status[0] != STATUS_OK:
         raise ModelError("sensitivity", f"the model itself cannot fly: {table.notes[0]}", "fix the model first")
     outs = table.outputs
