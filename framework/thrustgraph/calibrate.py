@@ -598,6 +598,11 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
         raise ModelError(f"fit {sorted(dup)[0]}", "is named twice", "fit each parameter once")
     if scale not in ("range", "noise"):
         raise ModelError("calibration", f"scale {scale!r} is neither 'range' nor 'noise'", "choose range or noise")
+    if isinstance(max_iterations, bool) or not isinstance(max_iterations, int) or max_iterations < 1:
+        raise ModelError("--max-iterations", f"must be a whole number of at least 1, got {max_iterations!r}",
+                         "allow the solver some evaluations, e.g. --max-iterations 60 (the default)")
+    if not (isinstance(confidence, (int, float)) and 0.0 < confidence < 1.0):
+        raise ModelError("--confidence", f"must be a level between 0 and 1, got {confidence!r}", "use e.g. 0.95")
     if not 0.0 < confidence < 1.0:
         raise ModelError("calibration", f"confidence {confidence!r} is not between 0 and 1", "use e.g. 0.95")
     parsed = parse_model(model)

@@ -181,19 +181,23 @@ def prepare_record(record: Record, result: FlightResult, mapping: Sequence[Colum
 
 
 def model_for_records(model: Model, records: Sequence[Record], *, per_sample: int = 4,
-                      max_points: int = 20000) -> Model:
+                      max_points: int = 20000, max_flight_points: int = 2_000_000) -> Model:
     """A copy of ``model`` whose output is fine enough to average over the records' samples.
 
     The output interval becomes a ``per_sample``-th of the finest record's
     sample spacing (never coarser than the model's own, never more than
-    ``max_points`` over the longest record).
+    ``max_points`` over the longest record, and never more than
+    ``max_flight_points`` up to the model's end time, which bounds the memory
+    a short, finely sampled record can ask for).
     """
     out = model.copy()
     spec = next(s for s in RUN_SPECS if s.name == "output_interval")
+    end_spec = next(s for s in RUN_SPECS if s.name == "end_time")
     current = spec.parse(out.run.get("output_interval", spec.default), where="run.output_interval")
+    end = end_spec.parse(out.run.get("end_time", end_spec.default), where="run.end_time")
     dt = min(r.interval for r in records) / per_sample
     span = max(float(r.time[-1] - min(r.time[0], 0.0)) for r in records)
-    dt = max(dt, span / max_points)
+    dt = max(dt, span / max_points, end / max_flight_points)
     if dt < current:
         out.set("run.output_interval", f"{dt:.6g} s")
     return out

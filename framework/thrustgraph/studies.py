@@ -317,6 +317,10 @@ def sweep(model: Model | str | None, vary: Sequence[Vary | str], *, combine: str
     vary = [as_vary(v) for v in vary]
     if not vary:
         raise ModelError("sweep", "varies no parameter", 'add --vary "components.bottle.fill=0.1..0.6 in 11"')
+    for v in vary:
+        if v.values is None and v.low is None:
+            raise ModelError(f"sweep {v.path}", "gives no values to sweep",
+                             f'write e.g. "{v.path}=LOW..HIGH in N" or "{v.path}=V1, V2"')
     params = [v.resolve(parsed, where=f"sweep {v.path}") for v in vary]
     cols = [v.si_values(p, where=f"sweep {v.path}") for v, p in zip(vary, params)]
     if combine == "grid":

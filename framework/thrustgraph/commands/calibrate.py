@@ -70,6 +70,11 @@ def main(args: argparse.Namespace) -> int:
     from ..modelfile import dumps_model, loads_model
 
     check_plot_names(args.plot)
+    if args.max_iterations < 1:
+        raise ModelError("--max-iterations", f"must be at least 1, got {args.max_iterations}",
+                         "allow the solver some evaluations, e.g. --max-iterations 60 (the default)")
+    if not 0.0 < args.confidence < 1.0:
+        raise ModelError("--confidence", f"must be a level between 0 and 1, got {args.confidence:g}", "use e.g. 0.95")
     check_paths([args.out, args.report, *args.plot])   # before fitting: a bad path costs nothing
     if not args.fit:
         raise ModelError("--fit", "no parameter to fit",
