@@ -18,12 +18,10 @@ gets it, once, right after.
 
 Examples
 --------
->>> import os, signal
+>>> import signal
 >>> with stop_on_signals():
 ...     try:
-...         os.kill(os.getpid(), signal.SIGTERM)
-...         for _ in range(10 ** 6):   # the handler runs between two bytecodes
-...             pass
+...         signal.raise_signal(signal.SIGTERM)
 ...     except KeyboardInterrupt as exc:
 ...         print(type(exc).__name__, exit_status(exc))
 Terminated 143

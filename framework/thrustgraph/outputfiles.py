@@ -136,7 +136,7 @@ def check_output(path: PathLike, *, directory: bool = False, new_folders: Sequen
     pending = {Path(os.path.realpath(f)) for f in new_folders}
     try:
         st = os.stat(real)
-    except FileNotFoundError:
+    except (FileNotFoundError, NotADirectoryError):
         st = None
     except OSError as exc:
         raise OutputError(str(p), f"it cannot be examined ({exc.strerror or exc})", "write somewhere else") from None
@@ -157,7 +157,12 @@ def check_output(path: PathLike, *, directory: bool = False, new_folders: Sequen
         return real
     try:
         pst = os.stat(parent)
-    except FileNotFoundError:
+    except (FileNotFoundError, NotADirectoryError):
+        for up in parent.parents:   # the nearest thing that exists: a file in the way, or a folder to create in
+            if os.path.lexists(up):
+                if not up.is_dir():
+                    raise OutputError(str(p), f"{up} is a file, not a folder", "choose another output folder") from None
+                break
         raise OutputError(str(p), f"the folder {parent} does not exist",
                           f"create it first (mkdir -p {parent}) or write somewhere else") from None
     except OSError as exc:

@@ -241,7 +241,6 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     bar = StudyProgress(n, kind, stream=stream, quiet=quiet)
     done = n - len(rows)
     screened = int(np.sum(status == STATUS_SCREENED))
-    bar.update(done, screened)
     interrupted = False
     t0 = time.perf_counter()
     parts = _parts(rows, size, flights)
@@ -251,7 +250,8 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
         stream_ = eng.run(task, feed, progress=lambda start, k: bar.update(done + k, screened))
     else:
         stream_ = eng.run(task, feed)
-    try:
+    try:   # from the first draw of the bar on, an interrupt keeps what has flown (possibly nothing)
+        bar.update(done, screened)
         for res in stream_:
             idx = index_of[res.start]
             values[idx] = res.values
