@@ -194,7 +194,12 @@ def test_a_partial_of_a_living_process_is_kept(tmp_path):
     assert remove_stale_partials(tmp_path / "a.csv") == [] and mine.exists()
 
 
-def test_a_failing_second_write_leaves_no_first_file_and_no_temporary(tmp_path, monkeypatch):
+@pytest.mark.parametrize("named", [False, True], ids=["unnamed", "named"])
+def test_a_failing_second_write_leaves_no_first_file_and_no_temporary(tmp_path, monkeypatch, named):
+    from thrustgraph import outputfiles
+
+    if named:
+        monkeypatch.setattr(outputfiles, "_unnamed", lambda folder: None)   # as without O_TMPFILE
     (tmp_path / "full").mkdir()
     real = os.write
 
@@ -323,3 +328,46 @@ def test_every_writing_command_is_covered():
     writers = {"run", "compare", "calibrate", "new", "export", "graph", "plot", "report", "study"}
     assert writers | {"check", "kinds"} == set(COMMANDS)
     assert writers == {args[0] for args in CASES.values()}
+
+
+# ---------------------------------------------------------------------------
+# every command: a second output that fails while it is written (a full disk) leaves nothing
+# ---------------------------------------------------------------------------
+
+@pytest.fixture
+def full_disk(tmp_path):
+    """``tmp_path/tiny``: a real 16 KiB file system (tmpfs), too small for a time series or a set of plots."""
+    tiny = tmp_path / "tiny"
+    tiny.mkdir()
+    proc = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=16k", "tmpfs", str(tiny)], capture_output=True,
+                          text=True)
+    if proc.returncode != 0:
+        pytest.skip(f"cannot mount a small tmpfs here (needs root): {proc.stderr.strip()}")
+    try:
+        yield tiny
+    finally:
+        subprocess.run(["umount", str(tiny)], check=True)
+
+
+FULL_CASES = {
+    "run": ["run", "--json", "ok.json", "--csv", "tiny/series.csv"],
+    "export": ["export", "--json", "ok.json", "--csv", "tiny/series.csv"],
+    "plot": ["plot", "--out", "tiny/plots"],
+    "study": ["study", "sweep", "--vary", "components.bottle.fill=0.2, 0.3", "--engine", "serial", "--table",
+              "ok.csv", "--plots", "tiny/plots"],
+    "compare": ["compare", "held.toml", "stand.csv", *RECORD, "--json", "ok.json", "--plot", "tiny/c.png"],
+    "calibrate": ["calibrate", "held.toml", "stand.csv", *RECORD, *FIT, "--out", "cal.toml", "--report", "fit.json",
+                  "--plot", "tiny/fit.png"],
+}
+
+
+@pytest.mark.parametrize("case", list(FULL_CASES))
+def test_a_second_output_that_fills_the_disk_leaves_nothing(case, stand, tmp_path, full_disk, capsys):
+    for name in ("held.toml", "stand.csv"):
+        (tmp_path / name).write_bytes((stand / name).read_bytes())
+    before = listing(tmp_path)
+    rc, out, err = run_here(capsys, FULL_CASES[case], tmp_path)
+    assert rc == 2, out + err
+    assert "tiny/" in err and "No space left on device" in err and err.count("\n") == 1, err
+    assert listing(tmp_path) == before    # no first output, no temporary file, no plots folder
+    assert "wrote" not in out

@@ -307,8 +307,10 @@ def test_dask_local_cluster_with_two_workers_gives_the_local_table(bottle):
     kw = dict(samples=16, seed=3, quiet=True, flights="single", outputs=["apogee", "range", "impact_y"],
               chunk_size=4)
     local = disperse(bottle, spreads, engine="serial", **kw)
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cl:
-        remote = disperse(bottle, spreads, engine="dask", scheduler=cl.scheduler_address, **kw)
+    # the waits are hang guards only: a loaded machine may start the cluster and answer slowly
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None,
+                                  timeout=HANG_GUARD) as cl:
+        remote = disperse(bottle, spreads, engine="dask", scheduler=cl.scheduler_address, timeout=HANG_GUARD, **kw)
     assert remote.table.engine == "dask"
     assert remote.table.to_csv() == local.table.to_csv()
 

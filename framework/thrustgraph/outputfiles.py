@@ -326,9 +326,13 @@ def _stage(target: Path, data: bytes) -> _Staged:
         while view:
             view = view[os.write(fd, view):]
         os.fsync(fd)
-    finally:
+    except BaseException:
         if item.fd is None:
             os.close(fd)
+        _discard(item)       # closes the unnamed file (the kernel frees it) or removes the named temporary file
+        raise
+    if item.fd is None:      # a named temporary file: closed now, renamed at the commit
+        os.close(fd)
     return item
 
 
