@@ -8,6 +8,7 @@ that nothing was written.
 from __future__ import annotations
 
 import os
+import re
 import socket
 import subprocess
 import sys
@@ -176,6 +177,22 @@ def test_a_value_that_overflows_on_conversion_is_refused_not_compared(here, caps
                   "huge.csv: column 'load', line 5: 1e+308 lbf is too large to convert to SI units (it overflows "
                   "to infinity)")
     assert "inf" not in err.replace("infinity", "") and "nan" not in err
+
+
+def test_huge_values_give_finite_metrics_or_one_clear_error(here, capsys):
+    t = np.arange(0.0005, 0.16, 0.001).tolist()
+    values = [100.0] * len(t)
+    values[3] = 1e300                                  # absurd but finite: its square overflows, the RMS must not
+    _record(here, "big.csv", "time [s],load [N]", t, values)
+    rc, out, err = run_here(capsys, ["compare", "held.toml", "big.csv", "--map", "load=thrust"], here)
+    assert rc == 0, err
+    assert "RMS error         7.9057e+298 N   (7.91 % of the measured peak)" in out
+    assert not re.search(r"\b(inf|nan)\b", out.lower())
+    values[3] = values[4] = 1.7e308                    # two neighbours near the largest float: their mean overflows
+    _record(here, "edge.csv", "time [s],load [N]", t, values)
+    refused(capsys, ["compare", "held.toml", "edge.csv", "--map", "load=thrust", "--json", "c.json"], here,
+            "edge.csv: column 'load': its values are too large to compare (impulse measured overflows; the largest "
+            "value is 1.7e+308 N)")
 
 
 def test_a_header_cell_beyond_the_csv_limit_is_refused(here, capsys):

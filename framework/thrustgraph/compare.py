@@ -381,8 +381,41 @@ class SignalComparison:
         return {k: getattr(self, k) for k in keys}
 
 
+def _rms_and_mean(res: np.ndarray) -> tuple[float, float]:
+    """RMS and mean of the errors, scaled by the largest so that squares of large values do not overflow.
+
+    >>> rms, mean = _rms_and_mean(np.array([3e200, -4e200, 0.0, 0.0]))
+    >>> f"{rms:.6g} {mean:.6g}"
+    '2.5e+200 -2.5e+199'
+    """
+    big = float(np.max(np.abs(res))) if res.size else 0.0
+    if not big > 0.0 or not math.isfinite(big):
+        return (big if res.size else 0.0), (float(np.mean(res)) if res.size else 0.0)
+    u = res / big
+    return big * float(np.sqrt(np.mean(u * u))), big * float(np.mean(u))
+
+
+def _finite_metrics(c: SignalComparison, source: str) -> SignalComparison:
+    """Refuse a comparison whose numbers overflowed (values near the largest float): never print inf or nan."""
+    names = ("rms_error", "mean_error", "max_abs_error", "peak_measured", "peak_error", "impulse_measured",
+             "impulse_error", "apogee_error")
+    bad = [n for n in names if getattr(c, n) is not None and not math.isfinite(getattr(c, n))]
+    if bad:
+        what = bad[0].replace("_", " ")
+        raise ModelError(f"{source}: column {c.column!r}", f"its values are too large to compare ({what} overflows; "
+                         f"the largest value is {float(np.max(np.abs(c.measured))):.3g} {c.unit})",
+                         "check the values and the unit in the header")
+    return c
+
+
 def _metrics(mt: Matched) -> SignalComparison:
+    with np.errstate(over="ignore", invalid="ignore"):
+        return _metrics_of(mt)
+
+
+def _metrics_of(mt: Matched) -> SignalComparison:
     res = mt.predicted - mt.measured
+    rms, mean = _rms_and_mean(res)
     km = int(np.argmax(mt.measured))
     tm, ym = mt.in_window()
     kp = int(np.argmax(ym))
@@ -401,7 +434,7 @@ def _metrics(mt: Matched) -> SignalComparison:
         ap_e = ap_p - ap_m
     return SignalComparison(
         column=mt.cmap.column, signal=mt.cmap.signal, unit=mt.unit, pressure=mt.cmap.pressure, n=int(mt.t.size),
-        rms_error=float(np.sqrt(np.mean(res ** 2))), mean_error=float(np.mean(res)),
+        rms_error=rms, mean_error=mean,
         max_abs_error=float(np.max(np.abs(res))), peak_measured=peak_m, peak_predicted=peak_p,
         peak_error=peak_p - peak_m, peak_time_measured=t_peak_m, peak_time_predicted=t_peak_p,
         peak_time_error=t_peak_p - t_peak_m, impulse_measured=imp_m, impulse_predicted=imp_p, impulse_error=imp_e,
@@ -498,7 +531,8 @@ def compare(result: FlightResult, record: Record, mapping: Sequence[ColumnMap], 
     """
     matched = match(result, record, mapping, start=start, end=end)
     return Comparison(source=record.source, sha256=record.sha256, offset=record.offset, history=record.history,
-                      start=matched[0].start, end=matched[0].end, signals=tuple(_metrics(m) for m in matched))
+                      start=matched[0].start, end=matched[0].end,
+                      signals=tuple(_finite_metrics(_metrics(m), record.source) for m in matched))
 
 
 # -- plots -----------------------------------------------------------------------
@@ -512,7 +546,8 @@ def render_comparison(comparisons: Comparison | Sequence[Comparison], fmt: str =
     shown as written, never read as math notation.
     """
     if fmt not in ("png", "svg"):
-        raise ModelError(f"plot format {fmt!r}", "cannot write a plot in this format", "name the plot file .png or .svg")
+        raise ModelError(f"plot format {fmt!r}", "cannot write a plot in this format",
+                         "name the plot file .png or .svg")
     try:
         from matplotlib.backends.backend_agg import FigureCanvasAgg
         from matplotlib.figure import Figure

@@ -225,9 +225,10 @@ def parse_header(cell: str, *, where: str) -> tuple[str, str]:
     name, unit = m.group("name"), m.group("unit").strip()
     if unit in _PLAIN:
         return name, ""
-    powers = [int(p) for p in re.findall(r"(?:\*\*|\^)\s*\(?\s*[-+]?(\d+)", unit)]
-    if re.search(r"\d{7,}", unit) or any(p > 12 for p in powers) or re.search(r"(\*\*|\^)\s*\(?\s*[-+]?[\d.]+\s*\)?\s*(\*\*|\^)", unit):
-        raise ModelError(where, f"the unit {unit!r} is an arithmetic expression, not a unit",
+    chained = re.search(r"(\*\*|\^)\s*\(?\s*[-+]?[\d.]+\s*\)?\s*(\*\*|\^)", unit)   # a**b**c
+    if re.search(r"\d{7,}", unit) or chained or any(
+            int(p) > 12 for p in re.findall(r"(?:\*\*|\^)\s*\(?\s*[-+]?(\d+)", unit)):
+        raise ModelError(where, f"the unit {_cut(unit)!r} is an arithmetic expression, not a unit",
                          "write a unit such as N, lbf, kPa, m/s^2 or kg/m^3")
     try:
         q = Q_(1.0, unit)
@@ -235,7 +236,7 @@ def parse_header(cell: str, *, where: str) -> tuple[str, str]:
     except Exception as exc:  # pint raises several types for a bad unit
         extra = " (for a gauge pressure write the plain unit, e.g. psi, and mark the column gauge)" \
             if unit.lower().endswith(("g", "gauge")) else ""
-        raise ModelError(where, f"unknown unit {unit!r} ({type(exc).__name__}){extra}",
+        raise ModelError(where, f"unknown unit {_cut(unit)!r} ({type(exc).__name__}){extra}",
                          "write a unit such as N, lbf, kPa, bar, psi, m, ft, s or ms") from None
     return name, unit
 
