@@ -20,6 +20,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from conftest import HANG_GUARD
 from thrustgraph import fly, load_model
 from thrustgraph.cli import COMMANDS, build_parser
 from thrustgraph.model import parse_model
@@ -299,7 +300,7 @@ def test_an_unwritable_output_is_one_message_and_writes_nothing(tmp_path, capsys
     (tmp_path / "busy").write_text("a file, not a directory")
     rc, _, err = tg_here(capsys, "run", "--csv", "ok.csv", "--plots", "busy", cwd=tmp_path)
     assert rc == 2
-    assert "busy is a file, not a directory" in err
+    assert "cannot write busy: it is a file, not a folder" in err
     assert files_in(tmp_path) == ["busy"]
 
 
@@ -315,7 +316,7 @@ def _run_on_terminal(args: list[str], cwd: Path) -> tuple[int, str]:
     os.close(slave)
     chunks = []
     while True:
-        ready, _, _ = select.select([master], [], [], 60)
+        ready, _, _ = select.select([master], [], [], HANG_GUARD)   # waits for output, not for a time
         if not ready:
             break
         try:
@@ -326,7 +327,7 @@ def _run_on_terminal(args: list[str], cwd: Path) -> tuple[int, str]:
             break
         chunks.append(data)
     os.close(master)
-    return proc.wait(timeout=60), b"".join(chunks).decode("utf-8", "replace")
+    return proc.wait(HANG_GUARD), b"".join(chunks).decode("utf-8", "replace")
 
 
 def test_progress_shows_on_a_terminal_and_not_with_quiet(tmp_path):

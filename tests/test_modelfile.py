@@ -16,6 +16,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from thrustgraph import ModelError
+from thrustgraph.errors import OutputError
 from thrustgraph.model import LAUNCH_SPECS, RUN_SPECS, Model
 from thrustgraph.modelfile import (FORMAT_VERSION, TOP_LEVEL_KEYS, UPGRADES, atomic_write, bundled_models, check_model, dumps_model,
                                    load_model, loads_model, save_model, upgrade_data)
@@ -348,10 +349,10 @@ def test_missing_upgrade_step_and_too_old_versions_say_how_to_upgrade():
 # all-or-nothing writes
 # ---------------------------------------------------------------------------
 
-def test_atomic_write_leaves_nothing_when_the_rename_fails(tmp_path):
+def test_atomic_write_refuses_a_folder_and_leaves_nothing(tmp_path):
     target = tmp_path / "out.csv"
-    target.mkdir()  # a directory where the file should go: the final rename fails
-    with pytest.raises(OSError):
+    target.mkdir()  # a directory where the file should go
+    with pytest.raises(OutputError, match="out.csv: it is a folder"):
         atomic_write(target, "data")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["out.csv"]
     assert target.is_dir() and not any(target.iterdir())

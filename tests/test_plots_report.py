@@ -17,7 +17,7 @@ import matplotlib.image as mpimg
 import numpy as np
 import pytest
 
-from conftest import model_from_toml
+from conftest import HANG_GUARD, model_from_toml
 from thrustgraph import fly, integrate, load_model
 from thrustgraph.modelfile import bundled_models, check_model, default_model_path, dumps_model
 from thrustgraph.plots import PLOT_NAMES, figure, figures, graph_figure, powered_window, render, save_plots
@@ -223,7 +223,7 @@ def test_report_renders_in_headless_chromium(bottle, page, tmp_path):
     def chromium(*args: str) -> subprocess.CompletedProcess:
         profile = tempfile.mkdtemp(dir=tmp_path)
         return subprocess.run([CHROMIUM, *FLAGS, f"--user-data-dir={profile}", *args, f.as_uri()],
-                              capture_output=True, text=True, timeout=120)
+                              capture_output=True, text=True, timeout=HANG_GUARD)
 
     proc = chromium(f"--screenshot={shot}", "--window-size=1200,9000")
     assert shot.exists(), proc.stderr[-2000:]

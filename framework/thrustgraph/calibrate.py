@@ -51,6 +51,7 @@ import numpy as np
 from .progress import Progress
 from .errors import IntegrationError, ModelError
 from .model import LAUNCH_SPECS, Model, parse_model
+from .outputfiles import atomic_write
 from .parameters import Quantity
 from .records import ColumnMap, Record
 from .units import Q_, parse_quantity, si_unit, to_si
@@ -61,7 +62,7 @@ from .plugins import get_plugin_manager
 from .assembly import assemble
 from .integrate import integrate
 from .version import __version__
-from .modelfile import atomic_write, dumps_model
+from .modelfile import dumps_model
 
 __all__ = ["FitParameter", "MeasuredRun", "FittedValue", "Calibration", "ProgressLine", "calibrate",
            "write_calibrated_model", "compare_runs"]
@@ -596,6 +597,11 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
         raise ModelError(f"fit {sorted(dup)[0]}", "is named twice", "fit each parameter once")
     if scale not in ("range", "noise"):
         raise ModelError("calibration", f"scale {scale!r} is neither 'range' nor 'noise'", "choose range or noise")
+    if isinstance(max_iterations, bool) or not isinstance(max_iterations, int) or max_iterations < 1:
+        raise ModelError("--max-iterations", f"must be a whole number of at least 1, got {max_iterations!r}",
+                         "allow the solver some evaluations, e.g. --max-iterations 60 (the default)")
+    if not (isinstance(confidence, (int, float)) and 0.0 < confidence < 1.0):
+        raise ModelError("--confidence", f"must be a level between 0 and 1, got {confidence!r}", "use e.g. 0.95")
     if not 0.0 < confidence < 1.0:
         raise ModelError("calibration", f"confidence {confidence!r} is not between 0 and 1", "use e.g. 0.95")
     parsed = parse_model(model)

@@ -45,7 +45,6 @@ Examples
 from __future__ import annotations
 
 import difflib
-import io
 import json
 import math
 from dataclasses import dataclass, field
@@ -53,16 +52,18 @@ from pathlib import Path
 from typing import Any, Sequence
 
 import numpy as np
+from scipy.integrate import trapezoid
 
 from .errors import ModelError, ThrustgraphError
 from .model import RUN_SPECS, Model
+from .outputfiles import atomic_write
 from .records import ColumnMap, Record, Trigger, align, crossing_time, lowpass, resample
 from .result import FlightResult
 from .units import Q_, to_si
-from .modelfile import atomic_write
 
 __all__ = ["SignalComparison", "Comparison", "Matched", "compare", "match", "signal_series", "interval_means",
-           "align_to_prediction", "prepare_record", "model_for_records", "plot_comparison"]
+           "align_to_prediction", "prepare_record", "model_for_records", "plot_comparison", "render_comparison",
+           "plot_format"]
 
 
 # -- signals of a result --------------------------------------------------------
@@ -180,19 +181,23 @@ def prepare_record(record: Record, result: FlightResult, mapping: Sequence[Colum
 
 
 def model_for_records(model: Model, records: Sequence[Record], *, per_sample: int = 4,
-                      max_points: int = 20000) -> Model:
+                      max_points: int = 20000, max_flight_points: int = 2_000_000) -> Model:
     """A copy of ``model`` whose output is fine enough to average over the records' samples.
 
     The output interval becomes a ``per_sample``-th of the finest record's
     sample spacing (never coarser than the model's own, never more than
-    ``max_points`` over the longest record).
+    ``max_points`` over the longest record, and never more than
+    ``max_flight_points`` up to the model's end time, which bounds the memory
+    a short, finely sampled record can ask for).
     """
     out = model.copy()
     spec = next(s for s in RUN_SPECS if s.name == "output_interval")
+    end_spec = next(s for s in RUN_SPECS if s.name == "end_time")
     current = spec.parse(out.run.get("output_interval", spec.default), where="run.output_interval")
+    end = end_spec.parse(out.run.get("end_time", end_spec.default), where="run.end_time")
     dt = min(r.interval for r in records) / per_sample
     span = max(float(r.time[-1] - min(r.time[0], 0.0)) for r in records)
-    dt = max(dt, span / max_points)
+    dt = max(dt, span / max_points, end / max_flight_points)
     if dt < current:
         out.set("run.output_interval", f"{dt:.6g} s")
     return out
@@ -376,8 +381,41 @@ class SignalComparison:
         return {k: getattr(self, k) for k in keys}
 
 
+def _rms_and_mean(res: np.ndarray) -> tuple[float, float]:
+    """RMS and mean of the errors, scaled by the largest so that squares of large values do not overflow.
+
+    >>> rms, mean = _rms_and_mean(np.array([3e200, -4e200, 0.0, 0.0]))
+    >>> f"{rms:.6g} {mean:.6g}"
+    '2.5e+200 -2.5e+199'
+    """
+    big = float(np.max(np.abs(res))) if res.size else 0.0
+    if not big > 0.0 or not math.isfinite(big):
+        return (big if res.size else 0.0), (float(np.mean(res)) if res.size else 0.0)
+    u = res / big
+    return big * float(np.sqrt(np.mean(u * u))), big * float(np.mean(u))
+
+
+def _finite_metrics(c: SignalComparison, source: str) -> SignalComparison:
+    """Refuse a comparison whose numbers overflowed (values near the largest float): never print inf or nan."""
+    names = ("rms_error", "mean_error", "max_abs_error", "peak_measured", "peak_error", "impulse_measured",
+             "impulse_error", "apogee_error")
+    bad = [n for n in names if getattr(c, n) is not None and not math.isfinite(getattr(c, n))]
+    if bad:
+        what = bad[0].replace("_", " ")
+        raise ModelError(f"{source}: column {c.column!r}", f"its values are too large to compare ({what} overflows; "
+                         f"the largest value is {float(np.max(np.abs(c.measured))):.3g} {c.unit})",
+                         "check the values and the unit in the header")
+    return c
+
+
 def _metrics(mt: Matched) -> SignalComparison:
+    with np.errstate(over="ignore", invalid="ignore"):
+        return _metrics_of(mt)
+
+
+def _metrics_of(mt: Matched) -> SignalComparison:
     res = mt.predicted - mt.measured
+    rms, mean = _rms_and_mean(res)
     km = int(np.argmax(mt.measured))
     tm, ym = mt.in_window()
     kp = int(np.argmax(ym))
@@ -387,7 +425,7 @@ def _metrics(mt: Matched) -> SignalComparison:
     imp_m = imp_p = imp_e = None
     if dim == Q_(1.0, "N").dimensionality:
         a, b = float(mt.t[0]), float(mt.t[-1])
-        imp_m = float(np.trapezoid(mt.measured, mt.t))
+        imp_m = float(trapezoid(mt.measured, mt.t))
         imp_p = float(interval_means(mt.t_model, mt.y_model, np.array([a, b]))[0] * (b - a))
         imp_e = imp_p - imp_m
     ap_m = ap_p = ap_e = None
@@ -396,7 +434,7 @@ def _metrics(mt: Matched) -> SignalComparison:
         ap_e = ap_p - ap_m
     return SignalComparison(
         column=mt.cmap.column, signal=mt.cmap.signal, unit=mt.unit, pressure=mt.cmap.pressure, n=int(mt.t.size),
-        rms_error=float(np.sqrt(np.mean(res ** 2))), mean_error=float(np.mean(res)),
+        rms_error=rms, mean_error=mean,
         max_abs_error=float(np.max(np.abs(res))), peak_measured=peak_m, peak_predicted=peak_p,
         peak_error=peak_p - peak_m, peak_time_measured=t_peak_m, peak_time_predicted=t_peak_p,
         peak_time_error=t_peak_p - t_peak_m, impulse_measured=imp_m, impulse_predicted=imp_p, impulse_error=imp_e,
@@ -493,34 +531,34 @@ def compare(result: FlightResult, record: Record, mapping: Sequence[ColumnMap], 
     """
     matched = match(result, record, mapping, start=start, end=end)
     return Comparison(source=record.source, sha256=record.sha256, offset=record.offset, history=record.history,
-                      start=matched[0].start, end=matched[0].end, signals=tuple(_metrics(m) for m in matched))
+                      start=matched[0].start, end=matched[0].end,
+                      signals=tuple(_finite_metrics(_metrics(m), record.source) for m in matched))
 
 
 # -- plots -----------------------------------------------------------------------
 
-def plot_comparison(comparisons: Comparison | Sequence[Comparison], path: str | Path, *,
-                    title: str | None = None) -> None:
-    """Overlay (measured and predicted) and residual plots, one pair per signal, to PNG or SVG.
+def render_comparison(comparisons: Comparison | Sequence[Comparison], fmt: str = "png", *,
+                      title: str | None = None) -> bytes:
+    """Overlay (measured and predicted) and residual plots, one pair per signal, as PNG or SVG bytes.
 
-    The format follows the file's suffix. The figure is drawn off-screen
-    (matplotlib's Agg canvas, no window, no global backend change) and
-    written atomically.
+    The figure is drawn off-screen (matplotlib's Agg canvas, no window, no
+    global backend change). Names from the record (columns, the file) are
+    shown as written, never read as math notation.
     """
-
-    p = Path(path)
-    fmt = p.suffix.lower().lstrip(".")
     if fmt not in ("png", "svg"):
-        raise ModelError(str(p), f"cannot write a plot as {p.suffix or 'a file without a suffix'}",
+        raise ModelError(f"plot format {fmt!r}", "cannot write a plot in this format",
                          "name the plot file .png or .svg")
     try:
         from matplotlib.backends.backend_agg import FigureCanvasAgg
         from matplotlib.figure import Figure
+
+        from .plots import plain, render   # matplotlib is optional: imported only when a plot is drawn
     except ImportError:  # pragma: no cover - matplotlib is in the test extra
         raise ThrustgraphError("plots need matplotlib: pip install 'thrustgraph[plots]'") from None
     comps = [comparisons] if isinstance(comparisons, Comparison) else list(comparisons)
     pairs = [(c, s) for c in comps for s in c.signals]
     if not pairs:
-        raise ModelError(str(p), "nothing to plot", "compare at least one signal")
+        raise ModelError("plot", "nothing to plot", "compare at least one signal")
     fig = Figure(figsize=(8.0, 3.6 * len(pairs)), layout="constrained")
     FigureCanvasAgg(fig)
     grid = fig.add_gridspec(2 * len(pairs), 1, height_ratios=[3, 1] * len(pairs))
@@ -528,20 +566,35 @@ def plot_comparison(comparisons: Comparison | Sequence[Comparison], path: str | 
         name, scale = _DISPLAY.get(s.unit, (s.unit, 1.0))
         top = fig.add_subplot(grid[2 * k])
         bottom = fig.add_subplot(grid[2 * k + 1], sharex=top)
-        top.plot(s.t, s.measured * scale, ".", ms=2.5, color="0.35", label=f"measured ({Path(c.source).name})")
+        top.plot(s.t, s.measured * scale, ".", ms=2.5, color="0.35", label=plain(f"measured ({Path(c.source).name})"))
         top.plot(s.t_model, s.y_model * scale, "-", lw=1.4, color="C0", label="predicted")
         ref = f", {s.pressure} column" if s.pressure else ""
-        top.set_ylabel(f"{s.signal} [{name or '1'}]")
-        top.set_title(f"{s.signal}  <-  {s.column}{ref}: RMS error {_show(s.rms_error, s.unit)}", fontsize=9)
+        top.set_ylabel(plain(f"{s.signal} [{name or '1'}]"))
+        top.set_title(plain(f"{s.signal}  <-  {s.column}{ref}: RMS error {_show(s.rms_error, s.unit)}"), fontsize=9)
         top.legend(fontsize=8, loc="best")
         top.grid(True, lw=0.3)
         bottom.plot(s.t, s.residual * scale, ".", ms=2.0, color="C3")
         bottom.axhline(0.0, color="0.2", lw=0.6)
-        bottom.set_ylabel(f"residual [{name or '1'}]", fontsize=8)
+        bottom.set_ylabel(plain(f"residual [{name or '1'}]"), fontsize=8)
         bottom.set_xlabel("model time [s]")
         bottom.grid(True, lw=0.3)
     if title:
-        fig.suptitle(title, fontsize=10)
-    buf = io.BytesIO()
-    fig.savefig(buf, format=fmt, dpi=110)
-    atomic_write(p, buf.getvalue())
+        fig.suptitle(plain(title), fontsize=10)
+    return render(fig, fmt)
+
+
+def plot_format(path: str | Path) -> str:
+    """``png`` or ``svg`` from a plot file's suffix; anything else is refused."""
+    p = Path(path)
+    fmt = p.suffix.lower().lstrip(".")
+    if fmt not in ("png", "svg"):
+        raise ModelError(str(p), f"cannot write a plot as {p.suffix or 'a file without a suffix'}",
+                         "name the plot file .png or .svg")
+    return fmt
+
+
+def plot_comparison(comparisons: Comparison | Sequence[Comparison], path: str | Path, *,
+                    title: str | None = None) -> None:
+    """Write :func:`render_comparison` to a PNG or SVG file (the format follows the suffix), atomically."""
+    fmt = plot_format(path)
+    atomic_write(path, render_comparison(comparisons, fmt, title=title))

@@ -41,6 +41,7 @@ from .errors import ModelError
 from .limits import MAX_DESIGNS, check_count
 from .model import Model
 from .outcomes import OUTCOMES
+from .outputfiles import atomic_write
 from .studies import DEFAULT_OUTPUTS, DesignTable, _fmt, _prepare, evaluate
 from .studyspec import Spread
 
@@ -171,7 +172,6 @@ class Dispersion:
         return buf.getvalue()
 
     def write_stats_csv(self, path: str | os.PathLike[str]) -> None:
-        from .modelfile import atomic_write
 
         atomic_write(path, self.stats_csv())
 

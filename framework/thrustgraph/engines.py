@@ -13,11 +13,14 @@ Engines
 ``processes``
     A :mod:`multiprocessing` pool over the local cores (the default for
     mid-size studies). Workers start from a fork server (numpy, scipy and
-    thrustgraph imported once) and ignore Ctrl-C: the parent stops the pool.
+    thrustgraph imported once) and never see Ctrl-C, not even while they
+    start (SIGINT is held back while the pool starts, so they inherit it
+    blocked): the parent stops the pool, and no worker prints a traceback.
 ``dask``
     A Dask distributed cluster, given a scheduler address (``tcp://host:8786``)
-    or a :class:`distributed.Client`. An address that cannot be reached within
-    ``timeout`` seconds gives one clear error.
+    or a :class:`distributed.Client`. An address that is not one, cannot be
+    reached within ``timeout`` seconds, or answers as something other than a
+    Dask scheduler (a web server...) gives one clear error within that time.
 
 How a chunk is flown (``flights``) is independent of where: ``single`` flies
 each design with :func:`thrustgraph.integrate.fly_segments`; ``ensemble``
@@ -41,13 +44,18 @@ import hashlib
 import math
 import multiprocessing
 import os
+import re
 import signal
+import socket
+import struct
+import time
 from dataclasses import dataclass
 from typing import Any, Iterable, Iterator
 
 import numpy as np
 
 from .errors import ModelError
+from .interrupts import sigint_held
 from .model import Model
 from .designs import apply, bounds_text, resolve, within_bounds
 from .model import parse_model
@@ -56,7 +64,7 @@ from .studyflight import fly_design
 from .ensemble import fly_designs
 
 __all__ = ["FlightTask", "ChunkRows", "chunks", "SerialEngine", "ProcessEngine", "DaskEngine", "make_engine",
-           "ENGINES", "FLIGHTS", "default_chunk_size", "STUDY_CLUSTER_CONFIG"]
+           "ENGINES", "FLIGHTS", "default_chunk_size", "STUDY_CLUSTER_CONFIG", "check_scheduler_address"]
 
 ENGINES = ("serial", "processes", "dask")
 FLIGHTS = ("single", "ensemble")
@@ -243,14 +251,17 @@ class ProcessEngine:
             ctx = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
             if "forkserver" in methods:
                 ctx.set_forkserver_preload(["thrustgraph.engines", "thrustgraph.outcomes", "scipy.integrate"])
-            self._pool = ctx.Pool(self.workers, initializer=_init_worker, initargs=(task,))
-            self._token = task.token
+            # A Ctrl-C while the fork server and the workers start waits until they are up (they inherit SIGINT
+            # blocked and never see it), then stops this process, which stops the pool.
+            with sigint_held():
+                self._pool = ctx.Pool(self.workers, initializer=_init_worker, initargs=(task,))
+                self._token = task.token
         return self._pool
 
     def run(self, task: FlightTask, parts: Iterable[tuple[int, np.ndarray]]) -> Iterator[ChunkRows]:
-        pool = self._pool_for(task)
         done = False
         try:
+            pool = self._pool_for(task)
             yield from pool.imap_unordered(_run_chunk, parts, chunksize=1)
             done = True
         finally:
@@ -284,13 +295,84 @@ STUDY_CLUSTER_CONFIG = {
 }
 
 
+_ADDRESS = re.compile(r"^(?:(?P<scheme>[a-z]+)://)?(?P<host>\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9._-]+):(?P<port>\d{1,5})/?$")
+_SCHEMES = ("tcp", "tls", "ws", "wss", "ucx")
+_ADDRESS_FIX = "write tcp://HOST:PORT, e.g. tcp://10.0.0.5:8786 (start a scheduler with 'dask scheduler')"
+
+
+def check_scheduler_address(address: str) -> tuple[str, str, int]:
+    """``(scheme, host, port)`` of a Dask scheduler address; anything else is one clear error.
+
+    >>> check_scheduler_address("tcp://10.0.0.5:8786"), check_scheduler_address("localhost:8786")
+    (('tcp', '10.0.0.5', 8786), ('tcp', 'localhost', 8786))
+    >>> check_scheduler_address("not a url")
+    Traceback (most recent call last):
+    ...
+    thrustgraph.errors.ModelError: --scheduler: 'not a url' is not a scheduler address. Fix: write tcp://HOST:PORT, e.g. tcp://10.0.0.5:8786 (start a scheduler with 'dask scheduler').
+    """
+    text = str(address).strip()
+    shown = text if len(text) <= 80 else text[:77] + "..."
+    m = _ADDRESS.match(text)
+    if m is None:
+        raise ModelError("--scheduler", f"{shown!r} is not a scheduler address", _ADDRESS_FIX)
+    scheme = m.group("scheme") or "tcp"
+    if scheme not in _SCHEMES:
+        raise ModelError("--scheduler", f"{shown!r}: unknown protocol {scheme!r} (Dask speaks {', '.join(_SCHEMES)})",
+                         _ADDRESS_FIX)
+    port = int(m.group("port"))
+    if not 0 < port < 65536:
+        raise ModelError("--scheduler", f"{shown!r}: port {port} is not between 1 and 65535", _ADDRESS_FIX)
+    return scheme, m.group("host").strip("[]"), port
+
+
+_NOT_DASK_FIX = ("check the host and the port of the scheduler (a Dask scheduler listens on 8786 unless told "
+                 "otherwise; 'dask scheduler' prints its address)")
+
+#: The most a Dask scheduler's first message (its handshake) may announce, bytes; a web server's reply read as a
+#: length announces exabytes.
+_HANDSHAKE_LIMIT = 64 * 2 ** 20
+
+
+def _probe_scheduler(address: str, host: str, port: int, timeout: float) -> None:
+    """Check within ``timeout`` that a plain-TCP address answers as a Dask scheduler does: right after the
+    connection it sends its handshake, an 8-byte length and then that many bytes."""
+    deadline = time.monotonic() + timeout
+    try:
+        sock = socket.create_connection((host, port), timeout=timeout)
+    except OSError:
+        return   # unreachable: the client's own retries say so within the same timeout
+    try:
+        head = b""
+        while len(head) < 8:
+            sock.settimeout(max(deadline - time.monotonic(), 1e-3))
+            try:
+                part = sock.recv(8 - len(head))
+            except socket.timeout:
+                raise ModelError("--scheduler", f"{address!r} accepts connections but sends no Dask handshake within "
+                                 f"{timeout:g} s: it is not a Dask scheduler", _NOT_DASK_FIX) from None
+            except OSError as exc:
+                raise ModelError("--scheduler", f"{address!r} closed the connection ({exc.strerror or exc}): it is not "
+                                 "a Dask scheduler", _NOT_DASK_FIX) from None
+            if not part:
+                raise ModelError("--scheduler", f"{address!r} closed the connection without a Dask handshake: it is "
+                                 "not a Dask scheduler", _NOT_DASK_FIX)
+            head += part
+        (size,) = struct.unpack("<Q", head)
+        if not 0 < size <= _HANDSHAKE_LIMIT:
+            raise ModelError("--scheduler", f"{address!r} answers, but not as a Dask scheduler (it began with "
+                             f"{head!r})", _NOT_DASK_FIX)
+    finally:
+        sock.close()
+
+
 class DaskEngine:
     """A Dask distributed cluster: a scheduler address or a ``distributed.Client``.
 
     Raises
     ------
     ModelError
-        Dask is not installed, or the scheduler cannot be reached within ``timeout`` seconds.
+        Dask is not installed; the address is not one; the scheduler cannot be reached, or the address does not
+        answer as a Dask scheduler, within ``timeout`` seconds.
     """
 
     name = "dask"
@@ -308,6 +390,13 @@ class DaskEngine:
             if not scheduler:
                 raise ModelError("--scheduler", "the dask engine needs the address of a scheduler",
                                  "give --scheduler tcp://HOST:8786 (start one with 'dask scheduler')")
+            if isinstance(timeout, bool) or not isinstance(timeout, (int, float)) or not (
+                    math.isfinite(timeout) and timeout > 0):
+                raise ModelError("--wait", f"must be a positive number of seconds, got {timeout!r}",
+                                 "use e.g. --wait 10")
+            scheme, host, port = check_scheduler_address(scheduler)
+            if scheme == "tcp":
+                _probe_scheduler(str(scheduler), host, port, float(timeout))
             try:
                 self.client = Client(scheduler, timeout=timeout, set_as_default=False)
             except (OSError, TimeoutError) as exc:

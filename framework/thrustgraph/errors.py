@@ -14,7 +14,7 @@ components.bottle.volume: must be positive, got -1 L. Fix: give the bottle's int
 
 from __future__ import annotations
 
-__all__ = ["ThrustgraphError", "ModelError", "PluginError", "ContractError", "IntegrationError", "shorten",
+__all__ = ["ThrustgraphError", "ModelError", "PluginError", "ContractError", "IntegrationError", "OutputError", "shorten",
            "ECHO_LENGTH"]
 
 #: How many characters of a user's input a message echoes before it is cut.
@@ -169,3 +169,29 @@ class ContractError(PluginError):
 
 class IntegrationError(ThrustgraphError):
     """The integrator could not complete a flight."""
+
+
+class OutputError(ThrustgraphError):
+    """An output file cannot be written (checked before the work is done, so nothing is half-written).
+
+    Parameters
+    ----------
+    path : str
+        The output path as the user gave it.
+    what : str
+        Why it cannot be written.
+    fix : str
+        How to fix it.
+
+    >>> print(OutputError("out/a.csv", "the folder out does not exist", "create it first"))
+    cannot write out/a.csv: the folder out does not exist. Fix: create it first.
+    """
+
+    def __init__(self, path: str, what: str, fix: str = "") -> None:
+        self.path = path
+        self.what = what
+        self.fix = fix
+        text = f"cannot write {path}: {what}"
+        if fix:
+            text += f". Fix: {fix.rstrip('.')}."
+        super().__init__(text)

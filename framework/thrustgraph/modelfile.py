@@ -2,9 +2,9 @@
 
 Reading a file never executes anything from it: the text is parsed as TOML
 data (``tomllib``) and checked key by key; quantities stay text until the
-unit registry reads them as numbers with units. Writing goes to a temporary
-file that is renamed into place, so a failed write leaves nothing
-half-written.
+unit registry reads them as numbers with units. Writing goes through
+:func:`thrustgraph.outputfiles.atomic_write` (a temporary file renamed into
+place), so a failed write leaves nothing half-written.
 
 A model file looks like::
 
@@ -59,7 +59,6 @@ import datetime as _dt
 import difflib
 import os
 import re
-import tempfile
 import tomllib
 from importlib import resources
 from pathlib import Path
@@ -72,6 +71,7 @@ from .model import LAUNCH_SPECS, RUN_SPECS, Model
 from .units import finite_number
 from .model import parse_model, parse_paths
 from .version import __version__
+from .outputfiles import atomic_write  # re-exported: where model files were written from first
 
 __all__ = ["FORMAT_NAME", "FORMAT_VERSION", "OLDEST_VERSION", "UPGRADES", "TOP_LEVEL_KEYS", "load_model",
            "loads_model", "save_model", "dumps_model", "check_model", "upgrade_data", "default_model_path",
@@ -537,35 +537,6 @@ def dumps_model(model: Model) -> str:
     w = _Writer(multiline=not _has_cr(data))
     w.table([], data)
     return "\n".join(w.lines) + "\n"
-
-
-def atomic_write(path: str | os.PathLike[str], data: str | bytes) -> None:
-    """Write a file through a temporary file and a rename: all or nothing.
-
-    >>> import tempfile, pathlib
-    >>> d = pathlib.Path(tempfile.mkdtemp())
-    >>> atomic_write(d / "out" / "a.txt", "hello")
-    >>> (d / "out" / "a.txt").read_text(), sorted(p.name for p in (d / "out").iterdir())
-    ('hello', ['a.txt'])
-    """
-    p = Path(path)
-    p.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=p.parent, prefix=f".{p.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data.encode("utf-8") if isinstance(data, str) else data)
-        os.chmod(tmp, 0o666 & ~_umask())
-        os.replace(tmp, p)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-
-
-def _umask() -> int:
-    mask = os.umask(0)
-    os.umask(mask)
-    return mask
 
 
 def save_model(model: Model, path: str | os.PathLike[str]) -> None:

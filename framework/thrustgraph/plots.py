@@ -50,11 +50,11 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.patches import FancyBboxPatch, Patch
 
+from .outputfiles import write_all
 from .result import FlightResult
-from .modelfile import atomic_write
 
 __all__ = ["PLOT_NAMES", "FORMATS", "figure", "figures", "render", "save_plots", "graph_figure", "summary_title",
-           "powered_window"]
+           "powered_window", "plain"]
 
 PLOT_NAMES = ("thrust", "mass", "pressure", "motion", "trajectory", "ledger", "ledger-world")
 FORMATS = ("png", "svg")
@@ -74,6 +74,21 @@ _RC = {"font.size": 9, "axes.titlesize": 10, "axes.labelsize": 9, "legend.fontsi
 # ---------------------------------------------------------------------------
 # helpers
 # ---------------------------------------------------------------------------
+
+def plain(text: object) -> str:
+    r"""Text from a user (a model or file name, a record's column) shown as it is, never read as math.
+
+    matplotlib reads text between two ``$`` signs as mathematical notation and
+    raises on what it cannot parse; an escaped ``\$`` is shown as a dollar sign.
+
+    >>> plain(r"rocket $\frac{1}{$")
+    'rocket \\$\\frac{1}{\\$'
+    >>> fig = Figure(); _ = FigureCanvasAgg(fig); _ = fig.suptitle(plain(r"rocket $\frac{1}{$"))
+    >>> render(fig, "png")[:4] == b"\x89PNG"
+    True
+    """
+    return str(text).replace("$", "\\$")
+
 
 def _new(rows: int = 1, cols: int = 1, size: tuple[float, float] = (8.0, 4.5), **kw: Any):
     fig = Figure(figsize=size, layout="constrained")
@@ -114,7 +129,7 @@ def _phases(ax, result: FlightResult, t_max: float | None = None, label: bool = 
             continue
         ax.axvline(e.t, color="#999999", lw=0.8, ls="--", zorder=1)
     if label:
-        handles = [Patch(color=_PHASE_COLOURS[k % len(_PHASE_COLOURS)], label=n) for k, n in enumerate(names)]
+        handles = [Patch(color=_PHASE_COLOURS[k % len(_PHASE_COLOURS)], label=plain(n)) for k, n in enumerate(names)]
         ax.figure.legend(handles=handles, loc="outside lower center", ncol=min(6, len(handles)), frameon=False,
                          title="phases (shaded); dashed lines: events", title_fontsize=8)
 
@@ -130,7 +145,7 @@ def _mass_unit(result: FlightResult) -> tuple[str, float]:
 
 def _title(fig, result: FlightResult, what: str) -> None:
     name = (result.provenance or {}).get("model_name", "")
-    fig.suptitle(f"{what}: {name}" if name else what, fontsize=11)
+    fig.suptitle(plain(f"{what}: {name}" if name else what), fontsize=11)
 
 
 def summary_title(r: FlightResult, keys: Iterable[str]) -> str:
@@ -156,7 +171,7 @@ def _thrust(r: FlightResult) -> Figure:
     a.plot(r.t, r.signals["thrust"], color=MAIN, lw=1.8, label="thrust along the body axis", zorder=3)
     if len(sources) > 1:
         for k, n in enumerate(sources):
-            a.plot(r.t, r.signals[f"{n}.thrust"], lw=1.0, color=_TERM_COLOURS[(k + 1) % 10], label=f"{n}")
+            a.plot(r.t, r.signals[f"{n}.thrust"], lw=1.0, color=_TERM_COLOURS[(k + 1) % 10], label=plain(n))
     a.set_ylabel("thrust [N]")
     a.legend(loc="upper right")
     title = summary_title(r, ("peak_thrust", "total_impulse"))
@@ -166,7 +181,7 @@ def _thrust(r: FlightResult) -> Figure:
     peak_flow = max((float(np.max(r.signals[f"{n}.mass_flow"])) for n in flows), default=0.0)
     unit, f = ("kg/s", 1.0) if peak_flow >= 1.0 else ("g/s", 1e3)
     for n in flows:
-        b.plot(r.t, r.signals[f"{n}.mass_flow"] * f, lw=1.3, label=n)
+        b.plot(r.t, r.signals[f"{n}.mass_flow"] * f, lw=1.3, label=plain(n))
     b.set_ylabel(f"mass flow [{unit}]")
     b.set_xlabel("time [s]" + (" (powered flight)" if w else ""))
     if sources:
@@ -188,7 +203,7 @@ def _mass(r: FlightResult) -> Figure:
     k = 1
     for key in r.signals:
         if key.endswith(("liquid_mass", "gas_mass", "propellant_mass")) and "." in key:
-            a.plot(r.t, r.signals[key] * f, lw=1.1, color=_TERM_COLOURS[k % 10], label=key.replace("_", " "))
+            a.plot(r.t, r.signals[key] * f, lw=1.1, color=_TERM_COLOURS[k % 10], label=plain(key.replace("_", " ")))
             k += 1
     a.set_ylabel(f"mass [{unit}]")
     a.set_xlabel("time [s]" + (" (powered flight; constant afterwards)" if w else ""))
@@ -208,7 +223,7 @@ def _pressure(r: FlightResult) -> Figure | None:
     fig, ax = _new(1, 1, (8.0, 4.5))
     a = ax[0, 0]
     for k, key in enumerate(keys):
-        a.plot(r.t, r.signals[key] / 1e5, lw=1.8, color=_TERM_COLOURS[k % 10], label=f"{key[:-9]} (absolute)",
+        a.plot(r.t, r.signals[key] / 1e5, lw=1.8, color=_TERM_COLOURS[k % 10], label=plain(f"{key[:-9]} (absolute)"),
                zorder=3)
     if "ambient_pressure" in r.signals:
         a.plot(r.t, r.signals["ambient_pressure"] / 1e5, color="#444444", lw=1.0, ls=":", label="ambient")
@@ -250,7 +265,7 @@ def _trajectory(r: FlightResult) -> Figure:
         if e.name in marks:
             i = min(int(np.searchsorted(r.t, e.t)), len(r.t) - 1)
             a.plot([x[i]], [z[i]], marks[e.name], ms=6, zorder=4, ls="", markeredgecolor="#333333",
-                   label=f"{e.name}: t = {e.t:.4g} s, {x[i]:.3g} m, {z[i]:.3g} m up")
+                   label=plain(f"{e.name}: t = {e.t:.4g} s, {x[i]:.3g} m, {z[i]:.3g} m up"))
     if a.get_legend_handles_labels()[0]:
         a.legend(loc="upper left", title="events (time, distance, altitude)", title_fontsize=8)
     a.set_xlabel("horizontal distance from the launch point [m]")
@@ -312,7 +327,7 @@ def _ledger(r: FlightResult, directions: tuple[str, ...]) -> Figure:
                 a.set_title({0: "powered flight", 1: "after the powered flight"}[j] if w else "whole flight")
             if i == rows - 1:
                 a.set_xlabel("time [s]")
-    handles = [Patch(color=colours[n], label=n) for n in shown]
+    handles = [Patch(color=colours[n], label=plain(n)) for n in shown]
     handles.append(matplotlib.lines.Line2D([], [], color="black", lw=1.0, label="sum = mass × acceleration"))
     fig.legend(handles=handles, loc="outside right upper", frameon=False, title="balance terms")
     _phases(ax[rows - 1, 0], r, w, label=True)
@@ -388,8 +403,9 @@ def save_plots(result: FlightResult, directory: str | Path, *, formats: Iterable
                names: Iterable[str] | None = None) -> list[Path]:
     """Render the figures and write them to ``directory`` as NAME.png / NAME.svg; return the paths.
 
-    Everything is rendered before the first file is written; each file is
-    written atomically.
+    Everything is rendered before the first file is written, and the files are
+    written all or none (:func:`thrustgraph.outputfiles.write_all`); the
+    folder is created if it is missing and its parent exists.
     """
 
     formats = tuple(formats)
@@ -398,8 +414,7 @@ def save_plots(result: FlightResult, directory: str | Path, *, formats: Iterable
             raise ValueError(f"format must be one of {', '.join(FORMATS)}, got {f!r}")
     blobs = [(Path(directory) / f"{n}.{f}", render(fig, f)) for n, fig in figures(result, names).items()
              for f in formats]
-    for path, data in blobs:
-        atomic_write(path, data)
+    write_all(blobs, directories=[directory])
     return [p for p, _ in blobs]
 
 
@@ -487,7 +502,7 @@ def graph_figure(parsed: Any) -> Figure:
                 nx.draw_networkx_nodes(g, pos, nodelist=nodes, ax=a, node_shape=marker, node_color=colour,
                                        node_size=1400, edgecolors="#333333", linewidths=1.0)
         for n, (x, y) in pos.items():
-            a.text(x, y - 0.48, f"{n}\n{parsed.kinds[n].kind}", ha="center", va="top", fontsize=8)
+            a.text(x, y - 0.48, plain(f"{n}\n{parsed.kinds[n].kind}"), ha="center", va="top", fontsize=8)
         handles = [matplotlib.lines.Line2D([], [], marker=m, ls="", color=c, markeredgecolor="#333333", ms=9,
                                            label=d) for r, (m, c, d) in styles.items() if r in role.values()]
         a.legend(handles=handles, loc="upper right", frameon=False, fontsize=8)
@@ -495,5 +510,5 @@ def graph_figure(parsed: Any) -> Figure:
         ys = [p[1] for p in pos.values()] or [0.0]
         a.set_xlim(min(xs) - 0.8, max(xs) + 1.6)
         a.set_ylim(min(ys) - 1.2, max(ys) + 0.8)
-        fig.suptitle(f"Component graph: {parsed.model.name}", fontsize=11)
+        fig.suptitle(plain(f"Component graph: {parsed.model.name}"), fontsize=11)
     return fig

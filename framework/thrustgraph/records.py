@@ -56,7 +56,14 @@ from .errors import ModelError
 from .units import Q_, to_si
 
 __all__ = ["Record", "ColumnMap", "Trigger", "read_record", "loads_record", "parse_header", "resample",
-           "lowpass", "shift", "trim", "align", "trigger_time", "crossing_time", "is_even"]
+           "lowpass", "shift", "trim", "align", "trigger_time", "crossing_time", "is_even", "MAX_HEADER_CELL",
+           "MIN_SAMPLE_INTERVAL"]
+
+#: The longest header cell read, characters: a name and a unit ("bottle pressure [psi]"), not a document.
+MAX_HEADER_CELL = 200
+#: The shortest time between two samples, s: 1 ns (1 GHz) is far beyond any logger of load, pressure or motion
+#: (common practice, no source); closer times are a unit slip (ms written as s) or corrupt data.
+MIN_SAMPLE_INTERVAL = 1e-9
 
 _HEADER = re.compile(r"^\s*(?P<name>[^\[\]]*?)\s*\[(?P<unit>[^\[\]]*)\]\s*$")
 _PLAIN = ("", "1", "-")
@@ -218,13 +225,18 @@ def parse_header(cell: str, *, where: str) -> tuple[str, str]:
     name, unit = m.group("name"), m.group("unit").strip()
     if unit in _PLAIN:
         return name, ""
+    chained = re.search(r"(\*\*|\^)\s*\(?\s*[-+]?[\d.]+\s*\)?\s*(\*\*|\^)", unit)   # a**b**c
+    if re.search(r"\d{7,}", unit) or chained or any(
+            int(p) > 12 for p in re.findall(r"(?:\*\*|\^)\s*\(?\s*[-+]?(\d+)", unit)):
+        raise ModelError(where, f"the unit {_cut(unit)!r} is an arithmetic expression, not a unit",
+                         "write a unit such as N, lbf, kPa, m/s^2 or kg/m^3")
     try:
         q = Q_(1.0, unit)
         float(q.to_base_units().magnitude)
     except Exception as exc:  # pint raises several types for a bad unit
         extra = " (for a gauge pressure write the plain unit, e.g. psi, and mark the column gauge)" \
             if unit.lower().endswith(("g", "gauge")) else ""
-        raise ModelError(where, f"unknown unit {unit!r} ({type(exc).__name__}){extra}",
+        raise ModelError(where, f"unknown unit {_cut(unit)!r} ({type(exc).__name__}){extra}",
                          "write a unit such as N, lbf, kPa, bar, psi, m, ft, s or ms") from None
     return name, unit
 
@@ -255,10 +267,14 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
                          "give a header line such as \"time [s],thrust [N]\" and data rows")
     head_no, head = lines[0]
     delim = max(",;\t", key=head.count)
-    cells = next(csv.reader([head], delimiter=delim))
+    cells = _cells(head, delim, f"{source}: line {head_no}")
     names: list[str] = []
     units: list[str] = []
     for k, cell in enumerate(cells):
+        if len(cell) > MAX_HEADER_CELL:
+            raise ModelError(f"{source}: line {head_no}, column {k + 1} {_cut(cell.strip())!r}",
+                             f"the header cell has {len(cell):,} characters (at most {MAX_HEADER_CELL:,})",
+                             'write a name and a unit, e.g. "thrust [N]"; check that the file is the logger\'s CSV')
         name, unit = parse_header(cell, where=f"{source}: column {k + 1} {cell.strip()!r}")
         if name in names:
             raise ModelError(f"{source}: column {k + 1} {cell.strip()!r}", f"the name {name!r} appears twice",
@@ -278,7 +294,7 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
     raw = np.empty((len(rows), len(names)))
     gaps: dict[int, list[int]] = {}
     for i, (line_no, line) in enumerate(rows):
-        vals = next(csv.reader([line], delimiter=delim))
+        vals = _cells(line, delim, f"{source}: line {line_no}")
         if len(vals) != len(names):
             raise ModelError(f"{source}: line {line_no}", f"has {len(vals)} values but the header names "
                              f"{len(names)} columns", "give one value per column on every line")
@@ -291,7 +307,8 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
             try:
                 x = float(v)
             except ValueError:
-                raise ModelError(f"{source}: column {names[j]!r}, line {line_no}", f"cannot read {v!r} as a number",
+                raise ModelError(f"{source}: column {names[j]!r}, line {line_no}",
+                                 f"cannot read {_cut(v)!r} as a number",
                                  "write plain numbers; the unit belongs in the header") from None
             if not math.isfinite(x):
                 raise ModelError(f"{source}: column {names[j]!r}, line {line_no}", f"{v!r} is not a finite number",
@@ -313,8 +330,14 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
     si_of: dict[str, str] = {}
     time = None
     for j, (name, unit) in enumerate(zip(names, units)):
-        q = Q_(raw[:, j], unit).to_base_units() if unit else Q_(raw[:, j], "")
-        values = np.asarray(q.magnitude, dtype=float)
+        with np.errstate(over="ignore", invalid="ignore"):
+            q = Q_(raw[:, j], unit).to_base_units() if unit else Q_(raw[:, j], "")
+            values = np.asarray(q.magnitude, dtype=float)
+        if not np.all(np.isfinite(values)):
+            i = int(np.argmax(~np.isfinite(values)))
+            raise ModelError(f"{source}: column {name!r}, line {rows[i][0]}",
+                             f"{raw[i, j]:g} {unit} is too large to convert to SI units (it overflows to infinity)",
+                             "check the value and the unit in the header")
         if j == tj:
             time = values
             continue
@@ -328,8 +351,32 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
         raise ModelError(f"{source}: column {time_column!r}, line {rows[i + 1][0]}",
                          f"time does not increase ({raw[i + 1, tj]:g} {units[tj]} follows {raw[i, tj]:g} {units[tj]})",
                          "sort the rows by time and remove repeated samples")
+    if float(np.min(steps)) < MIN_SAMPLE_INTERVAL:
+        i = int(np.argmax(steps < MIN_SAMPLE_INTERVAL))
+        raise ModelError(f"{source}: column {time_column!r}, line {rows[i + 1][0]}",
+                         f"samples {float(steps[i]):.3g} s apart (the least accepted is {MIN_SAMPLE_INTERVAL:g} s, "
+                         "1 GHz)", f"check the time unit in the header (e.g. \"{time_column} [ms]\" for milliseconds)")
     return Record(source=source, sha256=sha256, time=time, columns=columns, units=unit_of, si_units=si_of,
                   time_column=time_column)
+
+
+def _cut(text: str, width: int = 60) -> str:
+    """Text echoed in a message, cut to a readable length.
+
+    >>> _cut("x" * 100, 10)
+    'xxxxxxx...'
+    """
+    return text if len(text) <= width else text[:width - 3] + "..."
+
+
+def _cells(line: str, delim: str, where: str) -> list[str]:
+    """The cells of one CSV line; a line the csv module refuses (a cell beyond its 131,072-character limit,
+    a stray quote) is one clear error."""
+    try:
+        return next(csv.reader([line], delimiter=delim))
+    except csv.Error as exc:
+        raise ModelError(where, f"cannot be read as CSV ({exc}; the line has {len(line):,} characters)",
+                         "a record holds short headers and numbers: check that the file is the logger's CSV") from None
 
 
 def _si_name(unit: str) -> str:

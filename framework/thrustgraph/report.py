@@ -29,9 +29,11 @@ from importlib import metadata
 from typing import Any, Iterable
 
 import numpy as np
+from scipy.integrate import trapezoid
 
 from .model import Model
-from .modelfile import atomic_write, check_model, dumps_model
+from .modelfile import check_model, dumps_model
+from .outputfiles import atomic_write
 from .result import FlightResult
 
 __all__ = ["render_report", "write_report", "ledger_audit"]
@@ -119,8 +121,8 @@ def ledger_audit(result: FlightResult) -> list[dict[str, Any]]:
     rows = []
     total_axis, total_world = 0.0, np.zeros(3)
     for (comp, term), vec in result.ledger.items():
-        ax = float(np.trapezoid(along[(comp, term)], t))
-        world = np.trapezoid(vec, t, axis=0)
+        ax = float(trapezoid(along[(comp, term)], t))
+        world = trapezoid(vec, t, axis=0)
         peak = float(np.max(np.linalg.norm(vec, axis=1))) if len(vec) else 0.0
         rows.append({"component": comp, "term": term, "axis": ax, "x": float(world[0]), "y": float(world[1]),
                      "z": float(world[2]), "peak": peak})
@@ -131,9 +133,9 @@ def ledger_audit(result: FlightResult) -> list[dict[str, Any]]:
     if "inertia" in result.signals:
         ma = result.signals["inertia"]
         e = result.signals["axis"]
-        w = np.trapezoid(ma, t, axis=0)
+        w = trapezoid(ma, t, axis=0)
         rows.append({"component": "", "term": "mass x acceleration",
-                     "axis": float(np.trapezoid(np.einsum("ij,ij->i", ma, e), t)), "x": float(w[0]),
+                     "axis": float(trapezoid(np.einsum("ij,ij->i", ma, e), t)), "x": float(w[0]),
                      "y": float(w[1]), "z": float(w[2]), "peak": float(np.max(np.linalg.norm(ma, axis=1)))})
     return rows
 

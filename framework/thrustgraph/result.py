@@ -25,8 +25,8 @@ from typing import Any
 
 import numpy as np
 
+from .outputfiles import atomic_write
 from .units import Q_
-from .modelfile import atomic_write
 from .errors import ThrustgraphError
 
 __all__ = ["Phase", "Event", "Audit", "FlightResult", "SIGNAL_UNITS"]

@@ -54,9 +54,10 @@ from .errors import ModelError
 from .limits import MAX_DESIGNS, check_count
 from .model import Model, ParsedModel, parse_model
 from .outcomes import OUTCOMES, STATUS_NOT_RUN, STATUS_OK, STATUS_SCREENED, check_outputs, default_outputs
+from .outputfiles import atomic_write
 from .studyprogress import StudyProgress
 from .studyspec import Vary
-from .modelfile import atomic_write, default_model_path, load_model
+from .modelfile import default_model_path, load_model
 from .designs import bounds_text
 from .units import Q_
 
@@ -253,7 +254,6 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     bar = StudyProgress(n, kind, stream=stream, quiet=quiet)
     done = n - len(rows)
     screened = int(np.sum(status == STATUS_SCREENED))
-    bar.update(done, screened)
     interrupted = False
     t0 = time.perf_counter()
     parts = _parts(rows, size, flights)
@@ -263,7 +263,8 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
         stream_ = eng.run(task, feed, progress=lambda start, k: bar.update(done + k, screened))
     else:
         stream_ = eng.run(task, feed)
-    try:
+    try:   # from the first draw of the bar on, an interrupt keeps what has flown (possibly nothing)
+        bar.update(done, screened)
         for res in stream_:
             idx = index_of[res.start]
             values[idx] = res.values
@@ -328,6 +329,10 @@ def sweep(model: Model | str | None, vary: Sequence[Vary | str], *, combine: str
     vary = [as_vary(v) for v in vary]
     if not vary:
         raise ModelError("sweep", "varies no parameter", 'add --vary "components.bottle.fill=0.1..0.6 in 11"')
+    for v in vary:
+        if v.values is None and v.low is None:
+            raise ModelError(f"sweep {v.path}", "gives no values to sweep",
+                             f'write e.g. "{v.path}=LOW..HIGH in N" or "{v.path}=V1, V2"')
     params = [v.resolve(parsed, where=f"sweep {v.path}") for v in vary]
     cols = [v.si_values(p, where=f"sweep {v.path}") for v, p in zip(vary, params)]
     if combine == "grid":
@@ -449,6 +454,8 @@ def sensitivities(model: Model | str | None, vary: Sequence[Vary | str], *, outp
         rows += [up, down]
     table = evaluate(model, params, np.array(rows), outputs, parsed=parsed, kind="sensitivity",
                      info={"step": f"{step:g} of each value"}, **run)
+    if table.interrupted:   # differences need every design: there is nothing partial to report
+        raise KeyboardInterrupt
     if table.status[0] != STATUS_OK:
         raise ModelError("sensitivity", f"the model itself cannot fly: {table.notes[0]}", "fix the model first")
     outs = table.outputs

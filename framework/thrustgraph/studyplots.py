@@ -38,10 +38,11 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from .outcomes import OUTCOMES
-from .plots import render
+from .outputfiles import write_all
+from .plots import plain, render
 
 __all__ = ["sweep_figure", "footprint_figure", "sensitivity_figure", "optimisation_figure",
-           "optimisation_designs_figure", "save_study_plots", "render"]
+           "optimisation_designs_figure", "study_figures", "render_study_plots", "save_study_plots", "render"]
 
 _MAIN = "#1f5fbf"
 _BAD = "#c0392b"
@@ -62,7 +63,7 @@ def _label(name: str) -> str:
 
 
 def _plabel(p) -> str:
-    return f"{p.path} [{p.unit}]" if p.unit else p.path
+    return plain(f"{p.path} [{p.unit}]" if p.unit else p.path)
 
 
 def sweep_figure(table: Any, output: str | None = None) -> Figure:
@@ -87,7 +88,7 @@ def sweep_figure(table: Any, output: str | None = None) -> Figure:
             a.set_ylabel(_label(o))
             a.grid(True, alpha=0.35)
         ax[-1, 0].set_xlabel(_plabel(params[0]))
-        fig.suptitle(f"Sweep of {params[0].path}")
+        fig.suptitle(plain(f"Sweep of {params[0].path}"))
         return fig
     fig, ax = _new()
     a = ax[0, 0]
@@ -234,15 +235,12 @@ def optimisation_designs_figure(opt: Any) -> Figure:
     return fig
 
 
-def save_study_plots(result: Any, directory: str | Path, *, fmt: str = "png", output: str | None = None) -> list[Path]:
-    """Draw the figures that fit a study result and write them to ``directory``; return the paths."""
+def study_figures(result: Any, output: str | None = None) -> dict[str, Figure]:
+    """The figures that fit a study result, by name (``sweep``, ``footprint``, ``sensitivity``...)."""
     from .dispersion import Dispersion
-    from .modelfile import atomic_write
     from .optimisation import OptimisationResult
     from .studies import DesignTable, Sensitivity
 
-    d = Path(directory)
-    d.mkdir(parents=True, exist_ok=True)
     figs: dict[str, Figure] = {}
     if isinstance(result, DesignTable):
         figs["sweep"] = sweep_figure(result, output)
@@ -255,12 +253,22 @@ def save_study_plots(result: Any, directory: str | Path, *, fmt: str = "png", ou
     elif isinstance(result, OptimisationResult):
         figs["optimisation"] = optimisation_figure(result)
         figs["optimisation-designs"] = optimisation_designs_figure(result)
-    paths = []
-    for name, fig in figs.items():
-        p = d / f"{name}.{fmt}"
-        atomic_write(p, render(fig, fmt))
-        paths.append(p)
-    return paths
+    return figs
+
+
+def render_study_plots(result: Any, directory: str | Path, *, fmt: str = "png", output: str | None = None
+                       ) -> list[tuple[Path, bytes]]:
+    """``(directory/NAME.fmt, image bytes)`` of every figure that fits a study result, rendered in memory."""
+    d = Path(directory)
+    return [(d / f"{name}.{fmt}", render(fig, fmt)) for name, fig in study_figures(result, output).items()]
+
+
+def save_study_plots(result: Any, directory: str | Path, *, fmt: str = "png", output: str | None = None) -> list[Path]:
+    """Draw the figures that fit a study result and write them to ``directory`` (created if missing, its parent
+    must exist), all or none; return the paths."""
+    blobs = render_study_plots(result, directory, fmt=fmt, output=output)
+    write_all(blobs, directories=[directory])
+    return [p for p, _ in blobs]
 
 
 def _histogram(dispersion: Any, output: str) -> Figure:

@@ -111,8 +111,12 @@ class Vary:
     def parse(cls, text: str, where: str = "--vary") -> "Vary":
         """Read ``PATH=LOW..HIGH in N``, ``PATH=V1, V2``, ``PATH=LOW..HIGH`` or ``PATH``."""
         path, rest = _split_path(text, where, '"components.bottle.fill=0.1..0.6 in 11"')
-        if rest is None or rest == "":
+        if rest is None:   # just PATH: a sensitivity's parameter
             return cls(path)
+        if rest == "":
+            raise ModelError(f"{where} {text.strip()}", "gives no values after '='",
+                             'write values, e.g. "components.bottle.fill=0.1..0.6 in 11" or "...=0.2, 0.3", or '
+                             "just the path (no '=') for a sensitivity")
         return cls.from_entry(path, rest, where=f"{where} {path}")
 
     @classmethod
@@ -160,7 +164,10 @@ class Vary:
             if not lo.strip() or not rest.strip():
                 raise ModelError(where, f"{text!r} lacks a bound on one side of '..'", fix)
             return cls(path, low=literal(lo), high=literal(rest), count=count)
-        return cls(path, values=tuple(literal(v) for v in text.split(",") if v.strip()))
+        values = tuple(literal(v) for v in text.split(",") if v.strip())
+        if not values:
+            raise ModelError(where, f"{text!r} holds no value", fix)
+        return cls(path, values=values)
 
     @property
     def unit(self) -> str | None:

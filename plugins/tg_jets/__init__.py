@@ -31,6 +31,7 @@ Examples
 from __future__ import annotations
 
 import numpy as np
+from scipy.integrate import trapezoid
 
 from thrustgraph import hookimpl
 from thrustgraph.component import ComponentKind, EventSpec, JetFns, Mode, StateVar
@@ -86,7 +87,7 @@ class PrescribedJet(ComponentKind):
         if p.programme == "constant-flow":
             return p.propellant_mass
         tc = p.thrust_curve
-        return float(np.trapezoid(tc[:, 1], tc[:, 0])) / p.exhaust_velocity
+        return float(trapezoid(tc[:, 1], tc[:, 0])) / p.exhaust_velocity
 
     @classmethod
     def burn_time(cls, p) -> float:

@@ -12,6 +12,7 @@ from typing import Any, Sequence
 from ..errors import ModelError
 from .common import add_set_option, load_with_overrides, parse_override
 from .compare import add_record_options, check_plot_names, mapping_from, parse_pair, prepared, read_records
+from .outputs import check_paths, write_outputs
 
 NAME = "calibrate"
 HELP = ("fit uncertain parameters (discharge coefficient, expansion exponent, drag...) to measured records; "
@@ -64,11 +65,17 @@ def split_condition(text: str, records: Sequence[str]) -> tuple[str, str, Any]:
 
 def main(args: argparse.Namespace) -> int:
     from ..calibrate import FitParameter, MeasuredRun, calibrate, compare_runs
-    from ..compare import plot_comparison
+    from ..compare import plot_format, render_comparison
     from ..model import parse_model
-    from ..modelfile import atomic_write, dumps_model, loads_model
+    from ..modelfile import dumps_model, loads_model
 
     check_plot_names(args.plot)
+    if args.max_iterations < 1:
+        raise ModelError("--max-iterations", f"must be at least 1, got {args.max_iterations}",
+                         "allow the solver some evaluations, e.g. --max-iterations 60 (the default)")
+    if not 0.0 < args.confidence < 1.0:
+        raise ModelError("--confidence", f"must be a level between 0 and 1, got {args.confidence:g}", "use e.g. 0.95")
+    check_paths([args.out, args.report, *args.plot])   # before fitting: a bad path costs nothing
     if not args.fit:
         raise ModelError("--fit", "no parameter to fit",
                          "name one with its bounds, e.g. --fit components.neck.discharge_coefficient=0.5..1.0")
@@ -107,16 +114,14 @@ def main(args: argparse.Namespace) -> int:
     print(f"thrustgraph: calibrating {model.name}")
     print()
     print(cal.report())
-    atomic_write(args.out, text)
-    print(f"wrote {args.out}")
+    outputs: list[tuple[str, Any]] = [(args.out, text)]
     if args.report:
-        atomic_write(args.report, cal.to_json())
-        print(f"wrote {args.report}")
+        outputs.append((args.report, cal.to_json()))
     if args.plot:
         comps = compare_runs(calibrated, cal.runs)
-        for path in args.plot:
-            plot_comparison(comps, path, title=f"{model.name} calibrated: prediction against measurement")
-            print(f"wrote {path}")
+        title = f"{model.name} calibrated: prediction against measurement"
+        outputs += [(path, render_comparison(comps, plot_format(path), title=title)) for path in args.plot]
+    write_outputs(outputs)   # the model, the report and the plots: all or none
     cautions = parse_model(calibrated).cautions()
     if cautions:
         print()

@@ -17,6 +17,7 @@ from ..errors import ModelError
 from ..model import Model
 from ..records import ColumnMap, Record, Trigger, read_record, resample
 from .common import add_set_option, load_with_overrides
+from .outputs import check_paths, write_outputs
 
 NAME = "compare"
 HELP = "compare a model's prediction with a measured record (CSV with units in the headers): metrics and plots"
@@ -131,10 +132,10 @@ def check_plot_names(paths: Sequence[str]) -> None:
 
 
 def main(args: argparse.Namespace) -> int:
-    from ..compare import compare, plot_comparison
-    from ..modelfile import atomic_write
+    from ..compare import compare, plot_format, render_comparison
 
     check_plot_names(args.plot)
+    check_paths([*args.plot, args.json])   # before flying: a bad path costs nothing
     model = load_with_overrides(args.model, args.overrides)
     mapping = mapping_from(args)
     record = read_records([args.record], args)[0]
@@ -143,12 +144,12 @@ def main(args: argparse.Namespace) -> int:
     print(f"thrustgraph: {model.name} against {args.record}")
     print()
     print(comparison.report())
-    for path in args.plot:
-        plot_comparison(comparison, path, title=f"{model.name}: prediction against {rec.source}")
-        print(f"wrote {path}")
+    title = f"{model.name}: prediction against {rec.source}"
+    outputs: list[tuple[str, Any]] = [(path, render_comparison(comparison, plot_format(path), title=title))
+                                      for path in args.plot]
     if args.json:
-        atomic_write(args.json, comparison.to_json())
-        print(f"wrote {args.json}")
+        outputs.append((args.json, comparison.to_json()))
+    write_outputs(outputs)
     if result.cautions:
         print()
         print("Cautions")

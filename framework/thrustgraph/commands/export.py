@@ -15,7 +15,7 @@ from pathlib import Path
 
 from ..errors import ThrustgraphError
 from .common import add_model_argument, add_set_option
-from .outputs import add_quiet_option, default_stem, fly_model, load_checked, write_outputs
+from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, write_outputs
 
 NAME = "export"
 HELP = "fly a model and write its results: CSV time series, JSON summary, Parquet (when pyarrow is installed)"
@@ -45,7 +45,6 @@ def main(args: argparse.Namespace) -> int:
         raise ThrustgraphError("Parquet output needs pyarrow, which is not installed. Fix: pip install "
                                "'thrustgraph[parquet]' (or pip install pyarrow), or write CSV instead")
     model, parsed = load_checked(args.model, args.overrides)
-    result = fly_model(parsed, quiet=args.quiet)
     targets: list[tuple[str, str | Path]] = []
     if args.out_dir:
         stem = Path(args.out_dir) / default_stem(model)
@@ -57,9 +56,11 @@ def main(args: argparse.Namespace) -> int:
     for kind in ("csv", "json", "parquet"):
         if getattr(args, kind):
             targets.append((kind, getattr(args, kind)))
+    check_paths([path for _, path in targets], [args.out_dir])   # before flying
+    result = fly_model(parsed, quiet=args.quiet)
     make = {"csv": lambda: result.to_csv(provenance=True), "json": result.to_json, "parquet": result.to_parquet}
     outputs = [(path, make[kind]()) for kind, path in targets]  # everything in memory before any file is written
-    write_outputs(outputs)
+    write_outputs(outputs, directories=[args.out_dir])
     if not result.success:
         print(f"note: {result.message}")
     return 0

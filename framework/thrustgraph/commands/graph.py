@@ -12,7 +12,7 @@ from pathlib import Path
 
 from ..errors import ThrustgraphError
 from .common import add_model_argument, add_set_option
-from .outputs import default_stem, load_checked, need_matplotlib, write_outputs
+from .outputs import check_paths, default_stem, load_checked, need_matplotlib, write_outputs
 
 NAME = "graph"
 HELP = "draw a model's component graph to an image (PNG or SVG)"
@@ -33,6 +33,7 @@ def main(args: argparse.Namespace) -> int:
     from ..plots import graph_figure, render
 
     out = Path(args.out) if args.out else Path(f"{default_stem(model)}-graph.png")
+    check_paths([out])
     data = render(graph_figure(parsed), out.suffix.lower().lstrip("."))
     write_outputs([(out, data)])
     return 0

@@ -9,12 +9,12 @@ from __future__ import annotations
 
 import argparse
 import difflib
+import os
 import re
-from pathlib import Path
 
 from ..errors import ModelError
 from ..modelfile import bundled_models, default_model_path, dumps_model, load_model, loads_model
-from .outputs import write_outputs
+from .outputs import check_paths, write_outputs
 
 NAME = "new"
 HELP = "create a model file from a bundled starter scenario (list them with --list)"
@@ -57,8 +57,9 @@ def main(args: argparse.Namespace) -> int:
         hint = f"did you mean {close[0]!r}?" if close else f"bundled scenarios: {', '.join(scenarios)}"
         raise ModelError(f"--from {args.scenario}", "no such bundled scenario", hint)
     target = args.file
-    if Path(target).exists() and not args.force:
+    if os.path.lexists(target) and not args.force:
         raise ModelError(target, "already exists; it was left as it is", "choose another name or add --force")
+    check_paths([target])
     text = scenarios[args.scenario].read_text(encoding="utf-8")
     if args.name is not None:
         line = "name = " + dumps_model_name(args.name)

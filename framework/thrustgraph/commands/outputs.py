@@ -1,8 +1,9 @@
 """Helpers the sub-commands share: load and check a model, fly it with progress, write outputs all or nothing.
 
-Every command that writes files builds all of their content in memory first
-and only then writes them, each through a temporary file and a rename, so bad
-input or a failed flight leaves no file behind.
+Every command that writes files checks every output path before it does any
+work (:func:`check_paths`), builds all of their content in memory, and then
+writes them all or none (:func:`thrustgraph.outputfiles.write_all`): bad
+input, a bad path, a failed flight or an interrupt leaves no file behind.
 
 >>> default_stem(Model(name="Two-litre water rocket!"))
 'two-litre-water-rocket'
@@ -17,11 +18,12 @@ from typing import Any, Sequence
 
 from ..errors import ModelError, ThrustgraphError
 from ..model import Model, ParsedModel, parse_model
-from ..modelfile import atomic_write
+from ..outputfiles import check_outputs, write_all
 from .common import load_with_overrides, parse_override
 from .progress import Progress
 
-__all__ = ["add_quiet_option", "load_checked", "fly_model", "default_stem", "need_matplotlib", "write_outputs"]
+__all__ = ["add_quiet_option", "load_checked", "fly_model", "default_stem", "need_matplotlib", "check_paths",
+           "write_outputs"]
 
 
 def add_quiet_option(p: argparse.ArgumentParser) -> None:
@@ -74,23 +76,18 @@ def need_matplotlib() -> None:
                                "install 'thrustgraph[plots]' (or pip install matplotlib)") from None
 
 
-def write_outputs(outputs: Sequence[tuple[str | Path, str | bytes]], *, say: bool = True) -> None:
-    """Write prepared outputs, each atomically; print ``wrote PATH`` for each."""
-    for path, data in outputs:
-        p = Path(path)
-        if p.is_dir():
-            raise ThrustgraphError(f"cannot write {p}: it is a directory. Fix: give a file name")
-        for parent in p.parents:
-            if parent.exists():
-                if not parent.is_dir():
-                    raise ThrustgraphError(f"cannot write {p}: {parent} is a file, not a directory. "
-                                           "Fix: choose another output directory")
-                break
-    for path, data in outputs:
-        try:
-            atomic_write(path, data)
-        except OSError as exc:
-            raise ThrustgraphError(f"cannot write {path}: {exc.strerror or exc}. Fix: check the directory exists "
-                                   "and is writable") from None
-        if say:
+def check_paths(files: Sequence[str | Path | None] = (), directories: Sequence[str | Path | None] = ()) -> None:
+    """Refuse, before any work, an output that cannot be written (``None`` entries are options not given)."""
+    check_outputs([f for f in files if f], [d for d in directories if d])
+
+
+def write_outputs(outputs: Sequence[tuple[str | Path, str | bytes]], *, directories: Sequence[str | Path] = (),
+                  say: bool = True) -> None:
+    """Write prepared outputs all or none; print ``wrote PATH`` for each once all are in place.
+
+    ``directories`` are output folders the user named (created when missing; their parent must exist).
+    """
+    write_all(outputs, directories=[d for d in directories if d])
+    if say:
+        for path, _ in outputs:
             print(f"wrote {path}")

@@ -12,7 +12,7 @@ import argparse
 from pathlib import Path
 
 from .common import add_model_argument, add_set_option
-from .outputs import add_quiet_option, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
+from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
 
 NAME = "plot"
 HELP = "fly a model and draw thrust, mass, pressure, motion, trajectory and balance-ledger plots (PNG/SVG)"
@@ -33,12 +33,13 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 def main(args: argparse.Namespace) -> int:
     need_matplotlib()
     model, parsed = load_checked(args.model, args.overrides)
+    out = Path(args.out) if args.out else Path(f"{default_stem(model)}-plots")
+    check_paths(directories=[out])   # before flying
     result = fly_model(parsed, quiet=args.quiet)
     from ..plots import figures, render
 
-    out = Path(args.out) if args.out else Path(f"{default_stem(model)}-plots")
     formats = ("png", "svg") if args.format == "both" else (args.format,)
     outputs = [(out / f"{name}.{fmt}", render(fig, fmt)) for name, fig in figures(result, args.only).items()
                for fmt in formats]
-    write_outputs(outputs)
+    write_outputs(outputs, directories=[out])
     return 0

@@ -11,7 +11,7 @@ import argparse
 from pathlib import Path
 
 from .common import add_model_argument, add_set_option
-from .outputs import add_quiet_option, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
+from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
 
 NAME = "report"
 HELP = "fly a model and write a self-contained HTML report (summary, plots, ledger audit, events, model, versions)"
@@ -27,10 +27,11 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 def main(args: argparse.Namespace) -> int:
     need_matplotlib()
     model, parsed = load_checked(args.model, args.overrides)
+    out = Path(args.out) if args.out else Path(f"{default_stem(model)}-report.html")
+    check_paths([out])   # before flying
     result = fly_model(parsed, quiet=args.quiet)
     from ..report import render_report
 
-    out = Path(args.out) if args.out else Path(f"{default_stem(model)}-report.html")
     write_outputs([(out, render_report(result, model, parsed=parsed))])
     print(f"outcome: {result.message}")
     return 0

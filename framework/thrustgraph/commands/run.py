@@ -7,10 +7,10 @@ import math
 from typing import Sequence
 
 from ..integrate import integrate
-from ..modelfile import atomic_write
 from ..result import FlightResult
+
 from .common import add_model_argument, add_set_option, load_with_overrides
-from .outputs import add_quiet_option, fly_model, load_checked, need_matplotlib, write_outputs
+from .outputs import add_quiet_option, check_paths, fly_model, load_checked, need_matplotlib, write_outputs
 
 NAME = "run"
 HELP = "fly a model and print the summary (burn time, peak thrust and acceleration, apogee or range, audits)"
@@ -83,6 +83,7 @@ def main(args: argparse.Namespace) -> int:
     if args.plots or args.report:
         need_matplotlib()
     model, parsed = load_checked(args.model, args.overrides)  # errors name the file or the --set option
+    check_paths([args.csv, args.json, args.report], [args.plots])  # before flying: a bad path costs nothing
     result = fly_model(parsed, quiet=args.quiet)
     # Build every output in memory first, so a failure leaves no partial file.
     outputs = []
@@ -97,5 +98,5 @@ def main(args: argparse.Namespace) -> int:
         from ..report import render_report
         outputs.append((args.report, render_report(result, model, parsed=parsed)))
     print(format_summary(result, model.name))
-    write_outputs(outputs)
+    write_outputs(outputs, directories=[args.plots])
     return 0

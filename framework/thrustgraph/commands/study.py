@@ -3,8 +3,11 @@
 The study comes from the model's ``[study]`` table, from the options, or
 both (options replace what the table says for the same item). The table of
 designs is written as CSV (``--table``) and the plots into a directory
-(``--plots``). Ctrl-C stops the study and still writes the designs already
-flown (the rest are marked "not run"); the exit status is then 130.
+(``--plots``); every output path is checked before the first design flies.
+Ctrl-C or SIGTERM stops the study and still writes the designs already
+flown (the rest are marked "not run"); the exit status is then 130 (143 for
+SIGTERM). A study stopped before any design flew writes nothing, so an
+earlier table at the same path is kept, never replaced by an empty one.
 docs/studies.md describes the options and the ``[study]`` table.
 """
 
@@ -18,10 +21,11 @@ from typing import Any
 import numpy as np
 
 from ..errors import ModelError
+from ..interrupts import exit_status
 from ..outcomes import OUTCOMES, check_outputs, default_outputs
 from ..studyspec import KINDS, Limit, Spread, StudyDefinition, Vary, read_study
 from .common import add_model_argument, add_set_option
-from .outputs import add_quiet_option, load_checked, need_matplotlib, write_outputs
+from .outputs import add_quiet_option, check_paths, load_checked, need_matplotlib, write_outputs
 
 NAME = "study"
 HELP = ("run a design study: a sweep, an optimisation, a dispersion (Monte Carlo) or local sensitivities, "
@@ -149,6 +153,11 @@ def main(args: argparse.Namespace) -> int:
         raise ModelError("--workers", f"must be at least 1, got {args.workers}", "give a positive number")
     if args.chunk is not None and args.chunk < 1:
         raise ModelError("--chunk", f"must be at least 1, got {args.chunk}", "give a positive number")
+    if not (math.isfinite(args.wait) and args.wait > 0):
+        raise ModelError("--wait", f"must be a positive number of seconds, got {args.wait:g}", "use e.g. --wait 10")
+    if args.summary and d.kind not in ("sensitivity", "dispersion"):
+        raise ModelError("--summary", f"a {d.kind} has no summary table", "use --table for its designs")
+    check_paths([args.table, args.summary], [args.plots])   # before the first design flies
     run = dict(engine=engine, flights=args.flights, workers=args.workers, scheduler=args.scheduler,
                timeout=args.wait, chunk_size=args.chunk, quiet=args.quiet)
     from .. import studies
@@ -191,19 +200,23 @@ def main(args: argparse.Namespace) -> int:
         if len(screened) > 8:
             print(f"  ... and {len(screened) - 8} more (see the table)")
     outputs: list[tuple[str, Any]] = []
+    nothing_flew = table.interrupted and table.counts["ok"] == 0
     if args.table:
         outputs.append((args.table, table.to_csv()))
-    if args.summary:
-        if summary_csv is None:
-            raise ModelError("--summary", f"a {d.kind} has no summary table", "use --table for its designs")
+    if args.summary and summary_csv is not None:
         outputs.append((args.summary, summary_csv))
-    print()
-    write_outputs(outputs)
     if args.plots:
-        from ..studyplots import save_study_plots
+        from ..studyplots import render_study_plots
 
-        for path in save_study_plots(result, args.plots):
-            print(f"wrote {path}")
+        outputs += render_study_plots(result, args.plots)
+    print()
+    if nothing_flew:   # an empty table must not replace a good one from an earlier run
+        if outputs:
+            print(f"thrustgraph: no design flew before the study was stopped: nothing was written (an existing "
+                  f"{', '.join(str(p) for p, _ in outputs[:2])}{' ...' if len(outputs) > 2 else ''} was left as "
+                  "it was)", file=sys.stderr)
+    else:
+        write_outputs(outputs, directories=[args.plots])   # the table, the summary and the plots: all or none
     cautions = parsed.cautions()
     if cautions:
         print()
@@ -212,9 +225,9 @@ def main(args: argparse.Namespace) -> int:
             print(f"  ! {c}")
     if table.interrupted:
         done = len(table) - table.counts["not run"]
-        where = f"; wrote them to {args.table}" if args.table else ""
+        where = f"; wrote them to {args.table}" if args.table and not nothing_flew else ""
         print(f"thrustgraph: interrupted: {done} of {len(table)} designs were flown{where}", file=sys.stderr)
-        return 130
+        return exit_status()
     return 0
 
 
