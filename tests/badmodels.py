@@ -129,7 +129,7 @@ def _scaled(value: Any, rng: random.Random) -> Any:
         except OverflowError:
             return math.inf
     if isinstance(value, str):
-        m = re.match(r"^\s*([-+0-9.eE]+)\s*(.*)$", value)
+        m = re.match(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*)$", value)
         if m:
             return f"{m.group(1)}e{k} {m.group(2)}".strip() if "e" not in m.group(1).lower() else \
                 f"{float(m.group(1)) * 10.0 ** min(k, 300):g} {m.group(2)}".strip()
