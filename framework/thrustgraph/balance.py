@@ -46,7 +46,7 @@ from scipy.optimize import brentq
 from .component import Flow, Outlet
 from .errors import IntegrationError
 from .plan import ACCUMULATORS, LinePlan, Plan
-from .vectors import frame_of, to_world
+from .vectors import frame_of, solve_rank_one, to_world
 from .xp import scalar_ops
 
 __all__ = ["Balance", "Kinematics", "LineFlow", "ACCUMULATORS", "SINGULAR"]
@@ -411,7 +411,9 @@ class Balance:
                     c = sums.flows[j].slope
                     dw, jd = dirs[j]
                     pairs.append(((-c * jd[0], -c * jd[1], -c * jd[2]), (head * dw[0], head * dw[1], head * dw[2])))
-            d, sing = _solve_rank_one(M, pairs, (rx, ry, rz), ops)
+            d, sing = solve_rank_one(M, pairs, (rx, ry, rz), ops)
+            if not ops.arrays and sing:
+                raise IntegrationError(SINGULAR)
             singular = singular | sing
             ax, ay, az = ax - d[0], ay - d[1], az - d[2]
             sums = self._lines_at(ctx, (-ax, -ay, -g - az))
@@ -690,35 +692,6 @@ def _as_list(y: Any) -> list:
     if type(y) is list:
         return y
     return y.tolist() if hasattr(y, "tolist") else list(y)
-
-
-def _solve_rank_one(m: Any, pairs: list, b: Sequence[Any], ops: Any):
-    """Solve ``(m I + sum_k u_k v_k^T) x = b`` by repeated Sherman-Morrison updates, over floats or arrays.
-
-    Returns ``(x, singular)``; for one design a singular system raises :class:`IntegrationError`.
-
-    >>> from thrustgraph.xp import scalar_ops
-    >>> _solve_rank_one(2.0, [((1.0, 0.0, 0.0), (1.0, 0.0, 0.0))], (3.0, 2.0, 0.0), scalar_ops)
-    ((1.0, 1.0, 0.0), False)
-    """
-    x = (b[0] / m, b[1] / m, b[2] / m)
-    ws = [(u[0] / m, u[1] / m, u[2] / m) for u, _ in pairs]
-    singular: Any = False
-    for k, (_, v) in enumerate(pairs):
-        wk = ws[k]
-        den = 1.0 + v[0] * wk[0] + v[1] * wk[1] + v[2] * wk[2]
-        bad = ops.abs(den) < 1e-12
-        if not ops.arrays and bad:
-            raise IntegrationError(SINGULAR)
-        singular = singular | bad
-        den = ops.where(bad, 1.0, den)
-        cx = (v[0] * x[0] + v[1] * x[1] + v[2] * x[2]) / den
-        x = (x[0] - cx * wk[0], x[1] - cx * wk[1], x[2] - cx * wk[2])
-        for j in range(k + 1, len(ws)):
-            wj = ws[j]
-            cj = (v[0] * wj[0] + v[1] * wj[1] + v[2] * wj[2]) / den
-            ws[j] = (wj[0] - cj * wk[0], wj[1] - cj * wk[1], wj[2] - cj * wk[2])
-    return x, singular
 
 
 def _solve_line(ln: LinePlan, up: Outlet, pa: float, tmode: int, smodes: tuple, mfix: float):

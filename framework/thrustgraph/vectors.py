@@ -7,6 +7,7 @@
 from __future__ import annotations
 
 import math
+from typing import Any, Sequence
 
 __all__ = ["unit_from_angles", "body_frame", "to_world", "solve_rank_one", "frame_of"]
 
@@ -67,31 +68,29 @@ def to_world(d: Vec, frame: tuple[Vec, Vec, Vec]) -> Vec:
             d[0] * xb[2] + d[1] * yb[2] + d[2] * zb[2])
 
 
-def solve_rank_one(m: float, pairs: list[tuple[Vec, Vec]], b: Vec) -> Vec:
-    """Solve ``(m I + sum_k u_k v_k^T) x = b`` by repeated Sherman-Morrison updates.
+def solve_rank_one(m: Any, pairs: list, b: Sequence[Any], ops: Any) -> tuple[tuple[Any, Any, Any], Any]:
+    """Solve ``(m I + sum_k u_k v_k^T) x = b`` by repeated Sherman-Morrison updates, over floats or arrays.
 
-    >>> solve_rank_one(2.0, [((1.0, 0.0, 0.0), (1.0, 0.0, 0.0))], (3.0, 2.0, 0.0))
-    (1.0, 1.0, 0.0)
+    Returns ``(x, singular)``: ``singular`` is True (per design) where an update's denominator vanishes; the
+    solution there is not meaningful (the caller decides: a single flight stops, an ensemble screens the design).
+
+    >>> from thrustgraph.xp import scalar_ops
+    >>> solve_rank_one(2.0, [((1.0, 0.0, 0.0), (1.0, 0.0, 0.0))], (3.0, 2.0, 0.0), scalar_ops)
+    ((1.0, 1.0, 0.0), False)
     """
-    if len(pairs) == 1:
-        (u, v), = pairs
-        den = m + v[0] * u[0] + v[1] * u[1] + v[2] * u[2]
-        if abs(den) < 1e-12 * abs(m):
-            raise ZeroDivisionError("singular acceleration system")
-        c = (v[0] * b[0] + v[1] * b[1] + v[2] * b[2]) / (m * den)
-        return (b[0] / m - c * u[0], b[1] / m - c * u[1], b[2] / m - c * u[2])
-    # Keep x = A_k^{-1} b and w_j = A_k^{-1} u_j for the pairs not yet added.
     x = (b[0] / m, b[1] / m, b[2] / m)
     ws = [(u[0] / m, u[1] / m, u[2] / m) for u, _ in pairs]
+    singular: Any = False
     for k, (_, v) in enumerate(pairs):
         wk = ws[k]
         den = 1.0 + v[0] * wk[0] + v[1] * wk[1] + v[2] * wk[2]
-        if abs(den) < 1e-12:
-            raise ZeroDivisionError("singular acceleration system")
+        bad = ops.abs(den) < 1e-12
+        singular = singular | bad
+        den = ops.where(bad, 1.0, den)
         cx = (v[0] * x[0] + v[1] * x[1] + v[2] * x[2]) / den
         x = (x[0] - cx * wk[0], x[1] - cx * wk[1], x[2] - cx * wk[2])
         for j in range(k + 1, len(ws)):
             wj = ws[j]
             cj = (v[0] * wj[0] + v[1] * wj[1] + v[2] * wj[2]) / den
             ws[j] = (wj[0] - cj * wk[0], wj[1] - cj * wk[1], wj[2] - cj * wk[2])
-    return x
+    return x, singular
