@@ -46,16 +46,14 @@ The implementer's contract
    :class:`FlowFns`, :class:`JetFns`). ``i`` is the offset of your first state in
    the flat state list ``s`` those callables receive; ``amb`` the ambient
    conditions at the launch point.
-5. The callables take and return plain floats and tuples. They must not mutate
+5. The callables take and return floats and tuples (:class:`Outlet` and
+   :class:`Flow` records where the bundles say so). They must not mutate
    anything: adaptive solvers evaluate trial stages and reject steps.
-6. Write physics without ``if`` on state values where you can (``ops.where``,
-   ``ops.maximum``, clipping arguments of square roots), so the same code can
-   run over numpy arrays of designs.
+6. Write each callable once against ``ops`` (:mod:`thrustgraph.xp`): no ``if``
+   on a value that may differ between designs (``ops.where``, ``ops.branch``,
+   clipped square roots), so the same code runs for one design on floats and
+   for an ensemble on numpy arrays. Set ``vectorised = True`` when it does.
 7. Units inside are SI: Pa, K, kg, m, s, kg/m^3, N.
-   A kind that can also fly in the vectorised ensemble sets ``vectorised = True``
-   and builds array callables when ``ops`` is :data:`thrustgraph.arrayops.array_ops`
-   (the full convention is in that module's docstring); its scalar build must
-   stay bit-identical.
 8. Return safety cautions for the model from :meth:`ComponentKind.cautions`.
 9. Numbers that sum up a run for this component (a parachute's deployment
    speed) are outcomes: declare each once in ``outcomes`` (a tuple of
@@ -331,7 +329,7 @@ class ComponentKind(_Declared):
     states: ClassVar[tuple[StateVar, ...]] = ()
     modes: ClassVar[tuple[Mode, ...]] = ()
     stores_pressure: ClassVar[bool] = False
-    #: True when the builders also accept :data:`thrustgraph.arrayops.array_ops` (vectorised ensembles).
+    #: True when the callables are written once for floats and arrays (:mod:`thrustgraph.xp`; ensembles).
     vectorised: ClassVar[bool] = False
     #: SI units of the signals this kind reports (signal key -> unit), for results, CSV headers and triggers.
     signal_units: ClassVar[dict[str, str]] = {}
