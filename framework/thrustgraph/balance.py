@@ -135,7 +135,6 @@ class Balance:
             any(not j.aft for j in plan.jets)
         self._forces = plan.forces
         self._masses = [v.fns.mass for v in plan.vessels] + [j.fns.mass for j in plan.jets]
-        self._n_owned = sum(1 for _ in plan.owners)
         self.set_phase([0] * len(plan.moded) if not hasattr(system, "mode0") else list(system.mode0),
                        Kinematics.BY_MOUNT[c.mount], False)
 

@@ -144,11 +144,6 @@ class LinePlan:
     def members(self) -> tuple[str, ...]:
         return (self.start, self.terminal) + tuple(e.name for e in self.series)
 
-    # names kept for readers of the earlier System.lines
-    @property
-    def start_kind(self) -> str:
-        return "volume" if self.from_vessel else "source"
-
 
 @dataclass(frozen=True)
 class Constraint:
@@ -205,10 +200,6 @@ class Plan:
     def forces(self) -> tuple[BodyPlan, ...]:
         """The bodies that apply a force."""
         return tuple(b for b in self.bodies if b.force is not None)
-
-    def mode(self, name: str, modes: Sequence[Any]) -> Any:
-        """The mode (index, or array of indices) of component ``name`` given the modes of every slot."""
-        return modes[self.moded.index(name)] if name in self.modes else 0
 
 
 def build_plan(parsed: Any, params: Mapping[str, Any], env_params: Mapping[str, Any], ops: Any, amb: Any,
