@@ -33,6 +33,8 @@ SWEEPS = {
                                   "components.airframe.dry_mass": (0.08, 0.16)},
     "small-rocket-standard-atmosphere": {"components.airframe.dry_mass": (0.3, 0.9),
                                          "launch.elevation": (np.radians(70.0), np.radians(89.0))},
+    "rocket-with-parachute": {"components.airframe.dry_mass": (0.9, 1.5),
+                              "launch.elevation": (np.radians(75.0), np.radians(89.0))},
 }
 
 

@@ -73,7 +73,7 @@ def test_the_ensemble_flies_the_bottle_rocket_family():
     # the models whose every kind builds array callables; the others fly one design at a time (the study says
     # so at its start)
     assert {p.stem for p in FLYABLE} >= {"bottle-rocket", "twin-nozzle-bottle-rocket",
-                                        "small-rocket-standard-atmosphere"}
+                                        "small-rocket-standard-atmosphere", "rocket-with-parachute"}
 
 
 def _model(path: Path, options: dict):
@@ -204,11 +204,11 @@ def test_a_large_study_the_ensemble_cannot_fly_says_so_when_it_starts():
 
     from thrustgraph.studies import evaluate
 
-    m = tg.load_model(Path(tg.default_model_path()).parent / "rocket-with-parachute.toml")
+    m = tg.load_model(Path(tg.default_model_path()).parent / "hose-fed-hover.toml")
     parsed = parse_model(m)
-    p = resolve(parsed, "components.airframe.dry_mass")
+    p = resolve(parsed, "components.platform.dry_mass")
     out = io.StringIO()
     table = evaluate(m, [p], np.full((200, 1), -1.0), ["apogee"], parsed=parsed, engine="serial", stream=out)
     text = out.getvalue().splitlines()[0]
-    assert "flying 200 designs one at a time" in text and "drogue" in text, text
+    assert "flying 200 designs one at a time" in text and "hose" in text, text
     assert table.counts["screened"] == 200

@@ -60,8 +60,6 @@ def unsupported(parsed: ParsedModel) -> str | None:
             return f"components.{n} kind {cls.kind!r} builds no array callables"
         if cls.role == "source":
             return f"components.{n} is a {cls.role}"
-        if cls.role == "body" and cls.states:
-            return f"components.{n} is a body with states"
         if cls.role == "volume":
             for m in g.successors(n):
                 if parsed.kinds[m].role != "flow" or any(parsed.kinds[k].role != "boundary" for k in g.successors(m)):

@@ -231,37 +231,44 @@ class RecoveryDevice(ComponentKind):
         return {"recovery device": p.mass}
 
     # --- builder --------------------------------------------------------------
+    vectorised = True   # one definition for floats and arrays (thrustgraph.xp)
+
     @classmethod
     def build_body(cls, p: Any, ops: Any, i: int = -1, amb: Any = None) -> BodyFns:
         k_open = 0.5 * cls.open_drag_area(p)
         cda_open = cls.open_drag_area(p)
         n = p.opening_exponent
         t_open = p.opening_time
-        rate = 1.0 / t_open if t_open > 0.0 else 0.0
+        slow = t_open > 0.0
+        if ops.any(slow) and not ops.all(slow):
+            raise ModelError(f"{cls.kind}.opening_time", "some designs open the device at once (0 s) and others "
+                             "over a time", "vary opening_time within positive values, or keep it at 0 s")
+        rate = ops.where(slow, 1.0 / ops.where(slow, t_open, 1.0), 0.0)
         i_timer, i_open = i, i + 1
-        deployed_mode = "opening" if t_open > 0.0 else "open"
+        deployed_mode = "opening" if ops.all(slow) else "open"
 
-        def ratio(s: list, mode: int) -> float:
-            if mode == _OPEN:
-                return 1.0
-            if mode == _OPENING:
-                tau = min(max(s[i_open], 0.0), 1.0)
-                return tau ** n
-            return 0.0
+        # One definition for floats and arrays (thrustgraph.xp): a mode shared by every design arrives as an int.
+        def ratio(s: list, mode: Any) -> Any:
+            tau = ops.clip(s[i_open], 0.0, 1.0)
+            if type(mode) is int:
+                return 1.0 if mode == _OPEN else (tau ** n if mode == _OPENING else 0.0)
+            return ops.where(mode == _OPEN, 1.0, ops.where(mode == _OPENING, tau ** n, 0.0))
 
-        def force_state(t: float, s: list, mode: int, air: tuple) -> tuple:
-            if mode < _OPENING:
+        def force_state(t: float, s: list, mode: Any, air: tuple) -> tuple:
+            if type(mode) is int and mode < _OPENING:
                 return (0.0, 0.0, 0.0)
             c = -k_open * ratio(s, mode) * air[0] * air[6]
             return (c * air[3], c * air[4], c * air[5])
 
-        def derivs(t: float, s: list, mode: int, air: tuple) -> tuple:
-            return (1.0 if mode == _ARMED else 0.0, rate if mode == _OPENING else 0.0)
+        def derivs(t: float, s: list, mode: Any, air: tuple) -> tuple:
+            if type(mode) is int:
+                return (1.0 if mode == _ARMED else 0.0, rate if mode == _OPENING else 0.0)
+            return (ops.where(mode == _ARMED, 1.0, 0.0), ops.where(mode == _OPENING, rate, 0.0))
 
-        def signals(t: float, s: list, mode: int) -> dict:
+        def signals(t: float, s: list, mode: Any) -> dict:
             r = ratio(s, mode)
-            return {"drag_area": cda_open * r, "drag_area_ratio": r, "deployed": 1.0 if mode >= _OPENING else 0.0,
-                    "delay_timer": s[i_timer]}
+            deployed = (1.0 if mode >= _OPENING else 0.0) if type(mode) is int else ops.where(mode >= _OPENING, 1.0, 0.0)
+            return {"drag_area": cda_open * r, "drag_area_ratio": r, "deployed": deployed, "delay_timer": s[i_timer]}
 
         def vertical_speed(t, s, drive):
             # falls through -APOGEE_SPEED: a vehicle resting on its pad (vertical speed exactly 0 over whole steps)
