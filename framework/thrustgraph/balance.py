@@ -241,9 +241,10 @@ class Balance:
         return self._solve(t, _as_list(y), "ledger")
 
     def terms(self, t: Any, s: Sequence[Any]) -> dict[str, Any]:
-        """The array-friendly snapshot the ensemble reads: ``derivs`` (per state, in layout order, without
-        accumulators), ``accel`` (3-vector), ``thrust`` (thrust vector), ``mass``, ``drive`` (name -> Pa) and
-        ``singular`` (designs whose head coupling has no solution)."""
+        """The snapshot without the ledger: ``derivs`` (per state, in layout order, without accumulators),
+        ``accel`` (3-vector), ``thrust`` (thrust vector), ``thrust_axial`` (its component along the body axis, the
+        ``thrust`` of :meth:`evaluate`), ``mass``, ``drive`` (name -> Pa) and ``singular`` (designs whose head
+        coupling has no solution)."""
         return self._solve(t, s, "terms")
 
     # ------------------------------------------------------------------
@@ -325,7 +326,7 @@ class Balance:
             tx, ty, tz = T
             for mdot, ve, pe, Ae, jd, Tj in jets:
                 tx = tx - Tj * jd[0]; ty = ty - Tj * jd[1]; tz = tz - Tj * jd[2]
-            return {"derivs": derivs, "accel": a, "thrust": (tx, ty, tz), "mass": M,
+            return {"derivs": derivs, "accel": a, "thrust": (tx, ty, tz), "thrust_axial": _dot((tx, ty, tz), e), "mass": M,
                     "drive": self._drives(sums.flows, pa), "singular": singular}
         derivs.extend(self._accumulators(s, sums, jets, dirs, (Dx, Dy, Dz), W, (Px, Py, Pz), R, C))
         if want == "rhs":

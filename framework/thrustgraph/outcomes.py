@@ -257,9 +257,10 @@ def _peak_acceleration(f: Flight) -> float:
 
 
 def _peak_thrust(f: Flight) -> float:
-    return f.peak(lambda ph, sol, bal: [bal.evaluate(float(sol.t[k]), sol.y[:, k])["thrust"]
+    # the balance's snapshot without the ledger (the thrust is the same number evaluate() records)
+    return f.peak(lambda ph, sol, bal: [bal.terms(float(sol.t[k]), sol.y[:, k].tolist())["thrust_axial"]
                                         for k in range(len(sol.t))],
-                  lambda ph, sol, bal: (lambda t: float(bal.evaluate(t, sol.sol(t))["thrust"])))
+                  lambda ph, sol, bal: (lambda t: float(bal.terms(t, sol.sol(t).tolist())["thrust_axial"])))
 
 
 def _peak_vessel_pressure(f: Flight) -> float:
