@@ -41,6 +41,7 @@ from __future__ import annotations
 
 from typing import Any, NamedTuple, Sequence
 
+import numpy as np
 from scipy.optimize import brentq
 
 from .component import Flow, Outlet
@@ -166,7 +167,6 @@ class Balance:
         self._emode = [tuple(mode_of(e.slot) for e in ln.series) for ln in plan.lines]
         # kinematic constraints present (one for a single design; the distinct ones of an ensemble's designs)
         if ops.arrays and not isinstance(kinematics, int):
-            import numpy as np
             present = {int(k) for k in np.unique(kinematics)}
             if len(present) == 1:
                 kinematics = present.pop()
