@@ -107,7 +107,7 @@ def main() -> int:
           f" {abs(ap_tg - ap_tg_ref) / ap_tg_ref:.1e}")
     print(f"thrustgraph with closure audits : {a * 1e3:8.2f} ms  ({nfev_aud} rhs evaluations)")
     print(f"thrustgraph full result         : {f * 1e3:8.2f} ms  (signals and ledger at {len(result.t)} samples)")
-    print(f"first flight in a process       : {cold * 1e3:8.2f} ms  (generates and compiles each phase's function)")
+    print(f"first flight in a process       : {cold * 1e3:8.2f} ms  (first assembly, contract check and imports of the run)")
     print(f"ratio like for like / hand      : {b / h:6.2f}   (target <= 1.0)")
     print(f"ratio with audits / hand        : {a / h:6.2f}")
     print(f"ratio full result / hand        : {f / h:6.2f}")
