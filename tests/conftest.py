@@ -3,10 +3,13 @@
 from __future__ import annotations
 
 import textwrap
+from pathlib import Path
 
+import numpy as np
 import pytest
 from hypothesis import settings
 
+import thrustgraph as tg
 from thrustgraph.modelfile import loads_model
 
 HEADER = 'format = "thrustgraph-model"\nversion = 1\n'
@@ -29,3 +32,18 @@ def model_from_toml(body: str, name: str = "test"):
 @pytest.fixture
 def toml_model():
     return model_from_toml
+
+
+@pytest.fixture(scope="module")
+def stand(tmp_path_factory) -> Path:
+    """A folder with a held model (held.toml) and a record of its thrust at 1 kHz (stand.csv), as a load cell on
+    a stand would log it."""
+    d = tmp_path_factory.mktemp("stand")
+    m = tg.load_model(tg.default_model_path()).set("launch.mount", "held")
+    tg.save_model(m, d / "held.toml")
+    r = tg.integrate(m)
+    t = np.arange(0.0005, 0.16, 0.001)
+    f = np.interp(t, r.t, r.signal("thrust"))
+    (d / "stand.csv").write_text("time [s],load [N]\n" + "".join(f"{a!r},{b!r}\n" for a, b in
+                                                                 zip(t.tolist(), f.tolist())))
+    return d

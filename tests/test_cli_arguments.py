@@ -49,20 +49,6 @@ def refused(capsys, args: list[str], cwd: Path, message: str) -> str:
     return err
 
 
-@pytest.fixture(scope="module")
-def stand(tmp_path_factory) -> Path:
-    """A held model and the thrust it gives, as a load cell would log it (1 kHz)."""
-    d = tmp_path_factory.mktemp("stand")
-    m = tg.load_model(tg.default_model_path()).set("launch.mount", "held")
-    tg.save_model(m, d / "held.toml")
-    r = tg.integrate(m)
-    t = np.arange(0.0005, 0.16, 0.001)
-    f = np.interp(t, r.t, r.signal("thrust"))
-    (d / "stand.csv").write_text("time [s],load [N]\n" + "".join(f"{a!r},{b!r}\n" for a, b in
-                                                                 zip(t.tolist(), f.tolist())))
-    return d
-
-
 @pytest.fixture
 def here(stand, tmp_path) -> Path:
     for name in ("held.toml", "stand.csv"):

@@ -19,10 +19,8 @@ import sys
 import textwrap
 from pathlib import Path
 
-import numpy as np
 import pytest
 
-import thrustgraph as tg
 from thrustgraph.errors import OutputError
 from thrustgraph.outputfiles import PARTIAL_TAG, atomic_write, check_output, remove_stale_partials, write_all
 
@@ -256,20 +254,6 @@ def test_the_same_file_twice_is_refused(tmp_path):
 # ---------------------------------------------------------------------------
 # every command: a second output that cannot be written leaves nothing
 # ---------------------------------------------------------------------------
-
-@pytest.fixture(scope="module")
-def stand(tmp_path_factory) -> Path:
-    """A folder with a held model and a record of its thrust (what a load cell on a stand would log)."""
-    d = tmp_path_factory.mktemp("stand")
-    m = tg.load_model(tg.default_model_path()).set("launch.mount", "held")
-    tg.save_model(m, d / "held.toml")
-    r = tg.integrate(m)
-    t = np.arange(0.0005, 0.16, 0.001)
-    f = np.interp(t, r.t, r.signal("thrust"))
-    (d / "stand.csv").write_text("time [s],load [N]\n" + "".join(f"{a!r},{b!r}\n" for a, b in
-                                                                 zip(t.tolist(), f.tolist())))
-    return d
-
 
 def run_here(capsys, args: list[str], cwd: Path) -> tuple[int, str, str]:
     from thrustgraph.cli import main

@@ -175,6 +175,7 @@ class ArraySystem:
         self.fixed_mass = self.plan.fixed_mass
         self.slot = {nm: k for k, nm in enumerate(self.moded)}
         self.balance = Balance(self, ops=array_ops)
+        self._phase_set: "Phase | None" = None   # the phase the balance is set to (see _use)
 
     # ------------------------------------------------------------------
     def _initial_modes(self) -> None:
@@ -283,11 +284,16 @@ class ArraySystem:
                 return False
         return bool(self.plan.vessels)
 
+    def _use(self, phase: "Phase") -> None:
+        """Set the balance to ``phase`` unless it already is (a step's stages share one Phase object)."""
+        if self._phase_set is not phase:
+            self.balance.set_phase(phase.modes, phase.kin, False)
+            self._phase_set = phase
+
     def drives(self, t: np.ndarray, Y: np.ndarray, phase: "Phase") -> dict | None:
         """The drive pressures (name -> Pa) the events read, from the one balance."""
-        bal = self.balance
-        bal.set_phase(phase.modes, phase.kin, False)
-        return bal.drives(t, list(Y))
+        self._use(phase)
+        return self.balance.drives(t, list(Y))
 
     # ------------------------------------------------------------------
     def rhs(self, t: np.ndarray, Y: np.ndarray, modes: np.ndarray, kin: np.ndarray,
@@ -304,9 +310,8 @@ class ArraySystem:
         """
         if phase is None:
             phase = self.phase(modes, kin)
-        bal = self.balance
-        bal.set_phase(phase.modes, phase.kin, False)
-        terms = bal.terms(t, list(Y))
+        self._use(phase)
+        terms = self.balance.terms(t, list(Y))
         if out is None:
             out = np.empty_like(Y)
         d = terms["derivs"]
