@@ -10,7 +10,11 @@ import pytest
 from hypothesis import settings
 
 import thrustgraph as tg
+from thrustgraph import hookimpl
+from thrustgraph.model import parse_model
 from thrustgraph.modelfile import loads_model
+from thrustgraph.plugins import get_plugin_manager
+from tg_airframe import Airframe
 
 HEADER = 'format = "thrustgraph-model"\nversion = 1\n'
 
@@ -47,3 +51,25 @@ def stand(tmp_path_factory) -> Path:
     (d / "stand.csv").write_text("time [s],load [N]\n" + "".join(f"{a!r},{b!r}\n" for a, b in
                                                                  zip(t.tolist(), f.tolist())))
     return d
+
+
+class FloatOnlyAirframe(Airframe):
+    """A third-party family that builds callables for floats only (it does not declare ``vectorised``): the
+    airframe's own physics under another kind name."""
+
+    kind = "float-only-airframe"
+    vectorised = False
+
+
+class _FloatOnlyFamily:
+    @hookimpl
+    def thrustgraph_component_kinds(self):
+        return [FloatOnlyAirframe]
+
+
+@pytest.fixture
+def float_only_rocket():
+    """The bundled bottle rocket on a float-only airframe: (raw model, parsed model), a model the vectorised
+    ensemble cannot fly."""
+    m = tg.load_model(tg.default_model_path()).set("components.airframe.kind", "float-only-airframe")
+    return m, parse_model(m, plugin_manager=get_plugin_manager(extra=[_FloatOnlyFamily()]))

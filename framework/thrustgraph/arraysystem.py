@@ -54,16 +54,9 @@ def unsupported(parsed: ParsedModel) -> str | None:
     for slot, cls in parsed.env_kinds.items():
         if not vectorised(cls):
             return f"environment.{slot} kind {cls.kind!r} builds no array callables"
-    g = parsed.graph
     for n, cls in parsed.kinds.items():
         if not vectorised(cls):
             return f"components.{n} kind {cls.kind!r} builds no array callables"
-        if cls.role == "source":
-            return f"components.{n} is a {cls.role}"
-        if cls.role == "volume":
-            for m in g.successors(n):
-                if parsed.kinds[m].role != "flow" or any(parsed.kinds[k].role != "boundary" for k in g.successors(m)):
-                    return f"components.{n} discharges through elements in series"
     return None
 
 

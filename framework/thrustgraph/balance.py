@@ -42,11 +42,11 @@ from __future__ import annotations
 from typing import Any, NamedTuple, Sequence
 
 import numpy as np
-from scipy.optimize import brentq
 
 from .component import Flow, Outlet
 from .errors import IntegrationError
 from .plan import ACCUMULATORS, LinePlan, Plan
+from .roots import illinois
 from .vectors import frame_of, solve_rank_one, to_world
 from .xp import scalar_ops
 
@@ -508,11 +508,11 @@ class Balance:
                 up = sup[0] if type(sup[0]) is Outlet else Outlet(*sup[0])
                 mfix, v_in = sup[1], (sup[2], sup[3], sup[4])
             tmode = self._tmode[j]
-            if not ln.series and (ln.from_vessel or mfix < 0.0):
+            if not ln.series and (ln.from_vessel or (type(mfix) is float and mfix < 0.0)):
                 fl = ln.terminal_fns.flow(up, pa, tmode)
                 p_in, rises = up.p, ()
             else:
-                fl, p_in, rises = _solve_line(ln, up, pa, tmode, self._emode[j], mfix)
+                fl, p_in, rises = _solve_line(ln, up, pa, tmode, self._emode[j], mfix, self.ops)
             mdot, ve, pe, Ae, slope = fl
             if ln.inflow is not None:
                 v_in = ln.inflow(mdot, up)
@@ -694,10 +694,15 @@ def _as_list(y: Any) -> list:
     return y.tolist() if hasattr(y, "tolist") else list(y)
 
 
-def _solve_line(ln: LinePlan, up: Outlet, pa: float, tmode: int, smodes: tuple, mfix: float):
+def _solve_line(ln: LinePlan, up: Outlet, pa: Any, tmode: Any, smodes: tuple, mfix: Any, ops: Any):
     """Mass flow through elements in series: the flow the terminal element passes at the pressure the series
-    elements deliver at that same flow (scalar root). A source that fixes the flow sets it instead, and the
-    pressure at the terminal element is whatever passes that flow. One design at a time (floats)."""
+    elements deliver at that same flow. A source that fixes the flow (``mfix`` > 0) sets it instead, and the
+    pressure at the terminal element is whatever passes that flow; ``mfix`` = 0 passes nothing.
+
+    One definition for one design (floats) and for an ensemble (arrays over designs, ``mfix`` and the modes
+    per design): the roots come from :func:`thrustgraph.roots.illinois`, whose iterates for a design are those
+    it gets alone, bracketed by doubling the upper end (per design) until the bracket holds the root. Returns
+    ``(Flow, pressure at the terminal element's inlet, the rise across each element in series)``."""
     flow = ln.terminal_fns.flow
 
     def after(mdot):
@@ -713,34 +718,61 @@ def _solve_line(ln: LinePlan, up: Outlet, pa: float, tmode: int, smodes: tuple, 
         fl = flow(cur._replace(p=p), pa, tmode)
         return fl if type(fl) is Flow else Flow(*fl)
 
-    if mfix >= 0.0:
-        cur, rises = after(mfix)
-        if mfix == 0.0:
-            return Flow(0.0, 0.0, 0.0, 0.0, 0.0), cur.p, rises
-        # the supply delivers mfix: find the terminal inlet pressure that passes it
-        lo, hi = pa, max(pa * 2.0, 1e5) + pa
-        while through(cur, hi).mdot < mfix:
-            hi = 2.0 * hi
-            if hi > 1e12:
+    def packed(fl, p_in, rises):        # flat, so that ops.branch can choose per design
+        return tuple(fl) + (p_in,) + rises
+
+    def fixed(m_fix):
+        """The supply delivers m_fix > 0: the terminal inlet pressure that passes it."""
+        m_fix = ops.maximum(m_fix, 1e-12)   # designs that fix no flow (only evaluated over arrays): kept finite
+        cur, rises = after(m_fix)
+        lo, hi = pa + 0.0 * m_fix, ops.maximum(pa * 2.0, 1e5) + pa + 0.0 * m_fix
+        f_hi = through(cur, hi).mdot - m_fix
+        while not ops.all(f_hi >= 0.0):
+            short = f_hi < 0.0
+            hi = ops.where(short, 2.0 * hi, hi)
+            if ops.any(hi > 1e12):
                 raise IntegrationError(f"components.{ln.terminal}: cannot pass the flow its supply fixes "
-                                       f"({mfix:.4g} kg/s)")
-        p = brentq(lambda p: through(cur, p).mdot - mfix, lo, hi, xtol=1e-12, rtol=1e-13)
+                                       f"({float(np.max(m_fix)):.4g} kg/s)")
+            f_hi = ops.where(short, through(cur, hi).mdot - m_fix, f_hi)
+        p = illinois(lambda q: through(cur, q).mdot - m_fix, lo, hi, 0.0 * m_fix - m_fix, f_hi, ops,
+                     xtol=1e-12, rtol=1e-13)
         # what enters leaves: the line passes exactly the flow its supply fixes (not the root's last digit)
-        return through(cur, p)._replace(mdot=mfix), p, rises
+        return packed(through(cur, p)._replace(mdot=m_fix), p, rises)
 
-    def gap(mdot):
-        cur, _ = after(mdot)
-        return through(cur, cur.p).mdot - mdot
+    def none(m_fix):
+        cur, rises = after(0.0 * m_fix)
+        z = 0.0 * m_fix
+        return packed(Flow(z, z, z, z, z), cur.p, rises)
 
-    g0 = gap(0.0)
-    if g0 <= 0.0:
-        cur, rises = after(0.0)
-        return through(cur, cur.p), cur.p, rises
-    hi = max(g0, 1e-6)
-    while gap(hi) > 0.0:
-        hi *= 2.0
-        if hi > 1e9:
-            raise IntegrationError(f"components.{ln.terminal}: the line's mass flow has no finite solution")
-    mdot = brentq(gap, 0.0, hi, xtol=1e-14, rtol=1e-13)
-    cur, rises = after(mdot)
-    return through(cur, cur.p)._replace(mdot=mdot), cur.p, rises
+    def free(m_fix):
+        """The elements set the flow: the root of gap(mdot) = (what the terminal passes after the series
+        elements at mdot) - mdot, which falls as mdot rises."""
+        if not ln.series:
+            return packed(through(up, up.p), up.p, ())
+
+        def gap(mdot):
+            cur, _ = after(mdot)
+            return through(cur, cur.p).mdot - mdot
+
+        z = 0.0 * m_fix
+        g0 = gap(z)
+        flowing = g0 > 0.0
+        hi = ops.maximum(g0, 1e-6)
+        g_hi = gap(hi)
+        while ops.any(flowing & (g_hi > 0.0)):
+            grow = flowing & (g_hi > 0.0)
+            hi = ops.where(grow, 2.0 * hi, hi)
+            if ops.any(hi > 1e9):
+                raise IntegrationError(f"components.{ln.terminal}: the line's mass flow has no finite solution")
+            g_hi = ops.where(grow, gap(hi), g_hi)
+        mdot = illinois(gap, z, hi, g0, g_hi, ops, xtol=1e-14, rtol=1e-13, done=ops.where(flowing, False, True))
+        mdot = ops.where(flowing, mdot, z)
+        cur, rises = after(mdot)
+        fl = through(cur, cur.p)
+        return packed(fl._replace(mdot=ops.where(flowing, mdot, fl.mdot)), cur.p, rises)
+
+    if type(mfix) is float:             # every design alike (always so for one design)
+        out = fixed(mfix) if mfix > 0.0 else (none(mfix) if mfix == 0.0 else free(mfix))
+    else:
+        out = ops.branch(mfix > 0.0, fixed, lambda m: ops.branch(m == 0.0, none, free, m), mfix)
+    return Flow(*out[:5]), out[5], tuple(out[6:])

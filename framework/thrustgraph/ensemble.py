@@ -410,6 +410,9 @@ class _Run:
             Fi, ai = sub.rhs(self.t[idx], self.Y[:, idx], self.modes[:, idx], self.kin[idx])
             self.calls += 1
             self.F[:, idx] = Fi
+            # the new phase's first acceleration counts toward the peak (a valve open from the start)
+            self.amax[idx] = np.maximum(self.amax[idx], np.broadcast_to(np.asarray(ai["accel"], dtype=float),
+                                                                        (len(idx),)))
             gi = self.g_all(sub, self.t[idx], self.Y[:, idx], ai)
             for j in range(self.nev):
                 self.gold[j][idx] = gi[j]
@@ -474,7 +477,9 @@ class _Run:
         out["impact_y"][g] = Y[1, idx] - x0[1][idx]
         out["range"][g] = np.hypot(out["impact_x"][g], out["impact_y"][g])
         ap = self.apogee[idx]
-        out["apogee"][g] = np.where(np.isfinite(ap), np.maximum(ap, self.zmax[idx]), self.zmax[idx])
+        # an apogee is an outcome of flights under gravity (the registry's applies): NaN without it
+        out["apogee"][g] = np.where(self.gpos[idx], np.where(np.isfinite(ap), np.maximum(ap, self.zmax[idx]),
+                                                             self.zmax[idx]), np.nan)
         out["max_speed"][g] = self.vmax[idx]
         out["peak_acceleration"][g] = self.amax[idx]
         out["total_impulse"][g] = Y[-1, idx]
@@ -663,6 +668,10 @@ class _Run:
                 Fi, ai = sub.rhs(t[cont], Y[:, cont], modes[:, cont], kin[cont])
                 self.calls += 1
                 F[:, cont] = Fi
+                # the acceleration jumps at a phase switch (off the guide, a vessel sealed): the new phase's
+                # first value counts toward the peak, as a single flight's segment start does
+                self.amax[cont] = np.maximum(self.amax[cont], np.broadcast_to(np.asarray(ai["accel"], dtype=float),
+                                                                              (len(cont),)))
                 gi = self.g_all(sub, t[cont], Y[:, cont], ai)
                 for j in range(nev):
                     self.gold[j][cont] = gi[j]
@@ -698,6 +707,16 @@ class _Run:
         np.maximum(self.vmax, np.sqrt(v1x * v1x + v1y * v1y + v1z * v1z), out=self.vmax, where=acc)
         np.maximum(self.amax, an, out=self.amax, where=acc)
         np.maximum(self.zmax, z1, out=self.zmax, where=acc)
+        # a height maximum inside the step (a hovering rig's bobbing after the first apogee): v_z goes from + to
+        # -; located on the dense output as the apogee event is
+        zin = acc & (v0z > 0.0) & (v1z < 0.0)
+        if np.any(zin):
+            rows = np.flatnonzero(zin)
+            q = np.einsum("sp,snm->pnm", DOPRI_P, K[:, 2:6:3, rows]).transpose(1, 0, 2)     # (z, v_z), 4, m
+            te_r, h_r, Y0 = th_end[rows], hh[rows], Y[2:6:3, rows]
+            phi = _illinois(lambda f: _dense(Y0[1:2], h_r, q[1:2], f * te_r)[0], v0z[rows], v1z[rows],
+                            self.t[rows], h_r)
+            self.zmax[rows] = np.maximum(self.zmax[rows], _dense(Y0[0:1], h_r, q[0:1], phi * te_r)[0])
         # a speed maximum inside the step: v . a goes from + to -
         inner = acc & (v0x * a0x + v0y * a0y + v0z * a0z > 0.0) & (v1x * a1x + v1y * a1y + v1z * a1z < 0.0)
         # an acceleration maximum inside the step: the dense output's rate of |a| goes from + to -; the jerk
@@ -750,12 +769,17 @@ def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel
     """Fraction of the step at which event ``j`` crosses zero, per design (vectorised Illinois iteration)."""
     Y0, hh, t0 = Y[:, rows], h[rows], t[rows]
     need = ev.needs_drive[j]
+    kind = ev.slots[j][0]
+    if need or kind == "comp":
+        # a component's event function may read its per-design parameters: it runs on these designs' system
+        if sub is None:
+            local = sysa.subset(rows)
+        else:
+            local = sub.subset(sel) if len(sel) != sub.n else sub
     if need:
-        local = sub.subset(sel) if sub is not None and len(sel) != sub.n else sub
         m_loc, k_loc = modes[:, rows], kin[rows]
         ph_loc = local.phase(m_loc, k_loc)
 
-    kind = ev.slots[j][0]
     if kind in ("apogee", "impact"):      # one state: only its row of the dense output
         r = 5 if kind == "apogee" else 2
         Y0r, Qr = Y0[r:r + 1], Q[r:r + 1]
@@ -769,6 +793,8 @@ def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel
             if drive is None:
                 drive = local.rhs(tt, yy, m_loc, k_loc, phase=ph_loc)[1]["drive"]
             return ev.value(j, local, tt, yy, {"drive": drive})
+        if kind == "comp":
+            return ev.value(j, local, tt, yy, None)
         return ev.value(j, sysa, tt, yy, None, rows)
 
     return _illinois(g, ga, gb, t0, hh)

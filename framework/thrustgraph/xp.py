@@ -21,6 +21,11 @@ The convention for code written against it:
 
 ``ops.arrays`` tells which namespace is in use; code needs it only to skip work, never to compute differently.
 
+5. A function that only takes floats (a call into a property library such as CoolProp) is applied per design
+   with ``ops.each(fn, *args)``: for a float it is ``fn(*args)``, for arrays ``fn`` is called on each design's
+   floats in turn and its results gathered into arrays (a tuple of arrays when ``fn`` returns a tuple). The
+   numbers are those of the single flight; the cost stays that of one call per design.
+
 Examples
 --------
 >>> import numpy as np
@@ -34,6 +39,8 @@ Examples
 2.0
 >>> array_ops.branch(np.array([True, False]), lambda x: x + 1.0, lambda x: x - 1.0, np.ones(2)).tolist()
 [2.0, 0.0]
+>>> [a.tolist() for a in array_ops.each(divmod, np.array([7.0, 9.0]), 4.0)]
+[[1.0, 2.0], [3.0, 1.0]]
 """
 
 from __future__ import annotations
@@ -102,6 +109,11 @@ class ScalarOps:
     def branch(cond: Any, f_true: Callable, f_false: Callable, *args: Any) -> Any:
         return f_true(*args) if cond else f_false(*args)
 
+    @staticmethod
+    def each(fn: Callable, *args: Any) -> Any:
+        """``fn(*args)``: a function of floats applied to one design."""
+        return fn(*args)
+
 
 class ArrayOps:
     """The namespace over numpy arrays of designs (ensembles)."""
@@ -152,6 +164,17 @@ class ArrayOps:
             return type(a)(*(np.where(c, x, y) for x, y in zip(a, b))) if hasattr(a, "_fields") else \
                 tuple(np.where(c, x, y) for x, y in zip(a, b))
         return np.where(c, a, b)
+
+    @staticmethod
+    def each(fn: Callable, *args: Any) -> Any:
+        """``fn`` of floats applied to each design in turn (arguments broadcast to the designs' shape); a tuple
+        result becomes a tuple of arrays."""
+        cols = np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in args))
+        rows = [fn(*xs) for xs in zip(*(c.reshape(-1).tolist() for c in cols))]
+        shape = cols[0].shape if cols else ()
+        if rows and isinstance(rows[0], tuple):
+            return tuple(np.array(col, dtype=float).reshape(shape) for col in zip(*rows))
+        return np.array(rows, dtype=float).reshape(shape)
 
 
 scalar_ops = ScalarOps()

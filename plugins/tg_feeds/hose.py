@@ -117,8 +117,12 @@ class HoseFeed(ComponentKind):
     def cautions(cls, p):
         return list(PRESSURE_CAUTIONS) + list(HOSE_CAUTIONS)
 
+    vectorised = True
+
     @classmethod
     def build_source(cls, p, i, ops, amb):
+        """One definition for one design (floats) and for an ensemble (parameters, ``t``, ``s[k]`` and ``mode``
+        arrays over designs; a mode shared by every design arrives as an ``int``)."""
         area = math.pi * p.hose_diameter ** 2 / 4.0
         k_loss = p.loss_coefficient + p.friction_factor * p.hose_length / p.hose_diameter
         liquid = p.fluid == "liquid"
@@ -128,17 +132,24 @@ class HoseFeed(ComponentKind):
         gam, R = p.gas_gamma, p.gas_constant
         d = p.inflow_direction
         ramp = p.ramp_time
-        cos, pi = math.cos, math.pi
+        ramping = ramp > 0.0
+        ramp_div = ops.where(ramping, ramp, 1.0)
+        pi = math.pi
 
         def supply(t, s, mode, air):
             pa = air[1]
-            k = 0.5 * (1.0 - cos(pi * t / ramp)) if t < ramp else 1.0
+            # the half-cosine spin-up (t < ramp only happens with a ramp)
+            k = ops.where(t < ramp, 0.5 * (1.0 - ops.cos(pi * ops.minimum(t, ramp) / ramp_div)), 1.0)
             if liquid:
                 up = (pa + k * ps - rho_l * g * (s[2] - zs), T, rho_l, gam, R, 1.0, 0.0)
             else:
                 pr = pa + k * ps
                 up = (pr, T, pr / (R * T), gam, R, 0.0, 0.0)
-            mfix = 0.0 if mode == 1 else (k * mflow if fixed else -1.0)
+            given = k * mflow if fixed else -1.0
+            if type(mode) is int:
+                mfix = 0.0 if mode == 1 else given
+            else:
+                mfix = ops.where(mode == 1, 0.0, given)
             return (up, mfix, 0.0, 0.0, 0.0)
 
         def rise(up, mdot, mode):
@@ -150,11 +161,12 @@ class HoseFeed(ComponentKind):
             return (u * d[0], u * d[1], u * d[2])
 
         def signals(t, s, mode):
-            return {"lift_pressure": rho_l * g * (s[2] - zs) if liquid else 0.0}
+            return {"lift_pressure": rho_l * g * (s[2] - zs) if liquid else 0.0 * s[2]}
 
         events: tuple[EventSpec, ...] = ()
-        if p.run_time > 0.0:
-            tr = p.run_time
+        if ops.any(p.run_time > 0.0):
+            # designs without a run time never stop (their stop time is beyond any flight)
+            tr = ops.where(p.run_time > 0.0, p.run_time, 1e300)
             events = (EventSpec("feed stopped", lambda t, s, drive: t - tr, 1.0, ("feeding",), "stopped",
                                 needs_drive=False),)
         return SourceFns(supply=supply, signals=signals, events=events, rise=rise, inflow=inflow)

@@ -76,8 +76,9 @@ Examples
 from __future__ import annotations
 
 import math
+from typing import Any, NamedTuple
 
-from thrustgraph.component import ComponentKind, FlowFns
+from thrustgraph.component import ComponentKind, Flow, FlowFns
 from thrustgraph.errors import ModelError
 from thrustgraph.parameters import Number, Quantity, Vector
 
@@ -118,82 +119,154 @@ class ConvergingDivergingNozzle(ComponentKind):
                              "give the exit-to-throat area ratio, e.g. area_ratio = 4, or use a "
                              "convergent-nozzle for a nozzle that only converges")
 
+    vectorised = True
+
     @classmethod
     def build_flow(cls, p, ops):
+        """One definition for one design (floats) and for an ensemble (``up``, parameters and the upstream
+        exponent arrays over designs). The regimes are chosen by ``ops.branch``; each regime's square roots and
+        powers are clipped at its own boundary, which leaves the designs inside it unchanged and the others
+        finite. The regime constants (Mach numbers and pressure ratios of the area ratio) are computed once per
+        exponent shared by every design (an ideal gas: once per assembly)."""
         At = math.pi * p.throat_diameter ** 2 / 4.0
         eps = p.area_ratio
         Ae = eps * At
-        lam = divergence_factor(p.half_angle)
+        lam = divergence_factor(p.half_angle, ops)
         cd = p.discharge_coefficient
         psi = p.separation_pressure_ratio
-        sqrt = math.sqrt
-        cache: dict[float, tuple] = {}
+        sqrt = ops.sqrt
+        cache: dict[float, _Regimes] = {}
+
+        def constants(g):
+            m_sup = mach_from_area_ratio(eps, g, "supersonic", ops)
+            m_sub = mach_from_area_ratio(eps, g, "subsonic", ops)
+            pr3 = pressure_ratio(m_sup, g)
+            pr2 = ops.where(eps > 1.0, pr3 * normal_shock(m_sup, g, ops)[1], pr3)
+            return _Regimes(mass_flux_factor(g, ops), m_sup, pressure_ratio(m_sub, g), pr2, pr3,
+                            temperature_ratio(m_sup, g), (g - 1.0) / g, 2.0 * g / (g - 1.0))
 
         def regimes(g):
+            if type(g) is not float:       # an exponent per design (a real gas): computed on every call
+                return constants(g)
             c = cache.get(g)
             if c is None:
-                if len(cache) > 512:     # a real gas hands a new exponent on every call
+                if len(cache) > 512:       # a real gas hands a new exponent on every call
                     cache.clear()
-                m_sup = mach_from_area_ratio(eps, g, "supersonic")
-                m_sub = mach_from_area_ratio(eps, g, "subsonic")
-                pr3 = pressure_ratio(m_sup, g)
-                pr2 = pr3 * normal_shock(m_sup, g)[1] if eps > 1.0 else pr3
-                c = (mass_flux_factor(g), m_sup, pressure_ratio(m_sub, g), pr2, pr3, temperature_ratio(m_sup, g),
-                     (g - 1.0) / g, 2.0 * g / (g - 1.0))
-                cache[g] = c
+                c = cache[g] = constants(g)
             return c
 
+        bernoulli_slope = 2.0 * lam * cd * Ae
+
+        def shut(pu, T, rho, g, R, pd):
+            z = 0.0 * pu
+            return _Solution(z, z, pd + z, NO_FLOW + z, z, z - 1.0, z)
+
+        def liquid(pu, T, rho, g, R, pd):
+            dp = pu - pd
+            v = sqrt(2.0 * ops.maximum(dp, 0.0) / rho)
+            on = dp > 0.0
+            return _Solution(rho * cd * Ae * v, lam * v, pd + 0.0 * pu, ops.where(on, float(SUBSONIC), float(NO_FLOW)),
+                             0.0 * pu, -1.0 + 0.0 * pu, ops.where(on, bernoulli_slope, 0.0))
+
+        def subsonic(pu, T, rho, g, R, pd):
+            k = regimes(g)
+            x = ops.maximum(pd / pu, k.pr1) ** k.k1
+            v = sqrt(k.k2 * R * T * ops.maximum(1.0 - x, 0.0))
+            mdot = cd * Ae * (pd / (R * T * x)) * v
+            mach = sqrt(ops.maximum(2.0 / (g - 1.0) * (1.0 / x - 1.0), 0.0))
+            return _Solution(mdot, lam * v, pd + 0.0 * pu, SUBSONIC + 0.0 * pu, mach, -1.0 + 0.0 * pu,
+                             bernoulli_slope + 0.0 * pu)
+
+        def shock(pu, T, rho, g, R, pd):
+            k = regimes(g)
+            mdot = cd * At * pu * k.gam / sqrt(R * T)
+            pe = ops.maximum(pd, k.pr2 * pu)     # the designs in this regime have pd > pr2 pu
+            C = At * pu * k.gam / (pe * Ae * sqrt(g))
+            X = (-1.0 + sqrt(1.0 + 2.0 * (g - 1.0) * C * C)) / (g - 1.0)
+            Te = T / (1.0 + 0.5 * (g - 1.0) * X)
+            ve = lam * sqrt(X * g * R * Te)
+            return _Solution(mdot, ve, pd + 0.0 * pu, SHOCK_INSIDE + 0.0 * pu, sqrt(X), X,
+                             (mdot * ve + pd * Ae) / pu)
+
+        def supersonic(pu, T, rho, g, R, pd):
+            k = regimes(g)
+            mdot = cd * At * pu * k.gam / sqrt(R * T)
+            pe = k.pr3 * pu
+            ve = lam * k.m_sup * sqrt(g * R * T * k.tr3)
+            return _Solution(mdot, ve, pe, ops.where(pe < pd, float(OVEREXPANDED), float(UNDEREXPANDED)),
+                             k.m_sup + 0.0 * pu, -1.0 + 0.0 * pu, (mdot * ve + pe * Ae) / pu)
+
+        def choked(pu, T, rho, g, R, pd):
+            return ops.branch(pd / pu > regimes(g).pr2, shock, supersonic, pu, T, rho, g, R, pd)
+
+        def gas(pu, T, rho, g, R, pd):
+            return ops.branch(pd / pu >= regimes(g).pr1, subsonic, choked, pu, T, rho, g, R, pd)
+
+        def open_gas(pu, T, rho, g, R, pd):
+            flowing = pu > pd
+            # designs that cannot flow are evaluated at a pressure just above ambient, then zeroed
+            return ops.branch(flowing, gas, shut, ops.where(flowing, pu, pd + 1.0), T, rho, g, R, pd)
+
         def solve(up, p_down):
-            """(mdot, axial v_e, p_e, regime, exit Mach, subsonic-exit Mach^2 or -1)."""
+            """(mdot, axial v_e, p_e, regime, exit Mach, subsonic-exit Mach^2 or -1, d thrust / d p0)."""
             pu, T, rho, g, R, phase, head = up
-            if phase > 0.5:
-                dp = pu - p_down
-                if dp <= 0.0:
-                    return 0.0, 0.0, p_down, NO_FLOW, 0.0, -1.0
-                v = sqrt(2.0 * dp / rho)
-                return rho * cd * Ae * v, lam * v, p_down, SUBSONIC, 0.0, -1.0
-            if phase < -0.5 or pu <= p_down:
-                return 0.0, 0.0, p_down, NO_FLOW, 0.0, -1.0
-            gam, m_sup, pr1, pr2, pr3, tr3, k1, k2 = regimes(g)
-            r = p_down / pu
-            if r >= pr1:
-                x = r ** k1
-                v = sqrt(k2 * R * T * (1.0 - x))
-                mdot = cd * Ae * (p_down / (R * T * x)) * v
-                return mdot, lam * v, p_down, SUBSONIC, sqrt(max(2.0 / (g - 1.0) * (1.0 / x - 1.0), 0.0)), -1.0
-            mdot = cd * At * pu * gam / sqrt(R * T)
-            if r > pr2:
-                C = At * pu * gam / (p_down * Ae * sqrt(g))
-                X = (-1.0 + sqrt(1.0 + 2.0 * (g - 1.0) * C * C)) / (g - 1.0)
-                Te = T / (1.0 + 0.5 * (g - 1.0) * X)
-                return mdot, lam * sqrt(X * g * R * Te), p_down, SHOCK_INSIDE, sqrt(X), X
-            pe = pr3 * pu
-            v = m_sup * sqrt(g * R * T * tr3)
-            return mdot, lam * v, pe, (OVEREXPANDED if pe < p_down else UNDEREXPANDED), m_sup, -1.0
+            if type(phase) is float:            # every design in the same phase (always so for one design)
+                if phase > 0.5:
+                    return liquid(pu, T, rho, g, R, p_down)
+                if phase < -0.5:
+                    return shut(pu, T, rho, g, R, p_down)
+                return open_gas(pu, T, rho, g, R, p_down)
+            return ops.branch(phase > 0.5, liquid, lambda *a: ops.branch(phase < -0.5, shut, open_gas, *a),
+                              pu, T, rho, g, R, p_down)
 
         def flow(up, p_down, mode=0):
-            mdot, ve, pe, regime, _m, _x = solve(up, p_down)
-            if regime == NO_FLOW:
-                return (0.0, 0.0, p_down, Ae, 0.0)
-            if up[5] > 0.5 or regime == SUBSONIC:
-                return (mdot, ve, pe, Ae, 2.0 * lam * cd * Ae)
-            # choked: mdot and p_e scale with p0, v_e does not -> d(thrust)/dp0 = (thrust + p_a A_e)/p0
-            return (mdot, ve, pe, Ae, (mdot * ve + pe * Ae) / up[0])
+            r = solve(up, p_down)
+            return Flow(r.mdot, r.ve, r.pe, Ae + 0.0 * r.mdot, r.slope)
 
         def signals(up, p_down, mode=0):
-            mdot, ve, pe, regime, mach, X = solve(up, p_down)
+            r = solve(up, p_down)
             pu, g = up[0], up[3]
-            shock = math.nan
-            separated = 0.0
-            if up[5] < 0.5 and regime in (SHOCK_INSIDE, OVEREXPANDED):
-                gam, m_sup, pr1, pr2, pr3, tr3, k1, k2 = regimes(g)
-                if pr3 * pu < psi * p_down:
-                    separated = 1.0
-                if regime == SHOCK_INSIDE:
-                    p0e = p_down / pressure_ratio(mach, g)
-                    shock = area_ratio(shock_mach_from_total_pressure_ratio(min(p0e / pu, 1.0), g), g)
-            thrust = mdot * ve + (pe - p_down) * Ae
-            return {"regime": float(regime), "exit_mach": mach, "shock_area_ratio": shock,
-                    "separation": separated, "thrust_coefficient": thrust / (pu * At) if pu > 0.0 else 0.0}
+            k = regimes(g)
+            in_gas = up[5] < 0.5
+            shocked = in_gas & (r.regime == SHOCK_INSIDE)
+            separated = ops.where(in_gas & ((r.regime == SHOCK_INSIDE) | (r.regime == OVEREXPANDED))
+                                  & (k.pr3 * pu < psi * p_down), 1.0, 0.0)
+            shock_at = math.nan + 0.0 * pu
+            if ops.any(shocked):
+                p0e = p_down / pressure_ratio(r.mach, g)
+                ratio = ops.minimum(p0e / ops.where(pu > 0.0, pu, 1.0), 1.0)
+                shock_at = ops.where(shocked, area_ratio(shock_mach_from_total_pressure_ratio(ratio, g, ops), g),
+                                     math.nan)
+            thrust = r.mdot * r.ve + (r.pe - p_down) * Ae
+            cf = ops.where(pu > 0.0, thrust / (ops.where(pu > 0.0, pu, 1.0) * At), 0.0)
+            return {"regime": r.regime + 0.0, "exit_mach": r.mach, "shock_area_ratio": shock_at,
+                    "separation": separated, "thrust_coefficient": cf}
 
         return FlowFns(flow=flow, jet_dir=p.direction, signals=signals)
+
+
+class _Regimes(NamedTuple):
+    """The regime constants of one exponent: choked flux factor, design exit Mach number, the pressure ratios
+    p_a/p0 of the subsonic root (pr1), of a shock at the exit (pr2) and of the design exit (pr3), the exit
+    temperature ratio, (g - 1)/g and 2 g/(g - 1)."""
+
+    gam: Any
+    m_sup: Any
+    pr1: Any
+    pr2: Any
+    pr3: Any
+    tr3: Any
+    k1: Any
+    k2: Any
+
+
+class _Solution(NamedTuple):
+    """The nozzle's flow at one upstream condition (see ``solve`` in :meth:`ConvergingDivergingNozzle.build_flow`)."""
+
+    mdot: Any
+    ve: Any
+    pe: Any
+    regime: Any
+    mach: Any
+    X: Any
+    slope: Any

@@ -17,7 +17,9 @@ normal-shock relations and Table II)::
 
 The area relation has two roots for every A/A* > 1: a subsonic and a
 supersonic Mach number; :func:`mach_from_area_ratio` returns the branch asked
-for. Functions take plain floats (SI or dimensionless).
+for. Functions take plain floats (SI or dimensionless), or, with ``ops`` the array namespace of
+:mod:`thrustgraph.xp`, numpy arrays of designs: one definition for both (the roots by
+:mod:`thrustgraph.roots`, whose iterates are those of one design alone).
 
 Examples
 --------
@@ -29,9 +31,10 @@ Examples
 
 from __future__ import annotations
 
-import math
+from typing import Any
 
-from scipy.optimize import brentq
+from thrustgraph.roots import illinois, newton
+from thrustgraph.xp import scalar_ops
 
 __all__ = ["temperature_ratio", "pressure_ratio", "density_ratio", "area_ratio", "mach_from_area_ratio",
            "mach_from_pressure_ratio", "critical_pressure_ratio", "mass_flux_factor", "normal_shock",
@@ -75,34 +78,43 @@ def area_ratio(mach: float, gamma: float) -> float:
     return (2.0 / (gamma + 1.0) * (1.0 + 0.5 * (gamma - 1.0) * mach * mach)) ** k / mach
 
 
-def mach_from_area_ratio(ratio: float, gamma: float, branch: str = "supersonic") -> float:
+def mach_from_area_ratio(ratio: Any, gamma: Any, branch: str = "supersonic", ops: Any = scalar_ops) -> Any:
     """The Mach number at area ratio A/A* = ``ratio`` >= 1 on the ``subsonic`` or ``supersonic`` branch.
+
+    Newton's iteration on A/A*(M) - ratio, which is convex in M on both branches: from below on the subsonic
+    branch, from M0 = (2/(g+1))^k / ratio (A/A* >= ratio there), and from above on the supersonic branch, from
+    the root of the large-Mach bound ((g-1)/(g+1))^k M^(2k-1) = ratio (k = (g+1)/(2(g-1))): both converge
+    monotonically.
 
     >>> round(mach_from_area_ratio(25.0, 1.4), 9)
     5.0
     """
-    if ratio < 1.0:
+    if not ops.arrays and ratio < 1.0:
         raise ValueError(f"an area ratio A/A* of {ratio!r} is below 1: no isentropic flow has it")
-    if ratio == 1.0:
-        return 1.0
-    if branch == "subsonic":
-        lo, hi = 1e-12, 1.0
-    elif branch == "supersonic":
-        lo, hi = 1.0, 2.0
-        while area_ratio(hi, gamma) < ratio:
-            hi *= 2.0
-    else:
+    if branch not in ("subsonic", "supersonic"):
         raise ValueError(f"branch must be 'subsonic' or 'supersonic', got {branch!r}")
-    return brentq(lambda m: area_ratio(m, gamma) - ratio, lo, hi, xtol=1e-15, rtol=8.9e-16, maxiter=200)
+    g = gamma
+    k = 0.5 * (g + 1.0) / (g - 1.0)
+    c = 2.0 / (g + 1.0)
+    b = (g - 1.0) / (g + 1.0)
+    r = ops.maximum(ratio, 1.0)
+    m0 = c ** k / r if branch == "subsonic" else (r / b ** k) ** (1.0 / (2.0 * k - 1.0))
+
+    def fdf(m):
+        q = c * (1.0 + 0.5 * (g - 1.0) * m * m)
+        a = q ** k / m
+        return a - r, a * (k * c * (g - 1.0) * m / q - 1.0 / m)
+
+    return ops.where(r == 1.0, 1.0, newton(fdf, m0, ops))
 
 
-def mach_from_pressure_ratio(ratio: float, gamma: float) -> float:
+def mach_from_pressure_ratio(ratio: Any, gamma: Any, ops: Any = scalar_ops) -> Any:
     """The Mach number at which p/p0 = ``ratio`` (0 < ratio <= 1).
 
     >>> round(mach_from_pressure_ratio(0.528282, 1.4), 5)
     1.0
     """
-    return math.sqrt(max(2.0 / (gamma - 1.0) * (ratio ** (-(gamma - 1.0) / gamma) - 1.0), 0.0))
+    return ops.sqrt(ops.maximum(2.0 / (gamma - 1.0) * (ratio ** (-(gamma - 1.0) / gamma) - 1.0), 0.0))
 
 
 def critical_pressure_ratio(gamma: float) -> float:
@@ -114,16 +126,16 @@ def critical_pressure_ratio(gamma: float) -> float:
     return (2.0 / (gamma + 1.0)) ** (gamma / (gamma - 1.0))
 
 
-def mass_flux_factor(gamma: float) -> float:
+def mass_flux_factor(gamma: Any, ops: Any = scalar_ops) -> Any:
     """Gamma(g) = sqrt(g) (2/(g+1))^((g+1)/(2(g-1))): choked mdot = A* p0 Gamma / sqrt(R T0).
 
     >>> round(mass_flux_factor(1.4), 6)
     0.684731
     """
-    return math.sqrt(gamma) * (2.0 / (gamma + 1.0)) ** ((gamma + 1.0) / (2.0 * (gamma - 1.0)))
+    return ops.sqrt(gamma) * (2.0 / (gamma + 1.0)) ** ((gamma + 1.0) / (2.0 * (gamma - 1.0)))
 
 
-def normal_shock(mach1: float, gamma: float) -> tuple[float, float, float]:
+def normal_shock(mach1: Any, gamma: Any, ops: Any = scalar_ops) -> tuple[Any, Any, Any]:
     """Downstream Mach number, static pressure ratio p2/p1 and total pressure ratio p02/p01 of a normal shock.
 
     >>> [round(x, 4) for x in normal_shock(2.0, 1.4)]
@@ -131,22 +143,35 @@ def normal_shock(mach1: float, gamma: float) -> tuple[float, float, float]:
     """
     m2 = mach1 * mach1
     g = gamma
-    M2 = math.sqrt((1.0 + 0.5 * (g - 1.0) * m2) / (g * m2 - 0.5 * (g - 1.0)))
+    M2 = ops.sqrt((1.0 + 0.5 * (g - 1.0) * m2) / (g * m2 - 0.5 * (g - 1.0)))
     p21 = 1.0 + 2.0 * g / (g + 1.0) * (m2 - 1.0)
     p0 = ((0.5 * (g + 1.0) * m2) / (1.0 + 0.5 * (g - 1.0) * m2)) ** (g / (g - 1.0)) * \
         (2.0 * g / (g + 1.0) * m2 - (g - 1.0) / (g + 1.0)) ** (-1.0 / (g - 1.0))
     return M2, p21, p0
 
 
-def shock_mach_from_total_pressure_ratio(ratio: float, gamma: float) -> float:
+def shock_mach_from_total_pressure_ratio(ratio: Any, gamma: Any, ops: Any = scalar_ops) -> Any:
     """The upstream Mach number of the normal shock whose total pressure ratio p02/p01 is ``ratio`` (0 < ratio <= 1).
+
+    p02/p01 falls from 1 as M1 rises from 1: the root is bracketed between 1 and the first of 2, 4, 8... where
+    it has fallen below ``ratio``, and found by :func:`thrustgraph.roots.illinois`.
 
     >>> round(shock_mach_from_total_pressure_ratio(normal_shock(2.5, 1.4)[2], 1.4), 9)
     2.5
     """
-    if ratio >= 1.0:
-        return 1.0
-    hi = 2.0
-    while normal_shock(hi, gamma)[2] > ratio:
-        hi *= 2.0
-    return brentq(lambda m: normal_shock(m, gamma)[2] - ratio, 1.0, hi, xtol=1e-14, rtol=8.9e-16, maxiter=200)
+    r = ops.clip(ratio, 1e-300, 1.0)
+    weak = r >= 1.0
+
+    def f(m):
+        return normal_shock(m, gamma, ops)[2] - r
+
+    hi = 2.0 + 0.0 * r
+    f_hi = f(hi)
+    for _ in range(1100):
+        grow = ops.where(weak, False, f_hi > 0.0)
+        if not ops.any(grow):
+            break
+        hi = ops.where(grow, 2.0 * hi, hi)
+        f_hi = f(hi)
+    m = illinois(f, 1.0 + 0.0 * r, hi, 1.0 - r, f_hi, ops, xtol=1e-14, rtol=8.9e-16, done=weak)
+    return ops.where(weak, 1.0, m)

@@ -28,6 +28,9 @@ Examples
 from __future__ import annotations
 
 import math
+from typing import Any
+
+from thrustgraph.xp import scalar_ops
 
 from .isentropic import mach_from_area_ratio, mass_flux_factor, pressure_ratio
 
@@ -38,13 +41,14 @@ __all__ = ["thrust_coefficient", "characteristic_velocity", "ideal_specific_impu
 STANDARD_GRAVITY = 9.80665
 
 
-def divergence_factor(half_angle: float) -> float:
-    """lambda = (1 + cos alpha)/2 of a conical exit of half angle ``half_angle`` (radians).
+def divergence_factor(half_angle: Any, ops: Any = scalar_ops) -> Any:
+    """lambda = (1 + cos alpha)/2 of a conical exit of half angle ``half_angle`` (radians; an array of designs
+    with ``ops`` the array namespace of :mod:`thrustgraph.xp`).
 
     >>> divergence_factor(0.0)
     1.0
     """
-    return 0.5 * (1.0 + math.cos(half_angle))
+    return 0.5 * (1.0 + ops.cos(half_angle))
 
 
 def thrust_coefficient(gamma: float, area_ratio: float, ambient_ratio: float = 0.0, *,

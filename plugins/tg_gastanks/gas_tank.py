@@ -81,10 +81,14 @@ Examples
 
 from __future__ import annotations
 
+from typing import Any
+
+import numpy as np
 
 from thrustgraph.component import ComponentKind, EventSpec, Mode, StateVar, VolumeFns
 from thrustgraph.errors import ModelError
 from thrustgraph.parameters import Choice, Number, Quantity
+from thrustgraph.xp import array_ops, scalar_ops
 
 from tg_vessels import PRESSURE_CAUTIONS
 
@@ -167,30 +171,43 @@ class GasTank(ComponentKind):
     # --- initial state ----------------------------------------------------------
     @classmethod
     def initial_state(cls, p, amb):
+        """(gas mass, temperature) at the charge state; floats, or arrays when the parameters or the ambient
+        are arrays over designs (a CoolProp charge state is then evaluated design by design)."""
         p0 = amb.pressure + p.gauge_pressure
         T0 = p.temperature
         if p.equation_of_state == "ideal":
             R = lookup_gas(p.gas).gas_constant
             return (p0 * p.volume / (R * T0), T0)
         fluid = resolve_fluid(p.gas, where="gas", device="the real-gas tank")
-        problem = _charge_problem(p, fluid, amb.pressure)
-        if problem:
-            raise ModelError("gas-tank.gauge_pressure", problem, "use a self-pressurising-tank for a liquefied "
-                             "gas, or raise the temperature or lower the pressure")
         st = new_state(fluid)
-        st.update(_inputs("PT"), p0, T0)
-        return (st.rhomass() * p.volume, T0)
+        PT = _inputs("PT")
+
+        def density(p_charge, T_charge):
+            problem = _charge_problem_at(fluid, p_charge, T_charge)
+            if problem:
+                raise ModelError("gas-tank.gauge_pressure", problem, "use a self-pressurising-tank for a "
+                                 "liquefied gas, or raise the temperature or lower the pressure")
+            st.update(PT, p_charge, T_charge)
+            return st.rhomass()
+
+        return (_ops_for(p0, T0).each(density, p0, T0) * p.volume, T0)
 
     @classmethod
     def describe_mass(cls, p, amb):
         return {"gas": cls.initial_state(p, amb)[0]}
 
+    vectorised = True
+
     # --- assembly ---------------------------------------------------------------
     @classmethod
     def build_volume(cls, p, i, ops, amb):
+        """One definition for one design (floats) and for an ensemble (parameters, ``s[k]`` and ``mode`` arrays
+        over designs; a mode shared by every design arrives as an ``int``). The real gas's properties come from
+        CoolProp at each design's (rho, T), one call per design through ``ops.each``: the same numbers as a
+        single flight, at the cost of one property call per design."""
         V = p.volume
         m0, T0 = cls.initial_state(p, amb)
-        Tw = p.wall_temperature if p.wall_temperature > 0.0 else T0
+        Tw = ops.where(p.wall_temperature > 0.0, p.wall_temperature, T0)
         hA = p.wall_heat_transfer_coefficient * p.wall_area
         process = p.process
         n = p.polytropic_exponent
@@ -202,7 +219,7 @@ class GasTank(ComponentKind):
             cv = R / (g - 1.0)
 
             def state(s):
-                m = s[i] if s[i] > m_floor else m_floor
+                m = ops.maximum(s[i], m_floor)
                 T = s[i + 1]
                 rho = m / V
                 return m, T, rho, rho * R * T, g, R
@@ -210,7 +227,7 @@ class GasTank(ComponentKind):
             def temperature_rate(s, mdot):
                 m, T, rho, pg, _g, _R = state(s)
                 if process == "isothermal":
-                    return 0.0
+                    return 0.0 * mdot
                 if process == "polytropic":
                     return -(n - 1.0) * T * mdot / m
                 return (-mdot * R * T + hA * (Tw - T)) / (m * cv)
@@ -232,28 +249,44 @@ class GasTank(ComponentKind):
             sat = new_state(fluid)
             pc, Tc = sat.p_critical(), sat.T_critical()
             PQ = CoolProp.PQ_INPUTS
-
             expander = new_state(fluid)
 
-            def state(s):
-                m = s[i] if s[i] > m_floor else m_floor
-                T = s[i + 1] if s[i + 1] > t_min else t_min
-                rho = m / V
+            # the property calls, on one design's floats (ops.each applies them design by design)
+            def point(rho, T):
                 st.update(DT, rho, T)
                 pg = st.p()
-                return m, T, rho, pg, rho * st.speed_sound() ** 2 / pg, pg / (rho * T)
+                return pg, rho * st.speed_sound() ** 2 / pg
+
+            def exponent(rho, T):
+                st.update(DT, rho, T)
+                pg = st.p()
+                return expansion_exponent(expander, pg, rho, st.smass(), rho * st.speed_sound() ** 2 / pg)
+
+            def energy(rho, T):
+                st.update(DT, rho, T)
+                return st.hmass() - st.umass() - rho * st.first_partial_deriv(iU, iD, iT), st.cvmass()
+
+            def dew_temperature(pg):
+                sat.update(PQ, pg, 1.0)
+                return sat.T()
+
+            def state(s):
+                m = ops.maximum(s[i], m_floor)
+                T = ops.maximum(s[i + 1], t_min)
+                rho = m / V
+                pg, kappa = ops.each(point, rho, T)
+                return m, T, rho, pg, kappa, pg / (rho * T)
 
             def outlet_state(s):
                 m, T, rho, pg, kappa, R_eff = state(s)
-                return m, T, rho, pg, expansion_exponent(expander, pg, rho, st.smass(), kappa), R_eff
+                return m, T, rho, pg, ops.each(exponent, rho, T), R_eff
 
             def temperature_rate(s, mdot):
                 if process == "isothermal":
-                    return 0.0
+                    return 0.0 * mdot
                 m, T, rho, pg, _k, _R = state(s)
-                h, u, cv = st.hmass(), st.umass(), st.cvmass()
-                dudrho = st.first_partial_deriv(iU, iD, iT)
-                return (-mdot * (h - u - rho * dudrho) + hA * (Tw - T)) / (m * cv)
+                work, cv = ops.each(energy, rho, T)
+                return (-mdot * work + hA * (Tw - T)) / (m * cv)
 
             def compressibility(s):
                 m, T, rho, pg, _k, _R = state(s)
@@ -261,10 +294,10 @@ class GasTank(ComponentKind):
 
             def dew_margin(t, s, drive):
                 m, T, rho, pg, _k, _R = state(s)
-                if pg >= pc:
-                    return s[i + 1] - Tc
-                sat.update(PQ, pg, 1.0)
-                return s[i + 1] - sat.T()
+                above = pg >= pc
+                # above the critical pressure the margin is to the critical temperature (no flash there)
+                return ops.where(above, s[i + 1] - Tc,
+                                 s[i + 1] - ops.each(dew_temperature, ops.where(above, 0.5 * pc, pg)))
 
             events_extra = (EventSpec("dew point reached (condensation: outside the gas-tank model)", dew_margin,
                                       -1.0, ("gas", "sealed"), None, needs_drive=False),)
@@ -274,7 +307,8 @@ class GasTank(ComponentKind):
 
         def outlet(s, mode):
             m, T, rho, pg, g_eff, R_eff = outlet_state(s)
-            return (pg, T, rho, g_eff, R_eff, -1.0 if mode == 1 else 0.0, 0.0)
+            phase = (-1.0 if mode == 1 else 0.0) if type(mode) is int else ops.where(mode == 1, -1.0, 0.0)
+            return (pg, T, rho, g_eff, R_eff, phase, 0.0)
 
         def derivs(s, mode, mdot):
             return (-mdot, temperature_rate(s, mdot))
@@ -291,6 +325,11 @@ class GasTank(ComponentKind):
         return VolumeFns(mass=mass, outlet=outlet, derivs=derivs, signals=signals, events=events)
 
 
+def _ops_for(*values: Any) -> Any:
+    """The namespace of :mod:`thrustgraph.xp` that fits ``values``: arrays when any of them is one."""
+    return array_ops if any(isinstance(v, np.ndarray) for v in values) else scalar_ops
+
+
 def _inputs(name: str) -> int:
     import CoolProp
 
@@ -303,9 +342,13 @@ _STANDARD_PRESSURE = 101325.0
 
 def _charge_problem(p, fluid: str, p_amb: float) -> str:
     """Why the charge state is not a gas (empty when it is): below the dew point, or liquid-like."""
+    return _charge_problem_at(fluid, p_amb + p.gauge_pressure, p.temperature)
+
+
+def _charge_problem_at(fluid: str, p0: float, T0: float) -> str:
+    """Why ``fluid`` at (p0, T0) is not a gas (empty when it is)."""
     import CoolProp
 
-    p0, T0 = p_amb + p.gauge_pressure, p.temperature
     st = new_state(fluid)
     if T0 >= st.T_critical():
         return ""

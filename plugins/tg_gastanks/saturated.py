@@ -159,8 +159,14 @@ class SelfPressurisingTank(ComponentKind):
     def describe_mass(cls, p, amb):
         return {"propellant": p.propellant_mass}
 
+    vectorised = True
+
     @classmethod
     def build_volume(cls, p, i, ops, amb):
+        """One definition for one design and for an ensemble: every property comes from CoolProp's two-phase
+        equilibrium, so each callable is a function of one design's floats (state, mode and parameters) that
+        ``ops.each`` applies design by design (for one design, a plain call): the same numbers as a single
+        flight, at the cost of the property calls of each design."""
         import CoolProp
 
         fluid = resolve_fluid(p.fluid, where="fluid", device="the self-pressurising tank")
@@ -172,19 +178,18 @@ class SelfPressurisingTank(ComponentKind):
         m0, T0 = p.propellant_mass, p.temperature
         t_tp, t_c = mix.Ttriple(), mix.T_critical()
         t_lo, t_hi = t_tp + 0.01, t_c - 0.01
-        Tw = p.wall_temperature if p.wall_temperature > 0.0 else T0
+        Tw = ops.where(p.wall_temperature > 0.0, p.wall_temperature, T0)
         hA = p.wall_heat_transfer_coefficient * p.wall_area
         m_floor = 1e-12 * m0
 
-        def props(s, mode):
-            """(p, x, u, du/dT_v, du/dv_T, h_l or h, h_v or h, rho_l, rho_v, kappa_v, two_phase) at the state.
+        def props(m, T, mode, V):
+            """(p, x, u, du/dT_v, du/dv_T, h_l or h, h_v or h, rho_l, rho_v, kappa_v, two_phase) at one design's
+            state (floats; ``m`` already floored).
 
             In the liquid mode the saturated-mixture formulas are used on both sides of the point where the
             last liquid evaporates (x a little above 1 in the trial stages of a step that crosses it), so the
             right-hand side stays smooth up to the event that switches to the vapour mode.
             """
-            m = s[i] if s[i] > m_floor else m_floor
-            T = s[i + 1]
             T = t_lo if T < t_lo else (t_hi if T > t_hi else T)
             rho = m / V
             mix.update(DT, rho, T)
@@ -213,12 +218,13 @@ class SelfPressurisingTank(ComponentKind):
         def h_out(pp, mode):
             return pp[5] if mode == 0 else pp[6]
 
-        def mass(s):
-            return s[i] if s[i] > 0.0 else 0.0
+        def floor(m, m_floor):
+            return m if m > m_floor else m_floor
 
-        def outlet(s, mode):
-            pp = props(s, mode)
-            T = s[i + 1]
+        # one design's callables (floats; the mode as a float from ops.each)
+        def outlet1(m, T, mode, V, m_floor):
+            mode = int(mode)
+            pp = props(floor(m, m_floor), T, mode, V)
             if mode == 0:
                 return (pp[0], T, pp[7], pp[9], pp[0] / (pp[8] * T), 1.0, 0.0)
             rv = pp[8]
@@ -228,25 +234,40 @@ class SelfPressurisingTank(ComponentKind):
             n = expansion_exponent(expander, pp[0], rv, s_v, pp[9])
             return (pp[0], T, rv, n, pp[0] / (rv * T), 0.0, 0.0)
 
+        def temperature_rate1(m, T, mode, mdot, V, m_floor, hA, Tw):
+            mode = int(mode)
+            m = floor(m, m_floor)
+            pp = props(m, T, mode, V)
+            q = hA * (Tw - T)
+            return (-mdot * (h_out(pp, mode) - pp[2] + (V / m) * pp[4]) + q) / (m * pp[3])
+
+        def signals1(m, T, mode, V, m_floor):
+            mode = int(mode)
+            pp = props(floor(m, m_floor), T, mode, V)
+            x = pp[1]
+            return (pp[0], x, m * (1.0 - x) if pp[10] and x < 1.0 else 0.0, m * pp[2], h_out(pp, mode))
+
+        def liquid_left1(m, T, V):
+            vap.update(QT, 1.0, t_lo if T < t_lo else (t_hi if T > t_hi else T))
+            return m / (V * vap.rhomass()) - 1.0
+
+        def mass(s):
+            return ops.maximum(s[i], 0.0)
+
+        def outlet(s, mode):
+            return ops.each(outlet1, s[i], s[i + 1], mode, V, m_floor)
+
         def derivs(s, mode, mdot):
-            pp = props(s, mode)
-            m = s[i] if s[i] > m_floor else m_floor
-            q = hA * (Tw - s[i + 1])
-            dT = (-mdot * (h_out(pp, mode) - pp[2] + (V / m) * pp[4]) + q) / (m * pp[3])
-            return (-mdot, dT)
+            return (-mdot, ops.each(temperature_rate1, s[i], s[i + 1], mode, mdot, V, m_floor, hA, Tw))
 
         def signals(s, mode):
-            pp = props(s, mode)
-            x = pp[1]
-            return {"pressure": pp[0], "temperature": s[i + 1], "propellant_mass": s[i],
-                    "vapour_quality": x, "liquid_mass": s[i] * (1.0 - x) if pp[10] and x < 1.0 else 0.0,
-                    "internal_energy": s[i] * pp[2], "outflow_enthalpy": h_out(pp, mode),
+            pr, x, liquid, energy, h = ops.each(signals1, s[i], s[i + 1], mode, V, m_floor)
+            return {"pressure": pr, "temperature": s[i + 1], "propellant_mass": s[i],
+                    "vapour_quality": x, "liquid_mass": liquid, "internal_energy": energy, "outflow_enthalpy": h,
                     "heat_flow": hA * (Tw - s[i + 1])}
 
         def liquid_left(t, s, drive):
-            T = s[i + 1]
-            vap.update(QT, 1.0, t_lo if T < t_lo else (t_hi if T > t_hi else T))
-            return s[i] / (V * vap.rhomass()) - 1.0
+            return ops.each(liquid_left1, s[i], s[i + 1], V)
 
         events = (
             EventSpec("liquid exhausted", liquid_left, -1.0, ("liquid",), "vapour", needs_drive=False),

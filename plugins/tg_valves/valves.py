@@ -68,7 +68,7 @@ _COMMON = (
 def _opening(p, ops):
     """The flow function of the opening, and whether its jets cancel."""
     P = ConvergentNozzle.params_class()
-    nozzle = ConvergentNozzle.build_flow(P(diameter=math.sqrt(4.0 * p.flow_area / math.pi),
+    nozzle = ConvergentNozzle.build_flow(P(diameter=ops.sqrt(4.0 * p.flow_area / math.pi),
                                            discharge_coefficient=p.discharge_coefficient,
                                            direction=p.direction), ops)
     return nozzle.flow, p.arrangement == "symmetric"
@@ -82,14 +82,18 @@ class Vent(ComponentKind):
     summary = "always-open vent: one-sided (pushes) or symmetric (jets cancel)"
     parameters = _COMMON
 
+    vectorised = True
+
     @classmethod
     def build_flow(cls, p, ops):
+        """One definition for floats and arrays over designs (the convergent nozzle's flow)."""
         orifice, symmetric = _opening(p, ops)
 
         def flow(up, p_down, mode=0):
             f = orifice(up, p_down)
             if symmetric:
-                return (f[0], 0.0, p_down, 0.0, 0.0)
+                z = 0.0 * f[0]
+                return (f[0], z, p_down + z, z, z)
             return f
 
         def signals(up, p_down, mode=0):
@@ -118,21 +122,35 @@ class ReliefValve(ComponentKind):
                              f"{p.cracking_pressure / 1e5:g} bar", "give a reseat_pressure below "
                              "cracking_pressure (a few to ten per cent lower is usual)")
 
+    vectorised = True
+
     @classmethod
     def build_flow(cls, p, ops):
+        """One definition for floats and arrays over designs; the mode (0 closed, 1 open) is an ``int`` when
+        every design shares it, else an integer array."""
         orifice, symmetric = _opening(p, ops)
         crack, reseat = p.cracking_pressure, p.reseat_pressure
 
-        def flow(up, p_down, mode=0):
-            if mode == 0:
-                return (0.0, 0.0, p_down, 0.0, 0.0)
+        def venting(up, p_down):
             f = orifice(up, p_down)
             if symmetric:
-                return (f[0], 0.0, p_down, 0.0, 0.0)
-            return f
+                z = 0.0 * f[0]
+                return (f[0], z, p_down + z, z, z)
+            return tuple(f)
+
+        def flow(up, p_down, mode=0):
+            if type(mode) is int:
+                if mode == 0:
+                    return (0.0, 0.0, p_down, 0.0, 0.0)
+                return venting(up, p_down)
+            f = venting(up, p_down)
+            is_open = mode == 1
+            return (ops.where(is_open, f[0], 0.0), ops.where(is_open, f[1], 0.0), ops.where(is_open, f[2], p_down),
+                    ops.where(is_open, f[3], 0.0), ops.where(is_open, f[4], 0.0))
 
         def signals(up, p_down, mode=0):
-            return {"open": float(mode == 1), "jet_speed": orifice(up, p_down)[1] if mode == 1 else 0.0}
+            is_open = mode == 1
+            return {"open": ops.where(is_open, 1.0, 0.0), "jet_speed": ops.where(is_open, orifice(up, p_down)[1], 0.0)}
 
         events = (
             EventSpec("relief valve opens", lambda t, s, drive: drive - crack, 1.0, ("closed",), "open"),
