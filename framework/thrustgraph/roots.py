@@ -3,7 +3,7 @@
 Both solvers run against the namespace ``ops`` of :mod:`thrustgraph.xp`. Over arrays every design iterates on
 its own: a design whose iteration has converged keeps its values (``ops.where``) while the others go on, so a
 design's iterates, and its root, are those it gets alone with floats (the same operations in the same order,
-elementwise). The loop ends when every design has converged or after ``maxiter`` steps.
+elementwise). The loop (``ops.iterate``) ends when every design has converged or after ``maxiter`` steps.
 
 :func:`illinois` is the modified regula falsi (the Illinois rule: halve the value kept at an end that stays
 twice), for a root inside a bracket; :func:`newton` is Newton's iteration from a start on the side where it
@@ -48,20 +48,24 @@ def illinois(f: Callable[[Any], Any], a: Any, b: Any, fa: Any, fb: Any, ops: Any
     zero_a = ops.where(done, False, fa == 0.0)
     b, fb = ops.where(zero_a, a, b), ops.where(zero_a, fa, fb)
     done = done | zero_a
-    for _ in range(maxiter):
-        if ops.all(done):
-            break
+
+    def test(c):
+        return c[4], None
+
+    def step(c, _):
+        a, b, fa, fb, done = c
         den = fb - fa
-        c = b - fb * (b - a) / ops.where(den != 0.0, den, 1.0)
-        inside = (c > ops.minimum(a, b)) & (c < ops.maximum(a, b)) & (den != 0.0)
-        c = ops.where(inside, c, 0.5 * (a + b))
-        fc = f(c)
-        opp = (fc < 0.0) != (fb < 0.0)              # the root lies between b and c
+        x = b - fb * (b - a) / ops.where(den != 0.0, den, 1.0)
+        inside = (x > ops.minimum(a, b)) & (x < ops.maximum(a, b)) & (den != 0.0)
+        x = ops.where(inside, x, 0.5 * (a + b))
+        fx = f(x)
+        opp = (fx < 0.0) != (fb < 0.0)              # the root lies between b and x
         a_new, fa_new = ops.where(opp, b, a), ops.where(opp, fb, 0.5 * fa)
         a, fa = ops.where(done, a, a_new), ops.where(done, fa, fa_new)
-        b, fb = ops.where(done, b, c), ops.where(done, fb, fc)
-        conv = (fc == 0.0) | (ops.abs(b - a) <= xtol + rtol * ops.abs(b))
-        done = done | conv
+        b, fb = ops.where(done, b, x), ops.where(done, fb, fx)
+        return a, b, fa, fb, done | (fx == 0.0) | (ops.abs(b - a) <= xtol + rtol * ops.abs(b))
+
+    (a, b, fa, fb, done), _ = ops.iterate((a, b, fa, fb, done), test, step, maxiter)
     return b
 
 
@@ -74,16 +78,16 @@ def newton(fdf: Callable[[Any], tuple], x0: Any, ops: Any, *, rtol: float = 4e-1
     >>> newton(lambda x: (x - 3.0, 1.0), 0.0, scalar_ops)
     3.0
     """
-    x = x0
-    done: Any = False
-    for _ in range(maxiter):
+    def test(c):
+        return c[1], None
+
+    def step(c, _):
+        x, done = c
         f, df = fdf(x)
         flat = df == 0.0
-        step = f / ops.where(flat, 1.0, df)
-        step = ops.where(flat, 0.0, step)
-        x_new = x - step
-        x = ops.where(done, x, x_new)
-        done = done | (ops.abs(step) <= rtol * ops.abs(x_new))
-        if ops.all(done):
-            break
+        dx = ops.where(flat, 0.0, f / ops.where(flat, 1.0, df))
+        x_new = x - dx
+        return ops.where(done, x, x_new), done | (ops.abs(dx) <= rtol * ops.abs(x_new))
+
+    (x, _done), _ = ops.iterate((x0, x0 != x0), test, step, maxiter)
     return x

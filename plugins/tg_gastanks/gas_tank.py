@@ -274,7 +274,7 @@ class GasTank(ComponentKind):
                 m = ops.maximum(s[i], m_floor)
                 T = ops.maximum(s[i + 1], t_min)
                 rho = m / V
-                pg, kappa = ops.each(point, rho, T)
+                pg, kappa = ops.each(point, rho, T, outputs=2)
                 return m, T, rho, pg, kappa, pg / (rho * T)
 
             def outlet_state(s):
@@ -285,7 +285,7 @@ class GasTank(ComponentKind):
                 if process == "isothermal":
                     return 0.0 * mdot
                 m, T, rho, pg, _k, _R = state(s)
-                work, cv = ops.each(energy, rho, T)
+                work, cv = ops.each(energy, rho, T, outputs=2)
                 return (-mdot * work + hA * (Tw - T)) / (m * cv)
 
             def compressibility(s):

@@ -255,13 +255,13 @@ class SelfPressurisingTank(ComponentKind):
             return ops.maximum(s[i], 0.0)
 
         def outlet(s, mode):
-            return ops.each(outlet1, s[i], s[i + 1], mode, V, m_floor)
+            return ops.each(outlet1, s[i], s[i + 1], mode, V, m_floor, outputs=7)
 
         def derivs(s, mode, mdot):
             return (-mdot, ops.each(temperature_rate1, s[i], s[i + 1], mode, mdot, V, m_floor, hA, Tw))
 
         def signals(s, mode):
-            pr, x, liquid, energy, h = ops.each(signals1, s[i], s[i + 1], mode, V, m_floor)
+            pr, x, liquid, energy, h = ops.each(signals1, s[i], s[i + 1], mode, V, m_floor, outputs=5)
             return {"pressure": pr, "temperature": s[i + 1], "propellant_mass": s[i],
                     "vapour_quality": x, "liquid_mass": liquid, "internal_energy": energy, "outflow_enthalpy": h,
                     "heat_flow": hA * (Tw - s[i + 1])}
