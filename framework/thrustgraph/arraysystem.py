@@ -242,13 +242,14 @@ class ArraySystem:
         return out
 
     def masses(self, Y: np.ndarray) -> np.ndarray:
-        s = list(Y)
-        M = self.fixed_mass + 0.0 * s[0]
-        for v in self.plan.vessels:
-            M = M + v.fns.mass(s)
-        for j in self.plan.jets:
-            M = M + j.fns.mass(s)
-        return M
+        """The vehicle's mass per design (kg), from the balance."""
+        return np.broadcast_to(np.asarray(self.balance.mass(list(Y)), dtype=float), (self.n,)).copy()
+
+    def snapshot(self, t: np.ndarray, Y: np.ndarray, phase: "Phase") -> dict:
+        """Every term and signal of the balance at states ``Y`` (:meth:`Balance.evaluate` over the designs),
+        the balance set to ``phase``; what a trigger watching a component's signal reads."""
+        self._use(phase)
+        return self.balance.evaluate(t, list(Y))
 
     def pressures(self, Y: np.ndarray, modes: np.ndarray) -> np.ndarray | None:
         """Largest vessel pressure per design (Pa), or None without vessels."""
