@@ -49,8 +49,6 @@ def unsupported(parsed: ParsedModel) -> str | None:
     """Why the vectorised ensemble cannot fly a model, or None when it can."""
     if parsed.launch.mount not in ("guide", "free"):
         return f"launch.mount {parsed.launch.mount!r} (the ensemble flies guide and free launches)"
-    if parsed.stages or parsed.triggers:
-        return "stages and triggers"
     for slot, cls in parsed.env_kinds.items():
         if not vectorised(cls):
             return f"environment.{slot} kind {cls.kind!r} builds no array callables"
@@ -301,9 +299,10 @@ class ArraySystem:
             out: np.ndarray | None = None, phase: "Phase | None" = None, aux: bool = True
             ) -> tuple[np.ndarray, dict | None]:
         """Derivatives of the states (shape of ``Y``, written into ``out`` when given) and, in ``aux``:
-        ``drive`` (name -> Pa), ``accel`` (acceleration magnitude), ``thrust`` (thrust magnitude), ``mass``
-        and ``singular`` (designs whose head coupling has no solution); ``aux=False`` skips those (None
-        instead), for the inner stages of a step, which use the derivatives alone.
+        ``drive`` (name -> Pa), ``accel`` (acceleration magnitude), ``thrust`` (thrust magnitude), ``mass``,
+        ``singular`` (designs whose head coupling has no solution) and ``phase`` (the phase it was set to);
+        ``aux=False`` skips those (None instead), for the inner stages of a step, which use the derivatives
+        alone.
 
         Every term comes from :class:`~thrustgraph.balance.Balance`, the single flight's balance, over arrays;
         the last state is the impulse quadrature (the thrust magnitude). ``phase`` is :meth:`phase` of
@@ -326,4 +325,4 @@ class ArraySystem:
         accel = np.sqrt(ax * ax + ay * ay + az * az)
         singular = np.broadcast_to(np.asarray(terms["singular"], dtype=bool), (self.n,))
         return out, {"drive": terms["drive"], "accel": accel, "thrust": out[-1], "mass": terms["mass"],
-                     "singular": singular}
+                     "singular": singular, "phase": phase}

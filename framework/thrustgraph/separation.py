@@ -23,6 +23,7 @@ Examples
 
 from __future__ import annotations
 
+import dataclasses
 from typing import Any, Sequence
 
 import numpy as np
@@ -36,7 +37,11 @@ __all__ = ["separate", "stage_models", "carry"]
 
 def _sub(parsed: ParsedModel, keep: Sequence[str], name: str, free: bool) -> ParsedModel:
     """The model of some of a vehicle's components (and the flow paths between them), without stages and
-    triggers; ``free`` launches it in free flight (a dropped stage)."""
+    triggers; ``free`` launches it in free flight (a dropped stage, with the launch settings' defaults).
+
+    The components and the environment keep the parsed values of ``parsed`` (a study's design sets them
+    there, not in the model's text), and the vehicle flying on keeps its launch settings.
+    """
     model = parsed.model
     m = model.copy()
     m.name = name
@@ -45,7 +50,11 @@ def _sub(parsed: ParsedModel, keep: Sequence[str], name: str, free: bool) -> Par
     m.stages, m.triggers = {}, {}
     if free:
         m.launch = {"mount": "free", "attitude": model.launch.get("attitude", "follow-wind")}
-    return parse_model(m, plugin_manager=parsed.plugin_manager)
+    sub = parse_model(m, plugin_manager=parsed.plugin_manager)
+    values = {"params": {n: parsed.params[n] for n in sub.params}, "env_params": dict(parsed.env_params)}
+    if not free:
+        values.update(launch=parsed.launch, ambient=parsed.ambient)
+    return dataclasses.replace(sub, **values)
 
 
 def stage_models(parsed: ParsedModel, stage: Sequence[str]) -> tuple[ParsedModel, ParsedModel]:
