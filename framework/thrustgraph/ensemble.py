@@ -585,20 +585,25 @@ class _Run:
         stuck = (self.kin[idx] == GUIDE) & ~prop & (v_al <= 0.0) & (s_al <= 1e-12) & ~waits
         self.finish(idx[stuck], STATUS_SCREENED, "no lift-off: the thrust never exceeded the weight along the guide")
 
-    def initial_step(self) -> np.ndarray:
-        """Hairer, Norsett & Wanner, Solving ODEs I, sec. II.4 (as scipy's select_initial_step), per design."""
-        Y, F, c = self.Y, self.F, self.nctrl
+    def initial_step(self, idx: np.ndarray | None = None, sub: ArraySystem | None = None) -> np.ndarray:
+        """Hairer, Norsett & Wanner, Solving ODEs I, sec. II.4 (as scipy's select_initial_step), per design: for
+        every design at the start, and for designs ``idx`` (``sub`` their system) after a phase switch, where a
+        single flight starts a new segment with a step of its own."""
+        if idx is None:
+            idx, sub = np.arange(self.n), self.sysa
+        Y, F, t, c = self.Y[:, idx], self.F[:, idx], self.t[idx], self.nctrl
+        left = np.maximum(self.t_end - t, 0.0)
         sc = self.atol + np.abs(Y) * self.rtol
         d0 = _norm((Y / sc)[:c])
         d1 = _norm((F / sc)[:c])
         h0 = np.where((d0 < 1e-5) | (d1 < 1e-5), 1e-6, 0.01 * d0 / np.where(d1 > 0, d1, 1.0))
-        h0 = np.minimum(h0, self.t_end)
-        F1, _ = self.sysa.rhs(self.t + h0, Y + h0 * F, self.modes, self.kin)
+        h0 = np.minimum(h0, left)
+        F1, _ = sub.rhs(t + h0, Y + h0 * F, self.modes[:, idx], self.kin[idx])
         self.calls += 1
-        d2 = _norm(((F1 - F) / sc)[:c]) / h0
+        d2 = _norm(((F1 - F) / sc)[:c]) / np.where(h0 > 0.0, h0, 1.0)
         h1 = np.where((d1 <= 1e-15) & (d2 <= 1e-15), np.maximum(1e-6, h0 * 1e-3),
                       (0.01 / np.maximum(np.maximum(d1, d2), 1e-300)) ** (1.0 / 5.0))
-        return np.minimum(np.minimum(100 * h0, h1), self.t_end)
+        return np.minimum(np.minimum(100 * h0, h1), left)
 
     def compact(self) -> None:
         """Drop the finished designs from every array."""
@@ -842,6 +847,10 @@ class _Run:
         bad = live & ~np.all(np.isfinite(Y), axis=0)
         self.finish(np.flatnonzero(bad), STATUS_SCREENED, "integration failed: the state is not finite")
         self.h = np.where(acc | rej, h_next, self.h)
+        if len(evi) and len(cont):
+            # a phase switch starts the design afresh, as a single flight starts a new segment
+            self.h[cont] = self.initial_step(cont, sub)
+            self.rejected[cont] = False
 
     def track(self, acc, th_end, Y, F, K, Yn, aux_n, hh, evi, event, sub_e) -> None:
         """Running maxima (speed, acceleration, altitude, vessel pressure) and burn time over accepted steps.
