@@ -36,6 +36,12 @@ SWEEPS = {
                                          "launch.elevation": (np.radians(70.0), np.radians(89.0))},
     "rocket-with-parachute": {"components.airframe.dry_mass": (0.9, 1.5),
                               "launch.elevation": (np.radians(75.0), np.radians(89.0))},
+    # an ideal-gas tank blowing down through three converging-diverging nozzles, in free flight
+    "cold-gas-free-floater": {"components.tank.gauge_pressure": (20e5, 40e5),
+                              "components.main.throat_diameter": (0.6e-3, 1.0e-3)},
+    # a hose feed whose line (hose loss, then the nozzle) is solved on every evaluation
+    "hose-fed-hover": {"components.hose.supply_pressure": (1.9e5, 2.4e5),
+                       "components.platform.dry_mass": (20.0, 32.0)},
     # each design separates its booster and lights its sustainer at its own time
     "two-stage-demo": {"components.upper_frame.dry_mass": (0.12, 0.3),
                        "components.booster_frame.dry_mass": (0.08, 0.2)},

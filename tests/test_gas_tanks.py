@@ -5,6 +5,7 @@ Sources beside each check; CoolProp 8 evaluates the reference equations of state
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import subprocess
 import sys
@@ -310,3 +311,45 @@ def test_cartridge_bad_input():
         parse_model(cartridge_model(T="40 degC"))
     with pytest.raises(ModelError, match=r"components.cartridge.fluid: CoolProp does not know the fluid"):
         parse_model(cartridge_model().set("components.cartridge.fluid", "Dilithium"))
+
+
+def test_real_gas_tanks_over_arrays_of_designs_equal_coolprop_called_per_design():
+    """The real-gas tank and the self-pressurising tank built over arrays of designs (an ensemble) report, for
+    every design, the pressure CoolProp's own PropsSI gives for that design's state alone, and the expansion
+    exponent and temperature rate of the same tank built for that one design (floats)."""
+    from CoolProp.CoolProp import PropsSI
+
+    from thrustgraph.component import Ambient
+    from thrustgraph.parameters import parse_params
+    from thrustgraph.xp import array_ops, scalar_ops
+    from tg_gastanks import GasTank, SelfPressurisingTank
+
+    amb = Ambient(101325.0, 293.15, 1.2)
+    vol = np.array([0.5e-3, 1e-3, 2e-3, 4e-3])
+    gauge = np.array([30e5, 80e5, 150e5, 199e5])
+    base = parse_params(GasTank.parameters, {"volume": "1 L", "gauge_pressure": "100 bar", "equation_of_state":
+                                             "coolprop", "temperature": "300 K"}, where="components.t",
+                        params_class=GasTank.params_class())
+    p = dataclasses.replace(base, volume=vol, gauge_pressure=gauge)
+    fns = GasTank.build_volume(p, 0, array_ops, amb)
+    m0, T0 = GasTank.initial_state(p, amb)
+    s = [m0 * 0.7, np.array([260.0, 280.0, 300.0, 240.0])]
+    pg, T, rho, n_exp, R_eff, phase, head = fns.outlet(s, 0)
+    dT = fns.derivs(s, 0, np.full(4, 0.01))[1]
+    for k in range(4):
+        # Lemmon & Span / Span et al. (2000) nitrogen through CoolProp, one call per design
+        assert pg[k] == PropsSI("P", "Dmass", s[0][k] / vol[k], "T", s[1][k], N2)
+        one = dataclasses.replace(base, volume=float(vol[k]), gauge_pressure=float(gauge[k]))
+        f1 = GasTank.build_volume(one, 0, scalar_ops, amb)
+        s1 = [float(s[0][k]), float(s[1][k])]
+        assert n_exp[k] == f1.outlet(s1, 0)[3]
+        assert dT[k] == f1.derivs(s1, 0, 0.01)[1]
+
+    cart = parse_params(SelfPressurisingTank.parameters, {"volume": "12 mL", "propellant_mass": "8 g"},
+                        where="components.c", params_class=SelfPressurisingTank.params_class())
+    fns = SelfPressurisingTank.build_volume(cart, 0, array_ops, amb)
+    s = [np.array([8e-3, 6e-3, 3e-3]), np.array([293.15, 280.0, 270.0])]
+    sig = fns.signals(s, np.array([0, 0, 1]))
+    for k in range(3):
+        # Span & Wagner (1996) CO2 through CoolProp: saturation pressure at the contents' temperature
+        assert sig["pressure"][k] == pytest.approx(PropsSI("P", "T", s[1][k], "Q", 1.0, "CarbonDioxide"), rel=1e-12)

@@ -82,7 +82,7 @@ VARIED = {
     "components.left.half_angle": (0.0, np.radians(25.0)),
     "components.right.discharge_coefficient": (0.8, 1.0),
     # the hover rig: ranges in which it lifts off (a rig held on the pad all flight integrates its thrust over
-    # the supply's spin-up in steps the frozen states do not limit, on either path: see the report in docs)
+    # the supply's spin-up in steps the frozen states do not limit, on either path: docs/studies.md)
     "components.hose.supply_pressure": (1.9e5, 2.4e5),
     "components.hose.hose_length": (5.0, 30.0),
     "components.hose.ramp_time": (20.0, 150.0),
