@@ -29,7 +29,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["SampleTable", "sample_terms", "join_tables"]
+__all__ = ["SampleTable", "sample_terms", "join_tables", "at_samples"]
 
 
 @dataclass
@@ -104,6 +104,17 @@ def _from_snapshots(snaps: list[dict]) -> SampleTable:
         for comp, term, vec in snap["ledger"]:
             table.ledger[(comp, term)][i] += vec
     return table
+
+
+def at_samples(bal: Any, t: np.ndarray, y: np.ndarray, want: str) -> Any:
+    """``Balance.core`` (a list of derivative arrays) or ``Balance.terms`` (a dict of arrays) at each column of
+    ``y`` at times ``t``, in the balance's current phase, over arrays when the vehicle's kinds allow it (None
+    when they do not: the caller evaluates sample by sample)."""
+    many = bal.sampling_balance() if len(t) > 1 else None
+    if many is None:
+        return None
+    many.set_phase(bal.modes, bal.kinematics, bal.descending, bal.slide)
+    return many._solve(np.asarray(t, dtype=float), [row for row in np.asarray(y, dtype=float)], want)
 
 
 def join_tables(tables: list[SampleTable]) -> SampleTable:
