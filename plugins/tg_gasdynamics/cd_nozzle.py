@@ -79,6 +79,7 @@ import math
 from typing import Any, NamedTuple
 
 from thrustgraph.component import ComponentKind, Flow, FlowFns
+from thrustgraph.xp import scalar_ops
 from thrustgraph.errors import ModelError
 from thrustgraph.parameters import Number, Quantity, Vector
 
@@ -138,11 +139,14 @@ class ConvergingDivergingNozzle(ComponentKind):
         cache: dict[float, _Regimes] = {}
 
         def constants(g):
-            m_sup = mach_from_area_ratio(eps, g, "supersonic", ops)
-            m_sub = mach_from_area_ratio(eps, g, "subsonic", ops)
+            # an exponent and area ratio shared by every design are numbers: worked out with floats, whatever
+            # namespace the callables are built with
+            xo = scalar_ops if type(g) is float and type(eps) is float else ops
+            m_sup = mach_from_area_ratio(eps, g, "supersonic", xo)
+            m_sub = mach_from_area_ratio(eps, g, "subsonic", xo)
             pr3 = pressure_ratio(m_sup, g)
-            pr2 = ops.where(eps > 1.0, pr3 * normal_shock(m_sup, g, ops)[1], pr3)
-            return _Regimes(mass_flux_factor(g, ops), m_sup, pressure_ratio(m_sub, g), pr2, pr3,
+            pr2 = xo.where(eps > 1.0, pr3 * normal_shock(m_sup, g, xo)[1], pr3)
+            return _Regimes(mass_flux_factor(g, xo), m_sup, pressure_ratio(m_sub, g), pr2, pr3,
                             temperature_ratio(m_sup, g), (g - 1.0) / g, 2.0 * g / (g - 1.0))
 
         def regimes(g):
