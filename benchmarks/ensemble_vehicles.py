@@ -35,6 +35,7 @@ SWEEPS = {
                                          "launch.elevation": (np.radians(70.0), np.radians(89.0))},
     "rocket-with-parachute": {"components.airframe.dry_mass": (0.9, 1.5),
                               "launch.elevation": (np.radians(75.0), np.radians(89.0))},
+    "water-jet-boat": {"components.pump.shaft_power": (800.0, 2500.0), "components.hull.dry_mass": (15.0, 40.0)},
 }
 
 

@@ -140,14 +140,14 @@ class Balance:
                        Kinematics.BY_MOUNT[c.mount], False)
 
     # ------------------------------------------------------------------
-    def set_phase(self, modes: Sequence[Any], kinematics: Any, descending: bool, slide: float = 0.0) -> None:
+    def set_phase(self, modes: Sequence[Any], kinematics: Any, descending: bool, slide: Any = 0.0) -> None:
         """Fix the discrete phase for the next integration segment (or the next ensemble step).
 
         ``modes`` holds each moded component's mode index (an int, or an int array over designs);
         ``kinematics`` a :class:`Kinematics` value (or an array). ``slide`` is the way a vehicle slides along
         a guide or track for the whole segment (+1, -1): kinetic friction opposes it and the integrator ends
         the segment when the vehicle comes to rest; 0 lets the friction follow the current speed (static
-        friction at rest).
+        friction at rest). For an ensemble ``slide`` may be an array over designs (each design's own way).
         """
         ops = self.ops
         plan = self.plan
@@ -176,7 +176,11 @@ class Balance:
         self._kin = kinematics
         self._present = present
         self._held_only = present == {Kinematics.HELD}
-        self.slide = float(slide) if present <= {Kinematics.GUIDE, Kinematics.TRACK} else 0.0
+        if ops.arrays and not isinstance(slide, (int, float)):
+            # per design: only the designs on a guide or track read it (see _guided)
+            self.slide = slide if present & {Kinematics.GUIDE, Kinematics.TRACK} else 0.0
+        else:
+            self.slide = float(slide) if present <= {Kinematics.GUIDE, Kinematics.TRACK} else 0.0
         # a line is idle when a component on it is, in every design, in a mode that promises no outflow
         idle = []
         for j, ln in enumerate(plan.lines):
@@ -434,7 +438,11 @@ class Balance:
             x0 = self.plan.constraint.x0
             below = (s[0] - x0[0]) * u0 + (s[1] - x0[1]) * u1 + (s[2] - x0[2]) * u2 <= 0.0
             at_foot = ((v_along <= 0.0) & below) if arrays else (v_along <= 0.0 and below)
-        way = self.slide if self.slide != 0.0 else v_along
+        slide = self.slide
+        if type(slide) is float:
+            way = slide if slide != 0.0 else v_along
+        else:
+            way = ops.where(slide != 0.0, slide, v_along)
         sums = first
         alpha: Any = 0.0
         fr: Any = 0.0
