@@ -144,9 +144,11 @@ class Balance:
         self._masses = [v.fns.mass for v in plan.vessels] + [j.fns.mass for j in plan.jets]
         # straight-line functions per phase (single flights of one-definition kinds only)
         parsed = getattr(system, "parsed", None)
+        # (a line with elements in series is solved by a root search, which is not traced yet)
         self._traceable = (ops is scalar_ops and parsed is not None and hasattr(system, "slices")
                            and all(getattr(k, "vectorised", False) for k in parsed.kinds.values())
-                           and all(getattr(k, "vectorised", False) for k in parsed.env_kinds.values()))
+                           and all(getattr(k, "vectorised", False) for k in parsed.env_kinds.values())
+                           and not any(ln.series for ln in plan.lines))
         made = getattr(system, "straight_lines", None)
         self._lines_made: dict[tuple, Any] = made if isinstance(made, dict) else {}
         self._tracer: Balance | None = None
