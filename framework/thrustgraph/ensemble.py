@@ -146,6 +146,11 @@ class _Events:
         self.slots.append(("apogee", -1.0, None))
         self.slots.append(("impact", -1.0, None))
         self.needs_drive = [s[0] == "comp" and s[2][6] for s in self.slots]
+        # events evaluated on some designs alone need those designs' own system when they read the drive or the
+        # component's parameters differ between designs (a pump's run time)
+        varied = set(sysa._comp_changes) if all(p.section == "components" for p in sysa.params) else \
+            set(sysa.parsed.kinds)
+        self.own_system = [s[0] == "comp" and (s[2][6] or s[2][1] in varied) for s in self.slots]
 
     def active(self, j: int, modes: np.ndarray, kin: np.ndarray, desc: np.ndarray, gpos: np.ndarray,
                slide: np.ndarray) -> np.ndarray:
@@ -667,7 +672,7 @@ class _Run:
             # dense-output coefficients (ns, 4, m): one 2-D pass over the gathered stages (a 3-D einsum was 3x slower)
             Ke = K[:, :, evi]
             Q = np.einsum("sp,sk->pk", DOPRI_P, Ke.reshape(7, -1)).reshape(4, self.ns, -1).transpose(1, 0, 2)
-            need = any(ev.needs_drive[j] and np.any(hit[j][evi]) for j in range(nev))
+            need = any(ev.own_system[j] and np.any(hit[j][evi]) for j in range(nev))
             sub_e = sysa.subset(evi) if need else None
             thetas = np.full((nev, len(evi)), np.inf)
             for j in range(nev):
@@ -853,7 +858,8 @@ def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel
     """Fraction of the step at which event ``j`` crosses zero, per design (vectorised Illinois iteration)."""
     Y0, hh, t0 = Y[:, rows], h[rows], t[rows]
     need = ev.needs_drive[j]
-    if need:
+    own = ev.own_system[j]
+    if own:
         local = sub.subset(sel) if sub is not None and len(sel) != sub.n else sub
         m_loc, k_loc = modes[:, rows], kin[rows]
         ph_loc = local.phase(m_loc, k_loc, slide[rows])
@@ -872,6 +878,8 @@ def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel
             if drive is None:
                 drive = local.rhs(tt, yy, m_loc, k_loc, phase=ph_loc)[1]["drive"]
             return ev.value(j, local, tt, yy, {"drive": drive})
+        if own:
+            return ev.value(j, local, tt, yy, None)
         return ev.value(j, sysa, tt, yy, None, rows)
 
     return _illinois(g, ga, gb, t0, hh)
