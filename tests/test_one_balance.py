@@ -38,6 +38,7 @@ OPTIONS = {
     "components.bottle.inertial_head": (True, False),
     "components.bottle.expansion_exponent": (1.4, 1.0, 1.2),
     "environment.medium.wind_exponent": (0.142857, 0.0),
+    "environment.medium.relative_humidity": (0.0, 0.6),
     "launch.attitude": ("follow-wind", "fixed"),
     "launch.mount": ("guide", "free"),
     "launch.friction": (0.0, 0.3),
@@ -49,6 +50,7 @@ VARIED = {
     "components.airframe.dry_mass": (0.08, 0.6),
     "components.motor.exhaust_velocity": (1500.0, 2200.0),
     "environment.medium.wind_speed": (0.0, 8.0),
+    "environment.medium.temperature": (263.15, 318.15),     # still air: the density derived per design
     "launch.elevation": (np.radians(60.0), np.radians(90.0)),
 }
 

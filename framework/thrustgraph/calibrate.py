@@ -190,6 +190,9 @@ def _resolve(model: Model, fp: FitParameter, parsed: Any = None) -> _Param:
     if not low < high:
         raise ModelError(f"fit {path}", f"the lower bound {fp.low!r} is not below the upper bound {fp.high!r}",
                          "give LOW..HIGH with LOW < HIGH")
+    if value_of() is None:
+        raise ModelError(f"fit {path}", f"is left out of the model, so {owner} derives it ({spec.doc})",
+                         f"fit what it is derived from, or give {pname} in the model (--set) to fit it")
     x0 = float(value_of())
     display = spec.unit
     try:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import math
+import sys
 from typing import Sequence
 
 from ..integrate import integrate
@@ -83,6 +84,8 @@ def main(args: argparse.Namespace) -> int:
     if args.plots or args.report:
         need_matplotlib()
     model, parsed = load_checked(args.model, args.overrides)  # errors name the file or the --set option
+    for w in parsed.warnings():       # on stderr, before the flight: the summary on stdout stays as it was
+        print(f"thrustgraph: warning: {w}", file=sys.stderr)
     check_paths([args.csv, args.json, args.report], [args.plots])  # before flying: a bad path costs nothing
     result = fly_model(parsed, quiet=args.quiet)
     # Build every output in memory first, so a failure leaves no partial file.
