@@ -52,7 +52,9 @@ def held_model(**overrides):
 def test_static_water_phase_impulse_matches_quadrature(elevation, head):
     # Source: /work/shared/references.md section 6 (derived, status C): for a vessel held still the water phase
     # has the exact quasi-steady solution I = integral sqrt(2 rho (p - pa)) dV, t = integral dV / (Cd A v).
-    # Our model: thrust = rho Q v = 2 Cd A (p_out - pa), v = sqrt(2 (p_out - pa) / rho), dV = Q dt, so
+    # Our model: thrust = rho Q v = 2 k Cd A (p_out - pa), v = sqrt(2 k (p_out - pa) / rho), dV = Q dt, with
+    # k = 1 / (1 - (Cd A / A_bore)^2) the velocity-of-approach factor (Bernoulli from the bore to the jet with
+    # continuity: F. M. White, Fluid Mechanics, obstruction-meter theory), so
     # I = integral T dt = integral rho v dV over the expelled volume V = 0 .. V_l0, with
     #   p_out(V) = p0 (V_g0 / (V_g0 + V))^n + [rho g sin(elevation) (V_l0 - V) / A_bore  if inertial_head]
     # (the polytropic ullage, plus the column's gravity head along the axis: a = 0 on the stand).
@@ -70,8 +72,9 @@ def test_static_water_phase_impulse_matches_quadrature(elevation, head):
         hp = RHO * g_axis * (vl0 - x) / a_bore if head else 0.0
         return p0 * (vg0 / (vg0 + x)) ** n + hp - PA
 
-    impulse, _ = quad(lambda x: math.sqrt(2.0 * RHO * drive(x)), 0.0, vl0, epsabs=0.0, epsrel=1e-12)
-    duration, _ = quad(lambda x: 1.0 / (cd_area * math.sqrt(2.0 * drive(x) / RHO)), 0.0, vl0,
+    k = 1.0 / (1.0 - (cd_area / a_bore) ** 2)
+    impulse, _ = quad(lambda x: math.sqrt(2.0 * k * RHO * drive(x)), 0.0, vl0, epsabs=0.0, epsrel=1e-12)
+    duration, _ = quad(lambda x: 1.0 / (cd_area * math.sqrt(2.0 * k * drive(x) / RHO)), 0.0, vl0,
                        epsabs=0.0, epsrel=1e-12)
 
     liquid = r.phases[0]

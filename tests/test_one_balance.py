@@ -37,6 +37,7 @@ OPTIONS = {
     "components.bottle.internal_momentum": (False, True),
     "components.bottle.inertial_head": (True, False),
     "components.bottle.expansion_exponent": (1.4, 1.0, 1.2),
+    "components.neck.approach_velocity": (True, False),
     "environment.medium.wind_exponent": (0.142857, 0.0),
     "environment.medium.relative_humidity": (0.0, 0.6),
     "launch.attitude": ("follow-wind", "fixed"),
@@ -46,6 +47,7 @@ OPTIONS = {
 # varied per design, with ranges inside the declared bounds (a model takes those of its components)
 VARIED = {
     "components.bottle.fill": (0.05, 0.6),
+    "components.bottle.bore": (60.0e-3, 120.0e-3),         # the approach factor varies per design with it
     "components.bottle.gauge_pressure": (2e5, 7e5),
     "components.airframe.dry_mass": (0.08, 0.6),
     "components.motor.exhaust_velocity": (1500.0, 2200.0),

@@ -70,7 +70,7 @@ def _opening(p, ops):
     P = ConvergentNozzle.params_class()
     nozzle = ConvergentNozzle.build_flow(P(diameter=math.sqrt(4.0 * p.flow_area / math.pi),
                                            discharge_coefficient=p.discharge_coefficient,
-                                           direction=p.direction), ops)
+                                           direction=p.direction, approach_velocity=False), ops)
     return nozzle.flow, p.arrangement == "symmetric"
 
 

@@ -121,6 +121,12 @@ class LiquidTank(ComponentKind):
         return list(PRESSURE_CAUTIONS)
 
     @classmethod
+    def approach_area(cls, p):
+        """The bore's cross-section, m^2: the liquid approaches the outlet through it (for the nozzle's
+        velocity-of-approach factor)."""
+        return math.pi * p.bore ** 2 / 4.0
+
+    @classmethod
     def _gas0(cls, p, amb):
         p0 = amb.pressure + p.gauge_pressure
         vg0 = p.volume * (1.0 - p.fill)
