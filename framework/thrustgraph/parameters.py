@@ -18,10 +18,12 @@ thrustgraph.errors.ModelError: components.bottle.volume: must be greater than 0 
 
 from __future__ import annotations
 
+import contextvars
 import dataclasses
 import difflib
 import math
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any, Sequence
 
 import numpy as np
@@ -29,8 +31,11 @@ import numpy as np
 from .errors import ModelError, shorten
 from .units import Q_, REFERENCE_NOTE, finite_number, to_si
 
-__all__ = ["Spec", "Quantity", "Number", "Choice", "Flag", "Vector", "Table", "make_params_class", "parse_params",
-           "check_finite"]
+__all__ = ["Spec", "Quantity", "Number", "Choice", "Flag", "Vector", "Table", "FilePath", "MODEL_FOLDER",
+           "make_params_class", "parse_params", "check_finite"]
+
+#: The folder a model's relative file paths are read from (the model file's own), set while it is parsed.
+MODEL_FOLDER: contextvars.ContextVar[Path | None] = contextvars.ContextVar("thrustgraph_model_folder", default=None)
 
 
 @dataclass(frozen=True)
@@ -261,6 +266,39 @@ class Table(Spec):
 
     def describe(self) -> str:
         return f"{self.doc} table with columns " + ", ".join(f"{n} [{u}]" for n, u in self.columns)
+
+
+@dataclass(frozen=True)
+class FilePath(Spec):
+    """A file the kind reads (a thrust curve), written as a path relative to the model file's folder.
+
+    The parsed value is the absolute path as text; a file that does not exist is refused.
+    ``default="absent"`` makes it optional (parsed as None).
+
+    >>> FilePath("curve_file", default="absent").parse("absent", where="components.motor.curve_file") is None
+    True
+    """
+
+    default: str | None = field(default=None, kw_only=True)
+
+    def parse(self, value: Any, *, where: str) -> str | None:
+        if self.default == "absent" and isinstance(value, str) and value == "absent":
+            return None
+        if not isinstance(value, str) or not value.strip() or len(value) > 1000:
+            raise ModelError(where, f"expected the path of a file in quotes, got {shorten(value)}",
+                             'write e.g. "motors/demo-motor.csv" (relative to the model file)')
+        p = Path(value)
+        if not p.is_absolute():
+            base = MODEL_FOLDER.get()
+            p = base / p if base is not None else p
+        if not p.is_file():
+            raise ModelError(where, f"no such file {shorten(value)} (looked for {shorten(str(p), 200)})",
+                             "give the path relative to the model file's folder")
+        return str(p)
+
+    def describe(self) -> str:
+        d = "required" if self.default is None else f"default {self.default}"
+        return f"{self.doc} [file path, relative to the model file], {d}"
 
 
 def make_params_class(kind: str, specs: Sequence[Spec]) -> type:
