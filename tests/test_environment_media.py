@@ -537,3 +537,20 @@ def test_a_study_cannot_vary_a_density_the_model_derives():
     with pytest.raises(ModelError, match="is left out of the model.*vary what it is derived from"):
         resolve(parsed, "environment.medium.density")
     assert resolve(parsed, "environment.medium.temperature").nominal == 288.15
+
+
+@pytest.mark.parametrize("flights", ["single", "ensemble"])
+def test_a_temperature_sweep_with_a_pinned_density_screens_the_designs_it_contradicts(flights):
+    # The model pins density = 1.225 kg/m^3; a study varying the temperature refuses (screens) the designs whose
+    # temperature that density no longer fits (beyond 1 %), on both paths of a study.
+    import numpy as np
+    from thrustgraph.designs import resolve
+    from thrustgraph.modelfile import load_model
+    from thrustgraph.studies import evaluate
+    m = load_model(REPO / "models" / "bottle-rocket.toml").set("environment.medium.density", "1.225 kg/m^3")
+    parsed = parse_model(m)
+    p = resolve(parsed, "environment.medium.temperature")
+    t = evaluate(m, [p], np.array([[288.15], [308.15]]), ["apogee"], parsed=parsed, engine="serial",
+                 flights=flights, quiet=True)
+    assert t.status.tolist() == ["ok", "screened"]
+    assert "does not go with" in t.notes[1]
