@@ -4,8 +4,10 @@ from __future__ import annotations
 
 import argparse
 import math
+import sys
 from typing import Sequence
 
+from . import SUMMARIES
 from ..exportformats import EXPORTS
 from ..result import FlightResult
 from .common import add_model_argument, add_set_option
@@ -13,7 +15,7 @@ from .outputs import (add_export_options, add_quiet_option, check_paths, export_
                       need_matplotlib, write_outputs)
 
 NAME = "run"
-HELP = "fly a model and print the summary (burn time, peak thrust and acceleration, apogee or range, audits)"
+HELP = SUMMARIES[NAME]
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
     add_model_argument(p)
@@ -83,6 +85,8 @@ def main(args: argparse.Namespace) -> int:
         need_matplotlib()
     exports = export_targets(args)
     model, parsed = load_checked(args.model, args.overrides)  # errors name the file or the --set option
+    for w in parsed.warnings():       # on stderr, before the flight: the summary on stdout stays as it was
+        print(f"thrustgraph: warning: {w}", file=sys.stderr)
     check_paths([path for _, path in exports] + [args.report], [args.plots])  # before flying: a bad path costs nothing
     result = fly_model(parsed, quiet=args.quiet)
     # Build every output in memory first, so a failure leaves no partial file.
