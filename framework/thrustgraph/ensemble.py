@@ -62,6 +62,7 @@ from .designs import DesignParameter, bounds_text, with_values, within_bounds
 from .errors import ModelError
 from .model import ParsedModel
 from .outcomes import OUTCOMES, STATUS_OK, STATUS_SCREENED, check_outputs
+from .vehicle import vehicle_profile
 from .component import ComponentKind
 
 __all__ = ["fly_designs", "EnsembleResult", "unsupported", "COMPUTED", "DOPRI_C", "DOPRI_A", "DOPRI_B", "DOPRI_E",
@@ -69,7 +70,8 @@ __all__ = ["fly_designs", "EnsembleResult", "unsupported", "COMPUTED", "DOPRI_C"
 
 #: The registry outcomes the ensemble computes itself (its own running maxima, burn clock and impulse quadrature
 #: state, not the registry's functions); a study that asks for another one flies single flights.
-COMPUTED = ("apogee", "range", "impact_x", "impact_y", "flight_time", "max_speed", "peak_acceleration",
+#: Outcomes that do not apply to a design's vehicle (:mod:`thrustgraph.vehicle`) are NaN, as in a single flight.
+COMPUTED = ("apogee", "range", "impact_x", "impact_y", "flight_time", "run_time", "max_speed", "peak_acceleration",
             "total_impulse", "burn_time", "propellant_expelled", "launch_mass", "peak_vessel_pressure",
             "guide_exit_speed", "impact_speed")
 
@@ -318,8 +320,33 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
         if status[i] != STATUS_OK:
             for k in out:
                 out[k][i] = np.nan
+    _mask_by_vehicle(out, parsed, params, x)
     return EnsembleResult(status, notes, _table(out, outputs), outputs, steps_taken, run.calls,
                           time.perf_counter() - t_start)
+
+
+def _mask_by_vehicle(out: dict[str, np.ndarray], parsed: ParsedModel, params: Sequence[DesignParameter],
+                     x: np.ndarray) -> None:
+    """NaN for every outcome that does not apply to a design's vehicle (the registry's ``applies``, read from the
+    :class:`~thrustgraph.vehicle.VehicleProfile` of the design: a varied guide length or gravity may change it)."""
+    shaping = [j for j, p in enumerate(params) if p.section == "launch" or
+               (p.section == "environment" and p.owner == "gravity")]
+    if not shaping:
+        groups = {vehicle_profile(parsed): np.arange(len(x))}
+    else:
+        groups = {}
+        for i in range(len(x)):
+            launch = {params[j].name: float(x[i, j]) for j in shaping if params[j].section == "launch"}
+            grav = {params[j].name: float(x[i, j]) for j in shaping if params[j].section == "environment"}
+            view = with_values(parsed, {
+                "launch": with_values(parsed.launch, launch) if launch else parsed.launch,
+                "env_params": {**parsed.env_params, "gravity": with_values(parsed.env_params["gravity"], grav)}
+                if grav else parsed.env_params})
+            groups.setdefault(vehicle_profile(view), []).append(i)
+    for profile, rows in groups.items():
+        for k, spec in OUTCOMES.items():
+            if not spec.applies(profile):
+                out[k][np.asarray(rows, dtype=int)] = np.nan
 
 
 class _Run:
@@ -470,6 +497,7 @@ class _Run:
         g = self.gid[idx]
         x0 = sysa.x0
         out["flight_time"][g] = self.t[idx]
+        out["run_time"][g] = self.t[idx]
         out["impact_x"][g] = Y[0, idx] - x0[0][idx]
         out["impact_y"][g] = Y[1, idx] - x0[1][idx]
         out["range"][g] = np.hypot(out["impact_x"][g], out["impact_y"][g])

@@ -35,6 +35,7 @@ from .outcomes import OUTCOMES, kind_outcomes, run_summary
 from .result import Audit, Event, FlightResult, Phase
 from .separation import separate
 from .staging import KINEMATIC_SIGNALS, Trigger, resolve_thresholds
+from .vehicle import vehicle_profile
 from .stepguard import StepGuard
 from .modelfile import default_model_path, dumps_model, load_model
 from .version import __version__
@@ -321,7 +322,7 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
                     break  # the vehicle changed: the other events of this step belong to the old one
             elif kind == "guide":
                 ph.kin = Kinematics.FREE
-                events.append(Event(t, "guide exit", "vehicle", f"speed {float(np.linalg.norm(y[3:6])):.4g} m/s"))
+                events.append(Event(t, actions[k][1], "vehicle", f"speed {float(np.linalg.norm(y[3:6])):.4g} m/s"))
             elif kind == "apogee":
                 ph.descending = True
                 events.append(Event(t, "apogee", "vehicle", f"altitude {y[2]:.4g} m"))
@@ -467,8 +468,10 @@ def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: 
         fns.append(due)
         actions.append(("trigger", tr.name, "trigger", tr))
 
+    profile = vehicle_profile(system.parsed)
     if ph.kin == Kinematics.GUIDE:
-        # 1 nm beyond the guide's end, so that a zero-length guide (a pad) holds the vehicle until it moves
+        # 1 nm beyond the guide's end, so that a zero-length guide (a pad) holds the vehicle until it moves; leaving
+        # a pad is a lift-off, not the exit of a guide (whose speed would be that of the first nanometre)
         L = system.launch.guide_length + 1e-9
 
         def guide(t, y):
@@ -476,7 +479,7 @@ def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: 
         guide.terminal = True
         guide.direction = 1.0
         fns.append(guide)
-        actions.append(("guide", "guide exit", "vehicle", None))
+        actions.append(("guide", "guide exit" if profile.guided else "lift-off", "vehicle", None))
     if ph.kin == Kinematics.GUIDE:
         # sliding back down the guide stops at its foot (1 nm below it, so a vehicle resting there does not fire)
         def foot(t, y):
@@ -495,7 +498,8 @@ def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: 
         fns.append(rest)
         actions.append(("rest", "came to rest", "vehicle", None))
     if ph.kin == Kinematics.FREE and system.gravity(float(x0[2])) > 0.0:
-        if not ph.descending:
+        # a hover rig settles and bobs on its feed: it has a highest point (an outcome), no apogee to mark
+        if not ph.descending and profile.kind != "hovering":
             def apogee(t, y):
                 return y[5]
             apogee.terminal = True
@@ -582,6 +586,18 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
                                 signals["position"][:, 1] - signals["position"][0, 1])
     vel = signals["velocity"]
     signals["flight_path_angle"] = np.arctan2(vel[:, 2], np.hypot(vel[:, 0], vel[:, 1]))
+    # along the path: the rate of change of the speed (negative when slowing down); along the body axis at rest
+    way = np.where(signals["speed"][:, None] > 0.0, vel / np.maximum(signals["speed"], 1e-300)[:, None],
+                   signals["axis"])
+    signals["path_acceleration"] = np.einsum("ij,ij->i", signals["acceleration"], way)
+    # net thrust: the ledger's thrust terms of every opening (momentum flux, pressure thrust: the gross thrust)
+    # with the momentum of the fluid entering through sources (an inlet's ram drag, a hose's inflow)
+    inflow = np.zeros_like(signals["thrust_vector"])
+    for (comp, term), vec in ledger.items():
+        if term == "inflow momentum":
+            inflow = inflow + vec
+    signals["net_thrust_vector"] = signals["thrust_vector"] + inflow
+    signals["net_thrust"] = np.einsum("ij,ij->i", signals["net_thrust_vector"], signals["axis"])
 
     # Audits from the accumulators integrated with the states.
     last = y[:, -1]
@@ -611,6 +627,7 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
     for n, cls in system.parsed.kinds.items():
         for key, u in cls.signal_units.items():
             res.units[f"{n}.{key}"] = u
+    res.vehicle = vehicle_profile(system.parsed)
     res.summary = run_summary(system, segs)
     res.outcome_specs = {k: OUTCOMES[k] for k in res.summary}
     declared = kind_outcomes(system.parsed.kinds)
