@@ -25,6 +25,7 @@ from .contract import check_system
 from .errors import ModelError
 from .model import Model, ParsedModel, parse_model
 from .plan import ACCUMULATORS, KINEMATIC, Constraint, Plan, build_plan
+from .straightline import LineCache
 from .vectors import Vec, unit_from_angles
 from .xp import scalar_ops
 
@@ -47,6 +48,8 @@ class System:
     launch, run : parsed core settings (SI)
     guide_dir : unit vector of the launch guide or track (world frame)
     events : (component, EventSpec) of every component event
+    straight_lines : the compiled straight-line functions of its phases, shared by every balance of this
+        system (filled by :class:`thrustgraph.balance.Balance`; see :mod:`thrustgraph.straightline`)
     """
 
     parsed: ParsedModel
@@ -61,6 +64,7 @@ class System:
     run: Any
     guide_dir: Vec
     events: tuple[tuple[str, EventSpec], ...] = field(default=())
+    straight_lines: LineCache = field(default_factory=LineCache, compare=False, repr=False)
 
     @property
     def n_states(self) -> int:

@@ -46,11 +46,17 @@ from scipy.optimize import brentq
 
 from .component import Flow, Outlet
 from .errors import IntegrationError
-from .plan import ACCUMULATORS, LinePlan, Plan
+from .plan import ACCUMULATORS, LinePlan, Plan, build_plan
+from .straightline import TraceError, compile_function, trace_ops
 from .vectors import frame_of, solve_rank_one, to_world
 from .xp import scalar_ops
 
-__all__ = ["Balance", "Kinematics", "LineFlow", "ACCUMULATORS", "SINGULAR"]
+__all__ = ["Balance", "Kinematics", "LineFlow", "ACCUMULATORS", "SINGULAR", "STRAIGHT_AFTER"]
+
+#: Evaluations of one phase by the general evaluator before its straight-line function is traced and compiled
+#: (:mod:`thrustgraph.straightline`); tracing and compiling one phase costs about as much as this many
+#: general evaluations (measured: benchmarks/single_flight.py). 0 turns straight lines off.
+STRAIGHT_AFTER = 24
 
 SINGULAR = ("the liquid head makes the acceleration undetermined (the nozzle is too large for the vessel's "
             "bore under the quasi-steady model). Fix: use a vessel bore larger than about 1.5 times the "
@@ -136,6 +142,16 @@ class Balance:
             any(not j.aft for j in plan.jets)
         self._forces = plan.forces
         self._masses = [v.fns.mass for v in plan.vessels] + [j.fns.mass for j in plan.jets]
+        # straight-line functions per phase (single flights of one-definition kinds only)
+        parsed = getattr(system, "parsed", None)
+        self._traceable = (ops is scalar_ops and parsed is not None and hasattr(system, "slices")
+                           and all(getattr(k, "vectorised", False) for k in parsed.kinds.values())
+                           and all(getattr(k, "vectorised", False) for k in parsed.env_kinds.values()))
+        made = getattr(system, "straight_lines", None)
+        self._lines_made: dict[tuple, Any] = made if isinstance(made, dict) else {}
+        self._tracer: Balance | None = None
+        #: why tracing failed, per phase and request (for tests and diagnosis)
+        self.untraced: dict[tuple, str] = {}
         self.set_phase([0] * len(plan.moded) if not hasattr(system, "mode0") else list(system.mode0),
                        Kinematics.BY_MOUNT[c.mount], False)
 
@@ -209,6 +225,10 @@ class Balance:
         self._outlets = sorted({k for j, k in self._vessel_lines if self._live[j]})
         self._outlets_all = sorted({k for j, k in self._vessel_lines})
         self._outlets_terms = sorted({k for j, k in self._vessel_lines if self._live_terms[j]})
+        self._phase_key = (tuple(self.modes), self.kinematics, descending, self.slide) if self._traceable else None
+        self._rhs_line = self._lines_made.get((self._phase_key, "rhs")) or None
+        self._core_line = self._lines_made.get((self._phase_key, "core")) or None
+        self._seen = {"rhs": 0, "core": 0}
 
     def _start_mode(self, ln: LinePlan) -> Any:
         return self._vmode[ln.start_index] if ln.from_vessel else self._smode[ln.start_index]
@@ -216,11 +236,57 @@ class Balance:
     # ------------------------------------------------------------------
     def rhs(self, t: float, y: Any) -> list[float]:
         """Time derivative of the flat state vector (SI): kinematics, component states, audit accumulators."""
-        return self._solve(t, _as_list(y), "rhs")
+        f = self._rhs_line
+        if f is not None:
+            return f(t, y)
+        return self._general(t, y, "rhs")
 
     def core(self, t: float, y: Any) -> list[float]:
         """The derivatives of the physical states alone (no audit accumulators), for runs without audits."""
-        return self._solve(t, _as_list(y), "core")
+        f = self._core_line
+        if f is not None:
+            return f(t, y)
+        return self._general(t, y, "core")
+
+    def _general(self, t: float, y: Any, want: str) -> list[float]:
+        """The general evaluator; after :data:`STRAIGHT_AFTER` calls in one phase, the phase's straight line."""
+        s = _as_list(y)
+        if self._phase_key is not None:
+            n = self._seen[want] = self._seen[want] + 1
+            if n == STRAIGHT_AFTER:
+                self.straight_line(want, len(s))
+        return self._solve(t, s, want)
+
+    def straight_line(self, want: str, n_states: int) -> Any:
+        """The current phase's straight-line function for ``want`` ("rhs" or "core"), traced and compiled once
+        per phase (:mod:`thrustgraph.straightline`); None when this vehicle or phase cannot be traced (the
+        reason is kept in :attr:`untraced`). From then on :meth:`rhs` / :meth:`core` call it."""
+        key = (self._phase_key, want)
+        fn = self._lines_made.get(key)
+        if fn is None and self._phase_key is not None:
+            try:
+                tb = self._tracing_balance()
+                tb.set_phase(self.modes, self.kinematics, self.descending, self.slide)
+                fn = compile_function(lambda t, s: tb._solve(t, s, want), n_states, name=want)
+            except (TraceError, TypeError, AttributeError, ValueError, IndexError) as exc:
+                self.untraced[key] = f"{type(exc).__name__}: {exc}"
+                fn = False
+            self._lines_made[key] = fn
+        if want == "rhs":
+            self._rhs_line = fn or None
+        else:
+            self._core_line = fn or None
+        return fn or None
+
+    def _tracing_balance(self) -> "Balance":
+        """This vehicle's balance over :data:`~thrustgraph.straightline.trace_ops` (its plan rebuilt with it)."""
+        if self._tracer is None:
+            sy = self.system
+            parsed = sy.parsed
+            plan = build_plan(parsed, parsed.params, parsed.env_params, trace_ops, parsed.ambient, sy.slices,
+                              sy.moded, self.plan.constraint)
+            self._tracer = Balance(_Traced(plan, getattr(sy, "mode0", ())), ops=trace_ops)
+        return self._tracer
 
     def drives(self, t: float, y: Any) -> dict[str, Any]:
         """Drive pressure (Pa) per vessel and per discharging element, for events.
@@ -347,7 +413,7 @@ class Balance:
         if len(self._present) > 1:
             use = use & (self._kin == Kinematics.FREE)
         if not ops.arrays:
-            return (vr[0] / sp, vr[1] / sp, vr[2] / sp) if use else u
+            return ops.branch(use, lambda: (vr[0] / sp, vr[1] / sp, vr[2] / sp), lambda: u)
         if ops.all(use):
             return (vr[0] / sp, vr[1] / sp, vr[2] / sp)
         d = ops.where(use, sp, 1.0)
@@ -386,46 +452,50 @@ class Balance:
         sums = self._lines_at(ctx, (-a[0], -a[1], -g - a[2])) if coupled else first
         return tuple(a), sums, tuple(C), singular
 
+    @staticmethod
+    def _pull(F: tuple, sums: _Sums) -> tuple:
+        """The forces that do not depend on the acceleration plus the lines' thrust, internal and inflow terms."""
+        T, I, N = sums.T, sums.I, sums.N
+        return F[0] + T[0] + I[0] + N[0], F[1] + T[1] + I[1] + N[1], F[2] + T[2] + I[2] + N[2]
+
     def _free(self, ctx: tuple, M: Any, F: tuple, first: _Sums, coupled: bool):
         """Free flight: Newton on M a - G(a) = 0 (one evaluation without a liquid head)."""
         ops = self.ops
         g = ctx[3]
-        sums = first
-        T, I, N = sums.T, sums.I, sums.N
-        Gx, Gy, Gz = F[0] + T[0] + I[0] + N[0], F[1] + T[1] + I[1] + N[1], F[2] + T[2] + I[2] + N[2]
+        G = self._pull(F, first)
         if not coupled:
-            return (Gx / M, Gy / M, Gz / M), sums, _Z3, False
-        ax: Any = 0.0
-        ay: Any = 0.0
-        az: Any = 0.0
-        singular: Any = False
+            return (G[0] / M, G[1] / M, G[2] / M), first, _Z3, False
         outs, dirs, live = ctx[4], ctx[6], ctx[7]
-        for it in range(self.max_newton):
-            rx, ry, rz = M * ax - Gx, M * ay - Gy, M * az - Gz
-            if it and ops.all(ops.abs(rx) + ops.abs(ry) + ops.abs(rz)
-                              <= 1e-12 * (ops.abs(Gx) + ops.abs(Gy) + ops.abs(Gz) + M * g)):
-                break
+
+        def test(c):
+            a, sums, G, singular = c
+            r = (M * a[0] - G[0], M * a[1] - G[1], M * a[2] - G[2])
+            stop = ops.abs(r[0]) + ops.abs(r[1]) + ops.abs(r[2]) <= \
+                1e-12 * (ops.abs(G[0]) + ops.abs(G[1]) + ops.abs(G[2]) + M * g)
+            return stop, r
+
+        def step(c, r):
+            a, sums, G, singular = c
             pairs = []
             for j, k in self._vessel_lines:
                 if live[j] and not _is_zero(outs[k].head):
                     head = outs[k].head
-                    c = sums.flows[j].slope
+                    cf = sums.flows[j].slope
                     dw, jd = dirs[j]
-                    pairs.append(((-c * jd[0], -c * jd[1], -c * jd[2]), (head * dw[0], head * dw[1], head * dw[2])))
-            d, sing = solve_rank_one(M, pairs, (rx, ry, rz), ops)
-            if not ops.arrays and sing:
-                raise IntegrationError(SINGULAR)
-            singular = singular | sing
-            ax, ay, az = ax - d[0], ay - d[1], az - d[2]
-            sums = self._lines_at(ctx, (-ax, -ay, -g - az))
-            T, I, N = sums.T, sums.I, sums.N
-            Gx, Gy, Gz = F[0] + T[0] + I[0] + N[0], F[1] + T[1] + I[1] + N[1], F[2] + T[2] + I[2] + N[2]
-        return (ax, ay, az), sums, _Z3, singular
+                    pairs.append(((-cf * jd[0], -cf * jd[1], -cf * jd[2]),
+                                  (head * dw[0], head * dw[1], head * dw[2])))
+            d, sing = solve_rank_one(M, pairs, r, ops)
+            ops.refuse(sing, IntegrationError, SINGULAR)
+            a = (a[0] - d[0], a[1] - d[1], a[2] - d[2])
+            sums = self._lines_at(ctx, (-a[0], -a[1], -g - a[2]))
+            return a, sums, self._pull(F, sums), singular | sing
+
+        (a, sums, _G, singular), _r = ops.iterate((_Z3, first, G, False), test, step, self.max_newton)
+        return a, sums, _Z3, singular
 
     def _guided(self, ctx: tuple, M: Any, F: tuple, first: _Sums, coupled: bool, kin: int):
         """On a guide or track: a = alpha u, with friction mu |N| against the motion, held at the guide's foot."""
         ops = self.ops
-        arrays = ops.arrays
         t, s, pa, g, outs, _supplies, dirs, live = ctx
         u0, u1, u2 = self._u
         mu = self._mu
@@ -434,26 +504,25 @@ class Balance:
         if kin == Kinematics.GUIDE:
             x0 = self.plan.constraint.x0
             below = (s[0] - x0[0]) * u0 + (s[1] - x0[1]) * u1 + (s[2] - x0[2]) * u2 <= 0.0
-            at_foot = ((v_along <= 0.0) & below) if arrays else (v_along <= 0.0 and below)
+            at_foot = (v_along <= 0.0) & below
         way = self.slide if self.slide != 0.0 else v_along
-        sums = first
-        alpha: Any = 0.0
-        fr: Any = 0.0
-        held: Any = False
-        singular: Any = False
-        for it in range(self.max_newton if coupled else 1):
-            T, I, N = sums.T, sums.I, sums.N
-            Gx, Gy, Gz = F[0] + T[0] + I[0] + N[0], F[1] + T[1] + I[1] + N[1], F[2] + T[2] + I[2] + N[2]
+
+        def test(c):
+            alpha, sums, held, singular = c
+            Gx, Gy, Gz = self._pull(F, sums)
             Gu = Gx * u0 + Gy * u1 + Gz * u2
-            fr = 0.0
+            fr: Any = 0.0
             if self._friction:
                 nx, ny, nz = Gx - Gu * u0, Gy - Gu * u1, Gz - Gu * u2
                 fmax = mu * ops.sqrt(nx * nx + ny * ny + nz * nz)
                 # kinetic friction against the motion; at rest, static friction holds up to fmax
                 fr = ops.where(way > 0.0, -fmax, ops.where(way < 0.0, fmax, ops.clip(-Gu, -fmax, fmax)))
             r = M * alpha - Gu - fr
-            if it and ops.all(held | (ops.abs(r) <= 1e-12 * (ops.abs(Gu) + M * g + 1e-30))):
-                break
+            return held | (ops.abs(r) <= 1e-12 * (ops.abs(Gu) + M * g + 1e-30)), (r, fr)
+
+        def step(c, aux):
+            alpha, sums, held, singular = c
+            r = aux[0]
             J = M
             for j, k in self._vessel_lines:
                 if live[j] and not _is_zero(outs[k].head):
@@ -462,21 +531,19 @@ class Balance:
                     J = J - sums.flows[j].slope * (jd[0] * u0 + jd[1] * u1 + jd[2] * u2) * head * (
                         dw[0] * u0 + dw[1] * u1 + dw[2] * u2)
             bad = J <= 0.0
-            if not arrays and bad:
-                raise IntegrationError(SINGULAR)
-            singular = singular | bad
+            ops.refuse(bad, IntegrationError, SINGULAR)
             alpha = alpha - r / ops.where(bad, 1.0, J)
-            if arrays:
-                held = held | ((alpha < 0.0) & at_foot)
-                alpha = ops.where(held, 0.0, alpha)
-            elif alpha < 0.0 and at_foot:
-                alpha, sums = 0.0, first
-                break
-            if not coupled:
-                break
-            sums = self._lines_at(ctx, (-alpha * u0, -alpha * u1, -g - alpha * u2))
+            # held at the guide's foot: a vehicle that cannot yet climb stays where it is
+            held = held | ((alpha < 0.0) & at_foot)
+            alpha = ops.where(held, 0.0, alpha)
+            if coupled:
+                sums = self._lines_at(ctx, (-alpha * u0, -alpha * u1, -g - alpha * u2))
+            return alpha, sums, held, singular | bad
+
+        (alpha, sums, _held, singular), (_r, fr) = ops.iterate(
+            (0.0, first, False, False), test, step, self.max_newton if coupled else 1)
         if kin == Kinematics.GUIDE:
-            fr = ops.where(((alpha == 0.0) & at_foot) if arrays else (alpha == 0.0 and at_foot), 0.0, fr)
+            fr = ops.where((alpha == 0.0) & at_foot, 0.0, fr)
         return (alpha * u0, alpha * u1, alpha * u2), sums, (fr * u0, fr * u1, fr * u2), singular
 
     # ------------------------------------------------------------------
@@ -687,6 +754,13 @@ class Balance:
         rec["mass_flow"] = mass_flow
         rec["ledger"] = ledger
         rec["inertia"] = (M * a[0], M * a[1], M * a[2])
+
+
+class _Traced(NamedTuple):
+    """What :class:`Balance` needs of a system to trace: the plan built over trace_ops, the initial modes."""
+
+    plan: Plan
+    mode0: tuple
 
 
 def _as_list(y: Any) -> list:

@@ -112,6 +112,8 @@ class StepGuard:
             other = StepGuard.for_system(system, t_end=self.t_end, rtol=self.rtol, atol=float(np.min(self.atol)))
             self.names, self.units, self.atol, self.last = other.names, other.units, other.atol, None
 
+        n_names = len(self.names)
+
         def rhs(t: float, y: np.ndarray) -> np.ndarray:
             self.count += 1
             try:
@@ -120,7 +122,10 @@ class StepGuard:
                 raise self._failure(t, y, phase, exc) from None
             if self.count % WINDOW == 0:
                 self._check_pace(t, y, d, phase)
-            if self.bad is None and not math.isfinite(float(np.sum(d[:len(self.names)]))):
+            # the sum of the rates is finite exactly when every rate is (a list's builtin sum is ~20x cheaper
+            # than numpy's for a few dozen floats)
+            total = sum(d[:n_names]) if type(d) is list else float(np.sum(d[:n_names]))
+            if self.bad is None and not math.isfinite(total):
                 self.bad = (t, np.array(y), np.array(d), phase)
             else:
                 self.last = (t, y)

@@ -9,6 +9,8 @@ from __future__ import annotations
 import math
 from typing import Any, Sequence
 
+from .xp import scalar_ops
+
 __all__ = ["unit_from_angles", "body_frame", "to_world", "solve_rank_one", "frame_of"]
 
 Vec = tuple[float, float, float]
@@ -29,17 +31,10 @@ def unit_from_angles(elevation: float, azimuth: float) -> Vec:
 def body_frame(e: Vec, azimuth: float) -> tuple[Vec, Vec, Vec]:
     """Body axes (x along ``e``, y horizontal to the left, z completing a right-handed set).
 
-    When ``e`` is vertical the horizontal y axis is taken across the launch azimuth.
+    When ``e`` is vertical the horizontal y axis is taken across the launch azimuth. (:func:`frame_of` over
+    floats.)
     """
-    ex, ey, ez = e
-    # y = unit(zhat x e) = (-ey, ex, 0)
-    n = math.hypot(ex, ey)
-    if n > 1e-12:
-        yb = (-ey / n, ex / n, 0.0)
-    else:
-        yb = (-math.sin(azimuth), math.cos(azimuth), 0.0)
-    zb = (ey * yb[2] - ez * yb[1], ez * yb[0] - ex * yb[2], ex * yb[1] - ey * yb[0])
-    return e, yb, zb
+    return frame_of(e, azimuth, scalar_ops)
 
 
 def frame_of(e: Vec, azimuth, ops) -> tuple[Vec, Vec, Vec]:
@@ -49,10 +44,8 @@ def frame_of(e: Vec, azimuth, ops) -> tuple[Vec, Vec, Vec]:
     >>> frame_of((0.0, 0.0, 1.0), 0.0, scalar_ops) == body_frame((0.0, 0.0, 1.0), 0.0)
     True
     """
-    if not ops.arrays:
-        return body_frame(e, azimuth)
     ex, ey, ez = e
-    n = ops.sqrt(ex * ex + ey * ey)
+    n = ops.hypot(ex, ey)
     tilted = n > 1e-12
     d = ops.where(tilted, n, 1.0)
     yb = (ops.where(tilted, -ey / d, -ops.sin(azimuth)), ops.where(tilted, ex / d, ops.cos(azimuth)), 0.0 * n)

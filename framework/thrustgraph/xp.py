@@ -5,7 +5,7 @@ functions under fixed names. Assembly passes :data:`scalar_ops` for a single fli
 ``math`` module) and :data:`array_ops` for an ensemble (numpy arrays of shape ``(N,)``, one value per design).
 The convention for code written against it:
 
-1. Use ``ops.sqrt``, ``ops.exp``, ``ops.log``, ``ops.sin``, ``ops.cos``, ``ops.maximum``, ``ops.minimum``,
+1. Use ``ops.sqrt``, ``ops.exp``, ``ops.log``, ``ops.sin``, ``ops.cos``, ``ops.hypot``, ``ops.maximum``, ``ops.minimum``,
    ``ops.abs``, ``ops.clip``, ``ops.interp`` (linear, held at the ends), ``ops.layer`` (which interval of a
    sorted table) and ``ops.take`` for arithmetic and look-ups that Python's operators do not cover.
 2. Do not branch with ``if`` on a value that may differ between designs. Choose with
@@ -14,6 +14,9 @@ The convention for code written against it:
    design needs it, over every design, so both must stay finite for every design: clip the arguments of
    square roots and powers). ``ops.any`` and ``ops.all`` reduce a condition to one bool (a float condition
    is itself).
+   An iteration to convergence is written as ``ops.iterate(carry, test, step, n)``, and a condition that stops
+   one design's flight as ``ops.refuse(cond, ErrorClass, message)`` (raised for a float, ignored over arrays
+   where the caller flags the designs).
 3. Parameters may be floats (shared by every design) or arrays; modes reach a callable as an ``int`` when
    every design shares it, else as an integer array. Return floats or arrays; a design's numbers must not
    depend on which other designs share the arrays.
@@ -56,6 +59,7 @@ class ScalarOps:
     log = staticmethod(math.log)
     sin = staticmethod(math.sin)
     cos = staticmethod(math.cos)
+    hypot = staticmethod(math.hypot)
     abs = staticmethod(abs)
     any = staticmethod(bool)
     all = staticmethod(bool)
@@ -102,6 +106,24 @@ class ScalarOps:
     def branch(cond: Any, f_true: Callable, f_false: Callable, *args: Any) -> Any:
         return f_true(*args) if cond else f_false(*args)
 
+    @staticmethod
+    def refuse(cond: Any, error: type, message: str) -> None:
+        """Raise ``error(message)`` when ``cond`` holds (one design cannot go on)."""
+        if cond:
+            raise error(message)
+
+    @staticmethod
+    def iterate(carry: Any, test: Callable, step: Callable, n: int) -> tuple[Any, Any]:
+        """At most ``n`` steps of an iteration: ``stop, aux = test(carry)``; from the second pass on, leave when
+        ``stop``; else ``carry = step(carry, aux)``. Returns ``(carry, aux)``, ``aux`` from the last test."""
+        aux = None
+        for it in range(n):
+            stop, aux = test(carry)
+            if it and stop:
+                break
+            carry = step(carry, aux)
+        return carry, aux
+
 
 class ArrayOps:
     """The namespace over numpy arrays of designs (ensembles)."""
@@ -112,6 +134,7 @@ class ArrayOps:
     log = staticmethod(np.log)
     sin = staticmethod(np.sin)
     cos = staticmethod(np.cos)
+    hypot = staticmethod(np.hypot)
     abs = staticmethod(np.abs)
     where = staticmethod(np.where)
     maximum = staticmethod(np.maximum)
@@ -152,6 +175,21 @@ class ArrayOps:
             return type(a)(*(np.where(c, x, y) for x, y in zip(a, b))) if hasattr(a, "_fields") else \
                 tuple(np.where(c, x, y) for x, y in zip(a, b))
         return np.where(c, a, b)
+
+    @staticmethod
+    def refuse(cond: Any, error: type, message: str) -> None:
+        """Nothing over arrays: the caller flags the designs where ``cond`` holds."""
+
+    @staticmethod
+    def iterate(carry: Any, test: Callable, step: Callable, n: int) -> tuple[Any, Any]:
+        """As :meth:`ScalarOps.iterate`; leaves when every design stops."""
+        aux = None
+        for it in range(n):
+            stop, aux = test(carry)
+            if it and bool(np.all(stop)):
+                break
+            carry = step(carry, aux)
+        return carry, aux
 
 
 scalar_ops = ScalarOps()

@@ -1,0 +1,174 @@
+"""The straight-line functions traced from the balance give the general evaluator's numbers.
+
+:mod:`thrustgraph.straightline` runs the one balance once per phase over symbols and compiles what it did.
+Its functions must agree with the general evaluator (:meth:`Balance._solve` over floats) at every state of
+every phase a flight visits: exactly (``==``; the tracer drops only ``+ 0``, ``* 1`` and ``* 0``, which can
+change nothing but the sign of a zero). Drawn by hypothesis over every bundled model, the physics options of
+their kinds and mounts, and random designs inside the declared bounds. The reference is the balance itself
+(two evaluations of one definition; no published source needed).
+"""
+
+from __future__ import annotations
+
+import pickle
+from pathlib import Path
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+import thrustgraph as tg
+from thrustgraph import balance as balance_module
+from thrustgraph.balance import Balance
+from thrustgraph.errors import IntegrationError
+from thrustgraph.integrate import fly_segments
+from thrustgraph.straightline import TraceError, compile_function, trace_ops
+
+MODELS = sorted(Path(tg.default_model_path()).parent.glob("*.toml"))
+
+# physics options that change which code the balance runs: (path, values); a model takes those it has
+OPTIONS = {
+    "components.bottle.internal_momentum": (False, True),
+    "components.bottle.inertial_head": (True, False),
+    "components.bottle.expansion_exponent": (1.4, 1.0),
+    "launch.attitude": ("follow-wind", "fixed"),
+    "launch.mount": (None, "guide", "free", "held"),
+    "launch.friction": (0.0, 0.3),
+}
+# designs varied inside the declared bounds
+VARIED = {
+    "components.bottle.fill": (0.05, 0.6),
+    "components.bottle.gauge_pressure": (2e5, 7e5),
+    "components.airframe.dry_mass": (0.08, 0.6),
+    "launch.elevation_deg": (60.0, 90.0),
+}
+
+
+def _model(path: Path, choices: dict, varied: dict):
+    m = tg.load_model(path)
+    for key, value in {**choices, **varied}.items():
+        section, *rest = key.split(".")
+        if value is None or (section == "components" and rest[0] not in m.components):
+            continue
+        if key == "launch.elevation_deg":
+            m.set("launch.elevation", f"{value} deg")
+        else:
+            m.set(key, value)
+    if choices.get("launch.mount") == "free":
+        m.set("launch.speed", "5 m/s")
+    return m
+
+
+def _compare(system, *, n_samples: int = 6) -> int:
+    """Fly the system; at sample states of every segment compare both evaluators; return the phases checked."""
+    segs = fly_segments(system, dense=False, audit=True)
+    checked = 0
+    for ph, sol, bal in segs.segments:
+        if len(sol.t) < 2:
+            continue
+        bal.set_phase(ph.modes, ph.kin, ph.descending, getattr(ph, "slide", 0.0))
+        n = len(sol.y)
+        fn = bal.straight_line("rhs" if n == len(system.y0) else "core", n)
+        if fn is None:
+            continue
+        checked += 1
+        idx = np.unique(np.linspace(0, len(sol.t) - 1, n_samples).astype(int))
+        for k in idx:
+            t, y = float(sol.t[k]), sol.y[:, k]
+            want = "rhs" if n == len(system.y0) else "core"
+            try:
+                ref = bal._solve(t, y.tolist(), want)
+            except IntegrationError as exc:
+                with pytest.raises(IntegrationError, match=str(exc)[:30]):
+                    fn(t, y)
+                continue
+            got = fn(t, y)
+            assert len(got) == len(ref)
+            assert got == ref, (system.parsed.model.source, ph.modes, ph.kin, t,
+                                [(a, b) for a, b in zip(got, ref) if a != b])
+    return checked
+
+
+@pytest.mark.parametrize("path", MODELS, ids=lambda p: p.stem)
+def test_every_bundled_model_traces_or_says_why(path):
+    system = tg.assemble(tg.load_model(path))
+    checked = _compare(system)
+    bal = Balance(system)
+    traceable = bal._traceable
+    if traceable:
+        # every phase of a one-definition vehicle becomes a straight line
+        assert checked > 0
+        assert not bal.untraced
+    else:
+        assert checked == 0
+
+
+@settings(max_examples=40, deadline=None, derandomize=True,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
+@given(data=st.data())
+def test_straight_lines_equal_the_general_evaluator(data):
+    path = data.draw(st.sampled_from(MODELS), label="model")
+    choices = {k: data.draw(st.sampled_from(v), label=k) for k, v in OPTIONS.items()}
+    varied = {k: data.draw(st.floats(*v), label=k) for k, v in VARIED.items()}
+    try:
+        system = tg.assemble(_model(path, choices, varied))
+    except tg.ModelError:
+        return                      # an option the model's kinds or mount do not take
+    try:
+        _compare(system, n_samples=4)
+    except IntegrationError:
+        return                      # a design that cannot fly (the general evaluator says so too)
+
+
+def test_a_flight_with_straight_lines_is_the_flight_without(monkeypatch):
+    system = tg.assemble(tg.load_model(tg.default_model_path()))
+    fast = fly_segments(system, dense=False, audit=True)
+    monkeypatch.setattr(balance_module, "STRAIGHT_AFTER", 0)
+    slow = fly_segments(tg.assemble(tg.load_model(tg.default_model_path())), dense=False, audit=True)
+    assert len(fast.segments) == len(slow.segments)
+    for (_, a, _), (_, b, _) in zip(fast.segments, slow.segments):
+        assert np.array_equal(a.t, b.t)
+        assert np.array_equal(a.y, b.y)
+
+
+def test_what_the_tracer_cannot_follow_is_refused():
+    def python_if(t, s):
+        return [s[0] if s[0] > 0.0 else -s[0]]
+
+    def math_call(t, s):
+        import math
+        return [math.sqrt(s[0])]
+
+    for body in (python_if, math_call):
+        with pytest.raises(TraceError):
+            compile_function(body, 1)
+
+
+def test_branches_and_iterations_run_like_the_float_namespace():
+    from thrustgraph.xp import scalar_ops
+
+    def newton(x, ops):
+        # square root of x by Newton from 1 (stops on a relative change)
+        def test(c):
+            r = c * c - x
+            return ops.abs(r) <= 1e-15 * x, r
+
+        def step(c, r):
+            return c - r / (2.0 * c)
+        return ops.iterate(1.0 + 0.0 * x, test, step, 60)[0]
+
+    def regimes(x, ops):
+        return ops.branch(x > 2.0, lambda v: (v, ops.sqrt(v)), lambda v: (2.0 * v, -v), x)
+
+    fn = compile_function(lambda t, s: [newton(s[0], trace_ops), *regimes(s[0], trace_ops)], 1)
+    for x in (0.5, 2.0, 3.0, 1e4):
+        assert fn(0.0, [x]) == [newton(x, scalar_ops), *regimes(x, scalar_ops)]
+
+
+def test_compiled_lines_do_not_travel_between_processes():
+    system = tg.assemble(tg.load_model(tg.default_model_path()))
+    fly_segments(system, dense=False, audit=True)
+    assert system.straight_lines and all(callable(f) for f in system.straight_lines.values() if f)
+    again = pickle.loads(pickle.dumps(system.straight_lines))
+    assert type(again) is type(system.straight_lines) and len(again) == 0
