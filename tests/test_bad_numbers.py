@@ -21,7 +21,8 @@ from thrustgraph.limits import MAX_DESIGNS, MAX_OUTPUT_SAMPLES
 from thrustgraph.modelfile import bundled_models, load_model, loads_model
 from thrustgraph.parameters import Number, Quantity, Spec, Vector, parse_params
 from thrustgraph.stepguard import MAX_EVALUATIONS, WINDOW
-from thrustgraph.studyspec import Vary, read_study
+from thrustgraph.studykinds import read_study
+from thrustgraph.studyspec import Vary
 
 BOTTLE = bundled_models()["bottle-rocket"].read_text()
 NONFINITE = re.compile(r"(?<![\w.])[-+]?(nan|inf|infinity)(?!\w)", re.IGNORECASE)

@@ -79,13 +79,6 @@ def test_every_command_has_help_with_its_options():
         assert opt in sub.choices["run"].format_help()
 
 
-def test_plot_command_names_match_the_plots_module():
-    from thrustgraph.commands import plot
-    from thrustgraph.plots import PLOT_NAMES
-
-    assert plot.PLOT_NAMES == PLOT_NAMES
-
-
 # ---------------------------------------------------------------------------
 # check, kinds, new
 # ---------------------------------------------------------------------------

@@ -20,7 +20,8 @@ import pytest
 from conftest import HANG_GUARD, model_from_toml
 from thrustgraph import fly, integrate, load_model
 from thrustgraph.modelfile import bundled_models, check_model, default_model_path, dumps_model
-from thrustgraph.plots import PLOT_NAMES, figure, figures, graph_figure, powered_window, render, save_plots
+from thrustgraph.plotkinds import FLIGHT, names
+from thrustgraph.plots import figure, figures, graph_figure, powered_window, render, save_plots
 from thrustgraph.report import ledger_audit, render_report, write_report
 
 PNG = b"\x89PNG\r\n\x1a\n"
@@ -63,7 +64,7 @@ def non_white_fraction(png: bytes) -> float:
 def test_every_plot_renders_to_png_and_svg_and_is_not_blank(bottle):
     _, r = bottle
     figs = figures(r)
-    assert list(figs) == list(PLOT_NAMES)  # a water rocket has a vessel: every plot applies
+    assert list(figs) == list(names(FLIGHT))  # a water rocket has a vessel: every plot applies
     for name, fig in figs.items():
         png = render(fig, "png")
         assert png.startswith(PNG) and len(png) > 20_000, name

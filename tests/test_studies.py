@@ -31,7 +31,8 @@ from thrustgraph.modelfile import default_model_path, load_model
 from thrustgraph.optimisation import optimise
 from thrustgraph.studyflight import fly_design
 from thrustgraph.studies import sensitivities, sweep
-from thrustgraph.studyspec import Limit, Spread, Vary, read_study
+from thrustgraph.studykinds import read_study
+from thrustgraph.studyspec import Limit, Spread, Vary
 
 G = 9.80665
 PROJECTILE = """

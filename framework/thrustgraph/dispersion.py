@@ -43,12 +43,10 @@ from .model import Model
 from .outcomes import OUTCOMES
 from .outputfiles import atomic_write
 from .studies import DEFAULT_OUTPUTS, DesignTable, _fmt, _prepare, evaluate
-from .studyspec import Spread
+from .studyspec import LEVELS, Spread
 
 __all__ = ["disperse", "Dispersion", "Footprint", "Ellipse", "statistics", "ellipse", "sample", "LEVELS"]
 
-#: Probability levels of the footprint ellipses drawn by default.
-LEVELS = (0.5, 0.95)
 _STATS = ("count", "mean", "sd", "min", "p05", "p50", "p95", "max")
 
 

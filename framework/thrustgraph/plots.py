@@ -5,27 +5,10 @@ window, no pyplot state, so plots can be made in scripts, tests and servers.
 Flight phases are shaded in the background and events marked with dashed
 lines, so a curve can be read against what the vehicle was doing.
 
-Figures (names accepted by :func:`figure` and the command line):
-
-``thrust``
-    thrust along the body axis and mass flow, over the powered flight
-``mass``
-    vehicle mass and the contents of each vessel or jet
-``pressure``
-    absolute pressure in every vessel against the ambient pressure
-``motion``
-    altitude, speed and acceleration over the whole flight
-``trajectory``
-    altitude against horizontal distance
-``ledger``
-    the balance-ledger terms (momentum flux, pressure thrust, weight, drag,
-    guide reaction...) along the body axis, stacked: positive terms above
-    zero, negative below, their sum (mass times acceleration) as a line
-``ledger-world``
-    the same terms along the world axes x (downrange), y and z (up)
-
-Figures that do not apply (``pressure`` for a model without vessels) are
-left out.
+The figures of a flight and the component graph are entries of the plot
+registry, :mod:`thrustgraph.plotkinds`, which names, describes and orders
+them; this module draws them. Figures that do not apply (``pressure`` for a
+model without vessels) are left out.
 
 Examples
 --------
@@ -51,13 +34,13 @@ from matplotlib.figure import Figure
 from matplotlib.patches import FancyBboxPatch, Patch
 
 from .outputfiles import write_all
+from .plotkinds import FLIGHT, IMAGE_FORMATS, PLOTS
+from .plotkinds import names as plot_names
 from .result import FlightResult
 
-__all__ = ["PLOT_NAMES", "FORMATS", "figure", "figures", "render", "save_plots", "graph_figure", "summary_title",
-           "powered_window", "plain"]
-
-PLOT_NAMES = ("thrust", "mass", "pressure", "motion", "trajectory", "ledger", "ledger-world")
-FORMATS = ("png", "svg")
+__all__ = ["figure", "figures", "render", "save_plots", "graph_figure", "summary_title", "powered_window", "plain",
+           "thrust_figure", "mass_figure", "pressure_figure", "motion_figure", "trajectory_figure", "ledger_figure",
+           "ledger_world_figure"]
 
 # Thrust and the main curve of each figure: a blue used nowhere else in the report's page style.
 MAIN = "#1f5fbf"
@@ -163,7 +146,7 @@ def summary_title(r: FlightResult, keys: Iterable[str]) -> str:
 # the figures
 # ---------------------------------------------------------------------------
 
-def _thrust(r: FlightResult) -> Figure:
+def thrust_figure(r: FlightResult) -> Figure:
     w = powered_window(r)
     fig, ax = _new(2, 1, (8.0, 5.5), sharex=True)
     a, b = ax[0, 0], ax[1, 0]
@@ -194,7 +177,7 @@ def _thrust(r: FlightResult) -> Figure:
     return fig
 
 
-def _mass(r: FlightResult) -> Figure:
+def mass_figure(r: FlightResult) -> Figure:
     w = powered_window(r)
     unit, f = _mass_unit(r)
     fig, ax = _new(1, 1, (8.0, 4.5))
@@ -215,7 +198,7 @@ def _mass(r: FlightResult) -> Figure:
     return fig
 
 
-def _pressure(r: FlightResult) -> Figure | None:
+def pressure_figure(r: FlightResult) -> Figure | None:
     keys = [k for k in r.signals if k.endswith(".pressure")]
     if not keys:
         return None
@@ -237,7 +220,7 @@ def _pressure(r: FlightResult) -> Figure | None:
     return fig
 
 
-def _motion(r: FlightResult) -> Figure:
+def motion_figure(r: FlightResult) -> Figure:
     fig, ax = _new(3, 1, (8.0, 7.5), sharex=True)
     s = r.signals
     rows = [("altitude", 1.0, "altitude [m]"), ("speed", 1.0, "speed [m/s]"),
@@ -254,7 +237,7 @@ def _motion(r: FlightResult) -> Figure:
     return fig
 
 
-def _trajectory(r: FlightResult) -> Figure:
+def trajectory_figure(r: FlightResult) -> Figure:
     fig, ax = _new(1, 1, (8.0, 5.0))
     a = ax[0, 0]
     x, z = r.signals["range"], r.signals["altitude"]
@@ -336,30 +319,36 @@ def _ledger(r: FlightResult, directions: tuple[str, ...]) -> Figure:
     return fig
 
 
-_BUILDERS = {
-    "thrust": _thrust, "mass": _mass, "pressure": _pressure, "motion": _motion, "trajectory": _trajectory,
-    "ledger": lambda r: _ledger(r, ("axis",)), "ledger-world": lambda r: _ledger(r, ("x", "y", "z")),
-}
+def ledger_figure(r: FlightResult) -> Figure:
+    """The balance-ledger terms along the body axis, stacked."""
+    return _ledger(r, ("axis",))
+
+
+def ledger_world_figure(r: FlightResult) -> Figure:
+    """The balance-ledger terms along the world axes x, y and z, stacked."""
+    return _ledger(r, ("x", "y", "z"))
 
 
 def figure(result: FlightResult, name: str) -> Figure | None:
-    """One figure by name (see the module docstring), or None when it does not apply to this flight.
+    """One figure of a flight by its registry name (:mod:`thrustgraph.plotkinds`), or None when it does not
+    apply to this flight.
 
     Raises
     ------
     ValueError
         For an unknown name (the message lists the valid ones).
     """
-    if name not in _BUILDERS:
-        raise ValueError(f"no plot named {name!r}; choose from {', '.join(PLOT_NAMES)}")
+    kind = PLOTS.get(name)
+    if kind is None or kind.subject != FLIGHT:
+        raise ValueError(f"no plot named {name!r}; choose from {', '.join(plot_names(FLIGHT))}")
     with matplotlib.rc_context(_RC):
-        return _BUILDERS[name](result)
+        return kind.draw()(result)
 
 
 def figures(result: FlightResult, names: Iterable[str] | None = None) -> dict[str, Figure]:
-    """The figures that apply to this flight, by name, in :data:`PLOT_NAMES` order."""
+    """The figures that apply to this flight, by name, in registry order (or the order of ``names``)."""
     out = {}
-    for n in (PLOT_NAMES if names is None else names):
+    for n in (plot_names(FLIGHT) if names is None else names):
         fig = figure(result, n)
         if fig is not None:
             out[n] = fig
@@ -373,8 +362,8 @@ def render(fig: Figure, fmt: str = "png", *, dpi: int = 110) -> bytes:
     >>> render(fig, "svg") == render(fig, "svg")
     True
     """
-    if fmt not in FORMATS:
-        raise ValueError(f"format must be one of {', '.join(FORMATS)}, got {fmt!r}")
+    if fmt not in IMAGE_FORMATS:
+        raise ValueError(f"format must be one of {', '.join(IMAGE_FORMATS)}, got {fmt!r}")
     buf = io.BytesIO()
     meta = {"Date": None} if fmt == "svg" else {"Software": None}
     with matplotlib.rc_context(_RC):
@@ -410,8 +399,8 @@ def save_plots(result: FlightResult, directory: str | Path, *, formats: Iterable
 
     formats = tuple(formats)
     for f in formats:
-        if f not in FORMATS:
-            raise ValueError(f"format must be one of {', '.join(FORMATS)}, got {f!r}")
+        if f not in IMAGE_FORMATS:
+            raise ValueError(f"format must be one of {', '.join(IMAGE_FORMATS)}, got {f!r}")
     blobs = [(Path(directory) / f"{n}.{f}", render(fig, f)) for n, fig in figures(result, names).items()
              for f in formats]
     write_all(blobs, directories=[directory])

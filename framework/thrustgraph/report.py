@@ -34,6 +34,7 @@ from scipy.integrate import trapezoid
 from .model import Model
 from .modelfile import check_model, dumps_model
 from .outputfiles import atomic_write
+from .plotkinds import MODEL, PLOTS, plots_for
 from .result import FlightResult
 
 __all__ = ["render_report", "write_report", "ledger_audit"]
@@ -58,20 +59,6 @@ pre { background: #f6f8fa; border: 1px solid #d0d7de; padding: 0.8em; overflow-x
 code { font-family: ui-monospace, monospace; }
 nav a { margin-right: 1em; }
 """
-
-_CAPTIONS = {
-    "thrust": "Thrust along the body axis and mass flow through each outlet.",
-    "mass": "Vehicle mass and what each vessel or jet still holds.",
-    "pressure": "Absolute pressure in each vessel, with the ambient pressure. A prediction, never a rating.",
-    "motion": "Altitude, speed and acceleration over the whole flight.",
-    "trajectory": "Altitude against horizontal distance from the launch point.",
-    "ledger": "Every term of the momentum balance along the body axis, stacked (positive above zero, negative "
-              "below); the black line is their sum, mass times acceleration. The widest band dominates.",
-    "ledger-world": "The same terms along the world axes x (downrange), y and z (up).",
-    "graph": "The component graph. The dashed box is the control surface: flow that crosses it carries "
-             "momentum into the balance.",
-}
-
 
 def _e(x: Any) -> str:
     return html.escape(str(x), quote=True)
@@ -250,11 +237,11 @@ def render_report(result: FlightResult, model: Model, *, parsed: Any = None, plo
     figs = tgplots.figures(result, plots)
     if graph:
         parsed = parsed if parsed is not None else check_model(model)
-        figs = {**figs, "graph": tgplots.graph_figure(parsed)}
+        figs.update({k.name: k.draw()(parsed) for k in plots_for(MODEL)})
     for name, fig in figs.items():
         data = base64.b64encode(tgplots.render(fig, "png")).decode("ascii")
         parts.append(f'<figure id="plot-{_e(name)}"><img alt="{_e(name)} plot" src="data:image/png;base64,{data}">'
-                     f"<figcaption>{_e(_CAPTIONS.get(name, name))}</figcaption></figure>")
+                     f"<figcaption>{_e(PLOTS[name].caption)}</figcaption></figure>")
     parts.append("</section>")
 
     # The model as flown, and provenance.

@@ -166,6 +166,25 @@ class DesignTable:
 
         atomic_write(path, self.to_csv())
 
+    def report(self) -> str:
+        """A few lines for people: the range of each outcome (up to five) over the designs that flew, and where
+        it is highest."""
+        ok = self.ok
+        if not np.any(ok):
+            return "No design flew."
+        lines = []
+        shown = [o for o in self.outputs if o not in ("impact_x", "impact_y", "launch_mass")][:5]
+        for o in shown:
+            v = np.where(ok, self.column(o), np.nan)
+            if not np.any(np.isfinite(v)):
+                continue
+            i = int(np.nanargmax(v))
+            spec = OUTCOMES[o]
+            best = ", ".join(p.text(self.x[i, k]) for k, p in enumerate(self.params))
+            lines.append(f"  {spec.label:<20s} {spec.shown(float(np.nanmin(v))):10.5g} .. "
+                         f"{spec.shown(float(np.nanmax(v))):10.5g} {spec.display:<6s} highest at {best}")
+        return "Outcome ranges over the designs that flew\n" + "\n".join(lines)
+
 
 def choose_engine(n: int, parsed: ParsedModel, engine: str = "auto", flights: str = "auto",
                   outputs: Sequence[str] | None = None) -> tuple[str, str]:
@@ -403,6 +422,19 @@ class Sensitivity:
     def write_csv(self, path: str | os.PathLike[str]) -> None:
 
         atomic_write(path, self.to_csv())
+
+    def report(self) -> str:
+        """The elasticities as a table for people, one line per outcome."""
+        lines = ["Local sensitivities at the model's values (central differences, step "
+                 f"{self.steps[0] / max(abs(self.params[0].nominal), 1e-300):.3g} of each value)", ""]
+        head = f"  {'outcome':<22s}" + "".join(f" {p.path.split('.')[-1][:16]:>17s}" for p in self.params)
+        lines.append(head + "   (% change per 1 % change)")
+        for k, o in enumerate(self.outputs):
+            if not np.any(np.isfinite(self.elasticity[k])):
+                continue
+            lines.append(f"  {o:<22s}" + "".join(f" {v:17.4g}" if math.isfinite(v) else f" {'-':>17s}"
+                                                   for v in self.elasticity[k]))
+        return "\n".join(lines)
 
 
 def _unit_size(p: DesignParameter) -> float:

@@ -1,21 +1,9 @@
 """Plots of studies (matplotlib, Agg; PNG or SVG): sweep maps, the impact footprint, sensitivity bars,
 the optimisation trace.
 
-Figures (returned by the functions below, drawn on an Agg canvas, no pyplot state):
-
-``sweep``
-    one varied parameter: every outcome asked for against it; two: a filled
-    map of one outcome over the grid (screened designs marked with a cross);
-    more: the first two parameters as a scatter coloured by the outcome.
-``footprint``
-    the impact points of a dispersion with their mean, the covariance
-    ellipses and the launch point, on equal axes.
-``sensitivity``
-    horizontal bars of the elasticities (% change of each outcome per 1 %
-    change of each parameter), one panel per outcome.
-``optimisation``
-    the objective of every flown design in the order flown, the feasible
-    ones marked, and the best design.
+Every figure is an entry of the plot registry (:mod:`thrustgraph.plotkinds`),
+whose subject is the study kind it draws; this module draws them, each on an
+Agg canvas with no pyplot state.
 
 Examples
 --------
@@ -39,10 +27,12 @@ from matplotlib.figure import Figure
 
 from .outcomes import OUTCOMES
 from .outputfiles import write_all
+from .plotkinds import plots_for
 from .plots import plain, render
 
-__all__ = ["sweep_figure", "footprint_figure", "sensitivity_figure", "optimisation_figure",
-           "optimisation_designs_figure", "study_figures", "render_study_plots", "save_study_plots", "render"]
+__all__ = ["sweep_figure", "footprint_figure", "histogram_figure", "sensitivity_figure", "optimisation_figure",
+           "optimisation_designs_figure", "study_figures", "study_kind_of", "render_study_plots", "save_study_plots",
+           "render"]
 
 _MAIN = "#1f5fbf"
 _BAD = "#c0392b"
@@ -123,8 +113,9 @@ def sweep_figure(table: Any, output: str | None = None) -> Figure:
     return fig
 
 
-def footprint_figure(dispersion: Any) -> Figure:
-    """Impact points, mean, covariance ellipses and the launch point of a dispersion."""
+def footprint_figure(dispersion: Any, output: str | None = None) -> Figure:
+    """Impact points, mean, covariance ellipses and the launch point of a dispersion (``output`` is not used:
+    the footprint is of the impact points)."""
     fig, ax = _new(size=(6.8, 6.2))
     a = ax[0, 0]
     fp = dispersion.footprint
@@ -149,8 +140,9 @@ def footprint_figure(dispersion: Any) -> Figure:
     return fig
 
 
-def sensitivity_figure(sens: Any, outputs: Sequence[str] | None = None) -> Figure:
-    """Elasticities of each outcome to each parameter, one panel per outcome."""
+def sensitivity_figure(sens: Any, output: str | None = None, *, outputs: Sequence[str] | None = None) -> Figure:
+    """Elasticities of each outcome to each parameter, one panel per outcome (of ``outputs``, default: the
+    study's; ``output`` is not used: every outcome has its panel)."""
     outs = [o for o in (outputs or [o for o in sens.outputs if o not in ("impact_x", "impact_y", "launch_mass")])
             if o in sens.outputs]
     outs = [o for o in outs if np.any(np.isfinite(sens.elasticity[sens.outputs.index(o)]))][:6] or outs[:1]
@@ -171,8 +163,9 @@ def sensitivity_figure(sens: Any, outputs: Sequence[str] | None = None) -> Figur
     return fig
 
 
-def optimisation_figure(opt: Any) -> Figure:
-    """The objective of every flown design, in order, with the feasible ones and the best marked."""
+def optimisation_figure(opt: Any, output: str | None = None) -> Figure:
+    """The objective of every flown design, in order, with the feasible ones and the best marked (``output`` is
+    not used: the figure shows the objective)."""
     fig, ax = _new()
     a = ax[0, 0]
     t = opt.table
@@ -201,9 +194,9 @@ def _feasible(opt: Any) -> np.ndarray:
     return feas
 
 
-def optimisation_designs_figure(opt: Any) -> Figure:
+def optimisation_designs_figure(opt: Any, output: str | None = None) -> Figure:
     """The flown designs on the parameter plane (or against the one parameter), coloured by the objective;
-    designs outside the limits as grey crosses, the best design as a star."""
+    designs outside the limits as grey crosses, the best design as a star (``output`` is not used)."""
     t = opt.table
     feas = _feasible(opt)
     y = t.column(opt.objective)
@@ -235,25 +228,14 @@ def optimisation_designs_figure(opt: Any) -> Figure:
     return fig
 
 
-def study_figures(result: Any, output: str | None = None) -> dict[str, Figure]:
-    """The figures that fit a study result, by name (``sweep``, ``footprint``, ``sensitivity``...)."""
-    from .dispersion import Dispersion
-    from .optimisation import OptimisationResult
-    from .studies import DesignTable, Sensitivity
+def study_kind_of(result: Any) -> str:
+    """The study kind a study result comes from: its design table records it."""
+    return getattr(result, "table", result).kind
 
-    figs: dict[str, Figure] = {}
-    if isinstance(result, DesignTable):
-        figs["sweep"] = sweep_figure(result, output)
-    elif isinstance(result, Dispersion):
-        figs["footprint"] = footprint_figure(result)
-        first = output or ("range" if "range" in result.table.outputs else result.table.outputs[0])
-        figs["dispersion-histogram"] = _histogram(result, first)
-    elif isinstance(result, Sensitivity):
-        figs["sensitivity"] = sensitivity_figure(result)
-    elif isinstance(result, OptimisationResult):
-        figs["optimisation"] = optimisation_figure(result)
-        figs["optimisation-designs"] = optimisation_designs_figure(result)
-    return figs
+
+def study_figures(result: Any, output: str | None = None) -> dict[str, Figure]:
+    """The figures registered for the kind of a study result (:mod:`thrustgraph.plotkinds`), by name."""
+    return {k.name: k.draw()(result, output) for k in plots_for(study_kind_of(result))}
 
 
 def render_study_plots(result: Any, directory: str | Path, *, fmt: str = "png", output: str | None = None
@@ -271,7 +253,10 @@ def save_study_plots(result: Any, directory: str | Path, *, fmt: str = "png", ou
     return [p for p, _ in blobs]
 
 
-def _histogram(dispersion: Any, output: str) -> Figure:
+def histogram_figure(dispersion: Any, output: str | None = None) -> Figure:
+    """A histogram of one outcome of a dispersion (default: the range, else the first), 5 %, median and 95 %
+    marked."""
+    output = output or ("range" if "range" in dispersion.table.outputs else dispersion.table.outputs[0])
     fig, ax = _new(size=(7.0, 4.2))
     a = ax[0, 0]
     v = dispersion.table.column(output)[dispersion.table.ok]

@@ -16,7 +16,8 @@ Limits (:class:`Limit`, constraints of an optimisation)
     ``peak_acceleration <= 60 g0`` (``g0`` is standard gravity; ``g`` is a
     gram), ``guide_exit_speed >= 12 m/s``, ``peak_vessel_pressure <= 6 bar``.
 
-The ``[study]`` table (docs/studies.md) holds one sub-table per study kind::
+The ``[study]`` table (docs/studies.md) holds one sub-table per study kind (read by
+:func:`thrustgraph.studykinds.read_study`)::
 
     [study.sweep]
     vary = { "components.bottle.fill" = "0.1 .. 0.6 in 11", "components.bottle.gauge_pressure" = ["3 bar", "5 bar"] }
@@ -38,7 +39,7 @@ from __future__ import annotations
 import difflib
 import re
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, Sequence
 
 import numpy as np
@@ -50,10 +51,10 @@ from .model import ParsedModel
 from .outcomes import check_outputs, outcome
 from .units import Q_, parse_quantity, to_si
 
-__all__ = ["Vary", "Spread", "Limit", "StudyDefinition", "KINDS", "DISTRIBUTIONS", "read_study", "display_unit",
-           "literal"]
+__all__ = ["Vary", "Spread", "Limit", "StudyDefinition", "DISTRIBUTIONS", "LEVELS", "display_unit", "literal"]
 
-KINDS = ("sweep", "optimise", "dispersion", "sensitivity")
+#: Probability levels of a dispersion's footprint ellipses, unless the study names others.
+LEVELS = (0.5, 0.95)
 DISTRIBUTIONS = {"normal": ("mean", "sd"), "uniform": ("low", "high"), "triangular": ("low", "mode", "high")}
 
 
@@ -356,115 +357,5 @@ class StudyDefinition:
     method: str = "slsqp"
     step: float = 1e-3
     outputs: tuple[str, ...] | None = None
-    extras: dict[str, Any] = field(default_factory=dict)
-
-
-_KEYS = {
-    "sweep": ("vary", "combine", "outputs"),
-    "optimise": ("vary", "maximise", "minimise", "limits", "method", "outputs", "start"),
-    "dispersion": ("spread", "samples", "seed", "outputs", "levels"),
-    "sensitivity": ("vary", "step", "outputs"),
-}
-_ALIASES = {"optimize": "optimise", "monte-carlo": "dispersion", "montecarlo": "dispersion",
-            "sensitivities": "sensitivity"}
-
-
-def _int(value: Any, where: str, low: int, high: int | None = None, what: str = "") -> int:
-    if not isinstance(value, int) or isinstance(value, bool) or value < low:
-        raise ModelError(where, f"must be a whole number of at least {low}, got {shorten(value)}",
-                         f"write e.g. {max(low, 1)}")
-    if high is not None:
-        check_count(value, high, where=where, what=what)
-    return value
-
-
-def read_study(table: dict[str, Any], kind: str | None = None, *, source: str = "") -> StudyDefinition | None:
-    """Read one study from a model's ``[study]`` table.
-
-    ``kind`` picks the sub-table; without it the table must hold exactly one
-    study. Returns None when the table holds no study (and no kind was asked).
-    """
-    pre = f"{source}: " if source else ""
-    table = table or {}
-    shared_outputs = table.get("outputs")
-    studies = {k: v for k, v in table.items() if k != "outputs"}
-    for k in studies:
-        if _ALIASES.get(k, k) not in KINDS:
-            c = difflib.get_close_matches(k, list(KINDS), n=1)
-            raise ModelError(f"{pre}study.{k}", "unknown study kind",
-                             f"did you mean {c[0]!r}?" if c else f"use one of {', '.join(KINDS)}")
-    if kind is None:
-        if not studies:
-            return None
-        if len(studies) > 1:
-            raise ModelError(f"{pre}study", f"holds several studies ({', '.join(studies)})",
-                             "say which one to run, e.g. 'thrustgraph study MODEL sweep'")
-        kind = next(iter(studies))
-    kind = _ALIASES.get(kind, kind)
-    sub = None
-    for k, v in studies.items():
-        if _ALIASES.get(k, k) == kind:
-            sub = v
-    where = f"{pre}study.{kind}"
-    if sub is None:
-        sub = {}
-    if not isinstance(sub, dict):
-        raise ModelError(where, f"expected a table, got {sub!r}", f"write [study.{kind}]")
-    for k in sub:
-        if k not in _KEYS[kind]:
-            c = difflib.get_close_matches(k, list(_KEYS[kind]), n=1)
-            raise ModelError(f"{where}.{k}", "unknown key",
-                             f"did you mean {c[0]!r}?" if c else f"keys of a {kind}: {', '.join(_KEYS[kind])}")
-    kw: dict[str, Any] = {"kind": kind}
-    outputs = sub.get("outputs", shared_outputs)
-    if outputs is not None:
-        if not isinstance(outputs, list):
-            raise ModelError(f"{where}.outputs", f"expected a list of outcome names, got {outputs!r}",
-                             'write outputs = ["apogee", "range"]')
-        kw["outputs"] = tuple(check_outputs(outputs, where=f"{where}.outputs"))
-    vary = sub.get("vary")
-    if vary is not None:
-        if kind == "sensitivity" and isinstance(vary, list):
-            kw["vary"] = tuple(Vary(str(p)) for p in vary)
-        elif isinstance(vary, dict):
-            kw["vary"] = tuple(Vary.from_entry(p, v, where=f"{where}.vary.{p}") for p, v in vary.items())
-        else:
-            raise ModelError(f"{where}.vary", f"expected a table of key paths, got {vary!r}",
-                             'write vary = { "components.bottle.fill" = "0.1 .. 0.6 in 11" }')
-    if "combine" in sub:
-        if sub["combine"] not in ("grid", "list"):
-            raise ModelError(f"{where}.combine", f"expected \"grid\" or \"list\", got {sub['combine']!r}",
-                             "grid: every combination; list: the n-th values together")
-        kw["combine"] = sub["combine"]
-    if "spread" in sub:
-        sp = sub["spread"]
-        if not isinstance(sp, dict):
-            raise ModelError(f"{where}.spread", f"expected a table of key paths, got {sp!r}",
-                             'write spread = { "launch.elevation" = "normal(sd=1 deg)" }')
-        kw["spreads"] = tuple(Spread.from_entry(p, v, where=f"{where}.spread.{p}") for p, v in sp.items())
-    if "samples" in sub:
-        kw["samples"] = _int(sub["samples"], f"{where}.samples", 1, MAX_DESIGNS, "samples")
-    if "seed" in sub:
-        kw["seed"] = _int(sub["seed"], f"{where}.seed", 0)
-    if "maximise" in sub and "minimise" in sub:
-        raise ModelError(where, "has both maximise and minimise", "keep one objective")
-    for key, up in (("maximise", True), ("minimise", False)):
-        if key in sub:
-            check_outputs([sub[key]], where=f"{where}.{key}")
-            kw["objective"], kw["maximise"] = sub[key], up
-    if "limits" in sub:
-        lims = sub["limits"]
-        if not isinstance(lims, list):
-            raise ModelError(f"{where}.limits", f"expected a list, got {lims!r}",
-                             'write limits = ["peak_acceleration <= 60 g0"]')
-        kw["limits"] = tuple(Limit.parse(str(s), where=f"{where}.limits") for s in lims)
-    if "method" in sub:
-        kw["method"] = str(sub["method"])
-    if "step" in sub:
-        st = sub["step"]
-        if not isinstance(st, (int, float)) or isinstance(st, bool) or not 0.0 < st < 0.5:
-            raise ModelError(f"{where}.step", f"must be a relative step between 0 and 0.5, got {st!r}",
-                             "write e.g. step = 0.001")
-        kw["step"] = float(st)
-    extras = {k: sub[k] for k in ("start", "levels") if k in sub}
-    return StudyDefinition(extras=extras, **kw)
+    start: str = "grid"
+    levels: tuple[float, ...] = LEVELS

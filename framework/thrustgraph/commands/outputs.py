@@ -17,18 +17,34 @@ from pathlib import Path
 from typing import Any, Sequence
 
 from ..errors import ModelError, ThrustgraphError
+from ..exportformats import EXPORTS
 from ..model import Model, ParsedModel, parse_model
 from ..outputfiles import check_outputs, write_all
 from .common import load_with_overrides, parse_override
 from .progress import Progress
 
-__all__ = ["add_quiet_option", "load_checked", "fly_model", "default_stem", "need_matplotlib", "check_paths",
-           "write_outputs"]
+__all__ = ["add_quiet_option", "add_export_options", "export_targets", "load_checked", "fly_model", "default_stem",
+           "need_matplotlib", "check_paths", "write_outputs"]
 
 
 def add_quiet_option(p: argparse.ArgumentParser) -> None:
     p.add_argument("--quiet", action="store_true",
                    help="no progress indicator (it is shown only when standard error is a terminal anyway)")
+
+
+def add_export_options(p: argparse.ArgumentParser, verb: str = "write") -> None:
+    """``--NAME FILE`` for every format of the export registry (:mod:`thrustgraph.exportformats`)."""
+    for f in EXPORTS.values():
+        need = f", needs {f.needs}" if f.needs else ""
+        p.add_argument(f"--{f.name}", metavar="FILE", help=f"{verb} {f.holds} to FILE ({f.title}{need})")
+
+
+def export_targets(args: argparse.Namespace) -> list[tuple[str, str]]:
+    """(format, path) of every ``--NAME FILE`` given; a format whose package is missing is refused."""
+    targets = [(name, getattr(args, name)) for name in EXPORTS if getattr(args, name, None)]
+    for name, _ in targets:
+        EXPORTS[name].require()
+    return targets
 
 
 def load_checked(name: str | None, overrides: Sequence[str]) -> tuple[Model, ParsedModel]:

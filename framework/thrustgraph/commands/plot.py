@@ -1,9 +1,7 @@
 """``thrustgraph plot``: fly a model and draw its plots (PNG and/or SVG) into a directory.
 
-Plots: thrust, mass, pressure (vessels only), motion (altitude, speed,
-acceleration), trajectory, ledger (the balance terms along the body axis,
-stacked) and ledger-world (along x, y and z). Files are named NAME.png or
-NAME.svg.
+The plots are those of the plot registry (:mod:`thrustgraph.plotkinds`) whose
+subject is a flight; files are named NAME.png or NAME.svg.
 """
 
 from __future__ import annotations
@@ -11,22 +9,22 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from ..plotkinds import FLIGHT, IMAGE_FORMATS, names
 from .common import add_model_argument, add_set_option
 from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
 
 NAME = "plot"
-HELP = "fly a model and draw thrust, mass, pressure, motion, trajectory and balance-ledger plots (PNG/SVG)"
-
-PLOT_NAMES = ("thrust", "mass", "pressure", "motion", "trajectory", "ledger", "ledger-world")
+HELP = "fly a model and draw its plots (thrust, motion, balance ledger...; --only lists them all) as PNG or SVG"
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
     add_model_argument(p)
     add_set_option(p)
     p.add_argument("--out", metavar="DIR", help="directory for the images (default: STEM-plots)")
-    p.add_argument("--format", choices=("png", "svg", "both"), default="png", help="image format (default png)")
-    p.add_argument("--only", action="append", choices=PLOT_NAMES, metavar="PLOT",
-                   help=f"draw only this plot (repeatable): {', '.join(PLOT_NAMES)}")
+    p.add_argument("--format", choices=IMAGE_FORMATS + ("both",), default="png",
+                   help=f"image format: {', '.join(IMAGE_FORMATS)} or both (default png)")
+    p.add_argument("--only", action="append", choices=names(FLIGHT), metavar="PLOT",
+                   help=f"draw only this plot (repeatable): {', '.join(names(FLIGHT))}")
     add_quiet_option(p)
 
 
@@ -38,7 +36,7 @@ def main(args: argparse.Namespace) -> int:
     result = fly_model(parsed, quiet=args.quiet)
     from ..plots import figures, render
 
-    formats = ("png", "svg") if args.format == "both" else (args.format,)
+    formats = IMAGE_FORMATS if args.format == "both" else (args.format,)
     outputs = [(out / f"{name}.{fmt}", render(fig, fmt)) for name, fig in figures(result, args.only).items()
                for fmt in formats]
     write_outputs(outputs, directories=[out])

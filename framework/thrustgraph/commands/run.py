@@ -6,11 +6,11 @@ import argparse
 import math
 from typing import Sequence
 
-from ..integrate import integrate
+from ..exportformats import EXPORTS
 from ..result import FlightResult
-
-from .common import add_model_argument, add_set_option, load_with_overrides
-from .outputs import add_quiet_option, check_paths, fly_model, load_checked, need_matplotlib, write_outputs
+from .common import add_model_argument, add_set_option
+from .outputs import (add_export_options, add_quiet_option, check_paths, export_targets, fly_model, load_checked,
+                      need_matplotlib, write_outputs)
 
 NAME = "run"
 HELP = "fly a model and print the summary (burn time, peak thrust and acceleration, apogee or range, audits)"
@@ -18,8 +18,7 @@ HELP = "fly a model and print the summary (burn time, peak thrust and accelerati
 def add_arguments(p: argparse.ArgumentParser) -> None:
     add_model_argument(p)
     add_set_option(p)
-    p.add_argument("--csv", metavar="FILE", help="write the time series (every signal and ledger term) to CSV")
-    p.add_argument("--json", metavar="FILE", help="write the summary, phases, events and audits to JSON")
+    add_export_options(p, verb="also write")
     p.add_argument("--plots", metavar="DIR", help="also draw the plots (PNG) into DIR")
     p.add_argument("--report", metavar="FILE", help="also write the self-contained HTML report to FILE")
     add_quiet_option(p)
@@ -84,15 +83,12 @@ def format_summary(r: FlightResult, name: str) -> str:
 def main(args: argparse.Namespace) -> int:
     if args.plots or args.report:
         need_matplotlib()
+    exports = export_targets(args)
     model, parsed = load_checked(args.model, args.overrides)  # errors name the file or the --set option
-    check_paths([args.csv, args.json, args.report], [args.plots])  # before flying: a bad path costs nothing
+    check_paths([path for _, path in exports] + [args.report], [args.plots])  # before flying: a bad path costs nothing
     result = fly_model(parsed, quiet=args.quiet)
     # Build every output in memory first, so a failure leaves no partial file.
-    outputs = []
-    if args.csv:
-        outputs.append((args.csv, result.to_csv(provenance=True)))
-    if args.json:
-        outputs.append((args.json, result.to_json()))
+    outputs = [(path, EXPORTS[name].render(result)) for name, path in exports]
     if args.plots:
         from ..plots import figures, render
         outputs += [(f"{args.plots}/{n}.png", render(fig, "png")) for n, fig in figures(result).items()]

@@ -15,15 +15,17 @@ from __future__ import annotations
 
 import argparse
 import math
+import os
 import sys
+from dataclasses import replace
 from typing import Any
-
-import numpy as np
 
 from ..errors import ModelError
 from ..interrupts import exit_status
+from ..model import ParsedModel
 from ..outcomes import OUTCOMES, check_outputs, default_outputs
-from ..studyspec import KINDS, Limit, Spread, StudyDefinition, Vary, read_study
+from ..studykinds import STUDY_KINDS, StudyRun, lookup, read_study
+from ..studyspec import Limit, Spread, StudyDefinition, Vary
 from .common import add_model_argument, add_set_option
 from .outputs import add_quiet_option, check_paths, load_checked, need_matplotlib, write_outputs
 
@@ -34,8 +36,8 @@ HELP = ("run a design study: a sweep, an optimisation, a dispersion (Monte Carlo
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
     add_model_argument(p)
-    p.add_argument("kind", nargs="?", default=None, choices=KINDS + (None,), metavar="KIND",
-                   help=f"which study: {', '.join(KINDS)} (default: the one in the model's [study] table)")
+    p.add_argument("kind", nargs="?", default=None, choices=tuple(STUDY_KINDS) + (None,), metavar="KIND",
+                   help=f"which study: {', '.join(STUDY_KINDS)} (default: the one in the model's [study] table)")
     add_set_option(p)
     g = p.add_argument_group("what to vary")
     g.add_argument("--vary", action="append", default=[], metavar="PATH=VALUES",
@@ -130,21 +132,12 @@ def _definition(args: argparse.Namespace, model: Any) -> StudyDefinition:
         kw["outputs"] = tuple(check_outputs([s.strip() for s in args.outputs.split(",") if s.strip()],
                                             where="--outputs"))
     if args.start:
-        kw["extras"] = dict(base.extras, start=args.start)
-    from dataclasses import replace
-
+        kw["start"] = args.start
     return replace(base, **kw)
 
 
-def main(args: argparse.Namespace) -> int:
-    import os
-
-    if args.kind is None and args.model in KINDS and not os.path.exists(args.model):
-        args.kind, args.model = args.model, None      # "thrustgraph study sweep ...": the bundled model
-    if args.plots:
-        need_matplotlib()
-    model, parsed = load_checked(args.model, args.overrides)
-    d = _definition(args, model)
+def _run_options(args: argparse.Namespace) -> dict[str, Any]:
+    """Where and how to fly (options of :func:`thrustgraph.studies.evaluate`), checked."""
     engine = "dask" if args.scheduler and args.engine in ("auto", "dask") else args.engine
     if engine == "dask" and not args.scheduler:
         raise ModelError("--engine dask", "needs the address of a Dask scheduler",
@@ -155,41 +148,48 @@ def main(args: argparse.Namespace) -> int:
         raise ModelError("--chunk", f"must be at least 1, got {args.chunk}", "give a positive number")
     if not (math.isfinite(args.wait) and args.wait > 0):
         raise ModelError("--wait", f"must be a positive number of seconds, got {args.wait:g}", "use e.g. --wait 10")
-    if args.summary and d.kind not in ("sensitivity", "dispersion"):
+    return dict(engine=engine, flights=args.flights, workers=args.workers, scheduler=args.scheduler,
+                timeout=args.wait, chunk_size=args.chunk, quiet=args.quiet)
+
+
+def main(args: argparse.Namespace) -> int:
+    if args.kind is None and args.model in STUDY_KINDS and not os.path.exists(args.model):
+        args.kind, args.model = args.model, None      # "thrustgraph study sweep ...": the bundled model
+    if args.plots:
+        need_matplotlib()
+    model, parsed = load_checked(args.model, args.overrides)
+    d = _definition(args, model)
+    kind = lookup(d.kind)
+    run = _run_options(args)
+    if args.summary and not kind.summary:
         raise ModelError("--summary", f"a {d.kind} has no summary table", "use --table for its designs")
     check_paths([args.table, args.summary], [args.plots])   # before the first design flies
-    run = dict(engine=engine, flights=args.flights, workers=args.workers, scheduler=args.scheduler,
-               timeout=args.wait, chunk_size=args.chunk, quiet=args.quiet)
-    from .. import studies
+    done = kind.run(model, d, run)
+    _print_study(done, d, parsed, run["engine"], args.flights)
+    table = done.table
+    nothing_flew = table.interrupted and table.counts["ok"] == 0
+    _write_results(done, args, nothing_flew)
+    cautions = parsed.cautions()
+    if cautions:
+        print()
+        print("Cautions")
+        for c in cautions:
+            print(f"  ! {c}")
+    if table.interrupted:
+        flown = len(table) - table.counts["not run"]
+        where = f"; wrote them to {args.table}" if args.table and not nothing_flew else ""
+        print(f"thrustgraph: interrupted: {flown} of {len(table)} designs were flown{where}", file=sys.stderr)
+        return exit_status()
+    return 0
 
-    summary_csv = None
-    if d.kind == "sweep":
-        if not d.vary:
-            raise ModelError("sweep", "varies no parameter", 'add --vary "components.bottle.fill=0.1..0.6 in 11"')
-        result = studies.sweep(model, d.vary, combine=d.combine, outputs=d.outputs, **run)
-        table, text = result, _sweep_text(result)
-    elif d.kind == "sensitivity":
-        result = studies.sensitivities(model, d.vary, outputs=d.outputs, step=d.step, **run)
-        table, text, summary_csv = result.table, _sensitivity_text(result), result.to_csv()
-    elif d.kind == "dispersion":
-        from ..dispersion import disperse
 
-        levels = tuple(d.extras.get("levels", (0.5, 0.95)))
-        result = disperse(model, d.spreads, samples=d.samples, seed=d.seed, outputs=d.outputs, levels=levels, **run)
-        table, text, summary_csv = result.table, result.report(), result.stats_csv()
-    else:
-        from ..optimisation import optimise
-
-        if d.objective is None:
-            raise ModelError("optimise", "has no objective", "add --maximise apogee (or --minimise OUTCOME)")
-        result = optimise(model, d.vary, d.objective, maximise=d.maximise, limits=d.limits, method=d.method,
-                          start=str(d.extras.get("start", "grid")), outputs=d.outputs, **run)
-        table, text = result.table, result.report()
+def _print_study(done: StudyRun, d: StudyDefinition, parsed: ParsedModel, engine: str, flights: str) -> None:
+    table = done.table
     print(f"thrustgraph study: {d.kind} of {parsed.model.name!r}")
     print(f"  {len(table)} designs ({table.counts['ok']} flew, {table.counts['screened']} screened) on "
-          f"{getattr(table, 'engine', '') or run['engine']}, flights {getattr(table, 'flights', '') or args.flights}")
+          f"{getattr(table, 'engine', '') or engine}, flights {getattr(table, 'flights', '') or flights}")
     print()
-    print(text)
+    print(done.text)
     screened = table.screened()
     if screened:
         print()
@@ -199,64 +199,24 @@ def main(args: argparse.Namespace) -> int:
             print(f"  design {i} ({vals}): {note}")
         if len(screened) > 8:
             print(f"  ... and {len(screened) - 8} more (see the table)")
+
+
+def _write_results(done: StudyRun, args: argparse.Namespace, nothing_flew: bool) -> None:
+    """The table, the summary and the plots: all or none; none when no design flew (an empty table must not
+    replace a good one from an earlier run)."""
     outputs: list[tuple[str, Any]] = []
-    nothing_flew = table.interrupted and table.counts["ok"] == 0
     if args.table:
-        outputs.append((args.table, table.to_csv()))
-    if args.summary and summary_csv is not None:
-        outputs.append((args.summary, summary_csv))
+        outputs.append((args.table, done.table.to_csv()))
+    if args.summary and done.summary_csv is not None:
+        outputs.append((args.summary, done.summary_csv))
     if args.plots:
         from ..studyplots import render_study_plots
 
-        outputs += render_study_plots(result, args.plots)
+        outputs += render_study_plots(done.result, args.plots)
     print()
-    if nothing_flew:   # an empty table must not replace a good one from an earlier run
-        if outputs:
-            print(f"thrustgraph: no design flew before the study was stopped: nothing was written (an existing "
-                  f"{', '.join(str(p) for p, _ in outputs[:2])}{' ...' if len(outputs) > 2 else ''} was left as "
-                  "it was)", file=sys.stderr)
-    else:
-        write_outputs(outputs, directories=[args.plots])   # the table, the summary and the plots: all or none
-    cautions = parsed.cautions()
-    if cautions:
-        print()
-        print("Cautions")
-        for c in cautions:
-            print(f"  ! {c}")
-    if table.interrupted:
-        done = len(table) - table.counts["not run"]
-        where = f"; wrote them to {args.table}" if args.table and not nothing_flew else ""
-        print(f"thrustgraph: interrupted: {done} of {len(table)} designs were flown{where}", file=sys.stderr)
-        return exit_status()
-    return 0
-
-
-def _sweep_text(table: Any) -> str:
-    lines = []
-    ok = table.ok
-    if not np.any(ok):
-        return "No design flew."
-    shown = [o for o in table.outputs if o not in ("impact_x", "impact_y", "launch_mass")][:5]
-    for o in shown:
-        v = np.where(ok, table.column(o), np.nan)
-        if not np.any(np.isfinite(v)):
-            continue
-        i = int(np.nanargmax(v))
-        spec = OUTCOMES[o]
-        best = ", ".join(p.text(table.x[i, k]) for k, p in enumerate(table.params))
-        lines.append(f"  {spec.label:<20s} {spec.shown(float(np.nanmin(v))):10.5g} .. "
-                     f"{spec.shown(float(np.nanmax(v))):10.5g} {spec.display:<6s} highest at {best}")
-    return "Outcome ranges over the designs that flew\n" + "\n".join(lines)
-
-
-def _sensitivity_text(sens: Any) -> str:
-    lines = ["Local sensitivities at the model's values (central differences, step "
-             f"{sens.steps[0] / max(abs(sens.params[0].nominal), 1e-300):.3g} of each value)", ""]
-    head = f"  {'outcome':<22s}" + "".join(f" {p.path.split('.')[-1][:16]:>17s}" for p in sens.params)
-    lines.append(head + "   (% change per 1 % change)")
-    for k, o in enumerate(sens.outputs):
-        if not np.any(np.isfinite(sens.elasticity[k])):
-            continue
-        lines.append(f"  {o:<22s}" + "".join(f" {v:17.4g}" if math.isfinite(v) else f" {'-':>17s}"
-                                               for v in sens.elasticity[k]))
-    return "\n".join(lines)
+    if not nothing_flew:
+        write_outputs(outputs, directories=[args.plots])
+    elif outputs:
+        print(f"thrustgraph: no design flew before the study was stopped: nothing was written (an existing "
+              f"{', '.join(str(p) for p, _ in outputs[:2])}{' ...' if len(outputs) > 2 else ''} was left as "
+              "it was)", file=sys.stderr)
