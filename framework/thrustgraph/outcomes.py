@@ -57,6 +57,7 @@ from scipy.optimize import brentq, minimize_scalar
 from .balance import Kinematics
 from .errors import ModelError, PluginError
 from .outcomespec import KEY_PATTERN, OutcomeSpec
+from .sampling import at_samples
 from .units import Q_
 from .vehicle import KINDS, LABELS, VehicleProfile, vehicle_profile
 
@@ -216,22 +217,28 @@ class Flight:
                 continue
             if getattr(sol, "sol", None) is None:
                 continue
-            t = sol.t
-            for k in range(len(t) - 1):
-                a, b = float(t[k]), float(t[k + 1])
-                if b <= a:
-                    continue
-                mid, half = 0.5 * (a + b), 0.5 * (b - a)
-                nodes = mid + half * _GAUSS_X
-                ys = sol.sol(nodes)
-                fg = fn = 0.0
-                for q in range(3):
-                    snap = bal.terms(float(nodes[q]), ys[:, q].tolist())
-                    tv, nv = snap["thrust"], snap["inflow"]
-                    fg += _GAUSS_W[q] * _norm3(tv)
-                    fn += _GAUSS_W[q] * _norm3((tv[0] + nv[0], tv[1] + nv[1], tv[2] + nv[2]))
-                gross += half * fg
-                net += half * fn
+            t = np.asarray(sol.t, dtype=float)
+            a, b = t[:-1], t[1:]
+            keep = b > a
+            if not keep.any():
+                continue
+            mid, half = 0.5 * (a[keep] + b[keep]), 0.5 * (b[keep] - a[keep])
+            nodes = (mid[:, None] + half[:, None] * _GAUSS_X[None, :]).ravel()
+            ys = sol.sol(nodes)
+            n = len(nodes)
+            snap = at_samples(bal, nodes, ys, "terms")
+            if snap is not None:
+                tv = [np.asarray(c, dtype=float) + np.zeros(n) for c in snap["thrust"]]
+                nv = [np.asarray(c, dtype=float) + np.zeros(n) for c in snap["inflow"]]
+            else:
+                snaps = [bal.terms(float(nodes[q]), ys[:, q].tolist()) for q in range(n)]
+                tv = [np.array([sn["thrust"][c] for sn in snaps], dtype=float) for c in range(3)]
+                nv = [np.array([sn["inflow"][c] for sn in snaps], dtype=float) for c in range(3)]
+            mag = np.sqrt(tv[0] * tv[0] + tv[1] * tv[1] + tv[2] * tv[2])
+            net_v = [tv[c] + nv[c] for c in range(3)]
+            mag_net = np.sqrt(net_v[0] * net_v[0] + net_v[1] * net_v[1] + net_v[2] * net_v[2])
+            gross += float(np.sum(half * (mag.reshape(-1, 3) @ _GAUSS_W)))
+            net += float(np.sum(half * (mag_net.reshape(-1, 3) @ _GAUSS_W)))
         return gross, net
 
     @property
@@ -295,6 +302,9 @@ def _max_speed(f: Flight) -> float:
 def _accel_steps(ph: Any, sol: Any, bal: Any) -> np.ndarray:
     if ph.kin == Kinematics.HELD:
         return np.zeros(len(sol.t))
+    d = at_samples(bal, sol.t, sol.y, "core")
+    if d is not None:
+        return np.sqrt(d[3] * d[3] + d[4] * d[4] + d[5] * d[5]) + np.zeros(len(sol.t))
     return np.array([_norm3(bal.rhs(float(sol.t[k]), sol.y[:, k])[3:6]) for k in range(len(sol.t))])
 
 
@@ -308,27 +318,32 @@ def _peak_acceleration(f: Flight) -> float:
     return f.peak(_accel_steps, _accel_dense)
 
 
-def _axial(snap: Mapping[str, Any], net: bool) -> float:
+def _axial(snap: Mapping[str, Any], net: bool) -> Any:
     """The thrust along the body axis of a :meth:`~thrustgraph.balance.Balance.terms` snapshot: gross (the
     openings' momentum flux and pressure thrust), or net (with the momentum of the entering fluid)."""
     if not net:
-        return float(snap["thrust_axial"])
+        return snap["thrust_axial"]
     tv, nv, e = snap["thrust"], snap["inflow"], snap["axis"]
-    return float((tv[0] + nv[0]) * e[0] + (tv[1] + nv[1]) * e[1] + (tv[2] + nv[2]) * e[2])
+    return (tv[0] + nv[0]) * e[0] + (tv[1] + nv[1]) * e[1] + (tv[2] + nv[2]) * e[2]
 
 
-def _side(snap: Mapping[str, Any]) -> float:
+def _side(snap: Mapping[str, Any]) -> Any:
     """The magnitude of the gross thrust across the body axis (a sideways vent's push)."""
     tv, e = snap["thrust"], snap["axis"]
-    along = float(snap["thrust_axial"])
-    return _norm3((tv[0] - along * e[0], tv[1] - along * e[1], tv[2] - along * e[2]))
+    along = snap["thrust_axial"]
+    x, y, z = tv[0] - along * e[0], tv[1] - along * e[1], tv[2] - along * e[2]
+    return np.sqrt(x * x + y * y + z * z)
 
 
-def _peak_of(f: Flight, of: Callable[[Mapping[str, Any]], float]) -> float:
-    # the balance's snapshot without the ledger (its sums are the numbers evaluate() records)
-    return f.peak(lambda ph, sol, bal: [of(bal.terms(float(sol.t[k]), sol.y[:, k].tolist()))
-                                        for k in range(len(sol.t))],
-                  lambda ph, sol, bal: (lambda t: of(bal.terms(t, sol.sol(t).tolist()))))
+def _peak_of(f: Flight, of: Callable[[Mapping[str, Any]], Any]) -> float:
+    # the balance's snapshot without the ledger (its sums are the numbers evaluate() records), over the arrays of
+    # a segment's steps where the vehicle allows it (thrustgraph.sampling)
+    def at_steps(ph: Any, sol: Any, bal: Any) -> Any:
+        snap = at_samples(bal, sol.t, sol.y, "terms")
+        if snap is not None:
+            return np.asarray(of(snap), dtype=float) + np.zeros(len(sol.t))
+        return [of(bal.terms(float(sol.t[k]), sol.y[:, k].tolist())) for k in range(len(sol.t))]
+    return f.peak(at_steps, lambda ph, sol, bal: (lambda t: float(of(bal.terms(t, sol.sol(t).tolist())))))
 
 
 def _peak_thrust(f: Flight) -> float:
