@@ -153,6 +153,7 @@ class Balance:
         self._sampler: Balance | None = None
         #: why tracing failed, per phase and request (for tests and diagnosis)
         self.untraced: dict[tuple, str] = {}
+        self._phases: dict[tuple, dict] = {}
         self.set_phase([0] * len(plan.moded) if not hasattr(system, "mode0") else list(system.mode0),
                        Kinematics.BY_MOUNT[c.mount], False)
 
@@ -166,6 +167,13 @@ class Balance:
         the segment when the vehicle comes to rest; 0 lets the friction follow the current speed (static
         friction at rest).
         """
+        if self._traceable:
+            # one design: a phase seen before is restored whole (outcomes set each segment's phase many times)
+            key = (tuple(modes), kinematics, descending, float(slide))
+            known = self._phases.get(key)
+            if known is not None:
+                self.__dict__.update(known)
+                return
         ops = self.ops
         plan = self.plan
         self.modes = list(modes)
@@ -226,12 +234,12 @@ class Balance:
         self._outlets = sorted({k for j, k in self._vessel_lines if self._live[j]})
         self._outlets_all = sorted({k for j, k in self._vessel_lines})
         self._outlets_terms = sorted({k for j, k in self._vessel_lines if self._live_terms[j]})
-        self._phase_key = (tuple(self.modes), self.kinematics, descending, self.slide) if self._traceable else None
+        self._phase_key = (tuple(self.modes), self.kinematics, descending, float(slide)) if self._traceable else None
         # this phase's straight lines by (request, number of states given): a solver without audits passes
         # the physical states alone, one with audits the accumulators too
-        made = self._lines_made
-        self._lines_now = {key[1:]: fn for key, fn in made.items()
-                           if len(key) == 3 and key[0] == self._phase_key and fn}
+        self._lines_now = self._lines_made.setdefault(("lines", self._phase_key), {})
+        if self._traceable:
+            self._phases[self._phase_key] = {k: self.__dict__[k] for k in _PHASE_ATTRIBUTES}
 
     def _start_mode(self, ln: LinePlan) -> Any:
         return self._vmode[ln.start_index] if ln.from_vessel else self._smode[ln.start_index]
@@ -280,7 +288,7 @@ class Balance:
                 fn = False
             self._lines_made[key] = fn
         if fn:
-            self._lines_now[(want, n_states)] = fn
+            self._lines_made.setdefault(("lines", self._phase_key), {})[(want, n_states)] = fn
         return fn or None
 
     def sampling_balance(self) -> "Balance | None":
@@ -791,6 +799,13 @@ class Balance:
         rec["mass_flow"] = mass_flow
         rec["ledger"] = ledger
         rec["inertia"] = (M * a[0], M * a[1], M * a[2])
+
+
+#: what :meth:`Balance.set_phase` derives from the phase (restored whole when a phase comes back)
+_PHASE_ATTRIBUTES = ("modes", "kinematics", "descending", "_bmode", "_force_fns", "_vmode", "_smode", "_jmode",
+                     "_tmode", "_emode", "_kin", "_present", "_held_only", "slide", "_idle", "_live", "_live_all",
+                     "_live_terms", "_only", "_vessel_lines", "_outlets", "_outlets_all", "_outlets_terms",
+                     "_phase_key", "_lines_now")
 
 
 class _Traced(NamedTuple):
