@@ -169,3 +169,66 @@ def test_a_vent_does_not_push_unless_it_says_where_and_a_sideways_push_is_a_side
     assert abs(side.summary["peak_thrust"]) < 1e-12
     assert side.summary["peak_side_force"] == pytest.approx(aft.summary["peak_thrust"], rel=1e-9)
     assert "peak side force" in "\n".join(summary_lines(side))
+
+
+def _interp(r, t: float, key: str) -> float:
+    return float(np.interp(t, r.t, r.signals[key]))
+
+
+def test_nozzle_regime_changes_and_separation_are_logged_where_they_happen(runs):
+    # The supersonic exit turns from under- to overexpanded where the exit pressure equals ambient, and meets the
+    # separation criterion where it falls to 0.4 of ambient (Summerfield criterion p_e < ~0.4 p_a; Sutton &
+    # Biblarz, Rocket Propulsion Elements, ch. 3; ratio from memory). The log locates both on the dense output;
+    # the exit pressure read off the output samples (0.1 s apart, linear between) agrees to 1e-4.
+    r = _run(runs, "cold-gas-track")
+    log = [e for e in r.events if e.component == "thruster"]
+    over = next(e for e in log if e.detail == "underexpanded or matched -> overexpanded")
+    sep = next(e for e in log if e.detail.endswith("-> separation criterion met"))
+    pa = 101325.0
+    assert _interp(r, over.t, "thruster.exit_pressure") == pytest.approx(pa, rel=1e-4)
+    assert _interp(r, sep.t, "thruster.exit_pressure") == pytest.approx(0.4 * pa, rel=1e-4)
+    assert over.t < sep.t
+    assert [e.t for e in r.events] == sorted(e.t for e in r.events)
+    caution = next(c for c in r.cautions if c.startswith("components.thruster:"))
+    assert "Summerfield" in caution and "Sutton & Biblarz" in caution and f"{sep.t:.4g} s" in caution
+
+
+def test_a_tank_reports_its_lowest_temperature_and_cautions_about_cold(runs):
+    r = _run(runs, "cold-gas-track")
+    low = r.summary["bottle.lowest_temperature"]
+    assert low == float(np.min(r.signals["bottle.temperature"])) and low < 244.15
+    assert any("Cold embrittlement" in c and "components.bottle" in c for c in r.cautions)
+    warm = _run(runs, "cold-gas-free-floater")          # isothermal: stays at its charge temperature
+    assert warm.summary["tank.lowest_temperature"] == pytest.approx(293.15, abs=1e-9)
+    assert not any("Cold embrittlement" in c for c in warm.cautions)
+
+
+def test_the_motion_plot_fits_the_mount(runs, stand):
+    pytest.importorskip("matplotlib")
+    from thrustgraph.plots import figure
+    boat = figure(_run(runs, "water-jet-boat"), "motion")
+    axes = boat.axes
+    assert axes[0].get_ylabel() == "distance along the track [m]"
+    acc = axes[2].lines[0].get_ydata()
+    assert acc.min() < -3.0 and acc.max() > 5.0             # decelerating while it coasts: signed, not a magnitude
+    hover = figure(_run(runs, "hose-fed-hover"), "motion")
+    assert hover.axes[0].get_ylabel() == "height [m]" and "mean height" in hover.axes[0].get_title()
+    held = tg.fly(tg.load_model(stand / "held.toml"))
+    assert held.vehicle.kind == "stand" and figure(held, "motion") is None
+    thrust = figure(_run(runs, "water-jet-boat"), "thrust")
+    labels = [ln.get_label() for ln in thrust.axes[0].lines]
+    assert any(lb.startswith("gross thrust") for lb in labels) and any(lb.startswith("net thrust") for lb in labels)
+
+
+def test_plot_and_export_take_the_same_out_dir_option_and_the_old_spelling_still_works(tmp_path, capsys):
+    pytest.importorskip("matplotlib")
+    from thrustgraph.cli import main
+    assert main(["plot", "--quiet", "--only", "mass", "--out-dir", str(tmp_path / "a")]) == 0
+    assert (tmp_path / "a" / "mass.png").exists()
+    assert "deprecated" not in capsys.readouterr().err
+    assert main(["plot", "--quiet", "--only", "mass", "--out", str(tmp_path / "b")]) == 0
+    assert (tmp_path / "b" / "mass.png").exists()
+    err = capsys.readouterr().err
+    assert "--out is deprecated" in err and "--out-dir" in err
+    assert main(["export", "--quiet", "--out-dir", str(tmp_path / "c")]) == 0
+    assert (tmp_path / "c" / "bottle-rocket.json").exists()

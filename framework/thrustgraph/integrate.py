@@ -35,6 +35,7 @@ from .outcomes import OUTCOMES, kind_outcomes, run_summary
 from .result import Audit, Event, FlightResult, Phase
 from .sampling import SampleTable, join_tables, sample_terms
 from .separation import separate
+from .signallog import signal_events
 from .staging import KINEMATIC_SIGNALS, Trigger, condition, resolve_thresholds
 from .vehicle import vehicle_profile
 from .stepguard import StepGuard
@@ -512,6 +513,7 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
     ts: list[np.ndarray] = []
     rows: list[tuple[np.ndarray, tuple[str, ...]]] = []
     tables: list[SampleTable] = []
+    pieces: list[tuple] = []
     phases: list[Phase] = []
     names: list[str] = []
     check_output_samples(float(segs.segments[-1][1].t[-1] - segs.segments[0][1].t[0]), run.output_interval)
@@ -529,6 +531,7 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
         yy[:, np.searchsorted(tt, uniq_t)] = sol.y[:, first]   # keep the solver's own points exact
         bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
         tables.append(sample_terms(bal, tt, yy))
+        pieces.append((ph, sol, bal, tt, tables[-1].values))
         ts.append(tt)
         rows.append((yy, bal.system.state_names))
         for n in bal.system.state_names:
@@ -609,7 +612,14 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
             res.summary[spec.key] = float(value)
             res.units[spec.key] = spec.unit
             res.outcome_specs[spec.key] = spec
+    logged = signal_events(pieces)
+    if logged:       # in time order, after the integrator's events of the same instant
+        res.events = sorted(list(segs.events) + logged, key=lambda e: e.t)
     res.cautions = system.parsed.cautions()
+    for n, cls in system.parsed.kinds.items():
+        for c in cls.flight_cautions(n, system.parsed.params[n], res):
+            if c not in res.cautions:
+                res.cautions.append(c)
     res.provenance = provenance(system.parsed)
     return res
 
