@@ -114,7 +114,8 @@ class OutcomeSpec:
     compute : ``compute(flight) -> float`` from the integrated solution
         (:class:`thrustgraph.outcomes.Flight`); NaN where it did not happen.
         None for a component kind's outcome (its ``summarize`` computes it).
-    applies : ``applies(system) -> bool``: which vehicles and mounts have it
+    applies : ``applies(profile) -> bool``: which vehicles and mounts have it, asked of the
+        :class:`~thrustgraph.vehicle.VehicleProfile` of the model
         (a vehicle held on a stand has no apogee)
     also : further display units shown beside ``display`` (``g0``)
     show : ``show(values) -> bool``: whether people need to see it, given every
