@@ -232,3 +232,16 @@ def test_plot_and_export_take_the_same_out_dir_option_and_the_old_spelling_still
     assert "--out is deprecated" in err and "--out-dir" in err
     assert main(["export", "--quiet", "--out-dir", str(tmp_path / "c")]) == 0
     assert (tmp_path / "c" / "bottle-rocket.json").exists()
+
+
+def test_the_pump_reports_its_operating_point(runs):
+    # A power pump above its shut-off flow gives the liquid eta P: Q dp = 0.6 x 1.5 kW (its model, docs/
+    # fluid-devices.md); the head is dp / (rho g0). Read at the last sample while it runs (19.9 s of 20 s).
+    r = _run(runs, "water-jet-boat")
+    s = r.summary
+    k = int(np.searchsorted(r.t, s["pump.operating_time"]))
+    assert s["pump.operating_time"] == pytest.approx(19.9, abs=1e-9)
+    assert s["pump.volume_flow"] == pytest.approx(r.signals["pump.mass_flow"][k] / 998.2, rel=1e-12)
+    assert s["pump.hydraulic_power"] == pytest.approx(0.6 * 1500.0, rel=1e-9)
+    assert s["pump.efficiency"] == pytest.approx(0.6, rel=1e-9) and s["pump.shaft_power"] == 1500.0
+    assert s["pump.head"] == pytest.approx(r.signals["pump.pressure_rise"][k] / (998.2 * 9.80665), rel=1e-12)
