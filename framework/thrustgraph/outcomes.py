@@ -51,8 +51,6 @@ from functools import cached_property
 from typing import Protocol, Any, Callable, Iterable, Mapping, Sequence
 
 import numpy as np
-from scipy.integrate import trapezoid
-from scipy.optimize import brentq, minimize_scalar
 
 from .balance import Kinematics
 from .errors import ModelError, PluginError
@@ -99,6 +97,10 @@ def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: f
     """Largest value of ``fun`` on [t_lo, t_hi] by a bounded scalar search, never below ``best``."""
     if not t_hi > t_lo:
         return best
+    # imported on first use, not with the module: scipy.optimize costs ~0.7 s to import, which a command that
+    # computes no outcome (`thrustgraph check`) would pay (benchmarks/cli_startup.py)
+    from scipy.optimize import minimize_scalar
+
     res = minimize_scalar(lambda t: -fun(t), bounds=(t_lo, t_hi), method="bounded",
                           options={"xatol": 1e-12 * max(1.0, abs(t_hi)) + 1e-9 * (t_hi - t_lo)})
     return max(best, -float(res.fun))
@@ -257,6 +259,8 @@ class Flight:
             k = int(hit[0])
             if k == 0 or getattr(sol, "sol", None) is None:
                 return float(sol.t[k])
+            # imported on first use, like minimize_scalar (_refine_max): scipy.optimize is slow to import
+            from scipy.optimize import brentq
             return float(brentq(lambda t: fun(sol.sol(t)) - level, float(sol.t[k - 1]), float(sol.t[k]),
                                 xtol=1e-12 * max(1.0, abs(float(sol.t[k]))), rtol=1e-13))
         return math.nan
@@ -419,6 +423,7 @@ def _mean_height(f: Flight) -> float:
     t, y = f.window_samples(HOVER_WINDOW)
     if len(t) < 2 or not t[-1] > t[0]:
         return float(y[2, -1])
+    from scipy.integrate import trapezoid      # on first use (scipy.integrate is slow to import)
     return float(trapezoid(y[2], t) / (t[-1] - t[0]))
 
 
