@@ -340,6 +340,10 @@ def _outcomes_agree(parsed, rng: np.random.Generator) -> None:
     if any(k.kind == "converging-diverging-nozzle" for k in parsed.kinds.values()) and \
             parsed.env_kinds["medium"].kind != "vacuum":
         tol = 1e-4
+    # the end of a wall-heated tank's flow is located to about 1 % (burn time, below), and the thrust of its last
+    # moments with it: total impulse 1.1e-4 apart on a stand at rtol 1e-11 (burn times 15.265 s and 15.116 s)
+    if any(getattr(q, "wall_heat_transfer_coefficient", 0.0) > 0.0 for q in parsed.params.values()):
+        tol = 5e-4
     params, x = _designs(parsed, 3, rng)
     names = list(COMPUTED)                 # the registry outcomes the ensemble computes itself
     # on a test stand only the propellant's states change, and they alone control the steps: at rtol 1e-9 the total
