@@ -160,14 +160,19 @@ def render_report(result: FlightResult, model: Model, *, parsed: Any = None, plo
     ValueError
         If the model is not the one the result was flown from.
     """
-    from . import plots as tgplots
-
     text = dumps_model(model)
     digest = hashlib.sha256(text.encode("utf-8")).hexdigest()
     prov = result.provenance or {}
     if prov.get("model_sha256") and prov["model_sha256"] != digest:
         raise ValueError("the model given is not the one this result was flown from (its SHA-256 differs); "
                          "pass the model exactly as it was flown")
+    parts = (_head(result, model) + _cautions(result) + _summary(result) + _phases_and_events(result)
+             + _audit(result) + _plots(result, model, parsed, plots, graph) + _model_text(model, text)
+             + _provenance(prov, digest))
+    return "\n".join(parts) + "\n"
+
+
+def _head(result: FlightResult, model: Model) -> list[str]:
     title = f"thrustgraph report: {model.name}"
     parts: list[str] = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
                         f"<title>{_e(title)}</title>",
@@ -180,14 +185,19 @@ def render_report(result: FlightResult, model: Model, *, parsed: Any = None, plo
     parts.append(f'<p class="outcome">Outcome: <span class="{ok}" id="outcome">{_e(result.message)}</span></p>')
     parts.append('<nav><a href="#summary">Summary</a><a href="#events">Events</a><a href="#audit">Ledger audit</a>'
                  '<a href="#plots">Plots</a><a href="#model">Model</a><a href="#provenance">Provenance</a></nav>')
+    return parts
 
-    # Cautions first: a person reads the top of a page.
-    parts.append('<section class="cautions" id="cautions"><h2>Safety cautions</h2><ul>')
+
+def _cautions(result: FlightResult) -> list[str]:
+    """Cautions first: a person reads the top of a page."""
+    parts = ['<section class="cautions" id="cautions"><h2>Safety cautions</h2><ul>']
     parts.extend(f"<li>{_e(c)}</li>" for c in result.cautions)
     parts.append("<li>Every number in this report is a prediction from a model, never a safe rating or a "
                  "guarantee. Follow the codes and licensed practice that apply where you are.</li></ul></section>")
+    return parts
 
-    # Summary.
+
+def _summary(result: FlightResult) -> list[str]:
     rows = []
     for key, value in result.summary.items():
         spec = result.outcome_specs.get(key)
@@ -198,23 +208,24 @@ def render_report(result: FlightResult, model: Model, *, parsed: Any = None, plo
             unit = _unit_text(spec.display) + "".join(f" ({_num(spec.shown(value, u), 4)} {_unit_text(u)})"
                                                       for u in spec.also)
             rows.append((spec.label, _num(spec.shown(value), 5), unit, _num(value, 9), _unit_text(spec.unit)))
-    parts.append('<section id="summary"><h2>Summary</h2>')
-    parts.append(_table(("quantity", "value", "unit", "SI value", "SI unit"), rows, numeric=(1, 3)))
-    parts.append("</section>")
+    return ['<section id="summary"><h2>Summary</h2>',
+            _table(("quantity", "value", "unit", "SI value", "SI unit"), rows, numeric=(1, 3)), "</section>"]
 
-    # Phases and events.
-    parts.append('<section id="phases"><h2>Phases</h2>')
-    parts.append(_table(("phase", "from [s]", "to [s]", "duration [s]"),
-                        [(p.name, _num(p.t_start), _num(p.t_end), _num(p.duration)) for p in result.phases],
-                        numeric=(1, 2, 3)))
-    parts.append('</section><section id="events"><h2>Event log</h2>')
-    parts.append(_table(("time [s]", "event", "component", "detail"),
-                        [(_num(e.t, 7), e.name, e.component, e.detail) for e in result.events], numeric=(0,)))
-    parts.append("</section>")
 
-    # Ledger audit.
+def _phases_and_events(result: FlightResult) -> list[str]:
+    return ['<section id="phases"><h2>Phases</h2>',
+            _table(("phase", "from [s]", "to [s]", "duration [s]"),
+                   [(p.name, _num(p.t_start), _num(p.t_end), _num(p.duration)) for p in result.phases],
+                   numeric=(1, 2, 3)),
+            '</section><section id="events"><h2>Event log</h2>',
+            _table(("time [s]", "event", "component", "detail"),
+                   [(_num(e.t, 7), e.name, e.component, e.detail) for e in result.events], numeric=(0,)),
+            "</section>"]
+
+
+def _audit(result: FlightResult) -> list[str]:
     a = result.audit
-    parts.append('<section id="audit"><h2>Ledger audit</h2>')
+    parts = ['<section id="audit"><h2>Ledger audit</h2>']
     parts.append("<p>Closure of the balance over the whole flight: mass at launch minus final mass minus the mass "
                  "expelled, and the momentum of vehicle, contents and exhaust against the impulse of the external "
                  "forces. Both should be near rounding.</p>")
@@ -230,9 +241,14 @@ def render_report(result: FlightResult, model: Model, *, parsed: Any = None, plo
                           "" if math.isnan(r["peak"]) else _num(r["peak"])) for r in ledger_audit(result)],
                         numeric=(2, 3, 4, 5, 6)))
     parts.append(f"<p>Right-hand-side evaluations: {result.nfev}; output samples: {len(result.t)}.</p></section>")
+    return parts
 
-    # Plots (rendered before anything is written).
-    parts.append('<section id="plots"><h2>Plots</h2>')
+
+def _plots(result: FlightResult, model: Model, parsed: Any, plots: Iterable[str] | None, graph: bool) -> list[str]:
+    """The plots and the component graph, rendered before anything is written, embedded as PNG."""
+    from . import plots as tgplots   # matplotlib is an optional dependency
+
+    parts = ['<section id="plots"><h2>Plots</h2>']
     figs = tgplots.figures(result, plots)
     if graph:
         parsed = parsed if parsed is not None else check_model(model)
@@ -242,19 +258,23 @@ def render_report(result: FlightResult, model: Model, *, parsed: Any = None, plo
         parts.append(f'<figure id="plot-{_e(name)}"><img alt="{_e(name)} plot" src="data:image/png;base64,{data}">'
                      f"<figcaption>{_e(PLOTS[name].caption)}</figcaption></figure>")
     parts.append("</section>")
+    return parts
 
-    # The model as flown, and provenance.
-    parts.append('<section id="model"><h2>Model</h2><p>The model exactly as flown (any parameter changed for this '
-                 f"run included){' from <code>' + _e(model.source) + '</code>' if model.source else ''}. Save it "
-                 "as a .toml file to fly it again.</p>")
-    parts.append(f"<pre>{_e(text)}</pre></section>")
+
+def _model_text(model: Model, text: str) -> list[str]:
+    """The model as flown."""
+    return ['<section id="model"><h2>Model</h2><p>The model exactly as flown (any parameter changed for this '
+            f"run included){' from <code>' + _e(model.source) + '</code>' if model.source else ''}. Save it "
+            "as a .toml file to fly it again.</p>",
+            f"<pre>{_e(text)}</pre></section>"]
+
+
+def _provenance(prov: dict[str, Any], digest: str) -> list[str]:
     prows = [("thrustgraph", prov.get("thrustgraph", "?")), ("model SHA-256", digest)]
     prows += [(f"plugin {k}", v) for k, v in prov.get("plugins", {}).items()]
     prows += _versions()
-    parts.append('<section id="provenance"><h2>Provenance</h2>')
-    parts.append(_table(("what", "version or hash"), prows))
-    parts.append("</section></body></html>")
-    return "\n".join(parts) + "\n"
+    return ['<section id="provenance"><h2>Provenance</h2>', _table(("what", "version or hash"), prows),
+            "</section></body></html>"]
 
 
 def write_report(result: FlightResult, model: Model, path: Any, **options: Any) -> None:
