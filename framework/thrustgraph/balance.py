@@ -49,7 +49,7 @@ from .errors import IntegrationError
 from .plan import ACCUMULATORS, LinePlan, Plan, build_plan
 from .straightline import TraceError, compile_function, trace_ops
 from .vectors import frame_of, solve_rank_one, to_world
-from .xp import scalar_ops
+from .xp import array_ops, scalar_ops
 
 __all__ = ["Balance", "Kinematics", "LineFlow", "ACCUMULATORS", "SINGULAR", "STRAIGHT_AFTER"]
 
@@ -150,6 +150,7 @@ class Balance:
         made = getattr(system, "straight_lines", None)
         self._lines_made: dict[tuple, Any] = made if isinstance(made, dict) else {}
         self._tracer: Balance | None = None
+        self._sampler: Balance | None = None
         #: why tracing failed, per phase and request (for tests and diagnosis)
         self.untraced: dict[tuple, str] = {}
         self.set_phase([0] * len(plan.moded) if not hasattr(system, "mode0") else list(system.mode0),
@@ -226,9 +227,10 @@ class Balance:
         self._outlets_all = sorted({k for j, k in self._vessel_lines})
         self._outlets_terms = sorted({k for j, k in self._vessel_lines if self._live_terms[j]})
         self._phase_key = (tuple(self.modes), self.kinematics, descending, self.slide) if self._traceable else None
-        self._rhs_line = self._lines_made.get((self._phase_key, "rhs")) or None
-        self._core_line = self._lines_made.get((self._phase_key, "core")) or None
-        self._seen = {"rhs": 0, "core": 0}
+        made = self._lines_made
+        self._lines_now = {w: made.get((self._phase_key, w)) or None for w in ("rhs", "core", "terms", "drives")}
+        self._rhs_line = self._lines_now["rhs"]
+        self._core_line = self._lines_now["core"]
 
     def _start_mode(self, ln: LinePlan) -> Any:
         return self._vmode[ln.start_index] if ln.from_vessel else self._smode[ln.start_index]
@@ -252,13 +254,17 @@ class Balance:
         """The general evaluator; after :data:`STRAIGHT_AFTER` calls in one phase, the phase's straight line."""
         s = _as_list(y)
         if self._phase_key is not None:
-            n = self._seen[want] = self._seen[want] + 1
+            # counted per phase across this system's flights (short bursts, such as the refinement of a peak,
+            # add up over a study's repeated flights)
+            key = ("count", self._phase_key, want)
+            n = self._lines_made[key] = self._lines_made.get(key, 0) + 1
             if n == STRAIGHT_AFTER:
                 self.straight_line(want, len(s))
         return self._solve(t, s, want)
 
     def straight_line(self, want: str, n_states: int) -> Any:
-        """The current phase's straight-line function for ``want`` ("rhs" or "core"), traced and compiled once
+        """The current phase's straight-line function for ``want`` ("rhs", "core", "terms" or "drives"), traced
+        and compiled once
         per phase (:mod:`thrustgraph.straightline`); None when this vehicle or phase cannot be traced (the
         reason is kept in :attr:`untraced`). From then on :meth:`rhs` / :meth:`core` call it."""
         key = (self._phase_key, want)
@@ -272,11 +278,27 @@ class Balance:
                 self.untraced[key] = f"{type(exc).__name__}: {exc}"
                 fn = False
             self._lines_made[key] = fn
-        if want == "rhs":
-            self._rhs_line = fn or None
-        else:
-            self._core_line = fn or None
+        self._lines_now[want] = fn or None
+        self._rhs_line = self._lines_now["rhs"]
+        self._core_line = self._lines_now["core"]
         return fn or None
+
+    def sampling_balance(self) -> "Balance | None":
+        """This vehicle's balance over numpy arrays of samples (its plan rebuilt over
+        :data:`~thrustgraph.xp.array_ops`, parameters kept as floats), for a whole segment's output samples at
+        once (:mod:`thrustgraph.sampling`); None when a kind is not written to the one-definition convention."""
+        if not self._traceable:
+            return None
+        if self._sampler is None:
+            self._sampler = self._lines_made.get(("sampler",))
+        if self._sampler is None:
+            sy = self.system
+            parsed = sy.parsed
+            plan = build_plan(parsed, parsed.params, parsed.env_params, array_ops, parsed.ambient, sy.slices,
+                              sy.moded, self.plan.constraint)
+            self._sampler = self._lines_made[("sampler",)] = Balance(_Traced(plan, getattr(sy, "mode0", ())),
+                                                                     ops=array_ops)
+        return self._sampler
 
     def _tracing_balance(self) -> "Balance":
         """This vehicle's balance over :data:`~thrustgraph.straightline.trace_ops` (its plan rebuilt with it)."""
@@ -294,7 +316,10 @@ class Balance:
         A vessel's drive is its outlet pressure with the liquid head minus ambient; an element's is the
         pressure at its inlet minus ambient.
         """
-        return self._solve(t, _as_list(y), "drives")
+        f = self._lines_now["drives"]
+        if f is not None:
+            return f(t, y)
+        return self._general(t, y, "drives")
 
     def evaluate(self, t: float, y: Any) -> dict[str, Any]:
         """Every term of the balance at one instant, as a flat dict of SI values.
@@ -311,7 +336,17 @@ class Balance:
         ``accel`` (3-vector), ``thrust`` (thrust vector), ``thrust_axial`` (its component along the body axis, the
         ``thrust`` of :meth:`evaluate`), ``mass``, ``drive`` (name -> Pa) and ``singular`` (designs whose head
         coupling has no solution)."""
-        return self._solve(t, s, "terms")
+        f = self._lines_now["terms"]
+        if f is not None:
+            return f(t, s)
+        return self._general(t, s, "terms")
+
+    def mass(self, s: Sequence[Any]) -> Any:
+        """The vehicle's mass (kg): the bodies' fixed mass and what its vessels and jets hold (needs no phase)."""
+        M = self.plan.fixed_mass
+        for fn in self._masses:
+            M = M + fn(s)
+        return M
 
     # ------------------------------------------------------------------
     def _solve(self, t: Any, s: Sequence[Any], want: str) -> Any:
@@ -328,9 +363,7 @@ class Balance:
         aft = (-e[0], -e[1], -e[2])
 
         # 1. Mass and the forces that do not depend on the acceleration.
-        M = plan.fixed_mass
-        for fn in self._masses:
-            M = M + fn(s)
+        M = self.mass(s)
         air = (rho, pa, Ta, vr[0], vr[1], vr[2], sp)
         drags = []
         Dx = Dy = Dz = 0.0
@@ -675,11 +708,15 @@ class Balance:
                 for key, val in b.fns.signals(t, s, md).items():
                     rec[f"{b.name}.{key}"] = val
         ledger.append(("vehicle", "weight", weight))
-        kin = self.kinematics
-        if kin != Kinematics.FREE:
-            ledger.append(("vehicle", f"{Kinematics.NAMES[kin]} reaction", reaction))
-            if self._friction and kin != Kinematics.HELD:
-                ledger.append(("vehicle", "friction", friction))
+        # the reaction of each constraint present (an ensemble's designs may be under several: each design's
+        # reaction is its own constraint's, zero in free flight)
+        constrained = sorted(self._present - {Kinematics.FREE})
+        for k in constrained:
+            share = reaction if len(constrained) == 1 else \
+                tuple(self.ops.where(self._kin == k, c, 0.0) for c in reaction)
+            ledger.append(("vehicle", f"{Kinematics.NAMES[k]} reaction", share))
+        if self._friction and any(k != Kinematics.HELD for k in constrained):
+            ledger.append(("vehicle", "friction", friction))
         tv = [0.0, 0.0, 0.0]
         mass_flow = 0.0
         seen = set()

@@ -33,11 +33,13 @@ from .limits import check_output_samples
 from .model import Model, ParsedModel
 from .outcomes import OUTCOMES, kind_outcomes, run_summary
 from .result import Audit, Event, FlightResult, Phase
+from .sampling import SampleTable, join_tables, sample_terms
 from .separation import separate
-from .staging import KINEMATIC_SIGNALS, Trigger, resolve_thresholds
+from .staging import KINEMATIC_SIGNALS, Trigger, condition, resolve_thresholds
 from .stepguard import StepGuard
 from .modelfile import default_model_path, dumps_model, load_model
 from .version import __version__
+from .xp import scalar_ops
 from .plugins import plugin_versions
 
 __all__ = ["integrate", "fly", "fly_segments", "provenance", "Segments", "available_signals"]
@@ -226,6 +228,7 @@ class _Flight:
             raise ModelError("launch.speed", "a vehicle held on a test stand cannot have an initial speed",
                              "set launch.speed = \"0 m/s\" or choose mount = \"guide\" or \"free\"")
         self.run = system.run
+        self.stages = system.parsed.stages   # the model's stages (a stage flying on has none of its own)
         self.rtol, self.atol, self.method, self.t_end = rtol, atol, method, t_end
         self.progress, self.dense, self.audit = progress, dense, audit
         self.triggers: list[Trigger] = list(resolve_thresholds(system.parsed.triggers, available_signals(system))) \
@@ -450,7 +453,7 @@ class _Flight:
             self._switch(tr.component, tr.mode)
             self.events.append(Event(t, tr.name, tr.component, f"mode -> {tr.mode}"))
             return False
-        stage = self.state.system.parsed.stages[tr.stage]
+        stage = self.stages[tr.stage]
         upper, uy, um, dsys, dy, dm, m_drop = separate(self.state.system, self.y, self.ph.modes, stage)
         self.segs.separations.append((t, tr.stage, dsys, dy, dm, self.ph.descending))
         self.segs.dropped_mass += m_drop
@@ -514,19 +517,11 @@ def _terminal(fn: Callable, direction: float) -> Callable:
     return fn
 
 
-def _signal_fn(bal: Balance, name: str, x0: np.ndarray, snapshot: _LastCall):
-    """Value of a named signal at (t, y) for a trigger."""
-    if name == "time":
-        return lambda t, y: t
-    if name == "altitude":
-        return lambda t, y: y[2]
-    if name == "speed":
-        return lambda t, y: math.sqrt(y[3] * y[3] + y[4] * y[4] + y[5] * y[5])
-    if name == "vertical_speed":
-        return lambda t, y: y[5]
-    if name == "distance":
-        return lambda t, y: math.sqrt((y[0] - x0[0]) ** 2 + (y[1] - x0[1]) ** 2 + (y[2] - x0[2]) ** 2)
-    return lambda t, y: snapshot(t, y).get(name, math.nan)
+def _condition_fn(tr: Trigger, x0: np.ndarray, snapshot: _LastCall) -> Callable:
+    """A trigger's condition at (t, y) (:func:`thrustgraph.staging.condition`), the balance's snapshot
+    evaluated once per state."""
+    x = (float(x0[0]), float(x0[1]), float(x0[2]))
+    return lambda t, y: condition(tr, t, y, x, snapshot, scalar_ops)
 
 
 def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: list, pending: list
@@ -559,11 +554,7 @@ def _trigger_events(bal: Balance, x0: np.ndarray, triggers: list, pending: list)
     snapshot = _LastCall(bal.evaluate)
     out = []
     for tr in triggers:
-        sig = _signal_fn(bal, tr.signal, x0, snapshot)
-
-        def tfn(t, y, sig=sig, tr=tr):
-            return sig(t, y) - tr.threshold
-        out.append((_terminal(tfn, tr.direction), _Action("trigger", tr.name, "trigger", tr)))
+        out.append((_terminal(_condition_fn(tr, x0, snapshot), tr.direction), _Action("trigger", tr.name, "trigger", tr)))
     for t_due, tr in pending:
         def due(t, y, t_due=t_due):
             return t - t_due
@@ -609,11 +600,11 @@ def _kinematic_events(system: System, ph: _Phase, x0: np.ndarray) -> list[tuple[
 @dataclass
 class _Samples:
     """The flight at its output times, segment after segment: times, states (with their names), the balance's
-    snapshot at each time, and the phases."""
+    signals and ledger at those times, and the phases."""
 
     ts: list[np.ndarray] = field(default_factory=list)
     rows: list[tuple[np.ndarray, tuple[str, ...]]] = field(default_factory=list)
-    snaps: list[dict] = field(default_factory=list)
+    tables: list[SampleTable] = field(default_factory=list)
     phases: list[Phase] = field(default_factory=list)
     names: list[str] = field(default_factory=list)
 
@@ -623,8 +614,8 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
     check_output_samples(float(segs.segments[-1][1].t[-1] - segs.segments[0][1].t[0]), run.output_interval)
     samples = _sample(segs, run.output_interval)
     t, y, names, index = _state_table(samples)
-    signals = _signals(samples.snaps)
-    ledger = _ledger(samples.snaps)
+    table = join_tables(samples.tables)
+    signals, ledger = _with_motion(table.values), table.ledger
     audit = _audit(signals, y[:, -1], index)
     res = FlightResult(t=t, y=y, state_names=tuple(names), signals=signals, ledger=ledger, phases=samples.phases,
                        events=segs.events, audit=audit, success=segs.status == 0, status=segs.status,
@@ -651,8 +642,7 @@ def _sample(segs: Segments, interval: float) -> _Samples:
         yy = sol.sol(tt) if len(tt) > len(uniq_t) else sol.y[:, first].copy()
         yy[:, np.searchsorted(tt, uniq_t)] = sol.y[:, first]   # keep the solver's own points exact
         bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
-        for k in range(len(tt)):
-            out.snaps.append(bal.evaluate(float(tt[k]), yy[:, k]))
+        out.tables.append(sample_terms(bal, tt, yy))
         out.ts.append(tt)
         out.rows.append((yy, bal.system.state_names))
         for n in bal.system.state_names:
@@ -677,23 +667,9 @@ def _state_table(samples: _Samples) -> tuple[np.ndarray, np.ndarray, list[str], 
     return t, y, names, index
 
 
-def _signals(snaps: list[dict]) -> dict[str, np.ndarray]:
-    """Every signal of the snapshots as an array (NaN where a stage does not have it), and those derived from
-    the motion: acceleration magnitude, speed, altitude, range, flight-path angle."""
-    signals: dict[str, np.ndarray] = {}
-    keys: list[str] = []
-    seen: set[str] = set()
-    for snap in snaps:
-        for k in snap:
-            if k not in seen and k not in ("ledger", "derivatives", "time"):
-                seen.add(k)
-                keys.append(k)
-    for k in keys:
-        sample = next(snap[k] for snap in snaps if k in snap)
-        if isinstance(sample, tuple):
-            signals[k] = np.array([snap.get(k, (np.nan,) * 3) for snap in snaps], dtype=float)
-        else:
-            signals[k] = np.array([snap.get(k, np.nan) for snap in snaps], dtype=float)
+def _with_motion(signals: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """The signals, and those derived from the motion: acceleration magnitude, speed, altitude, range,
+    flight-path angle."""
     signals["acceleration_magnitude"] = np.linalg.norm(signals["acceleration"], axis=1)
     signals["speed"] = np.linalg.norm(signals["velocity"], axis=1)
     signals["altitude"] = signals["position"][:, 2]
@@ -702,20 +678,6 @@ def _signals(snaps: list[dict]) -> dict[str, np.ndarray]:
     vel = signals["velocity"]
     signals["flight_path_angle"] = np.arctan2(vel[:, 2], np.hypot(vel[:, 0], vel[:, 1]))
     return signals
-
-
-def _ledger(snaps: list[dict]) -> dict[tuple[str, str], np.ndarray]:
-    """(component, term) -> the term's force at every output time, N, shape (n, 3)."""
-    keys: list[tuple[str, str]] = []
-    for snap in snaps:
-        for comp, term, _ in snap["ledger"]:
-            if (comp, term) not in keys:
-                keys.append((comp, term))
-    ledger = {key: np.zeros((len(snaps), 3)) for key in keys}
-    for i, snap in enumerate(snaps):
-        for comp, term, vec in snap["ledger"]:
-            ledger[(comp, term)][i] = vec
-    return ledger
 
 
 def _audit(signals: dict[str, np.ndarray], last: np.ndarray, index: dict[str, int]) -> Audit:
