@@ -153,6 +153,7 @@ class Balance:
         self._sampler: Balance | None = None
         #: why tracing failed, per phase and request (for tests and diagnosis)
         self.untraced: dict[tuple, str] = {}
+        self._phases: dict[tuple, dict] = {}
         self.set_phase([0] * len(plan.moded) if not hasattr(system, "mode0") else list(system.mode0),
                        Kinematics.BY_MOUNT[c.mount], False)
 
@@ -166,6 +167,13 @@ class Balance:
         the segment when the vehicle comes to rest; 0 lets the friction follow the current speed (static
         friction at rest).
         """
+        if self._traceable:
+            # one design: a phase seen before is restored whole (outcomes set each segment's phase many times)
+            key = (tuple(modes), kinematics, descending, float(slide))
+            known = self._phases.get(key)
+            if known is not None:
+                self.__dict__.update(known)
+                return
         ops = self.ops
         plan = self.plan
         self.modes = list(modes)
@@ -226,11 +234,12 @@ class Balance:
         self._outlets = sorted({k for j, k in self._vessel_lines if self._live[j]})
         self._outlets_all = sorted({k for j, k in self._vessel_lines})
         self._outlets_terms = sorted({k for j, k in self._vessel_lines if self._live_terms[j]})
-        self._phase_key = (tuple(self.modes), self.kinematics, descending, self.slide) if self._traceable else None
-        made = self._lines_made
-        self._lines_now = {w: made.get((self._phase_key, w)) or None for w in ("rhs", "core", "terms", "drives")}
-        self._rhs_line = self._lines_now["rhs"]
-        self._core_line = self._lines_now["core"]
+        self._phase_key = (tuple(self.modes), self.kinematics, descending, float(slide)) if self._traceable else None
+        # this phase's straight lines by (request, number of states given): a solver without audits passes
+        # the physical states alone, one with audits the accumulators too
+        self._lines_now = self._lines_made.setdefault(("lines", self._phase_key), {})
+        if self._traceable:
+            self._phases[self._phase_key] = {k: self.__dict__[k] for k in _PHASE_ATTRIBUTES}
 
     def _start_mode(self, ln: LinePlan) -> Any:
         return self._vmode[ln.start_index] if ln.from_vessel else self._smode[ln.start_index]
@@ -238,14 +247,14 @@ class Balance:
     # ------------------------------------------------------------------
     def rhs(self, t: float, y: Any) -> list[float]:
         """Time derivative of the flat state vector (SI): kinematics, component states, audit accumulators."""
-        f = self._rhs_line
+        f = self._lines_now.get(("rhs", len(y)))
         if f is not None:
             return f(t, y)
         return self._general(t, y, "rhs")
 
     def core(self, t: float, y: Any) -> list[float]:
         """The derivatives of the physical states alone (no audit accumulators), for runs without audits."""
-        f = self._core_line
+        f = self._lines_now.get(("core", len(y)))
         if f is not None:
             return f(t, y)
         return self._general(t, y, "core")
@@ -256,7 +265,7 @@ class Balance:
         if self._phase_key is not None:
             # counted per phase across this system's flights (short bursts, such as the refinement of a peak,
             # add up over a study's repeated flights)
-            key = ("count", self._phase_key, want)
+            key = ("count", self._phase_key, want, len(s))
             n = self._lines_made[key] = self._lines_made.get(key, 0) + 1
             if n == STRAIGHT_AFTER:
                 self.straight_line(want, len(s))
@@ -267,7 +276,7 @@ class Balance:
         and compiled once
         per phase (:mod:`thrustgraph.straightline`); None when this vehicle or phase cannot be traced (the
         reason is kept in :attr:`untraced`). From then on :meth:`rhs` / :meth:`core` call it."""
-        key = (self._phase_key, want)
+        key = (self._phase_key, want, n_states)
         fn = self._lines_made.get(key)
         if fn is None and self._phase_key is not None:
             try:
@@ -278,9 +287,8 @@ class Balance:
                 self.untraced[key] = f"{type(exc).__name__}: {exc}"
                 fn = False
             self._lines_made[key] = fn
-        self._lines_now[want] = fn or None
-        self._rhs_line = self._lines_now["rhs"]
-        self._core_line = self._lines_now["core"]
+        if fn:
+            self._lines_made.setdefault(("lines", self._phase_key), {})[(want, n_states)] = fn
         return fn or None
 
     def sampling_balance(self) -> "Balance | None":
@@ -316,7 +324,7 @@ class Balance:
         A vessel's drive is its outlet pressure with the liquid head minus ambient; an element's is the
         pressure at its inlet minus ambient.
         """
-        f = self._lines_now["drives"]
+        f = self._lines_now.get(("drives", len(y)))
         if f is not None:
             return f(t, y)
         return self._general(t, y, "drives")
@@ -336,7 +344,7 @@ class Balance:
         ``accel`` (3-vector), ``thrust`` (thrust vector), ``thrust_axial`` (its component along the body axis, the
         ``thrust`` of :meth:`evaluate`), ``mass``, ``drive`` (name -> Pa) and ``singular`` (designs whose head
         coupling has no solution)."""
-        f = self._lines_now["terms"]
+        f = self._lines_now.get(("terms", len(s)))
         if f is not None:
             return f(t, s)
         return self._general(t, s, "terms")
@@ -790,6 +798,13 @@ class Balance:
         rec["mass_flow"] = mass_flow
         rec["ledger"] = ledger
         rec["inertia"] = (M * a[0], M * a[1], M * a[2])
+
+
+#: what :meth:`Balance.set_phase` derives from the phase (restored whole when a phase comes back)
+_PHASE_ATTRIBUTES = ("modes", "kinematics", "descending", "_bmode", "_force_fns", "_vmode", "_smode", "_jmode",
+                     "_tmode", "_emode", "_kin", "_present", "_held_only", "slide", "_idle", "_live", "_live_all",
+                     "_live_terms", "_only", "_vessel_lines", "_outlets", "_outlets_all", "_outlets_terms",
+                     "_phase_key", "_lines_now")
 
 
 class _Traced(NamedTuple):
