@@ -45,7 +45,6 @@ from .plugins import plugin_versions
 __all__ = ["integrate", "fly", "fly_segments", "provenance", "Segments", "available_signals"]
 
 _KIN = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.FREE, "track": Kinematics.TRACK}
-_NOT_PROPULSIVE = ("spent", "on guide", "coast", "descent")
 
 
 def fly(model: Model | str | None = None, **overrides: Any) -> FlightResult:
@@ -90,6 +89,11 @@ def _set_segment_phase(bal: Balance, ph: _Phase, t: float, y: np.ndarray) -> Non
             v = d[3] * u[0] + d[4] * u[1] + d[5] * u[2]
         ph.slide = 1.0 if v > 0.0 else (-1.0 if v < 0.0 else 0.0)
         bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
+
+
+def _propulsive(system: System, ph: _Phase) -> bool:
+    """True when a component's current mode pushes the vehicle (a jet burning, a vessel discharging)."""
+    return any(system.modes[n][ph.modes[k]].propulsive for k, n in enumerate(system.moded))
 
 
 def _label(system: System, ph: _Phase) -> str:
@@ -297,7 +301,7 @@ class _Flight:
     def _nothing_to_fly(self) -> bool:
         """End the run (True) when nothing pushes: spent on the stand, at rest on a track, or no lift-off."""
         sysm, bal, ph, t, y = self.state.system, self.state.bal, self.ph, self.t, self.y
-        if _label(sysm, ph) not in _NOT_PROPULSIVE or self.pending:
+        if _propulsive(sysm, ph) or self.pending:
             return False
         u = np.array(sysm.guide_dir)
         if ph.kin == Kinematics.HELD:
@@ -403,7 +407,7 @@ class _Flight:
         bal.set_phase(ph.modes, ph.kin, ph.descending)
         d = bal.rhs(t, y)
         held = d[3] == 0.0 and d[4] == 0.0 and d[5] == 0.0
-        if held and _label(sysm, ph) in _NOT_PROPULSIVE and not self.pending and not self.triggers:
+        if held and not _propulsive(sysm, ph) and not self.pending and not self.triggers:
             self.segs.message = "came to rest on the track" if ph.kin == Kinematics.TRACK else \
                 "came to rest on the launch guide"
             return True

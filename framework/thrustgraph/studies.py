@@ -238,7 +238,7 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     own = isinstance(engine, str)
     eng = make_engine(eng_name, workers=workers, scheduler=scheduler, timeout=timeout) if own else engine
     task = FlightTask(model, tuple(p.path for p in params), tuple(p.unit for p in params), outputs, flights,
-                      rtol, atol, **({"token": token} if token else {}))
+                      rtol, atol, token=token or "")
     size = chunk_size or default_chunk_size(n, eng.workers, flights)
     if eng.name == "serial" and flights == "single" and chunk_size is None:
         size = min(size, 8)
