@@ -38,15 +38,7 @@ from typing import Any, Callable, Sequence
 
 from .xp import ScalarOps
 
-__all__ = ["TraceError", "Sym", "trace_ops", "compile_function", "LineCache"]
-
-
-class LineCache(dict):
-    """Compiled straight-line functions by (phase, request); pickled empty (compiled code does not travel
-    between processes: each traces its own)."""
-
-    def __reduce__(self) -> tuple:
-        return (LineCache, ())
+__all__ = ["TraceError", "Sym", "trace_ops", "compile_function"]
 
 
 class TraceError(Exception):
