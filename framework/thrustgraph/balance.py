@@ -42,7 +42,6 @@ from __future__ import annotations
 from typing import Any, NamedTuple, Sequence
 
 import numpy as np
-from scipy.optimize import brentq
 
 from .component import Flow, Outlet
 from .errors import IntegrationError
@@ -834,6 +833,10 @@ def _solve_line(ln: LinePlan, up: Outlet, pa: float, tmode: int, smodes: tuple, 
     """Mass flow through elements in series: the flow the terminal element passes at the pressure the series
     elements deliver at that same flow (scalar root). A source that fixes the flow sets it instead, and the
     pressure at the terminal element is whatever passes that flow. One design at a time (floats)."""
+    # imported when a line is first solved, not with the module: scipy.optimize costs ~0.7 s to import, which a
+    # command that solves no line (`thrustgraph check`) would pay (benchmarks/cli_startup.py)
+    from scipy.optimize import brentq
+
     flow = ln.terminal_fns.flow
 
     def after(mdot):
