@@ -271,7 +271,7 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
                          "give a header line such as \"time [s],thrust [N]\" and data rows")
     head_no, head = lines[0]
     delim = max(",;\t", key=head.count)
-    names, units = _header(head, head_no, delim, source, time_column)
+    names, units, time_column = _header(head, head_no, delim, source, time_column)
     rows = lines[1:]
     if len(rows) < 2:
         raise ModelError(source, f"the record has {len(rows)} data row(s)", "give at least two samples")
@@ -290,8 +290,10 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
                   time_column=time_column)
 
 
-def _header(head: str, head_no: int, delim: str, source: str, time_column: str) -> tuple[list[str], list[str]]:
-    """The names and units of the header line's columns; the time column must be among them, with another."""
+def _header(head: str, head_no: int, delim: str, source: str, time_column: str
+            ) -> tuple[list[str], list[str], str]:
+    """The names and units of the header line's columns, and the time column's name as written there (its case
+    may differ); the time column must be among them, with another."""
     names: list[str] = []
     units: list[str] = []
     for k, cell in enumerate(_cells(head, delim, f"{source}: line {head_no}")):
@@ -317,7 +319,7 @@ def _header(head: str, head_no: int, delim: str, source: str, time_column: str) 
                          f"{hint}name the time column \"{time_column} [s]\" or choose it with the time-column option")
     if len(names) < 2:
         raise ModelError(source, "the record has only a time column", "add the measured columns")
-    return names, units
+    return names, units, time_column
 
 
 def _numbers(rows: list[tuple[int, str]], delim: str, names: list[str], source: str) -> np.ndarray:
