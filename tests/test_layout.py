@@ -24,10 +24,11 @@ PLUGINS = ROOT / "plugins"
 #: layer -> its modules (names inside the ``thrustgraph`` package). docs/layout.md says what each holds.
 LAYERS: dict[str, tuple[str, ...]] = {
     "base": ("errors", "units", "version", "limits", "interrupts", "progress", "outputfiles", "xp"),
-    "kinds": ("parameters", "outcomespec", "component", "contract", "hookspecs", "modeldata"),
+    "kinds": ("parameters", "outcomespec", "vehicle", "component", "contract", "hookspecs", "modeldata"),
     "balance": ("plan", "balance", "vectors", "straightline", "arrayops", "sampling", "outcomes"),
     "models": ("plugins", "staging", "model", "modelfile", "designs"),
-    "flight": ("assembly", "separation", "stepguard", "integrate", "result", "arraysystem", "ensemble"),
+    "flight": ("assembly", "separation", "stepguard", "integrate", "result", "signallog", "arraysystem",
+               "ensemble"),
     "outputs": ("exportformats", "plotkinds", "plots", "studyplots", "report"),
     "measured": ("records", "compare", "calibrate"),
     "studies": ("studyspec", "studyprogress", "studyflight", "engines", "studies", "dispersion", "optimisation",

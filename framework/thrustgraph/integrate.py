@@ -35,7 +35,9 @@ from .outcomes import OUTCOMES, kind_outcomes, run_summary
 from .result import Audit, Event, FlightResult, Phase
 from .sampling import SampleTable, join_tables, sample_terms
 from .separation import separate
+from .signallog import signal_events
 from .staging import KINEMATIC_SIGNALS, Trigger, condition, resolve_thresholds
+from .vehicle import vehicle_profile
 from .stepguard import StepGuard
 from .modelfile import default_model_path, dumps_model, load_model
 from .version import __version__
@@ -412,7 +414,7 @@ class _Flight:
 
     def _on_guide_exit(self, a: _Action) -> bool:
         self.ph.kin = Kinematics.FREE
-        self.events.append(Event(self.t, "guide exit", "vehicle", f"speed {float(np.linalg.norm(self.y[3:6])):.4g} m/s"))
+        self.events.append(Event(self.t, a.name, "vehicle", f"speed {float(np.linalg.norm(self.y[3:6])):.4g} m/s"))
         return False
 
     def _on_apogee(self, a: _Action) -> bool:
@@ -594,8 +596,10 @@ def _trigger_events(bal: Balance, x0: np.ndarray, triggers: list, pending: list)
 def _kinematic_events(system: System, ph: _Phase, x0: np.ndarray) -> list[tuple[Callable, _Action]]:
     u = system.guide_dir
     out = []
+    profile = vehicle_profile(system.parsed)
     if ph.kin == Kinematics.GUIDE:
-        # 1 nm beyond the guide's end, so that a zero-length guide (a pad) holds the vehicle until it moves
+        # 1 nm beyond the guide's end, so that a zero-length guide (a pad) holds the vehicle until it moves; leaving
+        # a pad is a lift-off, not the exit of a guide (whose speed would be that of the first nanometre)
         L = system.launch.guide_length + 1e-9
 
         def guide(t, y):
@@ -604,7 +608,7 @@ def _kinematic_events(system: System, ph: _Phase, x0: np.ndarray) -> list[tuple[
         # sliding back down the guide stops at its foot (1 nm below it, so a vehicle resting there does not fire)
         def foot(t, y):
             return (y[0] - x0[0]) * u[0] + (y[1] - x0[1]) * u[1] + (y[2] - x0[2]) * u[2] + 1e-9
-        out.append((_terminal(guide, 1.0), _Action("guide", "guide exit", "vehicle")))
+        out.append((_terminal(guide, 1.0), _Action("guide", "guide exit" if profile.guided else "lift-off", "vehicle")))
         out.append((_terminal(foot, -1.0), _Action("foot", "back at the guide foot", "vehicle")))
     if ph.kin in (Kinematics.TRACK, Kinematics.GUIDE) and ph.slide != 0.0:
         # sliding: the segment ends where the speed along the guide or track reaches zero (kinetic friction
@@ -613,7 +617,8 @@ def _kinematic_events(system: System, ph: _Phase, x0: np.ndarray) -> list[tuple[
             return rest_value(y[3] * u[0] + y[4] * u[1] + y[5] * u[2], way)
         out.append((_terminal(rest, -ph.slide), _Action("rest", "came to rest", "vehicle")))
     if ph.kin == Kinematics.FREE and system.gravity(float(x0[2])) > 0.0:
-        if not ph.descending:
+        # a hover rig settles and bobs on its feed: it has a highest point (an outcome), no apogee to mark
+        if not ph.descending and profile.kind != "hovering":
             def apogee(t, y):
                 return y[5]
             out.append((_terminal(apogee, -1.0), _Action("apogee", "apogee", "vehicle")))
@@ -634,6 +639,7 @@ class _Samples:
     ts: list[np.ndarray] = field(default_factory=list)
     rows: list[tuple[np.ndarray, tuple[str, ...]]] = field(default_factory=list)
     tables: list[SampleTable] = field(default_factory=list)
+    pieces: list[tuple] = field(default_factory=list)   # (phase, solution, balance, times, signals) per segment
     phases: list[Phase] = field(default_factory=list)
     names: list[str] = field(default_factory=list)
 
@@ -645,12 +651,20 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
     t, y, names, index = _state_table(samples)
     table = join_tables(samples.tables)
     signals, ledger = _with_motion(table.values), table.ledger
+    _with_net_thrust(signals, ledger)
     audit = _audit(signals, y[:, -1], index)
     res = FlightResult(t=t, y=y, state_names=tuple(names), signals=signals, ledger=ledger, phases=samples.phases,
                        events=segs.events, audit=audit, success=segs.status == 0, status=segs.status,
                        message=segs.message, nfev=segs.nfev)
     _summarise(res, system, segs)
+    logged = signal_events(samples.pieces)
+    if logged:       # in time order, after the integrator's events of the same instant
+        res.events = sorted(list(segs.events) + logged, key=lambda e: e.t)
     res.cautions = system.parsed.cautions()
+    for n, cls in system.parsed.kinds.items():
+        for c in cls.flight_cautions(n, system.parsed.params[n], res):
+            if c not in res.cautions:
+                res.cautions.append(c)
     res.provenance = provenance(system.parsed)
     return res
 
@@ -672,6 +686,7 @@ def _sample(segs: Segments, interval: float) -> _Samples:
         yy[:, np.searchsorted(tt, uniq_t)] = sol.y[:, first]   # keep the solver's own points exact
         bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
         out.tables.append(sample_terms(bal, tt, yy))
+        out.pieces.append((ph, sol, bal, tt, out.tables[-1].values))
         out.ts.append(tt)
         out.rows.append((yy, bal.system.state_names))
         for n in bal.system.state_names:
@@ -706,7 +721,22 @@ def _with_motion(signals: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
                                 signals["position"][:, 1] - signals["position"][0, 1])
     vel = signals["velocity"]
     signals["flight_path_angle"] = np.arctan2(vel[:, 2], np.hypot(vel[:, 0], vel[:, 1]))
+    # along the path: the rate of change of the speed (negative when slowing down); along the body axis at rest
+    way = np.where(signals["speed"][:, None] > 0.0, vel / np.maximum(signals["speed"], 1e-300)[:, None],
+                   signals["axis"])
+    signals["path_acceleration"] = np.einsum("ij,ij->i", signals["acceleration"], way)
     return signals
+
+
+def _with_net_thrust(signals: dict[str, np.ndarray], ledger: dict[tuple[str, str], np.ndarray]) -> None:
+    """Net thrust: the ledger's thrust terms of every opening (momentum flux, pressure thrust: the gross thrust)
+    with the momentum of the fluid entering through sources (an inlet's ram drag, a hose's inflow)."""
+    inflow = np.zeros_like(signals["thrust_vector"])
+    for (comp, term), vec in ledger.items():
+        if term == "inflow momentum":
+            inflow = inflow + vec
+    signals["net_thrust_vector"] = signals["thrust_vector"] + inflow
+    signals["net_thrust"] = np.einsum("ij,ij->i", signals["net_thrust_vector"], signals["axis"])
 
 
 def _audit(signals: dict[str, np.ndarray], last: np.ndarray, index: dict[str, int]) -> Audit:
@@ -739,6 +769,7 @@ def _summarise(res: FlightResult, system: System, segs: Segments) -> None:
     for n, cls in system.parsed.kinds.items():
         for key, u in cls.signal_units.items():
             res.units[f"{n}.{key}"] = u
+    res.vehicle = vehicle_profile(system.parsed)
     res.summary = run_summary(system, segs)
     res.outcome_specs = {k: OUTCOMES[k] for k in res.summary}
     declared = kind_outcomes(system.parsed.kinds)

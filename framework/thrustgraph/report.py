@@ -205,9 +205,10 @@ def _summary(result: FlightResult) -> list[str]:
             unit = result.unit(key)
             rows.append((key, _num(value, 5), _unit_text(unit), _num(value, 9), _unit_text(unit)))
         elif spec.show(result.summary):
-            unit = _unit_text(spec.display) + "".join(f" ({_num(spec.shown(value, u), 4)} {_unit_text(u)})"
-                                                      for u in spec.also)
-            rows.append((spec.label, _num(spec.shown(value), 5), unit, _num(value, 9), _unit_text(spec.unit)))
+            shown = spec.unit_for(value)      # scaled to the value's magnitude (g / kg / t)
+            unit = _unit_text(shown) + "".join(f" ({_num(spec.shown(value, u), 4)} {_unit_text(u)})"
+                                               for u in spec.also)
+            rows.append((spec.label, _num(spec.shown(value, shown), 5), unit, _num(value, 9), _unit_text(spec.unit)))
     return ['<section id="summary"><h2>Summary</h2>',
             _table(("quantity", "value", "unit", "SI value", "SI unit"), rows, numeric=(1, 3)), "</section>"]
 
