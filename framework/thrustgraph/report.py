@@ -26,7 +26,7 @@ import html
 import math
 import platform
 import string
-from importlib import metadata, resources
+from importlib import metadata
 from typing import Any, Iterable
 
 import numpy as np
@@ -78,12 +78,52 @@ class _Escaped(dict):
         return value if isinstance(value, Html) else _e(value)
 
 
-# The page, with a $name for each value (string.Template; report.html beside this module), in place of the string
-# appends that built it: the same bytes for every bundled model, in the same time (5.65 against 5.47 ms of CPU per
-# page without figures, interleaved medians). A template engine (Jinja2) would add a dependency and escape quotes as
-# &#34; and &#39; where reports have always had &quot; and &#x27; (every page's bytes would change), for no more
-# than the escaping by default that _Escaped gives here.
-_PAGE = string.Template(resources.files(__package__).joinpath("report.html").read_text(encoding="utf-8"))
+# The page, with a $name for each value (string.Template; a backslash ends a source line, not a line of the page), in
+# place of the string appends that built it: the same bytes for every bundled model, in the same time (5.65 against
+# 5.47 ms of CPU per page without figures, interleaved medians). A template engine (Jinja2) would add a dependency and
+# escape quotes as &#34; and &#39; where reports have always had &quot; and &#x27; (every page's bytes would change),
+# for no more than the escaping by default that _Escaped gives here.
+_PAGE = string.Template("""\
+<!DOCTYPE html>
+<html lang="en"><head><meta charset="utf-8">
+<title>$title</title>
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<style>$css</style></head><body>
+<h1>$name</h1>
+${lead}<p class="outcome">Outcome: <span class="$ok" id="outcome">$message</span></p>
+<nav><a href="#summary">Summary</a><a href="#events">Events</a><a href="#audit">Ledger audit</a>\
+<a href="#plots">Plots</a><a href="#model">Model</a><a href="#provenance">Provenance</a></nav>
+<section class="cautions" id="cautions"><h2>Safety cautions</h2><ul>
+${cautions}\
+<li>Every number in this report is a prediction from a model, never a safe rating or a guarantee. Follow the\
+ codes and licensed practice that apply where you are.</li></ul></section>
+<section id="summary"><h2>Summary</h2>
+$summary
+</section>
+<section id="phases"><h2>Phases</h2>
+$phases
+</section><section id="events"><h2>Event log</h2>
+$events
+</section>
+<section id="audit"><h2>Ledger audit</h2>
+<p>Closure of the balance over the whole flight: mass at launch minus final mass minus the mass expelled, and\
+ the momentum of vehicle, contents and exhaust against the impulse of the external forces. Both should be\
+ near rounding.</p>
+$closure
+<p>Impulse of every term of the balance (the integral of its force over the flight). The sum of the terms\
+ equals the integral of mass times acceleration.</p>
+$impulses
+<p>Right-hand-side evaluations: $nfev; output samples: $samples.</p></section>
+<section id="plots"><h2>Plots</h2>
+${figures}</section>
+<section id="model"><h2>Model</h2>\
+<p>The model exactly as flown (any parameter changed for this run included)${source}. Save it as a .toml file\
+ to fly it again.</p>
+<pre>$text</pre></section>
+<section id="provenance"><h2>Provenance</h2>
+$provenance
+</section></body></html>
+""")
 
 
 def _num(x: float, digits: int = 6) -> str:
