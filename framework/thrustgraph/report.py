@@ -237,9 +237,10 @@ def render_report(result: FlightResult, model: Model, *, parsed: Any = None, plo
             unit = result.unit(key)
             rows.append((key, _num(value, 5), _unit_text(unit), _num(value, 9), _unit_text(unit)))
         elif spec.show(result.summary):
-            unit = _unit_text(spec.display) + "".join(f" ({_num(spec.shown(value, u), 4)} {_unit_text(u)})"
-                                                      for u in spec.also)
-            rows.append((spec.label, _num(spec.shown(value), 5), unit, _num(value, 9), _unit_text(spec.unit)))
+            shown = spec.unit_for(value)      # scaled to the value's magnitude (g / kg / t)
+            unit = _unit_text(shown) + "".join(f" ({_num(spec.shown(value, u), 4)} {_unit_text(u)})"
+                                               for u in spec.also)
+            rows.append((spec.label, _num(spec.shown(value, shown), 5), unit, _num(value, 9), _unit_text(spec.unit)))
     a = result.audit
     m_res = math.sqrt(sum(c * c for c in a.momentum_residual))
     # Plots (rendered before anything is written).

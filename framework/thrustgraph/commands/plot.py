@@ -11,7 +11,7 @@ from pathlib import Path
 
 from . import SUMMARIES
 from ..plotkinds import FLIGHT, IMAGE_FORMATS, names
-from .common import add_model_argument, add_set_option
+from .common import add_model_argument, add_out_dir_option, add_set_option
 from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
 
 NAME = "plot"
@@ -21,7 +21,7 @@ HELP = SUMMARIES[NAME]
 def add_arguments(p: argparse.ArgumentParser) -> None:
     add_model_argument(p)
     add_set_option(p)
-    p.add_argument("--out", metavar="DIR", help="directory for the images (default: STEM-plots)")
+    add_out_dir_option(p, "directory for the images (default: STEM-plots)", old="--out")
     p.add_argument("--format", choices=IMAGE_FORMATS + ("both",), default="png",
                    help=f"image format: {', '.join(IMAGE_FORMATS)} or both (default png)")
     p.add_argument("--only", action="append", choices=names(FLIGHT), metavar="PLOT",
@@ -32,7 +32,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 def main(args: argparse.Namespace) -> int:
     need_matplotlib()
     model, parsed = load_checked(args.model, args.overrides)
-    out = Path(args.out) if args.out else Path(f"{default_stem(model)}-plots")
+    out = Path(args.out_dir) if args.out_dir else Path(f"{default_stem(model)}-plots")
     check_paths(directories=[out])   # before flying
     result = fly_model(parsed, quiet=args.quiet)
     from ..plots import figures, render

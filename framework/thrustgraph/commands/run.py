@@ -27,7 +27,8 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 
 
 def summary_lines(r: FlightResult, keys: Sequence[str] | None = None) -> list[str]:
-    """One line per summary entry people need to see: label, value in its display unit (and in ``also`` units).
+    """One line per summary entry people need to see: label, value in its display unit scaled to its magnitude
+    (:meth:`~thrustgraph.outcomespec.OutcomeSpec.unit_for`; and in ``also`` units).
 
     Labels and units come from the outcome registry (``r.outcome_specs``); an
     entry whose ``show`` predicate says it adds nothing (a downrange equal to
@@ -42,8 +43,9 @@ def summary_lines(r: FlightResult, keys: Sequence[str] | None = None) -> list[st
             v = r.summary[key]
             extra = ", ".join(f"{spec.shown(v, u):.4g} {u}" for u in spec.also)
             extra = f"   ({extra})" if extra else ""
-            unit = f" {spec.display}" if spec.display else ""
-            lines.append(f"  {spec.label:<32s} {spec.shown(v):12.5g}{unit}{extra}")
+            shown = spec.unit_for(v)          # the display unit that suits the value (g / kg / t)
+            unit = f" {shown}" if shown else ""
+            lines.append(f"  {spec.label:<32s} {spec.shown(v, shown):12.5g}{unit}{extra}")
     return lines
 
 
