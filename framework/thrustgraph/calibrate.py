@@ -43,6 +43,7 @@ import datetime as _dt
 import difflib
 import json
 import math
+import sys
 from dataclasses import dataclass, field, replace
 from typing import Any, Callable, Sequence, TextIO
 
@@ -50,7 +51,7 @@ import numpy as np
 from scipy.optimize import least_squares
 from scipy.stats import t as student_t
 
-from .progress import Progress
+from .progress import is_terminal, line
 from .errors import IntegrationError, ModelError
 from .model import LAUNCH_SPECS, Model, parse_model
 from .outputfiles import atomic_write
@@ -242,10 +243,11 @@ class FittedValue:
         return _text_delta(dx, self.si_unit, self.unit)
 
 
-class ProgressLine(Progress):
+class ProgressLine:
     """A one-line progress display on stderr, rewritten in place; silent unless stderr is a terminal.
 
     Calibration has no known total, so it shows counts and the residual; the last line stays on screen.
+    The drawing is tqdm's, as for every indicator (:mod:`thrustgraph.progress`).
 
     >>> import io
     >>> p = ProgressLine(io.StringIO())   # not a terminal: prints nothing
@@ -254,17 +256,26 @@ class ProgressLine(Progress):
     """
 
     def __init__(self, stream: TextIO | None = None, *, enabled: bool | None = None) -> None:
-        super().__init__("calibrating", stream=stream, enabled=enabled)
+        self.stream = stream if stream is not None else sys.stderr
+        self.enabled = is_terminal(self.stream) if enabled is None else enabled
+        self.now: dict[str, Any] = {}
+        self.bar: Any = None
 
-    def __call__(self, evaluations: int, runs: int, cost: float) -> None:  # type: ignore[override]
-        if self.enabled:
-            self._write(f"calibrating: evaluation {evaluations}, {runs} model runs, residual {cost:.6g}")
+    def __call__(self, evaluations: int, runs: int, cost: float) -> None:
+        if not self.enabled:
+            return
+        self.now = {"evaluations": evaluations, "runs": runs, "cost": cost}
+        if self.bar is None:   # drawn at once, as every evaluation after it
+            self.bar = line(self.stream, lambda d: self.now, total=None, leave=True, mininterval=0.0,
+                            bar_format="calibrating: evaluation {evaluations}, {runs} model runs, residual {cost:.6g}")
+        else:
+            self.bar.refresh()
 
     def close(self) -> None:
-        if self.enabled and self._shown:
-            self.stream.write("\n")
-            self.stream.flush()
-            self._shown = 0
+        """End the line (it stays on screen)."""
+        if self.bar is not None:
+            self.bar.close()
+            self.bar = None
 
 
 @dataclass(frozen=True)

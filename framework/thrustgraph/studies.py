@@ -34,6 +34,7 @@ Examples
 
 from __future__ import annotations
 
+import csv
 import io
 import itertools
 import math
@@ -150,15 +151,12 @@ class DesignTable:
             buf.write(f"# interrupted: {len(self) - c['not run']} of {len(self)} designs were flown before the "
                       "study was stopped; the rest are marked 'not run'\n")
         heads = ["design", "status"] + [p.header for p in self.params] + [OUTCOMES[o].header for o in self.outputs]
-        buf.write(",".join(heads + ["note"]) + "\n")
+        rows = csv.writer(buf, lineterminator="\n")   # quotes a cell only when it must (a note with a comma)
+        rows.writerow(heads + ["note"])
         shown = [np.atleast_1d(p.shown(self.x[:, j])) for j, p in enumerate(self.params)]
         for i in range(len(self)):
-            cells = [str(i), str(self.status[i])]
-            cells += [_fmt(col[i]) for col in shown]
-            cells += [_fmt(v) for v in self.values[i]]
-            note = self.notes[i].replace('"', "'")
-            cells.append(f'"{note}"' if ("," in note or "\n" in note) else note)
-            buf.write(",".join(cells) + "\n")
+            rows.writerow([str(i), str(self.status[i]), *(_fmt(col[i]) for col in shown),
+                           *(_fmt(v) for v in self.values[i]), self.notes[i]])
         return buf.getvalue()
 
     def write_csv(self, path: str | os.PathLike[str]) -> None:
@@ -435,15 +433,16 @@ class Sensitivity:
         buf.write("# thrustgraph local sensitivities (finite differences at the model's values)\n")
         for k, v in self.table.info.items():
             buf.write(f"# {k}: {v}\n")
-        buf.write("output,parameter,output value,output unit,parameter value,parameter unit,derivative per "
-                  "parameter unit,elasticity [1],step,scheme\n")
+        rows = csv.writer(buf, lineterminator="\n")
+        rows.writerow(["output", "parameter", "output value", "output unit", "parameter value", "parameter unit",
+                       "derivative per parameter unit", "elasticity [1]", "step", "scheme"])
         for k, o in enumerate(self.outputs):
             for j, p in enumerate(self.params):
-                buf.write(",".join([o, p.path, _fmt(self.nominal[k]), OUTCOMES[o].unit or "1",
-                                    _fmt(float(p.shown(p.nominal))), p.unit or "1",
-                                    _fmt(self.derivative[k, j] * _unit_size(p)), _fmt(self.elasticity[k, j]),
-                                    _fmt(float(p.shown(p.nominal + self.steps[j])) - float(p.shown(p.nominal))),
-                                    self.scheme[j]]) + "\n")
+                rows.writerow([o, p.path, _fmt(self.nominal[k]), OUTCOMES[o].unit or "1",
+                               _fmt(float(p.shown(p.nominal))), p.unit or "1",
+                               _fmt(self.derivative[k, j] * _unit_size(p)), _fmt(self.elasticity[k, j]),
+                               _fmt(float(p.shown(p.nominal + self.steps[j])) - float(p.shown(p.nominal))),
+                               self.scheme[j]])
         return buf.getvalue()
 
     def write_csv(self, path: str | os.PathLike[str]) -> None:
