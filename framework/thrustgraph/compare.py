@@ -84,11 +84,8 @@ def signal_series(result: FlightResult, name: str) -> np.ndarray:
 
 
 def signal_unit(result: FlightResult, name: str) -> str:
-    """SI unit of a (possibly component) signal name."""
-    base, _, comp = name.rpartition(".")
-    if comp in ("x", "y", "z") and base in result.signals:
-        return result.unit_of(base)
-    return result.unit_of(name)
+    """SI unit of a (possibly component) signal name, as the result declares it."""
+    return result.unit(name)
 
 
 def _check_map(record: Record, result: FlightResult, cmap: ColumnMap) -> None:
@@ -310,14 +307,17 @@ def match(result: FlightResult, record: Record, mapping: Sequence[ColumnMap], *,
     lo, hi = window(record, result, start, end, mapping)
     eps = 1e-9 * max(1.0, abs(hi))
     keep = (record.time >= lo - eps) & (record.time <= hi + eps)
-    if keep.sum() < 2:
-        raise ModelError(f"{record.source}: comparison window", f"fewer than two samples between {lo:.6g} s and "
-                         f"{hi:.6g} s", "widen the window or log faster")
-    ts = record.time[keep]
-    edges = _edges(ts)
-    edges[0] = max(edges[0], lo)
+    # a saved prediction repeats a time at a phase boundary: its value after the boundary stands for the sample
+    keep &= np.append(np.diff(record.time) > 0.0, True)
     out = []
     for cmap in mapping:
+        here = keep & ~np.isnan(record.column(cmap.column))   # a saved prediction's nan: no value there
+        if here.sum() < 2:
+            raise ModelError(f"{record.source}: comparison window", f"fewer than two samples of column "
+                             f"{cmap.column!r} between {lo:.6g} s and {hi:.6g} s", "widen the window or log faster")
+        ts = record.time[here]
+        edges = _edges(ts)
+        edges[0] = max(edges[0], lo)
         y = signal_series(result, cmap.signal)
         ybad = ~np.isfinite(y)
         if np.any(ybad & (result.t <= hi)):
@@ -325,7 +325,7 @@ def match(result: FlightResult, record: Record, mapping: Sequence[ColumnMap], *,
             raise ModelError(f"signal {cmap.signal!r}", f"has no value at t = {result.t[k]:.6g} s "
                              f"(phase {result.phase_at(float(result.t[k]))!r})",
                              "compare a signal the model defines over the whole window, or shorten the window")
-        meas = measured_values(record, cmap, result)[keep]
+        meas = measured_values(record, cmap, result)[here]
         pred = interval_means(result.t, y, edges)
         out.append(Matched(cmap=cmap, unit=signal_unit(result, cmap.signal), t=ts, measured=meas, predicted=pred,
                            t_model=result.t, y_model=y, start=lo, end=hi))

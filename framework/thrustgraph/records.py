@@ -9,6 +9,18 @@ registry of :mod:`thrustgraph.units`, so ``psi``, ``lbf``, ``ft``, ``kPa``,
 ``[1]``. Lines starting with ``#`` are notes and are skipped; the delimiter is
 a comma, a semicolon or a tab.
 
+A column of words rather than numbers (a logger's state, a note) is marked
+``[text]``; its cells are kept as written in :attr:`Record.labels`.
+
+thrustgraph reads its own CSV export the same way (:meth:`FlightResult.to_csv
+<thrustgraph.result.FlightResult.to_csv>`: every header carries its unit, the
+phase is a ``[text]`` column). A file whose first line is the export's
+provenance line ``# thrustgraph VERSION`` is read as a saved prediction
+(:attr:`Record.exported`): a time may repeat there (the values just before
+and just after a phase boundary), a value may be ``nan`` (a signal
+with no value in that phase), and its ``#`` lines are kept in
+:attr:`Record.notes`. A measured record gets neither allowance.
+
 A :class:`Record` is immutable: :func:`resample`, :func:`lowpass`,
 :func:`shift`, :func:`trim` and :func:`align` return new records and append a
 line to its ``history``. Times are kept in the model's clock once the record
@@ -53,11 +65,12 @@ from typing import Any, Sequence
 import numpy as np
 
 from .errors import ModelError
+from .result import TEXT_UNIT
 from .units import Q_, to_si
 
 __all__ = ["Record", "ColumnMap", "Trigger", "read_record", "loads_record", "parse_header", "resample",
            "lowpass", "shift", "trim", "align", "trigger_time", "crossing_time", "is_even", "MAX_HEADER_CELL",
-           "MIN_SAMPLE_INTERVAL"]
+           "MIN_SAMPLE_INTERVAL", "EXPORT_MARK"]
 
 #: The longest header cell read, characters: a name and a unit ("bottle pressure [psi]"), not a document.
 MAX_HEADER_CELL = 200
@@ -65,6 +78,8 @@ MAX_HEADER_CELL = 200
 #: (common practice, no source); closer times are a unit slip (ms written as s) or corrupt data.
 MIN_SAMPLE_INTERVAL = 1e-9
 
+#: The first line of a thrustgraph export (its provenance): what marks a file as a saved prediction.
+EXPORT_MARK = re.compile(r"^#\s*thrustgraph\s+\S+\s*$")
 _HEADER = re.compile(r"^\s*(?P<name>[^\[\]]*?)\s*\[(?P<unit>[^\[\]]*)\]\s*$")
 _PLAIN = ("", "1", "-")
 _DIM_REFERENCE = (("N", "force"), ("Pa", "pressure"), ("m", "length"), ("s", "time"), ("kg", "mass"),
@@ -101,6 +116,9 @@ class Record:
     time_column : name of the time column in the file
     offset : file time of the model's t = 0, s (``time = file time - offset``)
     history : what was done to the record since it was read, in order
+    labels : column name -> (n,) cells of a ``[text]`` column, as written
+    notes : the file's ``#`` lines (without the ``#``), in order
+    exported : True for a thrustgraph export read back (a saved prediction, not a measurement)
     """
 
     source: str
@@ -112,6 +130,9 @@ class Record:
     time_column: str = "time"
     offset: float = 0.0
     history: tuple[str, ...] = field(default=())
+    labels: dict[str, tuple[str, ...]] = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
+    exported: bool = False
 
     def column(self, name: str) -> np.ndarray:
         """SI values of a column; a wrong name gets the closest one suggested."""
@@ -216,6 +237,8 @@ def parse_header(cell: str, *, where: str) -> tuple[str, str]:
     ('pressure', 'psi')
     >>> parse_header("ratio [1]", where="x.csv")
     ('ratio', '')
+    >>> parse_header("phase [text]", where="x.csv")
+    ('phase', 'text')
     """
     m = _HEADER.match(cell)
     if not m or not m.group("name"):
@@ -225,6 +248,8 @@ def parse_header(cell: str, *, where: str) -> tuple[str, str]:
     name, unit = m.group("name"), m.group("unit").strip()
     if unit in _PLAIN:
         return name, ""
+    if unit == TEXT_UNIT:
+        return name, TEXT_UNIT
     chained = re.search(r"(\*\*|\^)\s*\(?\s*[-+]?[\d.]+\s*\)?\s*(\*\*|\^)", unit)   # a**b**c
     if re.search(r"\d{7,}", unit) or chained or any(
             int(p) > 12 for p in re.findall(r"(?:\*\*|\^)\s*\(?\s*[-+]?(\d+)", unit)):
@@ -260,7 +285,11 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
     """Read a record from CSV text; every error names ``source``, the column and the line."""
     if sha256 is None:
         sha256 = hashlib.sha256(text.encode("utf-8")).hexdigest()
-    lines = [(k, line) for k, line in enumerate(text.splitlines(), start=1)
+    all_lines = text.splitlines()
+    notes = tuple(line.strip()[1:].strip() for line in all_lines if line.lstrip().startswith("#"))
+    first = next((line.strip() for line in all_lines if line.strip()), "")
+    exported = bool(EXPORT_MARK.match(first))
+    lines = [(k, line) for k, line in enumerate(all_lines, start=1)
              if line.strip() and not line.lstrip().startswith("#")]
     if not lines:
         raise ModelError(source, "the record is empty",
@@ -291,7 +320,10 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
     rows = lines[1:]
     if len(rows) < 2:
         raise ModelError(source, f"the record has {len(rows)} data row(s)", "give at least two samples")
+    tj = names.index(time_column)
     raw = np.empty((len(rows), len(names)))
+    words = [j for j, u in enumerate(units) if u == TEXT_UNIT]
+    cells: dict[int, list[str]] = {j: [] for j in words}
     gaps: dict[int, list[int]] = {}
     for i, (line_no, line) in enumerate(rows):
         vals = _cells(line, delim, f"{source}: line {line_no}")
@@ -300,6 +332,13 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
                              f"{len(names)} columns", "give one value per column on every line")
         for j, v in enumerate(vals):
             v = v.strip()
+            if j in cells:
+                cells[j].append(v)
+                raw[i, j] = math.nan
+                continue
+            if exported and v.lower() == "nan" and j != tj:     # a signal with no value in this phase
+                raw[i, j] = math.nan
+                continue
             if v == "" or v.lower() in ("nan", "na", "n/a", "null", "none"):
                 gaps.setdefault(j, []).append(line_no)
                 raw[i, j] = math.nan
@@ -320,21 +359,23 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
         raise ModelError(where, f"has {len(gaps[j])} missing value(s) (empty or NaN), the first here",
                          "fill the gap from the logger's raw data or cut the record before it; thrustgraph does not "
                          "guess missing samples")
-    tj = names.index(time_column)
-    if dimension_name(units[tj]) != "time":
+    if units[tj] == TEXT_UNIT or dimension_name(units[tj]) != "time":
         raise ModelError(f"{source}: column {time_column!r}", f"the time column is in [{units[tj] or '1'}], "
-                         f"a {dimension_name(units[tj])}",
+                         f"a {'text' if units[tj] == TEXT_UNIT else dimension_name(units[tj])}",
                          f'write its unit as a time, e.g. "{time_column} [s]" or [ms]')
     columns: dict[str, np.ndarray] = {}
     unit_of: dict[str, str] = {}
     si_of: dict[str, str] = {}
+    labels = {names[j]: tuple(c) for j, c in cells.items()}
     time = None
     for j, (name, unit) in enumerate(zip(names, units)):
+        if j in cells:
+            continue
         with np.errstate(over="ignore", invalid="ignore"):
             q = Q_(raw[:, j], unit).to_base_units() if unit else Q_(raw[:, j], "")
             values = np.asarray(q.magnitude, dtype=float)
-        if not np.all(np.isfinite(values)):
-            i = int(np.argmax(~np.isfinite(values)))
+        if not np.all(np.isfinite(values) | np.isnan(raw[:, j])):
+            i = int(np.argmax(~np.isfinite(values) & ~np.isnan(raw[:, j])))
             raise ModelError(f"{source}: column {name!r}, line {rows[i][0]}",
                              f"{raw[i, j]:g} {unit} is too large to convert to SI units (it overflows to infinity)",
                              "check the value and the unit in the header")
@@ -346,18 +387,21 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
         si_of[name] = _si_name(unit)
     assert time is not None
     steps = np.diff(time)
-    if np.any(steps <= 0):
-        i = int(np.argmax(steps <= 0))
+    # a saved prediction repeats a time at a phase boundary (the values before and after it; once per boundary
+    # when several fall on one instant); it never goes back
+    back = steps < 0 if exported else steps <= 0
+    if np.any(back):
+        i = int(np.argmax(back))
         raise ModelError(f"{source}: column {time_column!r}, line {rows[i + 1][0]}",
                          f"time does not increase ({raw[i + 1, tj]:g} {units[tj]} follows {raw[i, tj]:g} {units[tj]})",
                          "sort the rows by time and remove repeated samples")
-    if float(np.min(steps)) < MIN_SAMPLE_INTERVAL:
+    if not exported and float(np.min(steps)) < MIN_SAMPLE_INTERVAL:
         i = int(np.argmax(steps < MIN_SAMPLE_INTERVAL))
         raise ModelError(f"{source}: column {time_column!r}, line {rows[i + 1][0]}",
                          f"samples {float(steps[i]):.3g} s apart (the least accepted is {MIN_SAMPLE_INTERVAL:g} s, "
                          "1 GHz)", f"check the time unit in the header (e.g. \"{time_column} [ms]\" for milliseconds)")
     return Record(source=source, sha256=sha256, time=time, columns=columns, units=unit_of, si_units=si_of,
-                  time_column=time_column)
+                  time_column=time_column, labels=labels, notes=notes, exported=exported)
 
 
 def _cut(text: str, width: int = 60) -> str:
@@ -425,7 +469,9 @@ def resample(record: Record, interval: Any) -> Record:
     n = int(math.floor((t1 - t0) / dt * (1.0 + 1e-12))) + 1
     grid = t0 + dt * np.arange(n)
     cols = {k: np.interp(grid, record.time, v) for k, v in record.columns.items()}
-    return replace(record, time=grid, columns=cols, history=record.history + (f"resampled every {dt:.6g} s",))
+    # a text column (a phase's name) has no value between its samples: it is not carried onto the new grid
+    return replace(record, time=grid, columns=cols, labels={},
+                   history=record.history + (f"resampled every {dt:.6g} s",))
 
 
 def lowpass(record: Record, cutoff: Any, *, order: int = 4, columns: Sequence[str] | None = None) -> Record:
@@ -485,7 +531,8 @@ def trim(record: Record, start: Any = None, end: Any = None) -> Record:
                          f"(the record spans {record.time[0]:.6g} s to {record.time[-1]:.6g} s)",
                          "choose a start and end inside the record")
     cols = {k: v[keep] for k, v in record.columns.items()}
-    return replace(record, time=record.time[keep], columns=cols,
+    words = {k: tuple(np.asarray(v, dtype=object)[keep]) for k, v in record.labels.items()}
+    return replace(record, time=record.time[keep], columns=cols, labels=words,
                    history=record.history + (f"trimmed to {lo:.6g} s .. {hi:.6g} s",))
 
 

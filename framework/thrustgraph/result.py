@@ -21,7 +21,7 @@ import io
 import json
 import math
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Mapping
 
 import numpy as np
 
@@ -29,22 +29,53 @@ from .outputfiles import atomic_write
 from .units import Q_
 from .errors import ThrustgraphError
 
-__all__ = ["Phase", "Event", "Audit", "FlightResult", "SIGNAL_UNITS"]
+__all__ = ["Phase", "Event", "Audit", "FlightResult", "SIGNAL_UNITS", "STANDARD_KEY_UNITS", "signal_unit",
+           "TEXT_UNIT"]
 
-# SI unit of every standard signal (vectors carry the unit of their components).
+#: The unit written in the header of a column of words (the CSV's ``phase``), not numbers.
+TEXT_UNIT = "text"
+
+#: SI unit of every signal the core records (vectors carry the unit of their components; ``""`` is a pure number).
+#: With :data:`STANDARD_KEY_UNITS` and the ``signal_units`` a component kind declares, the one place a signal's
+#: unit comes from (:func:`signal_unit`): result headers, exports, plots, triggers and comparisons read it there.
 SIGNAL_UNITS = {
-    "mass": "kg", "thrust": "N", "thrust_vector": "N", "acceleration": "m/s^2", "acceleration_magnitude": "m/s^2",
-    "velocity": "m/s", "speed": "m/s", "airspeed": "m/s", "position": "m", "altitude": "m", "range": "m",
-    "mass_flow": "kg/s", "weight": "N", "reaction": "N", "ambient_pressure": "Pa", "ambient_density": "kg/m^3",
-    "axis": "", "flight_path_angle": "rad",
+    "time": "s", "mass": "kg", "thrust": "N", "thrust_vector": "N", "acceleration": "m/s^2",
+    "acceleration_magnitude": "m/s^2", "velocity": "m/s", "speed": "m/s", "airspeed": "m/s", "position": "m",
+    "altitude": "m", "range": "m", "mass_flow": "kg/s", "weight": "N", "reaction": "N", "inertia": "N",
+    "ambient_pressure": "Pa", "ambient_density": "kg/m^3", "ambient_temperature": "K", "wind": "m/s",
+    "gravity": "m/s^2", "axis": "", "flight_path_angle": "rad", "vertical_speed": "m/s", "distance": "m",
 }
-_SUFFIX_UNITS = {
+#: SI unit of the standard keys of a component's signals (``COMPONENT.KEY``): what the balance records for every
+#: line, vessel and body (``mass_flow``, ``drive``, a body's force), and the keys devices share by convention
+#: (``pressure``, ``temperature``, ``liquid_mass``...). A kind that reports any other key declares its unit in
+#: ``signal_units`` (:class:`~thrustgraph.component.ComponentKind`); the contract refuses a signal with no unit.
+STANDARD_KEY_UNITS = {
     "mass_flow": "kg/s", "exit_velocity": "m/s", "exit_pressure": "Pa", "thrust": "N", "drag": "N", "buoyancy": "N",
     "resistance": "N", "inlet_pressure": "Pa", "pressure_rise": "Pa", "burn_clock": "s",
     "pressure": "Pa", "temperature": "K", "head_pressure": "Pa", "outlet_pressure": "Pa", "drive": "Pa",
     "liquid_mass": "kg", "gas_mass": "kg", "liquid_volume": "m^3", "propellant_mass": "kg",
     "internal_momentum": "kg*m/s", "gas_volume": "m^3", "liquid_height": "m",
 }
+
+
+def signal_unit(name: str, declared: Mapping[str, str] | None = None) -> str | None:
+    """SI unit of a signal: declared by its component's kind (``declared``: ``COMPONENT.KEY`` -> unit), else a core
+    signal (:data:`SIGNAL_UNITS`), else a standard key (:data:`STANDARD_KEY_UNITS`); None when it has none.
+
+    ``""`` is a pure number (written ``[1]`` in headers).
+
+    >>> signal_unit("gravity"), signal_unit("bottle.pressure"), signal_unit("axis")
+    ('m/s^2', 'Pa', '')
+    >>> signal_unit("drogue.drag_area", {"drogue.drag_area": "m^2"}), signal_unit("bottle.colour")
+    ('m^2', None)
+    """
+    if declared and name in declared:
+        return declared[name]
+    if name in SIGNAL_UNITS:
+        return SIGNAL_UNITS[name]
+    if "." in name:
+        return STANDARD_KEY_UNITS.get(name.rsplit(".", 1)[-1])
+    return None
 
 
 @dataclass(frozen=True)
@@ -140,16 +171,23 @@ class FlightResult:
     # -- access ------------------------------------------------------------
     @staticmethod
     def unit_of(name: str) -> str:
-        """SI unit of a signal name."""
-        if name in SIGNAL_UNITS:
-            return SIGNAL_UNITS[name]
-        suffix = name.rsplit(".", 1)[-1]
-        return _SUFFIX_UNITS.get(suffix, "")
+        """SI unit of a core signal or a standard key by its name alone (``""`` when the name does not say; a
+        result's :meth:`unit` also knows what its components' kinds declare)."""
+        return signal_unit(name) or ""
 
     def unit(self, name: str) -> str:
-        """SI unit of a signal or summary entry of this result (declared by its kind, else by its name)."""
+        """SI unit of a signal (or of one component ``NAME.x`` of a vector signal) or summary entry of this
+        result, from the one place units come from (:func:`signal_unit`, the outcome registry); ``""`` for a
+        pure number."""
+        if name in self.units:
+            return self.units[name]
         spec = self.outcome_specs.get(name)
-        return self.units.get(name) or (spec.unit if spec is not None else "") or self.unit_of(name)
+        if spec is not None:
+            return spec.unit
+        base, _, comp = name.rpartition(".")
+        if comp in ("x", "y", "z") and base in self.signals and self.signals[base].ndim == 2:
+            return self.unit(base)
+        return signal_unit(name) or ""
 
     def signal(self, name: str) -> np.ndarray:
         """A signal as an SI array; raises KeyError listing the valid names."""
@@ -189,18 +227,26 @@ class FlightResult:
         return cols
 
     def to_csv(self, *, provenance: bool = False) -> str:
-        """CSV text: one row per output time; headers carry units as ``name [unit]``.
+        """CSV text: one row per output time; every header carries its SI unit as ``name [unit]`` (``[1]`` for a
+        pure number), the last column ``phase [text]`` the phase's name.
 
         With ``provenance=True`` the text starts with ``#`` comment lines
         naming the tool version, the plugin versions and the model hash (what
-        :meth:`write_csv` writes).
+        :meth:`write_csv` writes); :func:`thrustgraph.records.read_record` reads such a file back (a time
+        repeated at a phase boundary holds the values just before and just after it; ``nan`` where a signal has
+        no value, e.g. a stage's after it was dropped).
+
+        >>> from thrustgraph import fly
+        >>> head = fly().to_csv().splitlines()[0].split(",")
+        >>> head[0], head[-1], [h for h in head if h.startswith("axis")]
+        ('time [s]', 'phase [text]', ['axis.x [1]', 'axis.y [1]', 'axis.z [1]'])
         """
         cols = self.columns()
         buf = io.StringIO()
         if provenance:
             buf.writelines(f"# {line}\n" for line in self.provenance_lines())
         w = csv.writer(buf, lineterminator="\n")
-        w.writerow([f"{n} [{u}]" if u else n for n, u, _ in cols] + ["phase"])
+        w.writerow([f"{n} [{u or '1'}]" for n, u, _ in cols] + [f"phase [{TEXT_UNIT}]"])
         data = np.column_stack([c for _, _, c in cols])
         for i, row in enumerate(data):
             w.writerow([repr(float(v)) for v in row] + [self.phase_at(float(self.t[i]))])

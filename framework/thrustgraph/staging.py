@@ -46,13 +46,13 @@ from typing import Any
 
 from .errors import ModelError, shorten
 from .parameters import Quantity
+from .result import SIGNAL_UNITS
 from .units import to_si
 
 __all__ = ["Trigger", "parse_condition", "parse_stages", "parse_triggers", "check_stages", "KINEMATIC_SIGNALS"]
 
-#: Signals every vehicle has, with their SI units.
-KINEMATIC_SIGNALS = {"time": "s", "altitude": "m", "speed": "m/s", "vertical_speed": "m/s", "distance": "m",
-                     "mass": "kg"}
+#: Signals every vehicle has, with their SI units (from the one table of core signals).
+KINEMATIC_SIGNALS = {k: SIGNAL_UNITS[k] for k in ("time", "altitude", "speed", "vertical_speed", "distance", "mass")}
 _COND = re.compile(r"^\s*([A-Za-z_][\w.\-]*)\s*([<>])\s*(.+?)\s*$")
 _ACTIONS = ("separate", "switch", "stop")
 _DELAY = Quantity("after", "s", low=0.0, high=1e6, doc="the delay between the condition and the action")
