@@ -49,8 +49,6 @@ def unsupported(parsed: ParsedModel) -> str | None:
     """Why the vectorised ensemble cannot fly a model, or None when it can."""
     if parsed.launch.mount not in ("guide", "free"):
         return f"launch.mount {parsed.launch.mount!r} (the ensemble flies guide and free launches)"
-    if parsed.stages or parsed.triggers:
-        return "stages and triggers"
     for slot, cls in parsed.env_kinds.items():
         if not vectorised(cls):
             return f"environment.{slot} kind {cls.kind!r} builds no array callables"
@@ -242,13 +240,14 @@ class ArraySystem:
         return out
 
     def masses(self, Y: np.ndarray) -> np.ndarray:
-        s = list(Y)
-        M = self.fixed_mass + 0.0 * s[0]
-        for v in self.plan.vessels:
-            M = M + v.fns.mass(s)
-        for j in self.plan.jets:
-            M = M + j.fns.mass(s)
-        return M
+        """The vehicle's mass per design (kg), from the balance."""
+        return np.broadcast_to(np.asarray(self.balance.mass(list(Y)), dtype=float), (self.n,)).copy()
+
+    def snapshot(self, t: np.ndarray, Y: np.ndarray, phase: "Phase") -> dict:
+        """Every term and signal of the balance at states ``Y`` (:meth:`Balance.evaluate` over the designs),
+        the balance set to ``phase``; what a trigger watching a component's signal reads."""
+        self._use(phase)
+        return self.balance.evaluate(t, list(Y))
 
     def pressures(self, Y: np.ndarray, modes: np.ndarray) -> np.ndarray | None:
         """Largest vessel pressure per design (Pa), or None without vessels."""
@@ -300,9 +299,10 @@ class ArraySystem:
             out: np.ndarray | None = None, phase: "Phase | None" = None, aux: bool = True
             ) -> tuple[np.ndarray, dict | None]:
         """Derivatives of the states (shape of ``Y``, written into ``out`` when given) and, in ``aux``:
-        ``drive`` (name -> Pa), ``accel`` (acceleration magnitude), ``thrust`` (thrust magnitude), ``mass``
-        and ``singular`` (designs whose head coupling has no solution); ``aux=False`` skips those (None
-        instead), for the inner stages of a step, which use the derivatives alone.
+        ``drive`` (name -> Pa), ``accel`` (acceleration magnitude), ``thrust`` (thrust magnitude), ``mass``,
+        ``singular`` (designs whose head coupling has no solution) and ``phase`` (the phase it was set to);
+        ``aux=False`` skips those (None instead), for the inner stages of a step, which use the derivatives
+        alone.
 
         Every term comes from :class:`~thrustgraph.balance.Balance`, the single flight's balance, over arrays;
         the last state is the impulse quadrature (the thrust magnitude). ``phase`` is :meth:`phase` of
@@ -325,4 +325,4 @@ class ArraySystem:
         accel = np.sqrt(ax * ax + ay * ay + az * az)
         singular = np.broadcast_to(np.asarray(terms["singular"], dtype=bool), (self.n,))
         return out, {"drive": terms["drive"], "accel": accel, "thrust": out[-1], "mass": terms["mass"],
-                     "singular": singular}
+                     "singular": singular, "phase": phase}

@@ -313,6 +313,13 @@ class Balance:
         coupling has no solution)."""
         return self._solve(t, s, "terms")
 
+    def mass(self, s: Sequence[Any]) -> Any:
+        """The vehicle's mass (kg): the bodies' fixed mass and what its vessels and jets hold (needs no phase)."""
+        M = self.plan.fixed_mass
+        for fn in self._masses:
+            M = M + fn(s)
+        return M
+
     # ------------------------------------------------------------------
     def _solve(self, t: Any, s: Sequence[Any], want: str) -> Any:
         ops = self.ops
@@ -328,9 +335,7 @@ class Balance:
         aft = (-e[0], -e[1], -e[2])
 
         # 1. Mass and the forces that do not depend on the acceleration.
-        M = plan.fixed_mass
-        for fn in self._masses:
-            M = M + fn(s)
+        M = self.mass(s)
         air = (rho, pa, Ta, vr[0], vr[1], vr[2], sp)
         drags = []
         Dx = Dy = Dz = 0.0
@@ -675,11 +680,15 @@ class Balance:
                 for key, val in b.fns.signals(t, s, md).items():
                     rec[f"{b.name}.{key}"] = val
         ledger.append(("vehicle", "weight", weight))
-        kin = self.kinematics
-        if kin != Kinematics.FREE:
-            ledger.append(("vehicle", f"{Kinematics.NAMES[kin]} reaction", reaction))
-            if self._friction and kin != Kinematics.HELD:
-                ledger.append(("vehicle", "friction", friction))
+        # the reaction of each constraint present (an ensemble's designs may be under several: each design's
+        # reaction is its own constraint's, zero in free flight)
+        constrained = sorted(self._present - {Kinematics.FREE})
+        for k in constrained:
+            share = reaction if len(constrained) == 1 else \
+                tuple(self.ops.where(self._kin == k, c, 0.0) for c in reaction)
+            ledger.append(("vehicle", f"{Kinematics.NAMES[k]} reaction", share))
+        if self._friction and any(k != Kinematics.HELD for k in constrained):
+            ledger.append(("vehicle", "friction", friction))
         tv = [0.0, 0.0, 0.0]
         mass_flow = 0.0
         seen = set()

@@ -51,18 +51,23 @@ Examples
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Sequence
 
 import numpy as np
 
 from .arrayops import keep_heap
 from .arraysystem import FREE, GUIDE, IMPULSE, ArraySystem, unsupported
+from .assembly import assemble
 from .designs import DesignParameter, bounds_text, with_values, within_bounds
 from .errors import ModelError
+from .integrate import available_signals
 from .model import ParsedModel
 from .outcomes import OUTCOMES, STATUS_OK, STATUS_SCREENED, check_outputs
 from .component import ComponentKind
+from .separation import carry, stage_models
+from .staging import Trigger, condition, resolve_thresholds
+from .xp import array_ops
 
 __all__ = ["fly_designs", "EnsembleResult", "unsupported", "COMPUTED", "DOPRI_C", "DOPRI_A", "DOPRI_B", "DOPRI_E",
            "DOPRI_P"]
@@ -71,7 +76,9 @@ __all__ = ["fly_designs", "EnsembleResult", "unsupported", "COMPUTED", "DOPRI_C"
 #: state, not the registry's functions); a study that asks for another one flies single flights.
 COMPUTED = ("apogee", "range", "impact_x", "impact_y", "flight_time", "max_speed", "peak_acceleration",
             "total_impulse", "burn_time", "propellant_expelled", "launch_mass", "peak_vessel_pressure",
-            "guide_exit_speed", "impact_speed")
+            "guide_exit_speed", "impact_speed", "dropped_mass")
+#: the fate of a design that separated a stage: it flies on as the next vehicle
+_SEPARATED = "separated"
 
 # Dormand-Prince 5(4) (scipy RK45's arrays).
 DOPRI_C = np.array([0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1])
@@ -103,7 +110,8 @@ _EPS = np.finfo(float).eps
 @dataclass
 class EnsembleResult:
     """Summary rows of an ensemble: status and note per design, outcome values (SI), steps taken per design,
-    right-hand-side evaluations (vectorised calls) and wall-clock seconds."""
+    right-hand-side evaluations (vectorised calls), wall-clock seconds, and the time each stage separated
+    (stage name -> seconds per design, NaN where it did not)."""
 
     status: list[str]
     notes: list[str]
@@ -112,12 +120,14 @@ class EnsembleResult:
     steps: np.ndarray
     rhs_calls: int
     seconds: float
+    separations: dict[str, np.ndarray] = field(default_factory=dict)
 
 
 class _Events:
-    """The event functions of the family: the components' events, guide exit, apogee, ground impact."""
+    """The event functions of the family: the components' events, the model's triggers (a condition met, and
+    the action due after its delay), guide exit, apogee, ground impact."""
 
-    def __init__(self, sysa: ArraySystem) -> None:
+    def __init__(self, sysa: ArraySystem, triggers: Sequence[Trigger] = ()) -> None:
         self.slots: list[tuple] = []   # (kind, direction, payload)
         for k, (comp, spec) in enumerate(sysa.events):
             names = [m.name for m in sysa.modes[comp]]
@@ -126,15 +136,26 @@ class _Events:
             to = names.index(spec.to) if spec.to else -1
             self.slots.append(("comp", float(spec.direction), (k, comp, sysa.slot[comp], when, to, spec.name,
                                                                spec.needs_drive)))
+        for k, tr in enumerate(triggers):
+            self.slots.append(("trigger", tr.direction, (k, tr)))
+        for k, tr in enumerate(triggers):
+            self.slots.append(("due", 1.0, (k, tr)))
         self.slots.append(("guide", 1.0, None))
         self.slots.append(("apogee", -1.0, None))
         self.slots.append(("impact", -1.0, None))
-        self.needs_drive = [s[0] == "comp" and s[2][6] for s in self.slots]
+        # the events whose value reads the balance (a component's drive, a trigger's snapshot signal)
+        self.needs_drive = [(s[0] == "comp" and s[2][6]) or (s[0] == "trigger" and s[2][1].needs_snapshot)
+                            for s in self.slots]
 
-    def active(self, j: int, modes: np.ndarray, kin: np.ndarray, desc: np.ndarray, gpos: np.ndarray) -> np.ndarray:
+    def active(self, j: int, modes: np.ndarray, kin: np.ndarray, desc: np.ndarray, gpos: np.ndarray,
+               armed: np.ndarray, due: np.ndarray) -> np.ndarray:
         kind, _, pl = self.slots[j]
         if kind == "comp":
             return pl[3][modes[pl[2]]]
+        if kind == "trigger":
+            return armed[pl[0]].copy()
+        if kind == "due":
+            return np.isfinite(due[pl[0]])
         if kind == "guide":
             return kin == GUIDE
         if kind == "apogee":
@@ -142,15 +163,24 @@ class _Events:
         return (kin == FREE) & gpos
 
     def value(self, j: int, sysa: ArraySystem, t: np.ndarray, Y: np.ndarray, aux: dict | None,
-              rows: np.ndarray | None = None) -> np.ndarray:
-        """Event ``j`` at states ``Y`` of the designs of ``sysa`` (or of its designs ``rows``)."""
+              rows: np.ndarray | None = None, due: np.ndarray | None = None) -> np.ndarray:
+        """Event ``j`` at states ``Y`` of the designs of ``sysa`` (or of its designs ``rows``); ``aux`` carries
+        the drives and the phase of the balance (events that read it), ``due`` when the trigger actions are due."""
         kind, _, pl = self.slots[j]
+        r = slice(None) if rows is None else rows
         if kind == "comp":
             k, comp = pl[0], pl[1]
             drive = aux["drive"].get(comp, 0.0) if (pl[6] and aux is not None) else 0.0
             return np.array(np.broadcast_to(np.asarray(sysa.events[k][1].fn(t, list(Y), drive), dtype=float), t.shape))
+        if kind == "trigger":
+            tr = pl[1]
+            x0 = tuple(c[r] for c in sysa.x0)
+            phase = aux["phase"] if tr.needs_snapshot else None
+            g = condition(tr, t, list(Y), x0, lambda tt, ss: sysa.snapshot(tt, ss, phase), array_ops)
+            return np.array(np.broadcast_to(np.asarray(g, dtype=float), t.shape))
+        if kind == "due":
+            return t - due[pl[0]][r]
         if kind == "guide":
-            r = slice(None) if rows is None else rows
             u = [c[r] for c in sysa.u]
             x0 = [c[r] for c in sysa.x0]
             return np.array((Y[0] - x0[0]) * u[0] + (Y[1] - x0[1]) * u[1] + (Y[2] - x0[2]) * u[2]
@@ -280,7 +310,8 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
     ----------
     parsed : the base model (its family must be supported: :func:`unsupported` returns None)
     params : the varied parameters; ``x`` their SI values, shape (N, parameters)
-    outputs : registry outcome keys (default: :data:`COMPUTED`; any other is NaN)
+    outputs : registry outcome keys (default: :data:`COMPUTED`, ``dropped_mass`` only for a model with stages;
+        any other is NaN)
     rtol, atol : tolerances (default: the model's ``[run]`` values; the same meaning as for solve_ivp)
     max_steps : step budget per design (attempted steps); a design that exceeds it is screened out
     compact : shrink the arrays when fewer than this fraction of the designs are still flying
@@ -292,7 +323,9 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
         raise ModelError("ensemble", f"the vectorised ensemble cannot fly this model: {why}",
                          "fly it with single flights (--flights single)")
     keep_heap()
-    outputs = tuple(check_outputs(outputs if outputs is not None else list(COMPUTED)))
+    if outputs is None:
+        outputs = [k for k in COMPUTED if k != "dropped_mass" or parsed.stages]
+    outputs = tuple(check_outputs(outputs))
     x = np.asarray(x, dtype=float).reshape(-1, len(params))
     N = len(x)
     rtol = float(parsed.run.rtol if rtol is None else rtol)
@@ -308,61 +341,119 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
     if len(gid) == 0:
         return EnsembleResult(status, notes, _table(out, outputs), outputs, steps_taken, 0,
                               time.perf_counter() - t_start)
+    triggers = _resolved_triggers(parsed)
+    seps = {st: np.full(N, np.nan) for st in parsed.stages}
+    calls = 0
+    finished = N - len(gid)
     with np.errstate(all="ignore"):
-        run = _Run(parsed, params, x, gid, rtol, atol, t_end, stop_at_apogee, max_steps, compact, out,
-                   steps_taken)
-        run.fly(progress, N - len(gid))
-        for i, g in enumerate(run.done_gid):
-            status[g], notes[g] = run.done_status[i], run.done_note[i]
+        # the designs fly vehicle by vehicle: first the whole vehicle, then, for each set of dropped stages,
+        # every design that reached it (from its own separation time and state). A design only ever drops
+        # more stages, so each set is flown once, after every set it can come from; each design's numbers
+        # depend only on its own rows, so flying it in one batch or the next changes nothing.
+        models = {frozenset(): parsed}
+        waiting: dict[frozenset, list[dict]] = {frozenset(): []}
+        while waiting:
+            key = min(waiting, key=len)
+            arrivals = waiting.pop(key)
+            pc = models[key]
+            cols = [j for j, p in enumerate(params) if p.section != "components" or p.owner in pc.params]
+            run = _Run(pc, [params[j] for j in cols], x[:, cols], gid if not key else None, rtol, atol, t_end,
+                       stop_at_apogee, max_steps, compact, out, steps_taken, triggers=triggers,
+                       staged=bool(parsed.stages), seps=seps, arrivals=arrivals or None)
+            run.fly(None if progress is None else (lambda k, f=finished: progress(f + k)))
+            calls += run.calls
+            finished += len(run.done_gid)
+            for i, g in enumerate(run.done_gid):
+                status[g], notes[g] = run.done_status[i], run.done_note[i]
+            for stage, data in run.handoffs:
+                nxt = key | {stage}
+                if nxt not in models:
+                    models[nxt] = stage_models(pc, parsed.stages[stage])[0]
+                waiting.setdefault(nxt, []).append(data)
     for i in range(N):
         if status[i] != STATUS_OK:
             for k in out:
                 out[k][i] = np.nan
-    return EnsembleResult(status, notes, _table(out, outputs), outputs, steps_taken, run.calls,
-                          time.perf_counter() - t_start)
+            for v in seps.values():
+                v[i] = np.nan
+    return EnsembleResult(status, notes, _table(out, outputs), outputs, steps_taken, calls,
+                          time.perf_counter() - t_start, seps)
+
+
+def _resolved_triggers(parsed: ParsedModel) -> tuple[Trigger, ...]:
+    """The model's triggers with their thresholds in SI, resolved against the whole vehicle's signals (as a
+    single flight resolves them when it starts)."""
+    if not parsed.triggers:
+        return ()
+    return resolve_thresholds(parsed.triggers, available_signals(assemble(parsed)))
 
 
 class _Run:
     """The integration of one ensemble: per-design arrays, stepping, events, trackers, compaction."""
 
     def __init__(self, parsed, params, x, gid, rtol, atol, t_end, stop_at_apogee, max_steps, compact, out,
-                 steps_taken) -> None:
+                 steps_taken, *, triggers=(), staged=False, seps=None, arrivals=None) -> None:
         self.parsed, self.params, self.x = parsed, params, x
         self.rtol, self.atol, self.t_end = rtol, atol, t_end
         self.stop_at_apogee, self.max_steps, self.compact_at = stop_at_apogee, max_steps, compact
         self.out, self.steps_taken = out, steps_taken
+        self.triggers, self.staged, self.seps = tuple(triggers), staged, seps
         self.calls = 0
         self.done_gid: list[int] = []
         self.done_status: list[str] = []
         self.done_note: list[str] = []
+        self.handoffs: list[tuple[str, dict]] = []   # (stage, the designs that separated it, as they were)
+        self.leaving: list[tuple[np.ndarray, str]] = []
+        if arrivals:
+            gid = np.concatenate([a["gid"] for a in arrivals])
         sysa = self.sysa = ArraySystem(parsed, params, x[gid])
         n = self.n = sysa.n
         self.gid = gid.copy()
         self.ns = ns = len(sysa.state_names)
         self.nctrl = ns - 1                       # the impulse quadrature (last row) is left out of step control
         assert sysa.index(IMPULSE) == ns - 1
-        self.ev = _Events(sysa)
+        self.ev = _Events(sysa, self.triggers)
         self.nev = len(self.ev.slots)
         self.j_apogee = [k for k, sl in enumerate(self.ev.slots) if sl[0] == "apogee"][0]
-        self.Y = sysa.y0.copy()
-        self.t = np.zeros(n)
-        self.modes = sysa.mode0.copy()
-        self.kin = sysa.kin0.copy()
-        self.desc = np.zeros(n, dtype=bool)
+        nt = len(self.triggers)
+        if arrivals:
+            self._arrive(arrivals)
+        else:
+            self.Y = sysa.y0.copy()
+            self.t = np.zeros(n)
+            self.modes = sysa.mode0.copy()
+            self.kin = sysa.kin0.copy()
+            self.desc = np.zeros(n, dtype=bool)
+            self.armed = np.ones((nt, n), dtype=bool)       # every trigger watches its condition from launch
+            self.due = np.full((nt, n), np.nan)             # when a met trigger's delayed action is due
+            self.dropped = np.zeros(n)
+            self.t_first = np.zeros(n)
+            self.x_first = np.array([np.broadcast_to(c, (n,)) for c in sysa.x0], dtype=float)
         self.gpos = np.broadcast_to(np.asarray(sysa.gravity(sysa.x0[2]), dtype=float) > 0.0, (n,)).copy()
         self.F, aux = sysa.rhs(self.t, self.Y, self.modes, self.kin)
         self.calls += 1
-        out["launch_mass"][gid] = np.broadcast_to(aux["mass"], (n,))
         p0 = sysa.pressures(self.Y, self.modes)
         self.has_p = p0 is not None
-        self.peak_p = np.full(n, np.nan) if p0 is None else np.broadcast_to(p0, (n,)).copy()
-        self.zmax = self.Y[2].copy()
-        self.vmax = np.sqrt(self.Y[3] ** 2 + self.Y[4] ** 2 + self.Y[5] ** 2)
-        self.amax = np.broadcast_to(np.asarray(aux["accel"], dtype=float), (n,)).copy()
-        self.burn = np.zeros(n)
-        self.apogee = np.full(n, np.nan)
-        self.exit_speed = np.full(n, np.nan)
-        self.impact_speed = np.full(n, np.nan)
+        p0 = np.full(n, np.nan) if p0 is None else np.broadcast_to(p0, (n,)).copy()
+        speed = np.sqrt(self.Y[3] ** 2 + self.Y[4] ** 2 + self.Y[5] ** 2)
+        accel = np.broadcast_to(np.asarray(aux["accel"], dtype=float), (n,)).copy()
+        if arrivals:
+            # the running maxima carry on over the separation (the new vehicle's first state counts too)
+            self.dropped += self.m_before - sysa.masses(self.Y)
+            self.peak_p = np.fmax(self.peak_p, p0)
+            self.zmax = np.maximum(self.zmax, self.Y[2])
+            self.vmax = np.maximum(self.vmax, speed)
+            self.amax = np.maximum(self.amax, accel)
+        else:
+            out["launch_mass"][gid] = np.broadcast_to(aux["mass"], (n,))
+            self.peak_p = p0
+            self.zmax = self.Y[2].copy()
+            self.vmax = speed
+            self.amax = accel
+            self.burn = np.zeros(n)
+            self.apogee = np.full(n, np.nan)
+            self.exit_speed = np.full(n, np.nan)
+            self.impact_speed = np.full(n, np.nan)
         self.live = np.ones(n, dtype=bool)
         self.fate = [""] * n
         self.fate_status = [STATUS_OK] * n
@@ -376,10 +467,70 @@ class _Run:
 
     # --- helpers ------------------------------------------------------------------------------------------
     _PER_DESIGN = ("gid", "t", "h", "kin", "desc", "gpos", "zmax", "vmax", "amax", "burn", "apogee", "exit_speed",
-                   "impact_speed", "peak_p", "live", "rejected")
+                   "impact_speed", "peak_p", "live", "rejected", "dropped", "t_first")
+    #: per-design arrays carried over a separation (the designs' columns)
+    _CARRIED = ("t", "kin", "desc", "zmax", "vmax", "amax", "burn", "apogee", "exit_speed", "impact_speed", "peak_p",
+                "dropped", "t_first")
+    #: per-design arrays with a row per trigger or per coordinate (columns are designs)
+    _PER_DESIGN_2D = ("armed", "due", "x_first")
 
-    def g_all(self, sys_, tt, YY, aux):
-        return [self.ev.value(j, sys_, tt, YY, aux) for j in range(self.nev)]
+    def g_all(self, sys_, tt, YY, aux, idx=None):
+        due = self.due if idx is None else self.due[:, idx]
+        return [self.ev.value(j, sys_, tt, YY, aux, due=due) for j in range(self.nev)]
+
+    def _arrive(self, arrivals: list[dict]) -> None:
+        """Start from the designs that separated a stage of the vehicle before: their states and modes carried
+        over by name (:func:`thrustgraph.separation.carry`, as a single flight's separation), trackers and
+        trigger states as they were."""
+        sysa = self.sysa
+        Ys, ms = [], []
+        c0 = 0
+        for a in arrivals:
+            cols = slice(c0, c0 + len(a["gid"]))
+            c0 += len(a["gid"])
+            y, md = carry(a["names"], a["moded"], a["Y"], list(a["modes"]), sysa.state_names, sysa.moded,
+                          list(sysa.mode0[:, cols]))
+            Ys.append(y)
+            ms.append(np.array(md, dtype=np.int8).reshape(len(sysa.moded), -1))
+        self.Y = np.ascontiguousarray(np.concatenate(Ys, axis=1))
+        self.modes = np.concatenate(ms, axis=1)
+        for name in self._CARRIED + self._PER_DESIGN_2D + ("m_before",):
+            setattr(self, name, np.concatenate([a[name] for a in arrivals], axis=-1))
+
+    def capture(self) -> None:
+        """The designs that separated a stage in this step leave this vehicle: keep what the next one needs."""
+        for rows, stage in self.leaving:
+            data = {name: getattr(self, name)[..., rows].copy() for name in self._CARRIED + self._PER_DESIGN_2D}
+            data.update(gid=self.gid[rows].copy(), Y=self.Y[:, rows].copy(), modes=self.modes[:, rows].copy(),
+                        names=self.sysa.state_names, moded=tuple(self.sysa.moded),
+                        m_before=self.sysa.masses(self.Y)[rows])
+            self.seps[stage][self.gid[rows]] = self.t[rows]
+            self.handoffs.append((stage, data))
+        self.leaving = []
+
+    def trigger_met(self, rows: np.ndarray, k: int) -> None:
+        """Trigger ``k``'s condition is met for designs ``rows``: it acts now, or after its delay."""
+        tr = self.triggers[k]
+        self.armed[k, rows] = False
+        if tr.delay > 0.0:
+            self.due[k, rows] = self.t[rows] + tr.delay
+        else:
+            self.act(rows, k)
+
+    def act(self, rows: np.ndarray, k: int) -> None:
+        """Trigger ``k`` acts for designs ``rows`` (the actions of a single flight's triggers)."""
+        tr = self.triggers[k]
+        self.due[k, rows] = np.nan
+        if tr.action == "stop":
+            self.finish(rows, STATUS_OK, f"stopped by trigger {tr.name!r}")
+        elif tr.action == "switch":
+            if tr.component in self.sysa.slot:      # else the component left with a dropped stage: ignored
+                names = [m.name for m in self.sysa.modes[tr.component]]
+                self.modes[self.sysa.slot[tr.component], rows] = names.index(tr.mode)
+        else:
+            rows = rows[self.live[rows]]
+            self.finish(rows, _SEPARATED, tr.stage)
+            self.leaving.append((rows, tr.stage))
 
     def finish(self, idx, st: str, note: str) -> None:
         for i in np.atleast_1d(idx):
@@ -390,27 +541,33 @@ class _Run:
     def fire_at_once(self, idx: np.ndarray) -> None:
         """Events already past their zero at a phase start fire at once (as in a single flight)."""
         ev = self.ev
-        for _ in range(6):
+        for _ in range(50):
             fired = False
             for j, (kind, direction, pl) in enumerate(ev.slots):
-                if kind != "comp":
+                if kind not in ("comp", "trigger", "due"):
                     continue
-                act = ev.active(j, self.modes[:, idx], self.kin[idx], self.desc[idx], self.gpos[idx]) & self.live[idx]
+                act = ev.active(j, self.modes[:, idx], self.kin[idx], self.desc[idx], self.gpos[idx],
+                                self.armed[:, idx], self.due[:, idx]) & self.live[idx]
                 past = act & (direction * self.gold[j][idx] > 0.0)
                 if np.any(past):
                     sel = idx[past]
-                    if pl[4] >= 0:
+                    if kind == "trigger":
+                        self.trigger_met(sel, pl[0])
+                    elif kind == "due":
+                        self.act(sel, pl[0])
+                    elif pl[4] >= 0:
                         self.modes[pl[2], sel] = pl[4]
                     else:
                         self.finish(sel, STATUS_OK, pl[5])
                     fired = True
+            self.capture()
             if not fired:
                 return
             sub = self.sysa.subset(idx)
             Fi, ai = sub.rhs(self.t[idx], self.Y[:, idx], self.modes[:, idx], self.kin[idx])
             self.calls += 1
             self.F[:, idx] = Fi
-            gi = self.g_all(sub, self.t[idx], self.Y[:, idx], ai)
+            gi = self.g_all(sub, self.t[idx], self.Y[:, idx], ai, idx)
             for j in range(self.nev):
                 self.gold[j][idx] = gi[j]
 
@@ -423,36 +580,40 @@ class _Run:
         v_al = Y[3, idx] * u[0][idx] + Y[4, idx] * u[1][idx] + Y[5, idx] * u[2][idx]
         s_al = ((Y[0, idx] - x0[0][idx]) * u[0][idx] + (Y[1, idx] - x0[1][idx]) * u[1][idx]
                 + (Y[2, idx] - x0[2][idx]) * u[2][idx])
-        stuck = (self.kin[idx] == GUIDE) & ~prop & (v_al <= 0.0) & (s_al <= 1e-12)
+        # as in a single flight, a vehicle whose triggers still watch or wait is not given up
+        waits = np.any(self.armed[:, idx], axis=0) | np.any(np.isfinite(self.due[:, idx]), axis=0)
+        stuck = (self.kin[idx] == GUIDE) & ~prop & (v_al <= 0.0) & (s_al <= 1e-12) & ~waits
         self.finish(idx[stuck], STATUS_SCREENED, "no lift-off: the thrust never exceeded the weight along the guide")
 
-    def initial_step(self) -> np.ndarray:
-        """Hairer, Norsett & Wanner, Solving ODEs I, sec. II.4 (as scipy's select_initial_step), per design."""
-        Y, F, c = self.Y, self.F, self.nctrl
+    def initial_step(self, idx: np.ndarray | None = None, sub: ArraySystem | None = None) -> np.ndarray:
+        """Hairer, Norsett & Wanner, Solving ODEs I, sec. II.4 (as scipy's select_initial_step), per design: for
+        every design at the start, and for designs ``idx`` (``sub`` their system) after a phase switch, where a
+        single flight starts a new segment with a step of its own."""
+        if idx is None:
+            idx, sub = np.arange(self.n), self.sysa
+        Y, F, t, c = self.Y[:, idx], self.F[:, idx], self.t[idx], self.nctrl
+        left = np.maximum(self.t_end - t, 0.0)
         sc = self.atol + np.abs(Y) * self.rtol
         d0 = _norm((Y / sc)[:c])
         d1 = _norm((F / sc)[:c])
         h0 = np.where((d0 < 1e-5) | (d1 < 1e-5), 1e-6, 0.01 * d0 / np.where(d1 > 0, d1, 1.0))
-        h0 = np.minimum(h0, self.t_end)
-        F1, _ = self.sysa.rhs(self.t + h0, Y + h0 * F, self.modes, self.kin)
+        h0 = np.minimum(h0, left)
+        F1, _ = sub.rhs(t + h0, Y + h0 * F, self.modes[:, idx], self.kin[idx])
         self.calls += 1
-        d2 = _norm(((F1 - F) / sc)[:c]) / h0
+        d2 = _norm(((F1 - F) / sc)[:c]) / np.where(h0 > 0.0, h0, 1.0)
         h1 = np.where((d1 <= 1e-15) & (d2 <= 1e-15), np.maximum(1e-6, h0 * 1e-3),
                       (0.01 / np.maximum(np.maximum(d1, d2), 1e-300)) ** (1.0 / 5.0))
-        return np.minimum(np.minimum(100 * h0, h1), self.t_end)
+        return np.minimum(np.minimum(100 * h0, h1), left)
 
     def compact(self) -> None:
         """Drop the finished designs from every array."""
         keep = np.flatnonzero(self.live)
-        gone = np.flatnonzero(~self.live)
-        self.store(gone)
-        for i in gone:
-            self.done_gid.append(int(self.gid[i]))
-            self.done_status.append(self.fate_status[i])
-            self.done_note.append(self.fate[i])
+        self.done(np.flatnonzero(~self.live))
         self.sysa = self.sysa.subset(keep)
         for name in self._PER_DESIGN:
             setattr(self, name, getattr(self, name)[keep])
+        for name in self._PER_DESIGN_2D:
+            setattr(self, name, getattr(self, name)[:, keep])
         # row-major copies: the state array and the step's buffers trade places (see step)
         self.Y, self.F = np.ascontiguousarray(self.Y[:, keep]), np.ascontiguousarray(self.F[:, keep])
         self.modes = self.modes[:, keep]
@@ -462,16 +623,25 @@ class _Run:
         self.n = len(keep)
         self.buf = _Buffers(self.ns, self.n, self.nctrl)
 
+    def done(self, idx: np.ndarray) -> None:
+        """Designs ``idx`` (current slots) have finished: their outcomes, status and note (those that separated a
+        stage fly on as the next vehicle: not done)."""
+        idx = np.array([i for i in idx if self.fate_status[i] != _SEPARATED], dtype=np.intp)
+        self.store(idx)
+        for i in idx:
+            self.done_gid.append(int(self.gid[i]))
+            self.done_status.append(self.fate_status[i])
+            self.done_note.append(self.fate[i])
+
     def store(self, idx: np.ndarray) -> None:
         """Write the outcomes of designs ``idx`` (current slots) into the global rows."""
         if len(idx) == 0:
             return
         out, sysa, Y = self.out, self.sysa, self.Y
         g = self.gid[idx]
-        x0 = sysa.x0
-        out["flight_time"][g] = self.t[idx]
-        out["impact_x"][g] = Y[0, idx] - x0[0][idx]
-        out["impact_y"][g] = Y[1, idx] - x0[1][idx]
+        out["flight_time"][g] = self.t[idx] - self.t_first[idx]
+        out["impact_x"][g] = Y[0, idx] - self.x_first[0, idx]
+        out["impact_y"][g] = Y[1, idx] - self.x_first[1, idx]
         out["range"][g] = np.hypot(out["impact_x"][g], out["impact_y"][g])
         ap = self.apogee[idx]
         out["apogee"][g] = np.where(np.isfinite(ap), np.maximum(ap, self.zmax[idx]), self.zmax[idx])
@@ -480,7 +650,8 @@ class _Run:
         out["total_impulse"][g] = Y[-1, idx]
         out["burn_time"][g] = self.burn[idx]
         M = np.broadcast_to(sysa.masses(Y), (self.n,))
-        out["propellant_expelled"][g] = out["launch_mass"][g] - M[idx]
+        out["propellant_expelled"][g] = out["launch_mass"][g] - M[idx] - self.dropped[idx]
+        out["dropped_mass"][g] = self.dropped[idx] if self.staged else np.nan
         out["peak_vessel_pressure"][g] = self.peak_p[idx]
         out["guide_exit_speed"][g] = self.exit_speed[idx]
         out["impact_speed"][g] = self.impact_speed[idx]
@@ -494,12 +665,9 @@ class _Run:
             self.step()
             it += 1
             if progress is not None and it % 8 == 0:
-                progress(len(self.done_gid) + int(np.sum(~self.live)) + screened_before)
-        self.store(np.arange(self.n))
-        for i in range(self.n):
-            self.done_gid.append(int(self.gid[i]))
-            self.done_status.append(self.fate_status[i])
-            self.done_note.append(self.fate[i])
+                ended = sum(1 for i in np.flatnonzero(~self.live) if self.fate_status[i] != _SEPARATED)
+                progress(len(self.done_gid) + ended + screened_before)
+        self.done(np.arange(self.n))
 
     def step(self) -> None:
         sysa, buf, ev, nev = self.sysa, self.buf, self.ev, self.nev
@@ -553,8 +721,9 @@ class _Run:
         # events on the accepted steps. An event that no design watches now (a vessel's events once every
         # design has sealed it, guide exit once all are free) keeps its old values: a design starts watching
         # an event only at a phase switch, where all its event values are evaluated afresh
-        acts = [acc & ev.active(j, modes, kin, self.desc, self.gpos) for j in range(nev)]
-        gnew = [ev.value(j, sysa, t + hh, Yn, aux_n) if act.any() else self.gold[j] for j, act in enumerate(acts)]
+        acts = [acc & ev.active(j, modes, kin, self.desc, self.gpos, self.armed, self.due) for j in range(nev)]
+        gnew = [ev.value(j, sysa, t + hh, Yn, aux_n, due=self.due) if act.any() else self.gold[j]
+                for j, act in enumerate(acts)]
         hit = []
         cross_any = np.zeros(n, dtype=bool)
         for j, (kind, direction, pl) in enumerate(ev.slots):
@@ -585,7 +754,7 @@ class _Run:
                 if len(sel):
                     rows = evi[sel]
                     thetas[j, sel] = _locate(ev, j, sysa, sub_e, sel, rows, t, hh, Y, Q[:, :, sel],
-                                             modes, kin, self.gold[j][rows], gnew[j][rows])
+                                             modes, kin, self.gold[j][rows], gnew[j][rows], self.due)
             if not self.stop_at_apogee:
                 # apogee switches nothing in the dynamics: it is recorded where it falls inside the step (on the
                 # dense output, before any other event of the design in this step) and does not cut the step
@@ -645,6 +814,10 @@ class _Run:
                         modes[pl[2], rows] = pl[4]
                     else:
                         self.finish(rows, STATUS_OK, pl[5])
+                elif kind == "trigger":
+                    self.trigger_met(rows, pl[0])
+                elif kind == "due":
+                    self.act(rows, pl[0])
                 elif kind == "guide":
                     kin[rows] = FREE
                     self.exit_speed[rows] = np.sqrt(_rowsum(Y[3:6, rows] ** 2))
@@ -656,6 +829,7 @@ class _Run:
                 else:
                     self.impact_speed[rows] = np.sqrt(_rowsum(Y[3:6, rows] ** 2))
                     self.finish(rows, STATUS_OK, "")
+            self.capture()
             keep_e = live[evi]
             cont = evi[keep_e]
             if len(cont):
@@ -663,7 +837,7 @@ class _Run:
                 Fi, ai = sub.rhs(t[cont], Y[:, cont], modes[:, cont], kin[cont])
                 self.calls += 1
                 F[:, cont] = Fi
-                gi = self.g_all(sub, t[cont], Y[:, cont], ai)
+                gi = self.g_all(sub, t[cont], Y[:, cont], ai, cont)
                 for j in range(nev):
                     self.gold[j][cont] = gi[j]
                 self.fire_at_once(cont)
@@ -673,6 +847,10 @@ class _Run:
         bad = live & ~np.all(np.isfinite(Y), axis=0)
         self.finish(np.flatnonzero(bad), STATUS_SCREENED, "integration failed: the state is not finite")
         self.h = np.where(acc | rej, h_next, self.h)
+        if len(evi) and len(cont):
+            # a phase switch starts the design afresh, as a single flight starts a new segment
+            self.h[cont] = self.initial_step(cont, sub)
+            self.rejected[cont] = False
 
     def track(self, acc, th_end, Y, F, K, Yn, aux_n, hh, evi, event, sub_e) -> None:
         """Running maxima (speed, acceleration, altitude, vessel pressure) and burn time over accepted steps.
@@ -746,7 +924,7 @@ def _table(out: dict[str, np.ndarray], outputs: Sequence[str]) -> np.ndarray:
 
 def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel: np.ndarray, rows: np.ndarray,
             t: np.ndarray, h: np.ndarray, Y: np.ndarray, Q: np.ndarray, modes: np.ndarray, kin: np.ndarray,
-            ga: np.ndarray, gb: np.ndarray) -> np.ndarray:
+            ga: np.ndarray, gb: np.ndarray, due: np.ndarray) -> np.ndarray:
     """Fraction of the step at which event ``j`` crosses zero, per design (vectorised Illinois iteration)."""
     Y0, hh, t0 = Y[:, rows], h[rows], t[rows]
     need = ev.needs_drive[j]
@@ -765,11 +943,9 @@ def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel
         yy = _dense(Y0, hh, Q, theta)
         tt = t0 + theta * hh
         if need:
-            drive = local.drives(tt, yy, ph_loc)
-            if drive is None:
-                drive = local.rhs(tt, yy, m_loc, k_loc, phase=ph_loc)[1]["drive"]
-            return ev.value(j, local, tt, yy, {"drive": drive})
-        return ev.value(j, sysa, tt, yy, None, rows)
+            drive = local.drives(tt, yy, ph_loc) if kind == "comp" else {}
+            return ev.value(j, local, tt, yy, {"drive": drive, "phase": ph_loc})
+        return ev.value(j, sysa, tt, yy, None, rows, due)
 
     return _illinois(g, ga, gb, t0, hh)
 

@@ -34,10 +34,11 @@ from .model import Model, ParsedModel
 from .outcomes import OUTCOMES, kind_outcomes, run_summary
 from .result import Audit, Event, FlightResult, Phase, signal_unit
 from .separation import separate
-from .staging import KINEMATIC_SIGNALS, Trigger, resolve_thresholds
+from .staging import KINEMATIC_SIGNALS, Trigger, condition, resolve_thresholds
 from .stepguard import StepGuard
 from .modelfile import default_model_path, dumps_model, load_model
 from .version import __version__
+from .xp import scalar_ops
 from .plugins import plugin_versions
 
 __all__ = ["integrate", "fly", "fly_segments", "provenance", "Segments", "available_signals"]
@@ -249,7 +250,7 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
             ph.modes[sysm.moded.index(tr.component)] = [m.name for m in sysm.modes[tr.component]].index(tr.mode)
             events.append(Event(t, tr.name, tr.component, f"mode -> {tr.mode}"))
             return False, y
-        stage = state.system.parsed.stages[tr.stage]
+        stage = system.parsed.stages[tr.stage]     # the model's stages (a stage flying on has none of its own)
         upper, uy, um, dsys, dy, dm, m_drop = separate(state.system, y, ph.modes, stage)
         segs.separations.append((t, tr.stage, dsys, dy, dm, ph.descending))
         segs.dropped_mass += m_drop
@@ -425,26 +426,18 @@ def _fire(tr: Trigger, t: float, y: np.ndarray, triggers: list, pending: list, a
     return apply(tr, t, y)
 
 
-def _signal_fn(system: System, bal: Balance, name: str, x0: np.ndarray, cache: dict):
-    """Value of a named signal at (t, y) for a trigger."""
-    if name == "time":
-        return lambda t, y: t
-    if name == "altitude":
-        return lambda t, y: y[2]
-    if name == "speed":
-        return lambda t, y: math.sqrt(y[3] * y[3] + y[4] * y[4] + y[5] * y[5])
-    if name == "vertical_speed":
-        return lambda t, y: y[5]
-    if name == "distance":
-        return lambda t, y: math.sqrt((y[0] - x0[0]) ** 2 + (y[1] - x0[1]) ** 2 + (y[2] - x0[2]) ** 2)
+def _condition_fn(bal: Balance, tr: Trigger, x0: np.ndarray, cache: dict):
+    """A trigger's condition at (t, y) (:func:`thrustgraph.staging.condition`), the balance's snapshot
+    evaluated once per state."""
+    x = (float(x0[0]), float(x0[1]), float(x0[2]))
 
-    def component(t, y):
+    def snapshot(t, y):
         key = (t, y.tobytes())
         if cache.get("key") != key:
             cache["key"] = key
             cache["snap"] = bal.evaluate(t, y)
-        return cache["snap"].get(name, math.nan)
-    return component
+        return cache["snap"]
+    return lambda t, y: condition(tr, t, y, x, snapshot, scalar_ops)
 
 
 def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: list, pending: list, t_now: float):
@@ -480,10 +473,7 @@ def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: 
         actions.append(("mode" if spec.to else "stop", spec.name, comp, spec.to))
 
     for tr in triggers:
-        sig = _signal_fn(system, bal, tr.signal, x0, snap_cache)
-
-        def tfn(t, y, sig=sig, tr=tr):
-            return sig(t, y) - tr.threshold
+        tfn = _condition_fn(bal, tr, x0, snap_cache)
         tfn.terminal = True
         tfn.direction = tr.direction
         fns.append(tfn)

@@ -40,19 +40,23 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
+import math
 import re
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Callable
 
 from .errors import ModelError, shorten
 from .parameters import Quantity
 from .result import SIGNAL_UNITS
 from .units import to_si
 
-__all__ = ["Trigger", "parse_condition", "parse_stages", "parse_triggers", "check_stages", "KINEMATIC_SIGNALS"]
+__all__ = ["Trigger", "parse_condition", "parse_stages", "parse_triggers", "check_stages", "KINEMATIC_SIGNALS",
+           "STATE_SIGNALS", "signal", "condition", "resolve_thresholds"]
 
 #: Signals every vehicle has, with their SI units (from the one table of core signals).
 KINEMATIC_SIGNALS = {k: SIGNAL_UNITS[k] for k in ("time", "altitude", "speed", "vertical_speed", "distance", "mass")}
+#: The signals read from the state vector alone (the others are read from the balance's snapshot).
+STATE_SIGNALS = ("time", "altitude", "speed", "vertical_speed", "distance")
 _COND = re.compile(r"^\s*([A-Za-z_][\w.\-]*)\s*([<>])\s*(.+?)\s*$")
 _ACTIONS = ("separate", "switch", "stop")
 _DELAY = Quantity("after", "s", low=0.0, high=1e6, doc="the delay between the condition and the action")
@@ -71,6 +75,49 @@ class Trigger:
     component: str = ""
     mode: str = ""
     delay: float = 0.0
+
+    @property
+    def needs_snapshot(self) -> bool:
+        """Whether its signal is read from the balance's snapshot (a component's signal, the mass)."""
+        return self.signal not in STATE_SIGNALS
+
+
+def signal(name: str, t: Any, s: Any, x0: Any, snapshot: Callable[[Any, Any], dict], ops: Any) -> Any:
+    """The value of a signal at time ``t`` and state ``s``, one definition for one design (floats, ``ops`` the
+    scalar namespace of :mod:`thrustgraph.xp`) and for an ensemble (arrays over designs).
+
+    The kinematic signals come from the state (``distance`` from the launch point ``x0``); every other one is
+    read from ``snapshot(t, s)``, the balance's record of every term and signal (NaN when the vehicle does not
+    have it, e.g. a component a separation dropped).
+
+    >>> from thrustgraph.xp import scalar_ops
+    >>> signal("distance", 0.0, [3.0, 4.0, 0.0], (0.0, 0.0, 0.0), dict, scalar_ops)
+    5.0
+    >>> signal("bottle.pressure", 0.0, [0.0] * 6, (0.0, 0.0, 0.0), lambda t, s: {}, scalar_ops)
+    nan
+    """
+    if name == "time":
+        return t
+    if name == "altitude":
+        return s[2]
+    if name == "speed":
+        return ops.sqrt(s[3] * s[3] + s[4] * s[4] + s[5] * s[5])
+    if name == "vertical_speed":
+        return s[5]
+    if name == "distance":
+        dx, dy, dz = s[0] - x0[0], s[1] - x0[1], s[2] - x0[2]
+        return ops.sqrt(dx * dx + dy * dy + dz * dz)
+    return snapshot(t, s).get(name, math.nan)
+
+
+def condition(tr: Trigger, t: Any, s: Any, x0: Any, snapshot: Callable[[Any, Any], dict], ops: Any) -> Any:
+    """A trigger's condition as a continuous function: its signal less its threshold (SI).
+
+    The trigger fires where this crosses zero in ``tr.direction`` (rising for ">", falling for "<"), and at
+    once where ``tr.direction * condition > 0`` as a phase starts (already true). Its action comes ``tr.delay``
+    seconds after the condition is met.
+    """
+    return signal(tr.signal, t, s, x0, snapshot, ops) - tr.threshold
 
 
 def parse_condition(text: Any, where: str) -> tuple[str, float, str]:
