@@ -34,7 +34,7 @@ from .interrupts import Terminated, exit_status, stop_on_signals
 __all__ = ["main", "COMMANDS", "build_parser"]
 
 # Sub-command modules, in the order `thrustgraph --help` lists them.
-COMMANDS = ["run", "compare", "calibrate", "check", "kinds", "new", "export", "graph", "plot", "report", "study"]
+COMMANDS = ["run", "compare", "overlay", "calibrate", "check", "kinds", "new", "export", "graph", "plot", "report", "study"]
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -25,6 +25,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from .frames import flight_frame
 from .outputfiles import atomic_write
 from .units import Q_
 from .errors import ThrustgraphError
@@ -232,7 +233,8 @@ class FlightResult:
 
         With ``provenance=True`` the text starts with ``#`` comment lines
         naming the tool version, the plugin versions and the model hash (what
-        :meth:`write_csv` writes); :func:`thrustgraph.records.read_record` reads such a file back (a time
+        :meth:`write_csv` writes) and the summary (:meth:`outcome_lines`);
+        :func:`thrustgraph.records.read_record` reads such a file back (a time
         repeated at a phase boundary holds the values just before and just after it; ``nan`` where a signal has
         no value, e.g. a stage's after it was dropped).
 
@@ -244,7 +246,7 @@ class FlightResult:
         cols = self.columns()
         buf = io.StringIO()
         if provenance:
-            buf.writelines(f"# {line}\n" for line in self.provenance_lines())
+            buf.writelines(f"# {line}\n" for line in self.provenance_lines() + self.outcome_lines())
         w = csv.writer(buf, lineterminator="\n")
         w.writerow([f"{n} [{u or '1'}]" for n, u, _ in cols] + [f"phase [{TEXT_UNIT}]"])
         data = np.column_stack([c for _, _, c in cols])
@@ -291,6 +293,23 @@ class FlightResult:
                  f"model: {prov.get('model_name', '?')}",
                  f"model sha256: {prov.get('model_sha256', '?')}"]
         return lines
+
+    def outcome_lines(self) -> list[str]:
+        """The summary as lines ``outcome KEY [UNIT] = VALUE`` (SI; ``repr`` of the float, which reads back
+        exactly): the CSV export writes them among its ``#`` lines, so a saved result keeps its outcomes
+        (:func:`thrustgraph.overlay.run_of_record` reads them).
+
+        >>> from thrustgraph import fly
+        >>> fly().outcome_lines()[0]
+        'outcome flight_time [s] = 6.749...'
+        """
+        return [f"outcome {k} [{self.unit(k) or '1'}] = {v!r}" for k, v in self.summary.items()]
+
+    def to_pandas(self):
+        """The time series as a pandas DataFrame (optional dependency ``pandas``): index ``time`` (s), every
+        column of :meth:`columns` in SI and the ``phase``; units in ``attrs["units"]``
+        (:func:`thrustgraph.frames.flight_frame`)."""
+        return flight_frame(self)
 
     def write_csv(self, path: Any) -> None:
         """Write the time series to a CSV file (atomically), with provenance comment lines (``#``) first."""

@@ -51,6 +51,7 @@ from .ensemble import COMPUTED
 from .designs import DesignParameter, within_bounds
 from .engines import FLIGHTS, ENGINES, FlightTask, chunks, default_chunk_size, make_engine
 from .errors import ModelError
+from .frames import design_frame, sensitivity_frame
 from .limits import MAX_DESIGNS, check_count
 from .model import Model, ParsedModel, parse_model
 from .outcomes import OUTCOMES, STATUS_NOT_RUN, STATUS_OK, STATUS_SCREENED, check_outputs, default_outputs
@@ -160,6 +161,11 @@ class DesignTable:
             cells.append(f'"{note}"' if ("," in note or "\n" in note) else note)
             buf.write(",".join(cells) + "\n")
         return buf.getvalue()
+
+    def to_pandas(self):
+        """The designs as a pandas DataFrame (optional dependency ``pandas``): one row per design, the parameters
+        and outcomes in SI, units in ``attrs["units"]`` (:func:`thrustgraph.frames.design_frame`)."""
+        return design_frame(self, {o: OUTCOMES[o].unit for o in self.outputs})
 
     def write_csv(self, path: str | os.PathLike[str]) -> None:
         """Write :meth:`to_csv` atomically (a temporary file renamed into place)."""
@@ -397,6 +403,11 @@ class Sensitivity:
     steps: np.ndarray
     scheme: tuple[str, ...]
     table: DesignTable
+
+    def to_pandas(self):
+        """The sensitivities as a pandas DataFrame, one row per (outcome, parameter), SI
+        (:func:`thrustgraph.frames.sensitivity_frame`)."""
+        return sensitivity_frame(self, {o: OUTCOMES[o].unit for o in self.outputs})
 
     def per_unit(self, output: str, path: str) -> float:
         """The derivative in the output's SI unit per one of the parameter's shown units."""
