@@ -42,6 +42,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from .displayunits import current
 from .errors import ModelError
 from .outcomes import OUTCOMES
 from .outcomespec import OutcomeSpec
@@ -231,14 +232,17 @@ class Overlay:
         return rows
 
     def format_table(self) -> str:
-        """The table of outcome differences as text for people: values in each outcome's display unit."""
+        """The table of outcome differences as text for people: values in each outcome's display unit, or in the
+        units of choice in force (:func:`thrustgraph.displayunits.using`)."""
         rows = self.table()
         labels = [r.label for r in self.runs]
         head = [("outcome", 30)] + [(lab, max(14, len(lab))) for lab in labels]
         head += [(f"{lab} - {labels[0]}", max(14, len(lab) + len(labels[0]) + 3)) for lab in labels[1:]]
         lines = ["  ".join(f"{h:<{w}s}" for h, w in head).rstrip()]
         for row in rows:
-            unit = row.spec.display
+            finite = [abs(v) for v in row.values if v is not None and math.isfinite(v)]
+            unit = current().unit_for(row.spec.unit, max(finite, default=math.nan), row.spec.display) \
+                if row.spec.unit else ""
             cells = [f"{row.spec.label:<30s}"]
             for (_, w), v in zip(head[1:], row.values):
                 cells.append(f"{_shown(row.spec, v, unit):<{w}s}")
@@ -272,8 +276,21 @@ class Overlay:
 def _shown(spec: OutcomeSpec, value: float | None, unit: str, signed: bool = False) -> str:
     if value is None:
         return "-"
-    text = f"{spec.shown(value, unit):{'+' if signed else ''}.5g}"
+    number = spec.shown(value, unit) if not signed else value * _factor(spec.unit, unit)
+    text = f"{number:{'+' if signed else ''}.5g}"
     return f"{text} {unit}" if unit else text
+
+
+def _factor(si: str, unit: str) -> float:
+    """Size of one SI unit in ``unit``, for differences (a difference of temperatures has no offset)."""
+    if not si or unit == si:
+        return 1.0
+    return float(Q_(1.0, si).to(unit).magnitude) if not _offset(unit) else \
+        float(Q_(1.0, f"delta_{unit}").to(si).magnitude) ** -1
+
+
+def _offset(unit: str) -> bool:
+    return unit in ("degC", "degF", "celsius", "fahrenheit", "degR")
 
 
 def unique_labels(labels: Sequence[str]) -> list[str]:

@@ -27,6 +27,7 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
+from .displayunits import axis_scale, convert_array
 from .overlay import Overlay
 from .plotkinds import OVERLAY, PLOTS, plots_for
 from .plots import _RC, plain, render
@@ -36,8 +37,8 @@ __all__ = ["OVERLAY", "thrust_overlay", "mass_overlay", "motion_overlay", "press
 
 _COLOURS = ["#1f5fbf", "#e07b00", "#2a9d3a", "#c0392b", "#7d4cb0", "#8c5a3c", "#d45d9e", "#6b6b6b", "#b5a300",
             "#1aa3b8"]
-#: Display unit and factor of the SI units the overlay's axes show in another unit.
-_AXIS_UNITS = {"Pa": ("bar", 1e-5)}
+#: The unit an axis of these SI units is shown in under SI (a vessel pressure in bar, as the flight's plots).
+_DISPLAY = {"Pa": "bar"}
 
 
 def _new(rows: int, size: tuple[float, float]):
@@ -48,15 +49,19 @@ def _new(rows: int, size: tuple[float, float]):
 
 def _draw(ax, ov: Overlay, signal: str, *, style_of: Any = None) -> bool:
     """Every run's ``signal`` on ``ax``; False when no run has it."""
+    having = [run for run in ov.runs if signal in run.signals]
+    if not having:
+        return False
+    unit = having[0].units.get(signal, "")    # one unit for the axis, picked for every run's values together
+    f, name = axis_scale(unit, np.concatenate([np.ravel(r.signals[signal]) for r in having]),
+                         display=_DISPLAY.get(unit))
     drawn = False
     for k, run in enumerate(ov.runs):
         if signal not in run.signals:
             continue
-        unit = run.units.get(signal, "")
-        name, f = _AXIS_UNITS.get(unit, (unit, 1.0))
         colour = _COLOURS[k % len(_COLOURS)]
         label = plain(run.label if style_of is None else f"{run.label}: {style_of}")
-        y = np.asarray(run.signals[signal], dtype=float) * f
+        y = convert_array(run.signals[signal], run.units.get(signal, ""), unit) * f   # a record's own SI name
         if run.predicted:
             ax.plot(run.t, y, color=colour, lw=2.0 if k == 0 else 1.3, label=label, zorder=3 if k == 0 else 2)
         else:

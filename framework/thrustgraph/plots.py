@@ -33,6 +33,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.patches import FancyBboxPatch, Patch
 
+from .displayunits import axis_scale, current, shown
 from .outputfiles import write_all
 from .plotkinds import FLIGHT, IMAGE_FORMATS, PLOTS
 from .plotkinds import names as plot_names
@@ -123,7 +124,16 @@ def _limit(ax, result: FlightResult, t_max: float | None, t_min: float | None = 
 
 
 def _mass_unit(result: FlightResult) -> tuple[str, float]:
+    if not current().is_si:
+        f, unit = axis_scale("kg", result.signals["mass"])
+        return unit, f
     return ("g", 1e3) if float(np.max(result.signals["mass"])) < 2.0 else ("kg", 1.0)
+
+
+def _scale(si: str, *values: Any, display: str | None = None) -> tuple[float, str]:
+    """(factor, unit) of an axis of SI values in the units of choice in force (:func:`axis_scale`)."""
+    arrays = [np.ravel(np.asarray(v, dtype=float)) for v in values]
+    return axis_scale(si, np.concatenate(arrays) if arrays else np.empty(0), display=display)
 
 
 def _title(fig, result: FlightResult, what: str) -> None:
@@ -138,8 +148,15 @@ def summary_title(r: FlightResult, keys: Iterable[str]) -> str:
     >>> summary_title(fly(), ("apogee", "peak_acceleration"))
     'apogee 54.32 m, peak acceleration 1177 m/s^2 (120 g0)'
     """
-    return ", ".join(f"{r.outcome_specs[k].label} {r.outcome_specs[k].text(r.summary[k], 4)}"
+    return ", ".join(f"{r.outcome_specs[k].label} {_text(r.outcome_specs[k], r.summary[k])}"
                      for k in keys if k in r.summary and k in r.outcome_specs)
+
+
+def _text(spec: Any, value: float) -> str:
+    """An outcome's value in the units of choice in force, and in its ``also`` units (``g0``)."""
+    v, unit = shown(value, spec.unit, display=spec.display)
+    extra = ", ".join(f"{spec.shown(value, u):.4g} {u}" for u in spec.also)
+    return f"{v:.4g}" + (f" {unit}" if unit else "") + (f" ({extra})" if extra else "")
 
 
 # ---------------------------------------------------------------------------
@@ -151,11 +168,12 @@ def thrust_figure(r: FlightResult) -> Figure:
     fig, ax = _new(2, 1, (8.0, 5.5), sharex=True)
     a, b = ax[0, 0], ax[1, 0]
     sources = [k[:-len(".thrust")] for k in r.signals if k.endswith(".thrust")]
-    a.plot(r.t, r.signals["thrust"], color=MAIN, lw=1.8, label="thrust along the body axis", zorder=3)
+    kf, ku = _scale("N", r.signals["thrust"])
+    a.plot(r.t, r.signals["thrust"] * kf, color=MAIN, lw=1.8, label="thrust along the body axis", zorder=3)
     if len(sources) > 1:
         for k, n in enumerate(sources):
-            a.plot(r.t, r.signals[f"{n}.thrust"], lw=1.0, color=_TERM_COLOURS[(k + 1) % 10], label=plain(n))
-    a.set_ylabel("thrust [N]")
+            a.plot(r.t, r.signals[f"{n}.thrust"] * kf, lw=1.0, color=_TERM_COLOURS[(k + 1) % 10], label=plain(n))
+    a.set_ylabel(f"thrust [{ku}]")
     a.legend(loc="upper right")
     title = summary_title(r, ("peak_thrust", "total_impulse"))
     if title:
@@ -163,6 +181,8 @@ def thrust_figure(r: FlightResult) -> Figure:
     flows = [n for n in sources if f"{n}.mass_flow" in r.signals]
     peak_flow = max((float(np.max(r.signals[f"{n}.mass_flow"])) for n in flows), default=0.0)
     unit, f = ("kg/s", 1.0) if peak_flow >= 1.0 else ("g/s", 1e3)
+    if not current().is_si:
+        f, unit = _scale("kg/s", [peak_flow])
     for n in flows:
         b.plot(r.t, r.signals[f"{n}.mass_flow"] * f, lw=1.3, label=plain(n))
     b.set_ylabel(f"mass flow [{unit}]")
@@ -205,12 +225,13 @@ def pressure_figure(r: FlightResult) -> Figure | None:
     w = powered_window(r)
     fig, ax = _new(1, 1, (8.0, 4.5))
     a = ax[0, 0]
+    pf, pu = _scale("Pa", *(r.signals[k] for k in keys), display="bar")
     for k, key in enumerate(keys):
-        a.plot(r.t, r.signals[key] / 1e5, lw=1.8, color=_TERM_COLOURS[k % 10], label=plain(f"{key[:-9]} (absolute)"),
+        a.plot(r.t, r.signals[key] * pf, lw=1.8, color=_TERM_COLOURS[k % 10], label=plain(f"{key[:-9]} (absolute)"),
                zorder=3)
     if "ambient_pressure" in r.signals:
-        a.plot(r.t, r.signals["ambient_pressure"] / 1e5, color="#444444", lw=1.0, ls=":", label="ambient")
-    a.set_ylabel("pressure [bar]")
+        a.plot(r.t, r.signals["ambient_pressure"] * pf, color="#444444", lw=1.0, ls=":", label="ambient")
+    a.set_ylabel(f"pressure [{pu}]")
     a.set_xlabel("time [s]" + (" (powered flight)" if w else ""))
     a.legend(loc="upper right")
     a.set_title("vessel pressure (a prediction, not a rating of any vessel)")
@@ -223,8 +244,11 @@ def pressure_figure(r: FlightResult) -> Figure | None:
 def motion_figure(r: FlightResult) -> Figure:
     fig, ax = _new(3, 1, (8.0, 7.5), sharex=True)
     s = r.signals
-    rows = [("altitude", 1.0, "altitude [m]"), ("speed", 1.0, "speed [m/s]"),
-            ("acceleration_magnitude", 1.0, "acceleration [m/s²]")]
+    rows = []
+    for key, si, word in (("altitude", "m", "altitude"), ("speed", "m/s", "speed"),
+                          ("acceleration_magnitude", "m/s^2", "acceleration")):
+        f, unit = _scale(si, s[key])
+        rows.append((key, f, f"{word} [{unit.replace('^2', '²')}]"))
     for (key, f, label), a in zip(rows, ax[:, 0]):
         a.plot(r.t, s[key] * f, color=MAIN, lw=1.6, zorder=3)
         a.set_ylabel(label)
@@ -240,7 +264,8 @@ def motion_figure(r: FlightResult) -> Figure:
 def trajectory_figure(r: FlightResult) -> Figure:
     fig, ax = _new(1, 1, (8.0, 5.0))
     a = ax[0, 0]
-    x, z = r.signals["range"], r.signals["altitude"]
+    lf, lu = _scale("m", r.signals["range"], r.signals["altitude"])
+    x, z = r.signals["range"] * lf, r.signals["altitude"] * lf
     a.plot(x, z, color=MAIN, lw=1.8, zorder=3)
     marks = {"guide exit": "^", "apogee": "o", "ground impact": "v", "liquid exhausted": "s", "gas exhausted": "D",
              "burnout": "s"}
@@ -248,11 +273,11 @@ def trajectory_figure(r: FlightResult) -> Figure:
         if e.name in marks:
             i = min(int(np.searchsorted(r.t, e.t)), len(r.t) - 1)
             a.plot([x[i]], [z[i]], marks[e.name], ms=6, zorder=4, ls="", markeredgecolor="#333333",
-                   label=plain(f"{e.name}: t = {e.t:.4g} s, {x[i]:.3g} m, {z[i]:.3g} m up"))
+                   label=plain(f"{e.name}: t = {e.t:.4g} s, {x[i]:.3g} {lu}, {z[i]:.3g} {lu} up"))
     if a.get_legend_handles_labels()[0]:
         a.legend(loc="upper left", title="events (time, distance, altitude)", title_fontsize=8)
-    a.set_xlabel("horizontal distance from the launch point [m]")
-    a.set_ylabel("altitude [m]")
+    a.set_xlabel(f"horizontal distance from the launch point [{lu}]")
+    a.set_ylabel(f"altitude [{lu}]")
     if float(np.ptp(x)) > 0 and float(np.ptp(z)) > 0:
         a.set_aspect("equal", adjustable="datalim")
     _title(fig, r, "Trajectory")
@@ -298,14 +323,15 @@ def _ledger(r: FlightResult, directions: tuple[str, ...]) -> Figure:
     colours = {n: _TERM_COLOURS[k % len(_TERM_COLOURS)] for k, n in enumerate(names)}
     shown: list[str] = []
     label = {"axis": "along the body axis", "x": "along x (downrange)", "y": "along y", "z": "along z (up)"}
+    ff, fu = _scale("N", *r.ledger.values())
     for i, d in enumerate(directions):
-        terms = _terms(r.ledger_along(d))
+        terms = [(n, v * ff) for n, v in _terms(r.ledger_along(d))]
         shown += [n for n, _ in terms if n not in shown]
         windows = [(None, w), (w, None)] if w else [(None, None)]
         for j, window in enumerate(windows):
             a = ax[i, j]
             _stack(a, r, terms, colours, window)
-            a.set_ylabel(f"force {label[d]} [N]")
+            a.set_ylabel(f"force {label[d]} [{fu}]")
             if i == 0:
                 a.set_title({0: "powered flight", 1: "after the powered flight"}[j] if w else "whole flight")
             if i == rows - 1:

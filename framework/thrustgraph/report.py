@@ -31,6 +31,7 @@ from typing import Any, Iterable
 import numpy as np
 from scipy.integrate import trapezoid
 
+from .displayunits import shown
 from .model import Model
 from .modelfile import check_model, dumps_model
 from .outputfiles import atomic_write
@@ -193,11 +194,12 @@ def render_report(result: FlightResult, model: Model, *, parsed: Any = None, plo
         spec = result.outcome_specs.get(key)
         if spec is None:
             unit = result.unit(key)
-            rows.append((key, _num(value, 5), _unit_text(unit), _num(value, 9), _unit_text(unit)))
+            v, u = shown(value, unit)          # in the units of choice in force (SI by default)
+            rows.append((key, _num(v, 5), _unit_text(u), _num(value, 9), _unit_text(unit)))
         elif spec.show(result.summary):
-            unit = _unit_text(spec.display) + "".join(f" ({_num(spec.shown(value, u), 4)} {_unit_text(u)})"
-                                                      for u in spec.also)
-            rows.append((spec.label, _num(spec.shown(value), 5), unit, _num(value, 9), _unit_text(spec.unit)))
+            v, u = shown(value, spec.unit, display=spec.display)
+            unit = _unit_text(u) + "".join(f" ({_num(spec.shown(value, a), 4)} {_unit_text(a)})" for a in spec.also)
+            rows.append((spec.label, _num(v, 5), unit, _num(value, 9), _unit_text(spec.unit)))
     parts.append('<section id="summary"><h2>Summary</h2>')
     parts.append(_table(("quantity", "value", "unit", "SI value", "SI unit"), rows, numeric=(1, 3)))
     parts.append("</section>")

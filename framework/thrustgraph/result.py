@@ -25,6 +25,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from .displayunits import UnitChoice, convert_array, current, shown
 from .frames import flight_frame
 from .outputfiles import atomic_write
 from .units import Q_
@@ -227,6 +228,19 @@ class FlightResult:
                 cols.append((f"ledger.{comp}.{term.replace(' ', '_')}.{c}", "N", arr[:, k]))
         return cols
 
+    def shown_columns(self, units: UnitChoice | None = None) -> list[tuple[str, str, np.ndarray]]:
+        """:meth:`columns` in the units of choice (``units``, else those in force,
+        :func:`thrustgraph.displayunits.using`): a quantity chosen (or of the imperial system) converted, the rest
+        SI; never scaled by magnitude."""
+        choice = current() if units is None else units
+        if choice.is_si:
+            return self.columns()
+        out = []
+        for name, unit, values in self.columns():
+            to = choice.fixed_unit(unit)
+            out.append((name, to, convert_array(values, unit, to)))
+        return out
+
     def to_csv(self, *, provenance: bool = False) -> str:
         """CSV text: one row per output time; every header carries its SI unit as ``name [unit]`` (``[1]`` for a
         pure number), the last column ``phase [text]`` the phase's name.
@@ -236,14 +250,15 @@ class FlightResult:
         :meth:`write_csv` writes) and the summary (:meth:`outcome_lines`);
         :func:`thrustgraph.records.read_record` reads such a file back (a time
         repeated at a phase boundary holds the values just before and just after it; ``nan`` where a signal has
-        no value, e.g. a stage's after it was dropped).
+        no value, e.g. a stage's after it was dropped). Values are SI, or in the units of choice in force
+        (:meth:`shown_columns`; each header names its unit either way).
 
         >>> from thrustgraph import fly
         >>> head = fly().to_csv().splitlines()[0].split(",")
         >>> head[0], head[-1], [h for h in head if h.startswith("axis")]
         ('time [s]', 'phase [text]', ['axis.x [1]', 'axis.y [1]', 'axis.z [1]'])
         """
-        cols = self.columns()
+        cols = self.shown_columns()
         buf = io.StringIO()
         if provenance:
             buf.writelines(f"# {line}\n" for line in self.provenance_lines() + self.outcome_lines())
@@ -257,7 +272,9 @@ class FlightResult:
     def to_json(self) -> str:
         """JSON text: summary, phases, events, audit and provenance (no time series).
 
-        Each summary entry holds its SI ``value``, its SI ``unit`` and its ``label``, from the outcome registry.
+        Each summary entry holds its SI ``value``, its SI ``unit`` and its ``label``, from the outcome registry;
+        under units of choice other than SI (:func:`thrustgraph.displayunits.using`) also ``shown``, the value and
+        unit people read.
         """
         doc = {
             "summary": {k: self._summary_entry(k, v) for k, v in self.summary.items()},
@@ -274,9 +291,14 @@ class FlightResult:
 
     def _summary_entry(self, key: str, value: float) -> dict[str, Any]:
         spec = self.outcome_specs.get(key)
-        if spec is None:
-            return {"value": value, "unit": self.units.get(key, "")}
-        return {"value": value, "unit": spec.unit, "label": spec.label}
+        entry: dict[str, Any] = {"value": value, "unit": self.unit(key)}
+        if spec is not None:
+            entry["label"] = spec.label
+        choice = current()
+        if not choice.is_si:     # the value as the units of choice show it, beside the SI value
+            v, u = shown(value, entry["unit"], choice, display=spec.display if spec is not None else None)
+            entry["shown"] = {"value": v, "unit": u}
+        return entry
 
     # -- export to files (added for the command line and the Python API) -----
     def provenance_lines(self) -> list[str]:
@@ -334,7 +356,7 @@ class FlightResult:
             raise ThrustgraphError("Parquet output needs pyarrow, which is not installed. Fix: pip install "
                                    "'thrustgraph[parquet]' (or pip install pyarrow), or write CSV instead.") from None
         fields, arrays = [], []
-        for name, unit, values in self.columns():
+        for name, unit, values in self.shown_columns():
             fields.append(pa.field(name, pa.float64(), metadata={"unit": unit}))
             arrays.append(pa.array(np.asarray(values, dtype=float)))
         fields.append(pa.field("phase", pa.string()))

@@ -21,7 +21,8 @@ from typing import Any
 from ..errors import ModelError
 from ..plotkinds import IMAGE_FORMATS, OVERLAY, names
 from ..records import read_record, shift
-from .common import add_set_option, parse_override
+from ..displayunits import using
+from .common import add_set_option, add_units_option, parse_override, units_choice
 from .compare import mapping_from
 from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, \
     write_outputs
@@ -58,6 +59,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
                    help=f"image format of the plots: {', '.join(IMAGE_FORMATS)} or both (default png)")
     o.add_argument("--only", action="append", choices=names(OVERLAY), metavar="PLOT",
                    help=f"draw only this plot (repeatable): {', '.join(names(OVERLAY))}")
+    add_units_option(p)
     add_quiet_option(p)
 
 
@@ -85,12 +87,14 @@ def main(args: argparse.Namespace) -> int:
     # read and check everything before the first flight
     planned: list[tuple[str, Any]] = []          # ("record", Record) or ("model", (label, Model, parsed))
     first_model: str | None = None
+    first_parsed: Any = None
     for name in args.runs:
         if _is_record(name):
             planned.append(("record", read_record(name, time_column=args.time_column)))
         else:
             model, parsed = load_checked(name, args.overrides)
             first_model = first_model or name
+            first_parsed = first_parsed or parsed
             planned.append(("model", (default_stem(model), model, parsed)))
     for text in args.variant:
         if first_model is None:
@@ -101,6 +105,7 @@ def main(args: argparse.Namespace) -> int:
         short = "; ".join(f"{key.rsplit('.', 1)[-1]}={value}" for key, value in settings)
         label = f"{default_stem(model)} ({short})"
         planned.append(("model", (label, model, parsed)))
+    choice = units_choice(args, first_parsed)    # --units, else the first model's [run] units
     measured = [rec for kind, rec in planned if kind == "record" and not rec.exported]
     mapping = mapping_from(args) if measured else ()
     if args.maps and not measured:
@@ -128,15 +133,16 @@ def main(args: argparse.Namespace) -> int:
     for r in overlay.runs:
         print(f"  {r.label}: {r.kind}, {r.source}")
     print()
-    print(overlay.format_table())
     outputs: list[tuple[Any, Any]] = []
-    if args.table:
-        outputs.append((args.table, overlay.to_csv()))
-    if args.plots:
-        from ..overlayplots import overlay_figures, render
+    with using(choice):       # the table printed and the plots in the units of choice; the CSV table stays SI
+        print(overlay.format_table())
+        if args.table:
+            outputs.append((args.table, overlay.to_csv()))
+        if args.plots:
+            from ..overlayplots import overlay_figures, render
 
-        outputs += [(Path(args.plots) / f"{n}.{fmt}", render(fig, fmt))
-                    for n, fig in overlay_figures(overlay, args.only).items() for fmt in formats]
+            outputs += [(Path(args.plots) / f"{n}.{fmt}", render(fig, fmt))
+                        for n, fig in overlay_figures(overlay, args.only).items() for fmt in formats]
     write_outputs(outputs, directories=[args.plots])
     return 0
 
