@@ -25,11 +25,19 @@ from .contract import check_system
 from .errors import ModelError
 from .model import Model, ParsedModel, parse_model
 from .plan import ACCUMULATORS, KINEMATIC, Constraint, Plan, build_plan
-from .straightline import LineCache
 from .vectors import Vec, unit_from_angles
 from .xp import scalar_ops
 
 __all__ = ["System", "assemble", "ACCUMULATORS", "KINEMATIC", "constraint_of"]
+
+
+class LineCache(dict):
+    """What the balance compiles for a system (straight lines by phase, see
+    :mod:`thrustgraph.straightline`); pickled empty (compiled code does not travel between processes: each
+    traces its own)."""
+
+    def __reduce__(self) -> tuple:
+        return (LineCache, ())
 
 
 @dataclass(frozen=True)

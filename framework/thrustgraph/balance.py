@@ -49,7 +49,7 @@ from .errors import IntegrationError
 from .plan import ACCUMULATORS, LinePlan, Plan, build_plan
 from .straightline import TraceError, compile_function, trace_ops
 from .vectors import frame_of, solve_rank_one, to_world
-from .xp import scalar_ops
+from .xp import array_ops, scalar_ops
 
 __all__ = ["Balance", "Kinematics", "LineFlow", "ACCUMULATORS", "SINGULAR", "STRAIGHT_AFTER"]
 
@@ -150,8 +150,10 @@ class Balance:
         made = getattr(system, "straight_lines", None)
         self._lines_made: dict[tuple, Any] = made if isinstance(made, dict) else {}
         self._tracer: Balance | None = None
+        self._sampler: Balance | None = None
         #: why tracing failed, per phase and request (for tests and diagnosis)
         self.untraced: dict[tuple, str] = {}
+        self._phases: dict[tuple, dict] = {}
         self.set_phase([0] * len(plan.moded) if not hasattr(system, "mode0") else list(system.mode0),
                        Kinematics.BY_MOUNT[c.mount], False)
 
@@ -165,6 +167,13 @@ class Balance:
         the segment when the vehicle comes to rest; 0 lets the friction follow the current speed (static
         friction at rest).
         """
+        if self._traceable:
+            # one design: a phase seen before is restored whole (outcomes set each segment's phase many times)
+            key = (tuple(modes), kinematics, descending, float(slide))
+            known = self._phases.get(key)
+            if known is not None:
+                self.__dict__.update(known)
+                return
         ops = self.ops
         plan = self.plan
         self.modes = list(modes)
@@ -225,10 +234,12 @@ class Balance:
         self._outlets = sorted({k for j, k in self._vessel_lines if self._live[j]})
         self._outlets_all = sorted({k for j, k in self._vessel_lines})
         self._outlets_terms = sorted({k for j, k in self._vessel_lines if self._live_terms[j]})
-        self._phase_key = (tuple(self.modes), self.kinematics, descending, self.slide) if self._traceable else None
-        self._rhs_line = self._lines_made.get((self._phase_key, "rhs")) or None
-        self._core_line = self._lines_made.get((self._phase_key, "core")) or None
-        self._seen = {"rhs": 0, "core": 0}
+        self._phase_key = (tuple(self.modes), self.kinematics, descending, float(slide)) if self._traceable else None
+        # this phase's straight lines by (request, number of states given): a solver without audits passes
+        # the physical states alone, one with audits the accumulators too
+        self._lines_now = self._lines_made.setdefault(("lines", self._phase_key), {})
+        if self._traceable:
+            self._phases[self._phase_key] = {k: self.__dict__[k] for k in _PHASE_ATTRIBUTES}
 
     def _start_mode(self, ln: LinePlan) -> Any:
         return self._vmode[ln.start_index] if ln.from_vessel else self._smode[ln.start_index]
@@ -236,14 +247,14 @@ class Balance:
     # ------------------------------------------------------------------
     def rhs(self, t: float, y: Any) -> list[float]:
         """Time derivative of the flat state vector (SI): kinematics, component states, audit accumulators."""
-        f = self._rhs_line
+        f = self._lines_now.get(("rhs", len(y)))
         if f is not None:
             return f(t, y)
         return self._general(t, y, "rhs")
 
     def core(self, t: float, y: Any) -> list[float]:
         """The derivatives of the physical states alone (no audit accumulators), for runs without audits."""
-        f = self._core_line
+        f = self._lines_now.get(("core", len(y)))
         if f is not None:
             return f(t, y)
         return self._general(t, y, "core")
@@ -252,16 +263,20 @@ class Balance:
         """The general evaluator; after :data:`STRAIGHT_AFTER` calls in one phase, the phase's straight line."""
         s = _as_list(y)
         if self._phase_key is not None:
-            n = self._seen[want] = self._seen[want] + 1
+            # counted per phase across this system's flights (short bursts, such as the refinement of a peak,
+            # add up over a study's repeated flights)
+            key = ("count", self._phase_key, want, len(s))
+            n = self._lines_made[key] = self._lines_made.get(key, 0) + 1
             if n == STRAIGHT_AFTER:
                 self.straight_line(want, len(s))
         return self._solve(t, s, want)
 
     def straight_line(self, want: str, n_states: int) -> Any:
-        """The current phase's straight-line function for ``want`` ("rhs" or "core"), traced and compiled once
+        """The current phase's straight-line function for ``want`` ("rhs", "core", "terms" or "drives"), traced
+        and compiled once
         per phase (:mod:`thrustgraph.straightline`); None when this vehicle or phase cannot be traced (the
         reason is kept in :attr:`untraced`). From then on :meth:`rhs` / :meth:`core` call it."""
-        key = (self._phase_key, want)
+        key = (self._phase_key, want, n_states)
         fn = self._lines_made.get(key)
         if fn is None and self._phase_key is not None:
             try:
@@ -272,11 +287,26 @@ class Balance:
                 self.untraced[key] = f"{type(exc).__name__}: {exc}"
                 fn = False
             self._lines_made[key] = fn
-        if want == "rhs":
-            self._rhs_line = fn or None
-        else:
-            self._core_line = fn or None
+        if fn:
+            self._lines_made.setdefault(("lines", self._phase_key), {})[(want, n_states)] = fn
         return fn or None
+
+    def sampling_balance(self) -> "Balance | None":
+        """This vehicle's balance over numpy arrays of samples (its plan rebuilt over
+        :data:`~thrustgraph.xp.array_ops`, parameters kept as floats), for a whole segment's output samples at
+        once (:mod:`thrustgraph.sampling`); None when a kind is not written to the one-definition convention."""
+        if not self._traceable:
+            return None
+        if self._sampler is None:
+            self._sampler = self._lines_made.get(("sampler",))
+        if self._sampler is None:
+            sy = self.system
+            parsed = sy.parsed
+            plan = build_plan(parsed, parsed.params, parsed.env_params, array_ops, parsed.ambient, sy.slices,
+                              sy.moded, self.plan.constraint)
+            self._sampler = self._lines_made[("sampler",)] = Balance(_Traced(plan, getattr(sy, "mode0", ())),
+                                                                     ops=array_ops)
+        return self._sampler
 
     def _tracing_balance(self) -> "Balance":
         """This vehicle's balance over :data:`~thrustgraph.straightline.trace_ops` (its plan rebuilt with it)."""
@@ -294,7 +324,10 @@ class Balance:
         A vessel's drive is its outlet pressure with the liquid head minus ambient; an element's is the
         pressure at its inlet minus ambient.
         """
-        return self._solve(t, _as_list(y), "drives")
+        f = self._lines_now.get(("drives", len(y)))
+        if f is not None:
+            return f(t, y)
+        return self._general(t, y, "drives")
 
     def evaluate(self, t: float, y: Any) -> dict[str, Any]:
         """Every term of the balance at one instant, as a flat dict of SI values.
@@ -311,7 +344,10 @@ class Balance:
         ``accel`` (3-vector), ``thrust`` (thrust vector), ``thrust_axial`` (its component along the body axis, the
         ``thrust`` of :meth:`evaluate`), ``mass``, ``drive`` (name -> Pa) and ``singular`` (designs whose head
         coupling has no solution)."""
-        return self._solve(t, s, "terms")
+        f = self._lines_now.get(("terms", len(s)))
+        if f is not None:
+            return f(t, s)
+        return self._general(t, s, "terms")
 
     def mass(self, s: Sequence[Any]) -> Any:
         """The vehicle's mass (kg): the bodies' fixed mass and what its vessels and jets hold (needs no phase)."""
@@ -762,6 +798,13 @@ class Balance:
         rec["mass_flow"] = mass_flow
         rec["ledger"] = ledger
         rec["inertia"] = (M * a[0], M * a[1], M * a[2])
+
+
+#: what :meth:`Balance.set_phase` derives from the phase (restored whole when a phase comes back)
+_PHASE_ATTRIBUTES = ("modes", "kinematics", "descending", "_bmode", "_force_fns", "_vmode", "_smode", "_jmode",
+                     "_tmode", "_emode", "_kin", "_present", "_held_only", "slide", "_idle", "_live", "_live_all",
+                     "_live_terms", "_only", "_vessel_lines", "_outlets", "_outlets_all", "_outlets_terms",
+                     "_phase_key", "_lines_now")
 
 
 class _Traced(NamedTuple):

@@ -33,6 +33,7 @@ from .limits import check_output_samples
 from .model import Model, ParsedModel
 from .outcomes import OUTCOMES, kind_outcomes, run_summary
 from .result import Audit, Event, FlightResult, Phase, signal_unit
+from .sampling import SampleTable, join_tables, sample_terms
 from .separation import separate
 from .staging import KINEMATIC_SIGNALS, Trigger, condition, resolve_thresholds
 from .stepguard import StepGuard
@@ -535,7 +536,7 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
     run = system.run
     ts: list[np.ndarray] = []
     rows: list[tuple[np.ndarray, tuple[str, ...]]] = []
-    snaps: list[dict] = []
+    tables: list[SampleTable] = []
     phases: list[Phase] = []
     names: list[str] = []
     check_output_samples(float(segs.segments[-1][1].t[-1] - segs.segments[0][1].t[0]), run.output_interval)
@@ -553,8 +554,7 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
         yy = sol.sol(tt) if len(tt) > len(uniq_t) else sol.y[:, first].copy()
         yy[:, np.searchsorted(tt, uniq_t)] = sol.y[:, first]   # keep the solver's own points exact
         bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
-        for k in range(len(tt)):
-            snaps.append(bal.evaluate(float(tt[k]), yy[:, k]))
+        tables.append(sample_terms(bal, tt, yy))
         ts.append(tt)
         rows.append((yy, bal.system.state_names))
         for n in bal.system.state_names:
@@ -572,29 +572,8 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
             y[index[n], col:col + yy.shape[1]] = yy[k]
         col += yy.shape[1]
 
-    signals: dict[str, np.ndarray] = {}
-    keys: list[str] = []
-    seen: set[str] = set()
-    for snap in snaps:
-        for k in snap:
-            if k not in seen and k not in ("ledger", "derivatives", "time"):
-                seen.add(k)
-                keys.append(k)
-    for k in keys:
-        sample = next(snap[k] for snap in snaps if k in snap)
-        if isinstance(sample, tuple):
-            signals[k] = np.array([snap.get(k, (np.nan,) * 3) for snap in snaps], dtype=float)
-        else:
-            signals[k] = np.array([snap.get(k, np.nan) for snap in snaps], dtype=float)
-    ledger_keys: list[tuple[str, str]] = []
-    for snap in snaps:
-        for comp, term, _ in snap["ledger"]:
-            if (comp, term) not in ledger_keys:
-                ledger_keys.append((comp, term))
-    ledger = {key: np.zeros((len(snaps), 3)) for key in ledger_keys}
-    for i, snap in enumerate(snaps):
-        for comp, term, vec in snap["ledger"]:
-            ledger[(comp, term)][i] = vec
+    table = join_tables(tables)
+    signals, ledger = table.values, table.ledger
     signals["acceleration_magnitude"] = np.linalg.norm(signals["acceleration"], axis=1)
     signals["speed"] = np.linalg.norm(signals["velocity"], axis=1)
     signals["altitude"] = signals["position"][:, 2]

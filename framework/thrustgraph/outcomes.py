@@ -56,6 +56,7 @@ from scipy.optimize import minimize_scalar
 from .balance import Kinematics
 from .errors import ModelError, PluginError
 from .outcomespec import KEY_PATTERN, OutcomeSpec
+from .sampling import at_samples
 from .units import Q_
 
 
@@ -208,19 +209,22 @@ class Flight:
                 continue
             if getattr(sol, "sol", None) is None:
                 continue
-            t = sol.t
-            for k in range(len(t) - 1):
-                a, b = float(t[k]), float(t[k + 1])
-                if b <= a:
-                    continue
-                mid, half = 0.5 * (a + b), 0.5 * (b - a)
-                nodes = mid + half * _GAUSS_X
-                ys = sol.sol(nodes)
-                f = 0.0
-                for q in range(3):
-                    tv = bal.evaluate(float(nodes[q]), ys[:, q])["thrust_vector"]
-                    f += _GAUSS_W[q] * math.sqrt(tv[0] * tv[0] + tv[1] * tv[1] + tv[2] * tv[2])
-                total += half * f
+            t = np.asarray(sol.t, dtype=float)
+            a, b = t[:-1], t[1:]
+            keep = b > a
+            if not keep.any():
+                continue
+            mid, half = 0.5 * (a[keep] + b[keep]), 0.5 * (b[keep] - a[keep])
+            nodes = (mid[:, None] + half[:, None] * _GAUSS_X[None, :]).ravel()
+            ys = sol.sol(nodes)
+            snap = at_samples(bal, nodes, ys, "terms")
+            if snap is not None:
+                tv = snap["thrust"]
+                mag = np.sqrt(tv[0] * tv[0] + tv[1] * tv[1] + tv[2] * tv[2]) + np.zeros(len(nodes))
+            else:
+                mag = np.array([_norm3(bal.terms(float(nodes[q]), ys[:, q].tolist())["thrust"])
+                                for q in range(len(nodes))])
+            total += float(np.sum(half * (mag.reshape(-1, 3) @ _GAUSS_W)))
         return total
 
 
@@ -243,6 +247,9 @@ def _max_speed(f: Flight) -> float:
 def _accel_steps(ph: Any, sol: Any, bal: Any) -> np.ndarray:
     if ph.kin == Kinematics.HELD:
         return np.zeros(len(sol.t))
+    d = at_samples(bal, sol.t, sol.y, "core")
+    if d is not None:
+        return np.sqrt(d[3] * d[3] + d[4] * d[4] + d[5] * d[5]) + np.zeros(len(sol.t))
     return np.array([_norm3(bal.rhs(float(sol.t[k]), sol.y[:, k])[3:6]) for k in range(len(sol.t))])
 
 
@@ -258,8 +265,12 @@ def _peak_acceleration(f: Flight) -> float:
 
 def _peak_thrust(f: Flight) -> float:
     # the balance's snapshot without the ledger (the thrust is the same number evaluate() records)
-    return f.peak(lambda ph, sol, bal: [bal.terms(float(sol.t[k]), sol.y[:, k].tolist())["thrust_axial"]
-                                        for k in range(len(sol.t))],
+    def at_steps(ph: Any, sol: Any, bal: Any) -> Any:
+        snap = at_samples(bal, sol.t, sol.y, "terms")
+        if snap is not None:
+            return snap["thrust_axial"] + np.zeros(len(sol.t))
+        return [bal.terms(float(sol.t[k]), sol.y[:, k].tolist())["thrust_axial"] for k in range(len(sol.t))]
+    return f.peak(at_steps,
                   lambda ph, sol, bal: (lambda t: float(bal.terms(t, sol.sol(t).tolist())["thrust_axial"])))
 
 

@@ -38,15 +38,7 @@ from typing import Any, Callable, Sequence
 
 from .xp import ScalarOps
 
-__all__ = ["TraceError", "Sym", "trace_ops", "compile_function", "LineCache"]
-
-
-class LineCache(dict):
-    """Compiled straight-line functions by (phase, request); pickled empty (compiled code does not travel
-    between processes: each traces its own)."""
-
-    def __reduce__(self) -> tuple:
-        return (LineCache, ())
+__all__ = ["TraceError", "Sym", "trace_ops", "compile_function"]
 
 
 class TraceError(Exception):
@@ -573,33 +565,52 @@ def _write(stmts: list, indent: str, out: list) -> None:
             _write(ka, indent + "    ", out)
 
 
+def _source_of(x: Any, live: set, rec: _Recorder) -> str:
+    """Source text that rebuilds a result (lists, tuples, named tuples, dicts of str keys, leaves)."""
+    if type(x) is Sym:
+        live.add(x.name)
+        return x.name
+    if isinstance(x, list):
+        return "[" + ", ".join(_source_of(v, live, rec) for v in x) + "]"
+    if isinstance(x, tuple):
+        inner = ", ".join(_source_of(v, live, rec) for v in x)
+        if hasattr(x, "_fields"):
+            return f"{rec.const(type(x))}({inner})"
+        return f"({inner},)" if len(x) == 1 else f"({inner})"
+    if isinstance(x, dict):
+        if not all(type(k) is str for k in x):
+            raise TraceError("a traced dict with keys that are not strings")
+        return "{" + ", ".join(f"{k!r}: {_source_of(v, live, rec)}" for k, v in x.items()) + "}"
+    if isinstance(x, (bool, int, float)) or x is None:
+        _local.rec = rec
+        try:
+            return _lit(x)[0]
+        finally:
+            _local.rec = None
+    raise TraceError(f"the traced function returned {type(x).__name__}")
+
+
 def compile_function(body: Callable[[Any, list], Sequence[Any]], n_states: int, *, name: str = "phase") -> Callable:
     """Trace ``body(t, s)`` (``t`` the time's symbol, ``s`` the list of state symbols) and compile it into
-    ``f(t, y) -> list`` of floats, ``y`` any sequence of ``n_states`` numbers (a numpy array is read with
-    ``tolist``). Raises :class:`TraceError` when the body cannot be traced."""
+    ``f(t, y)``, ``y`` any sequence of ``n_states`` numbers (a numpy array is read with ``tolist``), returning
+    what the body returned (lists, tuples, named tuples and dicts of floats and bools are rebuilt). Raises
+    :class:`TraceError` when the body cannot be traced."""
     rec = _Recorder()
     _local.rec = rec
     try:
         s = [Sym(f"s{k}") for k in range(n_states)]
-        result = list(body(Sym("t"), s))
+        result = body(Sym("t"), s)
     finally:
         _local.rec = None
-    outs = []
-    for v in result:
-        if type(v) is Sym:
-            outs.append(v.name)
-        elif isinstance(v, (bool, int, float)):
-            outs.append(repr(float(v)) if math.isfinite(float(v)) else rec.const(float(v)))
-        else:
-            raise TraceError(f"the traced function returned {type(v).__name__}")
-    live = {o for o in outs if not o[0].isdigit() and not o.startswith("-")}
+    live: set[str] = set()
+    ret = _source_of(result, live, rec)
     stmts = _prune(rec.block, live)
     lines = [f"def {name}(t, y):"]
     if n_states:
         unpack = ", ".join(f"s{k}" for k in range(n_states))
         lines.append(f"    {unpack}, = y.tolist() if type(y) is not list else y")
     _write(stmts, "    ", lines)
-    lines.append(f"    return [{', '.join(outs)}]")
+    lines.append(f"    return {ret}")
     src = "\n".join(lines) + "\n"
     ns = dict(rec.namespace)
     code = compile(src, f"<thrustgraph straight line: {name}>", "exec")
