@@ -51,7 +51,7 @@ from .result import FlightResult
 from .units import Q_
 
 __all__ = ["OverlayRun", "Overlay", "TableRow", "run_of_result", "run_of_record", "read_outcome_lines",
-           "unique_labels", "FLIGHT_RUN", "SAVED_RUN", "RECORD_RUN"]
+           "mapped_columns", "unique_labels", "FLIGHT_RUN", "SAVED_RUN", "RECORD_RUN"]
 
 #: What a run is: flown now, read from a saved export, or measured.
 FLIGHT_RUN, SAVED_RUN, RECORD_RUN = "flight", "saved result", "measured record"
@@ -160,15 +160,9 @@ def run_of_record(record: Record, label: str, mapping: Sequence[ColumnMap] = (),
             specs[key] = spec
         return OverlayRun(label=label, kind=SAVED_RUN, source=record.source, t=record.time,
                           signals=dict(record.columns), units=_si_units(record), outcomes=outcomes, specs=specs)
-    if not mapping:
-        raise ModelError(f"{record.source}", "a measured record is overlaid through the columns mapped to signals, "
-                         "and none is mapped", "add e.g. --map load=thrust (record column load drawn as the thrust)")
     signals: dict[str, np.ndarray] = {}
     units: dict[str, str] = {}
-    for cmap in mapping:
-        if cmap.column not in record.columns:
-            continue
-        cmap.check(record)
+    for cmap in mapped_columns(record, mapping):
         x = record.column(cmap.column)
         if cmap.pressure == "gauge":
             if ambient is None:
@@ -178,11 +172,23 @@ def run_of_record(record: Record, label: str, mapping: Sequence[ColumnMap] = (),
             x = x + np.interp(record.time, ambient[0], ambient[1])
         signals[cmap.signal] = x
         units[cmap.signal] = _si_units(record)[cmap.column]
-    if not signals:
+    return OverlayRun(label=label, kind=RECORD_RUN, source=record.source, t=record.time, signals=signals, units=units)
+
+
+def mapped_columns(record: Record, mapping: Sequence[ColumnMap]) -> list[ColumnMap]:
+    """The mappings of a measured record's columns, checked (a pressure says gauge or absolute); a record none of
+    whose columns is mapped is refused. Cheap: callers check every record before any flight."""
+    if not mapping:
+        raise ModelError(f"{record.source}", "a measured record is overlaid through the columns mapped to signals, "
+                         "and none is mapped", "add e.g. --map load=thrust (record column load drawn as the thrust)")
+    mine = [c for c in mapping if c.column in record.columns]
+    if not mine:
         raise ModelError(f"{record.source}", f"has none of the mapped columns "
                          f"({', '.join(c.column for c in mapping)}; its columns: {', '.join(record.columns)})",
                          "map a column the record has, e.g. --map load=thrust")
-    return OverlayRun(label=label, kind=RECORD_RUN, source=record.source, t=record.time, signals=signals, units=units)
+    for cmap in mine:
+        cmap.check(record)
+    return mine
 
 
 def _si_units(record: Record) -> dict[str, str]:

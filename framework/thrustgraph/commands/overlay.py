@@ -77,7 +77,7 @@ def _is_record(name: str) -> bool:
 
 
 def main(args: argparse.Namespace) -> int:
-    from ..overlay import Overlay, run_of_record, run_of_result, unique_labels
+    from ..overlay import Overlay, mapped_columns, run_of_record, run_of_result, unique_labels
     from ..units import to_si
 
     formats = IMAGE_FORMATS if args.format == "both" else (args.format,)
@@ -110,10 +110,17 @@ def main(args: argparse.Namespace) -> int:
     mapping = mapping_from(args) if measured else ()
     if args.maps and not measured:
         raise ModelError("--map", "there is no measured record among the runs", "leave out --map, or add a record")
+    for rec in measured:                       # every record's mapping checked before the first flight
+        gauge = [c.column for c in mapped_columns(rec, mapping) if c.pressure == "gauge"]
+        if gauge and not any(kind == "model" or item.exported for kind, item in planned):
+            raise ModelError(f"{rec.source}: column {gauge[0]!r}", "is a gauge pressure, but no predicted run "
+                             "gives the ambient pressure to make it absolute",
+                             "overlay it with a model or a saved result, or mark the column --absolute")
     if args.start_at:
-        measured_ids = {id(r) for r in measured}
-        planned = [(k, shift(v, to_si(args.start_at, "s", where="--start-at"), f"model t = 0 at record time {args.start_at}")
-                    if k == "record" and id(v) in measured_ids else v) for k, v in planned]
+        start = to_si(args.start_at, "s", where="--start-at")
+        ids = {id(r) for r in measured}
+        planned = [(k, shift(v, start, f"model t = 0 at record time {args.start_at}")
+                    if k == "record" and id(v) in ids else v) for k, v in planned]
     labels = unique_labels([Path(v.source).name if k == "record" else v[0] for k, v in planned])
     # fly, then build the runs in the order given
     runs: list[Any] = [None] * len(planned)
