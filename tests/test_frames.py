@@ -32,7 +32,7 @@ def test_a_flight_as_a_frame_holds_every_exported_column():
     assert list(df["phase"].cat.categories) == [p.name for p in r.phases]
     assert df.attrs["provenance"]["model_sha256"] == r.provenance["model_sha256"]
     # the frame and the CSV export read by pandas hold the same numbers
-    csv = pd.read_csv(io.StringIO(r.to_csv(provenance=True)), comment="#")
+    csv = pd.read_csv(io.StringIO(r.to_csv(provenance=True)), comment="#", float_precision="round_trip")
     np.testing.assert_array_equal(csv["altitude [m]"].to_numpy(), df["altitude"].to_numpy())
 
 
