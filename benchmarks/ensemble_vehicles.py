@@ -39,6 +39,7 @@ SWEEPS = {
     # each design separates its booster and lights its sustainer at its own time
     "two-stage-demo": {"components.upper_frame.dry_mass": (0.12, 0.3),
                        "components.booster_frame.dry_mass": (0.08, 0.2)},
+    "water-jet-boat": {"components.pump.shaft_power": (800.0, 2500.0), "components.hull.dry_mass": (15.0, 40.0)},
 }
 
 

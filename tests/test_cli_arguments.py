@@ -234,7 +234,8 @@ def test_a_name_with_a_math_fragment_is_drawn_as_written(here, capsys):
 # a reader that stops reading
 # ---------------------------------------------------------------------------
 
-@pytest.mark.parametrize("args", [["run", "--csv", "a.csv"], ["kinds"], ["check"]])
+@pytest.mark.parametrize("args", [["run", "--csv", "a.csv"], ["kinds"], ["check"], ["--version"], ["--help"],
+                                  ["run", "--help"]])
 def test_a_closed_pipe_on_standard_output_ends_quietly_and_still_writes(args, tmp_path):
     read_end, write_end = os.pipe()
     os.close(read_end)   # the reader is gone before the first line: every write meets a broken pipe
@@ -246,7 +247,32 @@ def test_a_closed_pipe_on_standard_output_ends_quietly_and_still_writes(args, tm
         assert (tmp_path / "a.csv").read_text().startswith("#")
 
 
-def test_head_of_the_output(tmp_path):
-    proc = subprocess.run(f"'{sys.executable}' -m thrustgraph.cli kinds | head -3", shell=True, cwd=tmp_path,
-                          capture_output=True, text=True, timeout=HANG_GUARD)
-    assert proc.returncode == 0 and proc.stderr == "" and len(proc.stdout.splitlines()) == 3
+@pytest.mark.parametrize("args", ["kinds", "run", "--help"])
+def test_head_of_the_output(args, tmp_path):
+    # the shell's own pipe and head; PIPESTATUS holds thrustgraph's status, not head's
+    proc = subprocess.run(["bash", "-c", f"'{sys.executable}' -m thrustgraph.cli {args} | head -3; "
+                           "exit ${PIPESTATUS[0]}"], cwd=tmp_path, capture_output=True, text=True, timeout=HANG_GUARD)
+    assert proc.returncode == 0 and proc.stderr == "" and len(proc.stdout.splitlines()) == 3, proc.stderr
+
+
+def test_a_reader_that_leaves_after_three_lines(tmp_path):
+    # a real pipe whose reader takes three lines and closes its end while thrustgraph still writes: the pipe holds
+    # one page (Linux F_SETPIPE_SZ) and the kinds listing is several, so the writer meets the closed pipe (EPIPE)
+    # part way through, whatever the timing
+    fcntl = pytest.importorskip("fcntl")
+    read_end, write_end = os.pipe()
+    if hasattr(fcntl, "F_SETPIPE_SZ"):
+        fcntl.fcntl(write_end, fcntl.F_SETPIPE_SZ, 4096)
+    proc = subprocess.Popen([sys.executable, "-m", "thrustgraph.cli", "kinds"], stdout=write_end,
+                            stderr=subprocess.PIPE, cwd=tmp_path)
+    os.close(write_end)
+    got = b""
+    while got.count(b"\n") < 3:
+        chunk = os.read(read_end, 256)
+        assert chunk, "the output ended before three lines"
+        got += chunk
+    os.close(read_end)
+    err = proc.communicate(timeout=HANG_GUARD)[1]
+    assert err == b"" and proc.returncode == 0, err.decode()
+    assert len(got) < 4096 + 256 < len(subprocess.run([sys.executable, "-m", "thrustgraph.cli", "kinds"],
+                                                      capture_output=True, timeout=HANG_GUARD).stdout)

@@ -5,6 +5,10 @@ jets, an airframe, the surroundings) come from plugins; the core assembles
 them into one momentum balance, integrates it phase by phase and keeps every
 term of the balance for audit.
 
+The public names below load on first use (PEP 562): ``import thrustgraph``
+costs a few milliseconds, and the command line imports only what its command
+needs (pint, scipy and the plugins take about a second to import).
+
 Examples
 --------
 >>> import thrustgraph as tg
@@ -15,18 +19,67 @@ True
 
 from __future__ import annotations
 
+import importlib
+import sys
+import types
+from typing import TYPE_CHECKING, Any
+
 from .version import __version__
 
-from .hookspecs import hookimpl, hookspec
-from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError
-from .model import Model, ParsedModel, parse_model
-from .modelfile import default_model_path, load_model, loads_model, save_model, dumps_model
-from .assembly import System, assemble
-from .integrate import fly, integrate
-from .result import FlightResult
+if TYPE_CHECKING:   # what the names below are, for type checkers and editors; loaded lazily at run time
+    from .hookspecs import hookimpl, hookspec
+    from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError
+    from .model import Model, ParsedModel, parse_model
+    from .modelfile import default_model_path, load_model, loads_model, save_model, dumps_model
+    from .assembly import System, assemble
+    from .integrate import fly, integrate
+    from .result import FlightResult
 
 __all__ = [
     "__version__", "hookimpl", "hookspec", "ThrustgraphError", "ModelError", "PluginError", "IntegrationError",
     "Model", "ParsedModel", "parse_model", "load_model", "loads_model", "save_model", "dumps_model",
     "default_model_path", "System", "assemble", "integrate", "fly", "FlightResult",
 ]
+
+#: The module that defines each public name (``__version__`` is imported above).
+_HOME = {
+    "hookimpl": "hookspecs", "hookspec": "hookspecs",
+    "ThrustgraphError": "errors", "ModelError": "errors", "PluginError": "errors", "IntegrationError": "errors",
+    "Model": "model", "ParsedModel": "model", "parse_model": "model",
+    "default_model_path": "modelfile", "load_model": "modelfile", "loads_model": "modelfile",
+    "save_model": "modelfile", "dumps_model": "modelfile",
+    "System": "assembly", "assemble": "assembly",
+    "fly": "integrate", "integrate": "integrate",
+    "FlightResult": "result",
+}
+
+
+def __getattr__(name: str) -> Any:
+    """Import a public name's module on first use and keep the name (PEP 562)."""
+    home = _HOME.get(name)
+    if home is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(f"{__name__}.{home}"), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(__all__))
+
+
+class _Package(types.ModuleType):
+    """The package's module type: a public name is never replaced by a submodule of the same name.
+
+    The import system binds every submodule it loads to its package
+    (``thrustgraph.integrate = <module>``); ``thrustgraph.integrate`` is the
+    function of the public API, loaded or not yet, whatever was imported before.
+    """
+
+    def __setattr__(self, name: str, value: Any) -> None:
+        if name in _HOME and isinstance(value, types.ModuleType):
+            return
+        super().__setattr__(name, value)
+
+
+sys.modules[__name__].__class__ = _Package

@@ -5,7 +5,8 @@
 differs between designs is a numpy array of shape ``(N,)``, and evaluated by the same
 :class:`~thrustgraph.balance.Balance` as a single flight (the physics still comes from the plugins; this
 module knows no device and restates no term of the balance). The discrete phase is explicit per design: the
-mode of every moded component (integer arrays) and the kinematic constraint (guide or free).
+mode of every moded component (integer arrays), the kinematic constraint (held on a stand, on a guide, free,
+on a track) and the way a design slides along its guide or track (kinetic friction opposes it).
 
 Examples
 --------
@@ -38,17 +39,18 @@ from .component import Ambient
 from .designs import DesignParameter, with_values
 from .model import ParsedModel
 
-__all__ = ["ArraySystem", "Phase", "unsupported", "IMPULSE", "GUIDE", "FREE"]
+__all__ = ["ArraySystem", "Phase", "unsupported", "IMPULSE", "HELD", "GUIDE", "FREE", "TRACK"]
 
-GUIDE, FREE = Kinematics.GUIDE, Kinematics.FREE
+HELD, GUIDE, FREE, TRACK = Kinematics.HELD, Kinematics.GUIDE, Kinematics.FREE, Kinematics.TRACK
 #: Name of the quadrature state the ensemble adds: the time integral of the thrust magnitude.
 IMPULSE = "ensemble.impulse"
 
 
 def unsupported(parsed: ParsedModel) -> str | None:
-    """Why the vectorised ensemble cannot fly a model, or None when it can."""
-    if parsed.launch.mount not in ("guide", "free"):
-        return f"launch.mount {parsed.launch.mount!r} (the ensemble flies guide and free launches)"
+    """Why the vectorised ensemble cannot fly a model, or None when it can (every mount: held, guide, free,
+    track)."""
+    if parsed.launch.mount not in Kinematics.BY_MOUNT:
+        return f"launch.mount {parsed.launch.mount!r}"
     for slot, cls in parsed.env_kinds.items():
         if not vectorised(cls):
             return f"environment.{slot} kind {cls.kind!r} builds no array callables"
@@ -71,11 +73,15 @@ def _vary(p: Any, changes: dict[str, np.ndarray]) -> Any:
 
 @dataclasses.dataclass(frozen=True)
 class Phase:
-    """The discrete phase of the designs as the balance takes it: each moded component's mode and the
-    kinematic constraint, each an ``int`` when every design shares it, else an integer array."""
+    """The discrete phase of the designs as the balance takes it: each moded component's mode, the kinematic
+    constraint and the way each slides along its guide or track (+1, -1, or 0: friction follows the speed),
+    each an ``int`` when every design shares it, else an array; ``powered`` whether a design's thrust counts
+    toward its total impulse (a component in a propulsive mode, or a prescribed jet), a bool or a bool array."""
 
     modes: tuple
     kin: Any
+    slide: Any = 0
+    powered: Any = True
 
 
 class ArraySystem:
@@ -154,7 +160,7 @@ class ArraySystem:
         self.state_names = tuple(names)
         self.slices = slices
         self.y0 = np.array(y0) if initial else None
-        self.kin0 = np.full(n, FREE if parsed.launch.mount == "free" else GUIDE, dtype=np.int8)
+        self.kin0 = np.full(n, Kinematics.BY_MOUNT[parsed.launch.mount], dtype=np.int8)
         self.mode0 = np.zeros((len(self.moded), n), dtype=np.int8)
         if initial:
             self._initial_modes()
@@ -223,7 +229,7 @@ class ArraySystem:
         new.guide_length = self.guide_length[idx]
         new.x0 = tuple(c[idx] for c in self.x0)
         new.y0 = None
-        new.kin0 = np.full(n, FREE if self.parsed.launch.mount == "free" else GUIDE, dtype=np.int8)
+        new.kin0 = np.full(n, Kinematics.BY_MOUNT[self.parsed.launch.mount], dtype=np.int8)
         new.mode0 = np.zeros((len(self.moded), n), dtype=np.int8)
         new._build()
         return new
@@ -260,17 +266,24 @@ class ArraySystem:
                 best = p if best is None else np.maximum(best, p)
         return best
 
-    def phase(self, modes: np.ndarray, kin: np.ndarray) -> "Phase":
+    def phase(self, modes: np.ndarray, kin: np.ndarray, slide: np.ndarray | None = None) -> "Phase":
         """The discrete phase as the balance takes it, worked out once (a step's stages share it): each slot's
         mode as an ``int`` when every design shares it (so a kind can skip its per-design selections), else
-        the integer array; the constraint likewise."""
+        the integer array; the constraint and the way each design slides (``slide``, None: 0 for all) likewise."""
         shared = []
         for k in range(len(self.moded)):
             m = modes[k]
             lo, hi = int(m.min()), int(m.max())
             shared.append(lo if lo == hi else m)
         lo, hi = int(kin.min()), int(kin.max())
-        return Phase(tuple(shared), lo if lo == hi else kin)
+        way: Any = 0
+        if slide is not None and len(slide):
+            s_lo, s_hi = float(slide.min()), float(slide.max())
+            way = s_lo if s_lo == s_hi else slide
+        powered: Any = True if self.plan.jets else self.propulsive(modes)
+        if not isinstance(powered, bool) and len(powered):
+            powered = bool(powered[0]) if powered.all() or not powered.any() else powered
+        return Phase(tuple(shared), lo if lo == hi else kin, way, powered)
 
     def frozen(self, modes: np.ndarray) -> bool:
         """Whether every vessel is in a mode without outflow in every design: their states are then held, so
@@ -286,7 +299,7 @@ class ArraySystem:
     def _use(self, phase: "Phase") -> None:
         """Set the balance to ``phase`` unless it already is (a step's stages share one Phase object)."""
         if self._phase_set is not phase:
-            self.balance.set_phase(phase.modes, phase.kin, False)
+            self.balance.set_phase(phase.modes, phase.kin, False, phase.slide)
             self._phase_set = phase
 
     def drives(self, t: np.ndarray, Y: np.ndarray, phase: "Phase") -> dict | None:
@@ -296,8 +309,8 @@ class ArraySystem:
 
     # ------------------------------------------------------------------
     def rhs(self, t: np.ndarray, Y: np.ndarray, modes: np.ndarray, kin: np.ndarray,
-            out: np.ndarray | None = None, phase: "Phase | None" = None, aux: bool = True
-            ) -> tuple[np.ndarray, dict | None]:
+            out: np.ndarray | None = None, phase: "Phase | None" = None, aux: bool = True,
+            slide: np.ndarray | None = None) -> tuple[np.ndarray, dict | None]:
         """Derivatives of the states (shape of ``Y``, written into ``out`` when given) and, in ``aux``:
         ``drive`` (name -> Pa), ``accel`` (acceleration magnitude), ``thrust`` (thrust magnitude), ``mass``,
         ``singular`` (designs whose head coupling has no solution) and ``phase`` (the phase it was set to);
@@ -305,11 +318,12 @@ class ArraySystem:
         alone.
 
         Every term comes from :class:`~thrustgraph.balance.Balance`, the single flight's balance, over arrays;
-        the last state is the impulse quadrature (the thrust magnitude). ``phase`` is :meth:`phase` of
-        ``modes`` and ``kin`` (worked out here when not given).
+        the last state is the impulse quadrature (the thrust magnitude in powered phases, as a single flight's
+        total impulse counts it). ``phase`` is :meth:`phase` of ``modes``, ``kin`` and ``slide`` (worked out here
+        when not given).
         """
         if phase is None:
-            phase = self.phase(modes, kin)
+            phase = self.phase(modes, kin, slide)
         self._use(phase)
         terms = self.balance.terms(t, list(Y))
         if out is None:
@@ -318,11 +332,13 @@ class ArraySystem:
         for k in range(len(d)):
             out[k] = d[k]
         tx, ty, tz = terms["thrust"]
-        out[-1] = np.sqrt(tx * tx + ty * ty + tz * tz)
+        thrust = np.sqrt(tx * tx + ty * ty + tz * tz)
+        powered = phase.powered
+        out[-1] = thrust if powered is True else (0.0 if powered is False else np.where(powered, thrust, 0.0))
         if not aux:
             return out, None
         ax, ay, az = terms["accel"]
         accel = np.sqrt(ax * ax + ay * ay + az * az)
         singular = np.broadcast_to(np.asarray(terms["singular"], dtype=bool), (self.n,))
-        return out, {"drive": terms["drive"], "accel": accel, "thrust": out[-1], "mass": terms["mass"],
+        return out, {"drive": terms["drive"], "accel": accel, "thrust": thrust, "mass": terms["mass"],
                      "singular": singular, "phase": phase}

@@ -42,7 +42,6 @@ from __future__ import annotations
 from typing import Any, NamedTuple, Sequence
 
 import numpy as np
-from scipy.optimize import brentq
 
 from .component import Flow, Outlet
 from .errors import IntegrationError
@@ -144,9 +143,11 @@ class Balance:
         self._masses = [v.fns.mass for v in plan.vessels] + [j.fns.mass for j in plan.jets]
         # straight-line functions per phase (single flights of one-definition kinds only)
         parsed = getattr(system, "parsed", None)
+        # (a line with elements in series is solved by a root search, which is not traced yet)
         self._traceable = (ops is scalar_ops and parsed is not None and hasattr(system, "slices")
                            and all(getattr(k, "vectorised", False) for k in parsed.kinds.values())
-                           and all(getattr(k, "vectorised", False) for k in parsed.env_kinds.values()))
+                           and all(getattr(k, "vectorised", False) for k in parsed.env_kinds.values())
+                           and not any(ln.series for ln in plan.lines))
         made = getattr(system, "straight_lines", None)
         self._lines_made: dict[tuple, Any] = made if isinstance(made, dict) else {}
         self._tracer: Balance | None = None
@@ -158,14 +159,14 @@ class Balance:
                        Kinematics.BY_MOUNT[c.mount], False)
 
     # ------------------------------------------------------------------
-    def set_phase(self, modes: Sequence[Any], kinematics: Any, descending: bool, slide: float = 0.0) -> None:
+    def set_phase(self, modes: Sequence[Any], kinematics: Any, descending: bool, slide: Any = 0.0) -> None:
         """Fix the discrete phase for the next integration segment (or the next ensemble step).
 
         ``modes`` holds each moded component's mode index (an int, or an int array over designs);
         ``kinematics`` a :class:`Kinematics` value (or an array). ``slide`` is the way a vehicle slides along
         a guide or track for the whole segment (+1, -1): kinetic friction opposes it and the integrator ends
         the segment when the vehicle comes to rest; 0 lets the friction follow the current speed (static
-        friction at rest).
+        friction at rest). For an ensemble ``slide`` may be an array over designs (each design's own way).
         """
         if self._traceable:
             # one design: a phase seen before is restored whole (outcomes set each segment's phase many times)
@@ -201,7 +202,11 @@ class Balance:
         self._kin = kinematics
         self._present = present
         self._held_only = present == {Kinematics.HELD}
-        self.slide = float(slide) if present <= {Kinematics.GUIDE, Kinematics.TRACK} else 0.0
+        if ops.arrays and not isinstance(slide, (int, float)):
+            # per design: only the designs on a guide or track read it (see _guided)
+            self.slide = slide if present & {Kinematics.GUIDE, Kinematics.TRACK} else 0.0
+        else:
+            self.slide = float(slide) if present <= {Kinematics.GUIDE, Kinematics.TRACK} else 0.0
         # a line is idle when a component on it is, in every design, in a mode that promises no outflow
         idle = []
         for j, ln in enumerate(plan.lines):
@@ -545,7 +550,11 @@ class Balance:
             x0 = self.plan.constraint.x0
             below = (s[0] - x0[0]) * u0 + (s[1] - x0[1]) * u1 + (s[2] - x0[2]) * u2 <= 0.0
             at_foot = (v_along <= 0.0) & below
-        way = self.slide if self.slide != 0.0 else v_along
+        slide = self.slide
+        if type(slide) is float:
+            way = slide if slide != 0.0 else v_along
+        else:       # an ensemble's designs, each its own way
+            way = ops.where(slide != 0.0, slide, v_along)
 
         def test(c):
             alpha, sums, held, singular = c
@@ -824,6 +833,10 @@ def _solve_line(ln: LinePlan, up: Outlet, pa: float, tmode: int, smodes: tuple, 
     """Mass flow through elements in series: the flow the terminal element passes at the pressure the series
     elements deliver at that same flow (scalar root). A source that fixes the flow sets it instead, and the
     pressure at the terminal element is whatever passes that flow. One design at a time (floats)."""
+    # imported when a line is first solved, not with the module: scipy.optimize costs ~0.7 s to import, which a
+    # command that solves no line (`thrustgraph check`) would pay (benchmarks/cli_startup.py)
+    from scipy.optimize import brentq
+
     flow = ln.terminal_fns.flow
 
     def after(mdot):

@@ -6,8 +6,15 @@ Bad input ends with one message on stderr and exit status 2; nothing is
 written. Integration failures exit with status 1. Ctrl-C and SIGTERM stop
 the work alike (:mod:`thrustgraph.interrupts`) with status 130 or 143 and no
 traceback. A reader that stops reading standard output (``| head -3``) does
-not stop the work: the rest of the printed text is dropped quietly and the
-files asked for are still written.
+not stop the work: the rest of the printed text is dropped quietly, the
+files asked for are still written and the exit status is the command's own
+(0 when it did its work), never a traceback; ``--version`` and ``--help``
+alike.
+
+The command line imports only what the command it runs needs: the one-line
+helps of ``thrustgraph --help`` come from :data:`thrustgraph.commands.SUMMARIES`
+and only the named command's module is imported and its options added
+(``--version`` and ``--help`` import none; benchmarks/cli_startup.py).
 
 Examples
 --------
@@ -25,19 +32,29 @@ import os
 import select
 import sys
 from contextlib import contextmanager
-from typing import Iterator, Sequence
+from typing import Iterable, Iterator, Sequence
 
 from .version import __version__
+from .commands import SUMMARIES
 from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError
 from .interrupts import Terminated, exit_status, stop_on_signals
 
 __all__ = ["main", "COMMANDS", "build_parser"]
 
 # Sub-command modules, in the order `thrustgraph --help` lists them.
-COMMANDS = ["run", "compare", "overlay", "calibrate", "check", "kinds", "new", "export", "graph", "plot", "report", "study"]
+COMMANDS = list(SUMMARIES)
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(commands: Iterable[str] | None = None) -> argparse.ArgumentParser:
+    """The parser of the command line, with the options of ``commands`` (default: of every command).
+
+    Every command is listed with its one-line help; only the modules of
+    ``commands`` are imported, to add their options (a command whose options
+    were not added cannot be run with this parser).
+
+    >>> build_parser(["check"]).parse_args(["check", "--set", "run.end_time=2 s"]).overrides
+    ['run.end_time=2 s']
+    """
     parser = argparse.ArgumentParser(
         prog="thrustgraph",
         description="Predict how a jet-propelled vehicle moves: thrust, burn time, acceleration, speed, "
@@ -46,31 +63,53 @@ def build_parser() -> argparse.ArgumentParser:
                "people. Follow local codes and licensed practice.")
     parser.add_argument("--version", action="store_true", help="print the version and exit")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    wanted = set(COMMANDS if commands is None else commands)
     for name in COMMANDS:
-        mod = importlib.import_module(f"thrustgraph.commands.{name}")
-        p = sub.add_parser(mod.NAME, help=mod.HELP, description=mod.HELP)
-        mod.add_arguments(p)
-        p.set_defaults(_main=mod.main)
+        p = sub.add_parser(name, help=SUMMARIES[name], description=SUMMARIES[name])
+        if name in wanted:
+            mod = importlib.import_module(f"thrustgraph.commands.{name}")
+            mod.add_arguments(p)
+            p.set_defaults(_main=mod.main)
     return parser
+
+
+def command_named(argv: Sequence[str]) -> str | None:
+    """The command an argument list runs: its first word that is not an option (the top level's options,
+    ``--version`` and ``--help``, take no value), if it is a command.
+
+    >>> command_named(["--version"]), command_named(["check", "rocket.toml"]), command_named(["chek"])
+    (None, 'check', None)
+    """
+    for word in argv:
+        if not word.startswith("-"):
+            return word if word in SUMMARIES else None
+    return None
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; return the exit status."""
-    parser = build_parser()
-    args = parser.parse_args(argv)
-    if args.version:
-        print(f"thrustgraph {__version__}")
-        return 0
-    if not getattr(args, "_main", None):
-        parser.print_help()
-        return 2
+    argv = sys.argv[1:] if argv is None else list(argv)
     with stop_on_signals(), _quiet_when_stdout_closes():
-        return _run(args)
+        return _run(argv)
     return 128 + 13   # reached only when a broken standard output stopped the command (as SIGPIPE would)
 
 
-def _run(args: argparse.Namespace) -> int:
+def _run(argv: list[str]) -> int:
     try:
+        command = command_named(argv)
+        parser = build_parser([command] if command else [])
+        try:
+            args = parser.parse_args(argv)
+        finally:   # --help ends in SystemExit: its text reaches the reader (or is dropped, if it has gone) first
+            sys.stdout.flush()
+        if args.version:
+            print(f"thrustgraph {__version__}")
+            sys.stdout.flush()
+            return 0
+        if not getattr(args, "_main", None):
+            parser.print_help()
+            sys.stdout.flush()
+            return 2
         status = int(args._main(args) or 0)
         sys.stdout.flush()
         return status

@@ -14,14 +14,20 @@ What each design owns (lessons of the prototype in docs/studies.md):
 * its own time ``t``, step ``h``, error norm (RMS of the scaled local error
   over its own states, as scipy's solvers), accept/reject decision and step
   control (safety 0.9, factors 0.2-10, as scipy's RK45);
-* its own discrete phase: the mode of every moded component and the
-  kinematic constraint (guide, free), plus whether apogee has passed; the
+* its own discrete phase: the mode of every moded component, the
+  kinematic constraint (held on a stand, guide, free, track), the way it
+  slides along its guide or track, plus whether apogee has passed; the
   right-hand side never infers the phase;
-* its own events: the components' events (liquid exhausted, flow stops...),
-  guide exit, apogee and ground impact, each a continuous function with a
-  direction, located on the dense output by a vectorised Illinois
-  (modified regula falsi) iteration; the step is cut at the earliest event
-  and the phase switch (reset map) is applied to that design alone. Apogee
+* its own events, those of a single flight (:mod:`thrustgraph.integrate`):
+  the components' events (liquid exhausted, flow stops...), guide exit,
+  back at the guide's foot, at rest on a guide or track (the speed along it
+  reaches zero while it slides), apogee and ground impact, each a continuous
+  function with a direction, located on the dense output by a vectorised
+  Illinois (modified regula falsi) iteration; the step is cut at the
+  earliest event and the phase switch (reset map) is applied to that design
+  alone. At the start of each of its phases a design is checked as a single
+  flight's segment is: propulsion spent on a stand, at rest on a track, no
+  lift-off from a guide. Apogee
   switches nothing in the dynamics, so it is recorded where it falls inside
   the step without cutting it (unless ``run.stop_at_apogee`` ends the flight
   there);
@@ -50,6 +56,7 @@ Examples
 
 from __future__ import annotations
 
+import dataclasses
 import time
 from dataclasses import dataclass, field
 from typing import Sequence
@@ -57,11 +64,11 @@ from typing import Sequence
 import numpy as np
 
 from .arrayops import keep_heap
-from .arraysystem import FREE, GUIDE, IMPULSE, ArraySystem, unsupported
+from .arraysystem import FREE, GUIDE, HELD, IMPULSE, TRACK, ArraySystem, unsupported
 from .assembly import assemble
 from .designs import DesignParameter, bounds_text, with_values, within_bounds
 from .errors import ModelError
-from .integrate import available_signals
+from .integrate import available_signals, check_launch_speed, rest_value
 from .model import ParsedModel
 from .outcomes import OUTCOMES, STATUS_OK, STATUS_SCREENED, check_outputs
 from .component import ComponentKind
@@ -125,7 +132,8 @@ class EnsembleResult:
 
 class _Events:
     """The event functions of the family: the components' events, the model's triggers (a condition met, and
-    the action due after its delay), guide exit, apogee, ground impact."""
+    the action due after its delay), guide exit, back at the guide's foot, at rest on a guide or track, apogee,
+    ground impact (the event set of :func:`thrustgraph.integrate.fly_segments`)."""
 
     def __init__(self, sysa: ArraySystem, triggers: Sequence[Trigger] = ()) -> None:
         self.slots: list[tuple] = []   # (kind, direction, payload)
@@ -141,14 +149,25 @@ class _Events:
         for k, tr in enumerate(triggers):
             self.slots.append(("due", 1.0, (k, tr)))
         self.slots.append(("guide", 1.0, None))
+        # sliding back down the guide stops at its foot (1 nm below it, so a vehicle resting there does not fire)
+        self.slots.append(("foot", -1.0, None))
+        # sliding along a guide or track (kinetic friction against the way it slides, fixed for the phase), the
+        # phase ends where the speed along it reaches zero: falling through zero sliding forward, rising backward
+        self.slots.append(("rest", -1.0, 1.0))
+        self.slots.append(("rest", 1.0, -1.0))
         self.slots.append(("apogee", -1.0, None))
         self.slots.append(("impact", -1.0, None))
         # the events whose value reads the balance (a component's drive, a trigger's snapshot signal)
         self.needs_drive = [(s[0] == "comp" and s[2][6]) or (s[0] == "trigger" and s[2][1].needs_snapshot)
                             for s in self.slots]
+        # events evaluated on some designs alone need those designs' own system when they read the balance or
+        # the component's parameters differ between designs (a pump's run time)
+        varied = set(sysa._comp_changes) if all(p.section == "components" for p in sysa.params) else \
+            set(sysa.parsed.kinds)
+        self.own_system = [nd or (s[0] == "comp" and s[2][1] in varied) for s, nd in zip(self.slots, self.needs_drive)]
 
     def active(self, j: int, modes: np.ndarray, kin: np.ndarray, desc: np.ndarray, gpos: np.ndarray,
-               armed: np.ndarray, due: np.ndarray) -> np.ndarray:
+               armed: np.ndarray, due: np.ndarray, slide: np.ndarray) -> np.ndarray:
         kind, _, pl = self.slots[j]
         if kind == "comp":
             return pl[3][modes[pl[2]]]
@@ -156,8 +175,10 @@ class _Events:
             return armed[pl[0]].copy()
         if kind == "due":
             return np.isfinite(due[pl[0]])
-        if kind == "guide":
+        if kind == "guide" or kind == "foot":
             return kin == GUIDE
+        if kind == "rest":
+            return ((kin == GUIDE) | (kin == TRACK)) & (slide == pl)
         if kind == "apogee":
             return (kin == FREE) & ~desc & gpos
         return (kin == FREE) & gpos
@@ -180,11 +201,16 @@ class _Events:
             return np.array(np.broadcast_to(np.asarray(g, dtype=float), t.shape))
         if kind == "due":
             return t - due[pl[0]][r]
-        if kind == "guide":
+        if kind in ("guide", "foot", "rest"):
             u = [c[r] for c in sysa.u]
+            if kind == "rest":          # the speed along the guide or track (the slot watches designs sliding pl)
+                return np.array(rest_value(Y[3] * u[0] + Y[4] * u[1] + Y[5] * u[2], pl))
             x0 = [c[r] for c in sysa.x0]
-            return np.array((Y[0] - x0[0]) * u[0] + (Y[1] - x0[1]) * u[1] + (Y[2] - x0[2]) * u[2]
-                            - (sysa.guide_length[r] + 1e-9))
+            along = (Y[0] - x0[0]) * u[0] + (Y[1] - x0[1]) * u[1] + (Y[2] - x0[2]) * u[2]
+            if kind == "foot":
+                return np.array(along + 1e-9)
+            # 1 nm beyond the guide's end, so that a zero-length guide (a pad) holds the vehicle until it moves
+            return np.array(along - (sysa.guide_length[r] + 1e-9))
         if kind == "apogee":
             return Y[5].copy()
         return Y[2].copy()
@@ -274,6 +300,21 @@ def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: n
     return good
 
 
+def _screen_launch_speed(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray, good: np.ndarray,
+                         status: list[str], notes: list[str]) -> None:
+    """Designs a single flight refuses at its start for their launch speed (one on a test stand) are screened."""
+    if parsed.launch.mount != "held":
+        return
+    col = [j for j, p in enumerate(params) if p.path == "launch.speed"]
+    speeds = x[:, col[0]] if col else np.full(len(x), float(parsed.launch.speed))
+    for i in np.flatnonzero(good & (speeds != 0.0)):
+        try:
+            check_launch_speed(dataclasses.replace(parsed.launch, speed=float(speeds[i])))
+        except ModelError as exc:
+            status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"
+            good[i] = False
+
+
 class _Buffers:
     """Preallocated stage arrays, so the 2-D stage combinations make no temporaries."""
 
@@ -337,6 +378,7 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
     out = {k: np.full(N, np.nan) for k in OUTCOMES}
     steps_taken = np.zeros(N, dtype=np.int64)
     good = _screen_designs(parsed, params, x, status, notes)
+    _screen_launch_speed(parsed, params, x, good, status, notes)
     gid = np.flatnonzero(good)
     if len(gid) == 0:
         return EnsembleResult(status, notes, _table(out, outputs), outputs, steps_taken, 0,
@@ -376,6 +418,12 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
                 out[k][i] = np.nan
             for v in seps.values():
                 v[i] = np.nan
+    # an outcome that does not apply to the vehicle (no apogee on a track, no speed on a stand) is NaN, as in
+    # a single flight: the registry's own predicate, asked of the model the designs vary
+    base = assemble(parsed)
+    for k in outputs:
+        if not OUTCOMES[k].applies(base):
+            out[k][:] = np.nan
     return EnsembleResult(status, notes, _table(out, outputs), outputs, steps_taken, calls,
                           time.perf_counter() - t_start, seps)
 
@@ -430,7 +478,9 @@ class _Run:
             self.t_first = np.zeros(n)
             self.x_first = np.array([np.broadcast_to(c, (n,)) for c in sysa.x0], dtype=float)
         self.gpos = np.broadcast_to(np.asarray(sysa.gravity(sysa.x0[2]), dtype=float) > 0.0, (n,)).copy()
-        self.F, aux = sysa.rhs(self.t, self.Y, self.modes, self.kin)
+        self.slide = np.zeros(n)
+        self.set_slide(np.arange(n))
+        self.F, aux = sysa.rhs(self.t, self.Y, self.modes, self.kin, slide=self.slide)
         self.calls += 1
         p0 = sysa.pressures(self.Y, self.modes)
         self.has_p = p0 is not None
@@ -462,13 +512,14 @@ class _Run:
         self.buf = _Buffers(ns, n, self.nctrl)
         everyone = np.arange(n)
         self.fire_at_once(everyone)
-        self.no_liftoff(everyone)
+        self.phase_checks(everyone)
         self.h = self.initial_step()
 
     # --- helpers ------------------------------------------------------------------------------------------
-    _PER_DESIGN = ("gid", "t", "h", "kin", "desc", "gpos", "zmax", "vmax", "amax", "burn", "apogee", "exit_speed",
-                   "impact_speed", "peak_p", "live", "rejected", "dropped", "t_first")
-    #: per-design arrays carried over a separation (the designs' columns)
+    _PER_DESIGN = ("gid", "t", "h", "kin", "desc", "gpos", "slide", "zmax", "vmax", "amax", "burn", "apogee",
+                   "exit_speed", "impact_speed", "peak_p", "live", "rejected", "dropped", "t_first")
+    #: per-design arrays carried over a separation (the designs' columns; the way a design slides is found anew
+    #: when the next vehicle starts, as a single flight's segment starts)
     _CARRIED = ("t", "kin", "desc", "zmax", "vmax", "amax", "burn", "apogee", "exit_speed", "impact_speed", "peak_p",
                 "dropped", "t_first")
     #: per-design arrays with a row per trigger or per coordinate (columns are designs)
@@ -547,7 +598,7 @@ class _Run:
                 if kind not in ("comp", "trigger", "due"):
                     continue
                 act = ev.active(j, self.modes[:, idx], self.kin[idx], self.desc[idx], self.gpos[idx],
-                                self.armed[:, idx], self.due[:, idx]) & self.live[idx]
+                                self.armed[:, idx], self.due[:, idx], self.slide[idx]) & self.live[idx]
                 past = act & (direction * self.gold[j][idx] > 0.0)
                 if np.any(past):
                     sel = idx[past]
@@ -563,26 +614,73 @@ class _Run:
             self.capture()
             if not fired:
                 return
+            self.set_slide(idx)      # a new phase: the way it slides anew (at rest it depends on the modes)
             sub = self.sysa.subset(idx)
-            Fi, ai = sub.rhs(self.t[idx], self.Y[:, idx], self.modes[:, idx], self.kin[idx])
+            Fi, ai = sub.rhs(self.t[idx], self.Y[:, idx], self.modes[:, idx], self.kin[idx], slide=self.slide[idx])
             self.calls += 1
             self.F[:, idx] = Fi
             gi = self.g_all(sub, self.t[idx], self.Y[:, idx], ai, idx)
             for j in range(self.nev):
                 self.gold[j][idx] = gi[j]
 
-    def no_liftoff(self, idx: np.ndarray) -> None:
-        if len(idx) == 0:
-            return
-        sysa, Y = self.sysa, self.Y
-        prop = sysa.propulsive(self.modes[:, idx])
-        u, x0 = sysa.u, sysa.x0
+    def along(self, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Speed along the guide or track and distance along it from the launch point, of designs ``idx``."""
+        Y, u, x0 = self.Y, self.sysa.u, self.sysa.x0
         v_al = Y[3, idx] * u[0][idx] + Y[4, idx] * u[1][idx] + Y[5, idx] * u[2][idx]
         s_al = ((Y[0, idx] - x0[0][idx]) * u[0][idx] + (Y[1, idx] - x0[1][idx]) * u[1][idx]
                 + (Y[2, idx] - x0[2][idx]) * u[2][idx])
-        # as in a single flight, a vehicle whose triggers still watch or wait is not given up
-        waits = np.any(self.armed[:, idx], axis=0) | np.any(np.isfinite(self.due[:, idx]), axis=0)
-        stuck = (self.kin[idx] == GUIDE) & ~prop & (v_al <= 0.0) & (s_al <= 1e-12) & ~waits
+        return v_al, s_al
+
+    def accel_along(self, idx: np.ndarray, slide: np.ndarray) -> np.ndarray:
+        """The acceleration along the guide or track of designs ``idx`` in their current phase, sliding ``slide``
+        (one evaluation of the balance)."""
+        sub = self.sysa if len(idx) == self.n else self.sysa.subset(idx)
+        d, _ = sub.rhs(self.t[idx], self.Y[:, idx], self.modes[:, idx], self.kin[idx], slide=slide, aux=False)
+        self.calls += 1
+        u = self.sysa.u
+        return d[3] * u[0][idx] + d[4] * u[1][idx] + d[5] * u[2][idx]
+
+    def set_slide(self, idx: np.ndarray) -> None:
+        """The way designs ``idx`` slide along their guide or track in the phase they start (as a single flight's
+        segment starts): the sign of the speed along it, or at rest the way the balance (friction following
+        the speed, static at rest) is about to move it (0 if friction holds it)."""
+        if len(idx) == 0:
+            return
+        kin = self.kin[idx]
+        on = (kin == GUIDE) | (kin == TRACK)
+        way = np.zeros(len(idx))
+        if on.any():
+            v, _ = self.along(idx)
+            rest = np.flatnonzero(on & (v == 0.0))
+            if len(rest):
+                v = v.copy()
+                v[rest] = self.accel_along(idx[rest], np.zeros(len(rest)))
+            way = np.where(on, np.sign(v), 0.0)
+        self.slide[idx] = way
+
+    def waiting(self, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Per design of ``idx``: a trigger's delayed action is due later (pending), and that or a trigger still
+        watching its condition (waits)."""
+        pending = np.any(np.isfinite(self.due[:, idx]), axis=0)
+        return pending, pending | np.any(self.armed[:, idx], axis=0)
+
+    def phase_checks(self, idx: np.ndarray) -> None:
+        """What a single flight checks before each segment: a stand whose propulsion is spent ends the run, and
+        so does a vehicle at rest on a track with nothing to push it (unless a trigger's action is pending); one
+        that never left its guide is screened (unless a trigger still watches or waits)."""
+        idx = idx[self.live[idx]]
+        if len(idx) == 0:
+            return
+        prop = self.sysa.propulsive(self.modes[:, idx])
+        kin = self.kin[idx]
+        v_al, s_al = self.along(idx)
+        pending, waits = self.waiting(idx)
+        self.finish(idx[(kin == HELD) & ~prop & ~pending], STATUS_OK, "propulsion spent on the stand")
+        still = np.flatnonzero((kin == TRACK) & ~prop & (v_al == 0.0) & ~pending)
+        if len(still):
+            F = self.F[3:6, idx[still]]
+            self.finish(idx[still][np.all(F == 0.0, axis=0)], STATUS_OK, "at rest on the track")
+        stuck = (kin == GUIDE) & ~prop & (v_al <= 0.0) & (s_al <= 1e-12) & ~waits
         self.finish(idx[stuck], STATUS_SCREENED, "no lift-off: the thrust never exceeded the weight along the guide")
 
     def initial_step(self, idx: np.ndarray | None = None, sub: ArraySystem | None = None) -> np.ndarray:
@@ -598,7 +696,7 @@ class _Run:
         d1 = _norm((F / sc)[:c])
         h0 = np.where((d0 < 1e-5) | (d1 < 1e-5), 1e-6, 0.01 * d0 / np.where(d1 > 0, d1, 1.0))
         h0 = np.minimum(h0, left)
-        F1, _ = sub.rhs(t + h0, Y + h0 * F, self.modes[:, idx], self.kin[idx])
+        F1, _ = sub.rhs(t + h0, Y + h0 * F, self.modes[:, idx], self.kin[idx], slide=self.slide[idx])
         self.calls += 1
         d2 = _norm(((F1 - F) / sc)[:c]) / np.where(h0 > 0.0, h0, 1.0)
         h1 = np.where((d1 <= 1e-15) & (d2 <= 1e-15), np.maximum(1e-6, h0 * 1e-3),
@@ -677,7 +775,7 @@ class _Run:
         hh = np.where(live, np.minimum(self.h, self.t_end - t), 0.0)
         # one attempted step for every design, each with its own h
         K[0] = F
-        ph = sysa.phase(modes, kin)          # the stages share the phase
+        ph = sysa.phase(modes, kin, self.slide)          # the stages share the phase
         for st in range(1, 6):
             Ys = buf.combine(DOPRI_A[st], st, hh, Y, buf.Ys)
             sysa.rhs(t + DOPRI_C[st] * hh, Ys, modes, kin, out=K[st], phase=ph, aux=False)
@@ -721,7 +819,8 @@ class _Run:
         # events on the accepted steps. An event that no design watches now (a vessel's events once every
         # design has sealed it, guide exit once all are free) keeps its old values: a design starts watching
         # an event only at a phase switch, where all its event values are evaluated afresh
-        acts = [acc & ev.active(j, modes, kin, self.desc, self.gpos, self.armed, self.due) for j in range(nev)]
+        acts = [acc & ev.active(j, modes, kin, self.desc, self.gpos, self.armed, self.due, self.slide)
+                for j in range(nev)]
         gnew = [ev.value(j, sysa, t + hh, Yn, aux_n, due=self.due) if act.any() else self.gold[j]
                 for j, act in enumerate(acts)]
         hit = []
@@ -746,7 +845,7 @@ class _Run:
             # dense-output coefficients (ns, 4, m): one 2-D pass over the gathered stages (a 3-D einsum was 3x slower)
             Ke = K[:, :, evi]
             Q = np.einsum("sp,sk->pk", DOPRI_P, Ke.reshape(7, -1)).reshape(4, self.ns, -1).transpose(1, 0, 2)
-            need = any(ev.needs_drive[j] and np.any(hit[j][evi]) for j in range(nev))
+            need = any(ev.own_system[j] and np.any(hit[j][evi]) for j in range(nev))
             sub_e = sysa.subset(evi) if need else None
             thetas = np.full((nev, len(evi)), np.inf)
             for j in range(nev):
@@ -754,7 +853,7 @@ class _Run:
                 if len(sel):
                     rows = evi[sel]
                     thetas[j, sel] = _locate(ev, j, sysa, sub_e, sel, rows, t, hh, Y, Q[:, :, sel],
-                                             modes, kin, self.gold[j][rows], gnew[j][rows], self.due)
+                                             modes, kin, self.slide, self.gold[j][rows], gnew[j][rows], self.due)
             if not self.stop_at_apogee:
                 # apogee switches nothing in the dynamics: it is recorded where it falls inside the step (on the
                 # dense output, before any other event of the design in this step) and does not cut the step
@@ -779,7 +878,7 @@ class _Run:
             theta_ev[evi] = th_min
             Ye = _dense(Y[:, evi], hh[evi], Q, th_min)
             te = t[evi] + th_min * hh[evi]
-            Fe, aux_e = sub_e.rhs(te, Ye, modes[:, evi], kin[evi])     # the old phase at the event point
+            Fe, aux_e = sub_e.rhs(te, Ye, modes[:, evi], kin[evi], slide=self.slide[evi])  # the old phase there
             self.calls += 1
         cut = np.isfinite(theta_ev)
         th_end = np.where(cut, theta_ev, 1.0)
@@ -821,6 +920,18 @@ class _Run:
                 elif kind == "guide":
                     kin[rows] = FREE
                     self.exit_speed[rows] = np.sqrt(_rowsum(Y[3:6, rows] ** 2))
+                elif kind == "foot":           # slid back down the guide: at rest at its foot
+                    for c in range(3):
+                        Y[c, rows] = sysa.x0[c][rows]
+                    Y[3:6, rows] = 0.0
+                elif kind == "rest":
+                    Y[3:6, rows] = 0.0
+                    # it stays at rest only if friction holds it (friction following the speed, static at rest),
+                    # nothing pushes and no trigger still watches or waits
+                    a = self.accel_along(rows, np.zeros(len(rows)))
+                    held = (a == 0.0) & ~sysa.propulsive(modes[:, rows]) & ~self.waiting(rows)[1]
+                    self.finish(rows[held], STATUS_OK, "came to rest on the track" if self.parsed.launch.mount ==
+                                "track" else "came to rest on the launch guide")
                 elif kind == "apogee":
                     self.desc[rows] = True
                     self.apogee[rows] = Y[2, rows]
@@ -833,15 +944,16 @@ class _Run:
             keep_e = live[evi]
             cont = evi[keep_e]
             if len(cont):
+                self.set_slide(cont)
                 sub = sub_e if np.all(keep_e) else sub_e.subset(np.flatnonzero(keep_e))
-                Fi, ai = sub.rhs(t[cont], Y[:, cont], modes[:, cont], kin[cont])
+                Fi, ai = sub.rhs(t[cont], Y[:, cont], modes[:, cont], kin[cont], slide=self.slide[cont])
                 self.calls += 1
                 F[:, cont] = Fi
                 gi = self.g_all(sub, t[cont], Y[:, cont], ai, cont)
                 for j in range(nev):
                     self.gold[j][cont] = gi[j]
                 self.fire_at_once(cont)
-                self.no_liftoff(cont)
+                self.phase_checks(cont)
         over = live & (t >= self.t_end * (1 - 4 * _EPS))
         self.finish(np.flatnonzero(over), STATUS_OK, "end time reached")
         bad = live & ~np.all(np.isfinite(Y), axis=0)
@@ -924,14 +1036,15 @@ def _table(out: dict[str, np.ndarray], outputs: Sequence[str]) -> np.ndarray:
 
 def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel: np.ndarray, rows: np.ndarray,
             t: np.ndarray, h: np.ndarray, Y: np.ndarray, Q: np.ndarray, modes: np.ndarray, kin: np.ndarray,
-            ga: np.ndarray, gb: np.ndarray, due: np.ndarray) -> np.ndarray:
+            slide: np.ndarray, ga: np.ndarray, gb: np.ndarray, due: np.ndarray) -> np.ndarray:
     """Fraction of the step at which event ``j`` crosses zero, per design (vectorised Illinois iteration)."""
     Y0, hh, t0 = Y[:, rows], h[rows], t[rows]
     need = ev.needs_drive[j]
-    if need:
+    own = ev.own_system[j]
+    if own:
         local = sub.subset(sel) if sub is not None and len(sel) != sub.n else sub
         m_loc, k_loc = modes[:, rows], kin[rows]
-        ph_loc = local.phase(m_loc, k_loc)
+        ph_loc = local.phase(m_loc, k_loc, slide[rows])
 
     kind = ev.slots[j][0]
     if kind in ("apogee", "impact"):      # one state: only its row of the dense output
@@ -945,6 +1058,8 @@ def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel
         if need:
             drive = local.drives(tt, yy, ph_loc) if kind == "comp" else {}
             return ev.value(j, local, tt, yy, {"drive": drive, "phase": ph_loc})
+        if own:
+            return ev.value(j, local, tt, yy, None)
         return ev.value(j, sysa, tt, yy, None, rows, due)
 
     return _illinois(g, ga, gb, t0, hh)

@@ -42,7 +42,8 @@ from .version import __version__
 from .xp import scalar_ops
 from .plugins import plugin_versions
 
-__all__ = ["integrate", "fly", "fly_segments", "provenance", "Segments", "available_signals"]
+__all__ = ["integrate", "fly", "fly_segments", "provenance", "Segments", "available_signals", "check_launch_speed",
+           "rest_value"]
 
 _KIN = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.FREE, "track": Kinematics.TRACK}
 _NOT_PROPULSIVE = ("spent", "on guide", "coast", "descent")
@@ -154,6 +155,33 @@ def integrate(model: Model | ParsedModel | System, *, rtol: float | None = None,
     return result
 
 
+def rest_value(v_along: Any, way: Any) -> Any:
+    """The value of the event "came to rest" of a vehicle sliding ``way`` (+1, -1) along its guide or track: its
+    speed along it, where a speed of exactly zero (a phase that starts at rest) counts as not yet turned round
+    (a tiny number of the sign it slides with), so that only a later return to zero ends the phase. Floats or
+    arrays (single flights and ensembles alike).
+
+    >>> rest_value(0.0, -1.0) < 0.0 < rest_value(0.0, 1.0), rest_value(-2.5, 1.0)
+    (True, -2.5)
+    """
+    return np.where(v_along != 0.0, v_along, way * 1e-300) if isinstance(v_along, np.ndarray) else \
+        (v_along if v_along != 0.0 else way * 1e-300)
+
+
+def check_launch_speed(launch: Any) -> None:
+    """Refuse an initial speed on a test stand (single flights and ensembles alike).
+
+    >>> from types import SimpleNamespace
+    >>> check_launch_speed(SimpleNamespace(mount="held", speed=2.0))
+    Traceback (most recent call last):
+    ...
+    thrustgraph.errors.ModelError: launch.speed: a vehicle held on a test stand cannot have an initial speed. Fix: set launch.speed = "0 m/s" or choose mount = "guide" or "free".
+    """
+    if launch.mount == "held" and launch.speed != 0.0:
+        raise ModelError("launch.speed", "a vehicle held on a test stand cannot have an initial speed",
+                         "set launch.speed = \"0 m/s\" or choose mount = \"guide\" or \"free\"")
+
+
 def available_signals(system: System) -> dict[str, str]:
     """Signals a trigger can watch on this vehicle: name -> SI unit."""
     bal = Balance(system)
@@ -218,9 +246,7 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
     method = run.method if method is None else method
     t_end = run.end_time if end_time is None else end_time
     launch = system.launch
-    if launch.mount == "held" and launch.speed != 0.0:
-        raise ModelError("launch.speed", "a vehicle held on a test stand cannot have an initial speed",
-                         "set launch.speed = \"0 m/s\" or choose mount = \"guide\" or \"free\"")
+    check_launch_speed(launch)
     triggers = list(resolve_thresholds(system.parsed.triggers, available_signals(system))) \
         if system.parsed.triggers else []
     pending: list[tuple[float, Trigger]] = []
@@ -508,8 +534,8 @@ def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: 
     if ph.kin in (Kinematics.TRACK, Kinematics.GUIDE) and ph.slide != 0.0:
         # sliding: the segment ends where the speed along the guide or track reaches zero (kinetic friction
         # opposes the sliding direction, fixed for the segment, so the turn-round is a segment boundary)
-        def rest(t, y):
-            return y[3] * u[0] + y[4] * u[1] + y[5] * u[2]
+        def rest(t, y, way=ph.slide):
+            return rest_value(y[3] * u[0] + y[4] * u[1] + y[5] * u[2], way)
         rest.terminal = True
         rest.direction = -ph.slide
         fns.append(rest)

@@ -51,7 +51,6 @@ from functools import cached_property
 from typing import Protocol, Any, Callable, Iterable, Mapping, Sequence
 
 import numpy as np
-from scipy.optimize import minimize_scalar
 
 from .balance import Kinematics
 from .errors import ModelError, PluginError
@@ -96,6 +95,10 @@ def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: f
     """Largest value of ``fun`` on [t_lo, t_hi] by a bounded scalar search, never below ``best``."""
     if not t_hi > t_lo:
         return best
+    # imported on first use, not with the module: scipy.optimize costs ~0.7 s to import, which a command that
+    # computes no outcome (`thrustgraph check`) would pay (benchmarks/cli_startup.py)
+    from scipy.optimize import minimize_scalar
+
     res = minimize_scalar(lambda t: -fun(t), bounds=(t_lo, t_hi), method="bounded",
                           options={"xatol": 1e-12 * max(1.0, abs(t_hi)) + 1e-9 * (t_hi - t_lo)})
     return max(best, -float(res.fun))

@@ -31,15 +31,22 @@ Assumptions and limits:
   above, waves, or the crossing of the surface (surface contact belongs to the
   core's ground/water-surface events).
 
+The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.xp`
+and runs on floats (a single flight) and on numpy arrays of designs and heights (an ensemble).
+
 Examples
 --------
+>>> import numpy as np
 >>> from thrustgraph.component import scalar_ops
+>>> from thrustgraph.xp import array_ops
 >>> from thrustgraph.parameters import parse_params
 >>> p = parse_params(StillWater.parameters, {}, where="environment.medium")
 >>> water = StillWater.build(p, scalar_ops)
 >>> rho, pa, T, cx, cy, cz = water(-10.0, 0.0)      # 10 m below the surface at z = 0
 >>> rho, round(pa, 3)
 (998.2, 199214.98)
+>>> StillWater.build(p, array_ops)(np.array([-10.0, 0.0, 3.0]), np.zeros(3))[1].round(3).tolist()
+[199214.98, 101325.0, 101325.0]
 """
 
 from __future__ import annotations
@@ -69,16 +76,17 @@ class StillWater(EnvironmentKind):
         Quantity("current_y", "m/s", default="0 m/s", low=-100.0, high=100.0, doc="velocity of the water along +y"),
     )
 
+    vectorised = True
+
     @classmethod
     def build(cls, p, ops):
-        """``medium(z, t) -> (rho, p, T, current_x, current_y, 0)`` in SI; scalar z only."""
+        """``medium(z, t) -> (rho, p, T, current_x, current_y, 0)`` in SI; one definition for floats and arrays
+        (``z`` and the parameters may be arrays over designs)."""
         rho, zs, ps, T, cx, cy = p.density, p.surface_altitude, p.surface_pressure, p.temperature, \
             p.current_x, p.current_y
         k = p.density * p.g
 
         def medium(z, t):
-            depth = zs - z
-            if depth < 0.0:
-                depth = 0.0
+            depth = ops.maximum(zs - z, 0.0)
             return (rho, ps + k * depth, T, cx, cy, 0.0)
         return medium

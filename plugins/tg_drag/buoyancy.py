@@ -31,6 +31,9 @@ Assumptions and limits (read them before you use it):
 * in air, the buoyancy of a small rocket is tiny (rho_air / rho_vehicle) and
   is usually left out; it is correct to include it.
 
+The kind is ``vectorised``: its one definition (a product of parameters and the medium's density) runs
+on floats and on numpy arrays of designs (:mod:`thrustgraph.xp`).
+
 Examples
 --------
 >>> from thrustgraph.component import scalar_ops
@@ -61,8 +64,11 @@ class Buoyancy(ComponentKind):
                  doc="gravity for the buoyancy (set it equal to the model's gravity field)"),
     )
 
+    vectorised = True
+
     @classmethod
     def build_body(cls, p, ops):
+        """One definition for floats and arrays: ``p`` fields and ``air`` may be arrays over designs."""
         k = p.g * p.displaced_volume
 
         def force(air):

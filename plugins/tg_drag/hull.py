@@ -32,20 +32,27 @@ scaled by Froude's method, or from trials (a standard text: Harvald,
 *Resistance and Propulsion of Ships*, 1983; from memory); this kind uses a
 curve, it does not predict one.
 
+The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.xp`
+and runs on floats (a single flight) and on numpy arrays of designs (an ensemble).
+
 Examples
 --------
+>>> import numpy as np
 >>> from thrustgraph.component import scalar_ops
+>>> from thrustgraph.xp import array_ops
 >>> from thrustgraph.parameters import parse_params
 >>> p = parse_params(BoatHull.parameters, {"dry_mass": "5 kg",
 ...     "resistance_table": {"units": ["m/s", "N"], "rows": [[0, 0], [1, 2], [2, 10]]}}, where="components.hull")
 >>> hull = BoatHull.build_body(p, scalar_ops)
 >>> round(hull.force((998.2, 1e5, 293.0, 1.5, 0.0, 0.0, 1.5))[0], 9)    # R(1.5 m/s) = 6 N, against +x
 -6.0
+>>> air = tuple(np.array(v) for v in (998.2, 1e5, 293.0)) + (np.array([0.0, 1.5, 3.0]), np.zeros(3), np.zeros(3),
+...                                                          np.array([0.0, 1.5, 3.0]))
+>>> BoatHull.build_body(p, array_ops).force(air)[0].tolist()      # at rest, in the table, above its last row
+[-0.0, -6.0, -22.5]
 """
 
 from __future__ import annotations
-
-import math
 
 from thrustgraph.component import BodyFns, ComponentKind
 from thrustgraph.errors import ModelError
@@ -95,29 +102,30 @@ class BoatHull(ComponentKind):
     def cautions(cls, p):
         return [WATER_CAUTION]
 
+    vectorised = True
+
     @classmethod
     def build_body(cls, p, ops):
+        """One definition for one design (floats) and for an ensemble (``p.dry_mass`` and ``air`` arrays; the
+        table is shared by every design)."""
         t = p.resistance_table
         xs, ys = [float(v) for v in t[:, 0]], [float(v) for v in t[:, 1]]
         if xs[0] > 0.0:
             xs.insert(0, 0.0)
             ys.insert(0, 0.0)
-        resistance = clamped_interpolator(xs, ys)
+        resistance = clamped_interpolator(xs, ys, ops)
         slope0 = (ys[1] - ys[0]) / (xs[1] - xs[0])      # R/|v| as |v| -> 0
         vn, rn = xs[-1], ys[-1]
         cn = rn / (vn * vn)                             # R/|v|^2 held above the last row
         horizontal = p.acts == "horizontal"
-        sqrt = math.sqrt
 
         def force(air):
             vx, vy = air[3], air[4]
-            vz = 0.0 if horizontal else air[5]
-            s = sqrt(vx * vx + vy * vy + vz * vz)
-            if s >= vn:
-                c = cn * s
-            elif s > 0.0:
-                c = resistance(s) / s
-            else:
-                c = slope0
+            vz = 0.0 * vx if horizontal else air[5]
+            s = ops.sqrt(vx * vx + vy * vy + vz * vz)
+            moving = s > 0.0
+            # R/|v|: the table between its rows (the speed clipped away from 0 where the hull is at rest, so the
+            # unused choice stays finite), the slope of its first row at rest, R_n/v_n^2 |v| above its last row
+            c = ops.where(s >= vn, cn * s, ops.where(moving, resistance(s) / ops.where(moving, s, 1.0), slope0))
             return (-c * vx, -c * vy, -c * vz)
         return BodyFns(mass=p.dry_mass, force=force, force_name="resistance")

@@ -24,15 +24,27 @@ incidence or spillage model), quasi-steady, no cavitation or choking in the
 inlet; the loss coefficient is a number the user supplies (0.1-0.3 is
 typical of a flush water-jet inlet near design: common practice, no source).
 
+The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.xp`
+and runs on floats (a single flight) and on numpy arrays of designs (an ensemble); the fluid it takes in is
+a choice shared by every design.
+
 Examples
 --------
+>>> import numpy as np
 >>> from thrustgraph.component import Ambient, scalar_ops
+>>> from thrustgraph.xp import array_ops
 >>> P = Inlet.params_class()
 >>> src = Inlet.build_source(P(fluid="liquid", loss_coefficient=0.2, gas_gamma=1.4, gas_constant=287.05),
 ...                          -1, scalar_ops, Ambient(101325.0, 293.15, 998.2))
 >>> up, mfix, vx, vy, vz = src.supply(0.0, [], 0, (998.2, 101325.0, 293.15, 5.0, 0.0, 0.0, 5.0))
 >>> round(up[0] - 101325.0, 3), mfix, vx       # 0.8 of the ram pressure; the captured water arrives at -V
 (9982.0, -1.0, -5.0)
+>>> src = Inlet.build_source(P(fluid="gas", loss_coefficient=np.array([0.0, 0.5]), gas_gamma=1.4, gas_constant=287.05),
+...                          -1, array_ops, Ambient(101325.0, 288.15, 1.225))
+>>> up = src.supply(0.0, [], 0, (1.225, 101325.0, 288.15, np.full(2, 100.0), np.zeros(2), np.zeros(2),
+...                              np.full(2, 100.0)))[0]
+>>> (up[0] - 101325.0).round(1).tolist()           # the whole ram rise at Mach 0.29, then half of it
+[6258.4, 3129.2]
 """
 
 from __future__ import annotations
@@ -61,8 +73,11 @@ class Inlet(ComponentKind):
                  doc="specific gas constant of the captured gas"),
     )
 
+    vectorised = True
+
     @classmethod
     def build_source(cls, p, i, ops, amb):
+        """One definition for floats and arrays: the parameters and ``air`` may be arrays over designs."""
         keep = 1.0 - p.loss_coefficient
         liquid = p.fluid == "liquid"
         g, R = p.gas_gamma, p.gas_constant

@@ -30,9 +30,15 @@ Froude propulsive efficiency of the jet it drives (useful power over the
 kinetic energy added): ``eta_p = 2 / (1 + V_j / V_0)``
 (:func:`~tg_feeds.propulsive.froude_efficiency`).
 
+The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.xp`
+and runs on floats (a single flight) and on numpy arrays of designs (an ensemble): the regimes (shut-off
+cap or hyperbola; below, on or beyond the head curve; running or stopped) are chosen with ``ops.where``.
+
 Examples
 --------
+>>> import numpy as np
 >>> from thrustgraph.component import scalar_ops
+>>> from thrustgraph.xp import array_ops
 >>> from thrustgraph.parameters import parse_params
 >>> p = parse_params(Pump.parameters, {"shaft_power": "1 kW", "efficiency": 0.6, "shutoff_pressure": "3 bar"},
 ...                  where="components.pump", params_class=Pump.params_class())
@@ -40,9 +46,14 @@ Examples
 >>> up = (101325.0, 293.15, 1000.0, 1.4, 287.05, 1.0, 0.0)
 >>> f.rise(up, 0.0, 0), f.rise(up, 6.0, 0)        # shut-off; 600 W into 6 L/s
 (300000.0, 100000.0)
+>>> fa = Pump.build_flow(p, array_ops)
+>>> fa.rise(up, np.array([0.0, 6.0, 6.0]), np.array([0, 0, 1])).tolist()     # the last one stopped
+[300000.0, 100000.0, 0.0]
 """
 
 from __future__ import annotations
+
+import math
 
 import numpy as np
 
@@ -105,44 +116,47 @@ class Pump(ComponentKind):
                 raise ModelError(f"{where}.head_curve.rows[0]", "volume flows start at 0 or more",
                                  "start the curve at zero flow (the shut-off head)")
 
+    vectorised = True
+
     @classmethod
     def build_flow(cls, p, ops):
+        """One definition for floats and arrays: ``up``, ``mdot``, ``mode`` and the power programme's parameters
+        may be arrays over designs (the head curve, a table, is shared by every design)."""
         g0 = STANDARD_GRAVITY
-        if p.programme == "power":
+        power = p.programme == "power"
+        if power:
             wh = p.efficiency * p.shaft_power
             dp0 = p.shutoff_pressure
             qk = wh / dp0
 
             def lift(q):
-                return dp0 if q <= qk else wh / q
+                # the shut-off cap below Q_k, the hyperbola above (its divisor kept >= Q_k: finite at Q = 0)
+                return ops.where(q <= qk, dp0, wh / ops.maximum(q, qk))
         else:
-            # arrays, converted once: np.interp would convert a list on every call (slow for long curves)
-            qs = np.ascontiguousarray(p.head_curve[:, 0], dtype=float)
-            hs = np.ascontiguousarray(p.head_curve[:, 1], dtype=float)
-            q0, q1, h0, h1 = float(qs[0]), float(qs[-1]), float(hs[0]), float(hs[-1])
-            s0 = (float(hs[1]) - h0) / (float(qs[1]) - q0)
-            s1 = (h1 - float(hs[-2])) / (q1 - float(qs[-2]))
-
-            def head(q):
-                if q <= q0:
-                    return h0 + s0 * (q - q0)
-                if q >= q1:
-                    return h1 + s1 * (q - q1)
-                return float(np.interp(q, qs, hs))
+            qs = [float(v) for v in p.head_curve[:, 0]]
+            hs = [float(v) for v in p.head_curve[:, 1]]
+            q0, q1, h0, h1 = qs[0], qs[-1], hs[0], hs[-1]
+            s0 = (hs[1] - h0) / (qs[1] - q0)
+            s1 = (h1 - hs[-2]) / (q1 - qs[-2])
+            # tuples for floats (a bisection, no numpy call per evaluation), arrays for numpy.interp
+            xq, xh = (np.array(qs), np.array(hs)) if ops.arrays else (tuple(qs), tuple(hs))
 
             def lift(q):
-                return head(q) * g0
+                head = ops.where(q <= q0, h0 + s0 * (q - q0),
+                                 ops.where(q >= q1, h1 + s1 * (q - q1), ops.interp(q, xq, xh)))
+                return head * g0
 
         def rise(up, mdot, mode=0):
-            if mode == 1:
-                return 0.0
             rho = up[2]
             dp = lift(mdot / rho)
-            return dp if p.programme == "power" else rho * dp
+            if not power:
+                dp = rho * dp
+            return ops.where(mode == 1, 0.0 * dp, dp)        # stopped: an open passage
 
         events: tuple[EventSpec, ...] = ()
-        if p.run_time > 0.0:
-            tr = p.run_time
+        if ops.any(p.run_time > 0.0):
+            # a design whose run_time is 0 never stops: its event function stays below zero
+            tr = ops.where(p.run_time > 0.0, p.run_time, math.inf)
             events = (EventSpec("pump stopped", lambda t, s, drive: t - tr, 1.0, ("running",), "stopped",
                                 needs_drive=False),)
         return FlowFns(rise=rise, events=events)

@@ -31,7 +31,8 @@ from __future__ import annotations
 
 import math
 
-from scipy.optimize import brentq
+# scipy.optimize is imported by the two root finders below when first called, not with the module: it costs
+# ~0.7 s to import, which every command would pay when the plugins load (benchmarks/cli_startup.py).
 
 __all__ = ["temperature_ratio", "pressure_ratio", "density_ratio", "area_ratio", "mach_from_area_ratio",
            "mach_from_pressure_ratio", "critical_pressure_ratio", "mass_flux_factor", "normal_shock",
@@ -93,6 +94,8 @@ def mach_from_area_ratio(ratio: float, gamma: float, branch: str = "supersonic")
             hi *= 2.0
     else:
         raise ValueError(f"branch must be 'subsonic' or 'supersonic', got {branch!r}")
+    from scipy.optimize import brentq
+
     return brentq(lambda m: area_ratio(m, gamma) - ratio, lo, hi, xtol=1e-15, rtol=8.9e-16, maxiter=200)
 
 
@@ -149,4 +152,6 @@ def shock_mach_from_total_pressure_ratio(ratio: float, gamma: float) -> float:
     hi = 2.0
     while normal_shock(hi, gamma)[2] > ratio:
         hi *= 2.0
+    from scipy.optimize import brentq
+
     return brentq(lambda m: normal_shock(m, gamma)[2] - ratio, 1.0, hi, xtol=1e-14, rtol=8.9e-16, maxiter=200)

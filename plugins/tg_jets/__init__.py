@@ -31,7 +31,6 @@ Examples
 from __future__ import annotations
 
 import numpy as np
-from scipy.integrate import trapezoid
 
 from thrustgraph import hookimpl
 from thrustgraph.component import ComponentKind, EventSpec, JetFns, Mode, StateVar
@@ -86,6 +85,10 @@ class PrescribedJet(ComponentKind):
     def _propellant(cls, p) -> float:
         if p.programme == "constant-flow":
             return p.propellant_mass
+        # scipy.integrate is imported here, not with the plugin: it costs ~0.8 s to import (it imports
+        # scipy.optimize), which every command would pay when the plugins load (benchmarks/cli_startup.py)
+        from scipy.integrate import trapezoid
+
         tc = p.thrust_curve
         return float(trapezoid(tc[:, 1], tc[:, 0])) / p.exhaust_velocity
 

@@ -9,14 +9,14 @@ from __future__ import annotations
 import argparse
 from typing import Any, Sequence
 
+from . import SUMMARIES
 from ..errors import ModelError
 from .common import add_set_option, load_with_overrides, parse_override
 from .compare import add_record_options, check_plot_names, mapping_from, parse_pair, prepared, read_records
 from .outputs import check_paths, write_outputs
 
 NAME = "calibrate"
-HELP = ("fit uncertain parameters (discharge coefficient, expansion exponent, drag...) to measured records; "
-        "report them with confidence intervals and write a calibrated model")
+HELP = SUMMARIES[NAME]
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:

@@ -12,13 +12,14 @@ import argparse
 
 import networkx as nx
 
+from . import SUMMARIES
 from ..assembly import assemble
 from ..model import ParsedModel
 from .common import add_model_argument, add_set_option
 from .outputs import load_checked
 
 NAME = "check"
-HELP = "validate a model without flying it: components, graph, mass at launch and safety cautions"
+HELP = SUMMARIES[NAME]
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:

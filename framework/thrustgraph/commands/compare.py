@@ -13,6 +13,7 @@ from __future__ import annotations
 import argparse
 from typing import Any, Sequence
 
+from . import SUMMARIES
 from ..errors import ModelError
 from ..model import Model
 from ..records import ColumnMap, Record, Trigger, read_record, resample
@@ -20,7 +21,7 @@ from .common import add_set_option, load_with_overrides
 from .outputs import check_paths, write_outputs
 
 NAME = "compare"
-HELP = "compare a model's prediction with a measured record (CSV with units in the headers): metrics and plots"
+HELP = SUMMARIES[NAME]
 
 
 def add_record_options(p: argparse.ArgumentParser) -> None:

@@ -14,6 +14,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from . import SUMMARIES
 from ..displayunits import using
 from ..errors import ThrustgraphError
 from ..exportformats import EXPORTS
@@ -22,7 +23,7 @@ from .outputs import (add_export_options, add_quiet_option, check_paths, default
                       load_checked, write_outputs)
 
 NAME = "export"
-HELP = "fly a model and write its results: CSV time series, JSON summary, Parquet (when pyarrow is installed)"
+HELP = SUMMARIES[NAME]
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:

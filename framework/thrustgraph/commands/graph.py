@@ -10,12 +10,13 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from . import SUMMARIES
 from ..errors import ThrustgraphError
 from .common import add_model_argument, add_set_option
 from .outputs import check_paths, default_stem, load_checked, need_matplotlib, write_outputs
 
 NAME = "graph"
-HELP = "draw a model's component graph to an image (PNG or SVG)"
+HELP = SUMMARIES[NAME]
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:

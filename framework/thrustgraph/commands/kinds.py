@@ -10,13 +10,14 @@ from __future__ import annotations
 import argparse
 import difflib
 
+from . import SUMMARIES
 from ..component import ROLES
 from ..errors import ModelError
 from ..model import LAUNCH_SPECS, RUN_SPECS
 from ..plugins import component_kinds, environment_kinds, get_plugin_manager, plugin_versions
 
 NAME = "kinds"
-HELP = "list the installed device and environment kinds with their parameters, units, ranges and defaults"
+HELP = SUMMARIES[NAME]
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:

@@ -12,12 +12,13 @@ import difflib
 import os
 import re
 
+from . import SUMMARIES
 from ..errors import ModelError
 from ..modelfile import bundled_models, default_model_path, dumps_model, load_model, loads_model
 from .outputs import check_paths, write_outputs
 
 NAME = "new"
-HELP = "create a model file from a bundled starter scenario (list them with --list)"
+HELP = SUMMARIES[NAME]
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:

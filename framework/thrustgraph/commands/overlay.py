@@ -18,6 +18,7 @@ import argparse
 from pathlib import Path
 from typing import Any
 
+from . import SUMMARIES
 from ..errors import ModelError
 from ..plotkinds import IMAGE_FORMATS, OVERLAY, names
 from ..records import read_record, shift
@@ -30,8 +31,7 @@ from .outputs import add_quiet_option, check_paths, default_stem, fly_model, loa
 __all__ = ["add_arguments", "main", "variant_settings"]
 
 NAME = "overlay"
-HELP = ("overlay several runs (models, --variant changes, saved results, measured records): one set of plots and "
-        "one table of outcome differences")
+HELP = SUMMARIES[NAME]
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:

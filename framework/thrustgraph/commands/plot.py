@@ -9,13 +9,14 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from . import SUMMARIES
 from ..plotkinds import FLIGHT, IMAGE_FORMATS, names
 from ..displayunits import using
 from .common import add_model_argument, add_set_option, add_units_option, units_choice
 from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
 
 NAME = "plot"
-HELP = "fly a model and draw its plots (thrust, motion, balance ledger...; --only lists them all) as PNG or SVG"
+HELP = SUMMARIES[NAME]
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:

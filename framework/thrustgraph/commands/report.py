@@ -10,12 +10,13 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from . import SUMMARIES
 from ..displayunits import using
 from .common import add_model_argument, add_set_option, add_units_option, units_choice
 from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
 
 NAME = "report"
-HELP = "fly a model and write a self-contained HTML report (summary, plots, ledger audit, events, model, versions)"
+HELP = SUMMARIES[NAME]
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:

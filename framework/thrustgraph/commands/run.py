@@ -6,6 +6,7 @@ import argparse
 import math
 from typing import Sequence
 
+from . import SUMMARIES
 from ..displayunits import shown, using
 from ..exportformats import EXPORTS
 from ..result import FlightResult
@@ -14,7 +15,7 @@ from .outputs import (add_export_options, add_quiet_option, check_paths, export_
                       need_matplotlib, write_outputs)
 
 NAME = "run"
-HELP = "fly a model and print the summary (burn time, peak thrust and acceleration, apogee or range, audits)"
+HELP = SUMMARIES[NAME]
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
     add_model_argument(p)

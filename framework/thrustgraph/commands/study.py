@@ -20,6 +20,7 @@ import sys
 from dataclasses import replace
 from typing import Any
 
+from . import SUMMARIES
 from ..errors import ModelError
 from ..interrupts import exit_status
 from ..model import ParsedModel
@@ -30,8 +31,7 @@ from .common import add_model_argument, add_set_option
 from .outputs import add_quiet_option, check_paths, load_checked, need_matplotlib, write_outputs
 
 NAME = "study"
-HELP = ("run a design study: a sweep, an optimisation, a dispersion (Monte Carlo) or local sensitivities, "
-        "on this machine's cores or a Dask cluster")
+HELP = SUMMARIES[NAME]
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
