@@ -10,7 +10,7 @@ The one-line helps live here, not in the modules, so that ``thrustgraph
 imports only the module of the command it runs (:mod:`thrustgraph.cli`).
 
 >>> list(SUMMARIES)[:3]
-['run', 'compare', 'calibrate']
+['run', 'compare', 'overlay']
 """
 
 __all__ = ["SUMMARIES"]
