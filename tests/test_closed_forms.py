@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 from scipy.integrate import quad
 
-from thrustgraph import integrate
+from thrustgraph import ModelError, integrate
 from conftest import model_from_toml
 
 G0 = 9.80665  # standard gravity, exact (3rd CGPM 1901)
@@ -108,6 +108,8 @@ def drain_tank(cd: float):
         kind = "convergent-nozzle"
         diameter = "5 cm"
         discharge_coefficient = {cd}
+        # Torricelli's law is the large-tank limit (the water at rest in the tank): no velocity of approach
+        approach_velocity = false
         [components.outside]
         kind = "surroundings"
     """)
@@ -138,7 +140,10 @@ def test_torricelli_draining_time(cd, expected):
     assert abs(r.audit.mass_relative) <= 1e-9
 
 
-def static_bottle(gauge: str, fill=0.3, d="22 mm", cd=1.0, head="false", medium='kind = "still-air"'):
+def static_bottle(gauge: str, fill=0.3, d="22 mm", cd=1.0, head="false", medium='kind = "still-air"',
+                  approach="false", bore="100 mm"):
+    # approach = false: the published jet formulas below are the limit of a nozzle much narrower than the
+    # vessel (the liquid at rest in the bore); the velocity of approach is checked on its own further down
     return model_from_toml(f"""
         flow_paths = ["bottle -> neck -> outside"]
         [launch]
@@ -158,10 +163,12 @@ def static_bottle(gauge: str, fill=0.3, d="22 mm", cd=1.0, head="false", medium=
         gauge_pressure = "{gauge}"
         liquid_density = "998.2 kg/m^3"
         inertial_head = {head}
+        bore = "{bore}"
         [components.neck]
         kind = "convergent-nozzle"
         diameter = "{d}"
         discharge_coefficient = {cd}
+        approach_velocity = {approach}
         [components.outside]
         kind = "surroundings"
     """)
@@ -176,6 +183,34 @@ def test_bernoulli_exit_velocity_and_ideal_water_jet_thrust(bar, v, thrust):
     assert r.signals["neck.exit_velocity"][0] == pytest.approx(v, abs=5e-4)
     assert r.signals["thrust"][0] == pytest.approx(thrust, abs=0.05)
     assert r.signals["thrust"][0] == pytest.approx(2 * math.pi / 4 * 0.022 ** 2 * bar * 1e5, rel=1e-12)
+
+
+@pytest.mark.parametrize("bore, d, cd", [(0.100, 0.022, 1.0), (0.040, 0.022, 1.0), (0.030, 0.018, 0.9)])
+def test_velocity_of_approach_from_the_bore(bore, d, cd):
+    # Bernoulli from the bore (area A_b, speed v_b) to the jet (area Cd A, speed v) with continuity
+    # v_b A_b = v Cd A: v = sqrt(2 dp / (rho (1 - beta^2))), beta = Cd A / A_b (F. M. White, Fluid Mechanics,
+    # the Bernoulli obstruction-meter theory, V2 = sqrt(2 dp / (rho (1 - beta^4))) with beta the diameter ratio;
+    # closed form). The thrust is then rho Cd A v^2 = 2 Cd A dp / (1 - beta^2); off, the narrow-nozzle limit.
+    dp, rho = 4e5, 998.2
+    beta = cd * (d / bore) ** 2
+    on = integrate(static_bottle("4 bar", d=f"{d * 1e3} mm", cd=cd, approach="true", bore=f"{bore * 1e3} mm"))
+    off = integrate(static_bottle("4 bar", d=f"{d * 1e3} mm", cd=cd, approach="false", bore=f"{bore * 1e3} mm"))
+    v = math.sqrt(2 * dp / (rho * (1 - beta ** 2)))
+    assert on.signals["neck.exit_velocity"][0] == pytest.approx(v, rel=1e-12)
+    assert on.signals["thrust"][0] == pytest.approx(2 * cd * math.pi / 4 * d * d * dp / (1 - beta ** 2), rel=1e-12)
+    assert off.signals["neck.exit_velocity"][0] == pytest.approx(math.sqrt(2 * dp / rho), rel=1e-12)
+    # the water runs out sooner with the factor: the flow is larger by 1 / sqrt(1 - beta^2) at every pressure
+    t_on = next(e.t for e in on.events if e.name == "liquid exhausted")
+    t_off = next(e.t for e in off.events if e.name == "liquid exhausted")
+    assert t_on == pytest.approx(t_off * math.sqrt(1 - beta ** 2), rel=1e-6)
+
+
+def test_a_nozzle_as_wide_as_the_bore_is_refused():
+    from thrustgraph.model import parse_model
+    with pytest.raises(ModelError, match=r"components.neck: its jet area .* is 0.9 of the bore of 'bottle'.*"
+                                         r"approach_velocity = false"):
+        parse_model(static_bottle("4 bar", d="30 mm", cd=0.9, approach="true", bore="30 mm"))
+    parse_model(static_bottle("4 bar", d="30 mm", cd=0.9, approach="false", bore="30 mm"))   # off: accepted
 
 
 def test_static_water_impulse_matches_quasi_steady_quadrature():

@@ -415,3 +415,142 @@ def test_demo_model_runs_from_the_command_line(capsys):
     assert cli_main(["run", str(path)]) == 0
     out = capsys.readouterr().out
     assert "apogee" in out and "Cautions" in out and "NFPA 1122" in out
+
+
+# ---------------------------------------------------------------------------
+# still air: density from pressure and temperature (ideal gas), humidity, and a given density checked
+# ---------------------------------------------------------------------------
+
+R_1976 = 8314.32 / 28.9644   # J/(kg K): R* / M0 of the US Standard Atmosphere 1976 (NOAA/NASA/USAF 1976)
+
+
+@pytest.mark.parametrize("p, T", [(101325.0, 288.15), (101325.0, 308.15), (84000.0, 268.15), (1e5, 250.0),
+                                  (1200.0, 180.0)])
+def test_still_air_density_is_the_ideal_gas_law(kinds, p, T):
+    # rho = p / (R T) with the 1976 standard's gas constant (closed form, the ideal-gas law).
+    rho, pa, Ta, *_ = build(kinds, "still-air", pressure=f"{p!r} Pa", temperature=f"{T!r} K")(0.0, 0.0)
+    assert (pa, Ta) == (p, T)
+    assert rho == pytest.approx(p / (R_1976 * T), rel=1e-13)
+
+
+def test_still_air_defaults_give_the_1976_sea_level_density(kinds):
+    # NOAA/NASA/USAF, U.S. Standard Atmosphere 1976, Table I: 101325 Pa, 288.150 K, 1.2250 kg/m^3.
+    rho, *_ = build(kinds, "still-air")(0.0, 0.0)
+    assert abs(rho - 1.2250) <= half_unit("1.2250")
+
+
+def test_a_warm_day_is_lighter(kinds):
+    # The complaint this answers: 35 degC used to keep 1.225 kg/m^3. Ideal gas: 1.225 * 288.15 / 308.15.
+    rho, *_ = build(kinds, "still-air", temperature="35 degC")(0.0, 0.0)
+    assert rho == pytest.approx(1.2249992 * 288.15 / 308.15, rel=1e-6)
+    assert abs(rho - 1.1455) < 5e-5
+
+
+@pytest.mark.parametrize("Z, T, p, rho, source", GEOMETRIC_TABLE, ids=[f"Z={r[0]:g}" for r in GEOMETRIC_TABLE])
+def test_still_air_at_the_1976_table_pressure_and_temperature_has_its_density(kinds, Z, T, p, rho, source):
+    # U.S. Standard Atmosphere 1976 (NOAA/NASA/USAF), Table I, the rows above: still air given the table's
+    # pressure and temperature has the table's density. Tolerance: half a unit in the density's last printed
+    # digit plus what the rounding of the printed p and T moves it.
+    got, *_ = build(kinds, "still-air", pressure=f"{p} Pa", temperature=f"{T} K")(0.0, 0.0)
+    r = float(rho)
+    tol = half_unit(rho) + r * (half_unit(p) / float(p) + half_unit(T) / float(T))
+    assert abs(got - r) <= tol, source
+
+
+@pytest.mark.parametrize("Z", [0.0, 1000.0, 5000.0, 11000.0, 20000.0, 32000.0, 47000.0, 71000.0])
+def test_still_air_agrees_with_ambiance_at_altitude(kinds, Z):
+    # L: the ambiance package (its 1976 standard, R = 287.05287 J/(kg K)) at geometric altitude Z.
+    a = Atmosphere(Z)
+    p, T = float(a.pressure[0]), float(a.temperature[0])
+    got, *_ = build(kinds, "still-air", pressure=f"{p!r} Pa", temperature=f"{T!r} K")(0.0, 0.0)
+    assert got == pytest.approx(float(a.density[0]), rel=1e-6)
+
+
+@pytest.mark.parametrize("t_c", [0.01, 5.0, 10.0, 20.0, 35.0, 50.0])
+def test_buck_saturation_vapour_pressure_against_iapws95(t_c):
+    # L: CoolProp's water (IAPWS-95) saturation pressure, from the triple point (0.01 degC; the saturation line of
+    # IAPWS-95 starts there) to 50 degC; Buck's fit over water (J. Appl. Meteorol. 20, 1981; the 1996
+    # coefficients) stays within 0.1 % of it.
+    CP = pytest.importorskip("CoolProp.CoolProp")
+    from tg_atmosphere.air import saturation_vapour_pressure
+    T = t_c + 273.15
+    assert saturation_vapour_pressure(T) == pytest.approx(CP.PropsSI("P", "T", T, "Q", 0, "Water"), rel=1e-3)
+
+
+@pytest.mark.parametrize("t_c, rh", [(0.0, 0.5), (15.0, 0.0), (20.0, 0.5), (20.0, 1.0), (35.0, 0.8), (45.0, 1.0)])
+def test_humid_air_density_against_coolprop(kinds, t_c, rh):
+    # L: CoolProp HAPropsSI (ASHRAE RP-1485 humid air, real-gas mixing): 1 / Vha is the humid-air density. The
+    # ideal mixture without enhancement factor and compressibility is expected within 0.1 %.
+    HA = pytest.importorskip("CoolProp.HumidAirProp")
+    T = t_c + 273.15
+    got, *_ = build(kinds, "still-air", temperature=f"{T!r} K", relative_humidity=rh)(0.0, 0.0)
+    assert got == pytest.approx(1.0 / HA.HAPropsSI("Vha", "T", T, "P", 101325.0, "R", rh), rel=1e-3)
+    if rh > 0:
+        dry, *_ = build(kinds, "still-air", temperature=f"{T!r} K")(0.0, 0.0)
+        assert got < dry
+
+
+@pytest.mark.parametrize("raw, parts", [
+    ({"temperature": "35 degC", "density": "1.225 kg/m^3"},
+     ["environment.medium.density", "1.225 kg/m^3 does not go with", "35 degC", "1.1455 kg/m^3", "1 % allowed",
+      "leave density out"]),
+    ({"pressure": "90 kPa", "density": "1.225 kg/m^3"}, ["environment.medium.density", "90000 Pa"]),
+    ({"relative_humidity": 0.5, "temperature": "80 degC"}, ["environment.medium.relative_humidity", "-40 degC",
+                                                             "80 degC"]),
+    ({"relative_humidity": 1.0, "temperature": "45 degC", "pressure": "5 kPa"},
+     ["environment.medium.relative_humidity", "more than the air's pressure"]),
+])
+def test_inconsistent_air_is_refused(kinds, raw, parts):
+    with pytest.raises(ModelError) as err:
+        build(kinds, "still-air", **raw)
+    for part in parts:
+        assert part in str(err.value), str(err.value)
+
+
+def test_a_given_density_within_one_percent_is_used_as_given(kinds):
+    rho, *_ = build(kinds, "still-air", density="1.22 kg/m^3")(0.0, 0.0)       # 0.4 % below 1.2250
+    assert rho == 1.22
+    with pytest.raises(ModelError, match="1.2 kg/m\\^3 does not go with"):   # 2.0 % below
+        build(kinds, "still-air", density="1.2 kg/m^3")
+
+
+def test_the_flight_and_check_see_the_derived_density(tmp_path):
+    text = (REPO / "models" / "bottle-rocket.toml").read_text().replace('\ntemperature = "15 degC"',
+                                                                        '\ntemperature = "35 degC"')
+    from thrustgraph.modelfile import loads_model
+    parsed = parse_model(loads_model(text, source="warm.toml"))
+    assert parsed.ambient.density == pytest.approx(101325.0 / (R_1976 * 308.15), rel=1e-12)
+    path = tmp_path / "warm.toml"
+    path.write_text(text)
+    import contextlib
+    import io
+    out = io.StringIO()
+    with contextlib.redirect_stdout(out):
+        assert cli_main(["check", str(path)]) == 0
+    assert "35 degC, 1.145 kg/m^3" in out.getvalue()   # 1.14548
+
+
+def test_a_study_cannot_vary_a_density_the_model_derives():
+    from thrustgraph.designs import resolve
+    from thrustgraph.modelfile import load_model
+    parsed = parse_model(load_model(REPO / "models" / "bottle-rocket.toml"))
+    with pytest.raises(ModelError, match="is left out of the model.*vary what it is derived from"):
+        resolve(parsed, "environment.medium.density")
+    assert resolve(parsed, "environment.medium.temperature").nominal == 288.15
+
+
+@pytest.mark.parametrize("flights", ["single", "ensemble"])
+def test_a_temperature_sweep_with_a_pinned_density_screens_the_designs_it_contradicts(flights):
+    # The model pins density = 1.225 kg/m^3; a study varying the temperature refuses (screens) the designs whose
+    # temperature that density no longer fits (beyond 1 %), on both paths of a study.
+    import numpy as np
+    from thrustgraph.designs import resolve
+    from thrustgraph.modelfile import load_model
+    from thrustgraph.studies import evaluate
+    m = load_model(REPO / "models" / "bottle-rocket.toml").set("environment.medium.density", "1.225 kg/m^3")
+    parsed = parse_model(m)
+    p = resolve(parsed, "environment.medium.temperature")
+    t = evaluate(m, [p], np.array([[288.15], [308.15]]), ["apogee"], parsed=parsed, engine="serial",
+                 flights=flights, quiet=True)
+    assert t.status.tolist() == ["ok", "screened"]
+    assert "does not go with" in t.notes[1]

@@ -208,10 +208,12 @@ def falling_speed_closed_form(t, g_net, vt):
 ], ids=["airframe", "speed-table", "mach-table"])
 def test_terminal_velocity_of_a_dropped_body(airframe):
     # v_t = sqrt(2 m g / (rho C_D A)) (references.md; the quadratic-drag terminal speed, any mechanics text),
-    # still air of 1.225 kg/m^3, dropped from rest at 5 km above the datum.
+    # still air at the 1976 sea-level 101325 Pa and 288.15 K (ideal gas, 1.2250 kg/m^3), dropped from rest at
+    # 5 km above the datum.
     r = integrate(model_from_toml(DROP.format(alt="5000 m", end="60 s", medium="still-air", body=airframe)))
     A = math.pi * 0.1 ** 2 / 4
-    vt = math.sqrt(2 * 1.0 * G0 / (1.225 * 0.5 * A))
+    rho = 101325.0 / (8314.32 / 28.9644 * 288.15)     # R* / M0 of the 1976 standard
+    vt = math.sqrt(2 * 1.0 * G0 / (rho * 0.5 * A))
     speed = r.signals["speed"]
     assert speed == pytest.approx(falling_speed_closed_form(r.t, G0, vt), rel=1e-7, abs=1e-9)
     assert speed[-1] == pytest.approx(vt, rel=1e-6)              # approached within 1e-6 after 9 time constants

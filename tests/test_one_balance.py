@@ -53,7 +53,9 @@ OPTIONS = {
     "components.bottle.internal_momentum": (False, True),
     "components.bottle.inertial_head": (True, False),
     "components.bottle.expansion_exponent": (1.4, 1.0, 1.2),
+    "components.neck.approach_velocity": (True, False),
     "environment.medium.wind_exponent": (0.142857, 0.0),
+    "environment.medium.relative_humidity": (0.0, 0.6),
     "components.hull.acts": ("horizontal", "along-motion"),
     "components.pump.programme": ("power", "head-curve"),
     "launch.attitude": ("follow-wind", "fixed"),
@@ -74,10 +76,12 @@ DELAYS = ("triggers.drop_booster.after", "triggers.light_sustainer.after")
 # varied per design, with ranges inside the declared bounds (a model takes those of its components)
 VARIED = {
     "components.bottle.fill": (0.05, 0.6),
+    "components.bottle.bore": (60.0e-3, 120.0e-3),         # the approach factor varies per design with it
     "components.bottle.gauge_pressure": (2e5, 7e5),
     "components.airframe.dry_mass": (0.08, 0.6),
     "components.motor.exhaust_velocity": (1500.0, 2200.0),
     "environment.medium.wind_speed": (0.0, 8.0),
+    "environment.medium.temperature": (263.15, 318.15),     # still air: the density derived per design
     "launch.elevation": (np.radians(60.0), np.radians(90.0)),
     "components.upper_frame.dry_mass": (0.1, 0.4),
     "components.booster_frame.dry_mass": (0.05, 0.3),

@@ -133,8 +133,9 @@ def test_guide_family_matches_the_builtin_nozzle_without_the_loss(guide, tmp_pat
     (tmp_path / "plugin.toml").write_text(tomli_w.dumps(model))
     builtin = _model(guide)
     del builtin["components"]["entrance"]
+    # the guide's orifice is the narrow-nozzle relation: the built-in nozzle without its velocity of approach
     builtin["components"]["cap"] = {"kind": "convergent-nozzle", "diameter": model["components"]["cap"]["diameter"],
-                                    "discharge_coefficient": 0.61}
+                                    "discharge_coefficient": 0.61, "approach_velocity": False}
     builtin["flow_paths"] = ["bottle -> cap -> outside"]
     (tmp_path / "builtin.toml").write_text(tomli_w.dumps(builtin))
     out = {}

@@ -108,7 +108,7 @@ def test_reading_a_file_notes_delimiters_and_hash(tmp_path):
     ("time [s],thrust [N],p [kPa]\n0,1,NaN\n0.1,2,3\n", ["log.csv", "column 'p', line 2", "missing value"]),
     ("time [s],thrust [N]\n0,1\n0.1,lots\n", ["log.csv", "column 'thrust', line 3", "cannot read 'lots'"]),
     ("time [s],thrust [N]\n0,1\n0.1,2,3\n", ["log.csv", "line 3", "has 3 values", "2 columns"]),
-    ("Time [s],thrust [N]\n0,1\n0.1,2\n", ["log.csv", "no time column 'time'", "did you mean 'Time'"]),
+    ("Times [s],thrust [N]\n0,1\n0.1,2\n", ["log.csv", "no time column 'time'", "did you mean 'Times'"]),
     ("time [N],thrust [N]\n0,1\n0.1,2\n", ["log.csv", "column 'time'", "a force", "[s]"]),
     ("time [s],a [N],a [N]\n0,1,1\n1,2,2\n", ["log.csv", "column 3", "appears twice"]),
     ("time [s],thrust [N]\n0,1\n", ["log.csv", "1 data row(s)", "at least two"]),
@@ -357,3 +357,16 @@ def test_cli_compare(tmp_path, held_fine):
     assert bad.returncode == 2
     assert "stand.csv: column 'pressure'" in bad.stderr and "gauge or absolute" in bad.stderr
     assert not (tmp_path / "bad.json").exists()
+
+
+@pytest.mark.parametrize("header", ["time [s],thrust [N]", "Time (s),Thrust (N)", "TIME [s];thrust (N)",
+                                    "time (ms),thrust (lbf)"])
+def test_common_header_forms_are_read(header):
+    # "Time (s)" as well as "time [s]": the unit in round or square brackets, the time column's name in any case
+    delim = ";" if ";" in header else ","
+    rec = loads_record(header + "\n" + f"0{delim}1\n1{delim}2\n", source="log.csv")
+    scale = 1e-3 if "ms" in header else 1.0
+    assert rec.time.tolist() == [0.0, scale]
+    name = next(iter(rec.columns))
+    assert name.lower() == "thrust"
+    assert rec.columns[name][1] == pytest.approx(2.0 * (4.4482216152605 if "lbf" in header else 1.0), rel=1e-14)

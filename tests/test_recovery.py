@@ -22,7 +22,7 @@ from tg_recovery import recovery_summary
 from conftest import model_from_toml
 
 G0 = 9.80665          # standard gravity, exact (3rd CGPM 1901)
-RHO = 1.225           # still-air default: 1976 standard sea-level density (NOAA/NASA/USAF 1976)
+RHO = 101325.0 / (8314.32 / 28.9644 * 288.15)  # still-air default: ideal gas at the 1976 sea-level p and T (1.2250)
 ROOT = Path(__file__).resolve().parents[1]
 
 FLIGHT = """

@@ -57,7 +57,7 @@ from .records import ColumnMap, Record
 from .units import Q_, parse_quantity, si_unit, to_si
 from .result import FlightResult
 from .records import shift, trim
-from .compare import compare, match, model_for_records
+from .compare import _edges, compare, interval_means, match, model_for_records
 from .plugins import get_plugin_manager
 from .assembly import assemble
 from .integrate import integrate
@@ -190,6 +190,9 @@ def _resolve(model: Model, fp: FitParameter, parsed: Any = None) -> _Param:
     if not low < high:
         raise ModelError(f"fit {path}", f"the lower bound {fp.low!r} is not below the upper bound {fp.high!r}",
                          "give LOW..HIGH with LOW < HIGH")
+    if value_of() is None:
+        raise ModelError(f"fit {path}", f"is left out of the model, so {owner} derives it ({spec.doc})",
+                         f"fit what it is derived from, or give {pname} in the model (--set) to fit it")
     x0 = float(value_of())
     display = spec.unit
     try:
@@ -297,6 +300,26 @@ class Calibration:
     message: str
     date: str
     tool: str
+    #: record -> (start-time shift delta the residuals point to, its standard error), s, for the records whose
+    #: start time was not fitted; a shift of the record's samples by +delta on the model's clock (see
+    #: :func:`time_offset_score`)
+    time_offsets: dict[str, tuple[float, float]] = field(default_factory=dict)
+
+    def offset_notes(self) -> list[str]:
+        """One line per record whose residuals show a time offset: beyond 3 standard errors and a tenth of a
+        sample."""
+        out = []
+        for run in self.runs:
+            src = run.record.source
+            if src not in self.time_offsets:
+                continue
+            d, se = self.time_offsets[src]
+            if abs(d) > 3.0 * se and abs(d) > 0.1 * run.record.interval:
+                out.append(f"Time offset: the residuals of {src} follow the slope of the prediction: they show its "
+                           f"samples {d * 1e3:+.3g} ms (standard error {se * 1e3:.2g} ms) off the model's clock. The "
+                           f"fitted values and their intervals are then biased; align the record better, or fit "
+                           f"the start time with it (--fit-start-time \"{max(2.0 * abs(d) * 1e3, 1.0):.2g} ms\")")
+        return out
 
     def value(self, path: str) -> FittedValue:
         for v in self.values:
@@ -361,6 +384,10 @@ class Calibration:
             unit = _unit_guess(sig)
             lines.append(f"  {src}: {sig}: RMS error {before:.5g} -> {after:.5g} {unit}".rstrip())
         lines.append(f"Solver: {self.evaluations} evaluations, {self.model_runs} model runs; {self.message}")
+        notes = self.offset_notes()
+        if notes:
+            lines.append("")
+            lines.extend(notes)
         lines.append("The intervals assume independent errors of one spread; model-form error and filtering make "
                      "them too narrow.")
         return "\n".join(lines)
@@ -379,6 +406,8 @@ class Calibration:
                         for r in self.runs],
             "evaluations": self.evaluations, "model_runs": self.model_runs, "message": self.message,
             "date": self.date, "tool": self.tool,
+            "time_offsets": [{"record": k, "shift_s": d, "standard_error_s": se}
+                             for k, (d, se) in self.time_offsets.items()],
         }
 
     def to_json(self) -> str:
@@ -437,6 +466,7 @@ class _Problem:
         self.progress = progress
         self.evaluations = 0
         self.model_runs = 0
+        self.matched: list[list] = [[] for _ in self.runs]   # the last evaluation's matched signals, per run
         self._cache: tuple[bytes, np.ndarray, list] | None = None
 
     def x_of(self, z: np.ndarray) -> np.ndarray:
@@ -491,6 +521,7 @@ class _Problem:
                                          "remove it from the mapping or widen the window")
                     scales.append(rng)
                 self.scales.append(scales)
+            self.matched[k] = matched
             for mt, sc in zip(matched, self.scales[k]):
                 res = mt.predicted - mt.measured
                 parts.append(mt.cmap.weight * res / sc)
@@ -505,6 +536,28 @@ class _Problem:
                 self.progress(self.evaluations, self.model_runs, 0.5 * float(r @ r))
         self._cache = (key, r, rms)
         return r, rms
+
+    def slope_columns(self) -> np.ndarray:
+        """d(scaled residual)/d(start-time shift) of each run without a fitted shift, as columns over the whole
+        residual vector (zeros outside the run), from the last evaluation: shifting a record by delta moves each
+        sample's averaging interval by delta, so the derivative is that of the interval means (central
+        differences of a tenth of a sample)."""
+        cols, offset = [], 0
+        for k, matched in enumerate(self.matched):
+            for mt, sc in zip(matched, self.scales[k]):
+                n = len(mt.t)
+                if k not in self.shift_at:
+                    edges = _edges(mt.t)
+                    edges[0] = max(edges[0], mt.start)
+                    h = 0.05 * float(np.median(np.diff(mt.t)))
+                    d = (interval_means(mt.t_model, mt.y_model, edges + h)
+                         - interval_means(mt.t_model, mt.y_model, edges - h)) / (2.0 * h)
+                    cols.append((k, offset, mt.cmap.weight * d / sc))
+                offset += n
+        out = np.zeros((offset, len(self.runs)))
+        for k, start, g in cols:
+            out[start:start + len(g), k] = np.nan_to_num(g)
+        return out
 
     def jacobian(self, z: np.ndarray, h: float) -> np.ndarray:
         """Central differences in z (one-sided at a bound)."""
@@ -651,6 +704,9 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
         raise ModelError("calibration", f"{m} samples cannot determine {p} parameters", "give longer records")
     J = prob.jacobian(z, diff_step)
     cov, corr = _covariance(J, float(r @ r) / dof, params)
+    prob.evaluate(z, count=False)          # the matched signals at the solution, for the time-offset test
+    time_offsets = time_offset_score(r, J, prob.slope_columns(), dof, [run.record.source for run in prob.runs],
+                                     set(prob.shift_at))
     se = np.sqrt(np.diag(cov))
     tq = float(student_t.ppf(0.5 * (1.0 + confidence), dof))
     x = prob.x_of(z)
@@ -680,7 +736,41 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
                        runs=runs_fixed, evaluations=prob.evaluations, model_runs=prob.model_runs,
                        message=str(sol.message),
                        date=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
-                       tool=f"thrustgraph {__version__}")
+                       tool=f"thrustgraph {__version__}", time_offsets=time_offsets)
+
+
+def time_offset_score(r: np.ndarray, J: np.ndarray, G: np.ndarray, dof: int, sources: Sequence[str],
+                      fitted: set) -> dict[str, tuple[float, float]]:
+    """The start-time shift of each record that the residuals at the optimum point to, with its standard error.
+
+    ``r`` is the scaled residual at the optimum, ``J`` its Jacobian in the fitted parameters, ``G[:, k]`` its
+    derivative with respect to a shift of record k's samples. A shift the fit did not include would be estimated,
+    jointly with the parameters (linearised), by the part of ``G[:, k]`` that the parameters cannot mimic,
+    g = (I - J J^+) G[:, k]: delta = -(g . r) / (g . g), standard error s / |g| with s^2 the residual variance
+    after it, (r.r - (g.r)^2 / g.g) / (dof - 1) (one added regressor in the linear approximation; Bates & Watts
+    1988, ch. 2). Records whose
+    shift was fitted (``fitted``: their indices) are left out.
+
+    >>> J = np.array([[1.0], [1.0], [1.0], [1.0]]); G = np.array([[-1.0], [-0.5], [0.5], [1.0]])
+    >>> d, se = time_offset_score(np.array([0.2, 0.1, -0.1, -0.2]), J, G, 3, ["a.csv"], set())["a.csv"]
+    >>> round(d, 6), se < 1e-6
+    (0.2, True)
+    """
+    out: dict[str, tuple[float, float]] = {}
+    if dof < 2:
+        return out
+    rr = float(r @ r)
+    for k, src in enumerate(sources):
+        if k in fitted or not np.any(G[:, k]):
+            continue
+        g = G[:, k] - J @ np.linalg.lstsq(J, G[:, k], rcond=None)[0]
+        gg = float(g @ g)
+        if not gg > 0.0:
+            continue
+        gr = float(g @ r)
+        s = math.sqrt(max(rr - gr * gr / gg, 0.0) / (dof - 1))
+        out[src] = (-gr / gg, s / math.sqrt(gg))
+    return out
 
 
 def write_calibrated_model(calibration: Calibration, path: str) -> None:

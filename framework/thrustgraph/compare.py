@@ -261,7 +261,9 @@ def window(record: Record, result: FlightResult, start: Any = None, end: Any = N
     By default it runs from the prediction's start (t = 0) to the end of the
     record, which must then last at least as long as the prediction.
     """
-    tol = 0.5 * record.interval
+    # half a sample, and a hair more: a window placed half a sample before a (shifted) record's first sample must
+    # not be refused for the rounding of that subtraction
+    tol = 0.5 * record.interval * (1.0 + 1e-9)
     t_first, t_last = float(result.t[0]), float(result.t[-1])
     col = mapping[0].column if mapping else next(iter(record.columns))
     sig = mapping[0].signal if mapping else "prediction"

@@ -59,7 +59,13 @@ The implementer's contract
    speed) are outcomes: declare each once in ``outcomes`` (a tuple of
    :class:`~thrustgraph.outcomespec.OutcomeSpec`) and return their values
    from :meth:`ComponentKind.summarize`.
-10. Write every :class:`~thrustgraph.parameters.Quantity` default with its
+10. A volume whose contents reach its outlet through a known cross-section
+    (a liquid column in a bore) may say so with :meth:`ComponentKind.approach_area`;
+    a flow element that uses it (the velocity of approach of a liquid jet) sets
+    ``takes_approach_area = True`` and then receives it at assembly as
+    ``build_flow(p, ops, approach_area=A)`` (m^2, float or an array over designs;
+    None when the element is not the single outlet of a volume that knows it).
+11. Write every :class:`~thrustgraph.parameters.Quantity` default with its
     unit (``default="20 mm"``) and declare each parameter, state, mode and
     signal key once. :mod:`thrustgraph.contract` checks this when the kind is
     registered, and checks at assembly that every callable accepts the
@@ -339,6 +345,15 @@ class ComponentKind(_Declared):
     #: meaning): they join the outcome registry (:mod:`thrustgraph.outcomes`), which refuses a key declared twice
     #: or defined differently by two kinds.
     outcomes: ClassVar[tuple[OutcomeSpec, ...]] = ()
+
+    #: A flow element that takes ``approach_area`` in :meth:`build_flow` (see item 10 of the contract).
+    takes_approach_area: ClassVar[bool] = False
+
+    @classmethod
+    def approach_area(cls, p: Any) -> Any:
+        """For a volume: the cross-section (m^2) through which its contents approach the outlet, or None when
+        unknown (the default). A flow element fed directly by this volume may use it (``takes_approach_area``)."""
+        return None
 
     @classmethod
     def summarize(cls, name: str, p: Any, result: Any) -> dict[str, float]:

@@ -190,6 +190,9 @@ def resolve(parsed: ParsedModel, path: str, *, unit: str | None = None, where: s
     elif shown:
         raise ModelError(f"{where} (unit)", f"is a plain number, so it has no unit (got {shown!r})",
                          "leave the unit out")
+    if value_of() is None:
+        raise ModelError(where, f"is left out of the model, so {what} derives it ({spec.doc})",
+                         f"vary what it is derived from, or give {name} in the model to vary it")
     return DesignParameter(path=path, section=parts[0], owner=owner, name=name, spec=spec, si=si,
                            unit=shown or "", nominal=float(value_of()))
 

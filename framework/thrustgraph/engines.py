@@ -35,7 +35,7 @@ Examples
 >>> task = FlightTask(load_model(default_model_path()), ("components.bottle.fill",), ("",), ("apogee",))
 >>> rows = list(SerialEngine().run(task, chunks(np.array([[0.2], [0.3]]), 1)))
 >>> [r.start for r in rows], [round(float(r.values[0, 0]), 2) for r in rows]
-([0, 1], [53.95, 54.76])
+([0, 1], [53.99, 54.8])
 """
 
 from __future__ import annotations

@@ -51,7 +51,7 @@ Examples
 >>> parsed = parse_model(load_model(default_model_path()))
 >>> res = fly_designs(parsed, [resolve(parsed, "components.bottle.fill")], np.array([[0.33], [0.5]]), ["apogee"])
 >>> res.status, [round(float(v), 3) for v in res.values[:, 0]]
-(['ok', 'ok'], [54.318, 46.919])
+(['ok', 'ok'], [54.358, 46.962])
 """
 
 from __future__ import annotations
@@ -280,19 +280,22 @@ def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: n
             notes[i] = f"{p.path} = {p.text(x[i, j])} is outside its bounds ({bounds_text(p)})"
         good &= ok
 
-    owners = {p.owner for p in params if p.section == "components"}
-    for owner in owners:
-        cls = parsed.kinds[owner]
+    # the component kinds' checks and the environment kinds' (still air refuses a density its temperature
+    # contradicts), as a single flight's apply() runs them
+    owners = [("components", o) for o in sorted({p.owner for p in params if p.section == "components"})]
+    owners += [("environment", o) for o in sorted({p.owner for p in params if p.section == "environment"})]
+    for section, owner in owners:
+        cls = parsed.kinds[owner] if section == "components" else parsed.env_kinds[owner]
         if getattr(cls.check, "__func__", None) is getattr(ComponentKind.check, "__func__", None):
             continue   # the kind checks nothing
-        cols = [(p.name, j) for j, p in enumerate(params) if p.section == "components" and p.owner == owner]
-        base = parsed.params[owner]
+        cols = [(p.name, j) for j, p in enumerate(params) if p.section == section and p.owner == owner]
+        base = parsed.params[owner] if section == "components" else parsed.env_params[owner]
         live = np.flatnonzero(good)
         # one check per distinct row of the owner's values (a grid repeats them)
         uniq, inverse = np.unique(x[np.ix_(live, [j for _, j in cols])], axis=0, return_inverse=True)
         for u, row in enumerate(uniq):
             try:
-                cls.check(with_values(base, {nm: float(v) for (nm, _), v in zip(cols, row)}), f"components.{owner}")
+                cls.check(with_values(base, {nm: float(v) for (nm, _), v in zip(cols, row)}), f"{section}.{owner}")
             except ModelError as exc:
                 for i in live[inverse.reshape(-1) == u]:
                     status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"

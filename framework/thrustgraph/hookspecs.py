@@ -100,6 +100,22 @@ def thrustgraph_check_model(model: ParsedModel) -> Sequence[str]:
 
 
 @hookspec
+def thrustgraph_model_warnings(model: ParsedModel) -> Sequence[str]:
+    """Point out what a valid model probably did not mean (an airframe with no drag data, a default left at zero).
+
+    Called once per validation with the :class:`~thrustgraph.model.ParsedModel`; every implementation is
+    called. Unlike :func:`thrustgraph_check_model` a warning does not stop anything: ``check`` lists the
+    warnings and ``run`` prints them on standard error before it flies.
+
+    Returns
+    -------
+    sequence of str
+        One line each, starting with the key path of what it is about, saying what follows from it and how
+        to change it if it was not meant (``"components.airframe: ...; to fix it, give ..."``).
+    """
+
+
+@hookspec
 def thrustgraph_cautions(model: ParsedModel) -> Sequence[str]:
     """Add safety cautions for a model (stored pressure, flight, range safety).
 

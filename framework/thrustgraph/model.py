@@ -17,6 +17,7 @@ Examples
 from __future__ import annotations
 
 import difflib
+from pathlib import Path
 from typing import Any
 
 import networkx as nx
@@ -27,7 +28,7 @@ from .plugins import component_kinds, environment_kinds, get_plugin_manager
 from .staging import check_stages, parse_stages, parse_triggers
 from .xp import scalar_ops
 from .errors import ModelError, shorten
-from .parameters import parse_params
+from .parameters import MODEL_FOLDER, parse_params
 
 __all__ = ["Model", "ParsedModel", "parse_model", "LAUNCH_SPECS", "RUN_SPECS", "parse_paths"]
 
@@ -49,6 +50,15 @@ def parse_model(model: Model, *, plugin_manager: pluggy.PluginManager | None = N
         problem found.
     """
 
+    folder = Path(model.source).parent if model.source and not model.source.startswith("<") else None
+    token = MODEL_FOLDER.set(folder)        # relative file paths in the model are read from its folder
+    try:
+        return _parse_model(model, plugin_manager)
+    finally:
+        MODEL_FOLDER.reset(token)
+
+
+def _parse_model(model: Model, plugin_manager: pluggy.PluginManager | None) -> ParsedModel:
     pm = plugin_manager or get_plugin_manager()
     all_kinds = component_kinds(pm)
     all_env = environment_kinds(pm)

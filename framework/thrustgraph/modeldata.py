@@ -187,6 +187,20 @@ class ParsedModel:
         """Component names of a role, in file order."""
         return [n for n in self.model.components if self.kinds[n].role == role]
 
+    def warnings(self) -> list[str]:
+        """What the model probably did not mean: the core's own (a guide left at its default length of 0 m) and
+        the plugins' (:func:`~thrustgraph.hookspecs.thrustgraph_model_warnings`), one line each."""
+        out: list[str] = []
+        if self.launch.mount == "guide" and "guide_length" not in self.model.launch:
+            out.append("launch.guide_length: not given, so the launch guide is 0 m long and the vehicle leaves it "
+                       "at once, in whatever direction the thrust and gravity push it; to fix it, give the guide's "
+                       "length, e.g. guide_length = \"1 m\" (or write mount = \"free\" if no guide is meant)")
+        for group in self.plugin_manager.hook.thrustgraph_model_warnings(model=self):
+            for w in group or ():
+                if w not in out:
+                    out.append(w)
+        return out
+
     def cautions(self) -> list[str]:
         """Safety cautions from the component kinds and the cautions hook."""
         out: list[str] = []

@@ -37,7 +37,7 @@ Examples
 >>> system = assemble(load_model(default_model_path()))
 >>> values = summarise(system, fly_segments(system), ["apogee", "burn_time"])
 >>> round(values["apogee"], 3), OUTCOMES["burn_time"].label
-(54.318, 'burn time')
+(54.358, 'burn time')
 >>> OUTCOMES["peak_acceleration"].text(117.6798)
 '117.68 m/s^2 (12 g0)'
 """

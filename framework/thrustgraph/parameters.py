@@ -18,19 +18,24 @@ thrustgraph.errors.ModelError: components.bottle.volume: must be greater than 0 
 
 from __future__ import annotations
 
+import contextvars
 import dataclasses
 import difflib
 import math
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any, Sequence
 
 import numpy as np
 
 from .errors import ModelError, shorten
-from .units import Q_, finite_number, to_si
+from .units import Q_, REFERENCE_NOTE, finite_number, to_si
 
-__all__ = ["Spec", "Quantity", "Number", "Choice", "Flag", "Vector", "Table", "make_params_class", "parse_params",
-           "check_finite"]
+__all__ = ["Spec", "Quantity", "Number", "Choice", "Flag", "Vector", "Table", "FilePath", "MODEL_FOLDER",
+           "make_params_class", "parse_params", "check_finite"]
+
+#: The folder a model's relative file paths are read from (the model file's own), set while it is parsed.
+MODEL_FOLDER: contextvars.ContextVar[Path | None] = contextvars.ContextVar("thrustgraph_model_folder", default=None)
 
 
 @dataclass(frozen=True)
@@ -57,6 +62,12 @@ class Quantity(Spec):
     """A physical quantity with a unit, optional bounds and default.
 
     Bounds are given in the declared ``unit`` and checked after conversion.
+    ``default="absent"`` makes the quantity optional: left out, it is parsed as None, and the kind decides what
+    that means (e.g. a density derived from pressure and temperature); ``doc`` should say so.
+
+    >>> rho = Quantity("density", "kg/m^3", default="absent", doc="air density; absent: from p and T")
+    >>> rho.parse("absent", where="environment.medium.density") is None
+    True
     """
 
     unit: str = ""
@@ -65,12 +76,28 @@ class Quantity(Spec):
     high: float | None = field(default=None, kw_only=True)
     low_open: bool = field(default=False, kw_only=True)
     high_open: bool = field(default=False, kw_only=True)
+    #: For a pressure: ``"gauge"`` (above the ambient pressure at launch) or ``"absolute"``. A plain unit (psi,
+    #: bar) then means that, ``psig``/``barg`` or ``psia``/``bara`` must agree with it, and errors say which.
+    reference: str | None = field(default=None, kw_only=True)
 
     def _bound_si(self, b: float) -> float:
         return float(Q_(b, self.unit).to_base_units().magnitude) if self.unit else float(b)
 
-    def parse(self, value: Any, *, where: str) -> float:
-        x = to_si(value, self.unit, where=where)  # always finite
+    def parse(self, value: Any, *, where: str) -> float | None:
+        if self.default == "absent" and isinstance(value, str) and value == "absent":
+            return None
+        if self.reference is None:
+            return self._checked(to_si(value, self.unit, where=where), value, where)  # always finite
+        try:
+            return self._checked(to_si(value, self.unit, where=where, reference=self.reference), value, where)
+        except ModelError as exc:
+            note = REFERENCE_NOTE.get(self.reference, "")
+            if note and note in exc.fix:
+                raise
+            raise ModelError(exc.where, exc.what, f"{exc.fix.rstrip('.')} ({note})" if exc.fix else note) from None
+
+    def _checked(self, x: float, value: Any, where: str) -> float:
+        """Check an SI value against the bounds."""
         u = f" {self.unit}" if self.unit else ""
         # Written so that a NaN fails every comparison, hence every check: `ok` must be proved true.
         if self.low is not None:
@@ -98,7 +125,8 @@ class Quantity(Spec):
         else:
             rng = f"{'(' if self.low_open else '['}{self.low:g}, {self.high:g}{')' if self.high_open else ']'}"
         d = "required" if self.default is None else f"default {self.default}"
-        return f"{self.doc} [{u}] range {rng}, {d}"
+        ref = f" ({self.reference})" if self.reference else ""
+        return f"{self.doc} [{u}{ref}] range {rng}, {d}"
 
 
 def Number(name: str, *, default: Any = None, low: float | None = None, high: float | None = None,
@@ -238,6 +266,39 @@ class Table(Spec):
 
     def describe(self) -> str:
         return f"{self.doc} table with columns " + ", ".join(f"{n} [{u}]" for n, u in self.columns)
+
+
+@dataclass(frozen=True)
+class FilePath(Spec):
+    """A file the kind reads (a thrust curve), written as a path relative to the model file's folder.
+
+    The parsed value is the absolute path as text; a file that does not exist is refused.
+    ``default="absent"`` makes it optional (parsed as None).
+
+    >>> FilePath("curve_file", default="absent").parse("absent", where="components.motor.curve_file") is None
+    True
+    """
+
+    default: str | None = field(default=None, kw_only=True)
+
+    def parse(self, value: Any, *, where: str) -> str | None:
+        if self.default == "absent" and isinstance(value, str) and value == "absent":
+            return None
+        if not isinstance(value, str) or not value.strip() or len(value) > 1000:
+            raise ModelError(where, f"expected the path of a file in quotes, got {shorten(value)}",
+                             'write e.g. "motors/demo-motor.csv" (relative to the model file)')
+        p = Path(value)
+        if not p.is_absolute():
+            base = MODEL_FOLDER.get()
+            p = base / p if base is not None else p
+        if not p.is_file():
+            raise ModelError(where, f"no such file {shorten(value)} (looked for {shorten(str(p), 200)})",
+                             "give the path relative to the model file's folder")
+        return str(p)
+
+    def describe(self) -> str:
+        d = "required" if self.default is None else f"default {self.default}"
+        return f"{self.doc} [file path, relative to the model file], {d}"
 
 
 def make_params_class(kind: str, specs: Sequence[Spec]) -> type:

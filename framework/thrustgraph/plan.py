@@ -233,7 +233,14 @@ def build_plan(parsed: Any, params: Mapping[str, Any], env_params: Mapping[str, 
         elif role == "source":
             sources.append(SourcePlan(n, cls.build_source(p, i, ops, amb), s))
         elif role == "flow":
-            flows[n] = cls.build_flow(p, ops)
+            if cls.takes_approach_area:
+                up = list(parsed.graph.predecessors(n))
+                # only a volume's single outlet: with several, the contents approach all of them at once
+                sole = len(up) == 1 and parsed.kinds[up[0]].role == "volume" and parsed.graph.out_degree(up[0]) == 1
+                area = parsed.kinds[up[0]].approach_area(params[up[0]]) if sole else None
+                flows[n] = cls.build_flow(p, ops, approach_area=area)
+            else:
+                flows[n] = cls.build_flow(p, ops)
         built = {"body": bodies, "volume": vessels, "jet": jets, "source": sources}.get(role)
         fns = flows.get(n) if role == "flow" else (built[-1].fns if built else None)
         if fns is not None:

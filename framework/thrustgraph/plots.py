@@ -146,7 +146,7 @@ def summary_title(r: FlightResult, keys: Iterable[str]) -> str:
 
     >>> from thrustgraph import fly
     >>> summary_title(fly(), ("apogee", "peak_acceleration"))
-    'apogee 54.32 m, peak acceleration 1177 m/s^2 (120 g0)'
+    'apogee 54.36 m, peak acceleration 1179 m/s^2 (120.2 g0)'
     """
     return ", ".join(f"{r.outcome_specs[k].label} {_text(r.outcome_specs[k], r.summary[k])}"
                      for k in keys if k in r.summary and k in r.outcome_specs)
@@ -393,6 +393,12 @@ def render(fig: Figure, fmt: str = "png", *, dpi: int = 110) -> bytes:
     buf = io.BytesIO()
     meta = {"Date": None} if fmt == "svg" else {"Software": None}
     with matplotlib.rc_context(_RC):
+        if fig.get_layout_engine() is not None and fig.get_layout_engine().__class__.__name__ != "PlaceHolderLayoutEngine":
+            # lay the figure out once and keep that layout: the layout engine run on every save drifts in the
+            # last digits of some coordinates (seen with constrained layout on the bottle's ledger plot), which
+            # would make two renders of one figure differ
+            fig.canvas.draw()
+            fig.set_layout_engine("none")
         fig.savefig(buf, format=fmt, dpi=dpi, metadata=meta)
     data = buf.getvalue()
     if fmt == "svg":

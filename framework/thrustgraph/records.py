@@ -48,7 +48,7 @@ array([0.   , 0.001, 0.002])
 >>> loads_record("time [s],thrust\\n0,1\\n", source="stand.csv")
 Traceback (most recent call last):
 ...
-thrustgraph.errors.ModelError: stand.csv: column 2 'thrust': the header has no unit. Fix: write the unit in square brackets after the name, e.g. "thrust [N]" or "pressure [psi]"; write [1] for a plain number.
+thrustgraph.errors.ModelError: stand.csv: column 2 'thrust': the header has no unit. Fix: write the unit in square brackets after the name, e.g. "thrust [N]" or "pressure [psi]" (or in round brackets, "Time (s)"); write [1] for a plain number.
 """
 
 from __future__ import annotations
@@ -81,6 +81,8 @@ MIN_SAMPLE_INTERVAL = 1e-9
 #: The first line of a thrustgraph export (its provenance): what marks a file as a saved prediction.
 EXPORT_MARK = re.compile(r"^#\s*thrustgraph\s+\S+\s*$")
 _HEADER = re.compile(r"^\s*(?P<name>[^\[\]]*?)\s*\[(?P<unit>[^\[\]]*)\]\s*$")
+# the other common form, "Time (s)": the unit in round brackets at the end (a unit may hold one more pair)
+_HEADER_ROUND = re.compile(r"^\s*(?P<name>[^\[\]()]*?)\s*\((?P<unit>[^()\[\]]*(?:\([^()]*\)[^()\[\]]*)?)\)\s*$")
 _PLAIN = ("", "1", "-")
 _DIM_REFERENCE = (("N", "force"), ("Pa", "pressure"), ("m", "length"), ("s", "time"), ("kg", "mass"),
                   ("K", "temperature"), ("m/s", "speed"), ("m/s^2", "acceleration"), ("kg/s", "mass flow"),
@@ -239,12 +241,14 @@ def parse_header(cell: str, *, where: str) -> tuple[str, str]:
     ('ratio', '')
     >>> parse_header("phase [text]", where="x.csv")
     ('phase', 'text')
+    >>> parse_header("Time (s)", where="x.csv"), parse_header("c_p (J/(kg K))", where="x.csv")
+    (('Time', 's'), ('c_p', 'J/(kg K)'))
     """
-    m = _HEADER.match(cell)
+    m = _HEADER.match(cell) or _HEADER_ROUND.match(cell)
     if not m or not m.group("name"):
         raise ModelError(where, "the header has no unit",
-                         'write the unit in square brackets after the name, e.g. "thrust [N]" or "pressure [psi]"; '
-                         "write [1] for a plain number")
+                         'write the unit in square brackets after the name, e.g. "thrust [N]" or "pressure [psi]" '
+                         '(or in round brackets, "Time (s)"); write [1] for a plain number')
     name, unit = m.group("name"), m.group("unit").strip()
     if unit in _PLAIN:
         return name, ""
@@ -310,6 +314,11 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
                              "give every column its own name")
         names.append(name)
         units.append(unit)
+    if time_column not in names:
+        # "Time (s)" names the time column as well as "time [s]": the case of its name does not matter
+        same = [n for n in names if n.lower() == time_column.lower()]
+        if len(same) == 1:
+            time_column = same[0]
     if time_column not in names:
         close = difflib.get_close_matches(time_column, names, n=1)
         hint = f"did you mean {close[0]!r}? " if close else ""

@@ -27,7 +27,7 @@ Examples
 >>> table = sweep(load_model(default_model_path()), ["components.bottle.fill=0.2..0.4 in 3"],
 ...               outputs=["apogee"], engine="serial", quiet=True)
 >>> [round(float(v), 2) for v in table.column("apogee")]
-[53.95, 54.76, 52.28]
+[53.99, 54.8, 52.32]
 >>> table.status.tolist()
 ['ok', 'ok', 'ok']
 """

@@ -12,7 +12,7 @@ Examples
 >>> from thrustgraph.model import parse_model
 >>> out = fly_design(parse_model(load_model(default_model_path())))
 >>> out.status, round(out.values["apogee"], 3)
-('ok', 54.318)
+('ok', 54.358)
 """
 
 from __future__ import annotations

@@ -34,7 +34,7 @@ import pint
 from .errors import ModelError, shorten
 
 __all__ = ["ureg", "Q_", "to_si", "si_unit", "format_quantity", "describe_dimension", "parse_quantity",
-           "finite_number", "MAX_QUANTITY_TEXT"]
+           "finite_number", "MAX_QUANTITY_TEXT", "split_reference", "REFERENCE_NOTE"]
 
 # Built from pint's definitions at every start (~0.1 s of CPU, a fifth of `thrustgraph check`). pint's disk cache
 # (cache_folder=":auto:") builds it in 0.02 s instead of 0.49 s (wall time, one after the other in one process, on a
@@ -169,7 +169,52 @@ def parse_quantity(text: str, *, where: str = "", example: str = '"5 bar" or "2 
     return Q_(mag, u)
 
 
-def to_si(value: Any, unit: str, *, where: str = "") -> float:
+#: A pressure unit with its reference written into it, as the trade writes it: ``psig``/``barg`` (gauge, above
+#: the surroundings) and ``psia``/``bara`` (absolute).
+_REFERENCED = re.compile(r"^(?P<head>.*?\d\.?\s*)(?P<unit>psi|bar)(?P<ref>[ga])\s*$")
+
+#: What a plain pressure unit means, by the parameter's declared reference: said in every error about it.
+REFERENCE_NOTE = {
+    "gauge": "this pressure is gauge: a plain unit (psi, bar, kPa) means above the ambient pressure at launch, "
+             "and psig or barg say the same",
+    "absolute": "this pressure is absolute: a plain unit (psi, bar, kPa) means above vacuum, and psia or bara "
+                "say the same",
+}
+
+
+def split_reference(text: str) -> tuple[str, str | None]:
+    """Split a trade gauge or absolute unit off a quantity text: ``"60 psig"`` -> ``("60 psi", "gauge")``.
+
+    Text without such a unit comes back unchanged with None.
+
+    >>> split_reference("4.5 barg"), split_reference("14.7 psia"), split_reference("5 bar")
+    (('4.5 bar', 'gauge'), ('14.7 psi', 'absolute'), ('5 bar', None))
+    """
+    m = _REFERENCED.match(text) if isinstance(text, str) and len(text) <= MAX_QUANTITY_TEXT else None
+    if not m:
+        return text, None
+    return m.group("head") + m.group("unit"), "gauge" if m.group("ref") == "g" else "absolute"
+
+
+def _with_reference(value: Any, unit: str, reference: str | None, where: str) -> Any:
+    """Check a gauge or absolute unit (psig, barg, psia, bara) against the parameter's reference; strip it."""
+    text, ref = split_reference(value)
+    if ref is None:
+        return value
+    plain = text.split()[-1] if " " in text else text.lstrip("0123456789.+-eE")
+    if reference is None:
+        raise ModelError(where, f"{shorten(value)} says the pressure is {ref}, but this parameter does not declare "
+                         "whether it is gauge or absolute",
+                         f"write the plain unit ({plain}) with the value the parameter's description asks for")
+    if ref != reference:
+        other = "above the surroundings" if ref == "gauge" else "above vacuum"
+        raise ModelError(where, f"{shorten(value)} is {ref} ({other}), but this parameter is {reference}; "
+                         "thrustgraph does not convert between them, since that needs the day's barometer reading",
+                         f"give the {reference} value; {REFERENCE_NOTE[reference]}")
+    return text
+
+
+def to_si(value: Any, unit: str, *, where: str = "", reference: str | None = None) -> float:
     """Convert a quantity given as text, number or pint quantity to SI.
 
     Parameters
@@ -183,6 +228,10 @@ def to_si(value: Any, unit: str, *, where: str = "") -> float:
         The result is in the coherent SI unit of that dimension.
     where : str
         Key path named in the error message.
+    reference : str, optional
+        For a pressure: ``"gauge"`` (above the ambient pressure) or ``"absolute"``, what the parameter holds.
+        A value written in ``psig``/``barg`` (gauge) or ``psia``/``bara`` (absolute) must match it; a plain
+        unit means what the parameter holds, and errors say so.
 
     Returns
     -------
@@ -199,7 +248,15 @@ def to_si(value: Any, unit: str, *, where: str = "") -> float:
     Traceback (most recent call last):
     ...
     thrustgraph.errors.ModelError: components.airframe.reference_diameter: '1e308 km' is too large: it overflows in SI units. Fix: write a finite value, e.g. "22 mm" or "1.2 m".
+    >>> to_si("60 psig", "bar", where="components.bottle.gauge_pressure", reference="gauge")
+    413685.4...
+    >>> to_si("60 psig", "Pa", where="environment.medium.pressure", reference="absolute")
+    Traceback (most recent call last):
+    ...
+    thrustgraph.errors.ModelError: environment.medium.pressure: '60 psig' is gauge (above the surroundings), but this parameter is absolute; thrustgraph does not convert between them, since that needs the day's barometer reading. Fix: give the absolute value; this pressure is absolute: a plain unit (psi, bar, kPa) means above vacuum, and psia or bara say the same.
     """
+    if reference is not None or isinstance(value, str):
+        value = _with_reference(value, unit, reference, where)
     name, example = describe_dimension(unit)
     if isinstance(value, bool):
         raise ModelError(where, f"expected {_an(name)}, got the flag {value!r}", f"write a value such as {example}")

@@ -5,6 +5,12 @@ with A the reference (frontal) area of the given diameter. The drag
 coefficient is constant here; tables against Mach number or speed belong to
 a later family.
 
+A flying vehicle (mount ``guide`` or ``free``) in a medium with density whose
+airframe has no drag data (drag_coefficient or reference_diameter left at 0)
+gets a warning from ``check`` and ``run`` (:func:`thrustgraph_model_warnings`):
+it would fly with no drag at all, and climb about twice as high as with a
+typical Cd of 0.4.
+
 The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.xp`
 and runs on floats (a single flight) and on numpy arrays of designs (an ensemble).
 
@@ -60,3 +66,24 @@ class Airframe(ComponentKind):
 @hookimpl
 def thrustgraph_component_kinds():
     return [Airframe]
+
+
+@hookimpl
+def thrustgraph_model_warnings(model):
+    """Warn when a flying vehicle's airframe has no drag data (no drag coefficient or no reference area)."""
+    if model.launch.mount not in ("guide", "free") or not model.ambient.density > 0.0:
+        return []
+    out = []
+    for name in model.model.components:
+        if model.kinds[name] is not Airframe:
+            continue
+        p = model.params[name]
+        if p.drag_coefficient > 0.0 and p.reference_diameter > 0.0:
+            continue
+        missing = " and ".join(w for w, v in (("drag_coefficient", p.drag_coefficient),
+                                               ("reference_diameter", p.reference_diameter)) if not v > 0.0)
+        out.append(f"components.{name}: the airframe has no drag data ({missing} left at 0), so the vehicle flies "
+                   f"with no air drag at all; to fix it, give drag_coefficient and reference_diameter (e.g. "
+                   f"drag_coefficient = 0.4, reference_diameter = \"100 mm\" for a bottle rocket), or fly in "
+                   f"vacuum if that is meant")
+    return out

@@ -1,7 +1,12 @@
-"""Environment models: the US Standard Atmosphere 1976 with wind, still water, inverse-square gravity.
+"""Environment models: still air, the US Standard Atmosphere 1976 with wind, still water, inverse-square gravity.
 
 Kinds
 -----
+``still-air`` (medium)
+    :class:`~tg_atmosphere.still_air.StillAir`: constant pressure and
+    temperature, density from the ideal gas (dry, or humid with the Buck
+    vapour pressure: :mod:`tg_atmosphere.air`), or given and checked against
+    them; an optional steady wind.
 ``standard-atmosphere-1976`` (medium)
     :class:`~tg_atmosphere.atmosphere.StandardAtmosphere1976`: the seven
     layers to 86 km from the standard's defining constants, on a geometric or
@@ -21,27 +26,29 @@ each module and in docs/environment.md.
 Examples
 --------
 >>> sorted(k.kind for k in thrustgraph_environment_kinds())
-['inverse-square-gravity', 'standard-atmosphere-1976', 'still-water']
+['inverse-square-gravity', 'standard-atmosphere-1976', 'still-air', 'still-water']
 """
 
 from __future__ import annotations
 
 from thrustgraph import hookimpl
 
+from .air import air_density, saturation_vapour_pressure
 from .atmosphere import StandardAtmosphere1976, site_range
 from .gravity import InverseSquareGravity
 from .standard1976 import atmosphere_1976, geometric_altitude, geopotential_altitude
+from .still_air import StillAir
 from .water import StillWater
 from .wind import power_law_wind
 
-__all__ = ["StandardAtmosphere1976", "StillWater", "InverseSquareGravity", "atmosphere_1976",
+__all__ = ["StillAir", "air_density", "saturation_vapour_pressure", "StandardAtmosphere1976", "StillWater", "InverseSquareGravity", "atmosphere_1976",
            "geopotential_altitude", "geometric_altitude", "power_law_wind", "thrustgraph_environment_kinds",
            "thrustgraph_check_model"]
 
 
 @hookimpl
 def thrustgraph_environment_kinds():
-    return [StandardAtmosphere1976, StillWater, InverseSquareGravity]
+    return [StillAir, StandardAtmosphere1976, StillWater, InverseSquareGravity]
 
 
 @hookimpl

@@ -68,7 +68,7 @@ class StillWater(EnvironmentKind):
         Quantity("density", "kg/m^3", default="998.2 kg/m^3", low=100.0, high=25_000.0, doc="water density"),
         Quantity("surface_altitude", "m", default="0 m", low=-11_000.0, high=10_000.0, doc="height of the free surface above the launch datum"),
         # 1976 standard sea-level pressure.
-        Quantity("surface_pressure", "Pa", default="101325 Pa", low=0.0, high=1e8, doc="pressure on the free surface"),
+        Quantity("surface_pressure", "Pa", default="101325 Pa", low=0.0, high=1e8, reference="absolute", doc="pressure on the free surface"),
         Quantity("temperature", "K", default="20 degC", low=1.0, high=1000.0, doc="water temperature"),
         Quantity("g", "m/s^2", default="9.80665 m/s^2", low=0.0, high=1000.0,
                  doc="gravity for the hydrostatic head (set it equal to the model's gravity)"),

@@ -78,7 +78,7 @@ class HoseFeed(ComponentKind):
     parameters = (
         Choice("supply", options=("pressure", "flow"), default="pressure",
                doc="pressure: the station holds a gauge pressure; flow: it delivers a fixed mass flow"),
-        Quantity("supply_pressure", "bar", default="0 bar", low=0.0, high=10_000.0,
+        Quantity("supply_pressure", "bar", default="0 bar", low=0.0, high=10_000.0, reference="gauge",
                  doc="station outlet pressure above ambient (supply = pressure)"),
         Quantity("mass_flow", "kg/s", default="0 kg/s", low=0.0, high=1e5, doc="delivered mass flow (supply = flow)"),
         Quantity("station_altitude", "m", default="0 m", low=-10_000.0, high=10_000.0, doc="height of the station's outlet above the launch datum"),

@@ -117,7 +117,7 @@ class GasTank(ComponentKind):
                   doc=f"the gas: one of {', '.join(IDEAL_GASES)}, or (with CoolProp) any fluid it knows"),
         Choice("equation_of_state", options=("ideal", "coolprop"), default="ideal",
                doc="ideal: perfect gas from the built-in table; coolprop: the fluid's reference equation of state"),
-        Quantity("gauge_pressure", "bar", low=0.0, high=10_000.0, doc="charge pressure above ambient at launch"),
+        Quantity("gauge_pressure", "bar", low=0.0, high=10_000.0, reference="gauge", doc="charge pressure above ambient at launch"),
         Quantity("temperature", "K", default="293.15 K", low=1.0, high=5000.0,
                  doc="gas temperature at launch"),
         Choice("process", options=("adiabatic", "isothermal", "polytropic"), default="adiabatic",

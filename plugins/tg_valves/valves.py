@@ -70,7 +70,7 @@ def _opening(p, ops):
     P = ConvergentNozzle.params_class()
     nozzle = ConvergentNozzle.build_flow(P(diameter=math.sqrt(4.0 * p.flow_area / math.pi),
                                            discharge_coefficient=p.discharge_coefficient,
-                                           direction=p.direction), ops)
+                                           direction=p.direction, approach_velocity=False), ops)
     return nozzle.flow, p.arrangement == "symmetric"
 
 
@@ -107,8 +107,8 @@ class ReliefValve(ComponentKind):
     signal_units = {"open": "", "jet_speed": "m/s"}
     summary = "relief valve: opens at the cracking pressure, reseats at the reseat pressure (gauge)"
     parameters = (
-        Quantity("cracking_pressure", "bar", low=1e-6, high=10_000.0, doc="inlet pressure above ambient at which it opens"),
-        Quantity("reseat_pressure", "bar", low=0.0, high=10_000.0, doc="inlet pressure above ambient at which it closes again"),
+        Quantity("cracking_pressure", "bar", low=1e-6, high=10_000.0, reference="gauge", doc="inlet pressure above ambient at which it opens"),
+        Quantity("reseat_pressure", "bar", low=0.0, high=10_000.0, reference="gauge", doc="inlet pressure above ambient at which it closes again"),
     ) + _COMMON
     modes = (Mode("closed", "relief closed", propulsive=False, outflow=False), Mode("open", "relief venting"))
 

@@ -77,7 +77,7 @@ class LiquidTank(ComponentKind):
         Quantity("volume", "L", low=0.0, low_open=True, high=1e6, doc="internal volume of the vessel"),
         Number("fill", default=0.33, low=0.0, high=1.0, high_open=True,
                doc="fraction of the volume filled with liquid at launch"),
-        Quantity("gauge_pressure", "bar", low=0.0, high=10_000.0, doc="charge pressure above ambient at launch"),
+        Quantity("gauge_pressure", "bar", low=0.0, high=10_000.0, reference="gauge", doc="charge pressure above ambient at launch"),
         # Water at 20 degC and 1 atm: IAPWS-95 via CoolProp gives 998.207 kg/m^3.
         Quantity("liquid_density", "kg/m^3", default="998.2 kg/m^3", low=10.0, high=25_000.0,
                  doc="density of the liquid"),
@@ -119,6 +119,12 @@ class LiquidTank(ComponentKind):
     @classmethod
     def cautions(cls, p):
         return list(PRESSURE_CAUTIONS)
+
+    @classmethod
+    def approach_area(cls, p):
+        """The bore's cross-section, m^2: the liquid approaches the outlet through it (for the nozzle's
+        velocity-of-approach factor)."""
+        return math.pi * p.bore ** 2 / 4.0
 
     @classmethod
     def _gas0(cls, p, amb):

@@ -63,6 +63,14 @@ def split_condition(text: str, records: Sequence[str]) -> tuple[str, str, Any]:
                      f"write RECORD:KEY=VALUE with RECORD one of {', '.join(records)}")
 
 
+def load_model_set(model: Any, key: str, value: Any, text: str) -> None:
+    """Set a --set value on the model, an error naming the option."""
+    try:
+        model.set(key, value)
+    except ModelError as exc:
+        raise exc.located(f"--set {text}") from None
+
+
 def main(args: argparse.Namespace) -> int:
     from ..calibrate import FitParameter, MeasuredRun, calibrate, compare_runs
     from ..compare import plot_format, render_comparison
@@ -79,7 +87,19 @@ def main(args: argparse.Namespace) -> int:
     if not args.fit:
         raise ModelError("--fit", "no parameter to fit",
                          "name one with its bounds, e.g. --fit components.neck.discharge_coefficient=0.5..1.0")
-    model = load_with_overrides(args.model, args.overrides)
+    # The model as its file has it is what the calibrated model starts from. A --set of a fitted parameter is its
+    # starting value; any other --set is a condition of the tests (the stand's mount = "held"): applied to every
+    # record's flights like --condition, recorded with the records, and kept out of the written model.
+    model = load_with_overrides(args.model, [])
+    fits = [FitParameter.parse(t) for t in args.fit]
+    fitted = {fp.path for fp in fits}
+    stand: dict[str, Any] = {}
+    for text in args.overrides:
+        key, value = parse_override(text)
+        if key in fitted:
+            load_model_set(model, key, value, text)
+        else:
+            stand[key] = value
     weights: dict[str, float] = {}
     for text in args.weight:
         name, raw = parse_pair(text, "--weight")
@@ -92,8 +112,7 @@ def main(args: argparse.Namespace) -> int:
     for name in weights:
         if name not in named:
             raise ModelError(f"--weight {name}", "names no mapped signal or column", "weigh a signal given with --map")
-    fits = [FitParameter.parse(t) for t in args.fit]
-    settings: dict[str, dict[str, Any]] = {r: {} for r in args.records}
+    settings: dict[str, dict[str, Any]] = {r: dict(stand) for r in args.records}
     for text in args.condition:
         rec, key, value = split_condition(text, args.records)
         settings[rec][key] = value
@@ -114,6 +133,12 @@ def main(args: argparse.Namespace) -> int:
     print(f"thrustgraph: calibrating {model.name}")
     print()
     print(cal.report())
+    if stand:
+        shown = ", ".join(f"{k} = {v!r}" if isinstance(v, str) else f"{k} = {v}" for k, v in stand.items())
+        print()
+        print(f"Test conditions (--set) applied to every record and not written into {args.out}: {shown}. They are "
+              f"recorded with each record in its [calibration] table; the calibrated model flies as its file "
+              f"says otherwise.")
     outputs: list[tuple[str, Any]] = [(args.out, text)]
     if args.report:
         outputs.append((args.report, cal.to_json()))

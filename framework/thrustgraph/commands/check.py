@@ -1,4 +1,4 @@
-"""``thrustgraph check``: validate a model and print its components, graph, mass at launch and cautions.
+"""``thrustgraph check``: validate a model and print its components, graph, mass at launch, warnings and cautions.
 
 Nothing is flown, but the vehicle is assembled, so the plugin contract is
 checked too (:mod:`thrustgraph.contract`). The exit status is 0 for a valid
@@ -83,6 +83,11 @@ def format_check(parsed: ParsedModel) -> str:
         lines.append(f"  {n:<{width}s}  {part:<{pw}s}  {kg * 1e3:12.4f} g")
         total += kg
     lines.append(f"  {'total':<{width}s}  {'':<{pw}s}  {total * 1e3:12.4f} g")
+    warnings = parsed.warnings()
+    if warnings:
+        lines.append("")
+        lines.append("Warnings (the model is valid, but probably not what was meant)")
+        lines.extend(f"  warning: {w}" for w in warnings)
     cautions = parsed.cautions()
     if cautions:
         lines.append("")

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import math
+import sys
 from typing import Sequence
 
 from . import SUMMARIES
@@ -90,6 +91,8 @@ def main(args: argparse.Namespace) -> int:
     exports = export_targets(args)
     model, parsed = load_checked(args.model, args.overrides)  # errors name the file or the --set option
     choice = units_choice(args, parsed)
+    for w in parsed.warnings():       # on stderr, before the flight: the summary on stdout stays as it was
+        print(f"thrustgraph: warning: {w}", file=sys.stderr)
     check_paths([path for _, path in exports] + [args.report], [args.plots])  # before flying: a bad path costs nothing
     result = fly_model(parsed, quiet=args.quiet)
     # Build every output in memory first, so a failure leaves no partial file; all in the units of choice.
