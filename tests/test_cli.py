@@ -205,7 +205,7 @@ def test_graph_draws_png_and_svg(tmp_path, capsys):
 
 
 def test_plot_writes_the_chosen_plots_in_both_formats(tmp_path):
-    proc = tg("plot", "--out", "pics", "--format", "both", "--only", "ledger", "--only", "trajectory", cwd=tmp_path)
+    proc = tg("plot", "--out-dir", "pics", "--format", "both", "--only", "ledger", "--only", "trajectory", cwd=tmp_path)
     assert proc.returncode == 0, proc.stderr
     assert files_in(tmp_path / "pics") == ["ledger.png", "ledger.svg", "trajectory.png", "trajectory.svg"]
     for p in (tmp_path / "pics").glob("*.png"):
@@ -261,7 +261,7 @@ BAD = [
 WRITERS = [
     ("run", "--csv", "out.csv", "--json", "out.json", "--report", "out.html"),
     ("export", "--out-dir", "out"),
-    ("plot", "--out", "pics"),
+    ("plot", "--out-dir", "pics"),
     ("report", "--out", "out.html"),
     ("graph", "--out", "graph.png"),
     ("export", "--csv", "out.csv", "--parquet", "out.parquet"),

@@ -217,7 +217,7 @@ def test_a_name_with_a_math_fragment_is_drawn_as_written(here, capsys):
     m.name = MATH_NAME
     tg.save_model(m.set("launch.mount", "guide"), here / "m.toml")
     for args in (["run", "m.toml", "--plots", "p", "--report", "r.html"], ["graph", "m.toml", "--out", "g.svg"],
-                 ["plot", "m.toml", "--out", "q", "--format", "svg"], ["report", "m.toml", "--out", "s.html"]):
+                 ["plot", "m.toml", "--out-dir", "q", "--format", "svg"], ["report", "m.toml", "--out", "s.html"]):
         rc, out, err = run_here(capsys, args, here)
         assert rc == 0, err
     html = (here / "r.html").read_text()

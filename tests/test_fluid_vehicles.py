@@ -83,7 +83,7 @@ def test_water_jet_boat_top_speed_matches_the_algebraic_balance(flights):
     k = np.searchsorted(r.t, 19.9)
     v_sim = r.signals["speed"][k]
     assert v_sim == pytest.approx(V, rel=1e-6)
-    assert r.summary["max_speed"] == pytest.approx(V, rel=1e-6)
+    assert r.summary["top_speed"] == pytest.approx(V, rel=1e-6)
     # the same state from the ledger: gross thrust less ram drag equals the resistance
     mdot, vj = r.signals["jet.mass_flow"][k], r.signals["jet.exit_velocity"][k]
     assert vj == pytest.approx(jet_speed(V), rel=1e-6)
@@ -185,4 +185,4 @@ def test_cold_gas_track_passes_through_every_nozzle_regime(flights):
     # the real gas: Z at 200 bar and 300 K (CoolProp 1.05683, references.md section 8)
     assert r.signals["bottle.compressibility_factor"][0] == pytest.approx(1.0568, abs=1e-4)
     # frictionless track: the speed never falls while the gas pushes, and drag alone slows the coast
-    assert r.summary["max_speed"] > 10.0
+    assert r.summary["top_speed"] > 10.0

@@ -278,7 +278,7 @@ CASES = {
     "export-out-dir": ["export", "--json", "ok.json", "--out-dir", "nope/out"],
     "export-device": ["export", "--csv", "ok.csv", "--json", "/dev/null"],
     "graph": ["graph", "--out", "nope/graph.svg"],
-    "plot": ["plot", "--out", "nope/plots"],
+    "plot": ["plot", "--out-dir", "nope/plots"],
     "report": ["report", "--out", "nope/report.html"],
     "new": ["new", "nope/model.toml"],
     "study-table": ["study", "sweep", "--vary", "components.bottle.fill=0.2, 0.3", "--engine", "serial",
@@ -337,7 +337,7 @@ def full_disk(tmp_path):
 FULL_CASES = {
     "run": ["run", "--json", "ok.json", "--csv", "tiny/series.csv"],
     "export": ["export", "--json", "ok.json", "--csv", "tiny/series.csv"],
-    "plot": ["plot", "--out", "tiny/plots"],
+    "plot": ["plot", "--out-dir", "tiny/plots"],
     "study": ["study", "sweep", "--vary", "components.bottle.fill=0.2, 0.3", "--engine", "serial", "--table",
               "ok.csv", "--plots", "tiny/plots"],
     "compare": ["compare", "held.toml", "stand.csv", *RECORD, "--json", "ok.json", "--plot", "tiny/c.png"],

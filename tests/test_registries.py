@@ -122,7 +122,7 @@ def test_a_new_flight_plot_reaches_the_command_line_the_report_and_the_docs(monk
 
     assert "altitude-only" in _choices("plot", "only")
     assert "`altitude-only`: altitude alone, for the registry test" in plotkinds.markdown_list(FLIGHT)
-    status, _ = _cli("plot", "--quiet", "--only", "altitude-only", "--out", str(tmp_path / "p"))
+    status, _ = _cli("plot", "--quiet", "--only", "altitude-only", "--out-dir", str(tmp_path / "p"))
     assert status == 0 and sorted(p.name for p in (tmp_path / "p").iterdir()) == ["altitude-only.png"]
     assert (tmp_path / "p" / "altitude-only.png").read_bytes().startswith(PNG)
     status, _ = _cli("run", "--quiet", "--plots", str(tmp_path / "all"))

@@ -347,8 +347,9 @@ class Balance:
     def terms(self, t: Any, s: Sequence[Any]) -> dict[str, Any]:
         """The snapshot without the ledger: ``derivs`` (per state, in layout order, without accumulators),
         ``accel`` (3-vector), ``thrust`` (thrust vector), ``thrust_axial`` (its component along the body axis, the
-        ``thrust`` of :meth:`evaluate`), ``mass``, ``drive`` (name -> Pa) and ``singular`` (designs whose head
-        coupling has no solution)."""
+        ``thrust`` of :meth:`evaluate`), ``mass``, ``drive`` (name -> Pa), ``singular`` (designs whose head
+        coupling has no solution), ``inflow`` (the momentum of the fluid entering through sources, the sum of the
+        ledger's ``inflow momentum`` terms) and ``axis`` (the body axis)."""
         f = self._lines_now.get(("terms", len(s)))
         if f is not None:
             return f(t, s)
@@ -439,7 +440,7 @@ class Balance:
             for mdot, ve, pe, Ae, jd, Tj in jets:
                 tx = tx - Tj * jd[0]; ty = ty - Tj * jd[1]; tz = tz - Tj * jd[2]
             return {"derivs": derivs, "accel": a, "thrust": (tx, ty, tz), "thrust_axial": _dot((tx, ty, tz), e), "mass": M,
-                    "drive": self._drives(sums.flows, pa), "singular": singular}
+                    "drive": self._drives(sums.flows, pa), "singular": singular, "inflow": N, "axis": e}
         derivs.extend(self._accumulators(s, sums, jets, dirs, (Dx, Dy, Dz), W, (Px, Py, Pz), R, C))
         if want == "rhs":
             return derivs

@@ -58,7 +58,11 @@ The implementer's contract
 9. Numbers that sum up a run for this component (a parachute's deployment
    speed) are outcomes: declare each once in ``outcomes`` (a tuple of
    :class:`~thrustgraph.outcomespec.OutcomeSpec`) and return their values
-   from :meth:`ComponentKind.summarize`.
+   from :meth:`ComponentKind.summarize`. Cautions that depend on what
+   happened in the run (a tank that got cold) come from
+   :meth:`ComponentKind.flight_cautions`; a signal whose changes of value
+   belong in the event log (a nozzle's flow regime) is declared in
+   ``logged`` (a tuple of :class:`LoggedSignal`).
 10. A volume whose contents reach its outlet through a known cross-section
     (a liquid column in a bore) may say so with :meth:`ComponentKind.approach_area`;
     a flow element that uses it (the velocity of approach of a liquid jet) sets
@@ -86,7 +90,7 @@ from .xp import ScalarOps, scalar_ops
 
 __all__ = [
     "ROLES", "StateVar", "Mode", "EventSpec", "Outlet", "Flow", "BodyFns", "VolumeFns", "FlowFns", "JetFns", "SourceFns",
-    "ComponentKind", "EnvironmentKind", "ScalarOps", "scalar_ops", "Ambient",
+    "ComponentKind", "EnvironmentKind", "ScalarOps", "scalar_ops", "Ambient", "LoggedSignal",
 ]
 
 ROLES = ("body", "volume", "flow", "jet", "source", "boundary")
@@ -138,6 +142,29 @@ class EventSpec:
     when: tuple[str, ...]
     to: str | None
     needs_drive: bool = True
+
+
+@dataclass(frozen=True)
+class LoggedSignal:
+    """A signal of a component whose changes of value are entries of the run's event log.
+
+    ``key`` is the signal (as the component's signals return it), ``event`` the name of the log entry,
+    ``values`` what each value means in words (a value not listed is shown as a number), ``at_start`` the
+    values that are logged when the run starts in them (a flag already raised at launch).
+
+    >>> sep = LoggedSignal("separation", "flow separation", {0.0: "attached", 1.0: "criterion met"}, (1.0,))
+    >>> sep.words(1.0), sep.words(7.0)
+    ('criterion met', '7')
+    """
+
+    key: str
+    event: str
+    values: dict = None  # type: ignore[assignment]
+    at_start: tuple = ()
+
+    def words(self, value: float) -> str:
+        """A value in words."""
+        return (self.values or {}).get(float(value), f"{value:g}")
 
 
 @dataclass(frozen=True)
@@ -345,6 +372,8 @@ class ComponentKind(_Declared):
     #: meaning): they join the outcome registry (:mod:`thrustgraph.outcomes`), which refuses a key declared twice
     #: or defined differently by two kinds.
     outcomes: ClassVar[tuple[OutcomeSpec, ...]] = ()
+    #: Signals whose changes of value are entries of the event log (a nozzle's flow regime).
+    logged: ClassVar[tuple[LoggedSignal, ...]] = ()
 
     #: A flow element that takes ``approach_area`` in :meth:`build_flow` (see item 10 of the contract).
     takes_approach_area: ClassVar[bool] = False
@@ -368,6 +397,12 @@ class ComponentKind(_Declared):
     @classmethod
     def cautions(cls, p: Any) -> list[str]:
         """Safety cautions this component adds to a model that uses it."""
+        return []
+
+    @classmethod
+    def flight_cautions(cls, name: str, p: Any, result: Any) -> list[str]:
+        """Safety cautions that depend on what happened in a run (a tank that got cold, a nozzle whose flow may
+        separate), from the finished FlightResult; they follow the model's cautions."""
         return []
 
     # --- initial state ------------------------------------------------------

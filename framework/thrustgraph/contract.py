@@ -127,7 +127,7 @@ BUILDERS: dict[str, tuple[str, tuple[str, ...]]] = {
 }
 _CLASS_HOOKS = (("check", ("p", "where")), ("cautions", ("p",)), ("initial_state", ("p", "amb")),
                 ("initial_mode", ("p", "amb")), ("describe_mass", ("p", "amb")),
-                ("summarize", ("name", "p", "result")))
+                ("summarize", ("name", "p", "result")), ("flight_cautions", ("name", "p", "result")))
 _BUNDLE_FIELDS = {
     "body": ("BodyFns", ("force", "force_state", "derivs", "signals")),
     "volume": ("VolumeFns", ("mass", "outlet", "derivs", "internal", "signals")),

@@ -38,8 +38,8 @@ from typing import Any, Iterator, Mapping
 
 import numpy as np
 
-from . import outcomespec
 from .errors import ModelError, shorten
+from .outcomespec import display_unit
 from .parameters import Spec
 from .units import Q_
 
@@ -165,13 +165,9 @@ def current() -> UnitChoice:
     return _CURRENT.get()
 
 
-#: The outcome layer's choice of a display unit by magnitude (g / kg / t), where it offers one.
-_BY_MAGNITUDE = getattr(outcomespec, "display_unit", None)
-
-
 def _scaled(si: str, value: float, display: str) -> str:
-    """The display unit, scaled to the value's magnitude where the outcome layer picks units by magnitude."""
-    return _BY_MAGNITUDE(si, value, display) if _BY_MAGNITUDE is not None and si else display
+    """The display unit, scaled to the value's magnitude by the outcome layer (g / kg / t)."""
+    return display_unit(si, value, display) if si else display
 
 
 def shown(value: float, si: str, choice: UnitChoice | None = None, *, display: str | None = None

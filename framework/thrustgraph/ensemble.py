@@ -71,6 +71,7 @@ from .errors import ModelError
 from .integrate import available_signals, check_launch_speed, rest_value
 from .model import ParsedModel
 from .outcomes import OUTCOMES, STATUS_OK, STATUS_SCREENED, check_outputs
+from .vehicle import vehicle_profile
 from .component import ComponentKind
 from .separation import carry, stage_models
 from .staging import Trigger, condition, resolve_thresholds
@@ -81,7 +82,8 @@ __all__ = ["fly_designs", "EnsembleResult", "unsupported", "COMPUTED", "DOPRI_C"
 
 #: The registry outcomes the ensemble computes itself (its own running maxima, burn clock and impulse quadrature
 #: state, not the registry's functions); a study that asks for another one flies single flights.
-COMPUTED = ("apogee", "range", "impact_x", "impact_y", "flight_time", "max_speed", "peak_acceleration",
+#: Outcomes that do not apply to a design's vehicle (:mod:`thrustgraph.vehicle`) are NaN, as in a single flight.
+COMPUTED = ("apogee", "range", "impact_x", "impact_y", "flight_time", "run_time", "max_speed", "peak_acceleration",
             "total_impulse", "burn_time", "propellant_expelled", "launch_mass", "peak_vessel_pressure",
             "guide_exit_speed", "impact_speed", "dropped_mass")
 #: the fate of a design that separated a stage: it flies on as the next vehicle
@@ -422,11 +424,8 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
             for v in seps.values():
                 v[i] = np.nan
     # an outcome that does not apply to the vehicle (no apogee on a track, no speed on a stand) is NaN, as in
-    # a single flight: the registry's own predicate, asked of the model the designs vary
-    base = assemble(parsed)
-    for k in outputs:
-        if not OUTCOMES[k].applies(base):
-            out[k][:] = np.nan
+    # a single flight: the registry's own predicate, asked of each design's vehicle profile
+    _mask_by_vehicle(out, parsed, params, x)
     return EnsembleResult(status, notes, _table(out, outputs), outputs, steps_taken, calls,
                           time.perf_counter() - t_start, seps)
 
@@ -437,6 +436,30 @@ def _resolved_triggers(parsed: ParsedModel) -> tuple[Trigger, ...]:
     if not parsed.triggers:
         return ()
     return resolve_thresholds(parsed.triggers, available_signals(assemble(parsed)))
+
+
+def _mask_by_vehicle(out: dict[str, np.ndarray], parsed: ParsedModel, params: Sequence[DesignParameter],
+                     x: np.ndarray) -> None:
+    """NaN for every outcome that does not apply to a design's vehicle (the registry's ``applies``, read from the
+    :class:`~thrustgraph.vehicle.VehicleProfile` of the design: a varied guide length or gravity may change it)."""
+    shaping = [j for j, p in enumerate(params) if p.section == "launch" or
+               (p.section == "environment" and p.owner == "gravity")]
+    if not shaping:
+        groups = {vehicle_profile(parsed): np.arange(len(x))}
+    else:
+        groups = {}
+        for i in range(len(x)):
+            launch = {params[j].name: float(x[i, j]) for j in shaping if params[j].section == "launch"}
+            grav = {params[j].name: float(x[i, j]) for j in shaping if params[j].section == "environment"}
+            view = with_values(parsed, {
+                "launch": with_values(parsed.launch, launch) if launch else parsed.launch,
+                "env_params": {**parsed.env_params, "gravity": with_values(parsed.env_params["gravity"], grav)}
+                if grav else parsed.env_params})
+            groups.setdefault(vehicle_profile(view), []).append(i)
+    for profile, rows in groups.items():
+        for k, spec in OUTCOMES.items():
+            if not spec.applies(profile):
+                out[k][np.asarray(rows, dtype=int)] = np.nan
 
 
 class _Run:
@@ -741,6 +764,7 @@ class _Run:
         out, sysa, Y = self.out, self.sysa, self.Y
         g = self.gid[idx]
         out["flight_time"][g] = self.t[idx] - self.t_first[idx]
+        out["run_time"][g] = self.t[idx] - self.t_first[idx]
         out["impact_x"][g] = Y[0, idx] - self.x_first[0, idx]
         out["impact_y"][g] = Y[1, idx] - self.x_first[1, idx]
         out["range"][g] = np.hypot(out["impact_x"][g], out["impact_y"][g])

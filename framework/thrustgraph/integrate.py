@@ -35,7 +35,9 @@ from .outcomes import OUTCOMES, kind_outcomes, run_summary
 from .result import Audit, Event, FlightResult, Phase, signal_unit
 from .sampling import SampleTable, join_tables, sample_terms
 from .separation import separate
+from .signallog import signal_events
 from .staging import KINEMATIC_SIGNALS, Trigger, condition, resolve_thresholds
+from .vehicle import vehicle_profile
 from .stepguard import StepGuard
 from .modelfile import default_model_path, dumps_model, load_model
 from .version import __version__
@@ -378,7 +380,7 @@ def fly_segments(system: System, *, rtol: float | None = None, atol: Any = None,
                     break  # the vehicle changed: the other events of this step belong to the old one
             elif kind == "guide":
                 ph.kin = Kinematics.FREE
-                events.append(Event(t, "guide exit", "vehicle", f"speed {float(np.linalg.norm(y[3:6])):.4g} m/s"))
+                events.append(Event(t, actions[k][1], "vehicle", f"speed {float(np.linalg.norm(y[3:6])):.4g} m/s"))
             elif kind == "apogee":
                 ph.descending = True
                 events.append(Event(t, "apogee", "vehicle", f"altitude {y[2]:.4g} m"))
@@ -513,8 +515,10 @@ def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: 
         fns.append(due)
         actions.append(("trigger", tr.name, "trigger", tr))
 
+    profile = vehicle_profile(system.parsed)
     if ph.kin == Kinematics.GUIDE:
-        # 1 nm beyond the guide's end, so that a zero-length guide (a pad) holds the vehicle until it moves
+        # 1 nm beyond the guide's end, so that a zero-length guide (a pad) holds the vehicle until it moves; leaving
+        # a pad is a lift-off, not the exit of a guide (whose speed would be that of the first nanometre)
         L = system.launch.guide_length + 1e-9
 
         def guide(t, y):
@@ -522,7 +526,7 @@ def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: 
         guide.terminal = True
         guide.direction = 1.0
         fns.append(guide)
-        actions.append(("guide", "guide exit", "vehicle", None))
+        actions.append(("guide", "guide exit" if profile.guided else "lift-off", "vehicle", None))
     if ph.kin == Kinematics.GUIDE:
         # sliding back down the guide stops at its foot (1 nm below it, so a vehicle resting there does not fire)
         def foot(t, y):
@@ -541,7 +545,8 @@ def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: 
         fns.append(rest)
         actions.append(("rest", "came to rest", "vehicle", None))
     if ph.kin == Kinematics.FREE and system.gravity(float(x0[2])) > 0.0:
-        if not ph.descending:
+        # a hover rig settles and bobs on its feed: it has a highest point (an outcome), no apogee to mark
+        if not ph.descending and profile.kind != "hovering":
             def apogee(t, y):
                 return y[5]
             apogee.terminal = True
@@ -563,6 +568,7 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
     ts: list[np.ndarray] = []
     rows: list[tuple[np.ndarray, tuple[str, ...]]] = []
     tables: list[SampleTable] = []
+    pieces: list[tuple] = []
     phases: list[Phase] = []
     names: list[str] = []
     check_output_samples(float(segs.segments[-1][1].t[-1] - segs.segments[0][1].t[0]), run.output_interval)
@@ -581,6 +587,7 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
         yy[:, np.searchsorted(tt, uniq_t)] = sol.y[:, first]   # keep the solver's own points exact
         bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
         tables.append(sample_terms(bal, tt, yy))
+        pieces.append((ph, sol, bal, tt, tables[-1].values))
         ts.append(tt)
         rows.append((yy, bal.system.state_names))
         for n in bal.system.state_names:
@@ -607,6 +614,18 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
                                 signals["position"][:, 1] - signals["position"][0, 1])
     vel = signals["velocity"]
     signals["flight_path_angle"] = np.arctan2(vel[:, 2], np.hypot(vel[:, 0], vel[:, 1]))
+    # along the path: the rate of change of the speed (negative when slowing down); along the body axis at rest
+    way = np.where(signals["speed"][:, None] > 0.0, vel / np.maximum(signals["speed"], 1e-300)[:, None],
+                   signals["axis"])
+    signals["path_acceleration"] = np.einsum("ij,ij->i", signals["acceleration"], way)
+    # net thrust: the ledger's thrust terms of every opening (momentum flux, pressure thrust: the gross thrust)
+    # with the momentum of the fluid entering through sources (an inlet's ram drag, a hose's inflow)
+    inflow = np.zeros_like(signals["thrust_vector"])
+    for (comp, term), vec in ledger.items():
+        if term == "inflow momentum":
+            inflow = inflow + vec
+    signals["net_thrust_vector"] = signals["thrust_vector"] + inflow
+    signals["net_thrust"] = np.einsum("ij,ij->i", signals["net_thrust_vector"], signals["axis"])
 
     # Audits from the accumulators integrated with the states.
     last = y[:, -1]
@@ -634,6 +653,7 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
                        events=segs.events, audit=audit, success=segs.status == 0, status=segs.status,
                        message=segs.message, nfev=segs.nfev)
     res.units.update(signal_units(system.parsed, signals))
+    res.vehicle = vehicle_profile(system.parsed)
     res.summary = run_summary(system, segs)
     res.outcome_specs = {k: OUTCOMES[k] for k in res.summary}
     declared = kind_outcomes(system.parsed.kinds)
@@ -646,7 +666,14 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
             res.summary[spec.key] = float(value)
             res.units[spec.key] = spec.unit
             res.outcome_specs[spec.key] = spec
+    logged = signal_events(pieces)
+    if logged:       # in time order, after the integrator's events of the same instant
+        res.events = sorted(list(segs.events) + logged, key=lambda e: e.t)
     res.cautions = system.parsed.cautions()
+    for n, cls in system.parsed.kinds.items():
+        for c in cls.flight_cautions(n, system.parsed.params[n], res):
+            if c not in res.cautions:
+                res.cautions.append(c)
     res.provenance = provenance(system.parsed)
     return res
 

@@ -57,6 +57,7 @@ from .errors import ModelError, PluginError
 from .outcomespec import KEY_PATTERN, OutcomeSpec
 from .sampling import at_samples
 from .units import Q_
+from .vehicle import KINDS, LABELS, VehicleProfile, vehicle_profile
 
 
 class System(Protocol):
@@ -73,6 +74,7 @@ class System(Protocol):
 
 __all__ = ["OutcomeSpec", "OUTCOMES", "G0", "Flight", "summarise", "run_summary", "output_names",
            "default_outputs", "check_outputs", "outcome", "kind_outcomes", "check_kind_outcomes", "markdown_table",
+           "outputs_by_vehicle", "HOVER_WINDOW",
            "STATUS_OK", "STATUS_SCREENED", "STATUS_NOT_RUN"]
 
 #: Standard gravity, m/s^2 (exact by definition; CGPM 1901): the g0 of specific impulse and of accelerations
@@ -118,6 +120,7 @@ class Flight:
         self.segments = list(segs.segments)
         self.events = list(segs.events)
         self.dropped_mass = float(segs.dropped_mass)
+        self.profile: VehicleProfile = vehicle_profile(system.parsed)
         self._values: dict[str, float] = {}
 
     # -- what outcome functions read ------------------------------------------
@@ -125,7 +128,7 @@ class Flight:
         """An outcome's SI value (NaN where it does not apply or did not happen)."""
         if key not in self._values:
             spec = OUTCOMES[key]
-            self._values[key] = float(spec.compute(self)) if spec.applies(self.system) else math.nan
+            self._values[key] = float(spec.compute(self)) if spec.applies(self.profile) else math.nan
         return self._values[key]
 
     def phased(self) -> Iterable[tuple[Any, Any, Any]]:
@@ -204,9 +207,13 @@ class Flight:
         return best
 
     @cached_property
-    def thrust_impulse(self) -> float:
-        """Integral of the thrust magnitude over every powered step: 3-point Gauss-Legendre on the dense output."""
-        total = 0.0
+    def impulses(self) -> tuple[float, float]:
+        """(gross, net) impulse: the integrals of the magnitudes of the gross thrust (every opening's momentum
+        flux and pressure thrust) and of the net thrust (the gross thrust plus the momentum of the fluid entering
+        through sources: an inlet's ram drag, a hose's inflow) over every powered step, by 3-point
+        Gauss-Legendre quadrature on the dense output. Both read the balance's own sums
+        (:meth:`~thrustgraph.balance.Balance.terms`: ``thrust`` and ``inflow``)."""
+        gross = net = 0.0
         for ph, sol, bal in self.phased():
             if not _propulsive(bal.system, ph.modes) and not bal.system.jets:
                 continue
@@ -220,15 +227,64 @@ class Flight:
             mid, half = 0.5 * (a[keep] + b[keep]), 0.5 * (b[keep] - a[keep])
             nodes = (mid[:, None] + half[:, None] * _GAUSS_X[None, :]).ravel()
             ys = sol.sol(nodes)
+            n = len(nodes)
             snap = at_samples(bal, nodes, ys, "terms")
             if snap is not None:
-                tv = snap["thrust"]
-                mag = np.sqrt(tv[0] * tv[0] + tv[1] * tv[1] + tv[2] * tv[2]) + np.zeros(len(nodes))
+                tv = [np.asarray(c, dtype=float) + np.zeros(n) for c in snap["thrust"]]
+                nv = [np.asarray(c, dtype=float) + np.zeros(n) for c in snap["inflow"]]
             else:
-                mag = np.array([_norm3(bal.terms(float(nodes[q]), ys[:, q].tolist())["thrust"])
-                                for q in range(len(nodes))])
-            total += float(np.sum(half * (mag.reshape(-1, 3) @ _GAUSS_W)))
-        return total
+                snaps = [bal.terms(float(nodes[q]), ys[:, q].tolist()) for q in range(n)]
+                tv = [np.array([sn["thrust"][c] for sn in snaps], dtype=float) for c in range(3)]
+                nv = [np.array([sn["inflow"][c] for sn in snaps], dtype=float) for c in range(3)]
+            mag = np.sqrt(tv[0] * tv[0] + tv[1] * tv[1] + tv[2] * tv[2])
+            net_v = [tv[c] + nv[c] for c in range(3)]
+            mag_net = np.sqrt(net_v[0] * net_v[0] + net_v[1] * net_v[1] + net_v[2] * net_v[2])
+            gross += float(np.sum(half * (mag.reshape(-1, 3) @ _GAUSS_W)))
+            net += float(np.sum(half * (mag_net.reshape(-1, 3) @ _GAUSS_W)))
+        return gross, net
+
+    @property
+    def thrust_impulse(self) -> float:
+        """Integral of the (gross) thrust magnitude over every powered step (see :attr:`impulses`)."""
+        return self.impulses[0]
+
+    def first_time(self, fun: Callable[[np.ndarray], float], level: float) -> float:
+        """The first time ``fun(state)`` reaches ``level`` from below: the first step where it does, refined on
+        the dense output between it and the step before (Brent's method); NaN when it never does."""
+        for _ph, sol, _bal in self.segments:
+            v = np.array([fun(sol.y[:, k]) for k in range(len(sol.t))])
+            hit = np.nonzero(v >= level)[0]
+            if not len(hit):
+                continue
+            k = int(hit[0])
+            if k == 0 or getattr(sol, "sol", None) is None:
+                return float(sol.t[k])
+            # imported on first use, like minimize_scalar (_refine_max): scipy.optimize is slow to import
+            from scipy.optimize import brentq
+            return float(brentq(lambda t: fun(sol.sol(t)) - level, float(sol.t[k - 1]), float(sol.t[k]),
+                                xtol=1e-12 * max(1.0, abs(float(sol.t[k]))), rtol=1e-13))
+        return math.nan
+
+    def window_samples(self, fraction: float, per_step: int = 8) -> tuple[np.ndarray, np.ndarray]:
+        """(t, states) over the last ``fraction`` of the run: the solver's steps inside it and ``per_step`` points
+        of the dense output inside each step, in time order."""
+        start = self.t_last - fraction * (self.t_last - self.t_first)
+        ts, ys = [], []
+        for _ph, sol, _bal in self.segments:
+            t = np.asarray(sol.t, dtype=float)
+            if t[-1] < start:
+                continue
+            if getattr(sol, "sol", None) is not None and len(t) > 1:
+                grid = np.concatenate([np.linspace(t[k], t[k + 1], per_step + 1)[:-1] for k in range(len(t) - 1)]
+                                      + [t[-1:]])
+                grid = np.concatenate([[start], grid[grid > start]]) if grid[0] < start else grid
+                ts.append(grid)
+                ys.append(sol.sol(grid))
+            else:
+                keep = t >= start
+                ts.append(t[keep])
+                ys.append(sol.y[:, keep])
+        return np.concatenate(ts), np.concatenate(ys, axis=1)
 
 
 # -- how each outcome is computed -----------------------------------------------------------------------------
@@ -266,15 +322,44 @@ def _peak_acceleration(f: Flight) -> float:
     return f.peak(_accel_steps, _accel_dense)
 
 
-def _peak_thrust(f: Flight) -> float:
-    # the balance's snapshot without the ledger (the thrust is the same number evaluate() records)
+def _axial(snap: Mapping[str, Any], net: bool) -> Any:
+    """The thrust along the body axis of a :meth:`~thrustgraph.balance.Balance.terms` snapshot: gross (the
+    openings' momentum flux and pressure thrust), or net (with the momentum of the entering fluid)."""
+    if not net:
+        return snap["thrust_axial"]
+    tv, nv, e = snap["thrust"], snap["inflow"], snap["axis"]
+    return (tv[0] + nv[0]) * e[0] + (tv[1] + nv[1]) * e[1] + (tv[2] + nv[2]) * e[2]
+
+
+def _side(snap: Mapping[str, Any]) -> Any:
+    """The magnitude of the gross thrust across the body axis (a sideways vent's push)."""
+    tv, e = snap["thrust"], snap["axis"]
+    along = snap["thrust_axial"]
+    x, y, z = tv[0] - along * e[0], tv[1] - along * e[1], tv[2] - along * e[2]
+    return np.sqrt(x * x + y * y + z * z)
+
+
+def _peak_of(f: Flight, of: Callable[[Mapping[str, Any]], Any]) -> float:
+    # the balance's snapshot without the ledger (its sums are the numbers evaluate() records), over the arrays of
+    # a segment's steps where the vehicle allows it (thrustgraph.sampling)
     def at_steps(ph: Any, sol: Any, bal: Any) -> Any:
         snap = at_samples(bal, sol.t, sol.y, "terms")
         if snap is not None:
-            return snap["thrust_axial"] + np.zeros(len(sol.t))
-        return [bal.terms(float(sol.t[k]), sol.y[:, k].tolist())["thrust_axial"] for k in range(len(sol.t))]
-    return f.peak(at_steps,
-                  lambda ph, sol, bal: (lambda t: float(bal.terms(t, sol.sol(t).tolist())["thrust_axial"])))
+            return np.asarray(of(snap), dtype=float) + np.zeros(len(sol.t))
+        return [of(bal.terms(float(sol.t[k]), sol.y[:, k].tolist())) for k in range(len(sol.t))]
+    return f.peak(at_steps, lambda ph, sol, bal: (lambda t: float(of(bal.terms(t, sol.sol(t).tolist())))))
+
+
+def _peak_thrust(f: Flight) -> float:
+    return _peak_of(f, lambda snap: _axial(snap, False))
+
+
+def _peak_net_thrust(f: Flight) -> float:
+    return _peak_of(f, lambda snap: _axial(snap, True))
+
+
+def _peak_side_force(f: Flight) -> float:
+    return _peak_of(f, _side)
 
 
 def _peak_vessel_pressure(f: Flight) -> float:
@@ -316,39 +401,126 @@ def _specific_impulse(f: Flight) -> float:
     return f.value("total_impulse") / m / G0 if m > 1e-12 else math.nan
 
 
+def _distance(f: Flight) -> float:
+    u = f.system.guide_dir
+    d = f.y_last[:3] - f.y_first[:3]
+    return float(d[0] * u[0] + d[1] * u[1] + d[2] * u[2])
+
+
+def _time_to_90(f: Flight) -> float:
+    top = f.value("top_speed")
+    if not top > 0.0:
+        return math.nan
+    return f.first_time(lambda y: _norm3(y[3:6]), 0.9 * top) - f.t_first
+
+
+#: The stretch of a hover rig's run its mean height and oscillation are taken over: the last quarter of the run
+#: (after the start-up, when the run is long enough to settle; common practice for a settled record, no source).
+HOVER_WINDOW = 0.25
+
+
+def _mean_height(f: Flight) -> float:
+    t, y = f.window_samples(HOVER_WINDOW)
+    if len(t) < 2 or not t[-1] > t[0]:
+        return float(y[2, -1])
+    from scipy.integrate import trapezoid      # on first use (scipy.integrate is slow to import)
+    return float(trapezoid(y[2], t) / (t[-1] - t[0]))
+
+
+def _height_oscillation(f: Flight) -> float:
+    _, y = f.window_samples(HOVER_WINDOW)
+    return 0.5 * float(np.max(y[2]) - np.min(y[2]))
+
+
 def _differs_from_range(values: Mapping[str, float]) -> bool:
     """Downrange and drift add nothing when the flight stayed in the launch plane (drift within 1e-9 of range)."""
     drift, rng = values.get("drift", math.nan), values.get("range", math.nan)
     return not (math.isfinite(drift) and abs(drift) <= 1e-9 * max(abs(rng), 1.0))
 
 
+def _differs(key: str, other: str) -> Callable[[Mapping[str, float]], bool]:
+    def show(values: Mapping[str, float]) -> bool:
+        a, b = values.get(key, math.nan), values.get(other, math.nan)
+        return not (math.isfinite(a) and math.isfinite(b) and abs(a - b) <= 1e-9 * max(abs(a), abs(b), 1e-30))
+    show.__doc__ = f"shown when it differs from {other}"
+    return show
+
+
+def _side_matters(values: Mapping[str, float]) -> bool:
+    """A side force is shown when it is more than 1e-6 of the largest thrust (a vent that points sideways), not
+    when it is the rounding of an axial thrust."""
+    side = values.get("peak_side_force", math.nan)
+    big = max(abs(values.get("peak_thrust", 0.0) or 0.0), abs(side) if math.isfinite(side) else 0.0)
+    return math.isfinite(side) and side > 1e-6 * big and side > 0.0
+
+
 def _never(_: Any) -> bool:
     return False
 
 
-def _moves(system: System) -> bool:
-    """every mount but a test stand (held)"""
-    return system.launch.mount != "held"
+def _moves(v: VehicleProfile) -> bool:
+    """every vehicle but one held on a test stand"""
+    return v.moves
 
 
-def _flies(system: System) -> bool:
-    """guide and free launches under gravity"""
-    return system.launch.mount in ("guide", "free") and system.gravity(float(system.y0[2])) > 0.0
+def _airborne(v: VehicleProfile) -> bool:
+    """flying vehicles and hover rigs"""
+    return v.airborne
 
 
-def _on_guide(system: System) -> bool:
-    """guide launches"""
-    return system.launch.mount == "guide"
+def _not_airborne(v: VehicleProfile) -> bool:
+    """vehicles on a track, on a stand, or free of gravity"""
+    return not v.airborne
 
 
-def _has_vessels(system: System) -> bool:
+def _flies(v: VehicleProfile) -> bool:
+    """flying vehicles (guide and free launches under gravity, not fed from outside)"""
+    return v.kind == "flying"
+
+
+def _hovers(v: VehicleProfile) -> bool:
+    """hover rigs (flying under gravity, fed from outside)"""
+    return v.kind == "hovering"
+
+
+def _on_track(v: VehicleProfile) -> bool:
+    """vehicles on a track or a water lane"""
+    return v.kind == "track"
+
+
+def _free_moving(v: VehicleProfile) -> bool:
+    """moving vehicles not on a track"""
+    return v.moves and v.kind != "track"
+
+
+def _ranged(v: VehicleProfile) -> bool:
+    """flying vehicles and platforms free of gravity"""
+    return v.kind in ("flying", "weightless")
+
+
+def _on_guide(v: VehicleProfile) -> bool:
+    """guide launches with a guide longer than 0 (a zero-length pad has no guide exit)"""
+    return v.guided
+
+
+def _has_vessels(v: VehicleProfile) -> bool:
     """vehicles with a vessel"""
-    return bool(system.volumes)
+    return v.vessels
 
 
-def _staged(system: System) -> bool:
+def _carries_propellant(v: VehicleProfile) -> bool:
+    """vehicles not fed from outside (they expel what they carry)"""
+    return not v.fed
+
+
+def _fed(v: VehicleProfile) -> bool:
+    """vehicles fed from outside (an inlet, a hose)"""
+    return v.fed
+
+
+def _staged(v: VehicleProfile) -> bool:
     """models with stages"""
-    return bool(system.parsed.stages)
+    return v.staged
 
 
 _O = OutcomeSpec
@@ -357,53 +529,93 @@ _O = OutcomeSpec
 OUTCOMES: dict[str, OutcomeSpec] = {o.key: o for o in (
     _O("flight_time", "time", "s", "s", "flight time",
        "time from launch to the end of the flight (ground impact, or the end time)",
-       lambda f: f.t_last - f.t_first),
+       lambda f: f.t_last - f.t_first, applies=_airborne),
+    _O("run_time", "time", "s", "s", "run time",
+       "time from the start to the end of the run (coming to rest, the propulsion spent on a stand, or the end "
+       "time)", lambda f: f.t_last - f.t_first, applies=_not_airborne),
     _O("burn_time", "time", "s", "s", "burn time",
-       "time spent in powered phases (a mode a component declares propulsive)", _burn_time),
+       "time spent in powered phases (a mode a component declares propulsive)", _burn_time,
+       applies=_carries_propellant),
+    _O("powered_time", "time", "s", "s", "powered time",
+       "time spent in powered phases (a pump running, a feed on) of a vehicle fed from outside", _burn_time,
+       applies=_fed, default=False),
     _O("launch_mass", "mass", "kg", "kg", "launch mass", "vehicle mass at launch, from the initial state",
        lambda f: f.mass_at(0)),
-    _O("final_mass", "mass", "kg", "kg", "final mass", "vehicle mass at the end of the flight, from the final state",
-       lambda f: f.mass_at(-1), default=False),
+    _O("final_mass", "mass", "kg", "kg", "final mass",
+       "vehicle mass at the end of the flight, from the final state (shown when it differs from the launch mass)",
+       lambda f: f.mass_at(-1), show=_differs("final_mass", "launch_mass"), default=False),
     _O("propellant_expelled", "mass", "kg", "kg", "propellant expelled",
        "mass that left through the control surface: launch mass less final mass and the stages dropped",
-       lambda f: f.value("launch_mass") - f.value("final_mass") - f.dropped_mass),
+       lambda f: f.value("launch_mass") - f.value("final_mass") - f.dropped_mass, applies=_carries_propellant),
     _O("dropped_mass", "mass", "kg", "kg", "mass dropped at separations", "mass of the stages dropped",
        lambda f: f.dropped_mass, applies=_staged, default=False),
-    _O("peak_thrust", "force", "N", "N", "peak thrust",
-       "largest thrust along the body axis: at the steps, refined inside the step where it peaks",
+    _O("peak_thrust", "force", "N", "N", "peak thrust (gross)",
+       "largest gross thrust along the body axis: the momentum flux and pressure thrust of every opening and "
+       "prescribed jet, at the steps, refined inside the step where it peaks",
        _peak_thrust, default=False),
-    _O("total_impulse", "impulse", "N*s", "N*s", "total impulse",
-       "time integral of the thrust magnitude over the powered phases (those of the burn time; every phase of a "
-       "vehicle with a prescribed jet): 3-point Gauss-Legendre quadrature of the dense solution on every step",
-       lambda f: f.thrust_impulse),
+    _O("peak_net_thrust", "force", "N", "N", "peak thrust (net)",
+       "largest net thrust along the body axis: the gross thrust plus the momentum of the fluid entering through "
+       "sources (an inlet's ram drag, a hose's inflow), the force the flow puts on the vehicle (shown when it "
+       "differs from the gross)", _peak_net_thrust, show=_differs("peak_net_thrust", "peak_thrust"),
+       default=False),
+    _O("peak_side_force", "force", "N", "N", "peak side force",
+       "largest gross thrust across the body axis (an opening that points sideways; shown when not zero)",
+       _peak_side_force, show=_side_matters, default=False),
+    _O("total_impulse", "impulse", "N*s", "N*s", "total impulse (gross)",
+       "time integral of the gross thrust magnitude over the powered phases (those of the burn time; every phase "
+       "of a vehicle with a prescribed jet): 3-point Gauss-Legendre quadrature of the dense solution on every step",
+       lambda f: f.impulses[0]),
+    _O("net_impulse", "impulse", "N*s", "N*s", "total impulse (net)",
+       "time integral of the net thrust magnitude (gross thrust plus the entering fluid's momentum) over the "
+       "same phases and by the same quadrature as the total impulse (shown when it differs from the gross)",
+       lambda f: f.impulses[1], show=_differs("net_impulse", "total_impulse"), default=False),
     _O("specific_impulse", "time", "s", "s", "specific impulse",
-       "total impulse per unit weight (g0) of propellant expelled; none when nothing was expelled (a hose-fed rig)",
-       _specific_impulse, default=False),
+       "total impulse per unit weight (g0) of propellant expelled; none when nothing was expelled",
+       _specific_impulse, applies=_carries_propellant, default=False),
     _O("peak_acceleration", "acceleration", "m/s^2", "m/s^2", "peak acceleration",
-       "largest acceleration magnitude: at the steps, refined inside the step where it peaks (0 on a stand)",
-       _peak_acceleration, also=("g0",)),
+       "largest acceleration magnitude: at the steps, refined inside the step where it peaks",
+       _peak_acceleration, applies=_moves, also=("g0",)),
     _O("max_speed", "speed", "m/s", "m/s", "maximum speed",
-       "largest speed: at the steps, refined inside the step where it peaks", _max_speed, applies=_moves),
+       "largest speed: at the steps, refined inside the step where it peaks", _max_speed, applies=_free_moving),
+    _O("top_speed", "speed", "m/s", "m/s", "top speed",
+       "largest speed along the track (the steady speed where thrust and resistance balance, when the run is "
+       "long enough to reach it): at the steps, refined inside the step where it peaks", _max_speed,
+       applies=_on_track, default=False),
+    _O("time_to_90_percent_speed", "time", "s", "s", "time to 90 % of top speed",
+       "time from the start until the speed first reaches 90 % of the top speed, located on the dense output",
+       _time_to_90, applies=_on_track, default=False),
+    _O("distance", "length", "m", "m", "distance along the track",
+       "distance along the track from the start point to the end point", _distance, applies=_on_track,
+       default=False),
     _O("guide_exit_speed", "speed", "m/s", "m/s", "guide exit speed", "speed at the end of the launch guide",
        _guide_exit_speed, applies=_on_guide),
     _O("apogee", "length", "m", "m", "apogee",
        "highest altitude (above the ground datum): at the steps (the apogee event is one), refined inside the "
        "step where it peaks", _apogee, applies=_flies),
+    _O("max_height", "length", "m", "m", "highest point",
+       "highest altitude of a hover rig (above the ground datum): at the steps, refined inside the step where it "
+       "peaks", _apogee, applies=_hovers, default=False),
+    _O("mean_height", "length", "m", "m", "mean height",
+       "time-averaged altitude over the last quarter of the run (trapezoids on the dense output, 8 points a "
+       "step)", _mean_height, applies=_hovers, default=False),
+    _O("height_oscillation", "length", "m", "m", "height oscillation (amplitude)",
+       "half the difference of the highest and lowest altitude over the last quarter of the run",
+       _height_oscillation, applies=_hovers, default=False),
     _O("range", "length", "m", "m", "range", "horizontal distance from the launch point at the end of the flight",
-       lambda f: math.hypot(f.value("impact_x"), f.value("impact_y")), applies=_moves),
+       lambda f: math.hypot(f.value("impact_x"), f.value("impact_y")), applies=_ranged),
     _O("downrange", "length", "m", "m", "downrange distance",
        "horizontal distance along the launch azimuth at the end of the flight (shown when it differs from the "
-       "range)", lambda f: _azimuth_frame(f)[0], applies=_moves, show=_differs_from_range, default=False),
+       "range)", lambda f: _azimuth_frame(f)[0], applies=_ranged, show=_differs_from_range, default=False),
     _O("drift", "length", "m", "m", "drift across the azimuth",
        "horizontal distance across the launch azimuth (to its left) at the end of the flight, e.g. under a "
-       "cross wind (shown when not zero)", lambda f: _azimuth_frame(f)[1], applies=_moves, show=_differs_from_range,
-       default=False),
+       "cross wind (shown when not zero)", lambda f: _azimuth_frame(f)[1], applies=_ranged,
+       show=_differs_from_range, default=False),
     _O("impact_x", "length", "m", "m", "end point x", "x position at the end of the flight, from the launch point",
        lambda f: float(f.y_last[0] - f.y_first[0]), applies=_moves, show=_never),
     _O("impact_y", "length", "m", "m", "end point y", "y position at the end of the flight, from the launch point",
        lambda f: float(f.y_last[1] - f.y_first[1]), applies=_moves, show=_never),
     _O("impact_speed", "speed", "m/s", "m/s", "impact speed", "speed at ground impact", _impact_speed,
-       applies=_flies),
+       applies=_airborne),
     _O("peak_vessel_pressure", "pressure", "Pa", "bar", "peak vessel pressure (absolute)",
        "highest absolute pressure in any vessel, at the steps; a prediction, never a rating",
        _peak_vessel_pressure, applies=_has_vessels),
@@ -449,8 +661,8 @@ def check_outputs(names: Sequence[str], where: str = "outputs") -> list[str]:
 def markdown_table(specs: Iterable[OutcomeSpec] | None = None) -> str:
     """The registry as a Markdown table (docs/studies.md holds it; a test checks it is current).
 
-    >>> print(markdown_table([OUTCOMES["apogee"]]).splitlines()[2][:67])
-    | `apogee` | m | m | apogee | guide and free launches under gravity
+    >>> print(markdown_table([OUTCOMES["apogee"]]).splitlines()[2][:52])
+    | `apogee` | m | m | apogee | flying vehicles (guide
     """
     rows = ["| key | SI unit | shown in | label | applies to | what it is and how it is computed |",
             "| --- | --- | --- | --- | --- | --- |"]
@@ -459,6 +671,45 @@ def markdown_table(specs: Iterable[OutcomeSpec] | None = None) -> str:
         where = (o.applies.__doc__ or "").strip().splitlines()[0]
         rows.append(f"| `{o.key}` | {o.unit or '1'} | {shown} | {o.label} | {where} | {o.doc}"
                     f"{'' if o.default else ' (in a study only when named)'} |")
+    return "\n".join(rows) + "\n"
+
+
+#: What varies within a class of vehicle and changes its outcomes: each a field of the profile set one way and
+#: the words that say so.
+_VARIANTS = (("vessels", True, "with a vessel"), ("staged", True, "with stages"),
+             ("guide_length", 1.0, "on a guide longer than 0"), ("fed", True, "fed from outside"))
+
+
+def outputs_by_vehicle() -> str:
+    """Which core outcomes a run's summary shows for each class of vehicle (:mod:`thrustgraph.vehicle`), as
+    Markdown (docs/outputs.md holds it; a test checks it is current). An outcome is also left out when it did
+    not happen (no impact) or adds nothing (a net thrust equal to the gross).
+
+    >>> print(outputs_by_vehicle().splitlines()[2])
+    | `flight_time` | flight time | yes | yes | - | - | - |
+    """
+    mounts = {"flying": "guide", "hovering": "guide", "track": "track", "stand": "held", "weightless": "free"}
+    rows = ["| key | label | " + " | ".join(LABELS[k] for k in KINDS) + " |",
+            "| --- | --- |" + " --- |" * len(KINDS)]
+    for o in OUTCOMES.values():
+        if o.show is _never:
+            continue
+        cells = []
+        for kind in KINDS:
+            base = VehicleProfile(kind=kind, mount=mounts[kind], fed=kind == "hovering")
+            changed = []
+            for field, value, words in _VARIANTS:
+                if field == "fed" and kind in ("flying", "hovering"):
+                    continue         # fed from outside, a flying vehicle is a hover rig: its own class
+                if field == "guide_length" and mounts[kind] != "guide":
+                    continue
+                if o.applies(replace(base, **{field: value})) != o.applies(base):
+                    changed.append(words)
+            if o.applies(base):
+                cells.append("yes" + (", unless " + ", ".join(changed) if changed else ""))
+            else:
+                cells.append(", ".join(changed) if changed else "-")
+        rows.append(f"| `{o.key}` | {o.label} | " + " | ".join(cells) + " |")
     return "\n".join(rows) + "\n"
 
 
@@ -482,7 +733,7 @@ def run_summary(system: System, segs: Any) -> dict[str, float]:
     flight = Flight(system, segs)
     out = {}
     for k, spec in OUTCOMES.items():
-        if spec.applies(system):
+        if spec.applies(flight.profile):
             v = flight.value(k)
             if math.isfinite(v):
                 out[k] = v

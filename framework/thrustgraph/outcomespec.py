@@ -22,6 +22,11 @@ Examples
 '98.067 m/s^2 (10 g0)'
 >>> spec.to_si("12 g0", where="--limit peak_acceleration")
 117.6798
+>>> mass = OutcomeSpec("launch_mass", "mass", "kg", "kg", "launch mass", "mass at launch")
+>>> mass.text(0.068), mass.text(25.0), mass.text(25000.0)
+('68 g', '25 kg', '25 t')
+>>> display_unit("m", 1929.8), display_unit("m", 0.004), display_unit("Pa", 5e5, "bar")
+('km', 'mm', 'bar')
 >>> spec.to_si("12 g", where="--limit peak_acceleration")
 Traceback (most recent call last):
 ...
@@ -38,10 +43,52 @@ from typing import Any, Callable, Mapping
 from .errors import ModelError
 from .units import Q_, to_si
 
-__all__ = ["OutcomeSpec", "always", "KEY_PATTERN"]
+__all__ = ["OutcomeSpec", "always", "KEY_PATTERN", "SCALES", "display_unit"]
 
 #: What an outcome key looks like: lower-case words joined by underscores.
 KEY_PATTERN = re.compile(r"^[a-z][a-z0-9_]*$")
+
+
+#: Units people read a quantity in, smallest first, each with its size in the SI unit the family is keyed by:
+#: :func:`display_unit` picks the one that suits a value's magnitude (g / kg / t, mm / m / km).
+SCALES: dict[str, tuple[tuple[str, float], ...]] = {
+    "kg": (("mg", 1e-6), ("g", 1e-3), ("kg", 1.0), ("t", 1e3)),
+    "m": (("mm", 1e-3), ("m", 1.0), ("km", 1e3)),
+    "s": (("µs", 1e-6), ("ms", 1e-3), ("s", 1.0)),
+    "N": (("mN", 1e-3), ("N", 1.0), ("kN", 1e3), ("MN", 1e6)),
+    "N*s": (("mN*s", 1e-3), ("N*s", 1.0), ("kN*s", 1e3), ("MN*s", 1e6)),
+    "W": (("mW", 1e-3), ("W", 1.0), ("kW", 1e3), ("MW", 1e6)),
+    "m^3/s": (("mL/s", 1e-6), ("L/s", 1e-3), ("m^3/s", 1.0)),
+    "kg/s": (("g/s", 1e-3), ("kg/s", 1.0), ("t/s", 1e3)),
+}
+
+
+def display_unit(unit: str, value: float, display: str | None = None) -> str:
+    """The unit to show an SI value in: the largest unit of its family (:data:`SCALES`) that keeps the number at
+    1 or more (the smallest for tinier values), when ``display`` (default: ``unit``) belongs to the family;
+    ``display`` itself otherwise (a pressure shown in bar stays in bar).
+
+    The one function every summary, report and plot label picks display units with.
+
+    >>> display_unit("kg", 0.77774), display_unit("kg", 25.0), display_unit("kg", 25000.0)
+    ('g', 'kg', 't')
+    >>> display_unit("s", 0.113), display_unit("s", 60.0), display_unit("s", 0.0)
+    ('ms', 's', 's')
+    >>> display_unit("m/s", 0.001)
+    'm/s'
+    """
+    display = unit if display is None else display
+    scale = SCALES.get(unit)
+    if not scale or display not in {u for u, _ in scale}:
+        return display
+    v = abs(float(value))
+    if not math.isfinite(v) or v == 0.0:
+        return display
+    best = scale[0][0]
+    for u, size in scale:
+        if v >= size * (1.0 - 1e-12):
+            best = u
+    return best
 
 
 def always(_: Any) -> bool:
@@ -67,7 +114,8 @@ class OutcomeSpec:
     compute : ``compute(flight) -> float`` from the integrated solution
         (:class:`thrustgraph.outcomes.Flight`); NaN where it did not happen.
         None for a component kind's outcome (its ``summarize`` computes it).
-    applies : ``applies(system) -> bool``: which vehicles and mounts have it
+    applies : ``applies(profile) -> bool``: which vehicles and mounts have it, asked of the
+        :class:`~thrustgraph.vehicle.VehicleProfile` of the model
         (a vehicle held on a stand has no apogee)
     also : further display units shown beside ``display`` (``g0``)
     show : ``show(values) -> bool``: whether people need to see it, given every
@@ -105,9 +153,14 @@ class OutcomeSpec:
             return float(value)
         return float(Q_(value, self.unit).to(unit).magnitude)
 
+    def unit_for(self, value: float) -> str:
+        """The unit an SI value is shown in: ``display``, scaled to the value's magnitude (:func:`display_unit`)."""
+        return display_unit(self.unit, value, self.display) if self.unit else self.display
+
     def text(self, value: float, digits: int = 5) -> str:
-        """A value as people read it: ``'1176.6 m/s^2 (119.98 g0)'``."""
-        main = f"{self.shown(value):.{digits}g}" + (f" {self.display}" if self.display else "")
+        """A value as people read it, in the unit that suits its magnitude: ``'1176.6 m/s^2 (119.98 g0)'``."""
+        unit = self.unit_for(value)
+        main = f"{self.shown(value, unit):.{digits}g}" + (f" {unit}" if unit else "")
         extra = ", ".join(f"{self.shown(value, u):.{digits}g} {u}" for u in self.also)
         return f"{main} ({extra})" if extra else main
 

@@ -118,11 +118,14 @@ _S = "thrustgraph.studyplots:"
 _O = "thrustgraph.overlayplots:"
 for _kind in (
     PlotKind("thrust", FLIGHT, _F + "thrust_figure",
-             "Thrust along the body axis and mass flow through each outlet."),
+             "Gross thrust along the body axis (and the net thrust where fluid enters: an inlet's ram drag, a "
+             "hose's inflow) and mass flow through each outlet."),
     PlotKind("mass", FLIGHT, _F + "mass_figure", "Vehicle mass and what each vessel or jet still holds."),
     PlotKind("pressure", FLIGHT, _F + "pressure_figure", "Absolute pressure in each vessel, with the ambient "
              "pressure. A prediction, never a rating.", needs="a vessel"),
-    PlotKind("motion", FLIGHT, _F + "motion_figure", "Altitude, speed and acceleration over the whole flight."),
+    PlotKind("motion", FLIGHT, _F + "motion_figure", "Altitude (height for a hover rig, distance for a track or "
+             "a platform free of gravity), speed and the acceleration along the path, signed, over the whole run.",
+             needs="a vehicle that moves"),
     PlotKind("trajectory", FLIGHT, _F + "trajectory_figure", "Altitude against horizontal distance from the launch "
              "point."),
     PlotKind("ledger", FLIGHT, _F + "ledger_figure", "Every term of the momentum balance along the body axis, "

@@ -123,11 +123,16 @@ def _limit(ax, result: FlightResult, t_max: float | None, t_min: float | None = 
                 t_max if t_max is not None else float(result.t[-1]))
 
 
+def _scaled(unit: str, values: np.ndarray) -> tuple[str, float]:
+    """The display unit of a curve in the units of choice in force (:func:`~thrustgraph.displayunits.axis_scale`;
+    under SI chosen by its largest magnitude, :func:`~thrustgraph.outcomespec.display_unit`), and the factor from SI
+    to it."""
+    f, shown = axis_scale(unit, values)       # the units of choice in force; under SI by magnitude
+    return shown, f
+
+
 def _mass_unit(result: FlightResult) -> tuple[str, float]:
-    if not current().is_si:
-        f, unit = axis_scale("kg", result.signals["mass"])
-        return unit, f
-    return ("g", 1e3) if float(np.max(result.signals["mass"])) < 2.0 else ("kg", 1.0)
+    return _scaled("kg", result.signals["mass"])
 
 
 def _scale(si: str, *values: Any, display: str | None = None) -> tuple[float, str]:
@@ -168,14 +173,21 @@ def thrust_figure(r: FlightResult) -> Figure:
     fig, ax = _new(2, 1, (8.0, 5.5), sharex=True)
     a, b = ax[0, 0], ax[1, 0]
     sources = [k[:-len(".thrust")] for k in r.signals if k.endswith(".thrust")]
-    kf, ku = _scale("N", r.signals["thrust"])
-    a.plot(r.t, r.signals["thrust"] * kf, color=MAIN, lw=1.8, label="thrust along the body axis", zorder=3)
+    gross, net = r.signals["thrust"], r.signals.get("net_thrust", r.signals["thrust"])
+    differs = bool(np.any(np.abs(net - gross) > 1e-9 * max(float(np.max(np.abs(gross))), 1e-30)))
+    unit, f = _scaled("N", np.concatenate([gross, net]))
+    a.plot(r.t, gross * f, color=MAIN, lw=1.8, zorder=3,
+           label="gross thrust along the body axis" if differs else "thrust along the body axis (net = gross)")
+    if differs:      # fluid enters (an inlet's ram drag, a hose's inflow): the net thrust is what moves the vehicle
+        a.plot(r.t, net * f, color="black", lw=1.6, ls="--", zorder=3,
+               label="net thrust (gross + momentum of the entering fluid)")
     if len(sources) > 1:
         for k, n in enumerate(sources):
-            a.plot(r.t, r.signals[f"{n}.thrust"] * kf, lw=1.0, color=_TERM_COLOURS[(k + 1) % 10], label=plain(n))
-    a.set_ylabel(f"thrust [{ku}]")
+            a.plot(r.t, r.signals[f"{n}.thrust"] * f, lw=1.0, color=_TERM_COLOURS[(k + 1) % 10], label=plain(n))
+    a.set_ylabel(f"thrust [{unit}]")
     a.legend(loc="upper right")
-    title = summary_title(r, ("peak_thrust", "total_impulse"))
+    title = "\n".join(t for t in (summary_title(r, ("peak_thrust", "peak_net_thrust")),
+                                   summary_title(r, ("total_impulse", "net_impulse"))) if t)
     if title:
         a.set_title(title)
     flows = [n for n in sources if f"{n}.mass_flow" in r.signals]
@@ -241,23 +253,55 @@ def pressure_figure(r: FlightResult) -> Figure | None:
     return fig
 
 
-def motion_figure(r: FlightResult) -> Figure:
-    fig, ax = _new(3, 1, (8.0, 7.5), sharex=True)
+#: What the motion plot shows for each class of vehicle (thrustgraph.vehicle): the first row's signal, its label
+#: and the outcomes in the title.
+_MOTION = {
+    "flying": ("altitude", "altitude", ("apogee", "max_speed", "peak_acceleration")),
+    "hovering": ("altitude", "height", ("mean_height", "height_oscillation", "max_height")),
+    "track": ("distance", "distance along the track", ("distance", "top_speed", "time_to_90_percent_speed")),
+    "weightless": ("distance", "distance from the start", ("range", "max_speed", "peak_acceleration")),
+}
+
+
+def motion_figure(r: FlightResult) -> Figure | None:
+    """Position, speed and the acceleration along the path (signed: negative while slowing), fitted to the
+    vehicle: altitude for a flying vehicle, height with the vertical speed and acceleration for a hover rig,
+    distance for a track or a platform free of gravity; none for a vehicle held on a stand."""
+    kind = r.vehicle.kind if r.vehicle is not None else "flying"
+    if kind not in _MOTION:
+        return None
+    first, what, keys = _MOTION[kind]
     s = r.signals
-    rows = []
-    for key, si, word in (("altitude", "m", "altitude"), ("speed", "m/s", "speed"),
-                          ("acceleration_magnitude", "m/s^2", "acceleration")):
-        f, unit = _scale(si, s[key])
-        rows.append((key, f, f"{word} [{unit.replace('^2', '²')}]"))
-    for (key, f, label), a in zip(rows, ax[:, 0]):
-        a.plot(r.t, s[key] * f, color=MAIN, lw=1.6, zorder=3)
+    pos = s["position"] - s["position"][0]
+    if first == "distance":
+        values = np.linalg.norm(pos, axis=1)
+        if kind == "track" and r.vehicle is not None:
+            u = s["axis"][0]
+            values = pos @ u                 # along the track (negative if it slides back)
+    else:
+        values = s["altitude"]
+    unit, f = _scaled("m", values)
+    fig, ax = _new(3, 1, (8.0, 7.5), sharex=True)
+    if kind == "hovering":      # it bobs up and down: vertical speed and acceleration, signed
+        speed, speed_word = s["velocity"][:, 2], "vertical speed"
+        accel, accel_word = s["acceleration"][:, 2], "vertical acceleration"
+    else:
+        speed, speed_word = s["speed"], "speed"
+        accel, accel_word = s.get("path_acceleration", s["acceleration_magnitude"]), "acceleration along the path"
+    su, sf = _scaled("m/s", speed)
+    au, af = _scaled("m/s^2", accel)
+    rows = [(values * f, f"{what} [{unit}]"), (speed * sf, f"{speed_word} [{su}]"),
+            (accel * af, f"{accel_word} [{au.replace('^2', '²')}]")]
+    for (curve, label), a in zip(rows, ax[:, 0]):
+        a.plot(r.t, curve, color=MAIN, lw=1.6, zorder=3)
         a.set_ylabel(label)
         _phases(a, r)
         _limit(a, r, None)
-    ax[0, 0].set_title(summary_title(r, ("apogee", "max_speed", "peak_acceleration")))
+    ax[2, 0].axhline(0.0, color="black", lw=0.6, zorder=2)
+    ax[0, 0].set_title(summary_title(r, keys))
     ax[2, 0].set_xlabel("time [s]")
     _phases(ax[2, 0], r, label=True)
-    _title(fig, r, "Altitude, speed, acceleration")
+    _title(fig, r, f"{what[0].upper()}{what[1:]}, speed, acceleration")
     return fig
 
 

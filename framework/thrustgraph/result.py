@@ -41,11 +41,12 @@ TEXT_UNIT = "text"
 #: With :data:`STANDARD_KEY_UNITS` and the ``signal_units`` a component kind declares, the one place a signal's
 #: unit comes from (:func:`signal_unit`): result headers, exports, plots, triggers and comparisons read it there.
 SIGNAL_UNITS = {
-    "time": "s", "mass": "kg", "thrust": "N", "thrust_vector": "N", "acceleration": "m/s^2",
-    "acceleration_magnitude": "m/s^2", "velocity": "m/s", "speed": "m/s", "airspeed": "m/s", "position": "m",
-    "altitude": "m", "range": "m", "mass_flow": "kg/s", "weight": "N", "reaction": "N", "inertia": "N",
-    "ambient_pressure": "Pa", "ambient_density": "kg/m^3", "ambient_temperature": "K", "wind": "m/s",
-    "gravity": "m/s^2", "axis": "", "flight_path_angle": "rad", "vertical_speed": "m/s", "distance": "m",
+    "time": "s", "mass": "kg", "thrust": "N", "thrust_vector": "N", "net_thrust": "N", "net_thrust_vector": "N",
+    "acceleration": "m/s^2", "acceleration_magnitude": "m/s^2", "path_acceleration": "m/s^2", "velocity": "m/s",
+    "speed": "m/s", "airspeed": "m/s", "position": "m", "altitude": "m", "range": "m", "mass_flow": "kg/s",
+    "weight": "N", "reaction": "N", "inertia": "N", "ambient_pressure": "Pa", "ambient_density": "kg/m^3",
+    "ambient_temperature": "K", "wind": "m/s", "gravity": "m/s^2", "axis": "", "flight_path_angle": "rad",
+    "vertical_speed": "m/s", "distance": "m",
 }
 #: SI unit of the standard keys of a component's signals (``COMPONENT.KEY``): what the balance records for every
 #: line, vessel and body (``mass_flow``, ``drive``, a body's force), and the keys devices share by convention
@@ -149,6 +150,12 @@ class FlightResult:
     dropped : stage name -> the flight of a stage dropped at a separation, flown on as its own vehicle
     units : SI units of the signals and summary entries that component kinds declare
     outcome_specs : summary key -> its :class:`~thrustgraph.outcomespec.OutcomeSpec` (label, units, meaning)
+    vehicle : the :class:`~thrustgraph.vehicle.VehicleProfile` of what flew (which outcomes and plots fit it)
+
+    Thrust signals: ``thrust`` (and ``thrust_vector``) is the gross thrust, the momentum flux and pressure thrust
+    of every opening; ``net_thrust`` (``net_thrust_vector``) adds the momentum of the fluid entering through
+    sources (an inlet's ram drag, a hose's inflow): the force the flow puts on the vehicle. Both along the body
+    axis. ``path_acceleration`` is the acceleration along the path, signed (negative while slowing down).
     """
 
     t: np.ndarray
@@ -169,6 +176,7 @@ class FlightResult:
     dropped: dict[str, "FlightResult"] = field(default_factory=dict)
     units: dict[str, str] = field(default_factory=dict)
     outcome_specs: dict[str, Any] = field(default_factory=dict)
+    vehicle: Any = None
 
     # -- access ------------------------------------------------------------
     @staticmethod
@@ -283,6 +291,7 @@ class FlightResult:
             "audit": {"mass_residual_kg": self.audit.mass_residual, "mass_relative": self.audit.mass_relative,
                       "momentum_residual_kg_m_s": list(self.audit.momentum_residual),
                       "momentum_relative": self.audit.momentum_relative},
+            "vehicle": self.vehicle.kind if self.vehicle is not None else None,
             "success": self.success, "message": self.message, "cautions": self.cautions,
             "provenance": self.provenance,
         }

@@ -59,9 +59,10 @@ import numpy as np
 
 from thrustgraph.component import ComponentKind, EventSpec, FlowFns, Mode
 from thrustgraph.errors import ModelError
+from thrustgraph.outcomespec import OutcomeSpec
 from thrustgraph.parameters import Choice, Number, Quantity, Table
 
-__all__ = ["Pump", "STANDARD_GRAVITY", "PUMP_CAUTIONS"]
+__all__ = ["Pump", "STANDARD_GRAVITY", "PUMP_CAUTIONS", "OPERATING_POINT"]
 
 PUMP_CAUTIONS = [
     "A running pump and its inlet can trap hands, hair, clothing and swimmers, and its jet can injure: guard "
@@ -71,6 +72,22 @@ PUMP_CAUTIONS = [
 
 #: Exact by definition (3rd CGPM, 1901); pump head is quoted with it.
 STANDARD_GRAVITY = 9.80665
+
+#: The pump's operating point, an outcome of every run (docs/fluid-devices.md).
+OPERATING_POINT = (
+    OutcomeSpec("volume_flow", "volume flow", "m^3/s", "L/s", "operating volume flow",
+                "volume flow Q = mdot / rho at the operating point (the last output sample while it runs)"),
+    OutcomeSpec("head", "length", "m", "m", "operating head",
+                "head H = dp / (rho g0) at the operating point (g0 = 9.80665 m/s^2, the head's convention)"),
+    OutcomeSpec("hydraulic_power", "power", "W", "W", "hydraulic power",
+                "power given to the liquid, Q dp, at the operating point"),
+    OutcomeSpec("shaft_power", "power", "W", "W", "shaft power", "the shaft power it runs at (programme = power)"),
+    OutcomeSpec("efficiency", "efficiency", "", "", "efficiency at the operating point",
+                "hydraulic over shaft power at the operating point (the given efficiency above the shut-off "
+                "flow, less below it; programme = power)"),
+    OutcomeSpec("operating_time", "time", "s", "s", "operating point time",
+                "time of the output sample the operating point is read at"),
+)
 
 
 class Pump(ComponentKind):
@@ -93,10 +110,34 @@ class Pump(ComponentKind):
         Quantity("run_time", "s", default="0 s", low=0.0, high=1e6, doc="stop the pump after this time; 0 s: never"),
     )
     modes = (Mode("running", "pump thrust"), Mode("stopped", "pump stopped", propulsive=False))
+    signal_units = {"density": "kg/m^3"}
+    outcomes = OPERATING_POINT
 
     @classmethod
     def cautions(cls, p):
         return list(PUMP_CAUTIONS)
+
+    @classmethod
+    def summarize(cls, name, p, result):
+        """The operating point: the last output sample while the pump runs (just before it stops, or at the end
+        of the run): for a boat that had time to reach its top speed, the steady operating point."""
+        mdot = result.signals.get(f"{name}.mass_flow")
+        rise = result.signals.get(f"{name}.pressure_rise")
+        rho = result.signals.get(f"{name}.density")
+        if mdot is None or rise is None or rho is None:
+            return {}
+        running = result.t < p.run_time if p.run_time > 0.0 else np.ones(len(result.t), dtype=bool)
+        running &= np.isfinite(mdot) & np.isfinite(rise) & np.isfinite(rho)
+        if not running.any():
+            return {}
+        k = int(np.nonzero(running)[0][-1])
+        q, dp = float(mdot[k] / rho[k]), float(rise[k])
+        out = {"volume_flow": q, "head": dp / (float(rho[k]) * STANDARD_GRAVITY), "hydraulic_power": q * dp}
+        if p.programme == "power":
+            out["shaft_power"] = p.shaft_power
+            out["efficiency"] = q * dp / p.shaft_power
+        out["operating_time"] = float(result.t[k])
+        return out
 
     @classmethod
     def check(cls, p, where):
@@ -159,4 +200,8 @@ class Pump(ComponentKind):
             tr = ops.where(p.run_time > 0.0, p.run_time, math.inf)
             events = (EventSpec("pump stopped", lambda t, s, drive: t - tr, 1.0, ("running",), "stopped",
                                 needs_drive=False),)
-        return FlowFns(rise=rise, events=events)
+        def signals(up, p_down, mode=0):
+            # the density of the liquid it pumps: with the mass flow and the pressure rise, the operating point
+            return {"density": up[2]}
+
+        return FlowFns(rise=rise, events=events, signals=signals)

@@ -77,7 +77,9 @@ from __future__ import annotations
 
 import math
 
-from thrustgraph.component import ComponentKind, FlowFns
+import numpy as np
+
+from thrustgraph.component import ComponentKind, FlowFns, LoggedSignal
 from thrustgraph.errors import ModelError
 from thrustgraph.parameters import Number, Quantity, Vector
 
@@ -111,6 +113,30 @@ class ConvergingDivergingNozzle(ComponentKind):
                doc="flag separation when the full-flowing exit pressure is below this fraction of ambient"),
         Vector("direction", default=(-1.0, 0.0, 0.0), doc="body-frame direction the jet leaves in"),
     )
+
+    # the regime and the separation flag change as the tank blows down: each change is an entry of the event log
+    logged = (
+        LoggedSignal("regime", "nozzle regime", {0.0: "no flow", 1.0: "subsonic", 2.0: "normal shock inside",
+                                                 3.0: "overexpanded", 4.0: "underexpanded or matched"}),
+        LoggedSignal("separation", "flow separation", {0.0: "separation criterion no longer met",
+                                                       1.0: "separation criterion met"}, (1.0,)),
+    )
+
+    @classmethod
+    def flight_cautions(cls, name, p, result):
+        sep = result.signals.get(f"{name}.separation")
+        if sep is None or not np.any(sep >= 1.0):
+            return []
+        # when the event log located it (thrustgraph.signallog), else the first output sample that shows it
+        t = next((e.t for e in result.events if e.component == name and e.name == "flow separation"
+                  and e.detail.endswith("separation criterion met")), float(result.t[int(np.argmax(sep >= 1.0))]))
+        return [f"components.{name}: from t = {t:.4g} s the nozzle meets the flow-separation criterion: its "
+                f"full-flowing exit pressure is below {p.separation_pressure_ratio:g} of the ambient pressure "
+                "(Summerfield criterion p_e < ~0.4 p_a: Summerfield, Foster & Swan, Jet Propulsion 24, 1954; "
+                "Sutton & Biblarz, Rocket Propulsion Elements, ch. 3; the ratio is from memory, common practice). "
+                "The flow may separate from the wall there: the thrust printed is uncertain, and separation can "
+                "put unsteady side loads on the nozzle and its mounting. Use a smaller area ratio for this back "
+                "pressure, or treat those thrust values as rough, and keep clear of the exhaust."]
 
     @classmethod
     def check(cls, p, where):

@@ -88,6 +88,7 @@ from thrustgraph.parameters import Choice, Number, Quantity
 
 from tg_vessels import PRESSURE_CAUTIONS
 
+from .cold import COLD_OUTCOMES, cold_cautions, cold_summary
 from .fluids import FluidName, expansion_exponent, new_state, require_coolprop, resolve_fluid, wall_heat_specs
 from .gases import IDEAL_GASES, UNIVERSAL_GAS_CONSTANT, lookup_gas
 
@@ -162,9 +163,19 @@ class GasTank(ComponentKind):
                 raise ModelError(f"{where}.wall_area", "wall heat transfer needs the wall area",
                                  "give the tank's inner wall area, e.g. wall_area = \"0.06 m^2\"")
 
+    outcomes = COLD_OUTCOMES
+
     @classmethod
     def cautions(cls, p):
         return list(PRESSURE_CAUTIONS) + list(GAS_CYLINDER_CAUTIONS)
+
+    @classmethod
+    def summarize(cls, name, p, result):
+        return cold_summary(name, p, result)
+
+    @classmethod
+    def flight_cautions(cls, name, p, result):
+        return cold_cautions(name, p, result, "gas")
 
     # --- initial state ----------------------------------------------------------
     @classmethod

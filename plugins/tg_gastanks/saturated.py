@@ -74,6 +74,7 @@ from thrustgraph.parameters import Choice, Quantity
 
 from tg_vessels import PRESSURE_CAUTIONS
 
+from .cold import COLD_OUTCOMES, cold_cautions, cold_summary
 from .fluids import FluidName, expansion_exponent, new_state, require_coolprop, resolve_fluid, wall_heat_specs
 
 __all__ = ["SelfPressurisingTank", "CARTRIDGE_CAUTIONS"]
@@ -139,9 +140,19 @@ class SelfPressurisingTank(ComponentKind):
             raise ModelError(f"{where}.wall_area", "wall heat transfer needs the wall area",
                              "give the tank's inner wall area, e.g. wall_area = \"30 cm^2\"")
 
+    outcomes = COLD_OUTCOMES
+
     @classmethod
     def cautions(cls, p):
         return list(PRESSURE_CAUTIONS) + list(CARTRIDGE_CAUTIONS)
+
+    @classmethod
+    def summarize(cls, name, p, result):
+        return cold_summary(name, p, result)
+
+    @classmethod
+    def flight_cautions(cls, name, p, result):
+        return cold_cautions(name, p, result, "contents")
 
     @classmethod
     def initial_state(cls, p, amb):

@@ -7,6 +7,11 @@ the effective area Cd A.
 
 Arrangement
 -----------
+The default is ``symmetric``: an opening vents without pushing unless the
+model says which way it points. A one-sided opening points aft by default
+(its push is thrust along the axis); pointed sideways, its push is a side
+force, which the run's summary shows as ``peak side force``.
+
 ``one-sided``
     one jet along ``direction``: thrust ``mdot v_e + (p_e - p_a) Cd A``
     against it, as any nozzle.
@@ -59,9 +64,13 @@ _COMMON = (
     # A sharp-edged hole passes about 0.61-0.62 of its area (common practice, no source).
     Number("discharge_coefficient", default=0.62, low=0.0, low_open=True, high=1.0,
            doc="ratio of effective to geometric flow area"),
-    Choice("arrangement", options=("one-sided", "symmetric"), default="one-sided",
-           doc="one-sided: one jet along direction; symmetric: opposed ports whose jets cancel"),
-    Vector("direction", default=(0.0, 1.0, 0.0), doc="body-frame direction the jet leaves in (one-sided)"),
+    # The default vents without pushing (ports whose jets cancel): a vent or relief valve that pushes says which
+    # way it points. A one-sided opening without a direction points aft, so its push shows as thrust along the
+    # axis; pointed sideways, the summary shows it as a side force.
+    Choice("arrangement", options=("one-sided", "symmetric"), default="symmetric",
+           doc="symmetric: opposed ports whose jets cancel (the default); one-sided: one jet along direction"),
+    Vector("direction", default=(-1.0, 0.0, 0.0),
+           doc="body-frame direction the jet leaves in (one-sided; default aft, pushing along the axis)"),
 )
 
 

@@ -9,6 +9,7 @@
 from __future__ import annotations
 
 import argparse
+import sys
 import tomllib
 from typing import Any
 
@@ -17,8 +18,8 @@ from ..errors import ModelError
 from ..model import Model
 from ..modelfile import bundled_models, default_model_path, load_model
 
-__all__ = ["add_model_argument", "add_set_option", "parse_override", "load_with_overrides", "add_units_option",
-           "units_choice"]
+__all__ = ["add_model_argument", "add_set_option", "add_out_dir_option", "parse_override", "load_with_overrides",
+           "add_units_option", "units_choice"]
 
 
 def add_model_argument(p: argparse.ArgumentParser) -> None:
@@ -48,6 +49,29 @@ def units_choice(args: argparse.Namespace, parsed: Any = None) -> UnitChoice:
         return parse_units(args.units, where="--units")
     run = getattr(parsed, "run", None)
     return getattr(run, "units", None) or parse_units(None)
+
+
+class _Deprecated(argparse.Action):
+    """An old spelling of an option: stores into the new one's destination and says so on standard error."""
+
+    def __init__(self, *args: Any, new: str = "", **kw: Any) -> None:
+        self.new = new
+        super().__init__(*args, **kw)
+
+    def __call__(self, parser: argparse.ArgumentParser, namespace: argparse.Namespace, values: Any,
+                 option_string: str | None = None) -> None:
+        print(f"{parser.prog}: {option_string} is deprecated and will be removed in the next release: use "
+              f"{self.new} instead", file=sys.stderr)
+        setattr(namespace, self.dest, values)
+
+
+def add_out_dir_option(p: argparse.ArgumentParser, help: str, *, old: str | None = None) -> None:
+    """``--out-dir DIR``: the one name of the option that sets the directory a command writes its files into
+    (``plot``, ``export``). ``old`` is a former spelling still accepted for one release, with a note."""
+    p.add_argument("--out-dir", dest="out_dir", metavar="DIR", help=help)
+    if old:
+        p.add_argument(old, dest="out_dir", metavar="DIR", action=_Deprecated, new="--out-dir",
+                       help=f"deprecated spelling of --out-dir (removed in the next release)")
 
 
 def parse_override(text: str) -> tuple[str, Any]:

@@ -18,7 +18,7 @@ from . import SUMMARIES
 from ..displayunits import using
 from ..errors import ThrustgraphError
 from ..exportformats import EXPORTS
-from .common import add_model_argument, add_set_option, add_units_option, units_choice
+from .common import add_model_argument, add_out_dir_option, add_set_option, add_units_option, units_choice
 from .outputs import (add_export_options, add_quiet_option, check_paths, default_stem, export_targets, fly_model,
                       load_checked, write_outputs)
 
@@ -30,9 +30,8 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     add_model_argument(p)
     add_set_option(p)
     add_export_options(p)
-    p.add_argument("--out-dir", metavar="DIR",
-                   help=f"write STEM{', STEM'.join(f.suffix for f in EXPORTS.values())} into DIR (a format whose "
-                        "package is not installed is left out), STEM being the model file's name")
+    add_out_dir_option(p, f"write STEM{', STEM'.join(f.suffix for f in EXPORTS.values())} into DIR (a format "
+                          "whose package is not installed is left out), STEM being the model file's name")
     add_units_option(p)
     add_quiet_option(p)
 

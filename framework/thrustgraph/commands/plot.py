@@ -12,7 +12,7 @@ from pathlib import Path
 from . import SUMMARIES
 from ..plotkinds import FLIGHT, IMAGE_FORMATS, names
 from ..displayunits import using
-from .common import add_model_argument, add_set_option, add_units_option, units_choice
+from .common import add_model_argument, add_out_dir_option, add_set_option, add_units_option, units_choice
 from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
 
 NAME = "plot"
@@ -22,7 +22,7 @@ HELP = SUMMARIES[NAME]
 def add_arguments(p: argparse.ArgumentParser) -> None:
     add_model_argument(p)
     add_set_option(p)
-    p.add_argument("--out", metavar="DIR", help="directory for the images (default: STEM-plots)")
+    add_out_dir_option(p, "directory for the images (default: STEM-plots)", old="--out")
     p.add_argument("--format", choices=IMAGE_FORMATS + ("both",), default="png",
                    help=f"image format: {', '.join(IMAGE_FORMATS)} or both (default png)")
     p.add_argument("--only", action="append", choices=names(FLIGHT), metavar="PLOT",
@@ -35,7 +35,7 @@ def main(args: argparse.Namespace) -> int:
     need_matplotlib()
     model, parsed = load_checked(args.model, args.overrides)
     choice = units_choice(args, parsed)
-    out = Path(args.out) if args.out else Path(f"{default_stem(model)}-plots")
+    out = Path(args.out_dir) if args.out_dir else Path(f"{default_stem(model)}-plots")
     check_paths(directories=[out])   # before flying
     result = fly_model(parsed, quiet=args.quiet)
     from ..plots import figures, render

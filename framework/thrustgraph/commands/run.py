@@ -29,7 +29,8 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 
 
 def summary_lines(r: FlightResult, keys: Sequence[str] | None = None) -> list[str]:
-    """One line per summary entry people need to see: label, value in its display unit (and in ``also`` units).
+    """One line per summary entry people need to see: label, value in its display unit scaled to its magnitude
+    (:meth:`~thrustgraph.outcomespec.OutcomeSpec.unit_for`; and in ``also`` units).
 
     Labels and units come from the outcome registry (``r.outcome_specs``); an
     entry whose ``show`` predicate says it adds nothing (a downrange equal to
