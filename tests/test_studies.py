@@ -8,6 +8,9 @@ range equation; equation numbers from memory). R is largest at theta = 45 degree
 
 from __future__ import annotations
 
+import csv
+import dataclasses
+import io
 import math
 import os
 import pty
@@ -249,6 +252,22 @@ def test_dispersion_samples_outside_bounds_are_screened(bottle):
     assert all("outside its bounds" in d.table.notes[i] for i in np.flatnonzero(bad))
     assert d.stats["apogee"]["count"] == int(np.sum(d.table.ok))
 
+
+
+def test_the_table_is_csv_that_gives_back_every_note_whole(bottle):
+    # a note with commas, quotes and a line break (a screened design's reason quotes the user's input) reads back
+    # whole with any CSV reader: the table is written by csv.writer (the hand quoting before turned " into ')
+    d = disperse(bottle, ["components.bottle.fill=normal(mean=0.1, sd=0.2)"], samples=12, seed=1, engine="serial",
+                 flights="single", quiet=True)
+    odd = 'the value "5 bar, gauge" is\noutside, "quoted"'
+    table = dataclasses.replace(d.table, notes=[odd if note else note for note in d.table.notes])
+    assert any(table.notes) and not all(table.notes)
+    body = "".join(line for line in table.to_csv().splitlines(True) if not line.startswith("#"))
+    head, *rows = list(csv.reader(io.StringIO(body)))
+    assert head[:2] == ["design", "status"] and head[-1] == "note"
+    assert [len(r) for r in rows] == [len(head)] * len(table)
+    assert [r[-1] for r in rows] == table.notes
+    assert [r[1] for r in rows] == [str(s) for s in table.status]
 
 # --- reproducibility across engines --------------------------------------------------------------------------
 

@@ -19,7 +19,6 @@ True
 
 from __future__ import annotations
 
-import importlib
 import sys
 import types
 from typing import TYPE_CHECKING, Any
@@ -41,27 +40,31 @@ __all__ = [
     "default_model_path", "System", "assemble", "integrate", "fly", "FlightResult",
 ]
 
-#: The module that defines each public name (``__version__`` is imported above).
-_HOME = {
-    "hookimpl": "hookspecs", "hookspec": "hookspecs",
-    "ThrustgraphError": "errors", "ModelError": "errors", "PluginError": "errors", "IntegrationError": "errors",
-    "Model": "model", "ParsedModel": "model", "parse_model": "model",
-    "default_model_path": "modelfile", "load_model": "modelfile", "loads_model": "modelfile",
-    "save_model": "modelfile", "dumps_model": "modelfile",
-    "System": "assembly", "assemble": "assembly",
-    "fly": "integrate", "integrate": "integrate",
-    "FlightResult": "result",
-}
+#: The names loaded on first use.
+_LAZY = frozenset(__all__) - {"__version__"}
 
 
 def __getattr__(name: str) -> Any:
-    """Import a public name's module on first use and keep the name (PEP 562)."""
-    home = _HOME.get(name)
-    if home is None:
+    """Import a public name's module on first use and keep its public names here (PEP 562)."""
+    if name == "hookimpl" or name == "hookspec":
+        from .hookspecs import hookimpl, hookspec
+    elif name in ("ThrustgraphError", "ModelError", "PluginError", "IntegrationError"):
+        from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError
+    elif name in ("Model", "ParsedModel", "parse_model"):
+        from .model import Model, ParsedModel, parse_model
+    elif name in ("default_model_path", "load_model", "loads_model", "save_model", "dumps_model"):
+        from .modelfile import default_model_path, load_model, loads_model, save_model, dumps_model
+    elif name in ("System", "assemble"):
+        from .assembly import System, assemble
+    elif name in ("fly", "integrate"):
+        from .integrate import fly, integrate
+    elif name == "FlightResult":
+        from .result import FlightResult
+    else:
         raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    value = getattr(importlib.import_module(f"{__name__}.{home}"), name)
-    globals()[name] = value
-    return value
+    found = {k: v for k, v in locals().items() if k in _LAZY}
+    globals().update(found)
+    return found[name]
 
 
 def __dir__() -> list[str]:
@@ -77,7 +80,7 @@ class _Package(types.ModuleType):
     """
 
     def __setattr__(self, name: str, value: Any) -> None:
-        if name in _HOME and isinstance(value, types.ModuleType):
+        if name in _LAZY and isinstance(value, types.ModuleType):
             return
         super().__setattr__(name, value)
 

@@ -43,12 +43,15 @@ import datetime as _dt
 import difflib
 import json
 import math
+import sys
 from dataclasses import dataclass, field, replace
 from typing import Any, Callable, Sequence, TextIO
 
 import numpy as np
+from scipy.optimize import least_squares
+from scipy.stats import t as student_t
 
-from .progress import Progress
+from .progress import is_terminal, line
 from .errors import IntegrationError, ModelError
 from .model import LAUNCH_SPECS, Model, parse_model
 from .outputfiles import atomic_write
@@ -240,10 +243,11 @@ class FittedValue:
         return _text_delta(dx, self.si_unit, self.unit)
 
 
-class ProgressLine(Progress):
+class ProgressLine:
     """A one-line progress display on stderr, rewritten in place; silent unless stderr is a terminal.
 
     Calibration has no known total, so it shows counts and the residual; the last line stays on screen.
+    The drawing is tqdm's, as for every indicator (:mod:`thrustgraph.progress`).
 
     >>> import io
     >>> p = ProgressLine(io.StringIO())   # not a terminal: prints nothing
@@ -252,17 +256,26 @@ class ProgressLine(Progress):
     """
 
     def __init__(self, stream: TextIO | None = None, *, enabled: bool | None = None) -> None:
-        super().__init__("calibrating", stream=stream, enabled=enabled)
+        self.stream = stream if stream is not None else sys.stderr
+        self.enabled = is_terminal(self.stream) if enabled is None else enabled
+        self.now: dict[str, Any] = {}
+        self.bar: Any = None
 
-    def __call__(self, evaluations: int, runs: int, cost: float) -> None:  # type: ignore[override]
-        if self.enabled:
-            self._write(f"calibrating: evaluation {evaluations}, {runs} model runs, residual {cost:.6g}")
+    def __call__(self, evaluations: int, runs: int, cost: float) -> None:
+        if not self.enabled:
+            return
+        self.now = {"evaluations": evaluations, "runs": runs, "cost": cost}
+        if self.bar is None:   # drawn at once, as every evaluation after it
+            self.bar = line(self.stream, lambda d: self.now, total=None, leave=True, mininterval=0.0,
+                            bar_format="calibrating: evaluation {evaluations}, {runs} model runs, residual {cost:.6g}")
+        else:
+            self.bar.refresh()
 
     def close(self) -> None:
-        if self.enabled and self._shown:
-            self.stream.write("\n")
-            self.stream.flush()
-            self._shown = 0
+        """End the line (it stays on screen)."""
+        if self.bar is not None:
+            self.bar.close()
+            self.bar = None
 
 
 @dataclass(frozen=True)
@@ -635,10 +648,41 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
         A parameter that does not exist, has no bounds or starts outside them;
         a fit that does not converge; parameters the records cannot determine.
     """
-    from scipy.optimize import least_squares
-    from scipy.stats import t as student_t
+    _check_arguments(runs, parameters, scale, max_iterations, confidence)
+    params = _fit_parameters(model, runs, parameters, start_time_bound)
+    line = ProgressLine() if progress is True else None
+    prob = _Problem(model, runs, params, line if line is not None else (progress or None))
+    z0 = np.array([(p.initial - p.low) / (p.high - p.low) for p in params])
+    try:
+        rms0, sol = _fit(prob, z0, scale, diff_step, tolerance, max_iterations)
+    finally:
+        if line is not None:
+            line.close()
+    z = np.asarray(sol.x, dtype=float)
+    r, rms1 = prob.evaluate(z, count=False)
+    m, p = r.size, len(params)
+    dof = m - p
+    if dof <= 0:
+        raise ModelError("calibration", f"{m} samples cannot determine {p} parameters", "give longer records")
+    J = prob.jacobian(z, diff_step)
+    cov, corr = _covariance(J, float(r @ r) / dof, params)
+    prob.evaluate(z, count=False)          # the matched signals at the solution, for the time-offset test
+    time_offsets = time_offset_score(r, J, prob.slope_columns(), dof, [run.record.source for run in prob.runs],
+                                     set(prob.shift_at))
+    x = prob.x_of(z)
+    before = dict(rms0)
+    return Calibration(model=model.copy(), values=_fitted_values(params, runs, z, x, cov, confidence, dof),
+                       covariance=cov, correlation=corr,
+                       confidence=confidence, s=math.sqrt(float(r @ r) / dof), n_residuals=m, dof=dof,
+                       signal_rms={key: (before[key], after) for key, after in rms1},
+                       runs=_aligned_runs(prob, x), evaluations=prob.evaluations, model_runs=prob.model_runs,
+                       message=str(sol.message),
+                       date=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+                       tool=f"thrustgraph {__version__}", time_offsets=time_offsets)
 
 
+def _check_arguments(runs: Sequence[MeasuredRun], parameters: Sequence[FitParameter], scale: str,
+                     max_iterations: int, confidence: float) -> None:
     if not parameters:
         raise ModelError("calibration", "no parameter to fit", "name one, e.g. "
                          "--fit components.neck.discharge_coefficient=0.5..1.0")
@@ -655,8 +699,11 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
                          "allow the solver some evaluations, e.g. --max-iterations 60 (the default)")
     if not (isinstance(confidence, (int, float)) and 0.0 < confidence < 1.0):
         raise ModelError("--confidence", f"must be a level between 0 and 1, got {confidence!r}", "use e.g. 0.95")
-    if not 0.0 < confidence < 1.0:
-        raise ModelError("calibration", f"confidence {confidence!r} is not between 0 and 1", "use e.g. 0.95")
+
+
+def _fit_parameters(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[FitParameter],
+                    start_time_bound: Any) -> list[_Param]:
+    """The parameters to fit, resolved against the model, and a start-time correction per record when asked."""
     parsed = parse_model(model)
     params = [_resolve(model, fp, parsed) for fp in parameters]
     if start_time_bound is not None:
@@ -666,10 +713,13 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
         for k, run in enumerate(runs):
             params.append(_Param(path=f"start time of {run.record.source}", spec=Quantity("start_time", "ms"),
                                  si="s", display="ms", low=-bound, high=bound, initial=0.0, shift_of=k))
-    line = ProgressLine() if progress is True else None
-    prob = _Problem(model, runs, params, line if line is not None else (progress or None))
-    z0 = np.array([(p.initial - p.low) / (p.high - p.low) for p in params])
+    return params
 
+
+def _fit(prob: _Problem, z0: np.ndarray, scale: str, diff_step: float, tolerance: float, max_iterations: int
+         ) -> tuple[list, Any]:
+    """The residual RMS per signal at the start, and the solution of the fit (refitted with each signal scaled
+    by its own spread for ``scale="noise"``)."""
     def solve(start: np.ndarray):
         sol = least_squares(lambda z: prob.evaluate(z)[0], start, jac="2-point", bounds=(0.0, 1.0), method="trf",
                             diff_step=diff_step, x_scale=1.0, ftol=tolerance, xtol=tolerance, gtol=tolerance,
@@ -681,35 +731,25 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
                              "parameters or allow more evaluations (--max-iterations)")
         return sol
 
-    try:
-        r0, rms0 = prob.evaluate(z0)
-        # Refuse at once a parameter the records cannot determine (checked again at the optimum).
-        _covariance(prob.jacobian(z0, diff_step), max(float(r0 @ r0), 1e-300) / max(r0.size - len(params), 1),
-                    params)
-        sol = solve(z0)
-        if scale == "noise":
-            _, rms_fit = prob.evaluate(sol.x, count=False)
-            spreads = iter([v for _, v in rms_fit])
-            prob.scales = [[(next(spreads) or sc) for sc in row] for row in prob.scales]
-            prob._cache = None
-            sol = solve(sol.x)
-    finally:
-        if line is not None:
-            line.close()
-    z = np.asarray(sol.x, dtype=float)
-    r, rms1 = prob.evaluate(z, count=False)
-    m, p = r.size, len(params)
-    dof = m - p
-    if dof <= 0:
-        raise ModelError("calibration", f"{m} samples cannot determine {p} parameters", "give longer records")
-    J = prob.jacobian(z, diff_step)
-    cov, corr = _covariance(J, float(r @ r) / dof, params)
-    prob.evaluate(z, count=False)          # the matched signals at the solution, for the time-offset test
-    time_offsets = time_offset_score(r, J, prob.slope_columns(), dof, [run.record.source for run in prob.runs],
-                                     set(prob.shift_at))
+    r0, rms0 = prob.evaluate(z0)
+    # Refuse at once a parameter the records cannot determine (checked again at the optimum).
+    _covariance(prob.jacobian(z0, diff_step), max(float(r0 @ r0), 1e-300) / max(r0.size - len(prob.params), 1),
+                prob.params)
+    sol = solve(z0)
+    if scale == "noise":
+        _, rms_fit = prob.evaluate(sol.x, count=False)
+        spreads = iter([v for _, v in rms_fit])
+        prob.scales = [[(next(spreads) or sc) for sc in row] for row in prob.scales]
+        prob._cache = None
+        sol = solve(sol.x)
+    return rms0, sol
+
+
+def _fitted_values(params: Sequence[_Param], runs: Sequence[MeasuredRun], z: np.ndarray, x: np.ndarray,
+                   cov: np.ndarray, confidence: float, dof: int) -> tuple[FittedValue, ...]:
+    """Each fitted value with its standard error and Student-t interval."""
     se = np.sqrt(np.diag(cov))
     tq = float(student_t.ppf(0.5 * (1.0 + confidence), dof))
-    x = prob.x_of(z)
     values = []
     for k, q in enumerate(params):
         at_bound = bool(z[k] <= 1e-4 or z[k] >= 1.0 - 1e-4)
@@ -718,9 +758,11 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
                                   interval=(float(x[k] - tq * se[k]), float(x[k] + tq * se[k])), low=q.low,
                                   high=q.high, at_bound=at_bound, raw=q.raw(float(x[k])),
                                   start_time_of=None if q.shift_of is None else runs[q.shift_of].record.source))
-    before = dict(rms0)
-    signal_rms = {key: (before[key], after) for key, after in rms1}
+    return tuple(values)
 
+
+def _aligned_runs(prob: _Problem, x: np.ndarray) -> tuple[MeasuredRun, ...]:
+    """The records as fitted: each window, and each start time corrected where it was fitted."""
     fixed = []
     for k, (run, w) in enumerate(zip(prob.runs, prob.windows)):
         rec = run.record
@@ -729,14 +771,7 @@ def calibrate(model: Model, runs: Sequence[MeasuredRun], parameters: Sequence[Fi
             rec = shift(rec, -dlt, f"start time corrected by calibration: {dlt * 1e3:+.4g} ms")
         fixed.append(MeasuredRun(record=rec, mapping=tuple(run.mapping), settings=dict(run.settings),
                                  start=w[0], end=w[1]))
-    runs_fixed = tuple(fixed)
-    return Calibration(model=model.copy(), values=tuple(values), covariance=cov, correlation=corr,
-                       confidence=confidence, s=math.sqrt(float(r @ r) / dof), n_residuals=m, dof=dof,
-                       signal_rms=signal_rms,
-                       runs=runs_fixed, evaluations=prob.evaluations, model_runs=prob.model_runs,
-                       message=str(sol.message),
-                       date=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
-                       tool=f"thrustgraph {__version__}", time_offsets=time_offsets)
+    return tuple(fixed)
 
 
 def time_offset_score(r: np.ndarray, J: np.ndarray, G: np.ndarray, dof: int, sources: Sequence[str],

@@ -131,68 +131,101 @@ def _parse_model(model: Model, plugin_manager: pluggy.PluginManager | None) -> P
 
 def _check_graph(model: Model, kinds: dict[str, type[ComponentKind]]) -> nx.DiGraph:
     """Topology checks: names exist, roles connect sensibly, every path reaches the outside."""
-    edges = parse_paths(model.flow_paths)
+    g = _flow_graph(model, kinds)
+    role = {n: kinds[n].role for n in kinds}
+    # flow elements first: a dangling nozzle is the more useful message
+    for n in sorted(kinds, key=lambda m: role[m] != "flow"):
+        check = _ROLE_CHECKS.get(role[n])
+        if check is not None:
+            check(n, kinds[n].kind, list(g.predecessors(n)), list(g.successors(n)), role)
+    _check_reach(g, role)
+    return g
+
+
+def _flow_graph(model: Model, kinds: dict[str, type[ComponentKind]]) -> nx.DiGraph:
+    """The components as nodes and the flow paths as edges; unknown names, self-loops and cycles refused."""
     g = nx.DiGraph(name=model.name)
     for n, cls in kinds.items():
         g.add_node(n, kind=cls.kind, role=cls.role)
     names = list(kinds)
-    for a, b in edges:
+    for a, b in parse_paths(model.flow_paths):
         for n in (a, b):
             if n not in kinds:
                 raise ModelError("flow_paths", f"names {shorten(n)}, which is not a component", _suggest(n, names))
         if a == b:
             raise ModelError("flow_paths", f"connects {shorten(a)} to itself", "remove the loop")
         g.add_edge(a, b)
-    role = {n: kinds[n].role for n in kinds}
-    boundaries = [n for n in names if role[n] == "boundary"]
     if not nx.is_directed_acyclic_graph(g):
         cycle = " -> ".join(a for a, _ in nx.find_cycle(g))
         raise ModelError("flow_paths", f"the paths form a loop ({cycle})", "flow paths must run from a vessel or "
                          "source to the surroundings without returning")
-    # flow elements first: a dangling nozzle is the more useful message
-    for n in sorted(names, key=lambda m: role[m] != "flow"):
-        r = role[n]
-        ins, outs = list(g.predecessors(n)), list(g.successors(n))
-        where = f"components.{n}"
-        kind = kinds[n].kind
-        if r == "body" and (ins or outs):
-            raise ModelError(where, f"is a body ({kind}) and carries no flow, but flow_paths connect it",
-                             "remove it from flow_paths")
-        if r == "boundary" and outs:
-            raise ModelError(where, "is the surroundings; a flow path cannot leave it (use an inlet to take in "
-                             "the surrounding fluid)", "write paths that end at the surroundings")
-        if r == "flow":
-            if len(ins) != 1 or role[ins[0]] not in ("volume", "source", "flow"):
-                found = ", ".join(ins) if ins else "nothing"
-                raise ModelError(where, f"({kind}) needs exactly one upstream vessel, source or element, found "
-                                 f"{found}", f"add a path such as \"TANK -> {n} -> OUTSIDE\"")
-            if len(outs) != 1 or role[outs[0]] not in ("flow", "boundary"):
-                found = ", ".join(outs) if outs else "nothing"
-                raise ModelError(where, f"({kind}) must lead to another element or to the surroundings (flow "
-                                 f"into a vessel is not supported yet), found {found}",
-                                 f"continue the path: \"{n} -> OUTSIDE\"")
-        if r == "volume":
-            if ins:
-                raise ModelError(where, f"is fed by {shorten(ins[0])}; flow into a vessel is not supported yet",
-                                 "feed the nozzle directly from the source instead")
-            if any(role[m] != "flow" for m in outs):
-                bad = [m for m in outs if role[m] != "flow"][0]
-                raise ModelError(where, f"connects directly to {shorten(bad)}; vessels connect through a flow element",
-                                 f"put a nozzle or orifice between {shorten(n)} and {shorten(bad)}")
-            if not outs:
-                raise ModelError(where, "has no outlet, so it can never empty",
-                                 f"add a path such as \"{n} -> NOZZLE -> OUTSIDE\"")
-        if r == "source":
-            if ins:
-                raise ModelError(where, f"({kind}) takes fluid from outside the vehicle and cannot be fed by {shorten(ins[0])}",
-                                 f"start the path at {shorten(n)}")
-            if len(outs) != 1 or role[outs[0]] != "flow":
-                raise ModelError(where, f"({kind}) must feed exactly one flow element (a pump or a nozzle)",
-                                 f"write a path such as \"{n} -> PUMP -> NOZZLE -> OUTSIDE\"")
-        if r == "jet":
-            if ins or len(outs) != 1 or role[outs[0]] != "boundary":
-                raise ModelError(where, "a prescribed jet must exhaust straight to the surroundings",
-                                 f"write the path \"{n} -> OUTSIDE\"")
+    return g
+
+
+def _check_body(n: str, kind: str, ins: list[str], outs: list[str], role: dict[str, str]) -> None:
+    if ins or outs:
+        raise ModelError(f"components.{n}", f"is a body ({kind}) and carries no flow, but flow_paths connect it",
+                         "remove it from flow_paths")
+
+
+def _check_boundary(n: str, kind: str, ins: list[str], outs: list[str], role: dict[str, str]) -> None:
+    if outs:
+        raise ModelError(f"components.{n}", "is the surroundings; a flow path cannot leave it (use an inlet to take "
+                         "in the surrounding fluid)", "write paths that end at the surroundings")
+
+
+def _check_flow(n: str, kind: str, ins: list[str], outs: list[str], role: dict[str, str]) -> None:
+    where = f"components.{n}"
+    if len(ins) != 1 or role[ins[0]] not in ("volume", "source", "flow"):
+        found = ", ".join(ins) if ins else "nothing"
+        raise ModelError(where, f"({kind}) needs exactly one upstream vessel, source or element, found "
+                         f"{found}", f"add a path such as \"TANK -> {n} -> OUTSIDE\"")
+    if len(outs) != 1 or role[outs[0]] not in ("flow", "boundary"):
+        found = ", ".join(outs) if outs else "nothing"
+        raise ModelError(where, f"({kind}) must lead to another element or to the surroundings (flow "
+                         f"into a vessel is not supported yet), found {found}",
+                         f"continue the path: \"{n} -> OUTSIDE\"")
+
+
+def _check_volume(n: str, kind: str, ins: list[str], outs: list[str], role: dict[str, str]) -> None:
+    where = f"components.{n}"
+    if ins:
+        raise ModelError(where, f"is fed by {shorten(ins[0])}; flow into a vessel is not supported yet",
+                         "feed the nozzle directly from the source instead")
+    if any(role[m] != "flow" for m in outs):
+        bad = [m for m in outs if role[m] != "flow"][0]
+        raise ModelError(where, f"connects directly to {shorten(bad)}; vessels connect through a flow element",
+                         f"put a nozzle or orifice between {shorten(n)} and {shorten(bad)}")
+    if not outs:
+        raise ModelError(where, "has no outlet, so it can never empty",
+                         f"add a path such as \"{n} -> NOZZLE -> OUTSIDE\"")
+
+
+def _check_source(n: str, kind: str, ins: list[str], outs: list[str], role: dict[str, str]) -> None:
+    where = f"components.{n}"
+    if ins:
+        raise ModelError(where, f"({kind}) takes fluid from outside the vehicle and cannot be fed by {shorten(ins[0])}",
+                         f"start the path at {shorten(n)}")
+    if len(outs) != 1 or role[outs[0]] != "flow":
+        raise ModelError(where, f"({kind}) must feed exactly one flow element (a pump or a nozzle)",
+                         f"write a path such as \"{n} -> PUMP -> NOZZLE -> OUTSIDE\"")
+
+
+def _check_jet(n: str, kind: str, ins: list[str], outs: list[str], role: dict[str, str]) -> None:
+    if ins or len(outs) != 1 or role[outs[0]] != "boundary":
+        raise ModelError(f"components.{n}", "a prescribed jet must exhaust straight to the surroundings",
+                         f"write the path \"{n} -> OUTSIDE\"")
+
+
+#: How a component of each role must be connected: (name, kind, upstream, downstream, roles) -> None or raise.
+_ROLE_CHECKS = {"body": _check_body, "boundary": _check_boundary, "flow": _check_flow, "volume": _check_volume,
+                "source": _check_source, "jet": _check_jet}
+
+
+def _check_reach(g: nx.DiGraph, role: dict[str, str]) -> None:
+    """Everything that holds or makes flow reaches the surroundings, and something has mass."""
+    names = list(role)
+    boundaries = [n for n in names if role[n] == "boundary"]
     for n in names:
         if role[n] in ("volume", "jet", "source"):
             if not any(nx.has_path(g, n, b) for b in boundaries):
@@ -202,4 +235,3 @@ def _check_graph(model: Model, kinds: dict[str, type[ComponentKind]]) -> nx.DiGr
         raise ModelError("components", "no surroundings component", 'add [components.outside] kind = "surroundings"')
     if not any(role[n] in ("body", "volume", "jet") for n in names):
         raise ModelError("components", "nothing in the model has mass", "add an airframe with its dry mass")
-    return g

@@ -40,8 +40,10 @@ Examples
 
 from __future__ import annotations
 
+import difflib
 import itertools
 import math
+import uuid
 from dataclasses import dataclass, field
 from typing import Any, Sequence
 
@@ -219,18 +221,7 @@ def optimise(model: Model | str | None, vary: Sequence[Vary | str], objective: s
     """
     model, parsed = _prepare(model)
     vary = [as_vary(v) for v in vary]
-    if not vary:
-        raise ModelError("optimise", "varies no parameter", 'add --vary "components.bottle.fill=0.1..0.6"')
-    check_outputs([objective], where="objective")
-    limits = tuple(lim if isinstance(lim, Limit) else Limit.parse(str(lim)) for lim in limits)
-    if method not in METHODS:
-        import difflib
-
-        c = difflib.get_close_matches(str(method), METHODS, n=1)
-        raise ModelError("--method", f"unknown optimisation method {method!r}",
-                         f"did you mean {c[0]!r}?" if c else f"choose one of {', '.join(METHODS)}")
-    if start not in ("grid", "model"):
-        raise ModelError("start", f"expected \"grid\" or \"model\", got {start!r}", "write start = \"grid\"")
+    limits = _checked(vary, objective, limits, method, start)
     params = [v.resolve(parsed, where=f"optimise {v.path}") for v in vary]
     bounds = [v.si_bounds(p, where=f"optimise {v.path}") for v, p in zip(vary, params)]
     lo = np.array([b[0] for b in bounds])
@@ -239,6 +230,50 @@ def optimise(model: Model | str | None, vary: Sequence[Vary | str], objective: s
     for name in [objective] + [lim.output for lim in limits]:
         if name not in outs:
             outs.append(name)
+    engine, own, run = _engine_for(parsed, run)
+    # one task name for every batch, so a process pool started for the first batch serves them all
+    prob = _Problem(model, parsed, params, lo, hi, objective, maximise, limits, tuple(outs),
+                    dict(run, engine=engine, token=uuid.uuid4().hex))
+    trace = _Trace(prob)
+    message = ""
+    success = False
+    try:
+        z0 = _start(prob, method, start)
+        if method == "slsqp":
+            z_best, success, message = _slsqp(prob, z0, trace, tol, max_iterations)
+        else:
+            z_best, success, message = _evolve(prob, trace, tol, max_iterations, seed)
+        z_best = _feasible_best(prob, z_best)
+    except KeyboardInterrupt:
+        message = "interrupted: the best design flown so far is reported"
+        cands = [np.frombuffer(k_) for k_ in prob.cache]
+        z_best = _best(prob, cands) if cands else np.zeros(len(params))
+    finally:
+        if own:
+            engine.close()
+    return _result(prob, z_best, success, message, trace.iterations, trace.history, method,
+                   getattr(engine, "name", ""), str(run.get("flights", "")))
+
+
+def _checked(vary: Sequence[Vary], objective: str, limits: Sequence[Limit | str], method: str, start: str
+             ) -> tuple[Limit, ...]:
+    """Refuse a problem that cannot be posed; the limits, read."""
+    if not vary:
+        raise ModelError("optimise", "varies no parameter", 'add --vary "components.bottle.fill=0.1..0.6"')
+    check_outputs([objective], where="objective")
+    limits = tuple(lim if isinstance(lim, Limit) else Limit.parse(str(lim)) for lim in limits)
+    if method not in METHODS:
+        c = difflib.get_close_matches(str(method), METHODS, n=1)
+        raise ModelError("--method", f"unknown optimisation method {method!r}",
+                         f"did you mean {c[0]!r}?" if c else f"choose one of {', '.join(METHODS)}")
+    if start not in ("grid", "model"):
+        raise ModelError("start", f"expected \"grid\" or \"model\", got {start!r}", "write start = \"grid\"")
+    return limits
+
+
+def _engine_for(parsed: Any, run: dict[str, Any]) -> tuple[Any, bool, dict[str, Any]]:
+    """The engine every batch flies on (opened here, and then closed here, when named), whether it was opened
+    here, and the run options left for :func:`~thrustgraph.studies.evaluate`."""
     engine = run.pop("engine", "auto")
     own = isinstance(engine, str)
     if own:
@@ -247,96 +282,110 @@ def optimise(model: Model | str | None, vary: Sequence[Vary | str], objective: s
                              timeout=run.get("timeout", 10.0))
     run = {k: v for k, v in run.items() if k not in ("workers", "scheduler", "timeout")}
     run.setdefault("flights", "single")
-    import uuid
+    return engine, own, run
 
-    # one task name for every batch, so a process pool started for the first batch serves them all
-    prob = _Problem(model, parsed, params, lo, hi, objective, maximise, limits, tuple(outs),
-                    dict(run, engine=engine, token=uuid.uuid4().hex))
-    P = len(params)
-    history: list[float] = []
-    iterations = 0
-    message = ""
-    success = False
-    try:
-        z0 = np.clip((np.array([p.nominal for p in params]) - lo) / (hi - lo), 0.0, 1.0)
-        if method == "slsqp" and start == "grid":
-            k = 5 if P <= 2 else (3 if P <= 4 else 1)
-            if k > 1:
-                grid = [np.array(c) for c in itertools.product(*[np.linspace(0.0, 1.0, k)] * P)]
-                prob.fly(grid + [z0])
-                z0 = _best(prob, grid + [z0])
-        prob.fly([z0])
-        st, v = prob.cache[z0.tobytes()]
-        y0 = v[prob.outputs.index(objective)] if st == STATUS_OK else math.nan
-        prob.scale = abs(y0) if math.isfinite(y0) and y0 != 0.0 else 1.0
-        prob.worst = None
-        for x_, st_, _n, vals in prob.rows:
-            if st_ == STATUS_OK:
-                f = prob._f_raw(vals)
-                prob.worst = f if prob.worst is None else max(prob.worst, f)
 
-        def callback(zk, *args, **kwargs):
-            if hasattr(zk, "x"):          # scipy's intermediate_result form
-                zk = zk.x
-            nonlocal iterations
-            iterations += 1
-            st_, vals = prob.cache.get(np.asarray(zk, dtype=float).tobytes(), (None, None))
-            if st_ == STATUS_OK:
-                history.append(float(vals[prob.outputs.index(objective)]))
+class _Trace:
+    """The solver's iterations, and the objective of each iteration's design (the solver's callback)."""
 
-        if method == "slsqp":
-            cons = []
-            if limits:
-                cons.append({"type": "ineq", "fun": prob.g, "jac": lambda z: prob.grad(prob.g, z)})
-            res = minimize(prob.f, z0, jac=lambda z: prob.grad(prob.f, z), method="SLSQP",
-                           bounds=[(0.0, 1.0)] * P, constraints=cons, callback=callback,
-                           options={"ftol": tol, "maxiter": max_iterations})
-            z_best, success, message = np.clip(res.x, 0.0, 1.0), bool(res.success), str(res.message)
-        else:
-            def rows(Z):
-                Z = np.asarray(Z, dtype=float)
-                return [np.ascontiguousarray(z) for z in (Z.T if Z.ndim == 2 else Z[None, :])]
+    def __init__(self, prob: _Problem) -> None:
+        self.prob = prob
+        self.iterations = 0
+        self.history: list[float] = []
 
-            def fv(Z):
-                Z = rows(Z)
-                prob.fly(Z)
-                return np.array([prob.f(z) for z in Z])
+    def __call__(self, zk: Any, *args: Any, **kwargs: Any) -> None:
+        if hasattr(zk, "x"):          # scipy's intermediate_result form
+            zk = zk.x
+        self.iterations += 1
+        st_, vals = self.prob.cache.get(np.asarray(zk, dtype=float).tobytes(), (None, None))
+        if st_ == STATUS_OK:
+            self.history.append(float(vals[self.prob.outputs.index(self.prob.objective)]))
 
-            def gv(Z):
-                Z = rows(Z)
-                prob.fly(Z)
-                return np.array([prob.g(z) for z in Z]).T
 
-            kw: dict[str, Any] = dict(bounds=[(0.0, 1.0)] * P, vectorized=True, seed=seed, polish=False,
-                                      maxiter=max_iterations, tol=tol, callback=callback)
-            if limits:
-                kw["constraints"] = NonlinearConstraint(gv, 0.0, np.inf)
-            res = differential_evolution(fv, **kw)
-            z_best, success, message = np.clip(res.x, 0.0, 1.0), bool(res.success), str(res.message)
-            iterations = int(getattr(res, "nit", iterations))
-        prob.fly([z_best])
-        if prob.cache[z_best.tobytes()][0] != STATUS_OK or np.any(prob.g(z_best) < -1e-6):
-            z_alt = _best(prob, [np.frombuffer(k_) for k_ in prob.cache])
-            if _score(prob, z_alt) < _score(prob, z_best):
-                z_best = z_alt
-    except KeyboardInterrupt:
-        message = "interrupted: the best design flown so far is reported"
-        cands = [np.frombuffer(k_) for k_ in prob.cache]
-        z_best = _best(prob, cands) if cands else np.zeros(P)
-    finally:
-        if own:
-            engine.close()
-    st, vals = prob.cache.get(z_best.tobytes(), ("not run", np.full(len(outs), np.nan)))
+def _start(prob: _Problem, method: str, start: str) -> np.ndarray:
+    """The starting point (the model's values, or for SLSQP from a grid the best of a coarse grid, one batch),
+    flown; the objective's scale and the worst value flown set from it."""
+    P = len(prob.params)
+    z0 = np.clip((np.array([p.nominal for p in prob.params]) - prob.lo) / prob.span, 0.0, 1.0)
+    if method == "slsqp" and start == "grid":
+        k = 5 if P <= 2 else (3 if P <= 4 else 1)
+        if k > 1:
+            grid = [np.array(c) for c in itertools.product(*[np.linspace(0.0, 1.0, k)] * P)]
+            prob.fly(grid + [z0])
+            z0 = _best(prob, grid + [z0])
+    prob.fly([z0])
+    st, v = prob.cache[z0.tobytes()]
+    y0 = v[prob.outputs.index(prob.objective)] if st == STATUS_OK else math.nan
+    prob.scale = abs(y0) if math.isfinite(y0) and y0 != 0.0 else 1.0
+    prob.worst = None
+    for x_, st_, _n, vals in prob.rows:
+        if st_ == STATUS_OK:
+            f = prob._f_raw(vals)
+            prob.worst = f if prob.worst is None else max(prob.worst, f)
+    return z0
+
+
+def _slsqp(prob: _Problem, z0: np.ndarray, trace: _Trace, tol: float, max_iterations: int
+           ) -> tuple[np.ndarray, bool, str]:
+    cons = []
+    if prob.limits:
+        cons.append({"type": "ineq", "fun": prob.g, "jac": lambda z: prob.grad(prob.g, z)})
+    res = minimize(prob.f, z0, jac=lambda z: prob.grad(prob.f, z), method="SLSQP",
+                   bounds=[(0.0, 1.0)] * len(prob.params), constraints=cons, callback=trace,
+                   options={"ftol": tol, "maxiter": max_iterations})
+    return np.clip(res.x, 0.0, 1.0), bool(res.success), str(res.message)
+
+
+def _evolve(prob: _Problem, trace: _Trace, tol: float, max_iterations: int, seed: int
+            ) -> tuple[np.ndarray, bool, str]:
+    """Differential evolution, each generation one batch."""
+    def rows(Z):
+        Z = np.asarray(Z, dtype=float)
+        return [np.ascontiguousarray(z) for z in (Z.T if Z.ndim == 2 else Z[None, :])]
+
+    def fv(Z):
+        Z = rows(Z)
+        prob.fly(Z)
+        return np.array([prob.f(z) for z in Z])
+
+    def gv(Z):
+        Z = rows(Z)
+        prob.fly(Z)
+        return np.array([prob.g(z) for z in Z]).T
+
+    kw: dict[str, Any] = dict(bounds=[(0.0, 1.0)] * len(prob.params), vectorized=True, seed=seed, polish=False,
+                              maxiter=max_iterations, tol=tol, callback=trace)
+    if prob.limits:
+        kw["constraints"] = NonlinearConstraint(gv, 0.0, np.inf)
+    res = differential_evolution(fv, **kw)
+    trace.iterations = int(getattr(res, "nit", trace.iterations))
+    return np.clip(res.x, 0.0, 1.0), bool(res.success), str(res.message)
+
+
+def _feasible_best(prob: _Problem, z_best: np.ndarray) -> np.ndarray:
+    """The solver's answer, or a flown design that scores better when the answer did not fly or breaks a limit."""
+    prob.fly([z_best])
+    if prob.cache[z_best.tobytes()][0] != STATUS_OK or np.any(prob.g(z_best) < -1e-6):
+        z_alt = _best(prob, [np.frombuffer(k_) for k_ in prob.cache])
+        if _score(prob, z_alt) < _score(prob, z_best):
+            return z_alt
+    return z_best
+
+
+def _result(prob: _Problem, z_best: np.ndarray, success: bool, message: str, iterations: int,
+            history: list[float], method: str, engine: str, flights: str) -> OptimisationResult:
+    limits, objective, maximise = prob.limits, prob.objective, prob.sign > 0
+    st, vals = prob.cache.get(z_best.tobytes(), ("not run", np.full(len(prob.outputs), np.nan)))
     outcomes = {o: float(vals[k]) for k, o in enumerate(prob.outputs)}
     margins = {}
     for lim in limits:
         y = outcomes.get(lim.output, math.nan)
         margins[str(lim)] = lim.margin(y) if math.isfinite(y) else -math.inf
     feasible = st == STATUS_OK and all(m >= -1e-6 * max(abs(lim.si()), 1.0) for lim, m in zip(limits, margins.values()))
-    table = _table_of(prob, parsed, objective, maximise, method)
-    table.engine, table.flights = getattr(engine, "name", ""), str(run.get("flights", ""))
+    table = _table_of(prob, prob.parsed, objective, maximise, method)
+    table.engine, table.flights = engine, flights
     table.interrupted = prob.interrupted or message.startswith("interrupted")
-    return OptimisationResult(params=tuple(params), objective=objective, maximise=maximise, limits=limits,
+    return OptimisationResult(params=tuple(prob.params), objective=objective, maximise=maximise, limits=limits,
                               x=prob.x_of(z_best), value=outcomes.get(objective, math.nan), outcomes=outcomes,
                               margins=margins, feasible=feasible, success=success and st == STATUS_OK,
                               message=message, iterations=iterations, evaluations=len(prob.rows), method=method,

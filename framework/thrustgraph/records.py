@@ -300,10 +300,35 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
                          "give a header line such as \"time [s],thrust [N]\" and data rows")
     head_no, head = lines[0]
     delim = max(",;\t", key=head.count)
-    cells = _cells(head, delim, f"{source}: line {head_no}")
+    names, units, time_column = _header(head, head_no, delim, source, time_column)
+    rows = lines[1:]
+    if len(rows) < 2:
+        raise ModelError(source, f"the record has {len(rows)} data row(s)", "give at least two samples")
+    tj = names.index(time_column)
+    words = {j for j, u in enumerate(units) if u == TEXT_UNIT}
+    raw, cells = _numbers(rows, delim, names, source, words=words, nan_ok=exported, time_index=tj)
+    if units[tj] == TEXT_UNIT or dimension_name(units[tj]) != "time":
+        raise ModelError(f"{source}: column {time_column!r}", f"the time column is in [{units[tj] or '1'}], "
+                         f"a {'text' if units[tj] == TEXT_UNIT else dimension_name(units[tj])}",
+                         f'write its unit as a time, e.g. "{time_column} [s]" or [ms]')
+    si = {j: _column_si(raw, j, name, unit, rows, source) for j, (name, unit) in enumerate(zip(names, units))
+          if j not in words}
+    time = si[tj]
+    _check_time(time, raw[:, tj], units[tj], rows, source, time_column, exported=exported)
+    measured = [j for j in range(len(names)) if j != tj and j not in words]
+    return Record(source=source, sha256=sha256, time=time, columns={names[j]: si[j] for j in measured},
+                  units={names[j]: units[j] for j in measured}, si_units={names[j]: _si_name(units[j]) for j in measured},
+                  time_column=time_column, labels={names[j]: tuple(c) for j, c in cells.items()}, notes=notes,
+                  exported=exported)
+
+
+def _header(head: str, head_no: int, delim: str, source: str, time_column: str
+            ) -> tuple[list[str], list[str], str]:
+    """The names and units of the header line's columns, and the time column's name as written there (its case
+    may differ); the time column must be among them, with another."""
     names: list[str] = []
     units: list[str] = []
-    for k, cell in enumerate(cells):
+    for k, cell in enumerate(_cells(head, delim, f"{source}: line {head_no}")):
         if len(cell) > MAX_HEADER_CELL:
             raise ModelError(f"{source}: line {head_no}, column {k + 1} {_cut(cell.strip())!r}",
                              f"the header cell has {len(cell):,} characters (at most {MAX_HEADER_CELL:,})",
@@ -326,12 +351,14 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
                          f"{hint}name the time column \"{time_column} [s]\" or choose it with the time-column option")
     if len(names) < 2:
         raise ModelError(source, "the record has only a time column", "add the measured columns")
-    rows = lines[1:]
-    if len(rows) < 2:
-        raise ModelError(source, f"the record has {len(rows)} data row(s)", "give at least two samples")
-    tj = names.index(time_column)
+    return names, units, time_column
+
+
+def _numbers(rows: list[tuple[int, str]], delim: str, names: list[str], source: str, *, words: set[int] = set(),
+             nan_ok: bool = False, time_index: int = -1) -> tuple[np.ndarray, dict[int, list[str]]]:
+    """The data rows as numbers (rows x columns), as written, and the cells of the ``[text]`` columns (``words``);
+    a gap or a word is one clear error, but a saved prediction (``nan_ok``) may hold ``nan`` outside its time."""
     raw = np.empty((len(rows), len(names)))
-    words = [j for j, u in enumerate(units) if u == TEXT_UNIT]
     cells: dict[int, list[str]] = {j: [] for j in words}
     gaps: dict[int, list[int]] = {}
     for i, (line_no, line) in enumerate(rows):
@@ -345,72 +372,66 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
                 cells[j].append(v)
                 raw[i, j] = math.nan
                 continue
-            if exported and v.lower() == "nan" and j != tj:     # a signal with no value in this phase
+            if nan_ok and v.lower() == "nan" and j != time_index:     # a signal with no value in this phase
                 raw[i, j] = math.nan
                 continue
             if v == "" or v.lower() in ("nan", "na", "n/a", "null", "none"):
                 gaps.setdefault(j, []).append(line_no)
                 raw[i, j] = math.nan
                 continue
-            try:
-                x = float(v)
-            except ValueError:
-                raise ModelError(f"{source}: column {names[j]!r}, line {line_no}",
-                                 f"cannot read {_cut(v)!r} as a number",
-                                 "write plain numbers; the unit belongs in the header") from None
-            if not math.isfinite(x):
-                raise ModelError(f"{source}: column {names[j]!r}, line {line_no}", f"{v!r} is not a finite number",
-                                 "remove the row or write a measured value")
-            raw[i, j] = x
+            raw[i, j] = _number(v, f"{source}: column {names[j]!r}, line {line_no}")
     if gaps:
         j = min(gaps, key=lambda c: gaps[c][0])
         where = f"{source}: column {names[j]!r}, line {gaps[j][0]}"
         raise ModelError(where, f"has {len(gaps[j])} missing value(s) (empty or NaN), the first here",
                          "fill the gap from the logger's raw data or cut the record before it; thrustgraph does not "
                          "guess missing samples")
-    if units[tj] == TEXT_UNIT or dimension_name(units[tj]) != "time":
-        raise ModelError(f"{source}: column {time_column!r}", f"the time column is in [{units[tj] or '1'}], "
-                         f"a {'text' if units[tj] == TEXT_UNIT else dimension_name(units[tj])}",
-                         f'write its unit as a time, e.g. "{time_column} [s]" or [ms]')
-    columns: dict[str, np.ndarray] = {}
-    unit_of: dict[str, str] = {}
-    si_of: dict[str, str] = {}
-    labels = {names[j]: tuple(c) for j, c in cells.items()}
-    time = None
-    for j, (name, unit) in enumerate(zip(names, units)):
-        if j in cells:
-            continue
-        with np.errstate(over="ignore", invalid="ignore"):
-            q = Q_(raw[:, j], unit).to_base_units() if unit else Q_(raw[:, j], "")
-            values = np.asarray(q.magnitude, dtype=float)
-        if not np.all(np.isfinite(values) | np.isnan(raw[:, j])):
-            i = int(np.argmax(~np.isfinite(values) & ~np.isnan(raw[:, j])))
-            raise ModelError(f"{source}: column {name!r}, line {rows[i][0]}",
-                             f"{raw[i, j]:g} {unit} is too large to convert to SI units (it overflows to infinity)",
-                             "check the value and the unit in the header")
-        if j == tj:
-            time = values
-            continue
-        columns[name] = values
-        unit_of[name] = unit
-        si_of[name] = _si_name(unit)
-    assert time is not None
+    return raw, cells
+
+
+def _number(v: str, where: str) -> float:
+    try:
+        x = float(v)
+    except ValueError:
+        raise ModelError(where, f"cannot read {_cut(v)!r} as a number",
+                         "write plain numbers; the unit belongs in the header") from None
+    if not math.isfinite(x):
+        raise ModelError(where, f"{v!r} is not a finite number", "remove the row or write a measured value")
+    return x
+
+
+def _column_si(raw: np.ndarray, j: int, name: str, unit: str, rows: list[tuple[int, str]], source: str
+               ) -> np.ndarray:
+    """Column ``j`` in SI units; a value that overflows in the conversion is one clear error."""
+    with np.errstate(over="ignore", invalid="ignore"):
+        q = Q_(raw[:, j], unit).to_base_units() if unit else Q_(raw[:, j], "")
+        values = np.asarray(q.magnitude, dtype=float)
+    bad = ~np.isfinite(values) & ~np.isnan(raw[:, j])        # a saved prediction's nan stays nan
+    if np.any(bad):
+        i = int(np.argmax(bad))
+        raise ModelError(f"{source}: column {name!r}, line {rows[i][0]}",
+                         f"{raw[i, j]:g} {unit} is too large to convert to SI units (it overflows to infinity)",
+                         "check the value and the unit in the header")
+    return values
+
+
+def _check_time(time: np.ndarray, raw: np.ndarray, unit: str, rows: list[tuple[int, str]], source: str,
+                time_column: str, *, exported: bool = False) -> None:
+    """Time increases, by at least :data:`MIN_SAMPLE_INTERVAL` per sample (``raw``: as written, in ``unit``); a
+    saved prediction (``exported``) repeats a time at a phase boundary (the values before and after it; once per
+    boundary when several fall on one instant), and its steps may be as short as the solver's."""
     steps = np.diff(time)
-    # a saved prediction repeats a time at a phase boundary (the values before and after it; once per boundary
-    # when several fall on one instant); it never goes back
     back = steps < 0 if exported else steps <= 0
     if np.any(back):
         i = int(np.argmax(back))
         raise ModelError(f"{source}: column {time_column!r}, line {rows[i + 1][0]}",
-                         f"time does not increase ({raw[i + 1, tj]:g} {units[tj]} follows {raw[i, tj]:g} {units[tj]})",
+                         f"time does not increase ({raw[i + 1]:g} {unit} follows {raw[i]:g} {unit})",
                          "sort the rows by time and remove repeated samples")
     if not exported and float(np.min(steps)) < MIN_SAMPLE_INTERVAL:
         i = int(np.argmax(steps < MIN_SAMPLE_INTERVAL))
         raise ModelError(f"{source}: column {time_column!r}, line {rows[i + 1][0]}",
                          f"samples {float(steps[i]):.3g} s apart (the least accepted is {MIN_SAMPLE_INTERVAL:g} s, "
                          "1 GHz)", f"check the time unit in the header (e.g. \"{time_column} [ms]\" for milliseconds)")
-    return Record(source=source, sha256=sha256, time=time, columns=columns, units=unit_of, si_units=si_of,
-                  time_column=time_column, labels=labels, notes=notes, exported=exported)
 
 
 def _cut(text: str, width: int = 60) -> str:

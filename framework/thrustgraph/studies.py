@@ -34,6 +34,7 @@ Examples
 
 from __future__ import annotations
 
+import csv
 import io
 import itertools
 import math
@@ -151,15 +152,12 @@ class DesignTable:
             buf.write(f"# interrupted: {len(self) - c['not run']} of {len(self)} designs were flown before the "
                       "study was stopped; the rest are marked 'not run'\n")
         heads = ["design", "status"] + [p.header for p in self.params] + [OUTCOMES[o].header for o in self.outputs]
-        buf.write(",".join(heads + ["note"]) + "\n")
+        rows = csv.writer(buf, lineterminator="\n")   # quotes a cell only when it must (a note with a comma)
+        rows.writerow(heads + ["note"])
         shown = [np.atleast_1d(p.shown(self.x[:, j])) for j, p in enumerate(self.params)]
         for i in range(len(self)):
-            cells = [str(i), str(self.status[i])]
-            cells += [_fmt(col[i]) for col in shown]
-            cells += [_fmt(v) for v in self.values[i]]
-            note = self.notes[i].replace('"', "'")
-            cells.append(f'"{note}"' if ("," in note or "\n" in note) else note)
-            buf.write(",".join(cells) + "\n")
+            rows.writerow([str(i), str(self.status[i]), *(_fmt(col[i]) for col in shown),
+                           *(_fmt(v) for v in self.values[i]), self.notes[i]])
         return buf.getvalue()
 
     def to_pandas(self):
@@ -240,6 +238,37 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     outputs = tuple(check_outputs(outputs if outputs is not None else DEFAULT_OUTPUTS))
     x = np.asarray(x, dtype=float).reshape(-1, len(params))
     n = len(x)
+    eng_name, flights = _how_to_fly(n, parsed, engine, flights, outputs, quiet, stream)
+    own = isinstance(engine, str)
+    eng = make_engine(eng_name, workers=workers, scheduler=scheduler, timeout=timeout) if own else engine
+    task = FlightTask(model, tuple(p.path for p in params), tuple(p.unit for p in params), outputs, flights,
+                      rtol, atol, token=token or "")
+    size = chunk_size or default_chunk_size(n, eng.workers, flights)
+    if eng.name == "serial" and flights == "single" and chunk_size is None:
+        size = min(size, 8)
+    rows = _Rows(n, len(outputs))
+    inside = rows.screen_out_of_bounds(params, x)
+    t0 = time.perf_counter()
+    bar = StudyProgress(n, kind, stream=stream, quiet=quiet)
+    try:
+        interrupted = rows.fly(eng, task, x, _parts(np.flatnonzero(inside), size, flights), bar)
+    finally:
+        bar.close()
+        if own:
+            eng.close()
+    head = {"model": parsed.model.name, "study": kind,
+            "flights": f"{flights} (rtol {rtol if rtol is not None else parsed.run.rtol:g}, "
+                       f"atol {atol if atol is not None else parsed.run.atol:g})"}
+    head.update(info or {})
+    return DesignTable(kind=kind, params=tuple(params), outputs=outputs, x=x, values=rows.values,
+                       status=np.asarray(rows.status, dtype=str), notes=rows.finished_notes(), interrupted=interrupted,
+                       info=head, engine=eng_name, flights=flights, seconds=time.perf_counter() - t0)
+
+
+def _how_to_fly(n: int, parsed: ParsedModel, engine: Any, flights: str, outputs: tuple[str, ...], quiet: bool,
+                stream: Any) -> tuple[str, str]:
+    """The engine's name and the way to fly, ``auto`` resolved; an ensemble that cannot fly the model (or compute
+    the outcomes) is refused, and a large study flown one design at a time says why at its start."""
     if isinstance(engine, str):
         eng_name, flights = choose_engine(n, parsed, engine, flights, outputs)
     else:
@@ -256,65 +285,61 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
         # said at the start: a large study of a model the ensemble cannot fly runs at single-flight speed
         print(f"thrustgraph: flying {n} designs one at a time: the vectorised ensemble cannot fly this model "
               f"({why})", file=stream or sys.stderr)
-    own = isinstance(engine, str)
-    eng = make_engine(eng_name, workers=workers, scheduler=scheduler, timeout=timeout) if own else engine
-    task = FlightTask(model, tuple(p.path for p in params), tuple(p.unit for p in params), outputs, flights,
-                      rtol, atol, **({"token": token} if token else {}))
-    size = chunk_size or default_chunk_size(n, eng.workers, flights)
-    if eng.name == "serial" and flights == "single" and chunk_size is None:
-        size = min(size, 8)
-    values = np.full((n, len(outputs)), np.nan)
-    status = np.array([STATUS_NOT_RUN] * n, dtype=object)
-    notes = ["not flown: the study was stopped first"] * n
-    # Designs outside their declared bounds are screened here, before any engine sees them.
-    inside = np.ones(n, dtype=bool)
-    for j, p in enumerate(params):
-        ok = within_bounds(p, x[:, j]) if n else np.ones(0, bool)
-        for i in np.flatnonzero(inside & ~ok):
+    return eng_name, flights
 
-            status[i] = STATUS_SCREENED
-            notes[i] = f"{p.path} = {p.text(x[i, j])} is outside its bounds ({bounds_text(p)})"
-        inside &= ok
-    rows = np.flatnonzero(inside)
-    bar = StudyProgress(n, kind, stream=stream, quiet=quiet)
-    done = n - len(rows)
-    screened = int(np.sum(status == STATUS_SCREENED))
-    interrupted = False
-    t0 = time.perf_counter()
-    parts = _parts(rows, size, flights)
-    index_of = {int(idx[0]): idx for idx in parts}
-    feed = ((int(idx[0]), x[idx]) for idx in parts)
-    if eng.name == "serial" and bar.enabled:
-        stream_ = eng.run(task, feed, progress=lambda start, k: bar.update(done + k, screened))
-    else:
-        stream_ = eng.run(task, feed)
-    try:   # from the first draw of the bar on, an interrupt keeps what has flown (possibly nothing)
-        bar.update(done, screened)
-        for res in stream_:
-            idx = index_of[res.start]
-            values[idx] = res.values
-            status[idx] = res.status
-            for r, note in zip(idx, res.notes):
-                notes[r] = note
-            done += len(idx)
-            screened += sum(1 for s in res.status if s == STATUS_SCREENED)
+
+_NOT_FLOWN = "not flown: the study was stopped first"
+
+
+class _Rows:
+    """The rows of a study as they are flown: outcome values, status and note per design."""
+
+    def __init__(self, n: int, k: int) -> None:
+        self.values = np.full((n, k), np.nan)
+        self.status = np.array([STATUS_NOT_RUN] * n, dtype=object)
+        self.notes = [_NOT_FLOWN] * n
+
+    def screen_out_of_bounds(self, params: Sequence[DesignParameter], x: np.ndarray) -> np.ndarray:
+        """Screen the designs outside their declared bounds, before any engine sees them; True for the others."""
+        n = len(x)
+        inside = np.ones(n, dtype=bool)
+        for j, p in enumerate(params):
+            ok = within_bounds(p, x[:, j]) if n else np.ones(0, bool)
+            for i in np.flatnonzero(inside & ~ok):
+                self.status[i] = STATUS_SCREENED
+                self.notes[i] = f"{p.path} = {p.text(x[i, j])} is outside its bounds ({bounds_text(p)})"
+            inside &= ok
+        return inside
+
+    def fly(self, eng: Any, task: FlightTask, x: np.ndarray, parts: list[np.ndarray], bar: StudyProgress) -> bool:
+        """Fly the chunks on the engine, filling the rows as they come back; True when interrupted (Ctrl-C keeps
+        what has flown, possibly nothing)."""
+        done = int(np.sum(self.status != STATUS_NOT_RUN))
+        screened = int(np.sum(self.status == STATUS_SCREENED))
+        index_of = {int(idx[0]): idx for idx in parts}
+        feed = ((int(idx[0]), x[idx]) for idx in parts)
+        if eng.name == "serial" and bar.enabled:
+            stream_ = eng.run(task, feed, progress=lambda start, k: bar.update(done + k, screened))
+        else:
+            stream_ = eng.run(task, feed)
+        try:   # from the first draw of the bar on, an interrupt keeps what has flown (possibly nothing)
             bar.update(done, screened)
-    except KeyboardInterrupt:
-        interrupted = True
-    finally:
-        bar.close()
-        if own:
-            eng.close()
-    for i in range(n):
-        if status[i] == STATUS_OK and notes[i] == "not flown: the study was stopped first":
-            notes[i] = ""
-    head = {"model": parsed.model.name, "study": kind,
-            "flights": f"{flights} (rtol {rtol if rtol is not None else parsed.run.rtol:g}, "
-                       f"atol {atol if atol is not None else parsed.run.atol:g})"}
-    head.update(info or {})
-    return DesignTable(kind=kind, params=tuple(params), outputs=outputs, x=x, values=values,
-                       status=np.asarray(status, dtype=str), notes=notes, interrupted=interrupted, info=head,
-                       engine=eng_name, flights=flights, seconds=time.perf_counter() - t0)
+            for res in stream_:
+                idx = index_of[res.start]
+                self.values[idx] = res.values
+                self.status[idx] = res.status
+                for r, note in zip(idx, res.notes):
+                    self.notes[r] = note
+                done += len(idx)
+                screened += sum(1 for s in res.status if s == STATUS_SCREENED)
+                bar.update(done, screened)
+        except KeyboardInterrupt:
+            return True
+        return False
+
+    def finished_notes(self) -> list[str]:
+        """The notes, with the placeholder of rows that flew cleared."""
+        return ["" if s == STATUS_OK and note == _NOT_FLOWN else note for s, note in zip(self.status, self.notes)]
 
 
 def _parts(rows: np.ndarray, size: int, flights: str) -> list[np.ndarray]:
@@ -419,15 +444,16 @@ class Sensitivity:
         buf.write("# thrustgraph local sensitivities (finite differences at the model's values)\n")
         for k, v in self.table.info.items():
             buf.write(f"# {k}: {v}\n")
-        buf.write("output,parameter,output value,output unit,parameter value,parameter unit,derivative per "
-                  "parameter unit,elasticity [1],step,scheme\n")
+        rows = csv.writer(buf, lineterminator="\n")
+        rows.writerow(["output", "parameter", "output value", "output unit", "parameter value", "parameter unit",
+                       "derivative per parameter unit", "elasticity [1]", "step", "scheme"])
         for k, o in enumerate(self.outputs):
             for j, p in enumerate(self.params):
-                buf.write(",".join([o, p.path, _fmt(self.nominal[k]), OUTCOMES[o].unit or "1",
-                                    _fmt(float(p.shown(p.nominal))), p.unit or "1",
-                                    _fmt(self.derivative[k, j] * _unit_size(p)), _fmt(self.elasticity[k, j]),
-                                    _fmt(float(p.shown(p.nominal + self.steps[j])) - float(p.shown(p.nominal))),
-                                    self.scheme[j]]) + "\n")
+                rows.writerow([o, p.path, _fmt(self.nominal[k]), OUTCOMES[o].unit or "1",
+                               _fmt(float(p.shown(p.nominal))), p.unit or "1",
+                               _fmt(self.derivative[k, j] * _unit_size(p)), _fmt(self.elasticity[k, j]),
+                               _fmt(float(p.shown(p.nominal + self.steps[j])) - float(p.shown(p.nominal))),
+                               self.scheme[j]])
         return buf.getvalue()
 
     def write_csv(self, path: str | os.PathLike[str]) -> None:

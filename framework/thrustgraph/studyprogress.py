@@ -2,14 +2,16 @@
 
 It draws one line on standard error, rewritten in place, only when that
 stream is a terminal (pipes, logs and CI stay clean) and not with
-``quiet=True``. Closing it clears the line.
+``quiet=True``. Closing it clears the line. The drawing is tqdm's, as for
+every indicator (:mod:`thrustgraph.progress`); the rate is tqdm's smoothed
+rate of designs per second, the time left follows from it.
 
 Examples
 --------
 >>> import io
 >>> out = io.StringIO()
->>> bar = StudyProgress(100, "sweep", stream=out, enabled=True)
->>> bar.update(25, screened=2)
+>>> bar = StudyProgress(100, "sweep", stream=out, enabled=True, every=0.0)
+>>> bar.update(25, screened=2); bar.close()
 >>> "25/100" in out.getvalue() and "2 screened" in out.getvalue()
 True
 >>> StudyProgress(10, "sweep", stream=io.StringIO()).enabled    # not a terminal
@@ -18,34 +20,57 @@ False
 
 from __future__ import annotations
 
-import time
-from typing import IO
+import sys
+from typing import IO, Any
 
-from .progress import Progress
+from .progress import is_terminal, line
 
 __all__ = ["StudyProgress"]
 
 
-class StudyProgress(Progress):
-    """``update(done, screened)`` after each chunk; ``close()`` at the end."""
+class StudyProgress:
+    """``update(done, screened)`` after each chunk; ``close()`` at the end.
+
+    Parameters
+    ----------
+    total : int
+        Designs in the study.
+    label : str
+        The study's kind, drawn first.
+    stream, quiet, enabled, every
+        As for :class:`thrustgraph.progress.Progress`.
+    """
 
     def __init__(self, total: int, label: str = "study", *, stream: IO[str] | None = None, quiet: bool = False,
-                 enabled: bool | None = None, width: int = 24, every: float = 0.1) -> None:
-        super().__init__(label, stream=stream, quiet=quiet, enabled=enabled, width=width, every=every)
+                 enabled: bool | None = None, every: float = 0.1) -> None:
+        self.stream = stream if stream is not None else sys.stderr
+        self.enabled = (not quiet) and (is_terminal(self.stream) if enabled is None else enabled)
         self.total = max(int(total), 0)
-        self._t0 = time.monotonic()
+        self.label = label
+        self.every = every
+        self.screened = 0
+        self.bar: Any = None
+
+    def _fields(self, d: dict) -> dict:
+        n, total, elapsed = d["n"], d["total"], d["elapsed"]
+        rate = d["rate"] or ((n - d["initial"]) / elapsed if elapsed > 0 else 0.0)
+        left = f", {(total - n) / rate:.0f} s left" if rate > 0 and n < total else ""
+        screened = f", {self.screened} screened" if self.screened else ""
+        return {"per_second": f"{rate:.4g}", "left": left, "screened": screened}
 
     def update(self, done: int, screened: int = 0) -> None:
         if not self.enabled:
             return
-        now = time.monotonic()
-        if now - self._last < self.every and done < self.total:
-            return
-        self._last = now
-        frac = done / self.total if self.total else 1.0
-        el = now - self._t0
-        rate = done / el if el > 0 else 0.0
-        left = (self.total - done) / rate if rate > 0 else float("nan")
-        eta = f", {left:.0f} s left" if rate > 0 and done < self.total else ""
-        scr = f", {screened} screened" if screened else ""
-        self._write(f"{self._bar(frac)} {done}/{self.total} designs ({rate:.4g}/s{eta}{scr})")
+        self.screened = screened
+        if self.bar is None:
+            self.bar = line(self.stream, self._fields, total=self.total, initial=done, desc=self.label,
+                            leave=False, ascii=".#", mininterval=self.every,
+                            bar_format="{desc} [{bar}] {n}/{total} designs ({per_second}/s{left}{screened})")
+        else:
+            self.bar.update(done - self.bar.n)
+
+    def close(self) -> None:
+        """Clear the line (if anything was drawn)."""
+        if self.bar is not None:
+            self.bar.close()
+            self.bar = None

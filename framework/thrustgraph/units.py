@@ -65,9 +65,6 @@ _EXAMPLES = {
     "": ("plain number", "0.6"),
 }
 
-_SI_CACHE: dict[str, str] = {}
-
-
 def describe_dimension(unit: str) -> tuple[str, str]:
     """Name the physical quantity a unit measures and give example values.
 
@@ -91,15 +88,14 @@ def _is_angle(unit: str) -> bool:
     return bool(unit) and str(Q_(1.0, unit).units) in ("degree", "radian", "arcminute", "arcsecond", "turn")
 
 
+@functools.lru_cache(maxsize=256)   # a cached call costs what the dict it replaces did (63 against 57 ns, interleaved)
 def si_unit(unit: str) -> str:
     """Return the SI base unit string for a declared unit (cached).
 
     >>> si_unit("bar")
     'kilogram / meter / second ** 2'
     """
-    if unit not in _SI_CACHE:
-        _SI_CACHE[unit] = str(Q_(1.0, unit).to_base_units().units)
-    return _SI_CACHE[unit]
+    return str(Q_(1.0, unit).to_base_units().units)
 
 
 #: Longest quantity text read (number, spaces and unit): longer text is refused before any parsing.
