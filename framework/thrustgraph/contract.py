@@ -51,7 +51,7 @@ import pluggy
 from .component import ComponentKind, EnvironmentKind
 from .errors import ContractError, ModelError, ThrustgraphError
 from .parameters import Quantity, Spec
-from .result import STANDARD_KEY_UNITS
+from .signalunits import STANDARD_KEY_UNITS
 from .units import Q_
 
 __all__ = ["Hook", "HOOKS", "BUILDERS", "check_declaration", "check_system", "signature_problem",

@@ -2,7 +2,8 @@
 
 Every figure is an entry of the plot registry (:mod:`thrustgraph.plotkinds`)
 whose subject is ``overlay``; this module draws them from an
-:class:`~thrustgraph.overlay.Overlay`. Predictions are lines (the first, the
+:class:`~thrustgraph.overlay.Overlay` (read through its ``runs``, so
+this module imports nothing of the measured-data layer). Predictions are lines (the first, the
 reference, the heaviest), measured records dots. A figure none of whose
 signals any run has is left out (``None``), as is a panel whose curves are
 all zero (the altitude of a boat).
@@ -28,7 +29,6 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from .displayunits import axis_scale, convert_array
-from .overlay import Overlay
 from .plotkinds import OVERLAY, PLOTS, plots_for
 from .plots import _RC, plain, render
 
@@ -47,7 +47,7 @@ def _new(rows: int, size: tuple[float, float]):
     return fig, fig.subplots(rows, 1, squeeze=False, sharex=True)
 
 
-def _draw(ax, ov: Overlay, signal: str, *, style_of: Any = None) -> bool:
+def _draw(ax, ov: Any, signal: str, *, style_of: Any = None) -> bool:
     """Every run's ``signal`` on ``ax``; False when no run has it."""
     having = [run for run in ov.runs if signal in run.signals]
     if not having:
@@ -80,7 +80,7 @@ def _finish(fig: Figure, axes: Sequence[Any], title: str) -> Figure:
     return fig
 
 
-def _signals_figure(ov: Overlay, signals: Sequence[str], title: str) -> Figure | None:
+def _signals_figure(ov: Any, signals: Sequence[str], title: str) -> Figure | None:
     """One panel per signal some run has, all-zero panels left out."""
     keep = [s for s in signals if any(s in r.signals and np.any(np.nan_to_num(r.signals[s]) != 0.0)
                                       for r in ov.runs)]
@@ -92,22 +92,22 @@ def _signals_figure(ov: Overlay, signals: Sequence[str], title: str) -> Figure |
     return _finish(fig, list(ax[:, 0]), title)
 
 
-def thrust_overlay(ov: Overlay) -> Figure | None:
+def thrust_overlay(ov: Any) -> Figure | None:
     """The thrust along the body axis of every run."""
     return _signals_figure(ov, ["thrust"], "Thrust, runs overlaid")
 
 
-def mass_overlay(ov: Overlay) -> Figure | None:
+def mass_overlay(ov: Any) -> Figure | None:
     """The vehicle mass of every run."""
     return _signals_figure(ov, ["mass"], "Mass, runs overlaid")
 
 
-def motion_overlay(ov: Overlay) -> Figure | None:
+def motion_overlay(ov: Any) -> Figure | None:
     """Altitude, horizontal distance and speed of every run."""
     return _signals_figure(ov, ["altitude", "range", "speed"], "Motion, runs overlaid")
 
 
-def pressure_overlay(ov: Overlay) -> Figure | None:
+def pressure_overlay(ov: Any) -> Figure | None:
     """The absolute pressure of every vessel of every run (a prediction, never a rating)."""
     names: list[str] = []
     for run in ov.runs:
@@ -120,7 +120,7 @@ def pressure_overlay(ov: Overlay) -> Figure | None:
     return _finish(fig, list(ax[:, 0]), "Vessel pressure (absolute), runs overlaid: a prediction, not a rating")
 
 
-def overlay_figures(ov: Overlay, names: Iterable[str] | None = None) -> dict[str, Figure]:
+def overlay_figures(ov: Any, names: Iterable[str] | None = None) -> dict[str, Figure]:
     """The overlay's figures that apply, by registry name, in registry order (or the order of ``names``)."""
     kinds = plots_for(OVERLAY) if names is None else [PLOTS[n] for n in names]
     out = {}

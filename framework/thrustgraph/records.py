@@ -65,7 +65,7 @@ from typing import Any, Sequence
 import numpy as np
 
 from .errors import ModelError
-from .result import TEXT_UNIT
+from .signalunits import TEXT_UNIT
 from .units import Q_, to_si
 
 __all__ = ["Record", "ColumnMap", "Trigger", "read_record", "loads_record", "parse_header", "resample",

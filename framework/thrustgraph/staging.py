@@ -47,7 +47,7 @@ from typing import Any, Callable
 
 from .errors import ModelError, shorten
 from .parameters import Quantity
-from .result import SIGNAL_UNITS
+from .signalunits import SIGNAL_UNITS
 from .units import to_si
 
 __all__ = ["Trigger", "parse_condition", "parse_stages", "parse_triggers", "check_stages", "KINEMATIC_SIGNALS",
