@@ -83,6 +83,11 @@ CASES = {
                'signal_units = {"choked": "", "choked": "1"}'),
         ["kind 'sharp-edged-orifice' (flow), signal_units['choked']: the key 'choked' is declared twice in "
          "signal_units (Python keeps only the last one)"]),
+    "signal reported bare": (
+        broken("sharp_orifices/orifice.py", 'signal_units = {"choked": ""}', 'signal_units = {}'),
+        ["kind 'sharp-edged-orifice' (flow) as component 'cap', FlowFns.signals = ",
+         "reports the signal 'choked' but its kind declares no unit for it",
+         "Fix: add 'choked': \"UNIT\" to the kind's signal_units (\"\" for a pure number)"]),
     "parameter declared twice": (
         broken("sharp_orifices/fitting.py", 'Number("loss_coefficient", default=0.5,', 'Number("bore", default=0.5,'),
         ["kind 'fitting-loss' (flow), parameter 'bore': is declared twice among the kind's parameters"]),

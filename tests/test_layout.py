@@ -23,19 +23,21 @@ PLUGINS = ROOT / "plugins"
 
 #: layer -> its modules (names inside the ``thrustgraph`` package). docs/layout.md says what each holds.
 LAYERS: dict[str, tuple[str, ...]] = {
-    "base": ("errors", "units", "version", "limits", "interrupts", "progress", "outputfiles", "xp"),
-    "kinds": ("parameters", "outcomespec", "vehicle", "component", "contract", "hookspecs", "modeldata"),
+    "base": ("errors", "units", "version", "limits", "interrupts", "progress", "outputfiles", "xp", "frames"),
+    "kinds": ("parameters", "outcomespec", "vehicle", "component", "contract", "hookspecs", "modeldata",
+              "signalunits", "displayunits"),
     "balance": ("plan", "balance", "vectors", "straightline", "arrayops", "sampling", "outcomes"),
     "models": ("plugins", "staging", "model", "modelfile", "designs"),
     "flight": ("assembly", "separation", "stepguard", "integrate", "result", "signallog", "arraysystem",
                "ensemble"),
-    "outputs": ("exportformats", "plotkinds", "plots", "studyplots", "report"),
-    "measured": ("records", "compare", "calibrate"),
+    "outputs": ("exportformats", "plotkinds", "plots", "studyplots", "report", "overlayplots"),
+    "measured": ("records", "compare", "calibrate", "overlay"),
     "studies": ("studyspec", "studyprogress", "studyflight", "engines", "studies", "dispersion", "optimisation",
                 "studykinds"),
     "cli": ("cli", "commands", "commands.calibrate", "commands.check", "commands.common", "commands.compare",
             "commands.export", "commands.graph", "commands.kinds", "commands.new", "commands.outputs",
-            "commands.plot", "commands.progress", "commands.report", "commands.run", "commands.study"),
+            "commands.plot", "commands.progress", "commands.report", "commands.run", "commands.study",
+            "commands.overlay"),
     "package": ("",),   # thrustgraph/__init__.py: the names a user imports from thrustgraph
 }
 

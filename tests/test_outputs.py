@@ -290,6 +290,7 @@ CASES = {
                   "/proc/nope/x"],
     "calibrate-plot": ["calibrate", "held.toml", "stand.csv", *RECORD, *FIT, "--out", "cal.toml", "--report",
                        "fit.json", "--plot", "nope/fit.png"],
+    "overlay": ["overlay", "held.toml", "stand.csv", *RECORD, "--table", "ok.csv", "--plots", "nope/plots"],
 }
 
 
@@ -309,7 +310,7 @@ def test_a_second_output_that_cannot_be_written_leaves_nothing(case, stand, tmp_
 def test_every_writing_command_is_covered():
     from thrustgraph.cli import COMMANDS
 
-    writers = {"run", "compare", "calibrate", "new", "export", "graph", "plot", "report", "study"}
+    writers = {"run", "compare", "overlay", "calibrate", "new", "export", "graph", "plot", "report", "study"}
     assert writers | {"check", "kinds"} == set(COMMANDS)
     assert writers == {args[0] for args in CASES.values()}
 
@@ -342,6 +343,7 @@ FULL_CASES = {
     "compare": ["compare", "held.toml", "stand.csv", *RECORD, "--json", "ok.json", "--plot", "tiny/c.png"],
     "calibrate": ["calibrate", "held.toml", "stand.csv", *RECORD, *FIT, "--out", "cal.toml", "--report", "fit.json",
                   "--plot", "tiny/fit.png"],
+    "overlay": ["overlay", "held.toml", "stand.csv", *RECORD, "--table", "ok.csv", "--plots", "tiny/plots"],
 }
 
 

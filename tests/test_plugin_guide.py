@@ -118,10 +118,10 @@ def test_guide_flight_starts_with_the_closed_form_liquid_flow(guide):
     assert float(first["cap.exit_velocity [m/s]"]) == pytest.approx(mdot / (rho * a_o), rel=1e-9)
     # the regime signal the orifice declares: not choked while water flows, choked when the gas blow-down starts
     rows = _rows(guide["work"] / "flight.csv")
-    wet = [r for r in rows if r["phase"] == "liquid thrust" and float(r["bottle.liquid_mass [kg]"]) > 1e-9]
-    assert len(wet) > 10 and all(float(r["cap.choked"]) == 0.0 for r in wet)
-    first_gas = next(r for r in rows if r["phase"] == "gas thrust")
-    assert float(first_gas["cap.choked"]) == 1.0
+    wet = [r for r in rows if r["phase [text]"] == "liquid thrust" and float(r["bottle.liquid_mass [kg]"]) > 1e-9]
+    assert len(wet) > 10 and all(float(r["cap.choked [1]"]) == 0.0 for r in wet)
+    first_gas = next(r for r in rows if r["phase [text]"] == "gas thrust")
+    assert float(first_gas["cap.choked [1]"]) == 1.0
 
 
 def test_guide_family_matches_the_builtin_nozzle_without_the_loss(guide, tmp_path):

@@ -47,7 +47,7 @@ from __future__ import annotations
 import difflib
 import json
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Sequence
 
@@ -84,11 +84,8 @@ def signal_series(result: FlightResult, name: str) -> np.ndarray:
 
 
 def signal_unit(result: FlightResult, name: str) -> str:
-    """SI unit of a (possibly component) signal name."""
-    base, _, comp = name.rpartition(".")
-    if comp in ("x", "y", "z") and base in result.signals:
-        return result.unit_of(base)
-    return result.unit_of(name)
+    """SI unit of a (possibly component) signal name, as the result declares it."""
+    return result.unit(name)
 
 
 def _check_map(record: Record, result: FlightResult, cmap: ColumnMap) -> None:
@@ -312,14 +309,17 @@ def match(result: FlightResult, record: Record, mapping: Sequence[ColumnMap], *,
     lo, hi = window(record, result, start, end, mapping)
     eps = 1e-9 * max(1.0, abs(hi))
     keep = (record.time >= lo - eps) & (record.time <= hi + eps)
-    if keep.sum() < 2:
-        raise ModelError(f"{record.source}: comparison window", f"fewer than two samples between {lo:.6g} s and "
-                         f"{hi:.6g} s", "widen the window or log faster")
-    ts = record.time[keep]
-    edges = _edges(ts)
-    edges[0] = max(edges[0], lo)
+    # a saved prediction repeats a time at a phase boundary: its value after the boundary stands for the sample
+    keep &= np.append(np.diff(record.time) > 0.0, True)
     out = []
     for cmap in mapping:
+        here = keep & ~np.isnan(record.column(cmap.column))   # a saved prediction's nan: no value there
+        if here.sum() < 2:
+            raise ModelError(f"{record.source}: comparison window", f"fewer than two samples of column "
+                             f"{cmap.column!r} between {lo:.6g} s and {hi:.6g} s", "widen the window or log faster")
+        ts = record.time[here]
+        edges = _edges(ts)
+        edges[0] = max(edges[0], lo)
         y = signal_series(result, cmap.signal)
         ybad = ~np.isfinite(y)
         if np.any(ybad & (result.t <= hi)):
@@ -327,7 +327,7 @@ def match(result: FlightResult, record: Record, mapping: Sequence[ColumnMap], *,
             raise ModelError(f"signal {cmap.signal!r}", f"has no value at t = {result.t[k]:.6g} s "
                              f"(phase {result.phase_at(float(result.t[k]))!r})",
                              "compare a signal the model defines over the whole window, or shorten the window")
-        meas = measured_values(record, cmap, result)[keep]
+        meas = measured_values(record, cmap, result)[here]
         pred = interval_means(result.t, y, edges)
         out.append(Matched(cmap=cmap, unit=signal_unit(result, cmap.signal), t=ts, measured=meas, predicted=pred,
                            t_model=result.t, y_model=y, start=lo, end=hi))
@@ -368,6 +368,8 @@ class SignalComparison:
     predicted: np.ndarray = field(repr=False)
     t_model: np.ndarray = field(repr=False)
     y_model: np.ndarray = field(repr=False)
+    #: the unit of the record's column: the report and plots show the values in it (SI when it has an offset)
+    record_unit: str = ""
 
     @property
     def residual(self) -> np.ndarray:
@@ -447,10 +449,24 @@ def _metrics_of(mt: Matched) -> SignalComparison:
 _DISPLAY = {"Pa": ("kPa", 1e-3), "m^3": ("L", 1e3)}
 
 
-def _show(value: float | None, unit: str, signed: bool = False) -> str:
+def _unit_of(s: "SignalComparison") -> tuple[str, float]:
+    """(unit, factor from SI) a comparison is shown in: the record column's own unit (lbf, psi, ft), so that a
+    record is read back in the units it was logged in; SI (kPa for a pressure) for a plain or offset unit."""
+    u = s.record_unit
+    if u and Q_(0.0, u).to_base_units().magnitude == 0.0:       # no offset (degC is shown in K)
+        try:
+            return u, float(Q_(1.0, s.unit).to(u).magnitude)
+        except Exception:  # noqa: BLE001 - pint raises several types; a mismatch was refused earlier
+            pass
+    name, k = _DISPLAY.get(s.unit, (s.unit, 1.0))
+    return name, k
+
+
+def _show(value: float | None, unit: str | "SignalComparison", signed: bool = False) -> str:
+    """A value (SI) as the report shows it: in the record's unit for a :class:`SignalComparison`, else SI."""
     if value is None:
         return "-"
-    name, k = _DISPLAY.get(unit, (unit, 1.0))
+    name, k = _unit_of(unit) if isinstance(unit, SignalComparison) else _DISPLAY.get(unit, (unit, 1.0))
     return f"{value * k:{'+' if signed else ''}.5g} {name}".rstrip()
 
 
@@ -485,24 +501,25 @@ class Comparison:
             lines.append(f"{s.signal}  <-  column {s.column!r}{ref}  ({s.n} samples)")
             rel = f"   ({100 * s.rms_error / abs(s.peak_measured):.3g} % of the measured peak)" \
                 if s.peak_measured else ""
-            lines.append(f"  RMS error         {_show(s.rms_error, s.unit)}{rel}")
-            lines.append(f"  mean error        {_show(s.mean_error, s.unit, True)}")
-            lines.append(f"  largest error     {_show(s.max_abs_error, s.unit)}")
-            lines.append(f"  peak              measured {_show(s.peak_measured, s.unit)} at "
+            lines.append(f"  RMS error         {_show(s.rms_error, s)}{rel}")
+            lines.append(f"  mean error        {_show(s.mean_error, s, True)}")
+            lines.append(f"  largest error     {_show(s.max_abs_error, s)}")
+            lines.append(f"  peak              measured {_show(s.peak_measured, s)} at "
                          f"{s.peak_time_measured:.5g} s,"
-                         f" predicted {_show(s.peak_predicted, s.unit)} at {s.peak_time_predicted:.5g} s")
-            lines.append(f"  peak error        {_show(s.peak_error, s.unit, True)};"
+                         f" predicted {_show(s.peak_predicted, s)} at {s.peak_time_predicted:.5g} s")
+            lines.append(f"  peak error        {_show(s.peak_error, s, True)};"
                          f" time-to-peak error {s.peak_time_error:+.5g} s")
             if s.impulse_error is not None:
                 rel = f" ({100 * s.impulse_error / s.impulse_measured:+.3g} %)" if s.impulse_measured else ""
-                lines.append(f"  impulse           measured {s.impulse_measured:.5g} N*s, predicted "
-                             f"{s.impulse_predicted:.5g} N*s: error {s.impulse_error:+.5g} N*s{rel}")
+                u, k = _unit_of(s)
+                lines.append(f"  impulse           measured {s.impulse_measured * k:.5g} {u}*s, predicted "
+                             f"{s.impulse_predicted * k:.5g} {u}*s: error {s.impulse_error * k:+.5g} {u}*s{rel}")
             if s.apogee_error is not None:
-                lines.append(f"  apogee            measured {s.apogee_measured:.5g} m, predicted "
-                             f"{s.apogee_predicted:.5g} m: error {s.apogee_error:+.5g} m")
+                lines.append(f"  apogee            measured {_show(s.apogee_measured, s)}, predicted "
+                             f"{_show(s.apogee_predicted, s)}: error {_show(s.apogee_error, s, True)}")
         lines.append("")
-        lines.append("Errors are prediction minus measurement. A gauge column is compared as absolute pressure "
-                     "(the model's ambient pressure added).")
+        lines.append("Errors are prediction minus measurement, in the units of the record's columns. A gauge column "
+                     "is compared as absolute pressure (the model's ambient pressure added).")
         return "\n".join(lines)
 
     def to_dict(self) -> dict[str, Any]:
@@ -534,7 +551,8 @@ def compare(result: FlightResult, record: Record, mapping: Sequence[ColumnMap], 
     matched = match(result, record, mapping, start=start, end=end)
     return Comparison(source=record.source, sha256=record.sha256, offset=record.offset, history=record.history,
                       start=matched[0].start, end=matched[0].end,
-                      signals=tuple(_finite_metrics(_metrics(m), record.source) for m in matched))
+                      signals=tuple(replace(_finite_metrics(_metrics(m), record.source),
+                                            record_unit=record.units.get(m.cmap.column, "")) for m in matched))
 
 
 # -- plots -----------------------------------------------------------------------
@@ -565,14 +583,14 @@ def render_comparison(comparisons: Comparison | Sequence[Comparison], fmt: str =
     FigureCanvasAgg(fig)
     grid = fig.add_gridspec(2 * len(pairs), 1, height_ratios=[3, 1] * len(pairs))
     for k, (c, s) in enumerate(pairs):
-        name, scale = _DISPLAY.get(s.unit, (s.unit, 1.0))
+        name, scale = _unit_of(s)
         top = fig.add_subplot(grid[2 * k])
         bottom = fig.add_subplot(grid[2 * k + 1], sharex=top)
         top.plot(s.t, s.measured * scale, ".", ms=2.5, color="0.35", label=plain(f"measured ({Path(c.source).name})"))
         top.plot(s.t_model, s.y_model * scale, "-", lw=1.4, color="C0", label="predicted")
         ref = f", {s.pressure} column" if s.pressure else ""
         top.set_ylabel(plain(f"{s.signal} [{name or '1'}]"))
-        top.set_title(plain(f"{s.signal}  <-  {s.column}{ref}: RMS error {_show(s.rms_error, s.unit)}"), fontsize=9)
+        top.set_title(plain(f"{s.signal}  <-  {s.column}{ref}: RMS error {_show(s.rms_error, s)}"), fontsize=9)
         top.legend(fontsize=8, loc="best")
         top.grid(True, lw=0.3)
         bottom.plot(s.t, s.residual * scale, ".", ms=2.0, color="C3")

@@ -364,7 +364,9 @@ class ComponentKind(_Declared):
     stores_pressure: ClassVar[bool] = False
     #: True when the callables are written once for floats and arrays (:mod:`thrustgraph.xp`; ensembles).
     vectorised: ClassVar[bool] = False
-    #: SI units of the signals this kind reports (signal key -> unit), for results, CSV headers and triggers.
+    #: SI units of the signals this kind reports (signal key -> unit, ``""`` for a pure number), for results, CSV
+    #: headers, plots and triggers: every key but the standard ones (:data:`thrustgraph.result.STANDARD_KEY_UNITS`)
+    #: must be declared here (the contract refuses a signal with no unit when a vehicle is assembled).
     signal_units: ClassVar[dict[str, str]] = {}
     #: The outcomes :meth:`summarize` returns, each declared once (key, quantity, SI and display unit, label,
     #: meaning): they join the outcome registry (:mod:`thrustgraph.outcomes`), which refuses a key declared twice

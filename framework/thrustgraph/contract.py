@@ -15,8 +15,9 @@ never in a traceback from inside the generated right-hand side.
   every callable of every bundle (:data:`HOOKS`) must accept the positional
   arguments the balance passes, and, called once at the initial state with the
   launch ambient, must return the documented shape: the tuple length, finite
-  numbers, a dict of numbers for signals; it must not change the state list it
-  is given. A callable whose code has passed once is not tried again: a study
+  numbers, a dict of numbers for signals, each with a unit (a standard key or
+  one the kind declares in ``signal_units``); it must not change the state list
+  it is given. A callable whose code has passed once is not tried again: a study
   that assembles 10,000 designs of one vehicle checks its callables once (per
   process), the first time; a later design whose own numbers go wrong at its
   start is the integrator's to report, as a screened design. Only the scalar
@@ -50,6 +51,7 @@ import pluggy
 from .component import ComponentKind, EnvironmentKind
 from .errors import ContractError, ModelError, ThrustgraphError
 from .parameters import Quantity, Spec
+from .signalunits import STANDARD_KEY_UNITS
 from .units import Q_
 
 __all__ = ["Hook", "HOOKS", "BUILDERS", "check_declaration", "check_system", "signature_problem",
@@ -484,7 +486,18 @@ class _Trial:
                             f"{hook.returns} was expected" + (f" (it warned {said})" if said else ""), expect)
         for w in warned:                  # a callable that keeps the contract keeps its warnings too
             warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+        if hook.shape == "dict" and not comp.startswith("environment."):
+            self._units(comp, cls, item, out)
         return out
+
+    def _units(self, comp: str, cls: type, item: str, out: dict) -> None:
+        """Every signal a component reports has a unit: a standard key or one its kind declares."""
+        declared = getattr(cls, "signal_units", {})
+        for key in out:
+            if key not in declared and STANDARD_KEY_UNITS.get(key) is None:
+                raise self.fail(comp, cls, item, f"reports the signal {key!r} but its kind declares no unit for it",
+                                f"add {key!r}: \"UNIT\" to the kind's signal_units (\"\" for a pure number), "
+                                "or use a standard key (thrustgraph.result.STANDARD_KEY_UNITS)")
 
     def _shape(self, cls: type, hook: Hook, out: Any) -> str | None:
         if hook.shape == "float":

@@ -38,6 +38,7 @@ from typing import Any, Sequence
 import numpy as np
 
 from .errors import ModelError
+from .frames import statistics_frame
 from .limits import MAX_DESIGNS, check_count
 from .model import Model
 from .outcomes import OUTCOMES
@@ -152,6 +153,11 @@ class Dispersion:
                 lines.append(f"  {lvl * 100:g} % ellipse: semi-axes {e.semi_major:.4g} m x {e.semi_minor:.4g} m, "
                              f"major axis at {math.degrees(e.angle):.1f} deg from +x")
         return "\n".join(lines)
+
+    def to_pandas(self):
+        """The statistics per outcome as a pandas DataFrame (optional dependency ``pandas``; the designs are
+        ``self.table.to_pandas()``): :func:`thrustgraph.frames.statistics_frame`."""
+        return statistics_frame(self, {o: OUTCOMES[o].unit for o in self.stats})
 
     def stats_csv(self) -> str:
         """Statistics per outcome (and the footprint) as CSV text."""

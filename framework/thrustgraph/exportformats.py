@@ -104,8 +104,9 @@ def _csv(result: FlightResult) -> str:
 
 for _fmt in (
     ExportFormat("csv", "CSV", "the time series (every signal and ledger term)", _csv,
-                 detail="one row per output time, a header `name [unit]` per column, `#` provenance lines first, "
-                        "a `phase` column last"),
+                 detail="one row per output time, a header `name [unit]` per column (`[1]` for a pure number), "
+                        "`#` provenance lines and the outcomes (`# outcome KEY [UNIT] = VALUE`) first, a "
+                        "`phase [text]` column last; `compare` and `overlay` read it back"),
     ExportFormat("json", "JSON", "the summary, phases, events and audits", FlightResult.to_json,
                  detail="per outcome key: SI `value`, SI `unit` and `label`, from the outcome registry; also the "
                         "cautions and the provenance"),

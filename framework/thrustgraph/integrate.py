@@ -32,7 +32,7 @@ from .errors import IntegrationError, ModelError, PluginError
 from .limits import check_output_samples
 from .model import Model, ParsedModel
 from .outcomes import OUTCOMES, kind_outcomes, run_summary
-from .result import Audit, Event, FlightResult, Phase
+from .result import Audit, Event, FlightResult, Phase, signal_unit
 from .sampling import SampleTable, join_tables, sample_terms
 from .separation import separate
 from .signallog import signal_events
@@ -192,11 +192,40 @@ def available_signals(system: System) -> dict[str, str]:
     """Signals a trigger can watch on this vehicle: name -> SI unit."""
     bal = Balance(system)
     snap = bal.evaluate(0.0, np.array(system.y0))
-    declared = {f"{n}.{key}": u for n, cls in system.parsed.kinds.items() for key, u in cls.signal_units.items()}
+    declared = declared_signal_units(system.parsed)
     out = dict(KINEMATIC_SIGNALS)
     for k, v in snap.items():
         if "." in k and isinstance(v, float) and not k.startswith("audit."):
-            out[k] = declared.get(k) or FlightResult.unit_of(k)
+            out[k] = signal_unit(k, declared) or ""
+    return out
+
+
+def declared_signal_units(parsed: ParsedModel) -> dict[str, str]:
+    """``COMPONENT.KEY`` -> SI unit of every signal the model's component kinds declare (``signal_units``)."""
+    return {f"{n}.{key}": u for n, cls in parsed.kinds.items() for key, u in cls.signal_units.items()}
+
+
+def signal_units(parsed: ParsedModel, names: Any) -> dict[str, str]:
+    """The SI unit of every signal named, from :func:`~thrustgraph.result.signal_unit`; a signal with none is
+    refused, naming the component's kind and what to declare.
+
+    >>> from thrustgraph.modelfile import load_model, default_model_path
+    >>> from thrustgraph.model import parse_model
+    >>> signal_units(parse_model(load_model(default_model_path())), ["gravity", "bottle.pressure"])
+    {'gravity': 'm/s^2', 'bottle.pressure': 'Pa'}
+    """
+    declared = declared_signal_units(parsed)
+    out = {}
+    for name in names:
+        unit = signal_unit(name, declared)
+        if unit is None:
+            comp, _, key = name.rpartition(".")
+            cls = parsed.kinds.get(comp)
+            who = f"kind {cls.kind!r} (component {comp!r})" if cls is not None else "the core"
+            raise PluginError(f"signal {name!r}: {who} reports it but declares no unit for it. Fix: add "
+                              f"{key!r}: \"UNIT\" to the kind's signal_units (\"\" for a pure number), or use a "
+                              "standard key (thrustgraph.result.STANDARD_KEY_UNITS)")
+        out[name] = unit
     return out
 
 
@@ -680,6 +709,7 @@ def _sample(segs: Segments, interval: float) -> _Samples:
         else:
             out.phases.append(Phase(name, t0, t1))
         grid = np.arange(t0, t1, interval)[1:] if t1 > t0 else np.empty(0)
+        grid = grid[grid < t1]   # arange's rounding can put its last point past the end (times would go back)
         tt = np.union1d(sol.t, grid)
         uniq_t, first = np.unique(sol.t, return_index=True)
         yy = sol.sol(tt) if len(tt) > len(uniq_t) else sol.y[:, first].copy()
@@ -766,9 +796,7 @@ def _audit(signals: dict[str, np.ndarray], last: np.ndarray, index: dict[str, in
 
 def _summarise(res: FlightResult, system: System, segs: Segments) -> None:
     """The summary from the outcome registry, then the outcomes the component kinds declare, with units."""
-    for n, cls in system.parsed.kinds.items():
-        for key, u in cls.signal_units.items():
-            res.units[f"{n}.{key}"] = u
+    res.units.update(signal_units(system.parsed, res.signals))
     res.vehicle = vehicle_profile(system.parsed)
     res.summary = run_summary(system, segs)
     res.outcome_specs = {k: OUTCOMES[k] for k in res.summary}

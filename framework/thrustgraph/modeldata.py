@@ -23,6 +23,7 @@ import pluggy
 
 from .component import Ambient, ComponentKind, EnvironmentKind
 from .errors import ModelError, shorten
+from .displayunits import UnitsSpec
 from .parameters import Choice, Flag, Number, Quantity
 
 __all__ = ["Model", "ParsedModel", "LAUNCH_SPECS", "RUN_SPECS", "parse_paths"]
@@ -55,6 +56,8 @@ RUN_SPECS = (
     Quantity("output_interval", "s", default="0.01 s", low=0.0, low_open=True, high=1e6,
              doc="spacing of the evenly sampled output added to the solver's own steps"),
     Flag("stop_at_apogee", default=False, doc="end the flight at apogee"),
+    UnitsSpec("units", doc="the units the results are shown in (terminal, report, plots, exports); the command "
+                           "line's --units overrides it"),
 )
 
 _TOP_KEYS = ("format", "version", "name", "description", "components", "flow_paths", "environment", "launch", "run")

@@ -17,6 +17,9 @@ draws and so how its function is called:
     apply to this flight, e.g. ``pressure`` without vessels)
 ``model``
     ``function(parsed: ParsedModel) -> Figure`` (the component graph)
+``overlay``
+    ``function(overlay: Overlay) -> Figure | None`` (several runs on one set
+    of axes, :mod:`thrustgraph.overlay`; None: no run has what it draws)
 a study kind (``sweep``, ``dispersion``, ... of :mod:`thrustgraph.studykinds`)
     ``function(study_result, output: str | None) -> Figure`` (``output``:
     the outcome to show first, None for the study's default)
@@ -39,11 +42,11 @@ import importlib
 from dataclasses import dataclass
 from typing import Any, Callable
 
-__all__ = ["PlotKind", "PLOTS", "FLIGHT", "MODEL", "IMAGE_FORMATS", "register", "plots_for", "names",
+__all__ = ["PlotKind", "PLOTS", "FLIGHT", "MODEL", "OVERLAY", "IMAGE_FORMATS", "register", "plots_for", "names",
            "markdown_list"]
 
-#: The subject of a plot of one flight, and of the component graph.
-FLIGHT, MODEL = "flight", "model"
+#: The subject of a plot of one flight, of the component graph, and of several runs overlaid.
+FLIGHT, MODEL, OVERLAY = "flight", "model", "overlay"
 
 #: Image formats every plot can be written in.
 IMAGE_FORMATS = ("png", "svg")
@@ -112,6 +115,7 @@ def markdown_list(*subjects: str) -> str:
 
 _F = "thrustgraph.plots:"
 _S = "thrustgraph.studyplots:"
+_O = "thrustgraph.overlayplots:"
 for _kind in (
     PlotKind("thrust", FLIGHT, _F + "thrust_figure",
              "Gross thrust along the body axis (and the net thrust where fluid enters: an inlet's ram drag, a "
@@ -131,6 +135,12 @@ for _kind in (
              "y and z (up)."),
     PlotKind("graph", MODEL, _F + "graph_figure", "The component graph. The dashed box is the control surface: flow "
              "that crosses it carries momentum into the balance."),
+    PlotKind("overlay-thrust", OVERLAY, _O + "thrust_overlay", "The thrust along the body axis of every run."),
+    PlotKind("overlay-mass", OVERLAY, _O + "mass_overlay", "The vehicle mass of every run."),
+    PlotKind("overlay-motion", OVERLAY, _O + "motion_overlay", "Altitude, horizontal distance and speed of every "
+             "run, a panel left out where every run stays at zero."),
+    PlotKind("overlay-pressure", OVERLAY, _O + "pressure_overlay", "The absolute pressure of every vessel of every "
+             "run. A prediction, never a rating.", needs="a vessel"),
     PlotKind("sweep", "sweep", _S + "sweep_figure", "One varied parameter: every outcome asked for against it; two: a "
              "filled map of the first outcome, screened designs crossed out and the highest marked; more: a "
              "scatter of the first two parameters coloured by the outcome."),

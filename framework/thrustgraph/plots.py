@@ -33,12 +33,11 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.patches import FancyBboxPatch, Patch
 
+from .displayunits import axis_scale, current, shown
 from .outputfiles import write_all
 from .plotkinds import FLIGHT, IMAGE_FORMATS, PLOTS
 from .plotkinds import names as plot_names
-from .outcomespec import display_unit
 from .result import FlightResult
-from .units import Q_
 
 __all__ = ["figure", "figures", "render", "save_plots", "graph_figure", "summary_title", "powered_window", "plain",
            "thrust_figure", "mass_figure", "pressure_figure", "motion_figure", "trajectory_figure", "ledger_figure",
@@ -125,15 +124,21 @@ def _limit(ax, result: FlightResult, t_max: float | None, t_min: float | None = 
 
 
 def _scaled(unit: str, values: np.ndarray) -> tuple[str, float]:
-    """The display unit of a curve, chosen by its largest magnitude through the registry's one function
-    (:func:`~thrustgraph.outcomespec.display_unit`), and the factor from SI to it."""
-    big = float(np.nanmax(np.abs(values))) if len(values) and np.any(np.isfinite(values)) else 0.0
-    shown = display_unit(unit, big)
-    return shown, float(Q_(1.0, unit).to(shown).magnitude) if shown != unit else 1.0
+    """The display unit of a curve in the units of choice in force (:func:`~thrustgraph.displayunits.axis_scale`;
+    under SI chosen by its largest magnitude, :func:`~thrustgraph.outcomespec.display_unit`), and the factor from SI
+    to it."""
+    f, shown = axis_scale(unit, values)       # the units of choice in force; under SI by magnitude
+    return shown, f
 
 
 def _mass_unit(result: FlightResult) -> tuple[str, float]:
     return _scaled("kg", result.signals["mass"])
+
+
+def _scale(si: str, *values: Any, display: str | None = None) -> tuple[float, str]:
+    """(factor, unit) of an axis of SI values in the units of choice in force (:func:`axis_scale`)."""
+    arrays = [np.ravel(np.asarray(v, dtype=float)) for v in values]
+    return axis_scale(si, np.concatenate(arrays) if arrays else np.empty(0), display=display)
 
 
 def _title(fig, result: FlightResult, what: str) -> None:
@@ -148,8 +153,15 @@ def summary_title(r: FlightResult, keys: Iterable[str]) -> str:
     >>> summary_title(fly(), ("apogee", "peak_acceleration"))
     'apogee 54.36 m, peak acceleration 1179 m/s^2 (120.2 g0)'
     """
-    return ", ".join(f"{r.outcome_specs[k].label} {r.outcome_specs[k].text(r.summary[k], 4)}"
+    return ", ".join(f"{r.outcome_specs[k].label} {_text(r.outcome_specs[k], r.summary[k])}"
                      for k in keys if k in r.summary and k in r.outcome_specs)
+
+
+def _text(spec: Any, value: float) -> str:
+    """An outcome's value in the units of choice in force, and in its ``also`` units (``g0``)."""
+    v, unit = shown(value, spec.unit, display=spec.display)
+    extra = ", ".join(f"{spec.shown(value, u):.4g} {u}" for u in spec.also)
+    return f"{v:.4g}" + (f" {unit}" if unit else "") + (f" ({extra})" if extra else "")
 
 
 # ---------------------------------------------------------------------------
@@ -181,6 +193,8 @@ def thrust_figure(r: FlightResult) -> Figure:
     flows = [n for n in sources if f"{n}.mass_flow" in r.signals]
     peak_flow = max((float(np.max(r.signals[f"{n}.mass_flow"])) for n in flows), default=0.0)
     unit, f = ("kg/s", 1.0) if peak_flow >= 1.0 else ("g/s", 1e3)
+    if not current().is_si:
+        f, unit = _scale("kg/s", [peak_flow])
     for n in flows:
         b.plot(r.t, r.signals[f"{n}.mass_flow"] * f, lw=1.3, label=plain(n))
     b.set_ylabel(f"mass flow [{unit}]")
@@ -223,12 +237,13 @@ def pressure_figure(r: FlightResult) -> Figure | None:
     w = powered_window(r)
     fig, ax = _new(1, 1, (8.0, 4.5))
     a = ax[0, 0]
+    pf, pu = _scale("Pa", *(r.signals[k] for k in keys), display="bar")
     for k, key in enumerate(keys):
-        a.plot(r.t, r.signals[key] / 1e5, lw=1.8, color=_TERM_COLOURS[k % 10], label=plain(f"{key[:-9]} (absolute)"),
+        a.plot(r.t, r.signals[key] * pf, lw=1.8, color=_TERM_COLOURS[k % 10], label=plain(f"{key[:-9]} (absolute)"),
                zorder=3)
     if "ambient_pressure" in r.signals:
-        a.plot(r.t, r.signals["ambient_pressure"] / 1e5, color="#444444", lw=1.0, ls=":", label="ambient")
-    a.set_ylabel("pressure [bar]")
+        a.plot(r.t, r.signals["ambient_pressure"] * pf, color="#444444", lw=1.0, ls=":", label="ambient")
+    a.set_ylabel(f"pressure [{pu}]")
     a.set_xlabel("time [s]" + (" (powered flight)" if w else ""))
     a.legend(loc="upper right")
     a.set_title("vessel pressure (a prediction, not a rating of any vessel)")
@@ -268,11 +283,15 @@ def motion_figure(r: FlightResult) -> Figure | None:
     unit, f = _scaled("m", values)
     fig, ax = _new(3, 1, (8.0, 7.5), sharex=True)
     if kind == "hovering":      # it bobs up and down: vertical speed and acceleration, signed
-        rows = [(values * f, f"{what} [{unit}]"), (s["velocity"][:, 2], "vertical speed [m/s]"),
-                (s["acceleration"][:, 2], "vertical acceleration [m/s²]")]
+        speed, speed_word = s["velocity"][:, 2], "vertical speed"
+        accel, accel_word = s["acceleration"][:, 2], "vertical acceleration"
     else:
-        rows = [(values * f, f"{what} [{unit}]"), (s["speed"], "speed [m/s]"),
-                (s.get("path_acceleration", s["acceleration_magnitude"]), "acceleration along the path [m/s²]")]
+        speed, speed_word = s["speed"], "speed"
+        accel, accel_word = s.get("path_acceleration", s["acceleration_magnitude"]), "acceleration along the path"
+    su, sf = _scaled("m/s", speed)
+    au, af = _scaled("m/s^2", accel)
+    rows = [(values * f, f"{what} [{unit}]"), (speed * sf, f"{speed_word} [{su}]"),
+            (accel * af, f"{accel_word} [{au.replace('^2', '²')}]")]
     for (curve, label), a in zip(rows, ax[:, 0]):
         a.plot(r.t, curve, color=MAIN, lw=1.6, zorder=3)
         a.set_ylabel(label)
@@ -289,7 +308,8 @@ def motion_figure(r: FlightResult) -> Figure | None:
 def trajectory_figure(r: FlightResult) -> Figure:
     fig, ax = _new(1, 1, (8.0, 5.0))
     a = ax[0, 0]
-    x, z = r.signals["range"], r.signals["altitude"]
+    lf, lu = _scale("m", r.signals["range"], r.signals["altitude"])
+    x, z = r.signals["range"] * lf, r.signals["altitude"] * lf
     a.plot(x, z, color=MAIN, lw=1.8, zorder=3)
     marks = {"guide exit": "^", "apogee": "o", "ground impact": "v", "liquid exhausted": "s", "gas exhausted": "D",
              "burnout": "s"}
@@ -297,11 +317,11 @@ def trajectory_figure(r: FlightResult) -> Figure:
         if e.name in marks:
             i = min(int(np.searchsorted(r.t, e.t)), len(r.t) - 1)
             a.plot([x[i]], [z[i]], marks[e.name], ms=6, zorder=4, ls="", markeredgecolor="#333333",
-                   label=plain(f"{e.name}: t = {e.t:.4g} s, {x[i]:.3g} m, {z[i]:.3g} m up"))
+                   label=plain(f"{e.name}: t = {e.t:.4g} s, {x[i]:.3g} {lu}, {z[i]:.3g} {lu} up"))
     if a.get_legend_handles_labels()[0]:
         a.legend(loc="upper left", title="events (time, distance, altitude)", title_fontsize=8)
-    a.set_xlabel("horizontal distance from the launch point [m]")
-    a.set_ylabel("altitude [m]")
+    a.set_xlabel(f"horizontal distance from the launch point [{lu}]")
+    a.set_ylabel(f"altitude [{lu}]")
     if float(np.ptp(x)) > 0 and float(np.ptp(z)) > 0:
         a.set_aspect("equal", adjustable="datalim")
     _title(fig, r, "Trajectory")
@@ -347,14 +367,15 @@ def _ledger(r: FlightResult, directions: tuple[str, ...]) -> Figure:
     colours = {n: _TERM_COLOURS[k % len(_TERM_COLOURS)] for k, n in enumerate(names)}
     shown: list[str] = []
     label = {"axis": "along the body axis", "x": "along x (downrange)", "y": "along y", "z": "along z (up)"}
+    ff, fu = _scale("N", *r.ledger.values())
     for i, d in enumerate(directions):
-        terms = _terms(r.ledger_along(d))
+        terms = [(n, v * ff) for n, v in _terms(r.ledger_along(d))]
         shown += [n for n, _ in terms if n not in shown]
         windows = [(None, w), (w, None)] if w else [(None, None)]
         for j, window in enumerate(windows):
             a = ax[i, j]
             _stack(a, r, terms, colours, window)
-            a.set_ylabel(f"force {label[d]} [N]")
+            a.set_ylabel(f"force {label[d]} [{fu}]")
             if i == 0:
                 a.set_title({0: "powered flight", 1: "after the powered flight"}[j] if w else "whole flight")
             if i == rows - 1:

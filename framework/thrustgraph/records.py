@@ -9,6 +9,18 @@ registry of :mod:`thrustgraph.units`, so ``psi``, ``lbf``, ``ft``, ``kPa``,
 ``[1]``. Lines starting with ``#`` are notes and are skipped; the delimiter is
 a comma, a semicolon or a tab.
 
+A column of words rather than numbers (a logger's state, a note) is marked
+``[text]``; its cells are kept as written in :attr:`Record.labels`.
+
+thrustgraph reads its own CSV export the same way (:meth:`FlightResult.to_csv
+<thrustgraph.result.FlightResult.to_csv>`: every header carries its unit, the
+phase is a ``[text]`` column). A file whose first line is the export's
+provenance line ``# thrustgraph VERSION`` is read as a saved prediction
+(:attr:`Record.exported`): a time may repeat there (the values just before
+and just after a phase boundary), a value may be ``nan`` (a signal
+with no value in that phase), and its ``#`` lines are kept in
+:attr:`Record.notes`. A measured record gets neither allowance.
+
 A :class:`Record` is immutable: :func:`resample`, :func:`lowpass`,
 :func:`shift`, :func:`trim` and :func:`align` return new records and append a
 line to its ``history``. Times are kept in the model's clock once the record
@@ -53,11 +65,12 @@ from typing import Any, Sequence
 import numpy as np
 
 from .errors import ModelError
+from .signalunits import TEXT_UNIT
 from .units import Q_, to_si
 
 __all__ = ["Record", "ColumnMap", "Trigger", "read_record", "loads_record", "parse_header", "resample",
            "lowpass", "shift", "trim", "align", "trigger_time", "crossing_time", "is_even", "MAX_HEADER_CELL",
-           "MIN_SAMPLE_INTERVAL"]
+           "MIN_SAMPLE_INTERVAL", "EXPORT_MARK"]
 
 #: The longest header cell read, characters: a name and a unit ("bottle pressure [psi]"), not a document.
 MAX_HEADER_CELL = 200
@@ -65,6 +78,8 @@ MAX_HEADER_CELL = 200
 #: (common practice, no source); closer times are a unit slip (ms written as s) or corrupt data.
 MIN_SAMPLE_INTERVAL = 1e-9
 
+#: The first line of a thrustgraph export (its provenance): what marks a file as a saved prediction.
+EXPORT_MARK = re.compile(r"^#\s*thrustgraph\s+\S+\s*$")
 _HEADER = re.compile(r"^\s*(?P<name>[^\[\]]*?)\s*\[(?P<unit>[^\[\]]*)\]\s*$")
 # the other common form, "Time (s)": the unit in round brackets at the end (a unit may hold one more pair)
 _HEADER_ROUND = re.compile(r"^\s*(?P<name>[^\[\]()]*?)\s*\((?P<unit>[^()\[\]]*(?:\([^()]*\)[^()\[\]]*)?)\)\s*$")
@@ -103,6 +118,9 @@ class Record:
     time_column : name of the time column in the file
     offset : file time of the model's t = 0, s (``time = file time - offset``)
     history : what was done to the record since it was read, in order
+    labels : column name -> (n,) cells of a ``[text]`` column, as written
+    notes : the file's ``#`` lines (without the ``#``), in order
+    exported : True for a thrustgraph export read back (a saved prediction, not a measurement)
     """
 
     source: str
@@ -114,6 +132,9 @@ class Record:
     time_column: str = "time"
     offset: float = 0.0
     history: tuple[str, ...] = field(default=())
+    labels: dict[str, tuple[str, ...]] = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
+    exported: bool = False
 
     def column(self, name: str) -> np.ndarray:
         """SI values of a column; a wrong name gets the closest one suggested."""
@@ -218,6 +239,8 @@ def parse_header(cell: str, *, where: str) -> tuple[str, str]:
     ('pressure', 'psi')
     >>> parse_header("ratio [1]", where="x.csv")
     ('ratio', '')
+    >>> parse_header("phase [text]", where="x.csv")
+    ('phase', 'text')
     >>> parse_header("Time (s)", where="x.csv"), parse_header("c_p (J/(kg K))", where="x.csv")
     (('Time', 's'), ('c_p', 'J/(kg K)'))
     """
@@ -229,6 +252,8 @@ def parse_header(cell: str, *, where: str) -> tuple[str, str]:
     name, unit = m.group("name"), m.group("unit").strip()
     if unit in _PLAIN:
         return name, ""
+    if unit == TEXT_UNIT:
+        return name, TEXT_UNIT
     chained = re.search(r"(\*\*|\^)\s*\(?\s*[-+]?[\d.]+\s*\)?\s*(\*\*|\^)", unit)   # a**b**c
     if re.search(r"\d{7,}", unit) or chained or any(
             int(p) > 12 for p in re.findall(r"(?:\*\*|\^)\s*\(?\s*[-+]?(\d+)", unit)):
@@ -264,7 +289,11 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
     """Read a record from CSV text; every error names ``source``, the column and the line."""
     if sha256 is None:
         sha256 = hashlib.sha256(text.encode("utf-8")).hexdigest()
-    lines = [(k, line) for k, line in enumerate(text.splitlines(), start=1)
+    all_lines = text.splitlines()
+    notes = tuple(line.strip()[1:].strip() for line in all_lines if line.lstrip().startswith("#"))
+    first = next((line.strip() for line in all_lines if line.strip()), "")
+    exported = bool(EXPORT_MARK.match(first))
+    lines = [(k, line) for k, line in enumerate(all_lines, start=1)
              if line.strip() and not line.lstrip().startswith("#")]
     if not lines:
         raise ModelError(source, "the record is empty",
@@ -275,19 +304,22 @@ def loads_record(text: str, *, source: str = "<text>", time_column: str = "time"
     rows = lines[1:]
     if len(rows) < 2:
         raise ModelError(source, f"the record has {len(rows)} data row(s)", "give at least two samples")
-    raw = _numbers(rows, delim, names, source)
     tj = names.index(time_column)
-    if dimension_name(units[tj]) != "time":
+    words = {j for j, u in enumerate(units) if u == TEXT_UNIT}
+    raw, cells = _numbers(rows, delim, names, source, words=words, nan_ok=exported, time_index=tj)
+    if units[tj] == TEXT_UNIT or dimension_name(units[tj]) != "time":
         raise ModelError(f"{source}: column {time_column!r}", f"the time column is in [{units[tj] or '1'}], "
-                         f"a {dimension_name(units[tj])}",
+                         f"a {'text' if units[tj] == TEXT_UNIT else dimension_name(units[tj])}",
                          f'write its unit as a time, e.g. "{time_column} [s]" or [ms]')
-    si = [_column_si(raw, j, name, unit, rows, source) for j, (name, unit) in enumerate(zip(names, units))]
+    si = {j: _column_si(raw, j, name, unit, rows, source) for j, (name, unit) in enumerate(zip(names, units))
+          if j not in words}
     time = si[tj]
-    _check_time(time, raw[:, tj], units[tj], rows, source, time_column)
-    measured = [j for j in range(len(names)) if j != tj]
+    _check_time(time, raw[:, tj], units[tj], rows, source, time_column, exported=exported)
+    measured = [j for j in range(len(names)) if j != tj and j not in words]
     return Record(source=source, sha256=sha256, time=time, columns={names[j]: si[j] for j in measured},
                   units={names[j]: units[j] for j in measured}, si_units={names[j]: _si_name(units[j]) for j in measured},
-                  time_column=time_column)
+                  time_column=time_column, labels={names[j]: tuple(c) for j, c in cells.items()}, notes=notes,
+                  exported=exported)
 
 
 def _header(head: str, head_no: int, delim: str, source: str, time_column: str
@@ -322,9 +354,12 @@ def _header(head: str, head_no: int, delim: str, source: str, time_column: str
     return names, units, time_column
 
 
-def _numbers(rows: list[tuple[int, str]], delim: str, names: list[str], source: str) -> np.ndarray:
-    """The data rows as numbers (rows x columns), as written; a gap or a word is one clear error."""
+def _numbers(rows: list[tuple[int, str]], delim: str, names: list[str], source: str, *, words: set[int] = set(),
+             nan_ok: bool = False, time_index: int = -1) -> tuple[np.ndarray, dict[int, list[str]]]:
+    """The data rows as numbers (rows x columns), as written, and the cells of the ``[text]`` columns (``words``);
+    a gap or a word is one clear error, but a saved prediction (``nan_ok``) may hold ``nan`` outside its time."""
     raw = np.empty((len(rows), len(names)))
+    cells: dict[int, list[str]] = {j: [] for j in words}
     gaps: dict[int, list[int]] = {}
     for i, (line_no, line) in enumerate(rows):
         vals = _cells(line, delim, f"{source}: line {line_no}")
@@ -333,6 +368,13 @@ def _numbers(rows: list[tuple[int, str]], delim: str, names: list[str], source: 
                              f"{len(names)} columns", "give one value per column on every line")
         for j, v in enumerate(vals):
             v = v.strip()
+            if j in cells:
+                cells[j].append(v)
+                raw[i, j] = math.nan
+                continue
+            if nan_ok and v.lower() == "nan" and j != time_index:     # a signal with no value in this phase
+                raw[i, j] = math.nan
+                continue
             if v == "" or v.lower() in ("nan", "na", "n/a", "null", "none"):
                 gaps.setdefault(j, []).append(line_no)
                 raw[i, j] = math.nan
@@ -344,7 +386,7 @@ def _numbers(rows: list[tuple[int, str]], delim: str, names: list[str], source: 
         raise ModelError(where, f"has {len(gaps[j])} missing value(s) (empty or NaN), the first here",
                          "fill the gap from the logger's raw data or cut the record before it; thrustgraph does not "
                          "guess missing samples")
-    return raw
+    return raw, cells
 
 
 def _number(v: str, where: str) -> float:
@@ -364,8 +406,9 @@ def _column_si(raw: np.ndarray, j: int, name: str, unit: str, rows: list[tuple[i
     with np.errstate(over="ignore", invalid="ignore"):
         q = Q_(raw[:, j], unit).to_base_units() if unit else Q_(raw[:, j], "")
         values = np.asarray(q.magnitude, dtype=float)
-    if not np.all(np.isfinite(values)):
-        i = int(np.argmax(~np.isfinite(values)))
+    bad = ~np.isfinite(values) & ~np.isnan(raw[:, j])        # a saved prediction's nan stays nan
+    if np.any(bad):
+        i = int(np.argmax(bad))
         raise ModelError(f"{source}: column {name!r}, line {rows[i][0]}",
                          f"{raw[i, j]:g} {unit} is too large to convert to SI units (it overflows to infinity)",
                          "check the value and the unit in the header")
@@ -373,15 +416,18 @@ def _column_si(raw: np.ndarray, j: int, name: str, unit: str, rows: list[tuple[i
 
 
 def _check_time(time: np.ndarray, raw: np.ndarray, unit: str, rows: list[tuple[int, str]], source: str,
-                time_column: str) -> None:
-    """Time increases, by at least :data:`MIN_SAMPLE_INTERVAL` per sample (``raw``: as written, in ``unit``)."""
+                time_column: str, *, exported: bool = False) -> None:
+    """Time increases, by at least :data:`MIN_SAMPLE_INTERVAL` per sample (``raw``: as written, in ``unit``); a
+    saved prediction (``exported``) repeats a time at a phase boundary (the values before and after it; once per
+    boundary when several fall on one instant), and its steps may be as short as the solver's."""
     steps = np.diff(time)
-    if np.any(steps <= 0):
-        i = int(np.argmax(steps <= 0))
+    back = steps < 0 if exported else steps <= 0
+    if np.any(back):
+        i = int(np.argmax(back))
         raise ModelError(f"{source}: column {time_column!r}, line {rows[i + 1][0]}",
                          f"time does not increase ({raw[i + 1]:g} {unit} follows {raw[i]:g} {unit})",
                          "sort the rows by time and remove repeated samples")
-    if float(np.min(steps)) < MIN_SAMPLE_INTERVAL:
+    if not exported and float(np.min(steps)) < MIN_SAMPLE_INTERVAL:
         i = int(np.argmax(steps < MIN_SAMPLE_INTERVAL))
         raise ModelError(f"{source}: column {time_column!r}, line {rows[i + 1][0]}",
                          f"samples {float(steps[i]):.3g} s apart (the least accepted is {MIN_SAMPLE_INTERVAL:g} s, "
@@ -453,7 +499,9 @@ def resample(record: Record, interval: Any) -> Record:
     n = int(math.floor((t1 - t0) / dt * (1.0 + 1e-12))) + 1
     grid = t0 + dt * np.arange(n)
     cols = {k: np.interp(grid, record.time, v) for k, v in record.columns.items()}
-    return replace(record, time=grid, columns=cols, history=record.history + (f"resampled every {dt:.6g} s",))
+    # a text column (a phase's name) has no value between its samples: it is not carried onto the new grid
+    return replace(record, time=grid, columns=cols, labels={},
+                   history=record.history + (f"resampled every {dt:.6g} s",))
 
 
 def lowpass(record: Record, cutoff: Any, *, order: int = 4, columns: Sequence[str] | None = None) -> Record:
@@ -513,7 +561,8 @@ def trim(record: Record, start: Any = None, end: Any = None) -> Record:
                          f"(the record spans {record.time[0]:.6g} s to {record.time[-1]:.6g} s)",
                          "choose a start and end inside the record")
     cols = {k: v[keep] for k, v in record.columns.items()}
-    return replace(record, time=record.time[keep], columns=cols,
+    words = {k: tuple(np.asarray(v, dtype=object)[keep]) for k, v in record.labels.items()}
+    return replace(record, time=record.time[keep], columns=cols, labels=words,
                    history=record.history + (f"trimmed to {lo:.6g} s .. {hi:.6g} s",))
 
 

@@ -32,6 +32,7 @@ from typing import Any, Iterable
 import numpy as np
 from scipy.integrate import trapezoid
 
+from .displayunits import shown
 from .model import Model
 from .modelfile import check_model, dumps_model
 from .outputfiles import atomic_write
@@ -235,12 +236,12 @@ def render_report(result: FlightResult, model: Model, *, parsed: Any = None, plo
         spec = result.outcome_specs.get(key)
         if spec is None:
             unit = result.unit(key)
-            rows.append((key, _num(value, 5), _unit_text(unit), _num(value, 9), _unit_text(unit)))
+            v, u = shown(value, unit)          # in the units of choice in force (SI by default)
+            rows.append((key, _num(v, 5), _unit_text(u), _num(value, 9), _unit_text(unit)))
         elif spec.show(result.summary):
-            shown = spec.unit_for(value)      # scaled to the value's magnitude (g / kg / t)
-            unit = _unit_text(shown) + "".join(f" ({_num(spec.shown(value, u), 4)} {_unit_text(u)})"
-                                               for u in spec.also)
-            rows.append((spec.label, _num(spec.shown(value, shown), 5), unit, _num(value, 9), _unit_text(spec.unit)))
+            v, u = shown(value, spec.unit, display=spec.display)    # units of choice; under SI by magnitude
+            unit = _unit_text(u) + "".join(f" ({_num(spec.shown(value, a), 4)} {_unit_text(a)})" for a in spec.also)
+            rows.append((spec.label, _num(v, 5), unit, _num(value, 9), _unit_text(spec.unit)))
     a = result.audit
     m_res = math.sqrt(sum(c * c for c in a.momentum_residual))
     # Plots (rendered before anything is written).

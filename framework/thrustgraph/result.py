@@ -21,32 +21,19 @@ import io
 import json
 import math
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Mapping
 
 import numpy as np
 
+from .displayunits import UnitChoice, convert_array, current, shown
+from .frames import flight_frame
 from .outputfiles import atomic_write
+from .signalunits import SIGNAL_UNITS, STANDARD_KEY_UNITS, TEXT_UNIT, signal_unit
 from .units import Q_
 from .errors import ThrustgraphError
 
-__all__ = ["Phase", "Event", "Audit", "FlightResult", "SIGNAL_UNITS"]
-
-# SI unit of every standard signal (vectors carry the unit of their components).
-SIGNAL_UNITS = {
-    "mass": "kg", "thrust": "N", "thrust_vector": "N", "net_thrust": "N", "net_thrust_vector": "N",
-    "acceleration": "m/s^2", "acceleration_magnitude": "m/s^2", "path_acceleration": "m/s^2",
-    "velocity": "m/s", "speed": "m/s", "airspeed": "m/s", "position": "m", "altitude": "m", "range": "m",
-    "mass_flow": "kg/s", "weight": "N", "reaction": "N", "ambient_pressure": "Pa", "ambient_density": "kg/m^3",
-    "axis": "", "flight_path_angle": "rad",
-}
-_SUFFIX_UNITS = {
-    "mass_flow": "kg/s", "exit_velocity": "m/s", "exit_pressure": "Pa", "thrust": "N", "drag": "N", "buoyancy": "N",
-    "resistance": "N", "inlet_pressure": "Pa", "pressure_rise": "Pa", "burn_clock": "s",
-    "pressure": "Pa", "temperature": "K", "head_pressure": "Pa", "outlet_pressure": "Pa", "drive": "Pa",
-    "liquid_mass": "kg", "gas_mass": "kg", "liquid_volume": "m^3", "propellant_mass": "kg",
-    "internal_momentum": "kg*m/s", "gas_volume": "m^3", "liquid_height": "m",
-}
-
+__all__ = ["Phase", "Event", "Audit", "FlightResult", "SIGNAL_UNITS", "STANDARD_KEY_UNITS", "signal_unit",
+           "TEXT_UNIT"]
 
 @dataclass(frozen=True)
 class Phase:
@@ -148,16 +135,23 @@ class FlightResult:
     # -- access ------------------------------------------------------------
     @staticmethod
     def unit_of(name: str) -> str:
-        """SI unit of a signal name."""
-        if name in SIGNAL_UNITS:
-            return SIGNAL_UNITS[name]
-        suffix = name.rsplit(".", 1)[-1]
-        return _SUFFIX_UNITS.get(suffix, "")
+        """SI unit of a core signal or a standard key by its name alone (``""`` when the name does not say; a
+        result's :meth:`unit` also knows what its components' kinds declare)."""
+        return signal_unit(name) or ""
 
     def unit(self, name: str) -> str:
-        """SI unit of a signal or summary entry of this result (declared by its kind, else by its name)."""
+        """SI unit of a signal (or of one component ``NAME.x`` of a vector signal) or summary entry of this
+        result, from the one place units come from (:func:`signal_unit`, the outcome registry); ``""`` for a
+        pure number."""
+        if name in self.units:
+            return self.units[name]
         spec = self.outcome_specs.get(name)
-        return self.units.get(name) or (spec.unit if spec is not None else "") or self.unit_of(name)
+        if spec is not None:
+            return spec.unit
+        base, _, comp = name.rpartition(".")
+        if comp in ("x", "y", "z") and base in self.signals and self.signals[base].ndim == 2:
+            return self.unit(base)
+        return signal_unit(name) or ""
 
     def signal(self, name: str) -> np.ndarray:
         """A signal as an SI array; raises KeyError listing the valid names."""
@@ -196,19 +190,42 @@ class FlightResult:
                 cols.append((f"ledger.{comp}.{term.replace(' ', '_')}.{c}", "N", arr[:, k]))
         return cols
 
+    def shown_columns(self, units: UnitChoice | None = None) -> list[tuple[str, str, np.ndarray]]:
+        """:meth:`columns` in the units of choice (``units``, else those in force,
+        :func:`thrustgraph.displayunits.using`): a quantity chosen (or of the imperial system) converted, the rest
+        SI; never scaled by magnitude."""
+        choice = current() if units is None else units
+        if choice.is_si:
+            return self.columns()
+        out = []
+        for name, unit, values in self.columns():
+            to = choice.fixed_unit(unit)
+            out.append((name, to, convert_array(values, unit, to)))
+        return out
+
     def to_csv(self, *, provenance: bool = False) -> str:
-        """CSV text: one row per output time; headers carry units as ``name [unit]``.
+        """CSV text: one row per output time; every header carries its SI unit as ``name [unit]`` (``[1]`` for a
+        pure number), the last column ``phase [text]`` the phase's name.
 
         With ``provenance=True`` the text starts with ``#`` comment lines
         naming the tool version, the plugin versions and the model hash (what
-        :meth:`write_csv` writes).
+        :meth:`write_csv` writes) and the summary (:meth:`outcome_lines`);
+        :func:`thrustgraph.records.read_record` reads such a file back (a time
+        repeated at a phase boundary holds the values just before and just after it; ``nan`` where a signal has
+        no value, e.g. a stage's after it was dropped). Values are SI, or in the units of choice in force
+        (:meth:`shown_columns`; each header names its unit either way).
+
+        >>> from thrustgraph import fly
+        >>> head = fly().to_csv().splitlines()[0].split(",")
+        >>> head[0], head[-1], [h for h in head if h.startswith("axis")]
+        ('time [s]', 'phase [text]', ['axis.x [1]', 'axis.y [1]', 'axis.z [1]'])
         """
-        cols = self.columns()
+        cols = self.shown_columns()
         buf = io.StringIO()
         if provenance:
-            buf.writelines(f"# {line}\n" for line in self.provenance_lines())
+            buf.writelines(f"# {line}\n" for line in self.provenance_lines() + self.outcome_lines())
         w = csv.writer(buf, lineterminator="\n")
-        w.writerow([f"{n} [{u}]" if u else n for n, u, _ in cols] + ["phase"])
+        w.writerow([f"{n} [{u or '1'}]" for n, u, _ in cols] + [f"phase [{TEXT_UNIT}]"])
         data = np.column_stack([c for _, _, c in cols])
         for i, row in enumerate(data):
             w.writerow([repr(float(v)) for v in row] + [self.phase_at(float(self.t[i]))])
@@ -217,7 +234,9 @@ class FlightResult:
     def to_json(self) -> str:
         """JSON text: summary, phases, events, audit and provenance (no time series).
 
-        Each summary entry holds its SI ``value``, its SI ``unit`` and its ``label``, from the outcome registry.
+        Each summary entry holds its SI ``value``, its SI ``unit`` and its ``label``, from the outcome registry;
+        under units of choice other than SI (:func:`thrustgraph.displayunits.using`) also ``shown``, the value and
+        unit people read.
         """
         doc = {
             "summary": {k: self._summary_entry(k, v) for k, v in self.summary.items()},
@@ -235,9 +254,14 @@ class FlightResult:
 
     def _summary_entry(self, key: str, value: float) -> dict[str, Any]:
         spec = self.outcome_specs.get(key)
-        if spec is None:
-            return {"value": value, "unit": self.units.get(key, "")}
-        return {"value": value, "unit": spec.unit, "label": spec.label}
+        entry: dict[str, Any] = {"value": value, "unit": self.unit(key)}
+        if spec is not None:
+            entry["label"] = spec.label
+        choice = current()
+        if not choice.is_si:     # the value as the units of choice show it, beside the SI value
+            v, u = shown(value, entry["unit"], choice, display=spec.display if spec is not None else None)
+            entry["shown"] = {"value": v, "unit": u}
+        return entry
 
     # -- export to files (added for the command line and the Python API) -----
     def provenance_lines(self) -> list[str]:
@@ -254,6 +278,23 @@ class FlightResult:
                  f"model: {prov.get('model_name', '?')}",
                  f"model sha256: {prov.get('model_sha256', '?')}"]
         return lines
+
+    def outcome_lines(self) -> list[str]:
+        """The summary as lines ``outcome KEY [UNIT] = VALUE`` (SI; ``repr`` of the float, which reads back
+        exactly): the CSV export writes them among its ``#`` lines, so a saved result keeps its outcomes
+        (:func:`thrustgraph.overlay.run_of_record` reads them).
+
+        >>> from thrustgraph import fly
+        >>> fly().outcome_lines()[0].startswith("outcome flight_time [s] = ")
+        True
+        """
+        return [f"outcome {k} [{self.unit(k) or '1'}] = {v!r}" for k, v in self.summary.items()]
+
+    def to_pandas(self):
+        """The time series as a pandas DataFrame (optional dependency ``pandas``): index ``time`` (s), every
+        column of :meth:`columns` in SI and the ``phase``; units in ``attrs["units"]``
+        (:func:`thrustgraph.frames.flight_frame`)."""
+        return flight_frame(self)
 
     def write_csv(self, path: Any) -> None:
         """Write the time series to a CSV file (atomically), with provenance comment lines (``#``) first."""
@@ -278,7 +319,7 @@ class FlightResult:
             raise ThrustgraphError("Parquet output needs pyarrow, which is not installed. Fix: pip install "
                                    "'thrustgraph[parquet]' (or pip install pyarrow), or write CSV instead.") from None
         fields, arrays = [], []
-        for name, unit, values in self.columns():
+        for name, unit, values in self.shown_columns():
             fields.append(pa.field(name, pa.float64(), metadata={"unit": unit}))
             arrays.append(pa.array(np.asarray(values, dtype=float)))
         fields.append(pa.field("phase", pa.string()))

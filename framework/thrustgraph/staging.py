@@ -47,14 +47,14 @@ from typing import Any, Callable
 
 from .errors import ModelError, shorten
 from .parameters import Quantity
+from .signalunits import SIGNAL_UNITS
 from .units import to_si
 
 __all__ = ["Trigger", "parse_condition", "parse_stages", "parse_triggers", "check_stages", "KINEMATIC_SIGNALS",
            "STATE_SIGNALS", "signal", "condition", "resolve_thresholds"]
 
-#: Signals every vehicle has, with their SI units.
-KINEMATIC_SIGNALS = {"time": "s", "altitude": "m", "speed": "m/s", "vertical_speed": "m/s", "distance": "m",
-                     "mass": "kg"}
+#: Signals every vehicle has, with their SI units (from the one table of core signals).
+KINEMATIC_SIGNALS = {k: SIGNAL_UNITS[k] for k in ("time", "altitude", "speed", "vertical_speed", "distance", "mass")}
 #: The signals read from the state vector alone (the others are read from the balance's snapshot).
 STATE_SIGNALS = ("time", "altitude", "speed", "vertical_speed", "distance")
 _COND = re.compile(r"^\s*([A-Za-z_][\w.\-]*)\s*([<>])\s*(.+?)\s*$")

@@ -52,6 +52,7 @@ from .ensemble import COMPUTED
 from .designs import DesignParameter, within_bounds
 from .engines import FLIGHTS, ENGINES, FlightTask, chunks, default_chunk_size, make_engine
 from .errors import ModelError
+from .frames import design_frame, sensitivity_frame
 from .limits import MAX_DESIGNS, check_count
 from .model import Model, ParsedModel, parse_model
 from .outcomes import OUTCOMES, STATUS_NOT_RUN, STATUS_OK, STATUS_SCREENED, check_outputs, default_outputs
@@ -158,6 +159,11 @@ class DesignTable:
             rows.writerow([str(i), str(self.status[i]), *(_fmt(col[i]) for col in shown),
                            *(_fmt(v) for v in self.values[i]), self.notes[i]])
         return buf.getvalue()
+
+    def to_pandas(self):
+        """The designs as a pandas DataFrame (optional dependency ``pandas``): one row per design, the parameters
+        and outcomes in SI, units in ``attrs["units"]`` (:func:`thrustgraph.frames.design_frame`)."""
+        return design_frame(self, {o: OUTCOMES[o].unit for o in self.outputs})
 
     def write_csv(self, path: str | os.PathLike[str]) -> None:
         """Write :meth:`to_csv` atomically (a temporary file renamed into place)."""
@@ -422,6 +428,11 @@ class Sensitivity:
     steps: np.ndarray
     scheme: tuple[str, ...]
     table: DesignTable
+
+    def to_pandas(self):
+        """The sensitivities as a pandas DataFrame, one row per (outcome, parameter), SI
+        (:func:`thrustgraph.frames.sensitivity_frame`)."""
+        return sensitivity_frame(self, {o: OUTCOMES[o].unit for o in self.outputs})
 
     def per_unit(self, output: str, path: str) -> float:
         """The derivative in the output's SI unit per one of the parameter's shown units."""

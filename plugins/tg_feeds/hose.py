@@ -72,6 +72,7 @@ class HoseFeed(ComponentKind):
 
     kind = "hose-feed"
     role = "source"
+    signal_units = {"lift_pressure": "Pa"}
     stores_pressure = True
     summary = "hose or tether feed from a fixed station: given supply pressure (with hose losses) or given flow"
     parameters = (

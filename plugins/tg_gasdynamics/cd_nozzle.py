@@ -99,6 +99,8 @@ class ConvergingDivergingNozzle(ComponentKind):
 
     kind = "converging-diverging-nozzle"
     role = "flow"
+    signal_units = {"regime": "", "exit_mach": "", "shock_area_ratio": "", "separation": "",
+                    "thrust_coefficient": ""}
     summary = "converging-diverging nozzle: choked/unchoked, shock inside, pressure thrust, conical loss"
     parameters = (
         Quantity("throat_diameter", "mm", low=1e-3, high=10_000.0, doc="diameter of the throat"),

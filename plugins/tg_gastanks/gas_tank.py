@@ -112,6 +112,8 @@ class GasTank(ComponentKind):
 
     kind = "gas-tank"
     role = "volume"
+    signal_units = {"density": "kg/m^3", "isentropic_exponent": "", "expansion_exponent": "",
+                    "compressibility_factor": "", "heat_flow": "W"}
     stores_pressure = True
     summary = "rigid tank of compressed gas: ideal-gas table or CoolProp, with optional wall heat transfer"
     parameters = (

@@ -95,6 +95,7 @@ class SelfPressurisingTank(ComponentKind):
 
     kind = "self-pressurising-tank"
     role = "volume"
+    signal_units = {"vapour_quality": "", "internal_energy": "J", "outflow_enthalpy": "J/kg", "heat_flow": "W"}
     stores_pressure = True
     summary = "liquefied gas over its own vapour (e.g. a CO2 cartridge): liquid then vapour outflow, boil-off cooling"
     parameters = (

@@ -88,6 +88,7 @@ class Vent(ComponentKind):
 
     kind = "vent"
     role = "flow"
+    signal_units = {"jet_speed": "m/s"}
     summary = "always-open vent: one-sided (pushes) or symmetric (jets cancel)"
     parameters = _COMMON
 
@@ -116,6 +117,7 @@ class ReliefValve(ComponentKind):
 
     kind = "relief-valve"
     role = "flow"
+    signal_units = {"open": "", "jet_speed": "m/s"}
     summary = "relief valve: opens at the cracking pressure, reseats at the reseat pressure (gauge)"
     parameters = (
         Quantity("cracking_pressure", "bar", low=1e-6, high=10_000.0, reference="gauge", doc="inlet pressure above ambient at which it opens"),

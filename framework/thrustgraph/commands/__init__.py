@@ -10,7 +10,7 @@ The one-line helps live here, not in the modules, so that ``thrustgraph
 imports only the module of the command it runs (:mod:`thrustgraph.cli`).
 
 >>> list(SUMMARIES)[:3]
-['run', 'compare', 'calibrate']
+['run', 'compare', 'overlay']
 """
 
 __all__ = ["SUMMARIES"]
@@ -20,6 +20,8 @@ SUMMARIES = {
     "run": "fly a model and print the summary (burn time, peak thrust and acceleration, apogee or range, audits)",
     "compare": "compare a model's prediction with a measured record (CSV with units in the headers): metrics and "
                "plots",
+    "overlay": "overlay several runs (models, --variant changes, saved results, measured records): one set of plots "
+               "and one table of outcome differences",
     "calibrate": "fit uncertain parameters (discharge coefficient, expansion exponent, drag...) to measured records; "
                  "report them with confidence intervals and write a calibrated model",
     "check": "validate a model without flying it: components, graph, mass at launch and safety cautions",

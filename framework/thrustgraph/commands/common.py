@@ -13,11 +13,13 @@ import sys
 import tomllib
 from typing import Any
 
+from ..displayunits import UnitChoice, parse_units
 from ..errors import ModelError
 from ..model import Model
 from ..modelfile import bundled_models, default_model_path, load_model
 
-__all__ = ["add_model_argument", "add_set_option", "add_out_dir_option", "parse_override", "load_with_overrides"]
+__all__ = ["add_model_argument", "add_set_option", "add_out_dir_option", "parse_override", "load_with_overrides",
+           "add_units_option", "units_choice"]
 
 
 def add_model_argument(p: argparse.ArgumentParser) -> None:
@@ -29,6 +31,24 @@ def add_set_option(p: argparse.ArgumentParser) -> None:
     p.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
                    help='change a parameter for this run, e.g. --set components.bottle.fill=0.4 '
                         '--set "components.bottle.gauge_pressure=5 bar" (repeatable)')
+
+
+def add_units_option(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--units", metavar="CHOICE",
+                   help="the units results are shown in: SI, imperial, or QUANTITY=UNIT pairs, e.g. "
+                        "length=ft,speed=mph (or imperial,pressure=bar); default: the model's [run] units, else SI")
+
+
+def units_choice(args: argparse.Namespace, parsed: Any = None) -> UnitChoice:
+    """The unit choice in force: ``--units`` when given, else the model's ``[run] units`` (SI without either).
+
+    >>> units_choice(argparse.Namespace(units="length=ft")).chosen
+    {'length': 'ft'}
+    """
+    if getattr(args, "units", None):
+        return parse_units(args.units, where="--units")
+    run = getattr(parsed, "run", None)
+    return getattr(run, "units", None) or parse_units(None)
 
 
 class _Deprecated(argparse.Action):

@@ -15,9 +15,10 @@ import argparse
 from pathlib import Path
 
 from . import SUMMARIES
+from ..displayunits import using
 from ..errors import ThrustgraphError
 from ..exportformats import EXPORTS
-from .common import add_model_argument, add_out_dir_option, add_set_option
+from .common import add_model_argument, add_out_dir_option, add_set_option, add_units_option, units_choice
 from .outputs import (add_export_options, add_quiet_option, check_paths, default_stem, export_targets, fly_model,
                       load_checked, write_outputs)
 
@@ -31,6 +32,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     add_export_options(p)
     add_out_dir_option(p, f"write STEM{', STEM'.join(f.suffix for f in EXPORTS.values())} into DIR (a format "
                           "whose package is not installed is left out), STEM being the model file's name")
+    add_units_option(p)
     add_quiet_option(p)
 
 
@@ -40,6 +42,7 @@ def main(args: argparse.Namespace) -> int:
         raise ThrustgraphError("export: name at least one output. Fix: add "
                                f"{', '.join(f'--{name} FILE' for name in EXPORTS)} or --out-dir DIR")
     model, parsed = load_checked(args.model, args.overrides)
+    choice = units_choice(args, parsed)
     targets: list[tuple[str, str | Path]] = []
     if args.out_dir:
         stem = Path(args.out_dir) / default_stem(model)
@@ -51,7 +54,8 @@ def main(args: argparse.Namespace) -> int:
     targets += named
     check_paths([path for _, path in targets], [args.out_dir])   # before flying
     result = fly_model(parsed, quiet=args.quiet)
-    outputs = [(path, EXPORTS[name].render(result)) for name, path in targets]  # all in memory before writing
+    with using(choice):      # every file in the units of choice (the headers and metadata say which)
+        outputs = [(path, EXPORTS[name].render(result)) for name, path in targets]  # all in memory before writing
     write_outputs(outputs, directories=[args.out_dir])
     if not result.success:
         print(f"note: {result.message}")

@@ -11,7 +11,8 @@ from pathlib import Path
 
 from . import SUMMARIES
 from ..plotkinds import FLIGHT, IMAGE_FORMATS, names
-from .common import add_model_argument, add_out_dir_option, add_set_option
+from ..displayunits import using
+from .common import add_model_argument, add_out_dir_option, add_set_option, add_units_option, units_choice
 from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
 
 NAME = "plot"
@@ -26,19 +27,22 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
                    help=f"image format: {', '.join(IMAGE_FORMATS)} or both (default png)")
     p.add_argument("--only", action="append", choices=names(FLIGHT), metavar="PLOT",
                    help=f"draw only this plot (repeatable): {', '.join(names(FLIGHT))}")
+    add_units_option(p)
     add_quiet_option(p)
 
 
 def main(args: argparse.Namespace) -> int:
     need_matplotlib()
     model, parsed = load_checked(args.model, args.overrides)
+    choice = units_choice(args, parsed)
     out = Path(args.out_dir) if args.out_dir else Path(f"{default_stem(model)}-plots")
     check_paths(directories=[out])   # before flying
     result = fly_model(parsed, quiet=args.quiet)
     from ..plots import figures, render
 
     formats = IMAGE_FORMATS if args.format == "both" else (args.format,)
-    outputs = [(out / f"{name}.{fmt}", render(fig, fmt)) for name, fig in figures(result, args.only).items()
-               for fmt in formats]
+    with using(choice):
+        outputs = [(out / f"{name}.{fmt}", render(fig, fmt)) for name, fig in figures(result, args.only).items()
+                   for fmt in formats]
     write_outputs(outputs, directories=[out])
     return 0

@@ -11,7 +11,8 @@ import argparse
 from pathlib import Path
 
 from . import SUMMARIES
-from .common import add_model_argument, add_set_option
+from ..displayunits import using
+from .common import add_model_argument, add_set_option, add_units_option, units_choice
 from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
 
 NAME = "report"
@@ -22,17 +23,21 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     add_model_argument(p)
     add_set_option(p)
     p.add_argument("--out", metavar="FILE", help="the HTML file to write (default: STEM-report.html)")
+    add_units_option(p)
     add_quiet_option(p)
 
 
 def main(args: argparse.Namespace) -> int:
     need_matplotlib()
     model, parsed = load_checked(args.model, args.overrides)
+    choice = units_choice(args, parsed)
     out = Path(args.out) if args.out else Path(f"{default_stem(model)}-report.html")
     check_paths([out])   # before flying
     result = fly_model(parsed, quiet=args.quiet)
     from ..report import render_report
 
-    write_outputs([(out, render_report(result, model, parsed=parsed))])
+    with using(choice):      # the summary and the plots in the units of choice
+        page = render_report(result, model, parsed=parsed)
+    write_outputs([(out, page)])
     print(f"outcome: {result.message}")
     return 0

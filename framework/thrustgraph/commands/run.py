@@ -8,9 +8,10 @@ import sys
 from typing import Sequence
 
 from . import SUMMARIES
+from ..displayunits import shown, using
 from ..exportformats import EXPORTS
 from ..result import FlightResult
-from .common import add_model_argument, add_set_option
+from .common import add_model_argument, add_set_option, add_units_option, units_choice
 from .outputs import (add_export_options, add_quiet_option, check_paths, export_targets, fly_model, load_checked,
                       need_matplotlib, write_outputs)
 
@@ -23,6 +24,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     add_export_options(p, verb="also write")
     p.add_argument("--plots", metavar="DIR", help="also draw the plots (PNG) into DIR")
     p.add_argument("--report", metavar="FILE", help="also write the self-contained HTML report to FILE")
+    add_units_option(p)
     add_quiet_option(p)
 
 
@@ -32,20 +34,22 @@ def summary_lines(r: FlightResult, keys: Sequence[str] | None = None) -> list[st
 
     Labels and units come from the outcome registry (``r.outcome_specs``); an
     entry whose ``show`` predicate says it adds nothing (a downrange equal to
-    the range) is left out.
+    the range) is left out. Values are shown in the units of choice in force
+    (:func:`thrustgraph.displayunits.shown`; SI by default).
     """
     lines = []
     for key in (r.summary if keys is None else [k for k in keys if k in r.summary]):
         spec = r.outcome_specs.get(key)
         if spec is None:
-            lines.append(f"  {key:<32s} {r.summary[key]:12.5g} {r.unit(key)}")
+            value, unit = shown(r.summary[key], r.unit(key))
+            lines.append(f"  {key:<32s} {value:12.5g} {unit}".rstrip())
         elif spec.show(r.summary):
             v = r.summary[key]
             extra = ", ".join(f"{spec.shown(v, u):.4g} {u}" for u in spec.also)
             extra = f"   ({extra})" if extra else ""
-            shown = spec.unit_for(v)          # the display unit that suits the value (g / kg / t)
-            unit = f" {shown}" if shown else ""
-            lines.append(f"  {spec.label:<32s} {spec.shown(v, shown):12.5g}{unit}{extra}")
+            value, unit = shown(v, spec.unit, display=spec.display)
+            unit = f" {unit}" if unit else ""
+            lines.append(f"  {spec.label:<32s} {value:12.5g}{unit}{extra}")
     return lines
 
 
@@ -87,18 +91,20 @@ def main(args: argparse.Namespace) -> int:
         need_matplotlib()
     exports = export_targets(args)
     model, parsed = load_checked(args.model, args.overrides)  # errors name the file or the --set option
+    choice = units_choice(args, parsed)
     for w in parsed.warnings():       # on stderr, before the flight: the summary on stdout stays as it was
         print(f"thrustgraph: warning: {w}", file=sys.stderr)
     check_paths([path for _, path in exports] + [args.report], [args.plots])  # before flying: a bad path costs nothing
     result = fly_model(parsed, quiet=args.quiet)
-    # Build every output in memory first, so a failure leaves no partial file.
-    outputs = [(path, EXPORTS[name].render(result)) for name, path in exports]
-    if args.plots:
-        from ..plots import figures, render
-        outputs += [(f"{args.plots}/{n}.png", render(fig, "png")) for n, fig in figures(result).items()]
-    if args.report:
-        from ..report import render_report
-        outputs.append((args.report, render_report(result, model, parsed=parsed)))
-    print(format_summary(result, model.name))
+    # Build every output in memory first, so a failure leaves no partial file; all in the units of choice.
+    with using(choice):
+        outputs = [(path, EXPORTS[name].render(result)) for name, path in exports]
+        if args.plots:
+            from ..plots import figures, render
+            outputs += [(f"{args.plots}/{n}.png", render(fig, "png")) for n, fig in figures(result).items()]
+        if args.report:
+            from ..report import render_report
+            outputs.append((args.report, render_report(result, model, parsed=parsed)))
+        print(format_summary(result, model.name))
     write_outputs(outputs, directories=[args.plots])
     return 0

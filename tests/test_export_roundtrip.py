@@ -1,0 +1,101 @@
+"""thrustgraph reads its own export: every column of the CSV export carries a unit, and compare's reader gets back
+every value of every bundled model's flight.
+
+* each header is ``name [unit]``: the unit the result declares for the signal (``[1]`` for a pure number, ``[text]``
+  for the phase), from the one place signal units come from (:func:`thrustgraph.result.signal_unit`);
+* :func:`thrustgraph.records.read_record` reads the file back as a saved prediction and holds every value exactly
+  (``repr`` of a float reads back to the same float; SI units convert by 1), the repeated time of each phase
+  boundary and the ``nan`` of a signal with no value in a phase;
+* ``thrustgraph compare`` of the model against its own export finds (next to) no error.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import json
+
+import numpy as np
+import pytest
+
+import thrustgraph as tg
+from thrustgraph.cli import main
+from thrustgraph.compare import compare
+from thrustgraph.errors import ModelError
+from thrustgraph.exportformats import EXPORTS
+from thrustgraph.modelfile import bundled_models, load_model
+from thrustgraph.records import ColumnMap, loads_record, read_record
+from thrustgraph.result import signal_unit
+from thrustgraph.units import Q_
+
+MODELS = sorted(bundled_models().items())
+
+
+@pytest.mark.parametrize("name, path", MODELS, ids=[n for n, _ in MODELS])
+def test_every_bundled_model_export_reads_back_through_the_record_reader(name, path, tmp_path):
+    r = tg.integrate(load_model(path))
+    text = EXPORTS["csv"].render(r)
+    (tmp_path / "run.csv").write_text(text)
+    rec = read_record(tmp_path / "run.csv")
+    assert rec.exported and rec.notes[0].startswith("thrustgraph ")
+    header = next(line for line in text.splitlines() if not line.startswith("#")).split(",")
+    assert header[-1] == "phase [text]"
+    assert all(h.endswith("]") and " [" in h for h in header), name
+    cols = r.columns()
+    assert [h.split(" [")[0] for h in header[:-1]] == [n for n, _, _ in cols]
+    np.testing.assert_array_equal(rec.time, r.t)
+    for col, unit, values in cols[1:]:
+        assert rec.units[col] == unit, (name, col)
+        assert Q_(1.0, unit or "").dimensionality == Q_(1.0, rec.si_units[col] or "").dimensionality, (name, col)
+        np.testing.assert_allclose(rec.columns[col], values, rtol=1e-15, atol=0.0, equal_nan=True, err_msg=col)
+    assert rec.labels["phase"] == tuple(r.phase_at(float(t)) for t in r.t)
+    # every signal's unit comes from the one place, and pint reads it
+    for sig in r.signals:
+        assert r.unit(sig) == signal_unit(sig, {k: v for k, v in r.units.items()}), sig
+        Q_(1.0, r.unit(sig))
+    # compared with itself (repeated times and nan handled): a sample stands for its interval, so the prediction
+    # averaged over it differs from the point value by about dt^2 y''/24, and the impulses agree
+    maps = [ColumnMap("thrust", "thrust"), ColumnMap("mass", "mass"), ColumnMap("altitude", "altitude")]
+    c = compare(r, rec, maps)
+    # (measured on the bundled models: RMS at most 2 % of the peak, the impulses within 0.5 %)
+    for s in c.signals:
+        assert s.rms_error <= 0.05 * abs(s.peak_measured) + 1e-12, (name, s.signal)
+        if s.impulse_error is not None:
+            assert abs(s.impulse_error) <= 0.01 * abs(s.impulse_measured), (name, s.signal)
+
+
+def test_compare_command_reads_the_export_of_a_run(tmp_path):
+    """`thrustgraph export` then `thrustgraph compare` of the same model against the file: the reader accepts the
+    tool's own output and the flight agrees with itself within the interpolation of the finer output."""
+    out = io.StringIO()
+    with contextlib.redirect_stdout(out):
+        assert main(["export", "bottle-rocket", "--csv", str(tmp_path / "run.csv"), "--quiet"]) == 0
+        assert main(["compare", "bottle-rocket", str(tmp_path / "run.csv"), "--map", "altitude=altitude",
+                     "--map", "thrust=thrust", "--json", str(tmp_path / "c.json")]) == 0
+    doc = json.loads((tmp_path / "c.json").read_text())
+    alt = next(s for s in doc["signals"] if s["signal"] == "altitude")
+    assert alt["rms_error"] < 1e-3 * alt["peak_measured"]
+    assert abs(alt["apogee_error"]) < 1e-3 * alt["apogee_measured"]
+
+
+def test_a_measured_record_gets_no_allowance_of_a_saved_prediction():
+    text = "time [s],load [N]\n0,1\n0.001,2\n0.001,3\n0.002,4\n"
+    with pytest.raises(ModelError, match="time does not increase"):
+        loads_record(text, source="stand.csv")
+    assert len(loads_record("# thrustgraph 0.1.0\n" + text, source="run.csv").time) == 4
+    with pytest.raises(ModelError, match="missing value"):
+        loads_record("time [s],load [N]\n0,1\n0.001,nan\n", source="stand.csv")
+    # a saved prediction may repeat a time (phase boundaries, several at one instant), never go back
+    assert len(loads_record("# thrustgraph 0.1.0\ntime [s],x [m]\n0,1\n1,2\n1,3\n1,4\n", source="run.csv").time) == 4
+    with pytest.raises(ModelError, match="time does not increase"):
+        loads_record("# thrustgraph 0.1.0\ntime [s],x [m]\n0,1\n1,2\n0.5,3\n", source="run.csv")
+    with pytest.raises(ModelError, match="missing value"):
+        loads_record("# thrustgraph 0.1.0\ntime [s],x [m]\n0,1\nnan,2\n", source="run.csv")
+
+
+def test_a_text_column_is_kept_as_written():
+    rec = loads_record("time [s],state [text],load [lbf]\n0,armed,0\n1,fired,10\n", source="log.csv")
+    assert rec.labels["state"] == ("armed", "fired") and list(rec.columns) == ["load"]
+    with pytest.raises(ModelError, match="the time column is in"):
+        loads_record("time [text],load [N]\n0,1\n1,2\n", source="log.csv")
+
