@@ -23,7 +23,8 @@ PLUGINS = ROOT / "plugins"
 
 #: layer -> its modules (names inside the ``thrustgraph`` package). docs/layout.md says what each holds.
 LAYERS: dict[str, tuple[str, ...]] = {
-    "base": ("errors", "units", "version", "limits", "interrupts", "progress", "outputfiles", "xp", "frames"),
+    "base": ("errors", "units", "version", "limits", "interrupts", "progress", "outputfiles", "xp", "roots",
+             "frames"),
     "kinds": ("parameters", "outcomespec", "vehicle", "component", "contract", "hookspecs", "modeldata",
               "signalunits", "displayunits"),
     "balance": ("plan", "balance", "vectors", "straightline", "arrayops", "sampling", "outcomes"),
