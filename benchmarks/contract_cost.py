@@ -1,4 +1,4 @@
-"""Benchmark: what checking the plugin contract (thrustgraph.contract) costs, measured side by side.
+"""Benchmark: what checking the plugin contract (thrustgraph.kinds.contract) costs, measured side by side.
 
     python benchmarks/contract_cost.py [--repeat N] [--designs N] [--single N]
 
@@ -25,14 +25,14 @@ import time
 
 import numpy as np
 
-import thrustgraph.assembly as assembly_module
-from thrustgraph import contract
-from thrustgraph.assembly import assemble
-from thrustgraph.designs import resolve
-from thrustgraph.model import parse_model
-from thrustgraph.modelfile import default_model_path, load_model
-from thrustgraph.plugins import component_kinds, environment_kinds, get_plugin_manager
-from thrustgraph.studies import evaluate
+import thrustgraph.flight.assembly as assembly_module
+from thrustgraph.kinds import contract
+from thrustgraph.flight.assembly import assemble
+from thrustgraph.models.designs import resolve
+from thrustgraph.models.model import parse_model
+from thrustgraph.models.modelfile import default_model_path, load_model
+from thrustgraph.models.plugins import component_kinds, environment_kinds, get_plugin_manager
+from thrustgraph.studies.studies import evaluate
 
 
 def per_call(fn, n: int) -> float:

@@ -20,12 +20,12 @@ from pathlib import Path
 import numpy as np
 
 import thrustgraph as tg
-from thrustgraph.arraysystem import unsupported
-from thrustgraph.designs import apply, resolve
-from thrustgraph.ensemble import COMPUTED
-from thrustgraph.model import parse_model
-from thrustgraph.studies import evaluate
-from thrustgraph.studyflight import fly_design
+from thrustgraph.flight.arraysystem import unsupported
+from thrustgraph.models.designs import apply, resolve
+from thrustgraph.flight.ensemble import COMPUTED
+from thrustgraph.models.model import parse_model
+from thrustgraph.studies.studies import evaluate
+from thrustgraph.studies.studyflight import fly_design
 
 #: two varied parameters per vehicle, with ranges inside their declared bounds (SI)
 SWEEPS = {

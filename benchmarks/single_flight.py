@@ -12,7 +12,7 @@ thrustgraph doing what the hand-written model does: phases and events, no dense 
 accumulators (``fly_segments(dense=False, audit=False)``, what design studies run). The audited integration and the
 full result (signals and ledger) are printed beside it. ``--instructions`` also counts machine instructions per
 flight under valgrind's callgrind (20 flights minus 5, in child processes), for the like-for-like flight and for
-the full result (``thrustgraph.integrate``: signals, ledger, outcomes): unlike times, the counts repeat exactly on a
+the full result (``thrustgraph.flight.integrate``: signals, ledger, outcomes): unlike times, the counts repeat exactly on a
 shared, noisy machine.
 """
 
@@ -33,7 +33,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import handwritten_bottle  # noqa: E402
 
 import thrustgraph as tg  # noqa: E402
-from thrustgraph.integrate import fly_segments  # noqa: E402
+from thrustgraph.flight.integrate import fly_segments  # noqa: E402
 
 
 def apogee_of(segs) -> float:

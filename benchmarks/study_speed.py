@@ -10,7 +10,7 @@
 2. One single flight (integration only) against the hand-written single-function scipy model of the same vehicle
    (benchmarks/handwritten_bottle.py); medians of interleaved repeats. Target: ratio <= 1.0.
 3. The same sweep on a Dask LocalCluster with 2 workers against 1 worker (one thread each, ensemble chunks),
-   with Dask's default settings and with thrustgraph.engines.STUDY_CLUSTER_CONFIG (housekeeping loops run
+   with Dask's default settings and with thrustgraph.studies.engines.STUDY_CLUSTER_CONFIG (housekeeping loops run
    rarely); one cluster up at a time, alternating, start-up and a first sweep untimed (steady state), medians.
    Target: >= 1.8x on a 2-core machine.
 4. Peak memory of the 10,000-design sweep with summary outputs: the Python heap peak (tracemalloc, numpy
@@ -37,11 +37,11 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import handwritten_bottle  # noqa: E402
 
 import thrustgraph as tg  # noqa: E402
-from thrustgraph.designs import apply, resolve  # noqa: E402
-from thrustgraph.integrate import fly_segments  # noqa: E402
-from thrustgraph.model import parse_model  # noqa: E402
-from thrustgraph.studyflight import fly_design  # noqa: E402
-from thrustgraph.studies import evaluate  # noqa: E402
+from thrustgraph.models.designs import apply, resolve  # noqa: E402
+from thrustgraph.flight.integrate import fly_segments  # noqa: E402
+from thrustgraph.models.model import parse_model  # noqa: E402
+from thrustgraph.studies.studyflight import fly_design  # noqa: E402
+from thrustgraph.studies.studies import evaluate  # noqa: E402
 
 PATHS = ("components.bottle.fill", "components.bottle.gauge_pressure", "components.neck.diameter",
          "components.airframe.dry_mass")
@@ -153,9 +153,9 @@ def main() -> int:
         else:
             import dask
 
-            from thrustgraph.engines import STUDY_CLUSTER_CONFIG
+            from thrustgraph.studies.engines import STUDY_CLUSTER_CONFIG
 
-            configs = {"Dask's default settings": {}, "thrustgraph.engines.STUDY_CLUSTER_CONFIG": STUDY_CLUSTER_CONFIG}
+            configs = {"Dask's default settings": {}, "thrustgraph.studies.engines.STUDY_CLUSTER_CONFIG": STUDY_CLUSTER_CONFIG}
             runs = {(c, w): [] for c in configs for w in (1, 2)}
             chunk = max(1, n // 4)
             same = True
@@ -196,8 +196,8 @@ def main() -> int:
     import subprocess
 
     code = ("import resource, sys; sys.path.insert(0, %r); import study_speed as s, thrustgraph as tg; "
-            "from thrustgraph.model import parse_model; from thrustgraph.designs import resolve; "
-            "from thrustgraph.studies import evaluate; m = tg.load_model(tg.default_model_path()); "
+            "from thrustgraph.models.model import parse_model; from thrustgraph.models.designs import resolve; "
+            "from thrustgraph.studies.studies import evaluate; m = tg.load_model(tg.default_model_path()); "
             "p = parse_model(m); ps = [resolve(p, q) for q in s.PATHS]; "
             "evaluate(m, ps, s.designs(%d), parsed=p, engine='serial', flights='ensemble', quiet=True); "
             "print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)") % (str(Path(__file__).resolve().parent), n)

@@ -11,9 +11,9 @@ from hypothesis import settings
 
 import thrustgraph as tg
 from thrustgraph import hookimpl
-from thrustgraph.model import parse_model
-from thrustgraph.modelfile import loads_model
-from thrustgraph.plugins import get_plugin_manager
+from thrustgraph.models.model import parse_model
+from thrustgraph.models.modelfile import loads_model
+from thrustgraph.models.plugins import get_plugin_manager
 from tg_airframe import Airframe
 
 HEADER = 'format = "thrustgraph-model"\nversion = 1\n'

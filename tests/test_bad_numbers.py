@@ -16,13 +16,13 @@ import pytest
 
 from thrustgraph import fly
 from thrustgraph.cli import main
-from thrustgraph.errors import IntegrationError, ModelError
-from thrustgraph.limits import MAX_DESIGNS, MAX_OUTPUT_SAMPLES
-from thrustgraph.modelfile import bundled_models, load_model, loads_model
-from thrustgraph.parameters import Number, Quantity, Spec, Vector, parse_params
-from thrustgraph.stepguard import MAX_EVALUATIONS, WINDOW
-from thrustgraph.studykinds import read_study
-from thrustgraph.studyspec import Vary
+from thrustgraph.base.errors import IntegrationError, ModelError
+from thrustgraph.base.limits import MAX_DESIGNS, MAX_OUTPUT_SAMPLES
+from thrustgraph.models.modelfile import bundled_models, load_model, loads_model
+from thrustgraph.kinds.parameters import Number, Quantity, Spec, Vector, parse_params
+from thrustgraph.flight.stepguard import MAX_EVALUATIONS, WINDOW
+from thrustgraph.studies.studykinds import read_study
+from thrustgraph.studies.studyspec import Vary
 
 BOTTLE = bundled_models()["bottle-rocket"].read_text()
 NONFINITE = re.compile(r"(?<![\w.])[-+]?(nan|inf|infinity)(?!\w)", re.IGNORECASE)
@@ -89,7 +89,7 @@ def test_nan_hose_loss_coefficient_is_refused(tmp_path, capsys):
 @pytest.mark.parametrize("value", [math.nan, math.inf, -math.inf])
 def test_every_spec_refuses_non_finite_input_even_with_open_bounds(value):
     # Range checks written `lo <= x <= hi` pass NaN; the specs must not.
-    from thrustgraph.units import Q_
+    from thrustgraph.base.units import Q_
 
     for spec in (Number("x", low=0.0, high=1.0), Number("x"), Quantity("x", "m", low=0.0, high=5.0),
                  Quantity("x", "m")):
@@ -300,7 +300,7 @@ def test_wrong_types_are_one_clear_error_each(tmp_path, capsys):
 
 def test_a_model_name_with_math_text_plots(tmp_path):
     pytest.importorskip("matplotlib")
-    from thrustgraph.plots import figures, render
+    from thrustgraph.outputs.plots import figures, render
 
     r = fly(loads_model(edit(BOTTLE, 'name = "two-litre water rocket"', 'name = "rocket $\\\\frac{1}{$"')))
     for fig in figures(r).values():
@@ -327,7 +327,7 @@ def test_a_device_failure_inside_the_flight_names_the_state_and_the_time():
 
 
 def test_a_failing_right_hand_side_is_reported_with_component_state_and_time():
-    from thrustgraph.stepguard import StepGuard
+    from thrustgraph.flight.stepguard import StepGuard
 
     g = StepGuard(("position.z", "tank.mass", "tank.temperature"), ("m", "kg", "K"), t_end=5.0)
     ok = g.watch(lambda t, y: np.zeros(3), "gas thrust")
@@ -345,7 +345,7 @@ def test_a_failing_right_hand_side_is_reported_with_component_state_and_time():
 def test_a_flight_whose_rates_blow_up_says_which_and_when_without_printing_nan():
     # Found by the generator (seed 1, case 3089: the hose-fed platform dropped into still water, which now flies):
     # a rate that stops being finite is named with its time and phase, in words, never as "nan"
-    from thrustgraph.stepguard import StepGuard
+    from thrustgraph.flight.stepguard import StepGuard
 
     g = StepGuard(("position.z", "hose.flow", "hose.pressure"), ("m", "kg/s", "Pa"), t_end=5.0)
     rates = g.watch(lambda t, y: np.array([0.0, math.inf if t > 1.0 else 0.1, 0.0]), "hose-fed thrust")
@@ -362,6 +362,6 @@ def test_a_flight_whose_rates_blow_up_says_which_and_when_without_printing_nan()
     (".5 mm", "m", 5e-4), ("1e-3 s", "s", 1e-3), ("+5 m", "m", 5.0), ("30 W/m^2/K", "W/m^2/K", 30.0),
 ])
 def test_ordinary_quantities_still_read(text, unit, si):
-    from thrustgraph.units import to_si
+    from thrustgraph.base.units import to_si
 
     assert to_si(text, unit) == pytest.approx(si)

@@ -4,7 +4,7 @@ parameters within their reported intervals, bad input, provenance of the calibra
 Every synthetic record here comes from the bundled bottle rocket held on a test stand
 (models/bottle-rocket.toml with ``launch.mount = "held"``), flown with chosen "true" parameters and sampled the
 way an averaging logger samples (each sample the mean over its own interval, computed here by a midpoint rule
-independent of thrustgraph.compare), plus Gaussian noise of a known level.
+independent of thrustgraph.measured.compare), plus Gaussian noise of a known level.
 """
 
 from __future__ import annotations
@@ -23,8 +23,8 @@ from scipy.stats import t as student_t
 
 import thrustgraph as tg
 from thrustgraph import ModelError
-from thrustgraph.calibrate import FitParameter, MeasuredRun, ProgressLine, calibrate, write_calibrated_model
-from thrustgraph.records import ColumnMap, align, loads_record
+from thrustgraph.measured.calibrate import FitParameter, MeasuredRun, ProgressLine, calibrate, write_calibrated_model
+from thrustgraph.measured.records import ColumnMap, align, loads_record
 
 PA = 101325.0            # the bundled model's still air: 101325 Pa
 RHO = 998.2              # the tank's default liquid density, kg/m^3
@@ -197,8 +197,8 @@ def test_two_records_at_different_charge_pressures(tmp_path):
 def test_start_time_correction_after_a_trigger():
     # Aligned by a level trigger, the sudden release is placed only to within a sample (here 0.6 ms late); the
     # fit corrects the start time together with the parameters and recovers the logger's true offset.
-    from thrustgraph.compare import prepare_record
-    from thrustgraph.records import Trigger
+    from thrustgraph.measured.compare import prepare_record
+    from thrustgraph.measured.records import Trigger
 
     text, _ = synthetic_run(61, noise_thrust=3.0, noise_pressure=4500.0, lead=0.01)
     raw = loads_record(text, source="trig.csv")

@@ -23,9 +23,9 @@ import pytest
 from conftest import HANG_GUARD
 from thrustgraph import fly, load_model
 from thrustgraph.cli import COMMANDS, build_parser
-from thrustgraph.model import parse_model
-from thrustgraph.modelfile import bundled_models, default_model_path, dumps_model
-from thrustgraph.plugins import component_kinds, environment_kinds, get_plugin_manager
+from thrustgraph.models.model import parse_model
+from thrustgraph.models.modelfile import bundled_models, default_model_path, dumps_model
+from thrustgraph.models.plugins import component_kinds, environment_kinds, get_plugin_manager
 
 BASE = default_model_path().read_text()
 PNG = b"\x89PNG\r\n\x1a\n"

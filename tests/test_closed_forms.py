@@ -206,7 +206,7 @@ def test_velocity_of_approach_from_the_bore(bore, d, cd):
 
 
 def test_a_nozzle_as_wide_as_the_bore_is_refused():
-    from thrustgraph.model import parse_model
+    from thrustgraph.models.model import parse_model
     with pytest.raises(ModelError, match=r"components.neck: its jet area .* is 0.9 of the bore of 'bottle'.*"
                                          r"approach_velocity = false"):
         parse_model(static_bottle("4 bar", d="30 mm", cd=0.9, approach="true", bore="30 mm"))

@@ -1,4 +1,4 @@
-"""The plugin contract is checked (thrustgraph.contract): a broken plugin gets one message naming the plugin, the
+"""The plugin contract is checked (thrustgraph.kinds.contract): a broken plugin gets one message naming the plugin, the
 kind, the hook and the fix; the command line exits 2 without a traceback, and never blames the user's model file.
 
 The broken plugins of the first tests are the sample family of docs/plugins.md with one mistake each, installed
@@ -15,18 +15,19 @@ import re
 import pytest
 from pluginguide import GUIDE, cli, install_guide_family
 
-from thrustgraph import contract, hookimpl
-from thrustgraph.assembly import assemble
-from thrustgraph.component import (BodyFns, ComponentKind, EnvironmentKind, FlowFns, JetFns, SourceFns, StateVar,
+from thrustgraph import hookimpl
+from thrustgraph.kinds import contract
+from thrustgraph.flight.assembly import assemble
+from thrustgraph.kinds.component import (BodyFns, ComponentKind, EnvironmentKind, FlowFns, JetFns, SourceFns, StateVar,
                                    VolumeFns)
-from thrustgraph.contract import HOOKS, check_system
-from thrustgraph.designs import resolve
-from thrustgraph.errors import ContractError, PluginError
-from thrustgraph.model import parse_model
-from thrustgraph.modelfile import default_model_path, load_model
-from thrustgraph.parameters import Number, Quantity
-from thrustgraph.plugins import component_kinds, environment_kinds, get_plugin_manager
-from thrustgraph.studies import evaluate
+from thrustgraph.kinds.contract import HOOKS, check_system
+from thrustgraph.models.designs import resolve
+from thrustgraph.base.errors import ContractError, PluginError
+from thrustgraph.models.model import parse_model
+from thrustgraph.models.modelfile import default_model_path, load_model
+from thrustgraph.kinds.parameters import Number, Quantity
+from thrustgraph.models.plugins import component_kinds, environment_kinds, get_plugin_manager
+from thrustgraph.studies.studies import evaluate
 
 PLUGIN = "plugin 'sharp_orifices' (distribution sharp-orifices 0.1.0, module sharp_orifices"
 

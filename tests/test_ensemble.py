@@ -8,15 +8,15 @@ import numpy as np
 import pytest
 
 from conftest import model_from_toml
-from thrustgraph.arraysystem import ArraySystem, unsupported
-from thrustgraph.assembly import assemble
-from thrustgraph.designs import apply, resolve
-from thrustgraph.ensemble import fly_designs
-from thrustgraph.errors import ModelError
-from thrustgraph.integrate import fly_segments
-from thrustgraph.model import parse_model
-from thrustgraph.modelfile import default_model_path, load_model
-from thrustgraph.studyflight import fly_design
+from thrustgraph.flight.arraysystem import ArraySystem, unsupported
+from thrustgraph.flight.assembly import assemble
+from thrustgraph.models.designs import apply, resolve
+from thrustgraph.flight.ensemble import fly_designs
+from thrustgraph.base.errors import ModelError
+from thrustgraph.flight.integrate import fly_segments
+from thrustgraph.models.model import parse_model
+from thrustgraph.models.modelfile import default_model_path, load_model
+from thrustgraph.studies.studyflight import fly_design
 
 PATHS = ["components.bottle.fill", "components.bottle.gauge_pressure", "components.neck.diameter",
          "components.neck.discharge_coefficient", "components.airframe.dry_mass", "components.airframe.drag_coefficient",

@@ -15,12 +15,12 @@ import pytest
 from ambiance import Atmosphere
 from fluids.atmosphere import ATMOSPHERE_1976
 
-from thrustgraph.xp import scalar_ops
+from thrustgraph.base.xp import scalar_ops
 from thrustgraph import integrate, parse_model
 from thrustgraph.cli import main as cli_main
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import parse_params
-from thrustgraph.plugins import environment_kinds, get_plugin_manager
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import parse_params
+from thrustgraph.models.plugins import environment_kinds, get_plugin_manager
 from conftest import model_from_toml
 
 from tg_atmosphere.standard1976 import LAYERS, geometric_altitude, geopotential_altitude
@@ -517,7 +517,7 @@ def test_a_given_density_within_one_percent_is_used_as_given(kinds):
 def test_the_flight_and_check_see_the_derived_density(tmp_path):
     text = (REPO / "models" / "bottle-rocket.toml").read_text().replace('\ntemperature = "15 degC"',
                                                                         '\ntemperature = "35 degC"')
-    from thrustgraph.modelfile import loads_model
+    from thrustgraph.models.modelfile import loads_model
     parsed = parse_model(loads_model(text, source="warm.toml"))
     assert parsed.ambient.density == pytest.approx(101325.0 / (R_1976 * 308.15), rel=1e-12)
     path = tmp_path / "warm.toml"
@@ -531,8 +531,8 @@ def test_the_flight_and_check_see_the_derived_density(tmp_path):
 
 
 def test_a_study_cannot_vary_a_density_the_model_derives():
-    from thrustgraph.designs import resolve
-    from thrustgraph.modelfile import load_model
+    from thrustgraph.models.designs import resolve
+    from thrustgraph.models.modelfile import load_model
     parsed = parse_model(load_model(REPO / "models" / "bottle-rocket.toml"))
     with pytest.raises(ModelError, match="is left out of the model.*vary what it is derived from"):
         resolve(parsed, "environment.medium.density")
@@ -544,9 +544,9 @@ def test_a_temperature_sweep_with_a_pinned_density_screens_the_designs_it_contra
     # The model pins density = 1.225 kg/m^3; a study varying the temperature refuses (screens) the designs whose
     # temperature that density no longer fits (beyond 1 %), on both paths of a study.
     import numpy as np
-    from thrustgraph.designs import resolve
-    from thrustgraph.modelfile import load_model
-    from thrustgraph.studies import evaluate
+    from thrustgraph.models.designs import resolve
+    from thrustgraph.models.modelfile import load_model
+    from thrustgraph.studies.studies import evaluate
     m = load_model(REPO / "models" / "bottle-rocket.toml").set("environment.medium.density", "1.225 kg/m^3")
     parsed = parse_model(m)
     p = resolve(parsed, "environment.medium.temperature")

@@ -2,8 +2,8 @@
 every value of every bundled model's flight.
 
 * each header is ``name [unit]``: the unit the result declares for the signal (``[1]`` for a pure number, ``[text]``
-  for the phase), from the one place signal units come from (:func:`thrustgraph.result.signal_unit`);
-* :func:`thrustgraph.records.read_record` reads the file back as a saved prediction and holds every value exactly
+  for the phase), from the one place signal units come from (:func:`thrustgraph.flight.result.signal_unit`);
+* :func:`thrustgraph.measured.records.read_record` reads the file back as a saved prediction and holds every value exactly
   (``repr`` of a float reads back to the same float; SI units convert by 1), the repeated time of each phase
   boundary and the ``nan`` of a signal with no value in a phase;
 * ``thrustgraph compare`` of the model against its own export finds (next to) no error.
@@ -20,13 +20,13 @@ import pytest
 
 import thrustgraph as tg
 from thrustgraph.cli import main
-from thrustgraph.compare import compare
-from thrustgraph.errors import ModelError
-from thrustgraph.exportformats import EXPORTS
-from thrustgraph.modelfile import bundled_models, load_model
-from thrustgraph.records import ColumnMap, loads_record, read_record
-from thrustgraph.result import signal_unit
-from thrustgraph.units import Q_
+from thrustgraph.measured.compare import compare
+from thrustgraph.base.errors import ModelError
+from thrustgraph.outputs.exportformats import EXPORTS
+from thrustgraph.models.modelfile import bundled_models, load_model
+from thrustgraph.measured.records import ColumnMap, loads_record, read_record
+from thrustgraph.flight.result import signal_unit
+from thrustgraph.base.units import Q_
 
 MODELS = sorted(bundled_models().items())
 

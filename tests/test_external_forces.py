@@ -11,11 +11,11 @@ import math
 import numpy as np
 import pytest
 
-from thrustgraph.xp import scalar_ops
+from thrustgraph.base.xp import scalar_ops
 from thrustgraph import integrate, parse_model
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import parse_params
-from thrustgraph.plugins import component_kinds, get_plugin_manager
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import parse_params
+from thrustgraph.models.plugins import component_kinds, get_plugin_manager
 from conftest import model_from_toml
 
 G0 = 9.80665                     # standard gravity, exact (3rd CGPM 1901)

@@ -17,7 +17,7 @@ from scipy.integrate import trapezoid
 from scipy.optimize import brentq
 
 from thrustgraph import assemble, integrate, load_model
-from thrustgraph.balance import Balance
+from thrustgraph.balance.balance import Balance
 from tg_feeds import froude_efficiency
 from tg_vessels import PRESSURE_CAUTIONS
 
@@ -120,7 +120,7 @@ def test_hose_fed_platform_hovers_at_the_algebraic_height(flights):
     # 1. held at z_eq at rest after the station's ramp, the platform does not accelerate
     system = assemble(load_model(str(MODELS / "hose-fed-hover.toml")))
     bal = Balance(system)
-    from thrustgraph.balance import Kinematics
+    from thrustgraph.balance.balance import Kinematics
     bal.set_phase(list(system.mode0), Kinematics.FREE, False)
     y = np.array(system.y0)
     y[2] = z_eq

@@ -11,12 +11,12 @@ import pandas as pd
 import pytest
 
 import thrustgraph as tg
-from thrustgraph.dispersion import disperse
-from thrustgraph.errors import ThrustgraphError
-from thrustgraph.frames import pandas
-from thrustgraph.modelfile import default_model_path, load_model
-from thrustgraph.outcomes import OUTCOMES
-from thrustgraph.studies import sensitivities, sweep
+from thrustgraph.studies.dispersion import disperse
+from thrustgraph.base.errors import ThrustgraphError
+from thrustgraph.base.frames import pandas
+from thrustgraph.models.modelfile import default_model_path, load_model
+from thrustgraph.balance.outcomes import OUTCOMES
+from thrustgraph.studies.studies import sensitivities, sweep
 
 
 def test_a_flight_as_a_frame_holds_every_exported_column():

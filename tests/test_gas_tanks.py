@@ -17,8 +17,8 @@ from scipy.integrate import trapezoid
 from scipy.optimize import minimize_scalar
 
 from thrustgraph import integrate
-from thrustgraph.errors import ModelError
-from thrustgraph.model import parse_model
+from thrustgraph.base.errors import ModelError
+from thrustgraph.models.model import parse_model
 from tg_gasdynamics.isentropic import mass_flux_factor
 from tg_gastanks.fluids import expansion_exponent, new_state
 from tg_gastanks.gases import IDEAL_GASES
@@ -319,9 +319,9 @@ def test_real_gas_tanks_over_arrays_of_designs_equal_coolprop_called_per_design(
     exponent and temperature rate of the same tank built for that one design (floats)."""
     from CoolProp.CoolProp import PropsSI
 
-    from thrustgraph.component import Ambient
-    from thrustgraph.parameters import parse_params
-    from thrustgraph.xp import array_ops, scalar_ops
+    from thrustgraph.kinds.component import Ambient
+    from thrustgraph.kinds.parameters import parse_params
+    from thrustgraph.base.xp import array_ops, scalar_ops
     from tg_gastanks import GasTank, SelfPressurisingTank
 
     amb = Ambient(101325.0, 293.15, 1.2)

@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 
 from thrustgraph import integrate
-from thrustgraph.component import scalar_ops
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import parse_params
+from thrustgraph.kinds.component import scalar_ops
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import parse_params
 from tg_gasdynamics import ConvergingDivergingNozzle
 from tg_gasdynamics.isentropic import (area_ratio, density_ratio, mach_from_area_ratio, mass_flux_factor,
                                        normal_shock, pressure_ratio, temperature_ratio)

@@ -17,8 +17,8 @@ import pytest
 from scipy.optimize import brentq
 
 from thrustgraph import integrate
-from thrustgraph.errors import ModelError
-from thrustgraph.model import parse_model
+from thrustgraph.base.errors import ModelError
+from thrustgraph.models.model import parse_model
 from conftest import HEADER, model_from_toml
 
 G0 = 9.80665  # standard gravity, exact (3rd CGPM 1901)

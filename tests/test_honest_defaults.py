@@ -15,8 +15,8 @@ from pathlib import Path
 import pytest
 
 from thrustgraph import ModelError, fly
-from thrustgraph.model import parse_model
-from thrustgraph.modelfile import default_model_path, loads_model
+from thrustgraph.models.model import parse_model
+from thrustgraph.models.modelfile import default_model_path, loads_model
 
 BASE = default_model_path().read_text()
 

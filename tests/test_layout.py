@@ -3,7 +3,7 @@
 Every module of ``framework/thrustgraph`` belongs to one layer (the subpackage it is to move into); a layer may
 import only itself and the layers :data:`MAY_IMPORT` lists for it. Every import counts: at the top of a module,
 inside a function, under ``if TYPE_CHECKING``, relative or absolute, and a module named in a string
-(``importlib.import_module("thrustgraph.x")``, a registry's ``"thrustgraph.plots:thrust_figure"``). The modules
+(``importlib.import_module("thrustgraph.x")``, a registry's ``"thrustgraph.outputs.plots:thrust_figure"``). The modules
 import one another without a cycle, and the device plugins import only the plugin contract (and its base).
 So the move into subpackages keeps the rules, and a new module or import that breaks them fails here.
 """
@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import ast
 import re
+import tomllib
 from pathlib import Path
 
 import networkx as nx
@@ -23,23 +24,24 @@ PLUGINS = ROOT / "plugins"
 
 #: layer -> its modules (names inside the ``thrustgraph`` package). docs/layout.md says what each holds.
 LAYERS: dict[str, tuple[str, ...]] = {
-    "base": ("errors", "units", "version", "limits", "interrupts", "progress", "outputfiles", "xp", "roots",
-             "frames"),
-    "kinds": ("parameters", "outcomespec", "vehicle", "component", "contract", "hookspecs", "modeldata",
-              "signalunits", "displayunits"),
-    "balance": ("plan", "balance", "vectors", "straightline", "arrayops", "sampling", "outcomes"),
-    "models": ("plugins", "staging", "model", "modelfile", "designs"),
-    "flight": ("assembly", "separation", "stepguard", "integrate", "result", "signallog", "arraysystem",
-               "ensemble"),
-    "outputs": ("exportformats", "plotkinds", "plots", "studyplots", "report", "overlayplots"),
-    "measured": ("records", "compare", "calibrate", "overlay"),
-    "studies": ("studyspec", "studyprogress", "studyflight", "engines", "studies", "dispersion", "optimisation",
-                "studykinds"),
-    "cli": ("cli", "commands", "commands.calibrate", "commands.check", "commands.common", "commands.compare",
-            "commands.export", "commands.graph", "commands.kinds", "commands.new", "commands.outputs",
-            "commands.plot", "commands.progress", "commands.report", "commands.run", "commands.study",
-            "commands.overlay"),
-    "package": ("",),   # thrustgraph/__init__.py: the names a user imports from thrustgraph
+    'base': ('base', 'base.errors', 'base.units', 'base.version', 'base.limits', 'base.interrupts',
+        'base.progress', 'base.outputfiles', 'base.xp', 'base.roots', 'base.frames'),
+    'kinds': ('kinds', 'kinds.parameters', 'kinds.outcomespec', 'kinds.vehicle', 'kinds.component',
+        'kinds.contract', 'kinds.hookspecs', 'kinds.modeldata', 'kinds.signalunits', 'kinds.displayunits'),
+    'balance': ('balance', 'balance.plan', 'balance.balance', 'balance.vectors', 'balance.straightline',
+        'balance.arrayops', 'balance.sampling', 'balance.outcomes'),
+    'models': ('models', 'models.plugins', 'models.staging', 'models.model', 'models.modelfile', 'models.designs'),
+    'flight': ('flight', 'flight.assembly', 'flight.separation', 'flight.stepguard', 'flight.integrate',
+        'flight.result', 'flight.signallog', 'flight.arraysystem', 'flight.ensemble'),
+    'outputs': ('outputs', 'outputs.exportformats', 'outputs.plotkinds', 'outputs.plots', 'outputs.studyplots',
+        'outputs.report', 'outputs.overlayplots'),
+    'measured': ('measured', 'measured.records', 'measured.compare', 'measured.calibrate', 'measured.overlay'),
+    'studies': ('studies', 'studies.studyspec', 'studies.studyprogress', 'studies.studyflight', 'studies.engines',
+        'studies.studies', 'studies.dispersion', 'studies.optimisation', 'studies.studykinds'),
+    'cli': ('cli', 'commands', 'commands.calibrate', 'commands.check', 'commands.common', 'commands.compare',
+        'commands.export', 'commands.graph', 'commands.kinds', 'commands.new', 'commands.outputs', 'commands.plot',
+        'commands.progress', 'commands.report', 'commands.run', 'commands.study', 'commands.overlay'),
+    'package': ('',),
 }
 
 _BELOW = ("base", "kinds", "balance", "models", "flight", "outputs")
@@ -61,7 +63,7 @@ MAY_IMPORT: dict[str, tuple[str, ...]] = {
 #: (``from thrustgraph import hookimpl``).
 PLUGIN_MAY_IMPORT = ("base", "kinds", "package")
 #: ... and these modules of other layers: the record reader, for a kind's data files (a thrust-curve table).
-PLUGIN_MAY_ALSO = ("records",)
+PLUGIN_MAY_ALSO = ("measured.records",)
 
 LAYER_OF = {m: layer for layer, mods in LAYERS.items() for m in mods}
 _NAMED = re.compile(r"^thrustgraph\.[A-Za-z_][\w.]*(:[A-Za-z_]\w*)?$")
@@ -76,7 +78,7 @@ def module_name(path: Path, root: Path) -> str:
 
 
 def _core_module(dotted: str) -> str | None:
-    """The core module a dotted name points into (``thrustgraph.plots.figure`` -> ``plots``), or None."""
+    """The core module a dotted name points into (``thrustgraph.outputs.plots.figure`` -> ``outputs.plots``), or None."""
     if dotted != "thrustgraph" and not dotted.startswith("thrustgraph."):
         return None
     parts = dotted.split(".")[1:]
@@ -147,10 +149,11 @@ def test_layers_import_only_what_they_may():
 
 
 def test_a_forbidden_import_is_named():
-    assert violations([("plots", "studies", 7), ("balance", "integrate", 9), ("studies", "records", 3),
-                       ("integrate", "balance", 1)]) == [
-        "plots (outputs) imports studies (studies) at line 7", "balance (balance) imports integrate (flight) at line 9",
-        "studies (studies) imports records (measured) at line 3"]
+    assert violations([("outputs.plots", "studies.studies", 7), ("balance.balance", "flight.integrate", 9),
+                       ("studies.studies", "measured.records", 3), ("flight.integrate", "balance.balance", 1)]) == [
+        "outputs.plots (outputs) imports studies.studies (studies) at line 7",
+        "balance.balance (balance) imports flight.integrate (flight) at line 9",
+        "studies.studies (studies) imports measured.records (measured) at line 3"]
 
 
 def test_the_allowed_imports_between_layers_have_no_cycle():
@@ -185,7 +188,7 @@ def test_docs_layout_names_every_module_in_its_layer():
         assert m, f"docs/layout.md has no section ### `{layer}`"
         section = m.group(1)
         for mod in mods:
-            if mod:
+            if mod and mod != layer:                  # the subpackage itself (its __init__)
                 assert f"`{mod.split('.')[-1]}" in section or f"`{mod}" in section, (layer, mod)
         allowed = ", ".join(f"`{x}`" for x in MAY_IMPORT[layer]) or "nothing"
         assert f"May import: {allowed}." in section, (layer, allowed)
@@ -196,10 +199,18 @@ def test_docs_layout_names_every_module_in_its_layer():
     ("def f():\n    from ..studies import sweep\n", ["thrustgraph.studies"]),
     ("if TYPE_CHECKING:\n    from .model import Model\n", ["thrustgraph.commands.model"]),
     ("from .. import plots as p\n", ["thrustgraph.plots"]),
-    ("X = 'thrustgraph.plots:thrust_figure'\n", ["thrustgraph.plots"]),
+    ("X = 'thrustgraph.outputs.plots:thrust_figure'\n", ["thrustgraph.outputs.plots"]),
     ("import thrustgraph.integrate\n", ["thrustgraph.integrate"]),
 ])
 def test_the_import_reader_sees_every_form(tmp_path, source, expected):
     f = tmp_path / "m.py"
     f.write_text(source)
     assert [d for _, d in imports_of(f, "thrustgraph.commands")] == expected
+
+
+def test_pyproject_ships_every_subpackage():
+    # setuptools' explicit package list: a subpackage left out is missing from a wheel (an editable install hides it)
+    listed = set(tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))["tool"]["setuptools"]["packages"])
+    found = {".".join(("thrustgraph",) + p.parent.relative_to(CORE).parts) for p in CORE.rglob("__init__.py")
+             if "__pycache__" not in p.parts}
+    assert not found - listed, f"add these packages to [tool.setuptools] packages in pyproject.toml: {sorted(found - listed)}"

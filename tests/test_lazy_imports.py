@@ -47,7 +47,7 @@ def roots(modules: list[str]) -> set[str]:
 def test_importing_the_package_imports_no_library():
     loaded = fresh("import json, sys, thrustgraph\nprint(json.dumps(sorted(sys.modules)))")
     assert not roots(loaded) & set(HEAVY)
-    assert [m for m in loaded if m.startswith("thrustgraph")] == ["thrustgraph", "thrustgraph.version"]
+    assert [m for m in loaded if m.startswith("thrustgraph")] == ["thrustgraph", "thrustgraph.base", "thrustgraph.base.version"]
 
 
 @pytest.mark.parametrize("argv", [["--version"], ["--help"]])
@@ -66,8 +66,8 @@ def test_version_and_help_import_no_library_and_no_command(argv):
 def test_check_imports_no_optimiser_integrator_or_plotting():
     loaded = imported_by(["check"])
     assert "pint" in loaded and "thrustgraph.commands.check" in loaded     # what it needs, it has
-    for name in ("scipy.optimize", "scipy.integrate", "matplotlib", "thrustgraph.integrate",
-                 "thrustgraph.commands.run", "thrustgraph.studies"):
+    for name in ("scipy.optimize", "scipy.integrate", "matplotlib", "thrustgraph.flight.integrate",
+                 "thrustgraph.commands.run", "thrustgraph.studies.studies"):
         assert name not in loaded, name
 
 
@@ -79,21 +79,21 @@ def test_a_command_imports_only_its_own_command_module():
 
 #: Where each public name is defined, as a user would import it from its module.
 DEFINED = """
-from thrustgraph.hookspecs import hookimpl, hookspec
-from thrustgraph.errors import IntegrationError, ModelError, PluginError, ThrustgraphError
-from thrustgraph.model import Model, ParsedModel, parse_model
-from thrustgraph.modelfile import default_model_path, load_model, loads_model, save_model, dumps_model
-from thrustgraph.assembly import System, assemble
-from thrustgraph.integrate import fly, integrate
-from thrustgraph.result import FlightResult
-from thrustgraph.version import __version__
+from thrustgraph.kinds.hookspecs import hookimpl, hookspec
+from thrustgraph.base.errors import IntegrationError, ModelError, PluginError, ThrustgraphError
+from thrustgraph.models.model import Model, ParsedModel, parse_model
+from thrustgraph.models.modelfile import default_model_path, load_model, loads_model, save_model, dumps_model
+from thrustgraph.flight.assembly import System, assemble
+from thrustgraph.flight.integrate import fly, integrate
+from thrustgraph.flight.result import FlightResult
+from thrustgraph.base.version import __version__
 """
 
 
 @pytest.mark.parametrize("first", ["the package", "every module of the package"])
 def test_every_public_name_is_the_object_its_module_defines(first):
     # in a fresh process, each name's first use; also after every module was imported first: thrustgraph.integrate
-    # (a module and a public function of the same name) stays the function
+    # stays the public function (its module, thrustgraph.flight.integrate, sits in a subpackage)
     code = ("import json, importlib, pkgutil, thrustgraph\n"
             + ("for m in pkgutil.walk_packages(thrustgraph.__path__, 'thrustgraph.'):\n"
                "    importlib.import_module(m.name)\n" if first != "the package" else "")

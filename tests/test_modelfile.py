@@ -16,12 +16,12 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from thrustgraph import ModelError
-from thrustgraph.errors import OutputError
-from thrustgraph.model import LAUNCH_SPECS, RUN_SPECS, Model
-from thrustgraph.modelfile import (FORMAT_VERSION, TOP_LEVEL_KEYS, UPGRADES, atomic_write, bundled_models, check_model, dumps_model,
+from thrustgraph.base.errors import OutputError
+from thrustgraph.models.model import LAUNCH_SPECS, RUN_SPECS, Model
+from thrustgraph.models.modelfile import (FORMAT_VERSION, TOP_LEVEL_KEYS, UPGRADES, atomic_write, bundled_models, check_model, dumps_model,
                                    load_model, loads_model, save_model, upgrade_data)
-from thrustgraph.parameters import Choice, Flag, Quantity, Table, Vector, parse_params
-from thrustgraph.plugins import component_kinds, environment_kinds, get_plugin_manager
+from thrustgraph.kinds.parameters import Choice, Flag, Quantity, Table, Vector, parse_params
+from thrustgraph.models.plugins import component_kinds, environment_kinds, get_plugin_manager
 
 PM = get_plugin_manager()
 KINDS = component_kinds(PM)

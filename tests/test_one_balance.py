@@ -1,6 +1,6 @@
 """One balance for every path: a single flight and an ensemble of the same designs give the same numbers.
 
-Both evaluate :class:`thrustgraph.balance.Balance` over the same :class:`thrustgraph.plan.Plan` (floats for a
+Both evaluate :class:`thrustgraph.balance.balance.Balance` over the same :class:`thrustgraph.balance.plan.Plan` (floats for a
 single flight, numpy arrays of designs for an ensemble), so their right-hand sides agree to rounding
 (1e-12 relative) and their outcomes to the integration tolerance (1e-6 relative at rtol = atol = 1e-9). The
 properties are drawn by hypothesis over the bundled models the ensemble flies, every physics option of their
@@ -30,18 +30,18 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import thrustgraph as tg
-from thrustgraph.arraysystem import ArraySystem, unsupported
-from thrustgraph.balance import Balance, Kinematics
-from thrustgraph.designs import apply, resolve
-from thrustgraph.ensemble import COMPUTED, fly_designs
-from thrustgraph.errors import IntegrationError
-from thrustgraph.integrate import available_signals, fly_segments
-from thrustgraph.model import parse_model
-from thrustgraph.modelfile import loads_model
-from thrustgraph.separation import stage_models
-from thrustgraph.staging import condition, resolve_thresholds
-from thrustgraph.studyflight import fly_design
-from thrustgraph.xp import array_ops, scalar_ops
+from thrustgraph.flight.arraysystem import ArraySystem, unsupported
+from thrustgraph.balance.balance import Balance, Kinematics
+from thrustgraph.models.designs import apply, resolve
+from thrustgraph.flight.ensemble import COMPUTED, fly_designs
+from thrustgraph.base.errors import IntegrationError
+from thrustgraph.flight.integrate import available_signals, fly_segments
+from thrustgraph.models.model import parse_model
+from thrustgraph.models.modelfile import loads_model
+from thrustgraph.flight.separation import stage_models
+from thrustgraph.models.staging import condition, resolve_thresholds
+from thrustgraph.studies.studyflight import fly_design
+from thrustgraph.base.xp import array_ops, scalar_ops
 from tg_atmosphere import StillWater
 from tg_drag import BoatHull, Buoyancy
 from tg_feeds import Inlet, Pump, froude_efficiency
@@ -419,7 +419,7 @@ def test_a_large_study_the_ensemble_cannot_fly_says_so_when_it_starts(float_only
     before any flight: the notice comes first.)"""
     import io
 
-    from thrustgraph.studies import evaluate
+    from thrustgraph.studies.studies import evaluate
 
     m, parsed = float_only_rocket
     p = resolve(parsed, "components.airframe.dry_mass")
@@ -449,8 +449,8 @@ def test_the_water_kinds_are_one_definition_for_floats_and_arrays(seed, acts, pr
     """Hull, buoyancy, still water, inlet and pump over arrays of designs equal their float calls design by
     design, in every option and across the regimes (at rest, inside and above the resistance table; below and
     above the pump's shut-off flow, beyond its head curve, stopped; below and above the water's surface)."""
-    from thrustgraph.component import Ambient
-    from thrustgraph.parameters import parse_params
+    from thrustgraph.kinds.component import Ambient
+    from thrustgraph.kinds.parameters import parse_params
 
     rng = np.random.default_rng(seed)
     n = 12

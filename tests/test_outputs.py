@@ -1,6 +1,6 @@
 """Outputs all or nothing: the write-then-rename helper, and every command's outputs.
 
-The helper (:mod:`thrustgraph.outputfiles`): permissions kept, links written
+The helper (:mod:`thrustgraph.base.outputfiles`): permissions kept, links written
 through, FIFOs and devices refused, missing folders named and not created,
 files and folders synced, nothing misleading left by a kill between the write
 and the rename. The commands: every output path is checked before any work,
@@ -21,8 +21,8 @@ from pathlib import Path
 
 import pytest
 
-from thrustgraph.errors import OutputError
-from thrustgraph.outputfiles import PARTIAL_TAG, atomic_write, check_output, remove_stale_partials, write_all
+from thrustgraph.base.errors import OutputError
+from thrustgraph.base.outputfiles import PARTIAL_TAG, atomic_write, check_output, remove_stale_partials, write_all
 
 
 def listing(d: Path) -> list[str]:
@@ -136,7 +136,7 @@ def test_the_file_and_then_its_folder_are_synced(tmp_path, monkeypatch):
 
 _KILLER = textwrap.dedent("""
     import os, signal, sys
-    from thrustgraph import outputfiles
+    from thrustgraph.base import outputfiles
 
     target, where, named = sys.argv[1], sys.argv[2], sys.argv[3] == "named"
 
@@ -194,7 +194,7 @@ def test_a_partial_of_a_living_process_is_kept(tmp_path):
 
 @pytest.mark.parametrize("named", [False, True], ids=["unnamed", "named"])
 def test_a_failing_second_write_leaves_no_first_file_and_no_temporary(tmp_path, monkeypatch, named):
-    from thrustgraph import outputfiles
+    from thrustgraph.base import outputfiles
 
     if named:
         monkeypatch.setattr(outputfiles, "_unnamed", lambda folder: None)   # as without O_TMPFILE

@@ -21,7 +21,7 @@ import numpy as np
 import pytest
 
 from thrustgraph.cli import main
-from thrustgraph.plotkinds import names
+from thrustgraph.outputs.plotkinds import names
 
 PNG = b"\x89PNG\r\n\x1a\n"
 
@@ -89,11 +89,11 @@ def test_a_saved_result_brings_back_its_outcomes_and_a_record_is_drawn_through_i
     assert [p.name for p in (tmp_path / "p").iterdir()] == ["overlay-thrust.svg"]
     assert (tmp_path / "p" / "overlay-thrust.svg").read_text().lstrip().startswith("<?xml")
     # the same runs through the API: the record's samples drawn as dots over the two predictions' lines
-    from thrustgraph.modelfile import bundled_models, load_model
-    from thrustgraph.integrate import integrate
-    from thrustgraph.overlay import Overlay, run_of_record, run_of_result
-    from thrustgraph.overlayplots import overlay_figures
-    from thrustgraph.records import ColumnMap, read_record
+    from thrustgraph.models.modelfile import bundled_models, load_model
+    from thrustgraph.flight.integrate import integrate
+    from thrustgraph.measured.overlay import Overlay, run_of_record, run_of_result
+    from thrustgraph.outputs.overlayplots import overlay_figures
+    from thrustgraph.measured.records import ColumnMap, read_record
 
     flown = run_of_result(integrate(load_model(bundled_models()["bottle-rocket"])), "flown")
     saved = run_of_record(read_record(tmp_path / "saved.csv"), "saved")

@@ -19,10 +19,10 @@ import pytest
 
 from conftest import HANG_GUARD, model_from_toml
 from thrustgraph import fly, integrate, load_model
-from thrustgraph.modelfile import bundled_models, check_model, default_model_path, dumps_model
-from thrustgraph.plotkinds import FLIGHT, names
-from thrustgraph.plots import figure, figures, graph_figure, powered_window, render, save_plots
-from thrustgraph.report import ledger_audit, render_report, write_report
+from thrustgraph.models.modelfile import bundled_models, check_model, default_model_path, dumps_model
+from thrustgraph.outputs.plotkinds import FLIGHT, names
+from thrustgraph.outputs.plots import figure, figures, graph_figure, powered_window, render, save_plots
+from thrustgraph.outputs.report import ledger_audit, render_report, write_report
 
 PNG = b"\x89PNG\r\n\x1a\n"
 

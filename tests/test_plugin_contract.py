@@ -14,9 +14,9 @@ from pathlib import Path
 import pytest
 
 import thrustgraph
-from thrustgraph import hookspecs
-from thrustgraph.errors import PluginError
-from thrustgraph.plugins import component_kinds, environment_kinds, get_plugin_manager
+from thrustgraph.kinds import hookspecs
+from thrustgraph.base.errors import PluginError
+from thrustgraph.models.plugins import component_kinds, environment_kinds, get_plugin_manager
 
 ROOT = Path(__file__).resolve().parents[1]
 CORE = ROOT / "framework" / "thrustgraph"
@@ -56,7 +56,7 @@ def test_builtins_arrive_through_the_entry_point_group():
 
 def test_duplicate_kind_names_both_plugins():
     from thrustgraph import hookimpl
-    from thrustgraph.component import ComponentKind
+    from thrustgraph.kinds.component import ComponentKind
 
     class Clash(ComponentKind):
         kind = "airframe"
@@ -114,8 +114,8 @@ THIRD_PARTY = '''
 """A device family that is not part of thrustgraph: a linearly fading cold-gas puffer."""
 import math
 from thrustgraph import hookimpl
-from thrustgraph.component import ComponentKind, EventSpec, JetFns, Mode, StateVar
-from thrustgraph.parameters import Quantity
+from thrustgraph.kinds.component import ComponentKind, EventSpec, JetFns, Mode, StateVar
+from thrustgraph.kinds.parameters import Quantity
 
 
 class FadingPuffer(ComponentKind):

@@ -27,7 +27,7 @@ import pytest
 import tomli_w
 from pluginguide import FILE, GUIDE, cli, guide_blocks, guide_files, install_guide_family
 
-from thrustgraph.contract import BUILDERS, HOOKS
+from thrustgraph.kinds.contract import BUILDERS, HOOKS
 
 
 @pytest.fixture(scope="module")

@@ -1,6 +1,6 @@
 """Progress indicators on a real terminal (a pseudo-terminal): one line that fits, rewritten in place, then cleared.
 
-Flights, studies and calibrations draw with tqdm (thrustgraph.progress). Each
+Flights, studies and calibrations draw with tqdm (thrustgraph.base.progress). Each
 case writes to the slave side of a pseudo-terminal of a given width and
 reads what the terminal received from the master side: no clock is involved
 (``every=0`` draws at every call; each read waits for output that is already
@@ -22,9 +22,9 @@ import termios
 import pytest
 
 from conftest import HANG_GUARD
-from thrustgraph.calibrate import ProgressLine
-from thrustgraph.progress import MAX_WIDTH, Progress
-from thrustgraph.studyprogress import StudyProgress
+from thrustgraph.measured.calibrate import ProgressLine
+from thrustgraph.base.progress import MAX_WIDTH, Progress
+from thrustgraph.studies.studyprogress import StudyProgress
 
 
 def terminal(columns: int):

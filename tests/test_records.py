@@ -19,8 +19,8 @@ import pytest
 
 import thrustgraph as tg
 from thrustgraph import ModelError
-from thrustgraph.compare import (compare, interval_means, model_for_records, plot_comparison, prepare_record)
-from thrustgraph.records import (ColumnMap, Trigger, align, crossing_time, is_even, loads_record, lowpass,
+from thrustgraph.measured.compare import (compare, interval_means, model_for_records, plot_comparison, prepare_record)
+from thrustgraph.measured.records import (ColumnMap, Trigger, align, crossing_time, is_even, loads_record, lowpass,
                                  read_record, resample, trim)
 
 # Exact conversion factors: NIST Special Publication 811 (2008), Appendix B.8 / B.9

@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 
 from thrustgraph import integrate, load_model, parse_model
-from thrustgraph.errors import ModelError
+from thrustgraph.base.errors import ModelError
 from tg_recovery import recovery_summary
 from conftest import model_from_toml
 
@@ -233,7 +233,7 @@ def test_a_device_on_a_dropped_stage_deploys_on_the_stage_own_flight():
     # The booster of the bundled two-stage demo carries its own device; after separation the dropped stage is
     # flown on by itself (the core's staging), reaches its apogee and deploys there: the upper stage does not list
     # it, the dropped stage's result does, at that stage's apogee.
-    from thrustgraph.modelfile import bundled_models, loads_model
+    from thrustgraph.models.modelfile import bundled_models, loads_model
 
     text = bundled_models()["two-stage-demo"].read_text().replace(
         'components = ["booster_frame", "booster_motor"]',

@@ -12,8 +12,8 @@ from pathlib import Path
 import pytest
 
 from thrustgraph import fly, load_model
-from thrustgraph.modelfile import default_model_path, dumps_model
-from thrustgraph.plugins import get_plugin_manager, plugin_versions
+from thrustgraph.models.modelfile import default_model_path, dumps_model
+from thrustgraph.models.plugins import get_plugin_manager, plugin_versions
 from thrustgraph import __version__
 
 
@@ -56,7 +56,7 @@ def test_every_output_records_versions_and_the_model_hash(tmp_path):
     doc = json.loads(r.to_json())
     assert doc["provenance"] == {**r.provenance}
 
-    from thrustgraph.report import render_report
+    from thrustgraph.outputs.report import render_report
     page = render_report(r, m, graph=False, plots=["thrust"])
     assert digest in page and f"<td>{__version__}</td>" in page
     assert all(f"<td>plugin {k}</td>" in page for k in plugins)

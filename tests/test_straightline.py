@@ -1,6 +1,6 @@
 """The straight-line functions traced from the balance give the general evaluator's numbers.
 
-:mod:`thrustgraph.straightline` runs the one balance once per phase over symbols and compiles what it did.
+:mod:`thrustgraph.balance.straightline` runs the one balance once per phase over symbols and compiles what it did.
 Its functions must agree with the general evaluator (:meth:`Balance._solve` over floats) at every state of
 every phase a flight visits: exactly (``==``; the tracer drops only ``+ 0``, ``* 1`` and ``* 0``, which can
 change nothing but the sign of a zero). Drawn by hypothesis over every bundled model, the physics options of
@@ -19,11 +19,11 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import thrustgraph as tg
-from thrustgraph import balance as balance_module
-from thrustgraph.balance import Balance
-from thrustgraph.errors import IntegrationError
-from thrustgraph.integrate import fly_segments
-from thrustgraph.straightline import TraceError, compile_function, trace_ops
+from thrustgraph.balance import balance as balance_module
+from thrustgraph.balance.balance import Balance
+from thrustgraph.base.errors import IntegrationError
+from thrustgraph.flight.integrate import fly_segments
+from thrustgraph.balance.straightline import TraceError, compile_function, trace_ops
 
 MODELS = sorted(Path(tg.default_model_path()).parent.glob("*.toml"))
 
@@ -146,7 +146,7 @@ def test_what_the_tracer_cannot_follow_is_refused():
 
 
 def test_branches_and_iterations_run_like_the_float_namespace():
-    from thrustgraph.xp import scalar_ops
+    from thrustgraph.base.xp import scalar_ops
 
     def newton(x, ops):
         # square root of x by Newton from 1 (stops on a relative change)
@@ -176,7 +176,7 @@ def test_compiled_lines_do_not_travel_between_processes():
 
 @pytest.mark.parametrize("path", MODELS, ids=lambda p: p.stem)
 def test_the_full_result_over_arrays_of_samples_is_the_sample_by_sample_result(path, monkeypatch):
-    # the output samples of a segment evaluated at once (thrustgraph.sampling) against one at a time; numpy's
+    # the output samples of a segment evaluated at once (thrustgraph.balance.sampling) against one at a time; numpy's
     # elementwise functions may differ from the math module's in the last bit, and the stand or guide
     # reaction is a difference of large terms: 1e-12 of each signal's largest magnitude
     batched = tg.fly(tg.load_model(path))

@@ -26,16 +26,16 @@ import pytest
 from scipy import stats
 
 from conftest import HANG_GUARD, model_from_toml
-from thrustgraph.designs import resolve
-from thrustgraph.dispersion import disperse, ellipse
-from thrustgraph.errors import ModelError
-from thrustgraph.model import parse_model
-from thrustgraph.modelfile import default_model_path, load_model
-from thrustgraph.optimisation import optimise
-from thrustgraph.studyflight import fly_design
-from thrustgraph.studies import sensitivities, sweep
-from thrustgraph.studykinds import read_study
-from thrustgraph.studyspec import Limit, Spread, Vary
+from thrustgraph.models.designs import resolve
+from thrustgraph.studies.dispersion import disperse, ellipse
+from thrustgraph.base.errors import ModelError
+from thrustgraph.models.model import parse_model
+from thrustgraph.models.modelfile import default_model_path, load_model
+from thrustgraph.studies.optimisation import optimise
+from thrustgraph.studies.studyflight import fly_design
+from thrustgraph.studies.studies import sensitivities, sweep
+from thrustgraph.studies.studykinds import read_study
+from thrustgraph.studies.studyspec import Limit, Spread, Vary
 
 G = 9.80665
 PROJECTILE = """
@@ -78,7 +78,7 @@ def test_grid_sweep_rows_match_single_flights_and_the_csv_names_units(bottle, tm
     assert t.x[:, 1].tolist() == [4e5, 5e5] * 3
     parsed = parse_model(bottle)
     ps = [resolve(parsed, "components.bottle.fill"), resolve(parsed, "components.bottle.gauge_pressure")]
-    from thrustgraph.designs import apply
+    from thrustgraph.models.designs import apply
 
     for i in (0, 5):
         ref = fly_design(apply(parsed, ps, t.x[i]), ["apogee", "range"])
@@ -287,7 +287,7 @@ def test_same_seed_same_table_on_every_local_engine(bottle, flights):
 def test_a_task_is_named_by_its_content_and_a_kept_pool_serves_only_its_own_task(bottle):
     """The same study again finds its model parsed in the workers (same name); any change of model, outputs or
     way of flying is another task, and a kept process pool is restarted for it rather than flying the old one."""
-    from thrustgraph.engines import FlightTask, ProcessEngine
+    from thrustgraph.studies.engines import FlightTask, ProcessEngine
 
     paths, units = ("components.bottle.fill",), ("",)
     a = FlightTask(bottle, paths, units, ("apogee",))
@@ -315,7 +315,7 @@ def test_the_study_cluster_settings_are_dask_settings():
     """Each key of STUDY_CLUSTER_CONFIG is one Dask knows (a misspelt key would be ignored by Dask, silently)."""
     dask = pytest.importorskip("dask")
     pytest.importorskip("distributed")
-    from thrustgraph.engines import STUDY_CLUSTER_CONFIG
+    from thrustgraph.studies.engines import STUDY_CLUSTER_CONFIG
 
     for key, value in STUDY_CLUSTER_CONFIG.items():
         default = dask.config.get(key)                  # KeyError for a key Dask does not have
@@ -360,7 +360,7 @@ def test_bad_study_input_gives_one_clear_message(bottle):
 def test_the_documented_study_table_reads_and_saves_unchanged():
     import re
 
-    from thrustgraph.modelfile import dumps_model, loads_model
+    from thrustgraph.models.modelfile import dumps_model, loads_model
 
     doc = (Path(__file__).resolve().parent.parent / "docs" / "studies.md").read_text()
     block = re.search(r"```toml\n(.*?)```", doc, re.S).group(1)

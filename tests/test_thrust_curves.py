@@ -15,7 +15,7 @@ import pytest
 from scipy.integrate import trapezoid
 
 from thrustgraph import ModelError, integrate, parse_model
-from thrustgraph.modelfile import loads_model
+from thrustgraph.models.modelfile import loads_model
 
 from tg_jets import PrescribedJet, loads_thrust_curve, read_thrust_curve
 
@@ -104,7 +104,7 @@ def test_a_prescribed_jet_flies_the_curve_file(tmp_path):
     (tmp_path / "motors").mkdir()
     (tmp_path / "motors" / "demo.csv").write_text(DEMO.read_text())
     (tmp_path / "rocket.toml").write_text(MODEL.format(path="motors/demo.csv"))   # relative to the model file
-    from thrustgraph.modelfile import load_model
+    from thrustgraph.models.modelfile import load_model
     m = load_model(tmp_path / "rocket.toml")
     parsed = parse_model(m)
     c = read_thrust_curve(DEMO)

@@ -17,11 +17,11 @@ import pytest
 
 import thrustgraph as tg
 from thrustgraph.cli import main
-from thrustgraph.displayunits import parse_units, shown, using
-from thrustgraph.errors import ModelError
-from thrustgraph.modelfile import bundled_models, load_model
-from thrustgraph.plots import figures
-from thrustgraph.records import read_record
+from thrustgraph.kinds.displayunits import parse_units, shown, using
+from thrustgraph.base.errors import ModelError
+from thrustgraph.models.modelfile import bundled_models, load_model
+from thrustgraph.outputs.plots import figures
+from thrustgraph.measured.records import read_record
 
 FT, LB, LBF = 0.3048, 0.45359237, 4.4482216152605      # NIST SP 811 (2008), appendix B: exact by definition
 PSI = LBF / 0.0254 ** 2
@@ -106,7 +106,7 @@ def test_plots_and_the_report_follow_the_choice():
     r = tg.fly()
     with using(parse_units("imperial")):
         figs = figures(r, ["thrust", "motion", "pressure"])
-        from thrustgraph.report import render_report
+        from thrustgraph.outputs.report import render_report
         page = render_report(r, load_model(bundled_models()["bottle-rocket"]), plots=["thrust"], graph=False)
     assert figs["thrust"].axes[0].get_ylabel() == "thrust [lbf]"
     assert figs["motion"].axes[0].get_ylabel() == "altitude [ft]"

@@ -9,11 +9,11 @@ import pytest
 from scipy.integrate import trapezoid
 
 from thrustgraph import assemble, integrate
-from thrustgraph.balance import Balance
-from thrustgraph.component import scalar_ops
-from thrustgraph.errors import ModelError
-from thrustgraph.model import parse_model
-from thrustgraph.parameters import parse_params
+from thrustgraph.balance.balance import Balance
+from thrustgraph.kinds.component import scalar_ops
+from thrustgraph.base.errors import ModelError
+from thrustgraph.models.model import parse_model
+from thrustgraph.kinds.parameters import parse_params
 from tg_feeds import Pump, froude_efficiency
 from conftest import model_from_toml
 

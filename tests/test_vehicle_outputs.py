@@ -11,17 +11,17 @@ import numpy as np
 import pytest
 
 import thrustgraph as tg
-from thrustgraph.integrate import integrate
-from thrustgraph.model import parse_model
+from thrustgraph.flight.integrate import integrate
+from thrustgraph.models.model import parse_model
 from conftest import model_from_toml
-from thrustgraph.outcomes import OUTCOMES, outputs_by_vehicle
-from thrustgraph.outcomespec import display_unit
-from thrustgraph.vehicle import vehicle_profile
+from thrustgraph.balance.outcomes import OUTCOMES, outputs_by_vehicle
+from thrustgraph.kinds.outcomespec import display_unit
+from thrustgraph.kinds.vehicle import vehicle_profile
 
 ROOT = Path(__file__).resolve().parent.parent
 MODELS = sorted((ROOT / "models").glob("*.toml"))
 
-#: The class of every bundled model (thrustgraph.vehicle) and what its summary must and must not show.
+#: The class of every bundled model (thrustgraph.kinds.vehicle) and what its summary must and must not show.
 KIND = {
     "bottle-rocket": "flying", "twin-nozzle-bottle-rocket": "flying", "rocket-with-parachute": "flying",
     "small-rocket-standard-atmosphere": "flying", "two-stage-demo": "flying", "hose-fed-hover": "hovering",
@@ -205,7 +205,7 @@ def test_a_tank_reports_its_lowest_temperature_and_cautions_about_cold(runs):
 
 def test_the_motion_plot_fits_the_mount(runs, stand):
     pytest.importorskip("matplotlib")
-    from thrustgraph.plots import figure
+    from thrustgraph.outputs.plots import figure
     boat = figure(_run(runs, "water-jet-boat"), "motion")
     axes = boat.axes
     assert axes[0].get_ylabel() == "distance along the track [m]"

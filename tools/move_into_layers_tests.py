@@ -40,9 +40,9 @@ s = s.replace('''    assert violations([("plots", "studies", 7), ("balance", "in
 s = s.replace("""        for mod in mods:
             if mod:""", """        for mod in mods:
             if mod and mod != layer:                  # the subpackage itself (its __init__)""")
-s = s.replace("""("X = 'thrustgraph.plots:thrust_figure'\\n", ["thrustgraph.plots"]),""",
+s = s.replace("""("X = 'thrustgraph.outputs.plots:thrust_figure'\\n", ["thrustgraph.outputs.plots"]),""",
               """("X = 'thrustgraph.outputs.plots:thrust_figure'\\n", ["thrustgraph.outputs.plots"]),""")
-s = s.replace('a registry\'s ``"thrustgraph.plots:thrust_figure"``', 'a registry\'s ``"thrustgraph.outputs.plots:thrust_figure"``')
+s = s.replace('a registry\'s ``"thrustgraph.outputs.plots:thrust_figure"``', 'a registry\'s ``"thrustgraph.outputs.plots:thrust_figure"``')
 p.write_text(s)
 d = root / "docs" / "layout.md"
 t = d.read_text()
@@ -52,5 +52,5 @@ t = t.replace("The modules have not moved yet (the move is mechanical and comes 
               "`tests/test_layout.py` checks them")
 t = t.replace("Each will be a subpackage (`thrustgraph.base`, `thrustgraph.kinds`, ...) whose module\ndocstring repeats its \"May import\" line",
               "Each is a subpackage (`thrustgraph.base`, `thrustgraph.kinds`, ...) whose module\ndocstring repeats its \"May import\" line")
-t = t.replace('registry\'s `"thrustgraph.plots:thrust_figure"`', 'registry\'s `"thrustgraph.outputs.plots:thrust_figure"`')
+t = t.replace('registry\'s `"thrustgraph.outputs.plots:thrust_figure"`', 'registry\'s `"thrustgraph.outputs.plots:thrust_figure"`')
 d.write_text(t)

@@ -23,16 +23,16 @@ import sys
 import types
 from typing import TYPE_CHECKING, Any
 
-from .version import __version__
+from .base.version import __version__
 
 if TYPE_CHECKING:   # what the names below are, for type checkers and editors; loaded lazily at run time
-    from .hookspecs import hookimpl, hookspec
-    from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError
-    from .model import Model, ParsedModel, parse_model
-    from .modelfile import default_model_path, load_model, loads_model, save_model, dumps_model
-    from .assembly import System, assemble
-    from .integrate import fly, integrate
-    from .result import FlightResult
+    from .kinds.hookspecs import hookimpl, hookspec
+    from .base.errors import IntegrationError, ModelError, PluginError, ThrustgraphError
+    from .models.model import Model, ParsedModel, parse_model
+    from .models.modelfile import default_model_path, load_model, loads_model, save_model, dumps_model
+    from .flight.assembly import System, assemble
+    from .flight.integrate import fly, integrate
+    from .flight.result import FlightResult
 
 __all__ = [
     "__version__", "hookimpl", "hookspec", "ThrustgraphError", "ModelError", "PluginError", "IntegrationError",
@@ -47,19 +47,19 @@ _LAZY = frozenset(__all__) - {"__version__"}
 def __getattr__(name: str) -> Any:
     """Import a public name's module on first use and keep its public names here (PEP 562)."""
     if name == "hookimpl" or name == "hookspec":
-        from .hookspecs import hookimpl, hookspec
+        from .kinds.hookspecs import hookimpl, hookspec
     elif name in ("ThrustgraphError", "ModelError", "PluginError", "IntegrationError"):
-        from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError
+        from .base.errors import IntegrationError, ModelError, PluginError, ThrustgraphError
     elif name in ("Model", "ParsedModel", "parse_model"):
-        from .model import Model, ParsedModel, parse_model
+        from .models.model import Model, ParsedModel, parse_model
     elif name in ("default_model_path", "load_model", "loads_model", "save_model", "dumps_model"):
-        from .modelfile import default_model_path, load_model, loads_model, save_model, dumps_model
+        from .models.modelfile import default_model_path, load_model, loads_model, save_model, dumps_model
     elif name in ("System", "assemble"):
-        from .assembly import System, assemble
+        from .flight.assembly import System, assemble
     elif name in ("fly", "integrate"):
-        from .integrate import fly, integrate
+        from .flight.integrate import fly, integrate
     elif name == "FlightResult":
-        from .result import FlightResult
+        from .flight.result import FlightResult
     else:
         raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
     found = {k: v for k, v in locals().items() if k in _LAZY}
@@ -75,7 +75,7 @@ class _Package(types.ModuleType):
     """The package's module type: a public name is never replaced by a submodule of the same name.
 
     The import system binds every submodule it loads to its package
-    (``thrustgraph.integrate = <module>``); ``thrustgraph.integrate`` is the
+    (``thrustgraph.flight.integrate = <module>``); ``thrustgraph.flight.integrate`` is the
     function of the public API, loaded or not yet, whatever was imported before.
     """
 

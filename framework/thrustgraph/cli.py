@@ -4,7 +4,7 @@ Each sub-command lives in its own module in :mod:`thrustgraph.commands` and
 exposes ``NAME``, ``HELP``, ``add_arguments(parser)`` and ``main(args) -> int``.
 Bad input ends with one message on stderr and exit status 2; nothing is
 written. Integration failures exit with status 1. Ctrl-C and SIGTERM stop
-the work alike (:mod:`thrustgraph.interrupts`) with status 130 or 143 and no
+the work alike (:mod:`thrustgraph.base.interrupts`) with status 130 or 143 and no
 traceback. A reader that stops reading standard output (``| head -3``) does
 not stop the work: the rest of the printed text is dropped quietly, the
 files asked for are still written and the exit status is the command's own
@@ -34,10 +34,10 @@ import sys
 from contextlib import contextmanager
 from typing import Iterable, Iterator, Sequence
 
-from .version import __version__
+from .base.version import __version__
 from .commands import SUMMARIES
-from .errors import IntegrationError, ModelError, PluginError, ThrustgraphError
-from .interrupts import Terminated, exit_status, stop_on_signals
+from .base.errors import IntegrationError, ModelError, PluginError, ThrustgraphError
+from .base.interrupts import Terminated, exit_status, stop_on_signals
 
 __all__ = ["main", "COMMANDS", "build_parser"]
 

@@ -11,12 +11,12 @@ gets a warning from ``check`` and ``run`` (:func:`thrustgraph_model_warnings`):
 it would fly with no drag at all, and climb about twice as high as with a
 typical Cd of 0.4.
 
-The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.xp`
+The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.base.xp`
 and runs on floats (a single flight) and on numpy arrays of designs (an ensemble).
 
 Examples
 --------
->>> from thrustgraph.component import scalar_ops
+>>> from thrustgraph.kinds.component import scalar_ops
 >>> P = Airframe.params_class()
 >>> b = Airframe.build_body(P(dry_mass=0.1, reference_diameter=0.1, drag_coefficient=0.5), scalar_ops)
 >>> round(b.force((1.2, 1e5, 288.0, 0.0, 0.0, 10.0, 10.0))[2], 6)
@@ -28,8 +28,8 @@ from __future__ import annotations
 import math
 
 from thrustgraph import hookimpl
-from thrustgraph.component import BodyFns, ComponentKind
-from thrustgraph.parameters import Number, Quantity
+from thrustgraph.kinds.component import BodyFns, ComponentKind
+from thrustgraph.kinds.parameters import Number, Quantity
 
 __all__ = ["Airframe"]
 

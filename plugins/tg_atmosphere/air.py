@@ -40,7 +40,7 @@ the Buck fit over water) and where the vapour pressure is below the pressure;
 :func:`check_humid_air` refuses anything else. Relative humidity is taken
 over liquid water also below 0 degC (the meteorological convention).
 
-The functions take ``ops`` (:mod:`thrustgraph.xp`): one definition for floats
+The functions take ``ops`` (:mod:`thrustgraph.base.xp`): one definition for floats
 and for numpy arrays of designs.
 
 Examples
@@ -57,8 +57,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from thrustgraph.errors import ModelError
-from thrustgraph.xp import scalar_ops
+from thrustgraph.base.errors import ModelError
+from thrustgraph.base.xp import scalar_ops
 
 from .standard1976 import R_AIR
 
@@ -107,7 +107,7 @@ def check_humid_air(p: float, T: float, relative_humidity: float, where: str) ->
     >>> check_humid_air(101325.0, 353.15, 0.5, "environment.medium")
     Traceback (most recent call last):
     ...
-    thrustgraph.errors.ModelError: environment.medium.relative_humidity: humid air is computed from -40 degC to +50 degC (the range of the Buck vapour-pressure fit), but the temperature is 80 degC. Fix: give relative_humidity = 0 (dry air) at this temperature, or a temperature in that range.
+    thrustgraph.base.errors.ModelError: environment.medium.relative_humidity: humid air is computed from -40 degC to +50 degC (the range of the Buck vapour-pressure fit), but the temperature is 80 degC. Fix: give relative_humidity = 0 (dry air) at this temperature, or a temperature in that range.
     """
     if not relative_humidity > 0.0:
         return
@@ -129,7 +129,7 @@ def check_air_density(density: float, p: float, T: float, relative_humidity: flo
     >>> check_air_density(1.225, 101325.0, 308.15, 0.0, "environment.medium")
     Traceback (most recent call last):
     ...
-    thrustgraph.errors.ModelError: environment.medium.density: 1.225 kg/m^3 does not go with the pressure 101325 Pa, temperature 35 degC and relative humidity 0 (given or default): as an ideal gas that air has 1.1455 kg/m^3, 6.49 % less (more than the 1 % allowed). Fix: leave density out (it is then derived from pressure, temperature and humidity), or give the pressure, temperature and humidity that go with it.
+    thrustgraph.base.errors.ModelError: environment.medium.density: 1.225 kg/m^3 does not go with the pressure 101325 Pa, temperature 35 degC and relative humidity 0 (given or default): as an ideal gas that air has 1.1455 kg/m^3, 6.49 % less (more than the 1 % allowed). Fix: leave density out (it is then derived from pressure, temperature and humidity), or give the pressure, temperature and humidity that go with it.
     """
     derived = air_density(p, T, relative_humidity)
     if abs(density - derived) <= DENSITY_TOLERANCE * derived:

@@ -18,8 +18,8 @@ flight; a launch point outside the range is refused at model-check time).
 
 Examples
 --------
->>> from thrustgraph.component import scalar_ops
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import scalar_ops
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> p = parse_params(StandardAtmosphere1976.parameters, {"datum_altitude": "1 km"}, where="environment.medium")
 >>> air = StandardAtmosphere1976.build(p, scalar_ops)
 >>> rho, pa, T, wx, wy, wz = air(4000.0, 0.0)       # 4 km above a datum at 1 km: geometric 5 km
@@ -29,9 +29,9 @@ Examples
 
 from __future__ import annotations
 
-from thrustgraph.component import EnvironmentKind
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import Choice, Number, Quantity
+from thrustgraph.kinds.component import EnvironmentKind
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import Choice, Number, Quantity
 
 from .standard1976 import R0, Z_TOP, atmosphere_1976, geometric_altitude, geopotential_altitude
 from .wind import power_law_wind

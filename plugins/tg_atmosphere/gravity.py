@@ -25,8 +25,8 @@ direction of "down" is not turned with the earth's curvature.
 
 Examples
 --------
->>> from thrustgraph.component import scalar_ops
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import scalar_ops
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> p = parse_params(InverseSquareGravity.parameters, {}, where="environment.gravity")
 >>> g = InverseSquareGravity.build(p, scalar_ops)
 >>> g(0.0), g(6356766.0) == 9.80665 / 4
@@ -35,9 +35,9 @@ Examples
 
 from __future__ import annotations
 
-from thrustgraph.component import EnvironmentKind
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import Quantity
+from thrustgraph.kinds.component import EnvironmentKind
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import Quantity
 
 __all__ = ["InverseSquareGravity"]
 

@@ -84,7 +84,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from thrustgraph.xp import scalar_ops
+from thrustgraph.base.xp import scalar_ops
 
 __all__ = [
     "G0", "M0", "R_STAR", "R_AIR", "R0", "T0", "P0", "LAYERS", "H_TOP", "Z_TOP", "H_LOW",
@@ -175,7 +175,7 @@ def atmosphere_1976(H: Any, ops: Any = scalar_ops) -> tuple[Any, Any, Any]:
 
     Exact to the standard from H = 0 to 84 852 m; outside, the stated
     extrapolation of the module docstring. One definition for floats and for arrays of designs (``ops``:
-    :mod:`thrustgraph.xp`).
+    :mod:`thrustgraph.base.xp`).
 
     >>> T, p, rho = atmosphere_1976(0.0)
     >>> T, p, round(rho, 5)

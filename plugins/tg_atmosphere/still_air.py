@@ -22,8 +22,8 @@ The properties do not change with height: for a vehicle that climbs more than a 
 
 Examples
 --------
->>> from thrustgraph.component import scalar_ops
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import scalar_ops
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> p = parse_params(StillAir.parameters, {"temperature": "35 degC"}, where="environment.medium",
 ...                  params_class=StillAir.params_class())
 >>> rho, pa, T, *wind = StillAir.build(p, scalar_ops)(100.0, 0.0)
@@ -33,8 +33,8 @@ Examples
 
 from __future__ import annotations
 
-from thrustgraph.component import EnvironmentKind
-from thrustgraph.parameters import Number, Quantity
+from thrustgraph.kinds.component import EnvironmentKind
+from thrustgraph.kinds.parameters import Number, Quantity
 
 from .air import air_density, check_air_density, check_humid_air
 

@@ -31,15 +31,15 @@ Assumptions and limits:
   above, waves, or the crossing of the surface (surface contact belongs to the
   core's ground/water-surface events).
 
-The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.xp`
+The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.base.xp`
 and runs on floats (a single flight) and on numpy arrays of designs and heights (an ensemble).
 
 Examples
 --------
 >>> import numpy as np
->>> from thrustgraph.component import scalar_ops
->>> from thrustgraph.xp import array_ops
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import scalar_ops
+>>> from thrustgraph.base.xp import array_ops
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> p = parse_params(StillWater.parameters, {}, where="environment.medium")
 >>> water = StillWater.build(p, scalar_ops)
 >>> rho, pa, T, cx, cy, cz = water(-10.0, 0.0)      # 10 m below the surface at z = 0
@@ -51,8 +51,8 @@ Examples
 
 from __future__ import annotations
 
-from thrustgraph.component import EnvironmentKind
-from thrustgraph.parameters import Quantity
+from thrustgraph.kinds.component import EnvironmentKind
+from thrustgraph.kinds.parameters import Quantity
 
 __all__ = ["StillWater"]
 

@@ -33,7 +33,7 @@ from __future__ import annotations
 
 from typing import Any, Callable
 
-from thrustgraph.xp import scalar_ops
+from thrustgraph.base.xp import scalar_ops
 
 __all__ = ["power_law_wind"]
 
@@ -42,7 +42,7 @@ def power_law_wind(*, speed: Any, azimuth_rad: Any, reference_height: Any, expon
                    ceiling: Any, ops: Any = scalar_ops) -> Callable[[Any], tuple[Any, Any, Any]]:
     """Build ``wind(z) -> (wx, wy, wz)`` (m/s) for the power-law profile of the module docstring.
 
-    One definition for floats and for arrays of designs (``ops``: :mod:`thrustgraph.xp`; the parameters
+    One definition for floats and for arrays of designs (``ops``: :mod:`thrustgraph.base.xp`; the parameters
     may then be arrays too).
 
     Parameters

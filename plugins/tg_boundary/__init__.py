@@ -14,7 +14,7 @@ Examples
 from __future__ import annotations
 
 from thrustgraph import hookimpl
-from thrustgraph.component import ComponentKind
+from thrustgraph.kinds.component import ComponentKind
 
 __all__ = ["Surroundings"]
 

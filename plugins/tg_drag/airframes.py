@@ -38,8 +38,8 @@ Assumptions and limits:
 
 Examples
 --------
->>> from thrustgraph.component import scalar_ops
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import scalar_ops
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> p = parse_params(MachTableAirframe.parameters, {
 ...     "dry_mass": "1 kg", "reference_diameter": "100 mm",
 ...     "drag_table": {"units": ["", ""], "rows": [[0.0, 0.5], [2.0, 0.5]]}}, where="components.body")
@@ -52,8 +52,8 @@ from __future__ import annotations
 
 import math
 
-from thrustgraph.component import BodyFns, ComponentKind
-from thrustgraph.parameters import Number, Quantity, Table
+from thrustgraph.kinds.component import BodyFns, ComponentKind
+from thrustgraph.kinds.parameters import Number, Quantity, Table
 
 from .tables import check_column, clamped_interpolator
 
@@ -84,7 +84,7 @@ class _TableAirframe(ComponentKind):
     """Shared parts: dry mass, reference area and the drag force of a table coefficient."""
 
     role = "body"
-    vectorised = True   # one definition for floats and arrays (thrustgraph.xp)
+    vectorised = True   # one definition for floats and arrays (thrustgraph.base.xp)
 
     @classmethod
     def describe_mass(cls, p, amb):

@@ -32,12 +32,12 @@ Assumptions and limits (read them before you use it):
   is usually left out; it is correct to include it.
 
 The kind is ``vectorised``: its one definition (a product of parameters and the medium's density) runs
-on floats and on numpy arrays of designs (:mod:`thrustgraph.xp`).
+on floats and on numpy arrays of designs (:mod:`thrustgraph.base.xp`).
 
 Examples
 --------
->>> from thrustgraph.component import scalar_ops
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import scalar_ops
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> p = parse_params(Buoyancy.parameters, {"displaced_volume": "2 L"}, where="components.float")
 >>> round(Buoyancy.build_body(p, scalar_ops).force((998.2, 1e5, 293.0, 0.0, 0.0, 0.0, 0.0))[2], 6)
 19.577996
@@ -45,8 +45,8 @@ Examples
 
 from __future__ import annotations
 
-from thrustgraph.component import BodyFns, ComponentKind
-from thrustgraph.parameters import Quantity
+from thrustgraph.kinds.component import BodyFns, ComponentKind
+from thrustgraph.kinds.parameters import Quantity
 
 __all__ = ["Buoyancy"]
 

@@ -32,15 +32,15 @@ scaled by Froude's method, or from trials (a standard text: Harvald,
 *Resistance and Propulsion of Ships*, 1983; from memory); this kind uses a
 curve, it does not predict one.
 
-The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.xp`
+The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.base.xp`
 and runs on floats (a single flight) and on numpy arrays of designs (an ensemble).
 
 Examples
 --------
 >>> import numpy as np
->>> from thrustgraph.component import scalar_ops
->>> from thrustgraph.xp import array_ops
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import scalar_ops
+>>> from thrustgraph.base.xp import array_ops
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> p = parse_params(BoatHull.parameters, {"dry_mass": "5 kg",
 ...     "resistance_table": {"units": ["m/s", "N"], "rows": [[0, 0], [1, 2], [2, 10]]}}, where="components.hull")
 >>> hull = BoatHull.build_body(p, scalar_ops)
@@ -54,9 +54,9 @@ Examples
 
 from __future__ import annotations
 
-from thrustgraph.component import BodyFns, ComponentKind
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import Choice, Quantity, Table
+from thrustgraph.kinds.component import BodyFns, ComponentKind
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import Choice, Quantity, Table
 
 from .tables import check_column, clamped_interpolator
 

@@ -1,7 +1,7 @@
 """Table look-ups for the external-force kinds: linear interpolation between rows, stated behaviour at the ends.
 
 The interpolators are built once at assembly from a parsed
-:class:`~thrustgraph.parameters.Table` (an SI array whose first column
+:class:`~thrustgraph.kinds.parameters.Table` (an SI array whose first column
 increases strictly) and are written once for floats and arrays through ``ops.interp`` (for floats a
 bisection over a tuple, no numpy call per evaluation; for arrays of designs ``numpy.interp``).
 
@@ -18,9 +18,9 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from thrustgraph.xp import scalar_ops
+from thrustgraph.base.xp import scalar_ops
 
-from thrustgraph.errors import ModelError
+from thrustgraph.base.errors import ModelError
 
 __all__ = ["clamped_interpolator", "check_column"]
 
@@ -28,7 +28,7 @@ __all__ = ["clamped_interpolator", "check_column"]
 def clamped_interpolator(xs: Sequence[float], ys: Sequence[float], ops: Any = scalar_ops) -> Callable[[Any], Any]:
     """``f(x)``: linear interpolation in (xs, ys); below xs[0] it returns ys[0], above xs[-1] ys[-1].
 
-    One definition for floats and arrays of designs (``ops``: :mod:`thrustgraph.xp`).
+    One definition for floats and arrays of designs (``ops``: :mod:`thrustgraph.base.xp`).
 
     Parameters
     ----------
@@ -60,7 +60,7 @@ def check_column(table: np.ndarray, col: int, *, where: str, name: str, unit: st
     ...              unit="", low=0.0, fix="a drag coefficient is never negative")
     Traceback (most recent call last):
     ...
-    thrustgraph.errors.ModelError: components.body.drag_table.rows[1]: drag_coefficient -0.1 is below 0. Fix: a drag coefficient is never negative.
+    thrustgraph.base.errors.ModelError: components.body.drag_table.rows[1]: drag_coefficient -0.1 is below 0. Fix: a drag coefficient is never negative.
     """
     u = f" {unit}" if unit else ""
     for i, v in enumerate(table[:, col]):

@@ -36,8 +36,8 @@ vehicle's.
 
 Examples
 --------
->>> from thrustgraph.component import Ambient, scalar_ops
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import Ambient, scalar_ops
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> p = parse_params(HoseFeed.parameters, {"supply_pressure": "2 bar", "hose_diameter": "20 mm",
 ...                  "loss_coefficient": 1.0}, where="components.hose", params_class=HoseFeed.params_class())
 >>> src = HoseFeed.build_source(p, -1, scalar_ops, Ambient(101325.0, 293.15, 1.2))
@@ -52,9 +52,9 @@ from __future__ import annotations
 
 import math
 
-from thrustgraph.component import ComponentKind, EventSpec, Mode, SourceFns
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import Choice, Number, Quantity, Vector
+from thrustgraph.kinds.component import ComponentKind, EventSpec, Mode, SourceFns
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import Choice, Number, Quantity, Vector
 
 from tg_vessels import PRESSURE_CAUTIONS
 

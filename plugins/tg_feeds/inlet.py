@@ -24,15 +24,15 @@ incidence or spillage model), quasi-steady, no cavitation or choking in the
 inlet; the loss coefficient is a number the user supplies (0.1-0.3 is
 typical of a flush water-jet inlet near design: common practice, no source).
 
-The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.xp`
+The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.base.xp`
 and runs on floats (a single flight) and on numpy arrays of designs (an ensemble); the fluid it takes in is
 a choice shared by every design.
 
 Examples
 --------
 >>> import numpy as np
->>> from thrustgraph.component import Ambient, scalar_ops
->>> from thrustgraph.xp import array_ops
+>>> from thrustgraph.kinds.component import Ambient, scalar_ops
+>>> from thrustgraph.base.xp import array_ops
 >>> P = Inlet.params_class()
 >>> src = Inlet.build_source(P(fluid="liquid", loss_coefficient=0.2, gas_gamma=1.4, gas_constant=287.05),
 ...                          -1, scalar_ops, Ambient(101325.0, 293.15, 998.2))
@@ -49,8 +49,8 @@ Examples
 
 from __future__ import annotations
 
-from thrustgraph.component import ComponentKind, SourceFns
-from thrustgraph.parameters import Choice, Number, Quantity
+from thrustgraph.kinds.component import ComponentKind, SourceFns
+from thrustgraph.kinds.parameters import Choice, Number, Quantity
 
 __all__ = ["Inlet"]
 

@@ -10,7 +10,7 @@ for the kinetic energy it adds, mdot (V_j^2 - V_0^2) / 2, per unit time::
 *Mechanics and Thermodynamics of Propulsion*; references.md section 7 lists
 0.8000 / 0.6667 / 0.5000 / 0.3333 at V_j/V_0 = 1.5 / 2 / 3 / 5).
 
-One definition for floats and numpy arrays of designs (arithmetic only, :mod:`thrustgraph.xp`'s
+One definition for floats and numpy arrays of designs (arithmetic only, :mod:`thrustgraph.base.xp`'s
 convention).
 
 Examples

@@ -30,16 +30,16 @@ Froude propulsive efficiency of the jet it drives (useful power over the
 kinetic energy added): ``eta_p = 2 / (1 + V_j / V_0)``
 (:func:`~tg_feeds.propulsive.froude_efficiency`).
 
-The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.xp`
+The kind is ``vectorised``: its one definition is written against the namespace of :mod:`thrustgraph.base.xp`
 and runs on floats (a single flight) and on numpy arrays of designs (an ensemble): the regimes (shut-off
 cap or hyperbola; below, on or beyond the head curve; running or stopped) are chosen with ``ops.where``.
 
 Examples
 --------
 >>> import numpy as np
->>> from thrustgraph.component import scalar_ops
->>> from thrustgraph.xp import array_ops
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import scalar_ops
+>>> from thrustgraph.base.xp import array_ops
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> p = parse_params(Pump.parameters, {"shaft_power": "1 kW", "efficiency": 0.6, "shutoff_pressure": "3 bar"},
 ...                  where="components.pump", params_class=Pump.params_class())
 >>> f = Pump.build_flow(p, scalar_ops)
@@ -57,10 +57,10 @@ import math
 
 import numpy as np
 
-from thrustgraph.component import ComponentKind, EventSpec, FlowFns, Mode
-from thrustgraph.errors import ModelError
-from thrustgraph.outcomespec import OutcomeSpec
-from thrustgraph.parameters import Choice, Number, Quantity, Table
+from thrustgraph.kinds.component import ComponentKind, EventSpec, FlowFns, Mode
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.outcomespec import OutcomeSpec
+from thrustgraph.kinds.parameters import Choice, Number, Quantity, Table
 
 __all__ = ["Pump", "STANDARD_GRAVITY", "PUMP_CAUTIONS", "OPERATING_POINT"]
 

@@ -62,7 +62,7 @@ cavitation at the throat is not checked: use a convergent nozzle for liquids).
 
 Examples
 --------
->>> from thrustgraph.component import scalar_ops
+>>> from thrustgraph.kinds.component import scalar_ops
 >>> P = ConvergingDivergingNozzle.params_class()
 >>> p = P(throat_diameter=0.002, area_ratio=50.0, half_angle=0.0, discharge_coefficient=1.0,
 ...       separation_pressure_ratio=0.4, direction=(-1.0, 0.0, 0.0))
@@ -80,10 +80,10 @@ from typing import Any, NamedTuple
 
 import numpy as np
 
-from thrustgraph.component import ComponentKind, Flow, FlowFns, LoggedSignal
-from thrustgraph.xp import scalar_ops
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import Number, Quantity, Vector
+from thrustgraph.kinds.component import ComponentKind, Flow, FlowFns, LoggedSignal
+from thrustgraph.base.xp import scalar_ops
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import Number, Quantity, Vector
 
 from .isentropic import (area_ratio, mach_from_area_ratio, mass_flux_factor, normal_shock, pressure_ratio,
                          shock_mach_from_total_pressure_ratio, temperature_ratio)
@@ -129,7 +129,7 @@ class ConvergingDivergingNozzle(ComponentKind):
         sep = result.signals.get(f"{name}.separation")
         if sep is None or not np.any(sep >= 1.0):
             return []
-        # when the event log located it (thrustgraph.signallog), else the first output sample that shows it
+        # when the event log located it (thrustgraph.flight.signallog), else the first output sample that shows it
         t = next((e.t for e in result.events if e.component == name and e.name == "flow separation"
                   and e.detail.endswith("separation criterion met")), float(result.t[int(np.argmax(sep >= 1.0))]))
         return [f"components.{name}: from t = {t:.4g} s the nozzle meets the flow-separation criterion: its "

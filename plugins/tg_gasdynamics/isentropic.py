@@ -18,8 +18,8 @@ normal-shock relations and Table II)::
 The area relation has two roots for every A/A* > 1: a subsonic and a
 supersonic Mach number; :func:`mach_from_area_ratio` returns the branch asked
 for. Functions take plain floats (SI or dimensionless), or, with ``ops`` the array namespace of
-:mod:`thrustgraph.xp`, numpy arrays of designs: one definition for both (the roots by
-:mod:`thrustgraph.roots`, whose iterates are those of one design alone).
+:mod:`thrustgraph.base.xp`, numpy arrays of designs: one definition for both (the roots by
+:mod:`thrustgraph.base.roots`, whose iterates are those of one design alone).
 
 Examples
 --------
@@ -33,8 +33,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from thrustgraph.roots import illinois, newton
-from thrustgraph.xp import scalar_ops
+from thrustgraph.base.roots import illinois, newton
+from thrustgraph.base.xp import scalar_ops
 
 __all__ = ["temperature_ratio", "pressure_ratio", "density_ratio", "area_ratio", "mach_from_area_ratio",
            "mach_from_pressure_ratio", "critical_pressure_ratio", "mass_flux_factor", "normal_shock",
@@ -154,7 +154,7 @@ def shock_mach_from_total_pressure_ratio(ratio: Any, gamma: Any, ops: Any = scal
     """The upstream Mach number of the normal shock whose total pressure ratio p02/p01 is ``ratio`` (0 < ratio <= 1).
 
     p02/p01 falls from 1 as M1 rises from 1: the root is bracketed between 1 and the first of 2, 4, 8... where
-    it has fallen below ``ratio``, and found by :func:`thrustgraph.roots.illinois`.
+    it has fallen below ``ratio``, and found by :func:`thrustgraph.base.roots.illinois`.
 
     >>> round(shock_mach_from_total_pressure_ratio(normal_shock(2.5, 1.4)[2], 1.4), 9)
     2.5

@@ -30,7 +30,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from thrustgraph.xp import scalar_ops
+from thrustgraph.base.xp import scalar_ops
 
 from .isentropic import mach_from_area_ratio, mass_flux_factor, pressure_ratio
 
@@ -43,7 +43,7 @@ STANDARD_GRAVITY = 9.80665
 
 def divergence_factor(half_angle: Any, ops: Any = scalar_ops) -> Any:
     """lambda = (1 + cos alpha)/2 of a conical exit of half angle ``half_angle`` (radians; an array of designs
-    with ``ops`` the array namespace of :mod:`thrustgraph.xp`).
+    with ``ops`` the array namespace of :mod:`thrustgraph.base.xp`).
 
     >>> divergence_factor(0.0)
     1.0

@@ -29,7 +29,7 @@ from typing import Any
 
 import numpy as np
 
-from thrustgraph.outcomespec import OutcomeSpec
+from thrustgraph.kinds.outcomespec import OutcomeSpec
 
 __all__ = ["COLD_OUTCOMES", "cold_summary", "cold_cautions", "FREEZING", "CARBON_STEEL_LIMIT"]
 

@@ -19,7 +19,7 @@ Examples
 >>> resolve_fluid("unobtainium", where="components.tank.gas", device="gas tank 'tank'")
 Traceback (most recent call last):
 ...
-thrustgraph.errors.ModelError: components.tank.gas: CoolProp does not know the fluid 'unobtainium' (gas tank 'tank'). Fix: give a fluid name CoolProp knows, e.g. Nitrogen, Air, CarbonDioxide, Helium, Argon (the full list is CoolProp's FluidsList).
+thrustgraph.base.errors.ModelError: components.tank.gas: CoolProp does not know the fluid 'unobtainium' (gas tank 'tank'). Fix: give a fluid name CoolProp knows, e.g. Nitrogen, Air, CarbonDioxide, Helium, Argon (the full list is CoolProp's FluidsList).
 """
 
 from __future__ import annotations
@@ -28,8 +28,8 @@ import difflib
 from dataclasses import dataclass, field
 from typing import Any
 
-from thrustgraph.errors import ModelError, shorten
-from thrustgraph.parameters import Spec
+from thrustgraph.base.errors import ModelError, shorten
+from thrustgraph.kinds.parameters import Spec
 
 from .gases import IDEAL_GASES, lookup_gas
 
@@ -126,7 +126,7 @@ def wall_heat_specs(what: str, note: str = "") -> tuple:
     >>> [s.name for s in wall_heat_specs("the gas")]
     ['wall_heat_transfer_coefficient', 'wall_area', 'wall_temperature']
     """
-    from thrustgraph.parameters import Quantity
+    from thrustgraph.kinds.parameters import Quantity
 
     return (
         Quantity("wall_heat_transfer_coefficient", "W/m^2/K", default="0 W/m^2/K", low=0.0, high=1e6,

@@ -70,8 +70,8 @@ order 5-50 W/(m^2 K): common practice, no source).
 
 Examples
 --------
->>> from thrustgraph.component import Ambient, scalar_ops
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import Ambient, scalar_ops
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> p = parse_params(GasTank.parameters, {"volume": "1 L", "gauge_pressure": "9 bar"}, where="components.t",
 ...                  params_class=GasTank.params_class())
 >>> m, T = GasTank.initial_state(p, Ambient(1e5, 293.15, 1.2))
@@ -85,10 +85,10 @@ from typing import Any
 
 import numpy as np
 
-from thrustgraph.component import ComponentKind, EventSpec, Mode, StateVar, VolumeFns
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import Choice, Number, Quantity
-from thrustgraph.xp import array_ops, scalar_ops
+from thrustgraph.kinds.component import ComponentKind, EventSpec, Mode, StateVar, VolumeFns
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import Choice, Number, Quantity
+from thrustgraph.base.xp import array_ops, scalar_ops
 
 from tg_vessels import PRESSURE_CAUTIONS
 
@@ -339,7 +339,7 @@ class GasTank(ComponentKind):
 
 
 def _ops_for(*values: Any) -> Any:
-    """The namespace of :mod:`thrustgraph.xp` that fits ``values``: arrays when any of them is one."""
+    """The namespace of :mod:`thrustgraph.base.xp` that fits ``values``: arrays when any of them is one."""
     return array_ops if any(isinstance(v, np.ndarray) for v in values) else scalar_ops
 
 

@@ -58,8 +58,8 @@ film coefficient. CoolProp is required: there is no ideal-gas substitute.
 
 Examples
 --------
->>> from thrustgraph.component import Ambient
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import Ambient
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> p = parse_params(SelfPressurisingTank.parameters, {"volume": "12 mL", "propellant_mass": "8 g"},
 ...                  where="components.c", params_class=SelfPressurisingTank.params_class())
 >>> SelfPressurisingTank.initial_state(p, Ambient(101325.0, 293.15, 1.2))
@@ -68,9 +68,9 @@ Examples
 
 from __future__ import annotations
 
-from thrustgraph.component import ComponentKind, EventSpec, Mode, StateVar, VolumeFns
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import Choice, Quantity
+from thrustgraph.kinds.component import ComponentKind, EventSpec, Mode, StateVar, VolumeFns
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import Choice, Quantity
 
 from tg_vessels import PRESSURE_CAUTIONS
 

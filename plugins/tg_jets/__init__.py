@@ -25,7 +25,7 @@ ascent) and for motors with a measured thrust curve.
 
 Examples
 --------
->>> from thrustgraph.component import Ambient, scalar_ops
+>>> from thrustgraph.kinds.component import Ambient, scalar_ops
 >>> P = PrescribedJet.params_class()
 >>> p = P(programme="constant-flow", propellant_mass=1.0, mass_flow=0.5, exhaust_velocity=1000.0,
 ...       thrust_curve=None, thrust_curve_file=None, direction=(-1.0, 0.0, 0.0), ignition="at-launch")
@@ -38,9 +38,9 @@ from __future__ import annotations
 import numpy as np
 
 from thrustgraph import hookimpl
-from thrustgraph.component import ComponentKind, EventSpec, JetFns, Mode, StateVar
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import Choice, FilePath, Quantity, Table, Vector
+from thrustgraph.kinds.component import ComponentKind, EventSpec, JetFns, Mode, StateVar
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import Choice, FilePath, Quantity, Table, Vector
 
 from .curvefile import ThrustCurve, loads_thrust_curve, read_thrust_curve
 

@@ -15,7 +15,7 @@ The format (thrustgraph's own; described in docs/devices.md)::
 
 Settings are ``key = value`` lines before the header, each value a quoted
 quantity as in a model file. The table is read by
-:func:`thrustgraph.records.loads_record` (any time and force units, ``[s]``,
+:func:`thrustgraph.measured.records.loads_record` (any time and force units, ``[s]``,
 ``[ms]``, ``[N]``, ``[lbf]``; ``time (s)`` works too), so errors name the file,
 the column and the line.
 
@@ -65,9 +65,9 @@ from pathlib import Path
 
 import numpy as np
 
-from thrustgraph.errors import ModelError
-from thrustgraph.records import loads_record
-from thrustgraph.units import to_si
+from thrustgraph.base.errors import ModelError
+from thrustgraph.measured.records import loads_record
+from thrustgraph.base.units import to_si
 
 __all__ = ["ThrustCurve", "loads_thrust_curve", "read_thrust_curve", "IMPULSE_TOLERANCE", "BURN_TIME_TOLERANCE"]
 

@@ -9,7 +9,7 @@ assembles them) they return arrays unchanged.
 
 Examples
 --------
->>> from thrustgraph.component import scalar_ops
+>>> from thrustgraph.kinds.component import scalar_ops
 >>> g = UniformGravity.build(UniformGravity.params_class()(g=9.81), scalar_ops)
 >>> g(100.0)
 9.81
@@ -18,8 +18,8 @@ Examples
 from __future__ import annotations
 
 from thrustgraph import hookimpl
-from thrustgraph.component import EnvironmentKind
-from thrustgraph.parameters import Quantity
+from thrustgraph.kinds.component import EnvironmentKind
+from thrustgraph.kinds.parameters import Quantity
 
 __all__ = ["Vacuum", "UniformGravity"]
 

@@ -42,12 +42,12 @@ quasi-steady column this assumes no longer holds). The flow never reverses:
 below ambient pressure nothing flows.
 
 The kind is ``vectorised``: its one definition is written against the namespace of
-:mod:`thrustgraph.xp` and runs on floats (a single flight) and on numpy arrays of designs (an ensemble),
+:mod:`thrustgraph.base.xp` and runs on floats (a single flight) and on numpy arrays of designs (an ensemble),
 choosing the regime with ``ops.branch`` (square roots and powers clipped so unused branches stay finite).
 
 Examples
 --------
->>> from thrustgraph.component import scalar_ops
+>>> from thrustgraph.kinds.component import scalar_ops
 >>> P = ConvergentNozzle.params_class()
 >>> p = P(diameter=0.022, discharge_coefficient=1.0, direction=(-1.0, 0.0, 0.0), approach_velocity=True)
 >>> f = ConvergentNozzle.build_flow(p, scalar_ops)                       # no bore known: beta = 0
@@ -64,8 +64,8 @@ from __future__ import annotations
 import math
 
 from thrustgraph import hookimpl
-from thrustgraph.component import ComponentKind, Flow, FlowFns
-from thrustgraph.parameters import Flag, Number, Quantity, Vector
+from thrustgraph.kinds.component import ComponentKind, Flow, FlowFns
+from thrustgraph.kinds.parameters import Flag, Number, Quantity, Vector
 
 __all__ = ["ConvergentNozzle", "critical_pressure_ratio", "choked_flux_factor", "approach_factor",
            "MAX_APPROACH_RATIO"]

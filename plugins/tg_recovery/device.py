@@ -65,8 +65,8 @@ Assumptions and limits
 
 Examples
 --------
->>> from thrustgraph.component import Ambient, scalar_ops
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import Ambient, scalar_ops
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> p = parse_params(RecoveryDevice.parameters, {"mass": "50 g", "drag_coefficient": 0.8, "diameter": "0.6 m",
 ...                  "opening_time": "0.4 s"}, where="components.chute", params_class=RecoveryDevice.params_class())
 >>> round(RecoveryDevice.open_drag_area(p), 6)          # 0.8 * pi * 0.6^2 / 4
@@ -85,9 +85,9 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from thrustgraph.component import BodyFns, ComponentKind, EventSpec, Mode, StateVar
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import Choice, Number, Quantity
+from thrustgraph.kinds.component import BodyFns, ComponentKind, EventSpec, Mode, StateVar
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import Choice, Number, Quantity
 
 from .summary import OUTCOMES, recovery_summary
 
@@ -231,7 +231,7 @@ class RecoveryDevice(ComponentKind):
         return {"recovery device": p.mass}
 
     # --- builder --------------------------------------------------------------
-    vectorised = True   # one definition for floats and arrays (thrustgraph.xp)
+    vectorised = True   # one definition for floats and arrays (thrustgraph.base.xp)
 
     @classmethod
     def build_body(cls, p: Any, ops: Any, i: int = -1, amb: Any = None) -> BodyFns:
@@ -247,7 +247,7 @@ class RecoveryDevice(ComponentKind):
         i_timer, i_open = i, i + 1
         deployed_mode = "opening" if ops.all(slow) else "open"
 
-        # One definition for floats and arrays (thrustgraph.xp): a mode shared by every design arrives as an int.
+        # One definition for floats and arrays (thrustgraph.base.xp): a mode shared by every design arrives as an int.
         def ratio(s: list, mode: Any) -> Any:
             tau = ops.clip(s[i_open], 0.0, 1.0)
             if type(mode) is int:

@@ -1,7 +1,7 @@
 """After a run: when and how fast each recovery device deployed, and its peak opening load.
 
 The core's summary does not know recovery devices, so these numbers are read
-from a finished :class:`~thrustgraph.result.FlightResult`: the deployment
+from a finished :class:`~thrustgraph.flight.result.FlightResult`: the deployment
 instant is the first sample at which the device's ``NAME.deployed`` signal is
 1 (whatever deployed it: its own event or a ``[triggers]`` entry; a mode switch
 always starts a new integration segment, so that sample is the exact
@@ -53,7 +53,7 @@ from typing import Any
 
 import numpy as np
 
-from thrustgraph.outcomespec import OutcomeSpec
+from thrustgraph.kinds.outcomespec import OutcomeSpec
 
 __all__ = ["recovery_summary", "OUTCOMES", "DEPLOY_EVENTS"]
 

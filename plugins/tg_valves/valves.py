@@ -36,8 +36,8 @@ VIII): a valve modelled here is not a rated safety device.
 
 Examples
 --------
->>> from thrustgraph.component import scalar_ops
->>> from thrustgraph.parameters import parse_params
+>>> from thrustgraph.kinds.component import scalar_ops
+>>> from thrustgraph.kinds.parameters import parse_params
 >>> P = Vent.params_class()
 >>> up = (6e5, 293.15, 7.0, 1.4, 287.05, 0.0, 0.0)
 >>> sym = Vent.build_flow(P(flow_area=1e-5, discharge_coefficient=0.62, arrangement="symmetric",
@@ -51,9 +51,9 @@ from __future__ import annotations
 
 import math
 
-from thrustgraph.component import ComponentKind, EventSpec, FlowFns, Mode
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import Choice, Number, Quantity, Vector
+from thrustgraph.kinds.component import ComponentKind, EventSpec, FlowFns, Mode
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import Choice, Number, Quantity, Vector
 
 from tg_nozzles import ConvergentNozzle
 

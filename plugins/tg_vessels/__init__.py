@@ -22,7 +22,7 @@ Modes: ``liquid`` (liquid thrust) -> ``gas`` (gas thrust) when the liquid is
 gone; either -> ``sealed`` when the pressure can no longer push anything out.
 
 The kind is ``vectorised``: its one definition is written against the namespace of
-:mod:`thrustgraph.xp` and runs on floats (a single flight) and on numpy arrays of designs (an ensemble;
+:mod:`thrustgraph.base.xp` and runs on floats (a single flight) and on numpy arrays of designs (an ensemble;
 modes as arrays of mode indices, choices by ``ops.where``).
 
 Assumptions and limits: quasi-steady outflow (the column's own acceleration is
@@ -34,7 +34,7 @@ effective exponent between 1 and 1.4 for a static bottle.
 
 Examples
 --------
->>> from thrustgraph.component import Ambient, scalar_ops
+>>> from thrustgraph.kinds.component import Ambient, scalar_ops
 >>> P = LiquidTank.params_class()
 >>> p = P(volume=0.002, fill=0.3, gauge_pressure=5e5, liquid_density=998.2, bore=0.1,
 ...       expansion_exponent=1.4, gas_gamma=1.4, gas_constant=287.05, gas_temperature=288.15,
@@ -49,9 +49,9 @@ from __future__ import annotations
 import math
 
 from thrustgraph import hookimpl
-from thrustgraph.component import ComponentKind, EventSpec, Mode, Outlet, StateVar, VolumeFns
-from thrustgraph.errors import ModelError
-from thrustgraph.parameters import Flag, Number, Quantity, Vector
+from thrustgraph.kinds.component import ComponentKind, EventSpec, Mode, Outlet, StateVar, VolumeFns
+from thrustgraph.base.errors import ModelError
+from thrustgraph.kinds.parameters import Flag, Number, Quantity, Vector
 
 __all__ = ["LiquidTank", "PRESSURE_CAUTIONS"]
 

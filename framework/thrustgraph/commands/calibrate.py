@@ -10,7 +10,7 @@ import argparse
 from typing import Any, Sequence
 
 from . import SUMMARIES
-from ..errors import ModelError
+from ..base.errors import ModelError
 from .common import add_set_option, load_with_overrides, parse_override
 from .compare import add_record_options, check_plot_names, mapping_from, parse_pair, prepared, read_records
 from .outputs import check_paths, write_outputs
@@ -72,10 +72,10 @@ def load_model_set(model: Any, key: str, value: Any, text: str) -> None:
 
 
 def main(args: argparse.Namespace) -> int:
-    from ..calibrate import FitParameter, MeasuredRun, calibrate, compare_runs
-    from ..compare import plot_format, render_comparison
-    from ..model import parse_model
-    from ..modelfile import dumps_model, loads_model
+    from ..measured.calibrate import FitParameter, MeasuredRun, calibrate, compare_runs
+    from ..measured.compare import plot_format, render_comparison
+    from ..models.model import parse_model
+    from ..models.modelfile import dumps_model, loads_model
 
     check_plot_names(args.plot)
     if args.max_iterations < 1:

@@ -1,7 +1,7 @@
 """``thrustgraph check``: validate a model and print its components, graph, mass at launch, warnings and cautions.
 
 Nothing is flown, but the vehicle is assembled, so the plugin contract is
-checked too (:mod:`thrustgraph.contract`). The exit status is 0 for a valid
+checked too (:mod:`thrustgraph.kinds.contract`). The exit status is 0 for a valid
 model and 2 (with one message naming the file, the key and the fix, or the
 plugin, the kind and the hook) for an invalid one.
 """
@@ -13,8 +13,8 @@ import argparse
 import networkx as nx
 
 from . import SUMMARIES
-from ..assembly import assemble
-from ..model import ParsedModel
+from ..flight.assembly import assemble
+from ..models.model import ParsedModel
 from .common import add_model_argument, add_set_option
 from .outputs import load_checked
 

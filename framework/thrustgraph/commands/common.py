@@ -13,10 +13,10 @@ import sys
 import tomllib
 from typing import Any
 
-from ..displayunits import UnitChoice, parse_units
-from ..errors import ModelError
-from ..model import Model
-from ..modelfile import bundled_models, default_model_path, load_model
+from ..kinds.displayunits import UnitChoice, parse_units
+from ..base.errors import ModelError
+from ..models.model import Model
+from ..models.modelfile import bundled_models, default_model_path, load_model
 
 __all__ = ["add_model_argument", "add_set_option", "add_out_dir_option", "parse_override", "load_with_overrides",
            "add_units_option", "units_choice"]

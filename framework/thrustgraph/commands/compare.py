@@ -14,9 +14,9 @@ import argparse
 from typing import Any, Sequence
 
 from . import SUMMARIES
-from ..errors import ModelError
-from ..model import Model
-from ..records import ColumnMap, Record, Trigger, read_record, resample
+from ..base.errors import ModelError
+from ..models.model import Model
+from ..measured.records import ColumnMap, Record, Trigger, read_record, resample
 from .common import add_set_option, load_with_overrides
 from .outputs import check_paths, write_outputs
 
@@ -115,8 +115,8 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 
 def prepared(model: Model, record: Record, mapping: tuple[ColumnMap, ...], args: argparse.Namespace):
     """Fly the model finely enough for the record, then filter and align the record on the prediction."""
-    from ..compare import model_for_records, prepare_record
-    from ..integrate import integrate
+    from ..measured.compare import model_for_records, prepare_record
+    from ..flight.integrate import integrate
 
     start_at, trigger = alignment_from(args)
     result = integrate(model_for_records(model, [record]))
@@ -133,7 +133,7 @@ def check_plot_names(paths: Sequence[str]) -> None:
 
 
 def main(args: argparse.Namespace) -> int:
-    from ..compare import compare, plot_format, render_comparison
+    from ..measured.compare import compare, plot_format, render_comparison
 
     check_plot_names(args.plot)
     check_paths([*args.plot, args.json])   # before flying: a bad path costs nothing

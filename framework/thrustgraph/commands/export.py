@@ -1,7 +1,7 @@
 """``thrustgraph export``: fly a model and write its results in the export formats (CSV, JSON, Parquet...).
 
 The formats, their options (``--NAME FILE``) and what each file holds are
-those of the export registry (:mod:`thrustgraph.exportformats`). CSV holds
+those of the export registry (:mod:`thrustgraph.outputs.exportformats`). CSV holds
 every signal and every ledger term per output time, with the unit in each
 header and ``#`` lines first naming the tool version, the plugin versions and
 the model hash; JSON the summary, phases, events, audits, cautions and the
@@ -15,9 +15,9 @@ import argparse
 from pathlib import Path
 
 from . import SUMMARIES
-from ..displayunits import using
-from ..errors import ThrustgraphError
-from ..exportformats import EXPORTS
+from ..kinds.displayunits import using
+from ..base.errors import ThrustgraphError
+from ..outputs.exportformats import EXPORTS
 from .common import add_model_argument, add_out_dir_option, add_set_option, add_units_option, units_choice
 from .outputs import (add_export_options, add_quiet_option, check_paths, default_stem, export_targets, fly_model,
                       load_checked, write_outputs)

@@ -11,7 +11,7 @@ import argparse
 from pathlib import Path
 
 from . import SUMMARIES
-from ..errors import ThrustgraphError
+from ..base.errors import ThrustgraphError
 from .common import add_model_argument, add_set_option
 from .outputs import check_paths, default_stem, load_checked, need_matplotlib, write_outputs
 
@@ -31,7 +31,7 @@ def main(args: argparse.Namespace) -> int:
     if args.out and Path(args.out).suffix.lower() not in (".png", ".svg"):
         raise ThrustgraphError(f"--out {args.out}: the image must end in .png or .svg. Fix: e.g. --out graph.svg")
     model, parsed = load_checked(args.model, args.overrides)
-    from ..plots import graph_figure, render
+    from ..outputs.plots import graph_figure, render
 
     out = Path(args.out) if args.out else Path(f"{default_stem(model)}-graph.png")
     check_paths([out])

@@ -11,10 +11,10 @@ import argparse
 import difflib
 
 from . import SUMMARIES
-from ..component import ROLES
-from ..errors import ModelError
-from ..model import LAUNCH_SPECS, RUN_SPECS
-from ..plugins import component_kinds, environment_kinds, get_plugin_manager, plugin_versions
+from ..kinds.component import ROLES
+from ..base.errors import ModelError
+from ..models.model import LAUNCH_SPECS, RUN_SPECS
+from ..models.plugins import component_kinds, environment_kinds, get_plugin_manager, plugin_versions
 
 NAME = "kinds"
 HELP = SUMMARIES[NAME]

@@ -13,8 +13,8 @@ import os
 import re
 
 from . import SUMMARIES
-from ..errors import ModelError
-from ..modelfile import bundled_models, default_model_path, dumps_model, load_model, loads_model
+from ..base.errors import ModelError
+from ..models.modelfile import bundled_models, default_model_path, dumps_model, load_model, loads_model
 from .outputs import check_paths, write_outputs
 
 NAME = "new"

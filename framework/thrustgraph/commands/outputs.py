@@ -2,7 +2,7 @@
 
 Every command that writes files checks every output path before it does any
 work (:func:`check_paths`), builds all of their content in memory, and then
-writes them all or none (:func:`thrustgraph.outputfiles.write_all`): bad
+writes them all or none (:func:`thrustgraph.base.outputfiles.write_all`): bad
 input, a bad path, a failed flight or an interrupt leaves no file behind.
 
 >>> default_stem(Model(name="Two-litre water rocket!"))
@@ -16,10 +16,10 @@ import re
 from pathlib import Path
 from typing import Any, Sequence
 
-from ..errors import ModelError, ThrustgraphError
-from ..exportformats import EXPORTS
-from ..model import Model, ParsedModel, parse_model
-from ..outputfiles import check_outputs, write_all
+from ..base.errors import ModelError, ThrustgraphError
+from ..outputs.exportformats import EXPORTS
+from ..models.model import Model, ParsedModel, parse_model
+from ..base.outputfiles import check_outputs, write_all
 from .common import load_with_overrides, parse_override
 from .progress import Progress
 
@@ -33,7 +33,7 @@ def add_quiet_option(p: argparse.ArgumentParser) -> None:
 
 
 def add_export_options(p: argparse.ArgumentParser, verb: str = "write") -> None:
-    """``--NAME FILE`` for every format of the export registry (:mod:`thrustgraph.exportformats`)."""
+    """``--NAME FILE`` for every format of the export registry (:mod:`thrustgraph.outputs.exportformats`)."""
     for f in EXPORTS.values():
         need = f", needs {f.needs}" if f.needs else ""
         p.add_argument(f"--{f.name}", metavar="FILE", help=f"{verb} {f.holds} to FILE ({f.title}{need})")
@@ -69,7 +69,7 @@ def load_checked(name: str | None, overrides: Sequence[str]) -> tuple[Model, Par
 
 def fly_model(parsed: ParsedModel, *, quiet: bool = False) -> Any:
     """Integrate a checked model, showing progress on a terminal."""
-    from ..integrate import integrate
+    from ..flight.integrate import integrate
 
     with Progress("flying", quiet=quiet, unit="s") as bar:
         return integrate(parsed, progress=bar)

@@ -6,7 +6,7 @@ of the first model (``--variant "KEY=VALUE; KEY=VALUE"``), a saved result
 (a CSV whose headers carry units; ``--map COLUMN=SIGNAL`` says what its
 columns are, as for ``thrustgraph compare``). The first run is the reference
 of the differences. Everything is read and checked before the first flight,
-and the files are written all or none (:mod:`thrustgraph.outputfiles`).
+and the files are written all or none (:mod:`thrustgraph.base.outputfiles`).
 
 >>> variant_settings("components.bottle.fill=0.4; components.bottle.gauge_pressure=5 bar")
 [('components.bottle.fill', 0.4), ('components.bottle.gauge_pressure', '5 bar')]
@@ -19,10 +19,10 @@ from pathlib import Path
 from typing import Any
 
 from . import SUMMARIES
-from ..errors import ModelError
-from ..plotkinds import IMAGE_FORMATS, OVERLAY, names
-from ..records import read_record, shift
-from ..displayunits import using
+from ..base.errors import ModelError
+from ..outputs.plotkinds import IMAGE_FORMATS, OVERLAY, names
+from ..measured.records import read_record, shift
+from ..kinds.displayunits import using
 from .common import add_set_option, add_units_option, parse_override, units_choice
 from .compare import mapping_from
 from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, \
@@ -77,8 +77,8 @@ def _is_record(name: str) -> bool:
 
 
 def main(args: argparse.Namespace) -> int:
-    from ..overlay import Overlay, mapped_columns, run_of_record, run_of_result, unique_labels
-    from ..units import to_si
+    from ..measured.overlay import Overlay, mapped_columns, run_of_record, run_of_result, unique_labels
+    from ..base.units import to_si
 
     formats = IMAGE_FORMATS if args.format == "both" else (args.format,)
     if args.plots:
@@ -146,7 +146,7 @@ def main(args: argparse.Namespace) -> int:
         if args.table:
             outputs.append((args.table, overlay.to_csv()))
         if args.plots:
-            from ..overlayplots import overlay_figures, render
+            from ..outputs.overlayplots import overlay_figures, render
 
             outputs += [(Path(args.plots) / f"{n}.{fmt}", render(fig, fmt))
                         for n, fig in overlay_figures(overlay, args.only).items() for fmt in formats]

@@ -1,6 +1,6 @@
 """``thrustgraph plot``: fly a model and draw its plots (PNG and/or SVG) into a directory.
 
-The plots are those of the plot registry (:mod:`thrustgraph.plotkinds`) whose
+The plots are those of the plot registry (:mod:`thrustgraph.outputs.plotkinds`) whose
 subject is a flight; files are named NAME.png or NAME.svg.
 """
 
@@ -10,8 +10,8 @@ import argparse
 from pathlib import Path
 
 from . import SUMMARIES
-from ..plotkinds import FLIGHT, IMAGE_FORMATS, names
-from ..displayunits import using
+from ..outputs.plotkinds import FLIGHT, IMAGE_FORMATS, names
+from ..kinds.displayunits import using
 from .common import add_model_argument, add_out_dir_option, add_set_option, add_units_option, units_choice
 from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
 
@@ -38,7 +38,7 @@ def main(args: argparse.Namespace) -> int:
     out = Path(args.out_dir) if args.out_dir else Path(f"{default_stem(model)}-plots")
     check_paths(directories=[out])   # before flying
     result = fly_model(parsed, quiet=args.quiet)
-    from ..plots import figures, render
+    from ..outputs.plots import figures, render
 
     formats = IMAGE_FORMATS if args.format == "both" else (args.format,)
     with using(choice):

@@ -1,5 +1,5 @@
-"""The progress bar of the command line: see :mod:`thrustgraph.progress`."""
+"""The progress bar of the command line: see :mod:`thrustgraph.base.progress`."""
 
-from ..progress import Progress
+from ..base.progress import Progress
 
 __all__ = ["Progress"]

@@ -11,7 +11,7 @@ import argparse
 from pathlib import Path
 
 from . import SUMMARIES
-from ..displayunits import using
+from ..kinds.displayunits import using
 from .common import add_model_argument, add_set_option, add_units_option, units_choice
 from .outputs import add_quiet_option, check_paths, default_stem, fly_model, load_checked, need_matplotlib, write_outputs
 
@@ -34,7 +34,7 @@ def main(args: argparse.Namespace) -> int:
     out = Path(args.out) if args.out else Path(f"{default_stem(model)}-report.html")
     check_paths([out])   # before flying
     result = fly_model(parsed, quiet=args.quiet)
-    from ..report import render_report
+    from ..outputs.report import render_report
 
     with using(choice):      # the summary and the plots in the units of choice
         page = render_report(result, model, parsed=parsed)

@@ -8,9 +8,9 @@ import sys
 from typing import Sequence
 
 from . import SUMMARIES
-from ..displayunits import shown, using
-from ..exportformats import EXPORTS
-from ..result import FlightResult
+from ..kinds.displayunits import shown, using
+from ..outputs.exportformats import EXPORTS
+from ..flight.result import FlightResult
 from .common import add_model_argument, add_set_option, add_units_option, units_choice
 from .outputs import (add_export_options, add_quiet_option, check_paths, export_targets, fly_model, load_checked,
                       need_matplotlib, write_outputs)
@@ -30,12 +30,12 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 
 def summary_lines(r: FlightResult, keys: Sequence[str] | None = None) -> list[str]:
     """One line per summary entry people need to see: label, value in its display unit scaled to its magnitude
-    (:meth:`~thrustgraph.outcomespec.OutcomeSpec.unit_for`; and in ``also`` units).
+    (:meth:`~thrustgraph.kinds.outcomespec.OutcomeSpec.unit_for`; and in ``also`` units).
 
     Labels and units come from the outcome registry (``r.outcome_specs``); an
     entry whose ``show`` predicate says it adds nothing (a downrange equal to
     the range) is left out. Values are shown in the units of choice in force
-    (:func:`thrustgraph.displayunits.shown`; SI by default).
+    (:func:`thrustgraph.kinds.displayunits.shown`; SI by default).
     """
     lines = []
     for key in (r.summary if keys is None else [k for k in keys if k in r.summary]):
@@ -100,10 +100,10 @@ def main(args: argparse.Namespace) -> int:
     with using(choice):
         outputs = [(path, EXPORTS[name].render(result)) for name, path in exports]
         if args.plots:
-            from ..plots import figures, render
+            from ..outputs.plots import figures, render
             outputs += [(f"{args.plots}/{n}.png", render(fig, "png")) for n, fig in figures(result).items()]
         if args.report:
-            from ..report import render_report
+            from ..outputs.report import render_report
             outputs.append((args.report, render_report(result, model, parsed=parsed)))
         print(format_summary(result, model.name))
     write_outputs(outputs, directories=[args.plots])

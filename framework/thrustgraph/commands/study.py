@@ -21,12 +21,12 @@ from dataclasses import replace
 from typing import Any
 
 from . import SUMMARIES
-from ..errors import ModelError
-from ..interrupts import exit_status
-from ..model import ParsedModel
-from ..outcomes import OUTCOMES, check_outputs, default_outputs
-from ..studykinds import STUDY_KINDS, StudyRun, lookup, read_study
-from ..studyspec import Limit, Spread, StudyDefinition, Vary
+from ..base.errors import ModelError
+from ..base.interrupts import exit_status
+from ..models.model import ParsedModel
+from ..balance.outcomes import OUTCOMES, check_outputs, default_outputs
+from ..studies.studykinds import STUDY_KINDS, StudyRun, lookup, read_study
+from ..studies.studyspec import Limit, Spread, StudyDefinition, Vary
 from .common import add_model_argument, add_set_option
 from .outputs import add_quiet_option, check_paths, load_checked, need_matplotlib, write_outputs
 
@@ -137,7 +137,7 @@ def _definition(args: argparse.Namespace, model: Any) -> StudyDefinition:
 
 
 def _run_options(args: argparse.Namespace) -> dict[str, Any]:
-    """Where and how to fly (options of :func:`thrustgraph.studies.evaluate`), checked."""
+    """Where and how to fly (options of :func:`thrustgraph.studies.studies.evaluate`), checked."""
     engine = "dask" if args.scheduler and args.engine in ("auto", "dask") else args.engine
     if engine == "dask" and not args.scheduler:
         raise ModelError("--engine dask", "needs the address of a Dask scheduler",
@@ -210,7 +210,7 @@ def _write_results(done: StudyRun, args: argparse.Namespace, nothing_flew: bool)
     if args.summary and done.summary_csv is not None:
         outputs.append((args.summary, done.summary_csv))
     if args.plots:
-        from ..studyplots import render_study_plots
+        from ..outputs.studyplots import render_study_plots
 
         outputs += render_study_plots(done.result, args.plots)
     print()

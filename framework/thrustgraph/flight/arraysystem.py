@@ -1,0 +1,337 @@
+"""N designs of one model assembled as arrays, flown by the one balance of :mod:`thrustgraph.balance.balance`.
+
+:class:`ArraySystem` is the array twin of :class:`thrustgraph.flight.assembly.System`: the same balance plan
+(:func:`thrustgraph.balance.plan.build_plan`), built with :data:`thrustgraph.base.xp.array_ops` so that every number that
+differs between designs is a numpy array of shape ``(N,)``, and evaluated by the same
+:class:`~thrustgraph.balance.balance.Balance` as a single flight (the physics still comes from the plugins; this
+module knows no device and restates no term of the balance). The discrete phase is explicit per design: the
+mode of every moded component (integer arrays), the kinematic constraint (held on a stand, on a guide, free,
+on a track) and the way a design slides along its guide or track (kinetic friction opposes it).
+
+Examples
+--------
+>>> import numpy as np
+>>> from thrustgraph.models.modelfile import load_model, default_model_path
+>>> from thrustgraph.models.model import parse_model
+>>> from thrustgraph.models.designs import resolve
+>>> parsed = parse_model(load_model(default_model_path()))
+>>> fill = resolve(parsed, "components.bottle.fill")
+>>> sysa = ArraySystem(parsed, [fill], np.array([[0.2], [0.33]]))
+>>> sysa.n, sysa.state_names[6:8]
+(2, ('bottle.liquid_mass', 'bottle.gas_mass'))
+>>> d, aux = sysa.rhs(np.zeros(2), sysa.y0, sysa.mode0, sysa.kin0)
+>>> bool(np.all(d[3] > 0))                   # both accelerate up the guide at launch
+True
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Any, Sequence
+
+import numpy as np
+
+from ..balance.arrayops import vectorised
+from ..balance.balance import Balance, Kinematics
+from ..balance.plan import KINEMATIC, Constraint, build_plan
+from ..base.xp import array_ops
+from ..kinds.component import Ambient
+from ..models.designs import DesignParameter, with_values
+from ..models.model import ParsedModel
+
+__all__ = ["ArraySystem", "Phase", "unsupported", "IMPULSE", "HELD", "GUIDE", "FREE", "TRACK"]
+
+HELD, GUIDE, FREE, TRACK = Kinematics.HELD, Kinematics.GUIDE, Kinematics.FREE, Kinematics.TRACK
+#: Name of the quadrature state the ensemble adds: the time integral of the thrust magnitude.
+IMPULSE = "ensemble.impulse"
+
+
+def unsupported(parsed: ParsedModel) -> str | None:
+    """Why the vectorised ensemble cannot fly a model, or None when it can (every mount: held, guide, free,
+    track)."""
+    if parsed.launch.mount not in Kinematics.BY_MOUNT:
+        return f"launch.mount {parsed.launch.mount!r}"
+    for slot, cls in parsed.env_kinds.items():
+        if not vectorised(cls):
+            return f"environment.{slot} kind {cls.kind!r} builds no array callables"
+    for n, cls in parsed.kinds.items():
+        if not vectorised(cls):
+            return f"components.{n} kind {cls.kind!r} builds no array callables"
+    return None
+
+
+def _vary(p: Any, changes: dict[str, np.ndarray]) -> Any:
+    return dataclasses.replace(p, **changes) if changes else p
+
+
+@dataclasses.dataclass(frozen=True)
+class Phase:
+    """The discrete phase of the designs as the balance takes it: each moded component's mode, the kinematic
+    constraint and the way each slides along its guide or track (+1, -1, or 0: friction follows the speed),
+    each an ``int`` when every design shares it, else an array; ``powered`` whether a design's thrust counts
+    toward its total impulse (a component in a propulsive mode, or a prescribed jet), a bool or a bool array."""
+
+    modes: tuple
+    kin: Any
+    slide: Any = 0
+    powered: Any = True
+
+
+class ArraySystem:
+    """N designs of one parsed model: state layout, initial states and modes, and the vectorised balance.
+
+    Parameters
+    ----------
+    parsed : the base model
+    params : the varied parameters
+    x : their SI values, shape (N, parameters)
+    initial : also compute the initial states and modes per design (False for the subsets the integrator
+        builds: their ``y0`` is None)
+    """
+
+    def __init__(self, parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray, *,
+                 initial: bool = True) -> None:
+        x = np.asarray(x, dtype=float).reshape(-1, len(params))
+        self.parsed, self.params, self.x = parsed, tuple(params), x
+        n = self.n = len(x)
+        comp: dict[str, dict[str, np.ndarray]] = {}
+        env: dict[str, dict[str, np.ndarray]] = {}
+        launch: dict[str, np.ndarray] = {}
+        for j, p in enumerate(params):
+            col = x[:, j].copy()
+            if p.section == "components":
+                comp.setdefault(p.owner, {})[p.name] = col
+            elif p.section == "environment":
+                env.setdefault(p.owner, {})[p.name] = col
+            else:
+                launch[p.name] = col
+        self._comp_changes = comp
+        self.kp = {nm: _vary(parsed.params[nm], comp.get(nm, {})) for nm in parsed.model.components}
+        self.ep = {slot: _vary(parsed.env_params[slot], env.get(slot, {})) for slot in parsed.env_params}
+        L = _vary(parsed.launch, launch)
+        self.launch = L
+        medium = parsed.env_kinds["medium"].build(self.ep["medium"], array_ops)
+        gravity = parsed.env_kinds["gravity"].build(self.ep["gravity"], array_ops)
+        self.medium, self.gravity = medium, gravity
+        alt = np.broadcast_to(np.asarray(L.altitude, dtype=float), (n,))
+        rho, pa, Ta, *_ = medium(alt, np.zeros(n))
+        amb = Ambient(pressure=pa, temperature=Ta, density=rho)
+        self.amb = amb
+        el, az = np.asarray(L.elevation, dtype=float), np.asarray(L.azimuth, dtype=float)
+        ce = np.cos(el)
+        u = [ce * np.cos(az), ce * np.sin(az), np.sin(el)]
+        # cos(pi/2) is 6e-17: keep a vertical guide exactly vertical, as the scalar assembly does
+        self.u = tuple(np.broadcast_to(np.where(np.abs(c) < 1e-15, 0.0, c), (n,)).copy() for c in u)
+        self.guide_length = np.broadcast_to(np.asarray(L.guide_length, dtype=float), (n,)).copy()
+        self.mu = L.friction
+        self.follow = L.attitude == "follow-wind"
+        self.vmin = np.maximum(np.asarray(L.min_follow_speed, dtype=float), 1e-9)
+        self.x0 = (np.zeros(n), np.zeros(n), alt.copy())
+
+        # State layout: kinematics, component states in file order, then the impulse quadrature.
+        names = list(KINEMATIC)
+        order = list(parsed.model.components)
+        slices: dict[str, tuple[int, int]] = {}
+        y0 = [np.zeros(n), np.zeros(n), alt.copy()]
+        sp = np.broadcast_to(np.asarray(L.speed, dtype=float), (n,))
+        y0 += [sp * self.u[0], sp * self.u[1], sp * self.u[2]]
+        self.moded: list[str] = []
+        self.modes: dict[str, tuple] = {}
+        for nm in order:
+            cls = parsed.kinds[nm]
+            if cls.states:
+                slices[nm] = (len(names), len(cls.states))
+                names.extend(f"{nm}.{sv.name}" for sv in cls.states)
+                if initial:     # the subsets the integrator builds carry no initial state
+                    init = cls.initial_state(self.kp[nm], amb)
+                    y0.extend(np.broadcast_to(np.asarray(v, dtype=float), (n,)).copy() for v in init)
+            if cls.modes:
+                self.moded.append(nm)
+                self.modes[nm] = cls.modes
+        names.append(IMPULSE)
+        y0.append(np.zeros(n))
+        self.state_names = tuple(names)
+        self.slices = slices
+        self.y0 = np.array(y0) if initial else None
+        self.kin0 = np.full(n, Kinematics.BY_MOUNT[parsed.launch.mount], dtype=np.int8)
+        self.mode0 = np.zeros((len(self.moded), n), dtype=np.int8)
+        if initial:
+            self._initial_modes()
+
+        self._build()
+
+    def _build(self) -> None:
+        """The plan from the plugins' callables, built over this system's arrays of designs, and its balance."""
+        parsed = self.parsed
+        L = self.launch
+        constraint = Constraint(mount=parsed.launch.mount, u=self.u, x0=self.x0, friction=L.friction,
+                                guide_length=self.guide_length, follow_wind=self.follow,
+                                min_follow_speed=self.vmin, azimuth=L.azimuth)
+        self.plan = build_plan(parsed, self.kp, self.ep, array_ops, self.amb, self.slices, self.moded, constraint)
+        self.events = list(self.plan.events)
+        self.fixed_mass = self.plan.fixed_mass
+        self.slot = {nm: k for k, nm in enumerate(self.moded)}
+        self.balance = Balance(self, ops=array_ops)
+        self._phase_set: "Phase | None" = None   # the phase the balance is set to (see _use)
+
+    # ------------------------------------------------------------------
+    def _initial_modes(self) -> None:
+        """Initial mode of each moded component, per design (kinds decide it from scalar parameters)."""
+        parsed = self.parsed
+        for k, nm in enumerate(self.moded):
+            cls = parsed.kinds[nm]
+            names = [m.name for m in cls.modes]
+            changes = self._comp_changes.get(nm, {})
+            if not changes and not any(p.section != "components" for p in self.params):
+                self.mode0[k, :] = names.index(cls.initial_mode(parsed.params[nm], parsed.ambient))
+                continue
+            base = parsed.params[nm]
+            pa, Ta, rho = (np.broadcast_to(np.asarray(v, dtype=float), (self.n,))
+                           for v in (self.amb.pressure, self.amb.temperature, self.amb.density))
+            fields = list(changes)
+            # the kind is asked once per distinct row of (its varied fields, ambient): a grid repeats them
+            rows = np.column_stack([changes[f] for f in fields] + [pa, Ta, rho])
+            uniq, inverse = np.unique(rows, axis=0, return_inverse=True)
+            picked = np.empty(len(uniq), dtype=np.int8)
+            for u, row in enumerate(uniq):
+                p = with_values(base, {f: float(v) for f, v in zip(fields, row)}) if fields else base
+                amb = Ambient(pressure=float(row[-3]), temperature=float(row[-2]), density=float(row[-1]))
+                picked[u] = names.index(cls.initial_mode(p, amb))
+            self.mode0[k, :] = picked[inverse.reshape(-1)]
+
+    def subset(self, idx: np.ndarray) -> "ArraySystem":
+        """The same model for some of the designs (rows ``idx``), for compaction and event location.
+
+        The same system as ``ArraySystem(parsed, params, x[idx], initial=False)`` (no initial states),
+        made by taking rows of this one's per-design arrays and building only the plugins' callables anew
+        (the integrator asks for a subset at most steps: one per step with events).
+        """
+        idx = np.asarray(idx)
+        if any(p.section != "components" for p in self.params):   # varied environment or launch
+            return ArraySystem(self.parsed, self.params, self.x[idx], initial=False)
+        new = object.__new__(ArraySystem)
+        new.__dict__.update(self.__dict__)        # the state layout, modes and launch are shared
+        new.x = self.x[idx]
+        n = new.n = len(new.x)
+        new._comp_changes = {nm: {f: v[idx] for f, v in ch.items()} for nm, ch in self._comp_changes.items()}
+        new.kp = {nm: _vary(self.parsed.params[nm], new._comp_changes[nm]) if nm in new._comp_changes else p
+                  for nm, p in self.kp.items()}
+        a = self.amb
+        new.amb = Ambient(*(v[idx] if np.ndim(v) else v for v in (a.pressure, a.temperature, a.density)))
+        new.u = tuple(c[idx] for c in self.u)
+        new.guide_length = self.guide_length[idx]
+        new.x0 = tuple(c[idx] for c in self.x0)
+        new.y0 = None
+        new.kin0 = np.full(n, Kinematics.BY_MOUNT[self.parsed.launch.mount], dtype=np.int8)
+        new.mode0 = np.zeros((len(self.moded), n), dtype=np.int8)
+        new._build()
+        return new
+
+    def index(self, name: str) -> int:
+        return self.state_names.index(name)
+
+    def propulsive(self, modes: np.ndarray) -> np.ndarray:
+        """True per design where some component is in a propulsive mode."""
+        out = np.zeros(modes.shape[1], dtype=bool)
+        for k, nm in enumerate(self.moded):
+            flags = np.array([m.propulsive for m in self.modes[nm]])
+            out |= flags[modes[k]]
+        return out
+
+    def masses(self, Y: np.ndarray) -> np.ndarray:
+        """The vehicle's mass per design (kg), from the balance."""
+        return np.broadcast_to(np.asarray(self.balance.mass(list(Y)), dtype=float), (self.n,)).copy()
+
+    def snapshot(self, t: np.ndarray, Y: np.ndarray, phase: "Phase") -> dict:
+        """Every term and signal of the balance at states ``Y`` (:meth:`Balance.evaluate` over the designs),
+        the balance set to ``phase``; what a trigger watching a component's signal reads."""
+        self._use(phase)
+        return self.balance.evaluate(t, list(Y))
+
+    def pressures(self, Y: np.ndarray, modes: np.ndarray) -> np.ndarray | None:
+        """Largest vessel pressure per design (Pa), or None without vessels."""
+        s = list(Y)
+        best = None
+        for v in self.plan.vessels:
+            mode = modes[v.slot] if v.slot >= 0 else 0
+            p = v.fns.signals(s, mode).get("pressure")
+            if p is not None:
+                best = p if best is None else np.maximum(best, p)
+        return best
+
+    def phase(self, modes: np.ndarray, kin: np.ndarray, slide: np.ndarray | None = None) -> "Phase":
+        """The discrete phase as the balance takes it, worked out once (a step's stages share it): each slot's
+        mode as an ``int`` when every design shares it (so a kind can skip its per-design selections), else
+        the integer array; the constraint and the way each design slides (``slide``, None: 0 for all) likewise."""
+        shared = []
+        for k in range(len(self.moded)):
+            m = modes[k]
+            lo, hi = int(m.min()), int(m.max())
+            shared.append(lo if lo == hi else m)
+        lo, hi = int(kin.min()), int(kin.max())
+        way: Any = 0
+        if slide is not None and len(slide):
+            s_lo, s_hi = float(slide.min()), float(slide.max())
+            way = s_lo if s_lo == s_hi else slide
+        powered: Any = True if self.plan.jets else self.propulsive(modes)
+        if not isinstance(powered, bool) and len(powered):
+            powered = bool(powered[0]) if powered.all() or not powered.any() else powered
+        return Phase(tuple(shared), lo if lo == hi else kin, way, powered)
+
+    def frozen(self, modes: np.ndarray) -> bool:
+        """Whether every vessel is in a mode without outflow in every design: their states are then held, so
+        nothing a vessel reports (pressure...) can change."""
+        for v in self.plan.vessels:
+            if v.slot < 0:
+                return False
+            m = modes[v.slot]
+            if not all(not self.modes[v.name][int(k)].outflow for k in np.unique(m)):
+                return False
+        return bool(self.plan.vessels)
+
+    def _use(self, phase: "Phase") -> None:
+        """Set the balance to ``phase`` unless it already is (a step's stages share one Phase object)."""
+        if self._phase_set is not phase:
+            self.balance.set_phase(phase.modes, phase.kin, False, phase.slide)
+            self._phase_set = phase
+
+    def drives(self, t: np.ndarray, Y: np.ndarray, phase: "Phase") -> dict | None:
+        """The drive pressures (name -> Pa) the events read, from the one balance."""
+        self._use(phase)
+        return self.balance.drives(t, list(Y))
+
+    # ------------------------------------------------------------------
+    def rhs(self, t: np.ndarray, Y: np.ndarray, modes: np.ndarray, kin: np.ndarray,
+            out: np.ndarray | None = None, phase: "Phase | None" = None, aux: bool = True,
+            slide: np.ndarray | None = None) -> tuple[np.ndarray, dict | None]:
+        """Derivatives of the states (shape of ``Y``, written into ``out`` when given) and, in ``aux``:
+        ``drive`` (name -> Pa), ``accel`` (acceleration magnitude), ``thrust`` (thrust magnitude), ``mass``,
+        ``singular`` (designs whose head coupling has no solution) and ``phase`` (the phase it was set to);
+        ``aux=False`` skips those (None instead), for the inner stages of a step, which use the derivatives
+        alone.
+
+        Every term comes from :class:`~thrustgraph.balance.balance.Balance`, the single flight's balance, over arrays;
+        the last state is the impulse quadrature (the thrust magnitude in powered phases, as a single flight's
+        total impulse counts it). ``phase`` is :meth:`phase` of ``modes``, ``kin`` and ``slide`` (worked out here
+        when not given).
+        """
+        if phase is None:
+            phase = self.phase(modes, kin, slide)
+        self._use(phase)
+        terms = self.balance.terms(t, list(Y))
+        if out is None:
+            out = np.empty_like(Y)
+        d = terms["derivs"]
+        for k in range(len(d)):
+            out[k] = d[k]
+        tx, ty, tz = terms["thrust"]
+        thrust = np.sqrt(tx * tx + ty * ty + tz * tz)
+        powered = phase.powered
+        out[-1] = thrust if powered is True else (0.0 if powered is False else np.where(powered, thrust, 0.0))
+        if not aux:
+            return out, None
+        ax, ay, az = terms["accel"]
+        accel = np.sqrt(ax * ax + ay * ay + az * az)
+        singular = np.broadcast_to(np.asarray(terms["singular"], dtype=bool), (self.n,))
+        return out, {"drive": terms["drive"], "accel": accel, "thrust": thrust, "mass": terms["mass"],
+                     "singular": singular, "phase": phase}

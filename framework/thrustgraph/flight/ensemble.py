@@ -1,0 +1,1148 @@
+"""Vectorised ensembles: N designs integrated together as one array computation on one core.
+
+The designs (rows of SI parameter values) are assembled as arrays
+(:class:`thrustgraph.flight.arraysystem.ArraySystem`, physics from the plugins'
+array builders) and integrated by a vectorised explicit Runge-Kutta method,
+Dormand-Prince 5(4) with its 4th-order dense output: the coefficients of
+J. R. Dormand and P. J. Prince, "A family of embedded Runge-Kutta formulae",
+J. Comput. Appl. Math. 6 (1980) 19-26, and the dense output of L. F. Shampine,
+"Some practical Runge-Kutta formulas", Math. Comp. 46 (1986) 135-150, as
+scipy's ``RK45`` uses them (copied from scipy.integrate._ivp.rk).
+
+What each design owns (lessons of the prototype in docs/studies.md):
+
+* its own time ``t``, step ``h``, error norm (RMS of the scaled local error
+  over its own states, as scipy's solvers), accept/reject decision and step
+  control (safety 0.9, factors 0.2-10, as scipy's RK45);
+* its own discrete phase: the mode of every moded component, the
+  kinematic constraint (held on a stand, guide, free, track), the way it
+  slides along its guide or track, plus whether apogee has passed; the
+  right-hand side never infers the phase;
+* its own events, those of a single flight (:mod:`thrustgraph.flight.integrate`):
+  the components' events (liquid exhausted, flow stops...), guide exit,
+  back at the guide's foot, at rest on a guide or track (the speed along it
+  reaches zero while it slides), apogee and ground impact, each a continuous
+  function with a direction, located on the dense output by a vectorised
+  Illinois (modified regula falsi) iteration; the step is cut at the
+  earliest event and the phase switch (reset map) is applied to that design
+  alone. At the start of each of its phases a design is checked as a single
+  flight's segment is: propulsion spent on a stand, at rest on a track, no
+  lift-off from a guide. Apogee
+  switches nothing in the dynamics, so it is recorded where it falls inside
+  the step without cutting it (unless ``run.stop_at_apogee`` ends the flight
+  there);
+* a step budget: a design that needs more than ``max_steps`` steps, or whose
+  step collapses, is screened out and reported, not left to stall the batch.
+
+Finished designs are compacted away (the arrays shrink) when fewer than
+half of them are still flying. The results are summary rows only
+(the registry outcomes in :data:`COMPUTED`, keyed as in
+:data:`thrustgraph.balance.outcomes.OUTCOMES`); no trajectory is kept, so memory
+does not grow with flight length. Each row depends only on its own design
+(every operation is elementwise), so a design gives the same numbers in any
+chunk of any size.
+
+Examples
+--------
+>>> import numpy as np
+>>> from thrustgraph.models.modelfile import load_model, default_model_path
+>>> from thrustgraph.models.model import parse_model
+>>> from thrustgraph.models.designs import resolve
+>>> parsed = parse_model(load_model(default_model_path()))
+>>> res = fly_designs(parsed, [resolve(parsed, "components.bottle.fill")], np.array([[0.33], [0.5]]), ["apogee"])
+>>> res.status, [round(float(v), 3) for v in res.values[:, 0]]
+(['ok', 'ok'], [54.358, 46.962])
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import time
+from dataclasses import dataclass, field
+from typing import Sequence
+
+import numpy as np
+
+from ..balance.arrayops import keep_heap
+from .arraysystem import FREE, GUIDE, HELD, IMPULSE, TRACK, ArraySystem, unsupported
+from .assembly import assemble
+from ..models.designs import DesignParameter, bounds_text, with_values, within_bounds
+from ..base.errors import ModelError
+from .integrate import available_signals, check_launch_speed, rest_value
+from ..models.model import ParsedModel
+from ..balance.outcomes import OUTCOMES, STATUS_OK, STATUS_SCREENED, check_outputs
+from ..kinds.vehicle import vehicle_profile
+from ..kinds.component import ComponentKind
+from .separation import carry, stage_models
+from ..models.staging import Trigger, condition, resolve_thresholds
+from ..base.xp import array_ops
+
+__all__ = ["fly_designs", "EnsembleResult", "unsupported", "COMPUTED", "DOPRI_C", "DOPRI_A", "DOPRI_B", "DOPRI_E",
+           "DOPRI_P"]
+
+#: The registry outcomes the ensemble computes itself (its own running maxima, burn clock and impulse quadrature
+#: state, not the registry's functions); a study that asks for another one flies single flights.
+#: Outcomes that do not apply to a design's vehicle (:mod:`thrustgraph.kinds.vehicle`) are NaN, as in a single flight.
+COMPUTED = ("apogee", "range", "impact_x", "impact_y", "flight_time", "run_time", "max_speed", "peak_acceleration",
+            "total_impulse", "burn_time", "propellant_expelled", "launch_mass", "peak_vessel_pressure",
+            "guide_exit_speed", "impact_speed", "dropped_mass")
+#: the fate of a design that separated a stage: it flies on as the next vehicle
+_SEPARATED = "separated"
+
+# Dormand-Prince 5(4) (scipy RK45's arrays).
+DOPRI_C = np.array([0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1])
+DOPRI_A = np.array([
+    [0, 0, 0, 0, 0],
+    [1 / 5, 0, 0, 0, 0],
+    [3 / 40, 9 / 40, 0, 0, 0],
+    [44 / 45, -56 / 15, 32 / 9, 0, 0],
+    [19372 / 6561, -25360 / 2187, 64448 / 6561, -212 / 729, 0],
+    [9017 / 3168, -355 / 33, 46732 / 5247, 49 / 176, -5103 / 18656]])
+DOPRI_B = np.array([35 / 384, 0, 500 / 1113, 125 / 192, -2187 / 6784, 11 / 84])
+DOPRI_E = np.array([-71 / 57600, 0, 71 / 16695, -71 / 1920, 17253 / 339200, -22 / 525, 1 / 40])
+DOPRI_P = np.array([
+    [1, -8048581381 / 2820520608, 8663915743 / 2820520608, -12715105075 / 11282082432],
+    [0, 0, 0, 0],
+    [0, 131558114200 / 32700410799, -68118460800 / 10900136933, 87487479700 / 32700410799],
+    [0, -1754552775 / 470086768, 14199869525 / 1410260304, -10690763975 / 1880347072],
+    [0, 127303824393 / 49829197408, -318862633887 / 49829197408, 701980252875 / 199316789632],
+    [0, -282668133 / 205662961, 2019193451 / 616988883, -1453857185 / 822651844],
+    [0, 40617522 / 29380423, -110615467 / 29380423, 69997945 / 29380423]])
+_SAFETY, _MIN_FACTOR, _MAX_FACTOR, _EXPONENT = 0.9, 0.2, 10.0, -1.0 / 5.0
+# the jerk times the step at the start (theta = 0) and end (theta = 1) of a step, from the dense output's
+# velocity v0 + h (q0 theta + q1 theta^2 + q2 theta^3 + q3 theta^4), q_k = sum_s DOPRI_P[s, k] K_s:
+# h da/dt = 2 q1 + 6 q2 theta + 12 q3 theta^2
+_JERK_ENDS = np.column_stack([2.0 * DOPRI_P[:, 1], 2.0 * DOPRI_P[:, 1] + 6.0 * DOPRI_P[:, 2] + 12.0 * DOPRI_P[:, 3]])
+_EPS = np.finfo(float).eps
+
+
+@dataclass
+class EnsembleResult:
+    """Summary rows of an ensemble: status and note per design, outcome values (SI), steps taken per design,
+    right-hand-side evaluations (vectorised calls), wall-clock seconds, and the time each stage separated
+    (stage name -> seconds per design, NaN where it did not)."""
+
+    status: list[str]
+    notes: list[str]
+    values: np.ndarray
+    outputs: tuple[str, ...]
+    steps: np.ndarray
+    rhs_calls: int
+    seconds: float
+    separations: dict[str, np.ndarray] = field(default_factory=dict)
+
+
+class _Events:
+    """The event functions of the family: the components' events, the model's triggers (a condition met, and
+    the action due after its delay), guide exit, back at the guide's foot, at rest on a guide or track, apogee,
+    ground impact (the event set of :func:`thrustgraph.flight.integrate.fly_segments`)."""
+
+    def __init__(self, sysa: ArraySystem, triggers: Sequence[Trigger] = ()) -> None:
+        self.slots: list[tuple] = []   # (kind, direction, payload)
+        for k, (comp, spec) in enumerate(sysa.events):
+            names = [m.name for m in sysa.modes[comp]]
+            when = np.zeros(len(names), dtype=bool)
+            when[[names.index(w) for w in spec.when]] = True
+            to = names.index(spec.to) if spec.to else -1
+            self.slots.append(("comp", float(spec.direction), (k, comp, sysa.slot[comp], when, to, spec.name,
+                                                               spec.needs_drive)))
+        for k, tr in enumerate(triggers):
+            self.slots.append(("trigger", tr.direction, (k, tr)))
+        for k, tr in enumerate(triggers):
+            self.slots.append(("due", 1.0, (k, tr)))
+        self.slots.append(("guide", 1.0, None))
+        # sliding back down the guide stops at its foot (1 nm below it, so a vehicle resting there does not fire)
+        self.slots.append(("foot", -1.0, None))
+        # sliding along a guide or track (kinetic friction against the way it slides, fixed for the phase), the
+        # phase ends where the speed along it reaches zero: falling through zero sliding forward, rising backward
+        self.slots.append(("rest", -1.0, 1.0))
+        self.slots.append(("rest", 1.0, -1.0))
+        self.slots.append(("apogee", -1.0, None))
+        self.slots.append(("impact", -1.0, None))
+        # the events whose value reads the balance (a component's drive, a trigger's snapshot signal)
+        self.needs_drive = [(s[0] == "comp" and s[2][6]) or (s[0] == "trigger" and s[2][1].needs_snapshot)
+                            for s in self.slots]
+        # events evaluated on some designs alone need those designs' own system when they read the balance or
+        # the component's parameters differ between designs (a pump's run time)
+        varied = set(sysa._comp_changes) if all(p.section == "components" for p in sysa.params) else \
+            set(sysa.parsed.kinds)
+        self.own_system = [nd or (s[0] == "comp" and s[2][1] in varied) for s, nd in zip(self.slots, self.needs_drive)]
+
+    def active(self, j: int, modes: np.ndarray, kin: np.ndarray, desc: np.ndarray, gpos: np.ndarray,
+               armed: np.ndarray, due: np.ndarray, slide: np.ndarray) -> np.ndarray:
+        kind, _, pl = self.slots[j]
+        if kind == "comp":
+            return pl[3][modes[pl[2]]]
+        if kind == "trigger":
+            return armed[pl[0]].copy()
+        if kind == "due":
+            return np.isfinite(due[pl[0]])
+        if kind == "guide" or kind == "foot":
+            return kin == GUIDE
+        if kind == "rest":
+            return ((kin == GUIDE) | (kin == TRACK)) & (slide == pl)
+        if kind == "apogee":
+            return (kin == FREE) & ~desc & gpos
+        return (kin == FREE) & gpos
+
+    def value(self, j: int, sysa: ArraySystem, t: np.ndarray, Y: np.ndarray, aux: dict | None,
+              rows: np.ndarray | None = None, due: np.ndarray | None = None) -> np.ndarray:
+        """Event ``j`` at states ``Y`` of the designs of ``sysa`` (or of its designs ``rows``); ``aux`` carries
+        the drives and the phase of the balance (events that read it), ``due`` when the trigger actions are due."""
+        kind, _, pl = self.slots[j]
+        r = slice(None) if rows is None else rows
+        if kind == "comp":
+            k, comp = pl[0], pl[1]
+            drive = aux["drive"].get(comp, 0.0) if (pl[6] and aux is not None) else 0.0
+            return np.array(np.broadcast_to(np.asarray(sysa.events[k][1].fn(t, list(Y), drive), dtype=float), t.shape))
+        if kind == "trigger":
+            tr = pl[1]
+            x0 = tuple(c[r] for c in sysa.x0)
+            phase = aux["phase"] if tr.needs_snapshot else None
+            g = condition(tr, t, list(Y), x0, lambda tt, ss: sysa.snapshot(tt, ss, phase), array_ops)
+            return np.array(np.broadcast_to(np.asarray(g, dtype=float), t.shape))
+        if kind == "due":
+            return t - due[pl[0]][r]
+        if kind in ("guide", "foot", "rest"):
+            u = [c[r] for c in sysa.u]
+            if kind == "rest":          # the speed along the guide or track (the slot watches designs sliding pl)
+                return np.array(rest_value(Y[3] * u[0] + Y[4] * u[1] + Y[5] * u[2], pl))
+            x0 = [c[r] for c in sysa.x0]
+            along = (Y[0] - x0[0]) * u[0] + (Y[1] - x0[1]) * u[1] + (Y[2] - x0[2]) * u[2]
+            if kind == "foot":
+                return np.array(along + 1e-9)
+            # 1 nm beyond the guide's end, so that a zero-length guide (a pad) holds the vehicle until it moves
+            return np.array(along - (sysa.guide_length[r] + 1e-9))
+        if kind == "apogee":
+            return Y[5].copy()
+        return Y[2].copy()
+
+
+def _rowsum(x: np.ndarray) -> np.ndarray:
+    """Sum over the first axis, row after row: the same rounding for every design whatever the array's size
+    (numpy's own reduction sums a contiguous axis pairwise, so a one-design array would round differently)."""
+    acc = x[0].copy()
+    for r in range(1, len(x)):
+        acc += x[r]
+    return acc
+
+
+def _norm(x: np.ndarray) -> np.ndarray:
+    """RMS over the states (first axis), per design."""
+    return np.sqrt(_rowsum(x * x) / len(x))
+
+
+def _dense(Y0: np.ndarray, h: np.ndarray, Q: np.ndarray, theta: np.ndarray) -> np.ndarray:
+    """State on the step's dense output at fraction ``theta`` (per design)."""
+    th = theta   # Horner's rule: no powers (a float power costs 5-30 times a multiplication here)
+    return Y0 + h * (th * (Q[:, 0] + th * (Q[:, 1] + th * (Q[:, 2] + th * Q[:, 3]))))
+
+
+def _norm_max(C: np.ndarray, hi: np.ndarray, iters: int = 5) -> np.ndarray:
+    """Largest |P(theta)| on [0, hi] per design, for the vector polynomial P(theta) = sum_k C[:, k] theta^k
+    (C of shape (3, degree + 1, m)) whose square rises at 0 and falls at hi, so that it has an interior
+    maximum: Newton on the root of P . P' from the regula-falsi point of the ends, iterates kept in [0, hi];
+    returns the largest |P| met (each is a lower bound of the maximum; Newton converges quadratically, so
+    the last is the maximum to rounding)."""
+    deg = C.shape[1] - 1
+
+    def parts(th):
+        p, d1, d2 = C[:, deg], 0.0, 0.0
+        for k in range(deg - 1, -1, -1):       # Horner's rule with the first two derivatives
+            d2 = d2 * th + 2.0 * d1
+            d1 = d1 * th + p
+            p = p * th + C[:, k]
+        return p, d1, d2
+
+    p0, d0, _ = parts(np.zeros_like(hi))
+    p1, d1, _ = parts(hi)
+    phi0, phi1 = _rowsum(p0 * d0), _rowsum(p1 * d1)
+    den = phi0 - phi1
+    th = np.clip(hi * phi0 / np.where(den > 0.0, den, 1.0), 0.0, hi)
+    best = np.zeros_like(hi)
+    for _ in range(iters):
+        p, d1, d2 = parts(th)
+        best = np.maximum(best, _rowsum(p * p))
+        dphi = _rowsum(d1 * d1 + p * d2)
+        step = _rowsum(p * d1) / np.where(dphi < 0.0, dphi, -1.0)
+        th = np.clip(th - np.where(dphi < 0.0, step, 0.0), 0.0, hi)
+    p, _, _ = parts(th)
+    return np.sqrt(np.maximum(best, _rowsum(p * p)))
+
+
+def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray, status: list[str],
+                    notes: list[str]) -> np.ndarray:
+    """Designs outside their bounds, or combinations a component kind refuses, are screened out here."""
+    N = len(x)
+    good = np.ones(N, dtype=bool)
+    for j, p in enumerate(params):
+        ok = within_bounds(p, x[:, j])
+        for i in np.flatnonzero(good & ~ok):
+            status[i] = STATUS_SCREENED
+            notes[i] = f"{p.path} = {p.text(x[i, j])} is outside its bounds ({bounds_text(p)})"
+        good &= ok
+
+    # the component kinds' checks and the environment kinds' (still air refuses a density its temperature
+    # contradicts), as a single flight's apply() runs them
+    owners = [("components", o) for o in sorted({p.owner for p in params if p.section == "components"})]
+    owners += [("environment", o) for o in sorted({p.owner for p in params if p.section == "environment"})]
+    for section, owner in owners:
+        cls = parsed.kinds[owner] if section == "components" else parsed.env_kinds[owner]
+        if getattr(cls.check, "__func__", None) is getattr(ComponentKind.check, "__func__", None):
+            continue   # the kind checks nothing
+        cols = [(p.name, j) for j, p in enumerate(params) if p.section == section and p.owner == owner]
+        base = parsed.params[owner] if section == "components" else parsed.env_params[owner]
+        live = np.flatnonzero(good)
+        # one check per distinct row of the owner's values (a grid repeats them)
+        uniq, inverse = np.unique(x[np.ix_(live, [j for _, j in cols])], axis=0, return_inverse=True)
+        for u, row in enumerate(uniq):
+            try:
+                cls.check(with_values(base, {nm: float(v) for (nm, _), v in zip(cols, row)}), f"{section}.{owner}")
+            except ModelError as exc:
+                for i in live[inverse.reshape(-1) == u]:
+                    status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"
+                    good[i] = False
+    return good
+
+
+def _screen_launch_speed(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray, good: np.ndarray,
+                         status: list[str], notes: list[str]) -> None:
+    """Designs a single flight refuses at its start for their launch speed (one on a test stand) are screened."""
+    if parsed.launch.mount != "held":
+        return
+    col = [j for j, p in enumerate(params) if p.path == "launch.speed"]
+    speeds = x[:, col[0]] if col else np.full(len(x), float(parsed.launch.speed))
+    for i in np.flatnonzero(good & (speeds != 0.0)):
+        try:
+            check_launch_speed(dataclasses.replace(parsed.launch, speed=float(speeds[i])))
+        except ModelError as exc:
+            status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"
+            good[i] = False
+
+
+class _Buffers:
+    """Preallocated stage arrays, so the 2-D stage combinations make no temporaries."""
+
+    def __init__(self, ns: int, n: int, nctrl: int) -> None:
+        self.K = np.empty((7, ns, n))
+        self.Kf = self.K.reshape(7, ns * n)
+        # the step-control rows of every stage (each stage's first nctrl rows are contiguous): a view
+        self.Kc = self.K[:, :nctrl, :].reshape(7, nctrl * n)
+        assert np.shares_memory(self.Kc, self.K)
+        self.Ys = np.empty((ns, n))
+        self.Yn = np.empty((ns, n))
+        self.err = np.empty((nctrl, n))
+        self.tmp = np.empty((nctrl, n))
+        self.tmp2 = np.empty((nctrl, n))
+
+    def combine(self, coeffs: np.ndarray, m: int, h: np.ndarray, Y: np.ndarray, out: np.ndarray) -> np.ndarray:
+        """out = Y + h * sum_j coeffs[j] K[j] over the first m stages.
+
+        einsum, not BLAS: a threaded BLAS on a busy 2-core machine made this 100x slower (measured).
+        """
+        assert out.flags.c_contiguous   # else reshape would copy and the sum would be lost
+        np.einsum("s,sk->k", coeffs[:m], self.Kf[:m], out=out.reshape(-1))
+        out *= h
+        out += Y
+        return out
+
+
+def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray,
+                outputs: Sequence[str] | None = None, *, rtol: float | None = None, atol: float | None = None,
+                max_steps: int = 20000, compact: float = 0.5, progress=None) -> EnsembleResult:
+    """Fly N designs as one vectorised ensemble and return their summary rows.
+
+    Parameters
+    ----------
+    parsed : the base model (its family must be supported: :func:`unsupported` returns None)
+    params : the varied parameters; ``x`` their SI values, shape (N, parameters)
+    outputs : registry outcome keys (default: :data:`COMPUTED`, ``dropped_mass`` only for a model with stages;
+        any other is NaN)
+    rtol, atol : tolerances (default: the model's ``[run]`` values; the same meaning as for solve_ivp)
+    max_steps : step budget per design (attempted steps); a design that exceeds it is screened out
+    compact : shrink the arrays when fewer than this fraction of the designs are still flying
+    progress : called now and then with the number of designs finished (flown or screened)
+    """
+    t_start = time.perf_counter()
+    why = unsupported(parsed)
+    if why:
+        raise ModelError("ensemble", f"the vectorised ensemble cannot fly this model: {why}",
+                         "fly it with single flights (--flights single)")
+    keep_heap()
+    if outputs is None:
+        outputs = [k for k in COMPUTED if k != "dropped_mass" or parsed.stages]
+    outputs = tuple(check_outputs(outputs))
+    x = np.asarray(x, dtype=float).reshape(-1, len(params))
+    N = len(x)
+    rtol = float(parsed.run.rtol if rtol is None else rtol)
+    atol = float(parsed.run.atol if atol is None else atol)
+    t_end = float(parsed.run.end_time)
+    stop_at_apogee = bool(parsed.run.stop_at_apogee)
+    status = [STATUS_OK] * N
+    notes = [""] * N
+    out = {k: np.full(N, np.nan) for k in OUTCOMES}
+    steps_taken = np.zeros(N, dtype=np.int64)
+    good = _screen_designs(parsed, params, x, status, notes)
+    _screen_launch_speed(parsed, params, x, good, status, notes)
+    gid = np.flatnonzero(good)
+    if len(gid) == 0:
+        return EnsembleResult(status, notes, _table(out, outputs), outputs, steps_taken, 0,
+                              time.perf_counter() - t_start)
+    triggers = _resolved_triggers(parsed)
+    seps = {st: np.full(N, np.nan) for st in parsed.stages}
+    calls = 0
+    finished = N - len(gid)
+    with np.errstate(all="ignore"):
+        # the designs fly vehicle by vehicle: first the whole vehicle, then, for each set of dropped stages,
+        # every design that reached it (from its own separation time and state). A design only ever drops
+        # more stages, so each set is flown once, after every set it can come from; each design's numbers
+        # depend only on its own rows, so flying it in one batch or the next changes nothing.
+        models = {frozenset(): parsed}
+        waiting: dict[frozenset, list[dict]] = {frozenset(): []}
+        while waiting:
+            key = min(waiting, key=len)
+            arrivals = waiting.pop(key)
+            pc = models[key]
+            cols = [j for j, p in enumerate(params) if p.section != "components" or p.owner in pc.params]
+            run = _Run(pc, [params[j] for j in cols], x[:, cols], gid if not key else None, rtol, atol, t_end,
+                       stop_at_apogee, max_steps, compact, out, steps_taken, triggers=triggers,
+                       staged=bool(parsed.stages), seps=seps, arrivals=arrivals or None)
+            run.fly(None if progress is None else (lambda k, f=finished: progress(f + k)))
+            calls += run.calls
+            finished += len(run.done_gid)
+            for i, g in enumerate(run.done_gid):
+                status[g], notes[g] = run.done_status[i], run.done_note[i]
+            for stage, data in run.handoffs:
+                nxt = key | {stage}
+                if nxt not in models:
+                    models[nxt] = stage_models(pc, parsed.stages[stage])[0]
+                waiting.setdefault(nxt, []).append(data)
+    for i in range(N):
+        if status[i] != STATUS_OK:
+            for k in out:
+                out[k][i] = np.nan
+            for v in seps.values():
+                v[i] = np.nan
+    # an outcome that does not apply to the vehicle (no apogee on a track, no speed on a stand) is NaN, as in
+    # a single flight: the registry's own predicate, asked of each design's vehicle profile
+    _mask_by_vehicle(out, parsed, params, x)
+    return EnsembleResult(status, notes, _table(out, outputs), outputs, steps_taken, calls,
+                          time.perf_counter() - t_start, seps)
+
+
+def _resolved_triggers(parsed: ParsedModel) -> tuple[Trigger, ...]:
+    """The model's triggers with their thresholds in SI, resolved against the whole vehicle's signals (as a
+    single flight resolves them when it starts)."""
+    if not parsed.triggers:
+        return ()
+    return resolve_thresholds(parsed.triggers, available_signals(assemble(parsed)))
+
+
+def _mask_by_vehicle(out: dict[str, np.ndarray], parsed: ParsedModel, params: Sequence[DesignParameter],
+                     x: np.ndarray) -> None:
+    """NaN for every outcome that does not apply to a design's vehicle (the registry's ``applies``, read from the
+    :class:`~thrustgraph.kinds.vehicle.VehicleProfile` of the design: a varied guide length or gravity may change it)."""
+    shaping = [j for j, p in enumerate(params) if p.section == "launch" or
+               (p.section == "environment" and p.owner == "gravity")]
+    if not shaping:
+        groups = {vehicle_profile(parsed): np.arange(len(x))}
+    else:
+        groups = {}
+        for i in range(len(x)):
+            launch = {params[j].name: float(x[i, j]) for j in shaping if params[j].section == "launch"}
+            grav = {params[j].name: float(x[i, j]) for j in shaping if params[j].section == "environment"}
+            view = with_values(parsed, {
+                "launch": with_values(parsed.launch, launch) if launch else parsed.launch,
+                "env_params": {**parsed.env_params, "gravity": with_values(parsed.env_params["gravity"], grav)}
+                if grav else parsed.env_params})
+            groups.setdefault(vehicle_profile(view), []).append(i)
+    for profile, rows in groups.items():
+        for k, spec in OUTCOMES.items():
+            if not spec.applies(profile):
+                out[k][np.asarray(rows, dtype=int)] = np.nan
+
+
+class _Run:
+    """The integration of one ensemble: per-design arrays, stepping, events, trackers, compaction."""
+
+    def __init__(self, parsed, params, x, gid, rtol, atol, t_end, stop_at_apogee, max_steps, compact, out,
+                 steps_taken, *, triggers=(), staged=False, seps=None, arrivals=None) -> None:
+        self.parsed, self.params, self.x = parsed, params, x
+        self.rtol, self.atol, self.t_end = rtol, atol, t_end
+        self.stop_at_apogee, self.max_steps, self.compact_at = stop_at_apogee, max_steps, compact
+        self.out, self.steps_taken = out, steps_taken
+        self.triggers, self.staged, self.seps = tuple(triggers), staged, seps
+        self.calls = 0
+        self.done_gid: list[int] = []
+        self.done_status: list[str] = []
+        self.done_note: list[str] = []
+        self.handoffs: list[tuple[str, dict]] = []   # (stage, the designs that separated it, as they were)
+        self.leaving: list[tuple[np.ndarray, str]] = []
+        if arrivals:
+            gid = np.concatenate([a["gid"] for a in arrivals])
+        sysa = self.sysa = ArraySystem(parsed, params, x[gid])
+        n = self.n = sysa.n
+        self.gid = gid.copy()
+        self.ns = ns = len(sysa.state_names)
+        self.nctrl = ns - 1                       # the impulse quadrature (last row) is left out of step control
+        assert sysa.index(IMPULSE) == ns - 1
+        self.ev = _Events(sysa, self.triggers)
+        self.nev = len(self.ev.slots)
+        self.j_apogee = [k for k, sl in enumerate(self.ev.slots) if sl[0] == "apogee"][0]
+        nt = len(self.triggers)
+        if arrivals:
+            self._arrive(arrivals)
+        else:
+            self.Y = sysa.y0.copy()
+            self.t = np.zeros(n)
+            self.modes = sysa.mode0.copy()
+            self.kin = sysa.kin0.copy()
+            self.desc = np.zeros(n, dtype=bool)
+            self.armed = np.ones((nt, n), dtype=bool)       # every trigger watches its condition from launch
+            self.due = np.full((nt, n), np.nan)             # when a met trigger's delayed action is due
+            self.dropped = np.zeros(n)
+            self.t_first = np.zeros(n)
+            self.x_first = np.array([np.broadcast_to(c, (n,)) for c in sysa.x0], dtype=float)
+        self.gpos = np.broadcast_to(np.asarray(sysa.gravity(sysa.x0[2]), dtype=float) > 0.0, (n,)).copy()
+        self.slide = np.zeros(n)
+        self.set_slide(np.arange(n))
+        self.F, aux = sysa.rhs(self.t, self.Y, self.modes, self.kin, slide=self.slide)
+        self.calls += 1
+        p0 = sysa.pressures(self.Y, self.modes)
+        self.has_p = p0 is not None
+        p0 = np.full(n, np.nan) if p0 is None else np.broadcast_to(p0, (n,)).copy()
+        speed = np.sqrt(self.Y[3] ** 2 + self.Y[4] ** 2 + self.Y[5] ** 2)
+        accel = np.broadcast_to(np.asarray(aux["accel"], dtype=float), (n,)).copy()
+        if arrivals:
+            # the running maxima carry on over the separation (the new vehicle's first state counts too)
+            self.dropped += self.m_before - sysa.masses(self.Y)
+            self.peak_p = np.fmax(self.peak_p, p0)
+            self.zmax = np.maximum(self.zmax, self.Y[2])
+            self.vmax = np.maximum(self.vmax, speed)
+            self.amax = np.maximum(self.amax, accel)
+        else:
+            out["launch_mass"][gid] = np.broadcast_to(aux["mass"], (n,))
+            self.peak_p = p0
+            self.zmax = self.Y[2].copy()
+            self.vmax = speed
+            self.amax = accel
+            self.burn = np.zeros(n)
+            self.apogee = np.full(n, np.nan)
+            self.exit_speed = np.full(n, np.nan)
+            self.impact_speed = np.full(n, np.nan)
+        self.live = np.ones(n, dtype=bool)
+        self.fate = [""] * n
+        self.fate_status = [STATUS_OK] * n
+        self.gold = self.g_all(sysa, self.t, self.Y, aux)
+        self.rejected = np.zeros(n, dtype=bool)
+        self.buf = _Buffers(ns, n, self.nctrl)
+        everyone = np.arange(n)
+        self.fire_at_once(everyone)
+        self.phase_checks(everyone)
+        self.h = self.initial_step()
+
+    # --- helpers ------------------------------------------------------------------------------------------
+    _PER_DESIGN = ("gid", "t", "h", "kin", "desc", "gpos", "slide", "zmax", "vmax", "amax", "burn", "apogee",
+                   "exit_speed", "impact_speed", "peak_p", "live", "rejected", "dropped", "t_first")
+    #: per-design arrays carried over a separation (the designs' columns; the way a design slides is found anew
+    #: when the next vehicle starts, as a single flight's segment starts)
+    _CARRIED = ("t", "kin", "desc", "zmax", "vmax", "amax", "burn", "apogee", "exit_speed", "impact_speed", "peak_p",
+                "dropped", "t_first")
+    #: per-design arrays with a row per trigger or per coordinate (columns are designs)
+    _PER_DESIGN_2D = ("armed", "due", "x_first")
+
+    def g_all(self, sys_, tt, YY, aux, idx=None):
+        due = self.due if idx is None else self.due[:, idx]
+        return [self.ev.value(j, sys_, tt, YY, aux, due=due) for j in range(self.nev)]
+
+    def _arrive(self, arrivals: list[dict]) -> None:
+        """Start from the designs that separated a stage of the vehicle before: their states and modes carried
+        over by name (:func:`thrustgraph.flight.separation.carry`, as a single flight's separation), trackers and
+        trigger states as they were."""
+        sysa = self.sysa
+        Ys, ms = [], []
+        c0 = 0
+        for a in arrivals:
+            cols = slice(c0, c0 + len(a["gid"]))
+            c0 += len(a["gid"])
+            y, md = carry(a["names"], a["moded"], a["Y"], list(a["modes"]), sysa.state_names, sysa.moded,
+                          list(sysa.mode0[:, cols]))
+            Ys.append(y)
+            ms.append(np.array(md, dtype=np.int8).reshape(len(sysa.moded), -1))
+        self.Y = np.ascontiguousarray(np.concatenate(Ys, axis=1))
+        self.modes = np.concatenate(ms, axis=1)
+        for name in self._CARRIED + self._PER_DESIGN_2D + ("m_before",):
+            setattr(self, name, np.concatenate([a[name] for a in arrivals], axis=-1))
+
+    def capture(self) -> None:
+        """The designs that separated a stage in this step leave this vehicle: keep what the next one needs."""
+        for rows, stage in self.leaving:
+            data = {name: getattr(self, name)[..., rows].copy() for name in self._CARRIED + self._PER_DESIGN_2D}
+            data.update(gid=self.gid[rows].copy(), Y=self.Y[:, rows].copy(), modes=self.modes[:, rows].copy(),
+                        names=self.sysa.state_names, moded=tuple(self.sysa.moded),
+                        m_before=self.sysa.masses(self.Y)[rows])
+            self.seps[stage][self.gid[rows]] = self.t[rows]
+            self.handoffs.append((stage, data))
+        self.leaving = []
+
+    def trigger_met(self, rows: np.ndarray, k: int) -> None:
+        """Trigger ``k``'s condition is met for designs ``rows``: it acts now, or after its delay."""
+        tr = self.triggers[k]
+        self.armed[k, rows] = False
+        if tr.delay > 0.0:
+            self.due[k, rows] = self.t[rows] + tr.delay
+        else:
+            self.act(rows, k)
+
+    def act(self, rows: np.ndarray, k: int) -> None:
+        """Trigger ``k`` acts for designs ``rows`` (the actions of a single flight's triggers)."""
+        tr = self.triggers[k]
+        self.due[k, rows] = np.nan
+        if tr.action == "stop":
+            self.finish(rows, STATUS_OK, f"stopped by trigger {tr.name!r}")
+        elif tr.action == "switch":
+            if tr.component in self.sysa.slot:      # else the component left with a dropped stage: ignored
+                names = [m.name for m in self.sysa.modes[tr.component]]
+                self.modes[self.sysa.slot[tr.component], rows] = names.index(tr.mode)
+        else:
+            rows = rows[self.live[rows]]
+            self.finish(rows, _SEPARATED, tr.stage)
+            self.leaving.append((rows, tr.stage))
+
+    def finish(self, idx, st: str, note: str) -> None:
+        for i in np.atleast_1d(idx):
+            if self.live[i]:
+                self.live[i] = False
+                self.fate_status[i], self.fate[i] = st, note
+
+    def fire_at_once(self, idx: np.ndarray) -> None:
+        """Events already past their zero at a phase start fire at once (as in a single flight)."""
+        ev = self.ev
+        for _ in range(50):
+            fired = False
+            for j, (kind, direction, pl) in enumerate(ev.slots):
+                if kind not in ("comp", "trigger", "due"):
+                    continue
+                act = ev.active(j, self.modes[:, idx], self.kin[idx], self.desc[idx], self.gpos[idx],
+                                self.armed[:, idx], self.due[:, idx], self.slide[idx]) & self.live[idx]
+                past = act & (direction * self.gold[j][idx] > 0.0)
+                if np.any(past):
+                    sel = idx[past]
+                    if kind == "trigger":
+                        self.trigger_met(sel, pl[0])
+                    elif kind == "due":
+                        self.act(sel, pl[0])
+                    elif pl[4] >= 0:
+                        self.modes[pl[2], sel] = pl[4]
+                    else:
+                        self.finish(sel, STATUS_OK, pl[5])
+                    fired = True
+            self.capture()
+            if not fired:
+                return
+            self.set_slide(idx)      # a new phase: the way it slides anew (at rest it depends on the modes)
+            sub = self.sysa.subset(idx)
+            Fi, ai = sub.rhs(self.t[idx], self.Y[:, idx], self.modes[:, idx], self.kin[idx], slide=self.slide[idx])
+            self.calls += 1
+            self.F[:, idx] = Fi
+            # the new phase's first acceleration counts toward the peak (a valve open from the start)
+            self.amax[idx] = np.maximum(self.amax[idx], np.broadcast_to(np.asarray(ai["accel"], dtype=float),
+                                                                        (len(idx),)))
+            gi = self.g_all(sub, self.t[idx], self.Y[:, idx], ai, idx)
+            for j in range(self.nev):
+                self.gold[j][idx] = gi[j]
+
+    def along(self, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Speed along the guide or track and distance along it from the launch point, of designs ``idx``."""
+        Y, u, x0 = self.Y, self.sysa.u, self.sysa.x0
+        v_al = Y[3, idx] * u[0][idx] + Y[4, idx] * u[1][idx] + Y[5, idx] * u[2][idx]
+        s_al = ((Y[0, idx] - x0[0][idx]) * u[0][idx] + (Y[1, idx] - x0[1][idx]) * u[1][idx]
+                + (Y[2, idx] - x0[2][idx]) * u[2][idx])
+        return v_al, s_al
+
+    def accel_along(self, idx: np.ndarray, slide: np.ndarray) -> np.ndarray:
+        """The acceleration along the guide or track of designs ``idx`` in their current phase, sliding ``slide``
+        (one evaluation of the balance)."""
+        sub = self.sysa if len(idx) == self.n else self.sysa.subset(idx)
+        d, _ = sub.rhs(self.t[idx], self.Y[:, idx], self.modes[:, idx], self.kin[idx], slide=slide, aux=False)
+        self.calls += 1
+        u = self.sysa.u
+        return d[3] * u[0][idx] + d[4] * u[1][idx] + d[5] * u[2][idx]
+
+    def set_slide(self, idx: np.ndarray) -> None:
+        """The way designs ``idx`` slide along their guide or track in the phase they start (as a single flight's
+        segment starts): the sign of the speed along it, or at rest the way the balance (friction following
+        the speed, static at rest) is about to move it (0 if friction holds it)."""
+        if len(idx) == 0:
+            return
+        kin = self.kin[idx]
+        on = (kin == GUIDE) | (kin == TRACK)
+        way = np.zeros(len(idx))
+        if on.any():
+            v, _ = self.along(idx)
+            rest = np.flatnonzero(on & (v == 0.0))
+            if len(rest):
+                v = v.copy()
+                v[rest] = self.accel_along(idx[rest], np.zeros(len(rest)))
+            way = np.where(on, np.sign(v), 0.0)
+        self.slide[idx] = way
+
+    def waiting(self, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Per design of ``idx``: a trigger's delayed action is due later (pending), and that or a trigger still
+        watching its condition (waits)."""
+        pending = np.any(np.isfinite(self.due[:, idx]), axis=0)
+        return pending, pending | np.any(self.armed[:, idx], axis=0)
+
+    def phase_checks(self, idx: np.ndarray) -> None:
+        """What a single flight checks before each segment: a stand whose propulsion is spent ends the run, and
+        so does a vehicle at rest on a track with nothing to push it (unless a trigger's action is pending); one
+        that never left its guide is screened (unless a trigger still watches or waits)."""
+        idx = idx[self.live[idx]]
+        if len(idx) == 0:
+            return
+        prop = self.sysa.propulsive(self.modes[:, idx])
+        kin = self.kin[idx]
+        v_al, s_al = self.along(idx)
+        pending, waits = self.waiting(idx)
+        self.finish(idx[(kin == HELD) & ~prop & ~pending], STATUS_OK, "propulsion spent on the stand")
+        still = np.flatnonzero((kin == TRACK) & ~prop & (v_al == 0.0) & ~pending)
+        if len(still):
+            F = self.F[3:6, idx[still]]
+            self.finish(idx[still][np.all(F == 0.0, axis=0)], STATUS_OK, "at rest on the track")
+        stuck = (kin == GUIDE) & ~prop & (v_al <= 0.0) & (s_al <= 1e-12) & ~waits
+        self.finish(idx[stuck], STATUS_SCREENED, "no lift-off: the thrust never exceeded the weight along the guide")
+
+    def initial_step(self, idx: np.ndarray | None = None, sub: ArraySystem | None = None) -> np.ndarray:
+        """Hairer, Norsett & Wanner, Solving ODEs I, sec. II.4 (as scipy's select_initial_step), per design: for
+        every design at the start, and for designs ``idx`` (``sub`` their system) after a phase switch, where a
+        single flight starts a new segment with a step of its own."""
+        if idx is None:
+            idx, sub = np.arange(self.n), self.sysa
+        Y, F, t, c = self.Y[:, idx], self.F[:, idx], self.t[idx], self.nctrl
+        left = np.maximum(self.t_end - t, 0.0)
+        sc = self.atol + np.abs(Y) * self.rtol
+        d0 = _norm((Y / sc)[:c])
+        d1 = _norm((F / sc)[:c])
+        h0 = np.where((d0 < 1e-5) | (d1 < 1e-5), 1e-6, 0.01 * d0 / np.where(d1 > 0, d1, 1.0))
+        h0 = np.minimum(h0, left)
+        F1, _ = sub.rhs(t + h0, Y + h0 * F, self.modes[:, idx], self.kin[idx], slide=self.slide[idx])
+        self.calls += 1
+        d2 = _norm(((F1 - F) / sc)[:c]) / np.where(h0 > 0.0, h0, 1.0)
+        h1 = np.where((d1 <= 1e-15) & (d2 <= 1e-15), np.maximum(1e-6, h0 * 1e-3),
+                      (0.01 / np.maximum(np.maximum(d1, d2), 1e-300)) ** (1.0 / 5.0))
+        return np.minimum(np.minimum(100 * h0, h1), left)
+
+    def compact(self) -> None:
+        """Drop the finished designs from every array."""
+        keep = np.flatnonzero(self.live)
+        self.done(np.flatnonzero(~self.live))
+        self.sysa = self.sysa.subset(keep)
+        for name in self._PER_DESIGN:
+            setattr(self, name, getattr(self, name)[keep])
+        for name in self._PER_DESIGN_2D:
+            setattr(self, name, getattr(self, name)[:, keep])
+        # row-major copies: the state array and the step's buffers trade places (see step)
+        self.Y, self.F = np.ascontiguousarray(self.Y[:, keep]), np.ascontiguousarray(self.F[:, keep])
+        self.modes = self.modes[:, keep]
+        self.gold = [g[keep] for g in self.gold]
+        self.fate = [self.fate[i] for i in keep]
+        self.fate_status = [self.fate_status[i] for i in keep]
+        self.n = len(keep)
+        self.buf = _Buffers(self.ns, self.n, self.nctrl)
+
+    def done(self, idx: np.ndarray) -> None:
+        """Designs ``idx`` (current slots) have finished: their outcomes, status and note (those that separated a
+        stage fly on as the next vehicle: not done)."""
+        idx = np.array([i for i in idx if self.fate_status[i] != _SEPARATED], dtype=np.intp)
+        self.store(idx)
+        for i in idx:
+            self.done_gid.append(int(self.gid[i]))
+            self.done_status.append(self.fate_status[i])
+            self.done_note.append(self.fate[i])
+
+    def store(self, idx: np.ndarray) -> None:
+        """Write the outcomes of designs ``idx`` (current slots) into the global rows."""
+        if len(idx) == 0:
+            return
+        out, sysa, Y = self.out, self.sysa, self.Y
+        g = self.gid[idx]
+        out["flight_time"][g] = self.t[idx] - self.t_first[idx]
+        out["run_time"][g] = self.t[idx] - self.t_first[idx]
+        out["impact_x"][g] = Y[0, idx] - self.x_first[0, idx]
+        out["impact_y"][g] = Y[1, idx] - self.x_first[1, idx]
+        out["range"][g] = np.hypot(out["impact_x"][g], out["impact_y"][g])
+        ap = self.apogee[idx]
+        # an apogee is an outcome of flights under gravity (the registry's applies): NaN without it
+        out["apogee"][g] = np.where(self.gpos[idx], np.where(np.isfinite(ap), np.maximum(ap, self.zmax[idx]),
+                                                             self.zmax[idx]), np.nan)
+        out["max_speed"][g] = self.vmax[idx]
+        out["peak_acceleration"][g] = self.amax[idx]
+        out["total_impulse"][g] = Y[-1, idx]
+        out["burn_time"][g] = self.burn[idx]
+        M = np.broadcast_to(sysa.masses(Y), (self.n,))
+        out["propellant_expelled"][g] = out["launch_mass"][g] - M[idx] - self.dropped[idx]
+        out["dropped_mass"][g] = self.dropped[idx] if self.staged else np.nan
+        out["peak_vessel_pressure"][g] = self.peak_p[idx]
+        out["guide_exit_speed"][g] = self.exit_speed[idx]
+        out["impact_speed"][g] = self.impact_speed[idx]
+
+    # --- the loop -----------------------------------------------------------------------------------------
+    def fly(self, progress=None, screened_before: int = 0) -> None:
+        it = 0
+        while np.any(self.live):
+            if self.live.sum() < self.compact_at * self.n and self.n > 16:
+                self.compact()
+            self.step()
+            it += 1
+            if progress is not None and it % 8 == 0:
+                ended = sum(1 for i in np.flatnonzero(~self.live) if self.fate_status[i] != _SEPARATED)
+                progress(len(self.done_gid) + ended + screened_before)
+        self.done(np.arange(self.n))
+
+    def step(self) -> None:
+        sysa, buf, ev, nev = self.sysa, self.buf, self.ev, self.nev
+        Y, F, t, modes, kin, live = self.Y, self.F, self.t, self.modes, self.kin, self.live
+        n = self.n
+        K = buf.K
+        hh = np.where(live, np.minimum(self.h, self.t_end - t), 0.0)
+        # one attempted step for every design, each with its own h
+        K[0] = F
+        ph = sysa.phase(modes, kin, self.slide)          # the stages share the phase
+        for st in range(1, 6):
+            Ys = buf.combine(DOPRI_A[st], st, hh, Y, buf.Ys)
+            sysa.rhs(t + DOPRI_C[st] * hh, Ys, modes, kin, out=K[st], phase=ph, aux=False)
+        Yn = buf.combine(DOPRI_B, 6, hh, Y, buf.Yn)
+        _, aux_n = sysa.rhs(t + hh, Yn, modes, kin, out=K[6], phase=ph)
+        self.calls += 6
+        # the error norm over the step-control rows only (the impulse quadrature is left out)
+        nc = self.nctrl
+        err = buf.err
+        np.einsum("s,sk->k", DOPRI_E, buf.Kc, out=err.reshape(-1))
+        err *= hh
+        tmp = buf.tmp
+        np.abs(Y[:nc], out=tmp)
+        np.maximum(tmp, np.abs(Yn[:nc], out=buf.tmp2), out=tmp)
+        tmp *= self.rtol
+        tmp += self.atol
+        err /= tmp
+        err *= err
+        en = np.sqrt(_rowsum(err) / nc)
+        en = np.where(np.isfinite(en), en, np.inf)
+        self.steps_taken[self.gid[live]] += 1
+        acc = live & (en < 1.0)
+        rej = live & ~acc
+        fac = _SAFETY * en ** _EXPONENT
+        fac_acc = np.where(en == 0.0, _MAX_FACTOR, np.minimum(_MAX_FACTOR, fac))
+        fac_acc = np.where(self.rejected, np.minimum(1.0, fac_acc), fac_acc)
+        h_next = np.where(acc, hh * fac_acc, np.where(rej, hh * np.maximum(_MIN_FACTOR, fac), self.h))
+        self.rejected = np.where(acc, False, np.where(rej, True, self.rejected))
+        # screening: step budget, collapsed steps, singular head coupling
+        budget = live & (self.steps_taken[self.gid] > self.max_steps)
+        self.finish(np.flatnonzero(budget), STATUS_SCREENED,
+                    f"step budget exhausted ({self.max_steps} steps): the design stalls")
+        for i in np.flatnonzero(rej & (h_next < 10 * _EPS * np.maximum(np.abs(t), 1e-30))):
+            self.finish(np.array([i]), STATUS_SCREENED,
+                        f"integration failed: the step size collapsed at t = {t[i]:.6g} s")
+        sing = acc & np.asarray(aux_n["singular"], dtype=bool)
+        self.finish(np.flatnonzero(sing), STATUS_SCREENED,
+                    "integration failed: the liquid head makes the acceleration undetermined (nozzle too large "
+                    "for the vessel's bore)")
+        acc &= live
+        # events on the accepted steps. An event that no design watches now (a vessel's events once every
+        # design has sealed it, guide exit once all are free) keeps its old values: a design starts watching
+        # an event only at a phase switch, where all its event values are evaluated afresh
+        acts = [acc & ev.active(j, modes, kin, self.desc, self.gpos, self.armed, self.due, self.slide)
+                for j in range(nev)]
+        gnew = [ev.value(j, sysa, t + hh, Yn, aux_n, due=self.due) if act.any() else self.gold[j]
+                for j, act in enumerate(acts)]
+        hit = []
+        cross_any = np.zeros(n, dtype=bool)
+        for j, (kind, direction, pl) in enumerate(ev.slots):
+            act = acts[j]
+            if gnew[j] is self.gold[j]:
+                hit.append(act)
+                continue
+            go, gn = self.gold[j], gnew[j]
+            if direction > 0:                 # rising through zero
+                cr = act & (go <= 0.0) & (gn >= 0.0)
+            elif direction < 0:               # falling through zero
+                cr = act & (go >= 0.0) & (gn <= 0.0)
+            else:
+                cr = act & (((go <= 0.0) & (gn >= 0.0)) | ((go >= 0.0) & (gn <= 0.0)))
+            hit.append(cr)
+            cross_any |= cr
+        evi = np.flatnonzero(cross_any)
+        theta_ev = np.full(n, np.inf)
+        if len(evi):
+            # dense-output coefficients (ns, 4, m): one 2-D pass over the gathered stages (a 3-D einsum was 3x slower)
+            Ke = K[:, :, evi]
+            Q = np.einsum("sp,sk->pk", DOPRI_P, Ke.reshape(7, -1)).reshape(4, self.ns, -1).transpose(1, 0, 2)
+            need = any(ev.own_system[j] and np.any(hit[j][evi]) for j in range(nev))
+            sub_e = sysa.subset(evi) if need else None
+            thetas = np.full((nev, len(evi)), np.inf)
+            for j in range(nev):
+                sel = np.flatnonzero(hit[j][evi])
+                if len(sel):
+                    rows = evi[sel]
+                    thetas[j, sel] = _locate(ev, j, sysa, sub_e, sel, rows, t, hh, Y, Q[:, :, sel],
+                                             modes, kin, self.slide, self.gold[j][rows], gnew[j][rows], self.due)
+            if not self.stop_at_apogee:
+                # apogee switches nothing in the dynamics: it is recorded where it falls inside the step (on the
+                # dense output, before any other event of the design in this step) and does not cut the step
+                ja = self.j_apogee
+                ta = thetas[ja].copy()
+                thetas[ja] = np.inf
+                passed = np.isfinite(ta) & (ta <= np.min(thetas, axis=0))
+                if passed.any():
+                    pr = evi[passed]
+                    self.desc[pr] = True
+                    self.apogee[pr] = _dense(Y[2:3, pr], hh[pr], Q[2:3, :, passed], ta[passed])[0]
+                keep = np.isfinite(np.min(thetas, axis=0))
+                if not keep.all():
+                    evi, thetas, Q = evi[keep], thetas[:, keep], Q[:, :, keep]
+                    if sub_e is not None:
+                        sub_e = sub_e.subset(np.flatnonzero(keep))
+        if len(evi):
+            if sub_e is None:
+                sub_e = sysa.subset(evi)
+            th_min = np.min(thetas, axis=0)
+            which = thetas == th_min[None, :]
+            theta_ev[evi] = th_min
+            Ye = _dense(Y[:, evi], hh[evi], Q, th_min)
+            te = t[evi] + th_min * hh[evi]
+            Fe, aux_e = sub_e.rhs(te, Ye, modes[:, evi], kin[evi], slide=self.slide[evi])  # the old phase there
+            self.calls += 1
+        cut = np.isfinite(theta_ev)
+        th_end = np.where(cut, theta_ev, 1.0)
+        if np.any(acc):
+            self.track(acc, th_end, Y, F, K, Yn, aux_n, hh, evi if len(evi) else None,
+                       (Ye, Fe, aux_e, Q) if len(evi) else None, sub_e if len(evi) else None)
+        # advance the accepted designs without an event: the new states become the state array (the old
+        # one is the next step's buffer) and the few other designs' columns are copied back
+        plain = acc & ~cut
+        stay = np.flatnonzero(~plain)
+        Yn[:, stay] = Y[:, stay]
+        K[6][:, stay] = F[:, stay]
+        self.Y, buf.Yn = Yn, Y
+        Y = Yn
+        np.copyto(F, K[6])
+        t += hh * plain
+        for j in range(nev):
+            if gnew[j] is not self.gold[j]:
+                gnew[j][stay] = self.gold[j][stay]
+        self.gold = gnew
+        # designs cut at an event: move to the event point and switch their phase
+        if len(evi):
+            t[evi] = te
+            Y[:, evi] = Ye
+            for j, (kind, direction, pl) in enumerate(ev.slots):
+                sel = which[j]
+                if not np.any(sel):
+                    continue
+                rows = evi[sel]
+                if kind == "comp":
+                    if pl[4] >= 0:
+                        modes[pl[2], rows] = pl[4]
+                    else:
+                        self.finish(rows, STATUS_OK, pl[5])
+                elif kind == "trigger":
+                    self.trigger_met(rows, pl[0])
+                elif kind == "due":
+                    self.act(rows, pl[0])
+                elif kind == "guide":
+                    kin[rows] = FREE
+                    self.exit_speed[rows] = np.sqrt(_rowsum(Y[3:6, rows] ** 2))
+                elif kind == "foot":           # slid back down the guide: at rest at its foot
+                    for c in range(3):
+                        Y[c, rows] = sysa.x0[c][rows]
+                    Y[3:6, rows] = 0.0
+                elif kind == "rest":
+                    Y[3:6, rows] = 0.0
+                    # it stays at rest only if friction holds it (friction following the speed, static at rest),
+                    # nothing pushes and no trigger still watches or waits
+                    a = self.accel_along(rows, np.zeros(len(rows)))
+                    held = (a == 0.0) & ~sysa.propulsive(modes[:, rows]) & ~self.waiting(rows)[1]
+                    self.finish(rows[held], STATUS_OK, "came to rest on the track" if self.parsed.launch.mount ==
+                                "track" else "came to rest on the launch guide")
+                elif kind == "apogee":
+                    self.desc[rows] = True
+                    self.apogee[rows] = Y[2, rows]
+                    if self.stop_at_apogee:
+                        self.finish(rows, STATUS_OK, "stopped at apogee")
+                else:
+                    self.impact_speed[rows] = np.sqrt(_rowsum(Y[3:6, rows] ** 2))
+                    self.finish(rows, STATUS_OK, "")
+            self.capture()
+            keep_e = live[evi]
+            cont = evi[keep_e]
+            if len(cont):
+                self.set_slide(cont)
+                sub = sub_e if np.all(keep_e) else sub_e.subset(np.flatnonzero(keep_e))
+                Fi, ai = sub.rhs(t[cont], Y[:, cont], modes[:, cont], kin[cont], slide=self.slide[cont])
+                self.calls += 1
+                F[:, cont] = Fi
+                # the acceleration jumps at a phase switch (off the guide, a vessel sealed): the new phase's
+                # first value counts toward the peak, as a single flight's segment start does
+                self.amax[cont] = np.maximum(self.amax[cont], np.broadcast_to(np.asarray(ai["accel"], dtype=float),
+                                                                              (len(cont),)))
+                gi = self.g_all(sub, t[cont], Y[:, cont], ai, cont)
+                for j in range(nev):
+                    self.gold[j][cont] = gi[j]
+                self.fire_at_once(cont)
+                self.phase_checks(cont)
+        over = live & (t >= self.t_end * (1 - 4 * _EPS))
+        self.finish(np.flatnonzero(over), STATUS_OK, "end time reached")
+        bad = live & ~np.all(np.isfinite(Y), axis=0)
+        self.finish(np.flatnonzero(bad), STATUS_SCREENED, "integration failed: the state is not finite")
+        self.h = np.where(acc | rej, h_next, self.h)
+        if len(evi) and len(cont):
+            # a phase switch starts the design afresh, as a single flight starts a new segment
+            self.h[cont] = self.initial_step(cont, sub)
+            self.rejected[cont] = False
+
+    def track(self, acc, th_end, Y, F, K, Yn, aux_n, hh, evi, event, sub_e) -> None:
+        """Running maxima (speed, acceleration, altitude, vessel pressure) and burn time over accepted steps.
+
+        Works on whole arrays (masks, not gathers): most designs are accepted at most steps.
+        """
+        sysa, n = self.sysa, self.n
+        v0x, v0y, v0z = Y[3], Y[4], Y[5]
+        a0x, a0y, a0z = F[3], F[4], F[5]
+        if evi is not None:
+            v1, a1 = Yn[3:6].copy(), K[6][3:6].copy()
+            an = np.broadcast_to(np.asarray(aux_n["accel"], dtype=float), (n,)).copy()
+            z1 = Yn[2].copy()
+            Ye, Fe, aux_e, _ = event
+            v1[:, evi] = Ye[3:6]
+            a1[:, evi] = Fe[3:6]
+            an[evi] = np.broadcast_to(np.asarray(aux_e["accel"], dtype=float), (len(evi),))
+            z1[evi] = Ye[2]
+        else:
+            v1, a1, an, z1 = Yn[3:6], K[6][3:6], np.asarray(aux_n["accel"], dtype=float), Yn[2]
+        v1x, v1y, v1z = v1
+        a1x, a1y, a1z = a1
+        np.maximum(self.vmax, np.sqrt(v1x * v1x + v1y * v1y + v1z * v1z), out=self.vmax, where=acc)
+        np.maximum(self.amax, an, out=self.amax, where=acc)
+        np.maximum(self.zmax, z1, out=self.zmax, where=acc)
+        # a height maximum inside the step (a hovering rig's bobbing after the first apogee): v_z goes from + to
+        # -; located on the dense output as the apogee event is
+        zin = acc & (v0z > 0.0) & (v1z < 0.0)
+        if np.any(zin):
+            rows = np.flatnonzero(zin)
+            q = np.einsum("sp,snm->pnm", DOPRI_P, K[:, 2:6:3, rows]).transpose(1, 0, 2)     # (z, v_z), 4, m
+            te_r, h_r, Y0 = th_end[rows], hh[rows], Y[2:6:3, rows]
+            phi = _illinois(lambda f: _dense(Y0[1:2], h_r, q[1:2], f * te_r)[0], v0z[rows], v1z[rows],
+                            self.t[rows], h_r)
+            self.zmax[rows] = np.maximum(self.zmax[rows], _dense(Y0[0:1], h_r, q[0:1], phi * te_r)[0])
+        # a speed maximum inside the step: v . a goes from + to -
+        inner = acc & (v0x * a0x + v0y * a0y + v0z * a0z > 0.0) & (v1x * a1x + v1y * a1y + v1z * a1z < 0.0)
+        # an acceleration maximum inside the step: the dense output's rate of |a| goes from + to -; the jerk
+        # times the step (its sign is all the test needs) at both ends of whole steps in one pass over the stages
+        kv = K[:, 3:6, :].reshape(7, 3 * n)           # a view: each stage's velocity rows are contiguous
+        jh = np.einsum("sp,sk->pk", _JERK_ENDS, kv).reshape(2, 3, n)
+        j0, j1 = jh[0], jh[1]
+        if evi is not None:          # steps cut at an event (the designs evi) end at theta < 1
+            Qe = event[3][3:6]       # their dense-output coefficients, velocity rows
+            tc = th_end[evi]
+            j1[:, evi] = 2.0 * Qe[:, 1] + 6.0 * Qe[:, 2] * tc + 12.0 * Qe[:, 3] * tc * tc
+        te = th_end
+        ainner = acc & (a0x * j0[0] + a0y * j0[1] + a0z * j0[2] > 0.0) & (a1x * j1[0] + a1y * j1[1] + a1z * j1[2] < 0.0)
+        if np.any(inner) or np.any(ainner):
+            rows = np.flatnonzero(inner | ainner)
+            q = np.einsum("sp,snm->pnm", DOPRI_P[:, 1:4], K[:, 3:6, rows])
+            Qv = np.empty((3, 4, len(rows)))
+            Qv[:, 0] = F[3:6, rows]
+            for c in range(3):
+                Qv[:, c + 1] = q[c]
+            if np.any(inner):
+                sel = np.flatnonzero(inner[rows])          # positions in rows (both sorted)
+                Qs, hv = Qv[:, :, sel], hh[rows[sel]]
+                # v(theta) = v0 + h (q0 theta + q1 theta^2 + q2 theta^3 + q3 theta^4)
+                C = np.concatenate([Y[3:6, rows[sel]][:, None, :], hv * Qs], axis=1)
+                best = _norm_max(C, te[rows[sel]])
+                self.vmax[rows[sel]] = np.maximum(self.vmax[rows[sel]], best)
+            if np.any(ainner):
+                sel = np.flatnonzero(ainner[rows])
+                # a(theta) = dv/dt = q0 + 2 q1 theta + 3 q2 theta^2 + 4 q3 theta^3
+                C = Qv[:, :, sel] * np.array([1.0, 2.0, 3.0, 4.0])[None, :, None]
+                best = _norm_max(C, te[rows[sel]])
+                self.amax[rows[sel]] = np.maximum(self.amax[rows[sel]], best)
+        prop = sysa.propulsive(self.modes)
+        np.add(self.burn, hh * te, out=self.burn, where=acc & prop)
+        if self.has_p and not sysa.frozen(self.modes):   # frozen vessels keep their pressure
+            pn = np.broadcast_to(sysa.pressures(Yn, self.modes), (n,)).copy()
+            if evi is not None:
+                pn[evi] = np.broadcast_to(sub_e.pressures(event[0], self.modes[:, evi]), (len(evi),))
+            np.maximum(self.peak_p, pn, out=self.peak_p, where=acc)
+
+
+def _table(out: dict[str, np.ndarray], outputs: Sequence[str]) -> np.ndarray:
+    return np.column_stack([out[k] for k in outputs]) if outputs else np.zeros((len(next(iter(out.values()))), 0))
+
+
+def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel: np.ndarray, rows: np.ndarray,
+            t: np.ndarray, h: np.ndarray, Y: np.ndarray, Q: np.ndarray, modes: np.ndarray, kin: np.ndarray,
+            slide: np.ndarray, ga: np.ndarray, gb: np.ndarray, due: np.ndarray) -> np.ndarray:
+    """Fraction of the step at which event ``j`` crosses zero, per design (vectorised Illinois iteration)."""
+    Y0, hh, t0 = Y[:, rows], h[rows], t[rows]
+    need = ev.needs_drive[j]
+    own = ev.own_system[j]
+    if own:
+        local = sub.subset(sel) if sub is not None and len(sel) != sub.n else sub
+        m_loc, k_loc = modes[:, rows], kin[rows]
+        ph_loc = local.phase(m_loc, k_loc, slide[rows])
+
+    kind = ev.slots[j][0]
+    if kind in ("apogee", "impact"):      # one state: only its row of the dense output
+        r = 5 if kind == "apogee" else 2
+        Y0r, Qr = Y0[r:r + 1], Q[r:r + 1]
+        return _illinois(lambda theta: _dense(Y0r, hh, Qr, theta)[0], ga, gb, t0, hh)
+
+    def g(theta):
+        yy = _dense(Y0, hh, Q, theta)
+        tt = t0 + theta * hh
+        if need:
+            drive = local.drives(tt, yy, ph_loc) if kind == "comp" else {}
+            return ev.value(j, local, tt, yy, {"drive": drive, "phase": ph_loc})
+        if own:
+            return ev.value(j, local, tt, yy, None)
+        return ev.value(j, sysa, tt, yy, None, rows, due)
+
+    return _illinois(g, ga, gb, t0, hh)
+
+
+def _illinois(g, ga: np.ndarray, gb: np.ndarray, t0: np.ndarray, hh: np.ndarray) -> np.ndarray:
+    """Vectorised Illinois (modified regula falsi) for the zero of ``g(theta)`` on [0, 1], per design; ``ga``,
+    ``gb`` its values at the ends; returns the later end of the final bracket (the post-crossing side)."""
+    a = np.zeros(len(ga))
+    b = np.ones(len(ga))
+    fa, fb = ga.astype(float).copy(), gb.astype(float).copy()
+    done = (fa == 0.0)
+    root = np.where(done, 0.0, np.where(fb == 0.0, 1.0, np.nan))
+    done |= fb == 0.0
+    tol = np.maximum(4 * _EPS * np.maximum(np.abs(t0), 1.0) / np.where(hh > 0, hh, 1.0), 1e-13)
+    for _ in range(80):
+        if np.all(done):
+            break
+        # the secant point; where fb = fa it is inf or nan, and the bracket test below sends it to the
+        # midpoint, as any point not strictly inside the bracket
+        with np.errstate(divide="ignore", invalid="ignore"):
+            c = b - fb * (b - a) / (fb - fa)
+        c = np.where((c > np.minimum(a, b)) & (c < np.maximum(a, b)), c, 0.5 * (a + b))
+        fc = g(c)
+        exact = (fc == 0.0) & ~done
+        if exact.any():
+            root = np.where(exact, c, root)
+            done |= exact
+        opp = np.sign(fc) != np.sign(fb)       # root between c and b
+        # Illinois: halve the retained end's value when the same end is kept twice
+        fa_new = np.where(opp, fb, fa * 0.5)
+        a_new = np.where(opp, b, a)
+        a, fa = np.where(done, a, a_new), np.where(done, fa, fa_new)
+        b, fb = np.where(done, b, c), np.where(done, fb, fc)
+        conv = ~done & (np.abs(b - a) <= tol)
+        # the event has happened at the end where g has its post-crossing sign: take the later end
+        root = np.where(conv, np.maximum(a, b), root)
+        done |= conv
+    root = np.where(np.isnan(root), np.maximum(a, b), root)
+    return root
