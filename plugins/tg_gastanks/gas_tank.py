@@ -29,7 +29,14 @@ Equation of state (``equation_of_state``):
 
 ``ideal``
     p = rho R T with gamma and the molar mass from the table in
-    :mod:`tg_gastanks.gases`; c_v = R / (gamma - 1).
+    :mod:`tg_gastanks.gases`; c_v = R / (gamma - 1). Or a gas of the user's
+    own, given by ``gamma``, ``molar_mass`` and optionally a constant
+    ``compressibility_factor`` Z instead of a ``gas`` name: then
+    p = Z rho R T with R = R_u / M, i.e. an ideal gas whose gas constant is
+    Z R (c_v = Z R / (gamma - 1); the nozzle receives gamma and Z R). A
+    constant Z is a crude correction: a real gas's Z changes as the tank
+    blows down (nitrogen from 1.057 at 200 bar, 300 K toward 1); use
+    ``coolprop`` to follow it.
 ``coolprop``
     the fluid's reference equation of state through CoolProp, evaluated at
     (rho, T) (explicit in the Helmholtz energy: no iteration): p, h, u, c_v,
@@ -118,8 +125,15 @@ class GasTank(ComponentKind):
     summary = "rigid tank of compressed gas: ideal-gas table or CoolProp, with optional wall heat transfer"
     parameters = (
         Quantity("volume", "L", low=0.0, low_open=True, high=1e6, doc="internal volume of the tank"),
-        FluidName("gas", default="nitrogen",
-                  doc=f"the gas: one of {', '.join(IDEAL_GASES)}, or (with CoolProp) any fluid it knows"),
+        FluidName("gas", default="absent",
+                  doc=f"the gas: one of {', '.join(IDEAL_GASES)}, or (with CoolProp) any fluid it knows; nitrogen "
+                      "when neither gas nor gamma is given"),
+        Number("gamma", default="absent", low=1.0, low_open=True, high=1.7,
+               doc="ratio of specific heats of a gas of your own (ideal gas; give molar_mass too, and no gas name)"),
+        Quantity("molar_mass", "g/mol", default="absent", low=0.0, low_open=True, high=1000.0,
+                 doc="molar mass of a gas of your own (with gamma)"),
+        Number("compressibility_factor", default="absent", low=0.0, low_open=True, high=10.0,
+               doc="constant compressibility factor Z of a gas of your own: p = Z rho R T (default 1)"),
         Choice("equation_of_state", options=("ideal", "coolprop"), default="ideal",
                doc="ideal: perfect gas from the built-in table; coolprop: the fluid's reference equation of state"),
         Quantity("gauge_pressure", "bar", low=0.0, high=10_000.0, reference="gauge", doc="charge pressure above ambient at launch"),
@@ -139,8 +153,9 @@ class GasTank(ComponentKind):
     # --- validation -----------------------------------------------------------
     @classmethod
     def check(cls, p, where):
+        _check_own_gas(p, where)
         if p.equation_of_state == "ideal":
-            if lookup_gas(p.gas) is None:
+            if p.gamma is None and lookup_gas(_gas_name(p)) is None:
                 raise ModelError(f"{where}.gas", f"the built-in ideal-gas table has no gas {p.gas!r}",
                                  f"choose one of {', '.join(IDEAL_GASES)}, or set equation_of_state = "
                                  "\"coolprop\" to use any fluid CoolProp knows")
@@ -148,7 +163,7 @@ class GasTank(ComponentKind):
             device = f"the real-gas tank {where.rsplit('.', 1)[-1]!r}"
             require_coolprop(f"{where}.equation_of_state", device,
                              "set equation_of_state = \"ideal\" to use the built-in gas table")
-            fluid = resolve_fluid(p.gas, where=f"{where}.gas", device=device)
+            fluid = resolve_fluid(_gas_name(p), where=f"{where}.gas", device=device)
             problem = _charge_problem(p, fluid, _STANDARD_PRESSURE)
             if problem:
                 raise ModelError(f"{where}.gauge_pressure", problem, "use a self-pressurising-tank for a "
@@ -189,9 +204,9 @@ class GasTank(ComponentKind):
         p0 = amb.pressure + p.gauge_pressure
         T0 = p.temperature
         if p.equation_of_state == "ideal":
-            R = lookup_gas(p.gas).gas_constant
-            return (p0 * p.volume / (R * T0), T0)
-        fluid = resolve_fluid(p.gas, where="gas", device="the real-gas tank")
+            R_eff = _ideal_gas(p)[0]
+            return (p0 * p.volume / (R_eff * T0), T0)
+        fluid = resolve_fluid(_gas_name(p), where="gas", device="the real-gas tank")
         st = new_state(fluid)
         PT = _inputs("PT")
 
@@ -227,8 +242,7 @@ class GasTank(ComponentKind):
         m_floor = 1e-12 * m0
 
         if p.equation_of_state == "ideal":
-            gas = lookup_gas(p.gas)
-            R, g = gas.gas_constant, gas.gamma
+            R, g, Z = _ideal_gas(p)          # R is Z R_u / M: p = rho R T
             cv = R / (g - 1.0)
 
             def state(s):
@@ -246,13 +260,13 @@ class GasTank(ComponentKind):
                 return (-mdot * R * T + hA * (Tw - T)) / (m * cv)
 
             def compressibility(s):
-                return 1.0
+                return Z
             outlet_state = state
             events_extra: tuple[EventSpec, ...] = ()
         else:
             import CoolProp
 
-            fluid = resolve_fluid(p.gas, where="gas", device="the real-gas tank")
+            fluid = resolve_fluid(_gas_name(p), where="gas", device="the real-gas tank")
             st = new_state(fluid)
             st.specify_phase(CoolProp.iphase_gas)      # evaluate the gas branch at (rho, T): no flash
             DT = CoolProp.DmassT_INPUTS
@@ -336,6 +350,43 @@ class GasTank(ComponentKind):
 
         events = (EventSpec("gas exhausted", lambda t, s, drive: drive, -1.0, ("gas",), "sealed"),) + events_extra
         return VolumeFns(mass=mass, outlet=outlet, derivs=derivs, signals=signals, events=events)
+
+
+def _gas_name(p: Any) -> str:
+    """The named gas of a tank: ``gas``, or nitrogen when neither a name nor gamma is given."""
+    return p.gas if p.gas is not None else "nitrogen"
+
+
+def _ideal_gas(p: Any) -> tuple[Any, Any, Any]:
+    """(Z R, gamma, Z) of an ideal-gas tank: from the table row of its named gas (Z = 1), or its own gamma, molar
+    mass and compressibility factor (floats, or arrays over designs)."""
+    if p.gamma is not None:
+        Z = 1.0 if p.compressibility_factor is None else p.compressibility_factor
+        return Z * UNIVERSAL_GAS_CONSTANT / p.molar_mass, p.gamma, Z
+    row = lookup_gas(_gas_name(p))
+    return row.gas_constant, row.gamma, 1.0
+
+
+def _check_own_gas(p: Any, where: str) -> None:
+    """A gas of the user's own: gamma and molar mass together, no gas name beside them, ideal gas only."""
+    own = {k: getattr(p, k) for k in ("gamma", "molar_mass", "compressibility_factor") if getattr(p, k) is not None}
+    if not own:
+        return
+    given = " and ".join(own)
+    if p.gas is not None:
+        raise ModelError(f"{where}.gas", f"the tank names the gas {p.gas!r} and also gives {given} of a gas of "
+                         "its own: one gas only", f"remove gas = \"{p.gas}\" to use your own gas, or remove "
+                         f"{given} to use {p.gas}")
+    for k, what in (("gamma", "its ratio of specific heats, e.g. gamma = 1.4"),
+                    ("molar_mass", "its molar mass, e.g. molar_mass = \"28.0 g/mol\"")):
+        if getattr(p, k) is None:
+            raise ModelError(f"{where}.{k}", f"a gas of your own given by {given} needs {k} too",
+                             f"give {what}, or name a gas instead (gas = \"nitrogen\")")
+    if p.equation_of_state != "ideal":
+        raise ModelError(f"{where}.equation_of_state", "a gas given by gamma and molar mass is an ideal gas "
+                         f"(p = Z rho R T); equation_of_state = {p.equation_of_state!r} needs a named fluid",
+                         "set equation_of_state = \"ideal\", or name the fluid (gas = \"nitrogen\") and remove "
+                         f"{', '.join(own)}")
 
 
 def _ops_for(*values: Any) -> Any:
