@@ -59,6 +59,11 @@ Equation of state (``equation_of_state``):
     exponent approximation of the real-gas nozzle flow, not a real-gas nozzle
     solution.
 
+    ``properties = "table"`` (the default) takes all of these from a table
+    built from CoolProp once per fluid and range and kept on disk
+    (:mod:`tg_gastanks.gastable`; errors measured and stated there and in
+    docs/fluid-devices.md); ``"direct"`` calls CoolProp at every evaluation.
+
 Wall heat transfer: a constant film coefficient h_w over the wall area A_w
 to a wall at T_w (default: the charge temperature). Only with ``adiabatic``
 (it is the heat term of the energy equation).
@@ -102,6 +107,7 @@ from tg_vessels import PRESSURE_CAUTIONS
 from .cold import COLD_OUTCOMES, cold_cautions, cold_summary
 from .fluids import FluidName, expansion_exponent, new_state, require_coolprop, resolve_fluid, wall_heat_specs
 from .gases import IDEAL_GASES, UNIVERSAL_GAS_CONSTANT, lookup_gas
+from .gastable import GasPropertyTable, gas_table
 
 __all__ = ["GasTank", "GAS_CYLINDER_CAUTIONS"]
 
@@ -136,6 +142,9 @@ class GasTank(ComponentKind):
                doc="constant compressibility factor Z of a gas of your own: p = Z rho R T (default 1)"),
         Choice("equation_of_state", options=("ideal", "coolprop"), default="ideal",
                doc="ideal: perfect gas from the built-in table; coolprop: the fluid's reference equation of state"),
+        Choice("properties", options=("table", "direct"), default="table",
+               doc="with coolprop: table = properties tabulated from CoolProp once per fluid and range (kept on "
+                   "disk; errors measured in docs/fluid-devices.md), direct = CoolProp at every evaluation"),
         Quantity("gauge_pressure", "bar", low=0.0, high=10_000.0, reference="gauge", doc="charge pressure above ambient at launch"),
         Quantity("temperature", "K", default="293.15 K", low=1.0, high=5000.0,
                  doc="gas temperature at launch"),
@@ -161,10 +170,15 @@ class GasTank(ComponentKind):
                                  "\"coolprop\" to use any fluid CoolProp knows")
         else:
             device = f"the real-gas tank {where.rsplit('.', 1)[-1]!r}"
-            require_coolprop(f"{where}.equation_of_state", device,
-                             "set equation_of_state = \"ideal\" to use the built-in gas table")
-            fluid = resolve_fluid(_gas_name(p), where=f"{where}.gas", device=device)
-            problem = _charge_problem(p, fluid, _STANDARD_PRESSURE)
+            if p.properties == "table":
+                fluid, _R = _fluid_of(p, where, device)
+                problem = _table_charge_problem(_property_table(p, where, device, _STANDARD_PRESSURE), fluid,
+                                                _STANDARD_PRESSURE + p.gauge_pressure, p.temperature)
+            else:
+                require_coolprop(f"{where}.equation_of_state", device,
+                                 "set equation_of_state = \"ideal\" to use the built-in gas table")
+                fluid = resolve_fluid(_gas_name(p), where=f"{where}.gas", device=device)
+                problem = _charge_problem(p, fluid, _STANDARD_PRESSURE)
             if problem:
                 raise ModelError(f"{where}.gauge_pressure", problem, "use a self-pressurising-tank for a "
                                  "liquefied gas, or raise the temperature or lower the pressure")
@@ -206,6 +220,14 @@ class GasTank(ComponentKind):
         if p.equation_of_state == "ideal":
             R_eff = _ideal_gas(p)[0]
             return (p0 * p.volume / (R_eff * T0), T0)
+        if p.properties == "table":
+            table = _property_table(p, "gas-tank", "the real-gas tank", amb.pressure)
+            for p_k, T_k in np.broadcast(p0, T0):           # each design's charge
+                problem = _table_charge_problem(table, table.fluid, float(p_k), float(T_k))
+                if problem:
+                    raise ModelError("gas-tank.gauge_pressure", problem, "use a self-pressurising-tank for a "
+                                     "liquefied gas, or raise the temperature or lower the pressure")
+            return (table.density(p0, T0, _ops_for(p0, T0)) * p.volume, T0)
         fluid = resolve_fluid(_gas_name(p), where="gas", device="the real-gas tank")
         st = new_state(fluid)
         PT = _inputs("PT")
@@ -263,6 +285,42 @@ class GasTank(ComponentKind):
                 return Z
             outlet_state = state
             events_extra: tuple[EventSpec, ...] = ()
+        elif p.properties == "table":
+            table = _property_table(p, "gas-tank", "the real-gas tank", amb.pressure)
+            Rs, t_min = table.gas_constant, table.T_floor
+            pc, Tc = table.p_critical, table.T_critical
+
+            def gas_point(s):
+                m = ops.maximum(s[i], m_floor)
+                T = ops.maximum(s[i + 1], t_min)
+                return (m, T, m / V) + table.props(m / V, T, ops)
+
+            def state(s):
+                m, T, rho, pg, kappa, _n, _w, _cv = gas_point(s)
+                return m, T, rho, pg, kappa, pg / (rho * T)
+
+            def outlet_state(s):
+                m, T, rho, pg, _kappa, n_exp, _w, _cv = gas_point(s)
+                return m, T, rho, pg, n_exp, pg / (rho * T)
+
+            def temperature_rate(s, mdot):
+                if process == "isothermal":
+                    return 0.0 * mdot
+                m, T, rho, _pg, _kappa, _n, work, cv = gas_point(s)
+                return (-mdot * work + hA * (Tw - T)) / (m * cv)
+
+            def compressibility(s):
+                m, T, rho, pg, _k, _R = state(s)
+                return pg / (rho * Rs * T)
+
+            def dew_margin(t, s, drive):
+                m, T, rho, pg, _k, _R = state(s)
+                above = pg >= pc
+                return ops.where(above, s[i + 1] - Tc,
+                                 s[i + 1] - table.dew_temperature(ops.where(above, 0.5 * pc, pg), ops))
+
+            events_extra = (EventSpec("dew point reached (condensation: outside the gas-tank model)", dew_margin,
+                                      -1.0, ("gas", "sealed"), None, needs_drive=False),)
         else:
             import CoolProp
 
@@ -350,6 +408,65 @@ class GasTank(ComponentKind):
 
         events = (EventSpec("gas exhausted", lambda t, s, drive: drive, -1.0, ("gas",), "sealed"),) + events_extra
         return VolumeFns(mass=mass, outlet=outlet, derivs=derivs, signals=signals, events=events)
+
+
+def ops_max(x: Any) -> float:
+    """The largest value of a parameter over designs (itself for a float)."""
+    return float(np.max(x))
+
+
+def ops_min(x: Any) -> float:
+    """The smallest value of a parameter over designs (itself for a float)."""
+    return float(np.min(x))
+
+
+def _fluid_of(p: Any, where: str, device: str) -> tuple[str, float]:
+    """(CoolProp name, specific gas constant) of a real-gas tank's fluid: from the built-in table for its gases
+    (no CoolProp needed), else from CoolProp."""
+    row = lookup_gas(_gas_name(p))
+    if row is not None:
+        return row.coolprop, row.gas_constant
+    require_coolprop(f"{where}.equation_of_state", device,
+                     "set equation_of_state = \"ideal\" to use the built-in gas table")
+    fluid = resolve_fluid(_gas_name(p), where=f"{where}.gas", device=device)
+    return fluid, UNIVERSAL_GAS_CONSTANT / new_state(fluid).molar_mass()
+
+
+def _property_table(p: Any, where: str, device: str, p_amb: Any) -> GasPropertyTable:
+    """The property table covering every design's charge: density up to the largest charge density (found on
+    the table itself; a larger table is taken when the first guess, the ideal gas's density, falls short),
+    temperature up to the largest of the charge and wall temperatures."""
+    fluid, R = _fluid_of(p, where, device)
+    p0 = ops_max(p_amb + p.gauge_pressure)
+    T_hi = max(ops_max(p.temperature), ops_max(p.wall_temperature))
+    T0 = ops_min(p.temperature)
+
+    def missing() -> None:
+        require_coolprop(f"{where}.equation_of_state", device, "set equation_of_state = \"ideal\" to use the "
+                         "built-in gas table, or run once where CoolProp is installed to store the table")
+
+    rho = p0 / (R * T0)
+    for _ in range(4):
+        table = gas_table(fluid, rho, T_hi, before_build=missing)
+        if _table_charge_problem(table, fluid, p0, T0):
+            return table                    # the caller reports the charge problem
+        rho = float(table.density(p0, T0, scalar_ops))
+        if rho * 1.05 <= table.rho_hi:
+            return table
+    return table
+
+
+def _table_charge_problem(table: GasPropertyTable, fluid: str, p0: float, T0: float) -> str:
+    """Why ``fluid`` at (p0, T0) is not a gas (empty when it is), from the table's critical point and dew line."""
+    if T0 >= table.T_critical:
+        return ""
+    where = f"at {p0 / 1e5:.4g} bar and {T0:.5g} K {fluid}"
+    if p0 >= table.p_critical:
+        return f"{where} is a dense liquid-like fluid (below its critical temperature, {table.T_critical:.5g} K)"
+    p_sat = table.saturation_pressure(T0)
+    if p0 >= p_sat:
+        return f"{where} is at or above its saturation pressure ({p_sat / 1e5:.4g} bar): it is a liquid, not a gas"
+    return ""
 
 
 def _gas_name(p: Any) -> str:
