@@ -18,7 +18,8 @@ sqrt(rho) (fine at low density, where a blowdown ends) and in T with fixed steps
 
 * ``Z = p/(rho R T)``, ``kappa = rho a^2 / p``,
 * ``n``, the expansion exponent (:func:`tg_gastanks.fluids.expansion_exponent`),
-* ``(h - u - rho (du/drho)_T) / (R T)`` and ``c_v / R`` (the energy equation),
+* ``(h - u - rho (du/drho)_T) / (R T)`` and ``c_v / R`` (the energy equation), and ``u / (R T)`` (the
+  self-pressurising tank's vapour),
 
 with R = R_u/M of the fluid; bicubic Hermite patches (:class:`tg_gastanks.tables.CubicTable2D`) interpolate them.
 The dew line, ln p_sat against T from the triple point to the critical point (CoolProp PQ flashes), is a table
@@ -59,10 +60,10 @@ from .gases import UNIVERSAL_GAS_CONSTANT
 from .tables import CubicTable2D
 
 __all__ = ["GasPropertyTable", "gas_table", "build_gas_table", "cache_key", "cache_folder", "rounded_range",
-           "coolprop_version", "TABLE_FORMAT", "GRID"]
+           "coolprop_version", "cached", "TABLE_FORMAT", "GRID"]
 
 #: Bumped whenever what a table file holds or how it is built changes.
-TABLE_FORMAT = 1
+TABLE_FORMAT = 2
 #: Grid steps in sqrt(rho) ((kg/m^3)^0.5) and in T (K): the same for every range, so that the tables of two
 #: ranges of one fluid share their nodes and, away from their edges, their patches (an ensemble's table, over
 #: every design's range, gives each design the numbers of its own single flight). The measured errors in
@@ -123,9 +124,16 @@ class GasPropertyTable:
 
     def props(self, rho: Any, T: Any, ops: Any) -> tuple[Any, Any, Any, Any, Any]:
         """(p, rho a^2/p, expansion exponent n, h - u - rho (du/drho)_T, c_v) at (rho, T): floats or arrays."""
-        Z, kappa, n, work, cv = self.single(ops.sqrt(rho), T, ops)
+        Z, kappa, n, work, cv, _u = self.single(ops.sqrt(rho), T, ops)
         RT = self.gas_constant * T
         return Z * rho * RT, kappa, n, work * RT, cv * self.gas_constant
+
+    def vapour(self, rho: float, T: float) -> tuple[float, float, float, float, float, float]:
+        """One point's (p, rho a^2/p, n, h - u - rho (du/drho)_T, c_v, u) (floats; the self-pressurising tank's
+        superheated vapour)."""
+        Z, kappa, n, work, cv, u = self.single.at(math.sqrt(rho), T)
+        RT = self.gas_constant * T
+        return Z * rho * RT, kappa, n, work * RT, cv * self.gas_constant, u * RT
 
     def dew_temperature(self, p: Any, ops: Any) -> Any:
         """The dew-point temperature at pressure p (below the critical pressure)."""
@@ -181,7 +189,31 @@ class GasPropertyTable:
             return None
 
 
-_MEMORY: dict[str, GasPropertyTable] = {}
+_MEMORY: dict[str, Any] = {}
+
+
+def cached(kind: str, fluid: str, key: dict, build: Any, load: Any, before_build: Any = None) -> Any:
+    """A table by its key: from memory, else from the disk cache (``load(path, key)``, None when the file is
+    missing, unreadable or of another key), else ``build()`` (after ``before_build()``) and stored."""
+    name = hashlib.sha256(json.dumps(key, sort_keys=True).encode()).hexdigest()[:24]
+    table = _MEMORY.get(name)
+    if table is not None:
+        return table
+    folder = cache_folder()
+    path = folder / f"{kind}-{fluid}-{name}.npz" if folder is not None else None
+    if path is not None and path.exists():
+        table = load(path, key)
+    if table is None:
+        if before_build is not None:
+            before_build()          # e.g. refuse clearly when CoolProp cannot be imported
+        table = build()
+        if path is not None:
+            try:
+                table.save(path)
+            except OSError:
+                pass                # a folder we cannot write: the table is rebuilt next time
+    _MEMORY[name] = table
+    return table
 
 
 def gas_table(fluid: str, rho_hi: float, T_hi: float, *, before_build: Any = None) -> GasPropertyTable:
@@ -192,26 +224,9 @@ def gas_table(fluid: str, rho_hi: float, T_hi: float, *, before_build: Any = Non
     rho_top, T_top = rounded_range(rho_hi, T_hi)
     version = coolprop_version()
     probe = cache_key(fluid, rho_top, 0.0, T_top, version)
-    name = hashlib.sha256(json.dumps({k: v for k, v in probe.items() if k != "T_lo"}, sort_keys=True)
-                          .encode()).hexdigest()[:24]
-    table = _MEMORY.get(name)
-    if table is not None:
-        return table
-    folder = cache_folder()
-    path = folder / f"gas-{fluid}-{name}.npz" if folder is not None else None
-    if path is not None and path.exists():
-        table = _load_matching(path, probe)
-    if table is None:
-        if before_build is not None:
-            before_build()          # e.g. refuse clearly when CoolProp cannot be imported
-        table = build_gas_table(fluid, rho_top, T_top, version)
-        if path is not None:
-            try:
-                table.save(path)
-            except OSError:
-                pass                # a folder we cannot write: the table is rebuilt next time
-    _MEMORY[name] = table
-    return table
+    probe.pop("T_lo")               # the fluid's own (its triple point): stored in the file's key
+    return cached("gas", fluid, probe, lambda: build_gas_table(fluid, rho_top, T_top, version),
+                  lambda path, key: _load_matching(path, key), before_build)
 
 
 def _load_matching(path: Path, probe: dict) -> GasPropertyTable | None:
@@ -221,7 +236,7 @@ def _load_matching(path: Path, probe: dict) -> GasPropertyTable | None:
             key = json.loads(str(z["meta"]))["key"]
     except (OSError, ValueError, KeyError, json.JSONDecodeError):
         return None
-    if {k: v for k, v in key.items() if k != "T_lo"} != {k: v for k, v in probe.items() if k != "T_lo"}:
+    if {k: v for k, v in key.items() if k != "T_lo"} != probe:
         return None
     return GasPropertyTable.load(path, key)
 
@@ -245,7 +260,7 @@ def build_gas_table(fluid: str, rho_hi: float, T_hi: float, version: str | None 
     nT = math.ceil((T_hi - T_lo) / hT) + 1 + PAD
     s_nodes = hs * np.arange(ns)
     T_nodes = T_lo + hT * np.arange(nT)
-    values = np.full((5, ns, nT), np.nan)
+    values = np.full((6, ns, nT), np.nan)
     for a, s in enumerate(s_nodes):
         rho = max(s * s, RHO_TINY)
         for b, T in enumerate(T_nodes):
@@ -255,7 +270,8 @@ def build_gas_table(fluid: str, rho_hi: float, T_hi: float, version: str | None 
                 kappa = rho * st.speed_sound() ** 2 / p
                 n = expansion_exponent(expander, p, rho, st.smass(), kappa)
                 work = st.hmass() - st.umass() - rho * st.first_partial_deriv(iU, iD, iT)
-                values[:, a, b] = (p / (rho * R * T), kappa, n, work / (R * T), st.cvmass() / R)
+                values[:, a, b] = (p / (rho * R * T), kappa, n, work / (R * T), st.cvmass() / R,
+                                   st.umass() / (R * T))
             except ValueError:
                 pass                # inside the two-phase dome, far from any gas state: filled below
     _fill_from_above(values)

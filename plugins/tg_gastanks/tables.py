@@ -36,7 +36,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["CubicTable2D", "node_derivative"]
+__all__ = ["CubicTable1D", "CubicTable2D", "node_derivative"]
 
 #: Hermite basis: p(t) = [1 t t^2 t^3] M [f(0) f(1) f'(0) f'(1)]^T.
 _M = np.array([[1.0, 0.0, 0.0, 0.0], [0.0, 0.0, 1.0, 0.0], [-3.0, 3.0, -2.0, -1.0], [2.0, -2.0, 1.0, 1.0]])
@@ -122,6 +122,59 @@ class CubicTable2D:
         c = self.coef[i * (m - 1) + j]                                   # (..., nq, 4, 4)
         return _combine(c, np.stack([u * 0.0 + 1.0, u, u * u, u * u * u], axis=-1),
                         np.stack([v * 0.0 + 1.0, v, v * v, v * v * v], axis=-1))
+
+
+@dataclass(frozen=True)
+class CubicTable1D:
+    """Cubic Hermite pieces of ``nq`` quantities over a uniform grid ``x`` (n nodes), node derivatives as in
+    :class:`CubicTable2D`; ``coef`` has the shape (n - 1, nq, 4) (powers of u = (x - x_i)/h).
+
+    >>> from thrustgraph.base.xp import array_ops, scalar_ops
+    >>> x = np.linspace(0.0, 1.0, 41)
+    >>> t = CubicTable1D.from_nodes(x, np.stack([np.exp(x), x ** 3]))
+    >>> [round(v, 8) for v in t(0.31, scalar_ops)], round(math.exp(0.31), 8)
+    ([1.36342511, 0.029791], 1.36342511)
+    >>> [a.round(6).tolist() for a in t(np.array([0.31, 1.0]), array_ops)]
+    [[1.363425, 2.718282], [0.029791, 1.0]]
+    """
+
+    x: np.ndarray
+    coef: np.ndarray
+    values: np.ndarray | None = None
+
+    @classmethod
+    def from_nodes(cls, x: np.ndarray, values: np.ndarray) -> "CubicTable1D":
+        """The table through ``values`` of shape (nq, n) at the nodes of the uniform grid ``x``."""
+        f = np.asarray(values, dtype=float)
+        d = node_derivative(f, 1)
+        F = np.stack([f[:, :-1], f[:, 1:], d[:, :-1], d[:, 1:]], -1)       # (nq, n-1, 4)
+        C = np.einsum("ab,qib->iqa", _M, F)
+        return cls(np.asarray(x, dtype=float), np.ascontiguousarray(C), f)
+
+    def __call__(self, x: Any, ops: Any) -> tuple[Any, ...]:
+        """The quantities at x: floats through ``ops.each`` (as :meth:`CubicTable2D.__call__`) or arrays."""
+        if ops.arrays:
+            return tuple(np.moveaxis(self.pieces(np.asarray(x, dtype=float)), -1, 0))
+        return ops.each(self.at, x, outputs=self.coef.shape[1])
+
+    def at(self, x: float) -> tuple[float, ...]:
+        """The quantities at one point (floats)."""
+        xs = self.x
+        h = xs[1] - xs[0]
+        a = (x - xs[0]) / h
+        i = math.floor(a)
+        i = 0 if i < 0 else (len(xs) - 2 if i > len(xs) - 2 else i)
+        u = a - i
+        return tuple(np.matmul(self.coef[i], np.array((1.0, u, u * u, u * u * u))).tolist())
+
+    def pieces(self, x: Any) -> np.ndarray:
+        """The piece values at an array of points: shape (..., nq)."""
+        xs = self.x
+        h = xs[1] - xs[0]
+        a = (x - xs[0]) / h
+        i = np.clip(np.floor(a).astype(int), 0, len(xs) - 2)
+        u = a - i
+        return np.matmul(self.coef[i], np.stack([u * 0.0 + 1.0, u, u * u, u * u * u], axis=-1)[..., None])[..., 0]
 
 
 def _combine(c: np.ndarray, bu: np.ndarray, bv: np.ndarray) -> np.ndarray:
