@@ -74,7 +74,7 @@ class System(Protocol):
 
 __all__ = ["OutcomeSpec", "OUTCOMES", "G0", "Flight", "summarise", "run_summary", "output_names",
            "default_outputs", "check_outputs", "outcome", "kind_outcomes", "check_kind_outcomes", "markdown_table",
-           "outputs_by_vehicle", "HOVER_WINDOW",
+           "outputs_by_vehicle", "HOVER_WINDOW", "quadrature_nodes",
            "STATUS_OK", "STATUS_SCREENED", "STATUS_NOT_RUN"]
 
 #: Standard gravity, m/s^2 (exact by definition; CGPM 1901): the g0 of specific impulse and of accelerations
@@ -117,6 +117,23 @@ def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: f
     return max(best, -float(res.fun))
 
 
+def quadrature_nodes(ph: Any, sol: Any, bal: Any) -> tuple[np.ndarray, np.ndarray] | None:
+    """(nodes, half step widths) of the 3-point Gauss-Legendre quadrature of the impulse on a segment's steps
+    (three nodes a step, in step order), or None for a segment the impulse leaves out (not powered, no dense
+    output, no step of positive length)."""
+    if not _propulsive(bal.system, ph.modes) and not bal.system.jets:
+        return None
+    if getattr(sol, "sol", None) is None:
+        return None
+    t = np.asarray(sol.t, dtype=float)
+    a, b = t[:-1], t[1:]
+    keep = b > a
+    if not keep.any():
+        return None
+    mid, half = 0.5 * (a[keep] + b[keep]), 0.5 * (b[keep] - a[keep])
+    return (mid[:, None] + half[:, None] * _GAUSS_X[None, :]).ravel(), half
+
+
 class Flight:
     """The integrated solution of one flight, as the outcome functions read it.
 
@@ -126,7 +143,8 @@ class Flight:
     outcome may use another (specific impulse uses the total impulse).
     """
 
-    def __init__(self, system: System, segs: Any, step_terms: Mapping[int, Any] | None = None) -> None:
+    def __init__(self, system: System, segs: Any, step_terms: Mapping[int, Any] | None = None,
+                 node_terms: Mapping[int, Any] | None = None) -> None:
         self.system = system
         self.segments = list(segs.segments)
         self.events = list(segs.events)
@@ -137,6 +155,8 @@ class Flight:
         # the terms at each segment's steps where the caller has them already (a run's samples hold the steps)
         for j, snap in (step_terms or {}).items():
             self._at_steps[(id(self.segments[j][1]), "terms")] = snap
+        # ... and at the quadrature nodes of the impulse (see quadrature_nodes)
+        self._node_terms: Mapping[int, Any] = node_terms or {}
 
     def at_steps(self, sol: Any, bal: Any, want: str) -> Any:
         """:func:`~thrustgraph.balance.sampling.at_samples` at a segment's steps, once per segment and request
@@ -239,21 +259,16 @@ class Flight:
         Gauss-Legendre quadrature on the dense output. Both read the balance's own sums
         (:meth:`~thrustgraph.balance.balance.Balance.terms`: ``thrust`` and ``inflow``)."""
         gross = net = 0.0
-        for ph, sol, bal in self.phased():
-            if not _propulsive(bal.system, ph.modes) and not bal.system.jets:
+        for j, (ph, sol, bal) in enumerate(self.phased()):
+            quad = quadrature_nodes(ph, sol, bal)
+            if quad is None:
                 continue
-            if getattr(sol, "sol", None) is None:
-                continue
-            t = np.asarray(sol.t, dtype=float)
-            a, b = t[:-1], t[1:]
-            keep = b > a
-            if not keep.any():
-                continue
-            mid, half = 0.5 * (a[keep] + b[keep]), 0.5 * (b[keep] - a[keep])
-            nodes = (mid[:, None] + half[:, None] * _GAUSS_X[None, :]).ravel()
-            ys = dense_states(sol, nodes)
+            nodes, half = quad
             n = len(nodes)
-            snap = at_samples(bal, nodes, ys, "terms")
+            snap = self._node_terms.get(j)
+            if snap is None:
+                ys = dense_states(sol, nodes)
+                snap = at_samples(bal, nodes, ys, "terms")
             if snap is not None:
                 tv = [np.asarray(c, dtype=float) + np.zeros(n) for c in snap["thrust"]]
                 nv = [np.asarray(c, dtype=float) + np.zeros(n) for c in snap["inflow"]]
@@ -766,12 +781,14 @@ def summarise(system: System, segs: Any, outputs: Sequence[str] | None = None) -
     return {k: flight.value(k) for k in OUTCOMES if k in want}
 
 
-def run_summary(system: System, segs: Any, step_terms: Mapping[int, Any] | None = None) -> dict[str, float]:
+def run_summary(system: System, segs: Any, step_terms: Mapping[int, Any] | None = None,
+                node_terms: Mapping[int, Any] | None = None) -> dict[str, float]:
     """The summary of a single run: every core outcome that applies to the vehicle and happened (finite).
 
-    ``step_terms``: segment index -> the :meth:`~thrustgraph.balance.balance.Balance.terms` snapshot at its
-    steps, where the caller evaluated them already (a run's output samples include the solver's steps)."""
-    flight = Flight(system, segs, step_terms)
+    ``step_terms`` and ``node_terms``: segment index -> the :meth:`~thrustgraph.balance.balance.Balance.terms`
+    snapshot at its steps and at its :func:`quadrature_nodes`, where the caller evaluated them already (a run
+    evaluates them in the same pass as its output samples)."""
+    flight = Flight(system, segs, step_terms, node_terms)
     out = {}
     for k, spec in OUTCOMES.items():
         if spec.applies(flight.profile):
