@@ -107,7 +107,7 @@ from tg_vessels import PRESSURE_CAUTIONS
 from .cold import COLD_OUTCOMES, cold_cautions, cold_summary
 from .fluids import FluidName, expansion_exponent, new_state, require_coolprop, resolve_fluid, wall_heat_specs
 from .gases import IDEAL_GASES, UNIVERSAL_GAS_CONSTANT, lookup_gas
-from .gastable import GasPropertyTable, gas_table
+from .gastable import GasPropertyTable, gas_table, largest
 
 __all__ = ["GasTank", "GAS_CYLINDER_CAUTIONS"]
 
@@ -309,18 +309,8 @@ class GasTank(ComponentKind):
                 m, T, rho, _pg, _kappa, _n, work, cv = gas_point(s)
                 return (-mdot * work + hA * (Tw - T)) / (m * cv)
 
-            def compressibility(s):
-                m, T, rho, pg, _k, _R = state(s)
-                return pg / (rho * Rs * T)
-
-            def dew_margin(t, s, drive):
-                m, T, rho, pg, _k, _R = state(s)
-                above = pg >= pc
-                return ops.where(above, s[i + 1] - Tc,
-                                 s[i + 1] - table.dew_temperature(ops.where(above, 0.5 * pc, pg), ops))
-
-            events_extra = (EventSpec("dew point reached (condensation: outside the gas-tank model)", dew_margin,
-                                      -1.0, ("gas", "sealed"), None, needs_drive=False),)
+            def dew_at(pg):
+                return table.dew_temperature(pg, ops)
         else:
             import CoolProp
 
@@ -373,6 +363,10 @@ class GasTank(ComponentKind):
                 work, cv = ops.each(energy, rho, T, outputs=2)
                 return (-mdot * work + hA * (Tw - T)) / (m * cv)
 
+            def dew_at(pg):
+                return ops.each(dew_temperature, pg)
+
+        if p.equation_of_state != "ideal":          # the real gas, tabulated or direct
             def compressibility(s):
                 m, T, rho, pg, _k, _R = state(s)
                 return pg / (rho * Rs * T)
@@ -380,9 +374,8 @@ class GasTank(ComponentKind):
             def dew_margin(t, s, drive):
                 m, T, rho, pg, _k, _R = state(s)
                 above = pg >= pc
-                # above the critical pressure the margin is to the critical temperature (no flash there)
-                return ops.where(above, s[i + 1] - Tc,
-                                 s[i + 1] - ops.each(dew_temperature, ops.where(above, 0.5 * pc, pg)))
+                # above the critical pressure the margin is to the critical temperature (no dew line there)
+                return ops.where(above, s[i + 1] - Tc, s[i + 1] - dew_at(ops.where(above, 0.5 * pc, pg)))
 
             events_extra = (EventSpec("dew point reached (condensation: outside the gas-tank model)", dew_margin,
                                       -1.0, ("gas", "sealed"), None, needs_drive=False),)
@@ -410,15 +403,6 @@ class GasTank(ComponentKind):
         return VolumeFns(mass=mass, outlet=outlet, derivs=derivs, signals=signals, events=events)
 
 
-def ops_max(x: Any) -> float:
-    """The largest value of a parameter over designs (itself for a float)."""
-    return float(np.max(x))
-
-
-def ops_min(x: Any) -> float:
-    """The smallest value of a parameter over designs (itself for a float)."""
-    return float(np.min(x))
-
 
 def _fluid_of(p: Any, where: str, device: str) -> tuple[str, float]:
     """(CoolProp name, specific gas constant) of a real-gas tank's fluid: from the built-in table for its gases
@@ -437,9 +421,9 @@ def _property_table(p: Any, where: str, device: str, p_amb: Any) -> GasPropertyT
     the table itself; a larger table is taken when the first guess, the ideal gas's density, falls short),
     temperature up to the largest of the charge and wall temperatures."""
     fluid, R = _fluid_of(p, where, device)
-    p0 = ops_max(p_amb + p.gauge_pressure)
-    T_hi = max(ops_max(p.temperature), ops_max(p.wall_temperature))
-    T0 = ops_min(p.temperature)
+    p0 = largest(p_amb + p.gauge_pressure)
+    T_hi = max(largest(p.temperature), largest(p.wall_temperature))
+    T0 = float(np.min(p.temperature))
 
     def missing() -> None:
         require_coolprop(f"{where}.equation_of_state", device, "set equation_of_state = \"ideal\" to use the "

@@ -60,7 +60,7 @@ from .gases import UNIVERSAL_GAS_CONSTANT
 from .tables import CubicTable2D
 
 __all__ = ["GasPropertyTable", "gas_table", "build_gas_table", "cache_key", "cache_folder", "rounded_range",
-           "coolprop_version", "cached", "TABLE_FORMAT", "GRID"]
+           "coolprop_version", "cached", "largest", "read_table_file", "write_table_file", "TABLE_FORMAT", "GRID"]
 
 #: Bumped whenever what a table file holds or how it is built changes.
 TABLE_FORMAT = 2
@@ -159,34 +159,58 @@ class GasPropertyTable:
 
     # --- disk ------------------------------------------------------------------------------------------------
     def save(self, path: Path) -> None:
-        """Write the table to ``path`` (atomically: a temporary file in the same folder, renamed)."""
-        path.parent.mkdir(parents=True, exist_ok=True)
-        meta = {"key": self.key, "fluid": self.fluid, "gas_constant": self.gas_constant, "T_floor": self.T_floor,
-                "T_critical": self.T_critical, "p_critical": self.p_critical}
-        fd, tmp = tempfile.mkstemp(prefix=path.stem, suffix=".tmp", dir=path.parent)
-        try:
-            with os.fdopen(fd, "wb") as fh:
-                np.savez(fh, meta=np.array(json.dumps(meta)), x=self.single.x, y=self.single.y,
-                         values=self.single.values, sat_T=self.sat_T, sat_lnp=self.sat_lnp)
-            os.replace(tmp, path)
-        except BaseException:
-            if os.path.exists(tmp):
-                os.unlink(tmp)
-            raise
+        """Write the table to ``path`` (atomically, :func:`write_table_file`)."""
+        write_table_file(path, {"key": self.key, "fluid": self.fluid, "gas_constant": self.gas_constant,
+                                "T_floor": self.T_floor, "T_critical": self.T_critical, "p_critical": self.p_critical},
+                         x=self.single.x, y=self.single.y, values=self.single.values, sat_T=self.sat_T,
+                         sat_lnp=self.sat_lnp)
 
     @classmethod
     def load(cls, path: Path, key: dict) -> "GasPropertyTable | None":
         """The table in ``path`` when it holds ``key``; None when missing, unreadable or of another key."""
-        try:
-            with np.load(path, allow_pickle=False) as z:
-                meta = json.loads(str(z["meta"]))
-                if meta["key"] != key:
-                    return None
-                return cls(meta["fluid"], key, meta["gas_constant"], meta["T_floor"], meta["T_critical"],
-                           meta["p_critical"], CubicTable2D.from_nodes(z["x"], z["y"], z["values"]), z["sat_T"],
-                           z["sat_lnp"])
-        except (OSError, ValueError, KeyError, json.JSONDecodeError):
+        read = read_table_file(path, key)
+        if read is None:
             return None
+        meta, z = read
+        try:
+            return cls(meta["fluid"], key, meta["gas_constant"], meta["T_floor"], meta["T_critical"],
+                       meta["p_critical"], CubicTable2D.from_nodes(z["x"], z["y"], z["values"]), z["sat_T"],
+                       z["sat_lnp"])
+        except KeyError:
+            return None
+
+
+def largest(x: Any) -> float:
+    """The largest value of a parameter over designs (itself for a float)."""
+    return float(np.max(x))
+
+
+def write_table_file(path: Path, meta: dict, **arrays: np.ndarray) -> None:
+    """Write ``meta`` (as JSON) and ``arrays`` to the ``.npz`` file ``path`` atomically: a temporary file in the
+    same folder, renamed over it (a reader never sees half a table)."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=path.stem, suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            np.savez(fh, meta=np.array(json.dumps(meta)), **arrays)
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def read_table_file(path: Path, key: dict) -> tuple[dict, dict[str, np.ndarray]] | None:
+    """(meta, arrays) of the table file ``path`` when it holds ``key``; None when missing, unreadable, incomplete
+    or of another key."""
+    try:
+        with np.load(path, allow_pickle=False) as z:
+            meta = json.loads(str(z["meta"]))
+            if meta.get("key") != key:
+                return None
+            return meta, {name: z[name] for name in z.files if name != "meta"}
+    except (OSError, ValueError, KeyError, json.JSONDecodeError):
+        return None
 
 
 _MEMORY: dict[str, Any] = {}

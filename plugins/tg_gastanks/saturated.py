@@ -81,13 +81,9 @@ from tg_vessels import PRESSURE_CAUTIONS
 from .cold import COLD_OUTCOMES, cold_cautions, cold_summary
 from .fluids import FluidName, expansion_exponent, new_state, require_coolprop, resolve_fluid, wall_heat_specs
 from .gases import lookup_gas
-from .gastable import gas_table
+from .gastable import gas_table, largest
 from .saturationtable import SaturationTable, saturation_table
 
-
-def ops_max(x: Any) -> float:
-    """The largest value of a parameter over designs (itself for a float)."""
-    return float(np.max(x))
 
 __all__ = ["SelfPressurisingTank", "CARTRIDGE_CAUTIONS"]
 
@@ -219,8 +215,8 @@ class SelfPressurisingTank(ComponentKind):
             sat = _saturation(p, fluid, "fluid", device)
             t_tp, t_c = sat.T_triple, sat.T_critical
             t_lo, t_hi = t_tp + 0.01, t_c - 0.01
-            vapour = gas_table(fluid, sat.rho_v(min(max(ops_max(T0), ops_max(p.wall_temperature)), t_hi)),
-                               max(ops_max(T0), ops_max(p.wall_temperature))).vapour
+            vapour = gas_table(fluid, sat.rho_v(min(max(largest(T0), largest(p.wall_temperature)), t_hi)),
+                               max(largest(T0), largest(p.wall_temperature))).vapour
 
             def saturated(T):
                 return sat.at(T)

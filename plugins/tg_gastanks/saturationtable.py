@@ -24,17 +24,14 @@ Examples
 
 from __future__ import annotations
 
-import json
 import math
-import os
-import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from .gastable import PAD, cached, coolprop_version
+from .gastable import PAD, cached, coolprop_version, read_table_file, write_table_file
 from .tables import CubicTable1D
 
 __all__ = ["SaturationTable", "saturation_table", "build_saturation_table", "QUANTITIES", "STEP", "SAT_FORMAT"]
@@ -71,28 +68,21 @@ class SaturationTable:
         return self.table.at(T)[1]
 
     def save(self, path: Path) -> None:
-        path.parent.mkdir(parents=True, exist_ok=True)
-        meta = {"key": self.key, "fluid": self.fluid, "T_triple": self.T_triple, "T_critical": self.T_critical}
-        fd, tmp = tempfile.mkstemp(prefix=path.stem, suffix=".tmp", dir=path.parent)
-        try:
-            with os.fdopen(fd, "wb") as fh:
-                np.savez(fh, meta=np.array(json.dumps(meta)), x=self.table.x, values=self.table.values)
-            os.replace(tmp, path)
-        except BaseException:
-            if os.path.exists(tmp):
-                os.unlink(tmp)
-            raise
+        """Write the table to ``path`` (atomically, :func:`tg_gastanks.gastable.write_table_file`)."""
+        write_table_file(path, {"key": self.key, "fluid": self.fluid, "T_triple": self.T_triple,
+                                "T_critical": self.T_critical}, x=self.table.x, values=self.table.values)
 
     @classmethod
     def load(cls, path: Path, key: dict) -> "SaturationTable | None":
+        """The table in ``path`` when it holds ``key``; None when missing, unreadable or of another key."""
+        read = read_table_file(path, key)
+        if read is None:
+            return None
+        meta, z = read
         try:
-            with np.load(path, allow_pickle=False) as z:
-                meta = json.loads(str(z["meta"]))
-                if meta["key"] != key:
-                    return None
-                return cls(meta["fluid"], key, meta["T_triple"], meta["T_critical"],
-                           CubicTable1D.from_nodes(z["x"], z["values"]))
-        except (OSError, ValueError, KeyError, json.JSONDecodeError):
+            return cls(meta["fluid"], key, meta["T_triple"], meta["T_critical"],
+                       CubicTable1D.from_nodes(z["x"], z["values"]))
+        except KeyError:
             return None
 
 
