@@ -390,3 +390,12 @@ def test_a_rocket_on_a_zero_length_pad_lifts_off_and_has_no_guide_exit():
     guided = integrate(tg.load_model(ROOT / "models" / "bottle-rocket.toml"))
     names = [e.name for e in guided.events]
     assert "lift-off" not in names and "guide exit" in names and guided.summary["guide_exit_speed"] > 30.0
+
+
+def test_a_long_component_label_keeps_the_summary_s_value_column(runs):
+    # "pump efficiency at the operating point" is 38 characters: the values all end in one column
+    from thrustgraph.commands.run import summary_lines
+    lines = summary_lines(_run(runs, "water-jet-boat"))
+    assert any("pump efficiency at the operating point" in line for line in lines)
+    ends = {re.match(r"  .*?\S\s{2,}\S+", line).end() for line in lines}
+    assert len(ends) == 1, lines
