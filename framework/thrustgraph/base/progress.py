@@ -99,6 +99,13 @@ def line_class() -> type:
             kw.setdefault("nrows", 1000)   # tqdm hides a line below the terminal's height; a bare pty reports 0
             super().__init__(*args, **kw)
 
+        def close(self) -> None:
+            # a line interrupted (Ctrl-C, SIGTERM) while tqdm's __init__ runs has no clock yet; tqdm 4.66's
+            # __del__ would then print a traceback from close() (later releases check): nothing to close
+            if not hasattr(self, "last_print_t"):
+                return
+            super().close()
+
         @property
         def format_dict(self) -> dict:
             d = super().format_dict
