@@ -1,7 +1,7 @@
 """Benchmark: studies on many workers, and a million-design dispersion in flat memory, measured side by side.
 
     python benchmarks/study_scale.py [--sizes 10000,40000] [--repeat 5] [--workers 2] [--dask]
-                                     [--memory 100000,300000,1000000] [--skip-scale] [--skip-memory] [--quick]
+                                     [--memory 100000,300000,1000000] [--skip-scale] [--skip-memory] [--before] [--quick]
 
 1. Scale-out. Bottle-rocket ensembles of N designs (fill, pressure, nozzle diameter, dry mass drawn uniformly in
    the box of benchmarks/study_speed.py, seeded) flown through ``evaluate`` as a study flies them:
@@ -10,6 +10,8 @@
      c. a pool of W local processes, chunks as ``--engine processes`` cuts them, a fresh pool each time (start-up
         included, as every study pays it)
      d. ``--engine auto`` (what the command picks at this size)
+     before. the pool as it was before this benchmark's session: workers from a fork server, ensemble chunks of
+        N / 2W (at least 1,000), a fresh pool each time (with --before)
      e. with --dask: a Dask LocalCluster of W one-thread workers, started before and not timed (steady state)
    The runs alternate (a, b, c, d, e, a, b, ...) so a slow spell of the shared machine falls on every side; the
    figures are medians over --repeat rounds, with the load average (1 min) beside each round. Ratios: the best
@@ -20,7 +22,8 @@
    Targets: W workers >= 0.9 W times the best one-process run from 40,000 designs; never slower at 10,000.
 
 2. Memory of ``thrustgraph study dispersion`` (the command, in a subprocess) with ``--table`` and ``--summary``
-   for --memory sizes of the bundled bottle rocket (four spreads; the engine ``auto`` picks). Its standard error
+   for --memory sizes of the bundled bottle rocket (four spreads; a pool of one worker per core unless
+   --memory-engine says otherwise). Its standard error
    is a pseudo-terminal, so the progress line is drawn; the last line drawn with a time left is shown. Measured:
    the largest resident set of any one process of the command (getrusage RUSAGE_CHILDREN, maxrss: the
    command and its workers), the largest sum over the command's process tree (sampled from /proc every 0.2 s),
@@ -49,7 +52,7 @@ import numpy as np
 import thrustgraph as tg
 from thrustgraph.models.designs import resolve
 from thrustgraph.models.model import parse_model
-from thrustgraph.studies.engines import ENSEMBLE_CHUNK
+from thrustgraph.studies.engines import ENSEMBLE_CHUNK, ProcessEngine
 from thrustgraph.studies.studies import evaluate
 
 PATHS = ("components.bottle.fill", "components.bottle.gauge_pressure", "components.neck.diameter",
@@ -77,12 +80,13 @@ def _timed(fn):
     return out, time.perf_counter() - t0, _cpu(resource.RUSAGE_SELF) - c0, _cpu(resource.RUSAGE_CHILDREN) - k0
 
 
-def scale_out(sizes: list[int], repeat: int, workers: int, dask: bool) -> None:
+def scale_out(sizes: list[int], repeat: int, workers: int, dask: bool, before: bool) -> None:
     model = tg.load_model(tg.default_model_path())
     parsed = parse_model(model)
     params = [resolve(parsed, p) for p in PATHS]
     print(f"1. scale-out: {', '.join(PATHS)}; outputs {', '.join(OUTPUTS)}; {workers} workers; "
           f"{len(os.sched_getaffinity(0))} usable cores")
+    startup(workers, max(3, repeat))
     evaluate(model, params, designs(300), OUTPUTS, parsed=parsed, engine="serial", flights="ensemble", quiet=True)
     cluster = None
     if dask:
@@ -101,6 +105,10 @@ def scale_out(sizes: list[int], repeat: int, workers: int, dask: bool) -> None:
                 sides["one process, one chunk"] = dict(engine="serial", chunk_size=n)
             sides[f"pool of {workers} processes"] = dict(engine="processes", workers=workers)
             sides["--engine auto"] = dict(engine="auto")
+            if before:
+                sides[f"before: fork server, {workers} workers"] = dict(
+                    engine=lambda: ProcessEngine(workers, method="forkserver"),
+                    chunk_size=int(min(max(-(-n // (2 * workers)), 1000 if n > 1000 else n, 1), 20000)))
             if cluster is not None:
                 sides[f"Dask, {workers} workers (up before)"] = dict(engine="dask", scheduler=cluster.scheduler_address)
                 evaluate(model, params, x, OUTPUTS, parsed=parsed, flights="ensemble", quiet=True,
@@ -111,8 +119,18 @@ def scale_out(sizes: list[int], repeat: int, workers: int, dask: bool) -> None:
             for _ in range(repeat):
                 for side, kw in sides.items():
                     load = os.getloadavg()[0]
-                    t, wall, cpu, kids = _timed(lambda: evaluate(model, params, x, OUTPUTS, parsed=parsed,
-                                                                 flights="ensemble", quiet=True, **kw))
+
+                    def study(kw=kw):
+                        if not callable(kw["engine"]):
+                            return evaluate(model, params, x, OUTPUTS, parsed=parsed, flights="ensemble", quiet=True,
+                                            **kw)
+                        eng = kw["engine"]()      # an engine object: started and closed here, as a study does
+                        try:
+                            return evaluate(model, params, x, OUTPUTS, parsed=parsed, flights="ensemble",
+                                            quiet=True, **dict(kw, engine=eng))
+                        finally:
+                            eng.close()
+                    t, wall, cpu, kids = _timed(study)
                     runs[side].append((wall, cpu, kids, load))
                     tables[side] = t
                     engines[side] = t.engine
@@ -137,15 +155,53 @@ def scale_out(sizes: list[int], repeat: int, workers: int, dask: bool) -> None:
                     continue
                 wall, cpu, kids = med[side]
                 w = workers if engines[side] in ("processes", "dask") else 1
-                by_cpu = best_cpu / (cpu + kids / w) if engines[side] != "dask" else float("nan")
+                if side.startswith("before"):
+                    w = workers
+                counted = engines[side] == "serial" or (engines[side] == "processes" and not side.startswith("before"))
+                by_cpu = best_cpu / (cpu + kids / w) if counted else float("nan")
                 print(f"   ratio {side} / best one process ({best}): {med[best][0] / wall:.2f}x by the wall clock, "
-                      + (f"{by_cpu:.2f}x by CPU time" if by_cpu == by_cpu else "(Dask's workers' CPU time is not "
-                         "counted here)")
+                      + (f"{by_cpu:.2f}x by CPU time" if by_cpu == by_cpu else "(its workers' CPU time is not "
+                         "counted here: they are not this process's children)")
                       + (f"  (target >= {0.9 * workers:.1f}x)" if n >= 40000 and w > 1 else
                          "  (target >= 1.0x)" if w > 1 else ""))
     finally:
         if cluster is not None:
             cluster.close()
+
+
+def _answer(_: int) -> int:
+    return os.getpid()
+
+
+def startup(workers: int, repeat: int) -> None:
+    """Wall time from creating a pool of ``workers`` to every worker's first answer, forked and from a fork server
+    (the fork server started afresh each time, as in a new study command), alternating; medians."""
+    import multiprocessing
+
+    from thrustgraph.studies.engines import FlightTask, _init_worker
+
+    task = FlightTask(tg.load_model(tg.default_model_path()), PATHS[:1], ("",), ("apogee",), "ensemble")
+    times: dict[str, list[float]] = {"fork": [], "forkserver": []}
+    for _ in range(repeat):
+        for method in times:
+            ctx = multiprocessing.get_context(method)
+            if method == "forkserver":
+                from multiprocessing import forkserver
+
+                forkserver._forkserver._stop()     # a new study command starts its own fork server
+                ctx.set_forkserver_preload(["thrustgraph.studies.engines", "thrustgraph.balance.outcomes",
+                                            "scipy.integrate"])
+            t0 = time.perf_counter()
+            pool = ctx.Pool(workers, initializer=_init_worker, initargs=(task,))
+            pids = set()
+            while len(pids) < workers:
+                pids.update(pool.map(_answer, range(4 * workers), chunksize=1))
+            times[method].append(time.perf_counter() - t0)
+            pool.terminate()
+            pool.join()
+    print(f"   pool start-up ({workers} workers, to every worker's first answer; medians of {repeat}, load "
+          f"{os.getloadavg()[0]:.1f}): forked {statistics.median(times['fork']) * 1e3:.0f} ms, from a fork server "
+          f"{statistics.median(times['forkserver']) * 1e3:.0f} ms")
 
 
 def _tree(root: int) -> list[int]:
@@ -178,13 +234,13 @@ WRAPPER = ("import resource, subprocess, sys; r = subprocess.run(sys.argv[1:]); 
            "print('maxrss', resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss, r.returncode, file=sys.stderr)")
 
 
-def memory(sizes: list[int]) -> None:
-    print(f"\n2. memory of 'thrustgraph study dispersion --samples N --table t.csv --summary s.csv' (the bundled "
-          f"bottle rocket, {len(SPREADS)} spreads, --engine auto)")
+def memory(sizes: list[int], engine: str) -> None:
+    print(f"\n2. memory of 'thrustgraph study dispersion --samples N --table t.csv --summary s.csv --engine {engine}' "
+          f"(the bundled bottle rocket, {len(SPREADS)} spreads)")
     for n in sizes:
         with tempfile.TemporaryDirectory(dir=os.getcwd()) as d:
             cmd = [sys.executable, "-c", WRAPPER, sys.executable, "-m", "thrustgraph.cli", "study", "dispersion",
-                   "--samples", str(n), "--seed", "1", "--table", "t.csv", "--summary", "s.csv"]
+                   "--samples", str(n), "--seed", "1", "--table", "t.csv", "--summary", "s.csv", "--engine", engine]
             for s in SPREADS:
                 cmd += ["--spread", s]
             master, slave = pty.openpty()
@@ -230,7 +286,10 @@ def main() -> int:
     ap.add_argument("--repeat", type=int, default=5)
     ap.add_argument("--workers", type=int, default=2)
     ap.add_argument("--dask", action="store_true")
+    ap.add_argument("--before", action="store_true", help="also the pool as it was before (fork server, N/2W chunks)")
     ap.add_argument("--memory", default="100000,300000,1000000")
+    ap.add_argument("--memory-engine", default="processes", help="engine of the memory runs (default: a pool, "
+                    "the command and its workers)")
     ap.add_argument("--skip-scale", action="store_true")
     ap.add_argument("--skip-memory", action="store_true")
     ap.add_argument("--quick", action="store_true", help="tiny sizes, one round: checks that the script runs")
@@ -239,9 +298,9 @@ def main() -> int:
         a.sizes, a.repeat, a.memory = "600", 1, "300"
     print(f"study_scale: load average {' '.join(f'{v:.2f}' for v in os.getloadavg())} at the start")
     if not a.skip_scale:
-        scale_out([int(s) for s in a.sizes.split(",")], a.repeat, a.workers, a.dask)
+        scale_out([int(s) for s in a.sizes.split(",")], a.repeat, a.workers, a.dask, a.before)
     if not a.skip_memory:
-        memory([int(s) for s in a.memory.split(",")])
+        memory([int(s) for s in a.memory.split(",")], a.memory_engine)
     return 0
 
 

@@ -26,7 +26,7 @@ from thrustgraph.models.designs import apply
 from thrustgraph.models.model import parse_model
 from thrustgraph.studies.dispersion import disperse
 from thrustgraph.studies.engines import ENSEMBLE_CHUNK, SerialEngine, default_chunk_size
-from thrustgraph.studies.studies import POOL_FROM_ENSEMBLE, choose_engine, sweep
+from thrustgraph.studies.studies import POOL_FROM_ENSEMBLE, POOL_IDLE_CORES, choose_engine, sweep
 from thrustgraph.studies.studyflight import fly_design
 from thrustgraph.studies.studyprogress import StudyProgress
 from thrustgraph.studies.tablestream import StreamedTable, TableStream
@@ -212,14 +212,28 @@ def test_the_progress_line_gives_the_time_left_from_the_rate():
 
 # --- the engine and chunks auto picks ---------------------------------------------------------------------------
 
-def test_auto_flies_small_ensembles_in_this_process_and_large_ones_on_a_pool(bottle, monkeypatch):
+def test_auto_flies_small_ensembles_in_this_process_and_large_ones_on_idle_cores(bottle, monkeypatch):
     parsed = parse_model(bottle)
     monkeypatch.setattr("thrustgraph.studies.studies.usable_cores", lambda: 2)
+    monkeypatch.setattr("thrustgraph.studies.studies.idle_cores", lambda: 2.0)
     assert choose_engine(POOL_FROM_ENSEMBLE - 1, parsed) == ("serial", "ensemble")
     assert choose_engine(POOL_FROM_ENSEMBLE, parsed) == ("processes", "ensemble")
     assert choose_engine(10 ** 6, parsed, flights="single") == ("processes", "single")
-    monkeypatch.setattr("thrustgraph.studies.studies.usable_cores", lambda: 1)
+    monkeypatch.setattr("thrustgraph.studies.studies.idle_cores", lambda: POOL_IDLE_CORES - 0.1)   # a busy machine
     assert choose_engine(10 ** 6, parsed) == ("serial", "ensemble")
+    monkeypatch.setattr("thrustgraph.studies.studies.usable_cores", lambda: 1)
+    monkeypatch.setattr("thrustgraph.studies.studies.idle_cores", lambda: 1.0)
+    assert choose_engine(10 ** 6, parsed) == ("serial", "ensemble")
+
+
+def test_idle_cores_are_the_usable_cores_the_load_leaves(monkeypatch):
+    from thrustgraph.studies import engines
+
+    monkeypatch.setattr(engines, "usable_cores", lambda: 2)
+    monkeypatch.setattr(engines.os, "getloadavg", lambda: (0.4, 0.0, 0.0))
+    assert engines.idle_cores() == pytest.approx(1.6)
+    monkeypatch.setattr(engines.os, "getloadavg", lambda: (7.5, 0.0, 0.0))
+    assert engines.idle_cores() == 0.0
 
 
 @pytest.mark.parametrize("n", [1, 999, 4000, 10000, 39999, 40000, 40001, 123457, 1000000])

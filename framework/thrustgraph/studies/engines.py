@@ -47,6 +47,7 @@ Examples
 
 from __future__ import annotations
 
+import ctypes
 import difflib
 import hashlib
 import math
@@ -76,7 +77,7 @@ from ..flight.ensemble import fly_designs
 
 __all__ = ["FlightTask", "ChunkRows", "chunks", "SerialEngine", "ProcessEngine", "DaskEngine", "make_engine",
            "ENGINES", "FLIGHTS", "default_chunk_size", "ENSEMBLE_CHUNK", "STUDY_CLUSTER_CONFIG",
-           "check_scheduler_address", "usable_cores", "start_method"]
+           "check_scheduler_address", "usable_cores", "idle_cores", "start_method"]
 
 ENGINES = ("serial", "processes", "dask")
 FLIGHTS = ("single", "ensemble")
@@ -232,6 +233,16 @@ def usable_cores() -> int:
         return max(1, os.cpu_count() or 1)
 
 
+def idle_cores() -> float:
+    """Cores the rest of the machine leaves idle: the usable cores less the one-minute load average (all of them
+    where the system gives no load average)."""
+    try:
+        load = os.getloadavg()[0]
+    except (AttributeError, OSError):   # pragma: no cover - no load average
+        load = 0.0
+    return max(0.0, usable_cores() - load)
+
+
 def start_method() -> str:
     """How pool workers start: ``fork`` where offered and this process runs no other thread (a fork copies
     only the calling thread: a lock held by another would stay locked in the child), else ``forkserver``,
@@ -266,8 +277,23 @@ class SerialEngine:
 _TASK: FlightTask | None = None
 
 
+def _end_with_parent() -> None:
+    """Linux: this worker is killed when the study's process ends, however it ends (a SIGKILL leaves no
+    orphaned workers waiting for chunks forever, holding the study's scratch files)."""
+    if not sys.platform.startswith("linux"):
+        return
+    try:
+        libc = ctypes.CDLL(None, use_errno=True)
+        libc.prctl(1, signal.SIGKILL, 0, 0, 0)     # PR_SET_PDEATHSIG
+    except (OSError, AttributeError):   # pragma: no cover - no prctl
+        return
+    if os.getppid() == 1:                # the parent was already gone before the request
+        os._exit(1)
+
+
 def _init_worker(task: FlightTask) -> None:
     global _TASK
+    _end_with_parent()
     signal.signal(signal.SIGINT, signal.SIG_IGN)   # Ctrl-C is the parent's to handle
     signal.signal(signal.SIGTERM, signal.SIG_DFL)  # a forked worker inherits the parent's handler: the pool's
     if hasattr(signal, "pthread_sigmask"):         # terminate() must end it quietly, not raise in it

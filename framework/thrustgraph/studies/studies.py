@@ -49,7 +49,7 @@ from ..flight.arraysystem import unsupported
 from ..flight.assembly import assemble
 from ..flight.ensemble import COMPUTED
 from ..models.designs import DesignParameter, within_bounds
-from .engines import FLIGHTS, ENGINES, ChunkRows, FlightTask, chunks, default_chunk_size, make_engine, usable_cores
+from .engines import FLIGHTS, ENGINES, ChunkRows, FlightTask, chunks, default_chunk_size, make_engine, idle_cores, usable_cores
 from ..base.errors import ModelError
 from ..base.frames import design_frame, sensitivity_frame
 from ..base.limits import MAX_DESIGNS, check_count
@@ -64,7 +64,7 @@ from ..base.units import Q_
 
 __all__ = ["DesignTable", "evaluate", "sweep", "sensitivities", "Sensitivity", "choose_engine", "run_options",
            "DEFAULT_OUTPUTS", "as_vary", "csv_head", "csv_columns", "csv_rows", "table_report", "fly_rows",
-           "out_of_bounds", "bounds_note", "POOL_FROM_ENSEMBLE", "POOL_FROM_SINGLE"]
+           "out_of_bounds", "bounds_note", "POOL_FROM_ENSEMBLE", "POOL_FROM_SINGLE", "POOL_IDLE_CORES"]
 
 #: Outcomes a study reports when none are named (the registry's defaults; any other outcome can be named).
 DEFAULT_OUTPUTS = default_outputs()
@@ -220,21 +220,27 @@ def table_report(table: Any) -> str:
     return "Outcome ranges over the designs that flew\n" + "\n".join(lines)
 
 
-#: Designs from which ``--engine auto`` flies an ensemble study on a pool of local processes (one per core),
-#: when there is more than one core. A pool's workers are forked in ~10 ms each and fly one chunk each (the
-#: model sent once per worker), so what a pool adds is one chunk's fixed cost per worker (~0.25 s of CPU) beside
-#: half the per-design work: on two cores it pays from about 2,000 designs, measured (docs/studies.md, "Many
-#: workers"); below this this process flies the study alone.
+#: Designs from which ``--engine auto`` flies an ensemble study on a pool of local processes (one per core).
+#: A pool's workers are forked in ~25 ms and fly one chunk each (the model sent once per worker), so a pool
+#: adds one chunk's fixed cost (~0.25 s of CPU) per worker beside half the per-design work: on two idle cores it
+#: pays from about 2,500 designs (CPU time: 1.16x at 2,500, 1.32x at 5,000, 1.43x at 10,000; docs/studies.md).
 POOL_FROM_ENSEMBLE = 4000
 #: The same for single flights (each design ~10-50 ms): a pool pays from a few dozen designs.
 POOL_FROM_SINGLE = 32
+#: Idle cores (usable cores less the one-minute load average) ``auto`` needs to start a pool: a second worker
+#: pays only on a core nobody else wants. On a busy machine the extra workers only share the cores the study
+#: had anyway (this machine's scheduler gives each session an equal share of a busy machine, however many
+#: processes it runs), and each worker's extra chunk is work a single process does not do: under a load
+#: average of 7 on 2 cores, a pool of 2 took 1.8x the wall time of one process for 10,000 designs (measured).
+POOL_IDLE_CORES = 1.5
 
 
 def choose_engine(n: int, parsed: ParsedModel, engine: str = "auto", flights: str = "auto",
                   outputs: Sequence[str] | None = None) -> tuple[str, str]:
     """Resolve ``auto``: vectorised ensembles from a few hundred designs of a family they support (and outcomes
     they compute); a process pool from :data:`POOL_FROM_ENSEMBLE` ensemble designs (:data:`POOL_FROM_SINGLE`
-    single flights) on a machine with more than one usable core; this process otherwise."""
+    single flights) when more than one core is usable and the machine leaves :data:`POOL_IDLE_CORES` of them
+    idle; this process otherwise."""
     if flights not in FLIGHTS + ("auto",):
         raise ModelError("--flights", f"unknown way to fly {flights!r}", f"choose one of {', '.join(FLIGHTS)}, auto")
     if engine not in ENGINES + ("auto",) and not hasattr(engine, "run"):
@@ -246,7 +252,7 @@ def choose_engine(n: int, parsed: ParsedModel, engine: str = "auto", flights: st
                 flights = "ensemble"
     if engine == "auto":
         big = POOL_FROM_ENSEMBLE if flights == "ensemble" else POOL_FROM_SINGLE
-        engine = "processes" if n >= big and usable_cores() > 1 else "serial"
+        engine = "processes" if n >= big and usable_cores() > 1 and idle_cores() >= POOL_IDLE_CORES else "serial"
     return engine, flights
 
 
