@@ -225,6 +225,14 @@ class ArraySystem:
         new.kin0 = np.full(n, Kinematics.BY_MOUNT[self.parsed.launch.mount], dtype=np.int8)
         new.mode0 = np.zeros((len(self.moded), n), dtype=np.int8)
         new._build()
+        if [(c, e.name) for c, e in new.events] != [(c, e.name) for c, e in self.events]:
+            had, has = {(c, e.name) for c, e in self.events}, {(c, e.name) for c, e in new.events}
+            c, name = sorted(had ^ has)[0]
+            kind = self.parsed.kinds[c]
+            raise PluginError(f"kind {kind.kind!r} (component {c!r}) declares the event {name!r} for some designs "
+                              "and not for others: a kind's events may not depend on its parameter values. Fix: "
+                              "declare the event always, with an event function that never crosses zero where "
+                              "it does not apply (the plugin's author)")
         return new
 
     def index(self, name: str) -> int:
