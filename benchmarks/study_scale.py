@@ -86,7 +86,7 @@ def scale_out(sizes: list[int], repeat: int, workers: int, dask: bool, before: b
     params = [resolve(parsed, p) for p in PATHS]
     print(f"1. scale-out: {', '.join(PATHS)}; outputs {', '.join(OUTPUTS)}; {workers} workers; "
           f"{len(os.sched_getaffinity(0))} usable cores")
-    startup(workers, max(3, repeat))
+    startup(workers, max(1, repeat))
     evaluate(model, params, designs(300), OUTPUTS, parsed=parsed, engine="serial", flights="ensemble", quiet=True)
     cluster = None
     if dask:
