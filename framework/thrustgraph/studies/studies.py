@@ -208,6 +208,7 @@ def table_report(table: Any) -> str:
         return "No design flew."
     lines = []
     shown = [o for o in table.outputs if o not in ("impact_x", "impact_y", "launch_mass")][:5]
+    width = max([20] + [len(OUTCOMES[o].label) for o in shown])
     for o in shown:
         v = np.where(ok, table.column(o), np.nan)
         if not np.any(np.isfinite(v)):
@@ -215,7 +216,7 @@ def table_report(table: Any) -> str:
         i = int(np.nanargmax(v))
         spec = OUTCOMES[o]
         best = ", ".join(p.text(table.x[i, k]) for k, p in enumerate(table.params))
-        lines.append(f"  {spec.label:<20s} {spec.shown(float(np.nanmin(v))):10.5g} .. "
+        lines.append(f"  {spec.label:<{width}s} {spec.shown(float(np.nanmin(v))):10.5g} .. "
                      f"{spec.shown(float(np.nanmax(v))):10.5g} {spec.display:<6s} highest at {best}")
     return "Outcome ranges over the designs that flew\n" + "\n".join(lines)
 
