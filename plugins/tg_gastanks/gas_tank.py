@@ -323,6 +323,7 @@ class GasTank(ComponentKind):
             t_min = st.Tmin()
             sat = new_state(fluid)
             pc, Tc = sat.p_critical(), sat.T_critical()
+            p_triple = sat.trivial_keyed_output(CoolProp.iP_triple)
             PQ = CoolProp.PQ_INPUTS
             expander = new_state(fluid)
 
@@ -342,7 +343,10 @@ class GasTank(ComponentKind):
                 return st.hmass() - st.umass() - rho * st.first_partial_deriv(iU, iD, iT), st.cvmass()
 
             def dew_temperature(pg):
-                sat.update(PQ, pg, 1.0)
+                # below the triple-point pressure the gas would deposit as a solid (outside the model, as
+                # condensation is): the margin is to the triple-point temperature there, as the table's is
+                # (CoolProp refuses a saturation state below it; 6.6.0 raised in a blowdown to 12 kPa)
+                sat.update(PQ, max(pg, p_triple), 1.0)
                 return sat.T()
 
             def state(s):
