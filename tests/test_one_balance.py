@@ -337,6 +337,11 @@ def _outcomes_agree(parsed, rng: np.random.Generator) -> None:
     # 2.6e-6 (ensemble) and 3.2e-6 (single flight) off on opposite sides, 3e-5 at a few bar with wall heat.
     # Their difference is held to 1e-4 there.
     tol = 5e-6 if _thrust_table(parsed) else 1e-6
+    # A self-pressurising (two-phase) tank's properties come from CoolProp's tables, whose interpolation has
+    # kinks no event marks: measured on the gas-cartridge cart on a guide, apogee 3.1e-6 (single flight) and
+    # 1.2e-6 (ensemble) off at rtol 1e-9 against both paths at 1e-12 (where they agree to 1e-8). Held to 5e-6.
+    if any(k.kind == "self-pressurising-tank" for k in parsed.kinds.values()):
+        tol = max(tol, 5e-6)
     if any(k.kind == "converging-diverging-nozzle" for k in parsed.kinds.values()) and \
             parsed.env_kinds["medium"].kind != "vacuum":
         tol = 1e-4
@@ -536,7 +541,8 @@ def test_a_boat_study_as_ensemble_equals_its_run():
     assert row[head.index("status")] == "ok"
     study = {h.split(" [")[0]: float(v) for h, v in zip(head, row) if h.split(" [")[0] in COMPUTED and v != ""}
     shared = sorted(set(study) & set(run))
-    assert {"flight_time", "burn_time", "total_impulse", "max_speed", "range", "peak_acceleration"} <= set(shared)
+    # a boat's outcomes (kinds/vehicle.py): run time, powered time, top speed, distance along its track
+    assert {"run_time", "powered_time", "total_impulse", "top_speed", "distance", "peak_acceleration"} <= set(shared)
     for k in shared:
         assert study[k] == pytest.approx(run[k], rel=1e-6, abs=1e-9), (k, study[k], run[k])
     # what does not apply to a boat on a track is reported by neither

@@ -164,10 +164,10 @@ class HoseFeed(ComponentKind):
         def signals(t, s, mode):
             return {"lift_pressure": rho_l * g * (s[2] - zs) if liquid else 0.0 * s[2]}
 
-        events: tuple[EventSpec, ...] = ()
-        if ops.any(p.run_time > 0.0):
-            # designs without a run time never stop (their stop time is beyond any flight)
-            tr = ops.where(p.run_time > 0.0, p.run_time, 1e300)
-            events = (EventSpec("feed stopped", lambda t, s, drive: t - tr, 1.0, ("feeding",), "stopped",
-                                needs_drive=False),)
+        # the event is there whatever the run time (a model's events must not depend on its values: an ensemble
+        # evaluates them for any subset of its designs); designs without a run time never stop (their stop time
+        # is beyond any flight)
+        tr = ops.where(p.run_time > 0.0, p.run_time, 1e300)
+        events = (EventSpec("feed stopped", lambda t, s, drive: t - tr, 1.0, ("feeding",), "stopped",
+                            needs_drive=False),)
         return SourceFns(supply=supply, signals=signals, events=events, rise=rise, inflow=inflow)

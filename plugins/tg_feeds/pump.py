@@ -53,7 +53,6 @@ Examples
 
 from __future__ import annotations
 
-import math
 
 import numpy as np
 
@@ -194,12 +193,12 @@ class Pump(ComponentKind):
                 dp = rho * dp
             return ops.where(mode == 1, 0.0 * dp, dp)        # stopped: an open passage
 
-        events: tuple[EventSpec, ...] = ()
-        if ops.any(p.run_time > 0.0):
-            # a design whose run_time is 0 never stops: its event function stays below zero
-            tr = ops.where(p.run_time > 0.0, p.run_time, math.inf)
-            events = (EventSpec("pump stopped", lambda t, s, drive: t - tr, 1.0, ("running",), "stopped",
-                                needs_drive=False),)
+        # the event is there whatever the run time (a model's events must not depend on its values: an ensemble
+        # evaluates them for any subset of its designs); a design whose run_time is 0 never stops (its stop time
+        # is beyond any flight: the event function stays below zero)
+        tr = ops.where(p.run_time > 0.0, p.run_time, 1e300)
+        events = (EventSpec("pump stopped", lambda t, s, drive: t - tr, 1.0, ("running",), "stopped",
+                            needs_drive=False),)
         def signals(up, p_down, mode=0):
             # the density of the liquid it pumps: with the mass flow and the pressure rise, the operating point
             return {"density": up[2]}

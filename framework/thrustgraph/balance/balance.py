@@ -169,9 +169,10 @@ class Balance:
         the segment when the vehicle comes to rest; 0 lets the friction follow the current speed (static
         friction at rest). For an ensemble ``slide`` may be an array over designs (each design's own way).
         """
-        if self._traceable:
-            # one design: a phase seen before is restored whole (outcomes set each segment's phase many times)
-            key = (tuple(modes), kinematics, descending, float(slide))
+        # one phase for every design (a single flight, or a segment's samples): a phase seen before is restored
+        # whole (outcomes set each segment's phase many times)
+        key = _phase_key(modes, kinematics, descending, slide)
+        if key is not None:
             known = self._phases.get(key)
             if known is not None:
                 self.__dict__.update(known)
@@ -240,12 +241,12 @@ class Balance:
         self._outlets = sorted({k for j, k in self._vessel_lines if self._live[j]})
         self._outlets_all = sorted({k for j, k in self._vessel_lines})
         self._outlets_terms = sorted({k for j, k in self._vessel_lines if self._live_terms[j]})
-        self._phase_key = (tuple(self.modes), self.kinematics, descending, float(slide)) if self._traceable else None
+        self._phase_key = key if self._traceable else None
         # this phase's straight lines by (request, number of states given): a solver without audits passes
         # the physical states alone, one with audits the accumulators too
         self._lines_now = self._lines_made.setdefault(("lines", self._phase_key), {})
-        if self._traceable:
-            self._phases[self._phase_key] = {k: self.__dict__[k] for k in _PHASE_ATTRIBUTES}
+        if key is not None:
+            self._phases[key] = {k: self.__dict__[k] for k in _PHASE_ATTRIBUTES}
 
     def _start_mode(self, ln: LinePlan) -> Any:
         return self._vmode[ln.start_index] if ln.from_vessel else self._smode[ln.start_index]
@@ -367,7 +368,7 @@ class Balance:
     def _solve(self, t: Any, s: Sequence[Any], want: str) -> Any:
         ops = self.ops
         plan = self.plan
-        full = want == "drives" or want == "ledger"
+        full = want == "drives" or want == "ledger" or want == "samples"
         vx, vy, vz = s[3], s[4], s[5]
         rho, pa, Ta, wx, wy, wz = plan.medium(s[2], t)
         g = plan.gravity(s[2])
@@ -437,18 +438,28 @@ class Balance:
         if want == "core":
             return derivs
         if want == "terms":
-            tx, ty, tz = T
-            for mdot, ve, pe, Ae, jd, Tj in jets:
-                tx = tx - Tj * jd[0]; ty = ty - Tj * jd[1]; tz = tz - Tj * jd[2]
-            return {"derivs": derivs, "accel": a, "thrust": (tx, ty, tz), "thrust_axial": _dot((tx, ty, tz), e), "mass": M,
-                    "drive": self._drives(sums.flows, pa), "singular": singular, "inflow": N, "axis": e}
+            return self._terms(derivs, a, T, jets, e, M, sums, pa, singular, N)
+        # "samples": the ledger with the snapshot outcomes read (a result's samples: one pass gives both)
+        terms = self._terms(list(derivs), a, T, jets, e, M, sums, pa, singular, N) if want == "samples" else None
         derivs.extend(self._accumulators(s, sums, jets, dirs, (Dx, Dy, Dz), W, (Px, Py, Pz), R, C))
         if want == "rhs":
             return derivs
         rec: dict[str, Any] = {"derivatives": derivs}
+        if terms is not None:
+            rec["terms"] = terms
         self._record(rec, t, s, M, e, a, drags, (0.0, 0.0, W), R, C, outs, sums, jets, supplies, dirs,
                      rho, pa, Ta, (wx, wy, wz), sp, g)
         return rec
+
+    def _terms(self, derivs: list, a: tuple, T: tuple, jets: list, e: tuple, M: Any, sums: Any, pa: Any,
+               singular: Any, N: tuple) -> dict[str, Any]:
+        """The snapshot outcomes read (:meth:`terms`): derivatives, acceleration, the gross thrust (every
+        opening's momentum flux and pressure thrust) as a vector and along the body axis, mass, drives, inflow."""
+        tx, ty, tz = T
+        for mdot, ve, pe, Ae, jd, Tj in jets:
+            tx = tx - Tj * jd[0]; ty = ty - Tj * jd[1]; tz = tz - Tj * jd[2]
+        return {"derivs": derivs, "accel": a, "thrust": (tx, ty, tz), "thrust_axial": _dot((tx, ty, tz), e), "mass": M,
+                "drive": self._drives(sums.flows, pa), "singular": singular, "inflow": N, "axis": e}
 
     def _axis(self, vr: tuple, sp: Any) -> tuple:
         """The body axis (world frame): the guide direction, or into the relative wind in free flight."""
@@ -813,6 +824,14 @@ class Balance:
 
 
 #: what :meth:`Balance.set_phase` derives from the phase (restored whole when a phase comes back)
+def _phase_key(modes: Sequence[Any], kinematics: Any, descending: bool, slide: Any) -> tuple | None:
+    """The key of a phase shared by every design (plain numbers), or None (a phase per design: an ensemble's)."""
+    if not all(isinstance(m, (int, np.integer)) for m in modes) or not isinstance(kinematics, (int, np.integer)) \
+            or not isinstance(slide, (int, float)):
+        return None
+    return (tuple(int(m) for m in modes), int(kinematics), bool(descending), float(slide))
+
+
 _PHASE_ATTRIBUTES = ("modes", "kinematics", "descending", "_bmode", "_force_fns", "_vmode", "_smode", "_jmode",
                      "_tmode", "_emode", "_kin", "_present", "_held_only", "slide", "_idle", "_live", "_live_all",
                      "_live_terms", "_only", "_vessel_lines", "_outlets", "_outlets_all", "_outlets_terms",

@@ -55,7 +55,7 @@ import numpy as np
 from .balance import Kinematics
 from ..base.errors import ModelError, PluginError
 from ..kinds.outcomespec import KEY_PATTERN, OutcomeSpec
-from .sampling import at_samples
+from .sampling import at_samples, dense_states
 from ..base.units import Q_
 from ..kinds.vehicle import KINDS, LABELS, VehicleProfile, vehicle_profile
 
@@ -74,7 +74,7 @@ class System(Protocol):
 
 __all__ = ["OutcomeSpec", "OUTCOMES", "G0", "Flight", "summarise", "run_summary", "output_names",
            "default_outputs", "check_outputs", "outcome", "kind_outcomes", "check_kind_outcomes", "markdown_table",
-           "outputs_by_vehicle", "HOVER_WINDOW",
+           "outputs_by_vehicle", "HOVER_WINDOW", "quadrature_nodes",
            "STATUS_OK", "STATUS_SCREENED", "STATUS_NOT_RUN"]
 
 #: Standard gravity, m/s^2 (exact by definition; CGPM 1901): the g0 of specific impulse and of accelerations
@@ -93,10 +93,21 @@ def _propulsive(system: System, modes: Sequence[int]) -> bool:
     return any(system.modes[n][modes[k]].propulsive for k, n in enumerate(system.moded))
 
 
-def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: float) -> float:
-    """Largest value of ``fun`` on [t_lo, t_hi] by a bounded scalar search, never below ``best``."""
+def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: float, end: float | None = None,
+                at_end: float | None = None) -> float:
+    """Largest value of ``fun`` on [t_lo, t_hi] by a bounded scalar search, never below ``best``.
+
+    ``end`` (``t_lo`` or ``t_hi``), where the largest of the solver's steps sits at an end of the interval, with
+    its value ``at_end``: when ``fun`` still rises toward that end (one probe a millionth of the interval inside),
+    the end is the largest value and no search is made. A search would only close in on the end by golden
+    sections (some 30 evaluations for the same value to ~1e-8 of the interval).
+    """
     if not t_hi > t_lo:
         return best
+    if end is not None and at_end is not None:
+        inside = end + (1e-6 if end == t_lo else -1e-6) * (t_hi - t_lo)
+        if fun(inside) <= at_end:
+            return max(best, at_end)
     # imported on first use, not with the module: scipy.optimize costs ~0.7 s to import, which a command that
     # computes no outcome (`thrustgraph check`) would pay (benchmarks/cli_startup.py)
     from scipy.optimize import minimize_scalar
@@ -104,6 +115,23 @@ def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: f
     res = minimize_scalar(lambda t: -fun(t), bounds=(t_lo, t_hi), method="bounded",
                           options={"xatol": 1e-12 * max(1.0, abs(t_hi)) + 1e-9 * (t_hi - t_lo)})
     return max(best, -float(res.fun))
+
+
+def quadrature_nodes(ph: Any, sol: Any, bal: Any) -> tuple[np.ndarray, np.ndarray] | None:
+    """(nodes, half step widths) of the 3-point Gauss-Legendre quadrature of the impulse on a segment's steps
+    (three nodes a step, in step order), or None for a segment the impulse leaves out (not powered, no dense
+    output, no step of positive length)."""
+    if not _propulsive(bal.system, ph.modes) and not bal.system.jets:
+        return None
+    if getattr(sol, "sol", None) is None:
+        return None
+    t = np.asarray(sol.t, dtype=float)
+    a, b = t[:-1], t[1:]
+    keep = b > a
+    if not keep.any():
+        return None
+    mid, half = 0.5 * (a[keep] + b[keep]), 0.5 * (b[keep] - a[keep])
+    return (mid[:, None] + half[:, None] * _GAUSS_X[None, :]).ravel(), half
 
 
 class Flight:
@@ -115,13 +143,28 @@ class Flight:
     outcome may use another (specific impulse uses the total impulse).
     """
 
-    def __init__(self, system: System, segs: Any) -> None:
+    def __init__(self, system: System, segs: Any, step_terms: Mapping[int, Any] | None = None,
+                 node_terms: Mapping[int, Any] | None = None) -> None:
         self.system = system
         self.segments = list(segs.segments)
         self.events = list(segs.events)
         self.dropped_mass = float(segs.dropped_mass)
         self.profile: VehicleProfile = vehicle_profile(system.parsed)
         self._values: dict[str, float] = {}
+        self._at_steps: dict[tuple[int, str], Any] = {}
+        # the terms at each segment's steps where the caller has them already (a run's samples hold the steps)
+        for j, snap in (step_terms or {}).items():
+            self._at_steps[(id(self.segments[j][1]), "terms")] = snap
+        # ... and at the quadrature nodes of the impulse (see quadrature_nodes)
+        self._node_terms: Mapping[int, Any] = node_terms or {}
+
+    def at_steps(self, sol: Any, bal: Any, want: str) -> Any:
+        """:func:`~thrustgraph.balance.sampling.at_samples` at a segment's steps, once per segment and request
+        (the peak thrust, net thrust and side force read the same snapshot)."""
+        key = (id(sol), want)
+        if key not in self._at_steps:
+            self._at_steps[key] = at_samples(bal, sol.t, sol.y, want)
+        return self._at_steps[key]
 
     # -- what outcome functions read ------------------------------------------
     def value(self, key: str) -> float:
@@ -180,9 +223,10 @@ class Flight:
         """
         # the largest step is refined; when it ends or starts its segment (an event), the neighbouring segment's
         # first or last step is refined too: the peak may rise just inside it, where none of its steps shows it
-        best, where, ends = -math.inf, [], []
+        best, where, ends, values = -math.inf, [], [], []
         for j, (ph, sol, bal) in enumerate(self.phased()):
             v = np.asarray(at_steps(ph, sol, bal), dtype=float)
+            values.append(v)
             k = int(np.argmax(v))
             ends.append(len(v) - 1)
             if v[k] > best:
@@ -201,8 +245,9 @@ class Flight:
             n = len(sol.t)
             if n > 1 and getattr(sol, "sol", None) is not None:
                 bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
-                top = _refine_max(dense(ph, sol, bal), float(sol.t[max(k - 1, 0)]), float(sol.t[min(k + 1, n - 1)]),
-                                  top)
+                lo, hi = float(sol.t[max(k - 1, 0)]), float(sol.t[min(k + 1, n - 1)])
+                end = lo if k == 0 else hi if k == n - 1 else None
+                top = _refine_max(dense(ph, sol, bal), lo, hi, top, end, float(values[j][k]))
         best = top
         return best
 
@@ -214,21 +259,16 @@ class Flight:
         Gauss-Legendre quadrature on the dense output. Both read the balance's own sums
         (:meth:`~thrustgraph.balance.balance.Balance.terms`: ``thrust`` and ``inflow``)."""
         gross = net = 0.0
-        for ph, sol, bal in self.phased():
-            if not _propulsive(bal.system, ph.modes) and not bal.system.jets:
+        for j, (ph, sol, bal) in enumerate(self.phased()):
+            quad = quadrature_nodes(ph, sol, bal)
+            if quad is None:
                 continue
-            if getattr(sol, "sol", None) is None:
-                continue
-            t = np.asarray(sol.t, dtype=float)
-            a, b = t[:-1], t[1:]
-            keep = b > a
-            if not keep.any():
-                continue
-            mid, half = 0.5 * (a[keep] + b[keep]), 0.5 * (b[keep] - a[keep])
-            nodes = (mid[:, None] + half[:, None] * _GAUSS_X[None, :]).ravel()
-            ys = sol.sol(nodes)
+            nodes, half = quad
             n = len(nodes)
-            snap = at_samples(bal, nodes, ys, "terms")
+            snap = self._node_terms.get(j)
+            if snap is None:
+                ys = dense_states(sol, nodes)
+                snap = at_samples(bal, nodes, ys, "terms")
             if snap is not None:
                 tv = [np.asarray(c, dtype=float) + np.zeros(n) for c in snap["thrust"]]
                 nv = [np.asarray(c, dtype=float) + np.zeros(n) for c in snap["inflow"]]
@@ -261,7 +301,7 @@ class Flight:
                 return float(sol.t[k])
             # imported on first use, like minimize_scalar (_refine_max): scipy.optimize is slow to import
             from scipy.optimize import brentq
-            return float(brentq(lambda t: fun(sol.sol(t)) - level, float(sol.t[k - 1]), float(sol.t[k]),
+            return float(brentq(lambda t: fun(dense_states(sol, t)) - level, float(sol.t[k - 1]), float(sol.t[k]),
                                 xtol=1e-12 * max(1.0, abs(float(sol.t[k]))), rtol=1e-13))
         return math.nan
 
@@ -279,7 +319,7 @@ class Flight:
                                       + [t[-1:]])
                 grid = np.concatenate([[start], grid[grid > start]]) if grid[0] < start else grid
                 ts.append(grid)
-                ys.append(sol.sol(grid))
+                ys.append(dense_states(sol, grid))
             else:
                 keep = t >= start
                 ts.append(t[keep])
@@ -295,18 +335,19 @@ def _norm3(v: Any) -> float:
 
 def _apogee(f: Flight) -> float:
     return f.peak(lambda ph, sol, bal: sol.y[2],
-                  lambda ph, sol, bal: (lambda t: float(sol.sol(t)[2]))) + 0.0
+                  lambda ph, sol, bal: (lambda t: float(dense_states(sol, t)[2]))) + 0.0
 
 
 def _max_speed(f: Flight) -> float:
     return f.peak(lambda ph, sol, bal: np.linalg.norm(sol.y[3:6], axis=0),
-                  lambda ph, sol, bal: (lambda t: _norm3(sol.sol(t)[3:6])))
+                  lambda ph, sol, bal: (lambda t: _norm3(dense_states(sol, t)[3:6])))
 
 
-def _accel_steps(ph: Any, sol: Any, bal: Any) -> np.ndarray:
+def _accel_steps(flight: Flight, ph: Any, sol: Any, bal: Any) -> np.ndarray:
     if ph.kin == Kinematics.HELD:
         return np.zeros(len(sol.t))
-    d = at_samples(bal, sol.t, sol.y, "core")
+    snap = flight.at_steps(sol, bal, "terms")      # the snapshot the peak thrusts read: its derivatives
+    d = snap["derivs"] if snap is not None else None
     if d is not None:
         return np.sqrt(d[3] * d[3] + d[4] * d[4] + d[5] * d[5]) + np.zeros(len(sol.t))
     return np.array([_norm3(bal.rhs(float(sol.t[k]), sol.y[:, k])[3:6]) for k in range(len(sol.t))])
@@ -315,11 +356,11 @@ def _accel_steps(ph: Any, sol: Any, bal: Any) -> np.ndarray:
 def _accel_dense(ph: Any, sol: Any, bal: Any) -> Callable[[float], float]:
     if ph.kin == Kinematics.HELD:
         return lambda t: 0.0
-    return lambda t: _norm3(bal.rhs(t, sol.sol(t))[3:6])
+    return lambda t: _norm3(bal.rhs(t, dense_states(sol, t))[3:6])
 
 
 def _peak_acceleration(f: Flight) -> float:
-    return f.peak(_accel_steps, _accel_dense)
+    return f.peak(lambda ph, sol, bal: _accel_steps(f, ph, sol, bal), _accel_dense)
 
 
 def _axial(snap: Mapping[str, Any], net: bool) -> Any:
@@ -343,11 +384,11 @@ def _peak_of(f: Flight, of: Callable[[Mapping[str, Any]], Any]) -> float:
     # the balance's snapshot without the ledger (its sums are the numbers evaluate() records), over the arrays of
     # a segment's steps where the vehicle allows it (thrustgraph.balance.sampling)
     def at_steps(ph: Any, sol: Any, bal: Any) -> Any:
-        snap = at_samples(bal, sol.t, sol.y, "terms")
+        snap = f.at_steps(sol, bal, "terms")
         if snap is not None:
             return np.asarray(of(snap), dtype=float) + np.zeros(len(sol.t))
         return [of(bal.terms(float(sol.t[k]), sol.y[:, k].tolist())) for k in range(len(sol.t))]
-    return f.peak(at_steps, lambda ph, sol, bal: (lambda t: float(of(bal.terms(t, sol.sol(t).tolist())))))
+    return f.peak(at_steps, lambda ph, sol, bal: (lambda t: float(of(bal.terms(t, dense_states(sol, t).tolist())))))
 
 
 def _peak_thrust(f: Flight) -> float:
@@ -359,6 +400,18 @@ def _peak_net_thrust(f: Flight) -> float:
 
 
 def _peak_side_force(f: Flight) -> float:
+    # a thrust along the body axis leaves only its rounding across it (~1e-16 of the thrust): when the solver's
+    # steps show no more than 1e-9 of the largest thrust, their largest value is the answer (a search between the
+    # steps would chase rounding); a sideways opening's push is refined like any peak
+    side = thrust = 0.0
+    for _ph, sol, bal in f.phased():
+        snap = f.at_steps(sol, bal, "terms")
+        if snap is None:
+            return _peak_of(f, _side)
+        side = max(side, float(np.max(np.asarray(_side(snap), dtype=float))))
+        thrust = max(thrust, float(np.max(np.abs(np.asarray(snap["thrust_axial"], dtype=float)))))
+    if side <= 1e-9 * thrust:
+        return side
     return _peak_of(f, _side)
 
 
@@ -728,9 +781,14 @@ def summarise(system: System, segs: Any, outputs: Sequence[str] | None = None) -
     return {k: flight.value(k) for k in OUTCOMES if k in want}
 
 
-def run_summary(system: System, segs: Any) -> dict[str, float]:
-    """The summary of a single run: every core outcome that applies to the vehicle and happened (finite)."""
-    flight = Flight(system, segs)
+def run_summary(system: System, segs: Any, step_terms: Mapping[int, Any] | None = None,
+                node_terms: Mapping[int, Any] | None = None) -> dict[str, float]:
+    """The summary of a single run: every core outcome that applies to the vehicle and happened (finite).
+
+    ``step_terms`` and ``node_terms``: segment index -> the :meth:`~thrustgraph.balance.balance.Balance.terms`
+    snapshot at its steps and at its :func:`quadrature_nodes`, where the caller evaluated them already (a run
+    evaluates them in the same pass as its output samples)."""
+    flight = Flight(system, segs, step_terms, node_terms)
     out = {}
     for k, spec in OUTCOMES.items():
         if spec.applies(flight.profile):

@@ -24,12 +24,14 @@ Examples
 
 from __future__ import annotations
 
+import weakref
+from bisect import bisect_left
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 
-__all__ = ["SampleTable", "sample_terms", "join_tables", "at_samples"]
+__all__ = ["SampleTable", "sample_terms", "join_tables", "at_samples", "dense_states", "take_samples"]
 
 
 @dataclass
@@ -39,6 +41,9 @@ class SampleTable:
     n: int
     values: dict[str, np.ndarray] = field(default_factory=dict)
     ledger: dict[tuple[str, str], np.ndarray] = field(default_factory=dict)
+    #: the snapshot of :meth:`~thrustgraph.balance.balance.Balance.terms` at the same samples (from the same pass
+    #: over arrays; None when the samples were evaluated one by one)
+    terms: dict[str, Any] | None = None
 
 
 def _one(v: Any, n: int) -> np.ndarray:
@@ -59,7 +64,7 @@ def _column(v: Any, n: int) -> np.ndarray:
 def _from_snapshot(snap: dict, n: int) -> SampleTable:
     table = SampleTable(n)
     for k, v in snap.items():
-        if k in ("ledger", "derivatives", "time"):
+        if k in ("ledger", "derivatives", "time", "terms"):
             continue
         table.values[k] = _column(v, n)
     for comp, term, vec in snap["ledger"]:
@@ -76,8 +81,10 @@ def sample_terms(bal: Any, t: np.ndarray, y: np.ndarray) -> SampleTable:
     many = bal.sampling_balance() if n > 1 else None
     if many is not None:
         many.set_phase(bal.modes, bal.kinematics, bal.descending, bal.slide)
-        snap = many._solve(np.asarray(t, dtype=float), [row for row in np.asarray(y, dtype=float)], "ledger")
-        return _from_snapshot(snap, n)
+        snap = many._solve(np.asarray(t, dtype=float), [row for row in np.asarray(y, dtype=float)], "samples")
+        table = _from_snapshot(snap, n)
+        table.terms = snap["terms"]
+        return table
     return _from_snapshots([bal.evaluate(float(t[k]), y[:, k]) for k in range(n)])
 
 
@@ -117,6 +124,23 @@ def at_samples(bal: Any, t: np.ndarray, y: np.ndarray, want: str) -> Any:
     return many._solve(np.asarray(t, dtype=float), [row for row in np.asarray(y, dtype=float)], want)
 
 
+def take_samples(snap: Any, index: np.ndarray, n: int) -> Any:
+    """A snapshot over n samples (arrays of length n, numbers shared by all, tuples, lists and dicts of them)
+    at the samples ``index`` only.
+
+    >>> import numpy as np
+    >>> take_samples({"a": np.arange(4.0), "b": 2.0, "c": (np.arange(4.0), 0.0)}, np.array([1, 3]), 4)
+    {'a': array([1., 3.]), 'b': 2.0, 'c': (array([1., 3.]), 0.0)}
+    """
+    if isinstance(snap, dict):
+        return {k: take_samples(v, index, n) for k, v in snap.items()}
+    if isinstance(snap, (tuple, list)):
+        return type(snap)(take_samples(v, index, n) for v in snap)
+    if isinstance(snap, np.ndarray) and snap.ndim >= 1 and snap.shape[0] == n:
+        return snap[index]
+    return snap
+
+
 def join_tables(tables: list[SampleTable]) -> SampleTable:
     """Tables one after another (a name missing from a table is NaN there; a ledger term missing is zero)."""
     n = sum(tb.n for tb in tables)
@@ -153,3 +177,82 @@ def join_tables(tables: list[SampleTable]) -> SampleTable:
             at += tb.n
         out.ledger[k] = col
     return out
+
+
+#: DOP853's dense-output tables of a segment's solution, stacked once per solution (see :func:`dense_states`)
+_TABLES: "weakref.WeakKeyDictionary[Any, tuple | None]" = weakref.WeakKeyDictionary()
+
+
+def _dop853_tables(ode: Any) -> tuple | None:
+    """(step starts, t_old, h, F, y_old, and the first three as lists) of every step of an ascending DOP853 solution, stacked; None for any
+    other (another method, a descending or one-point solution)."""
+    try:
+        return _TABLES[ode]
+    except (KeyError, TypeError):
+        pass
+    made = None
+    interps = getattr(ode, "interpolants", None)
+    ts = getattr(ode, "ts", None)
+    if interps and ts is not None and len(ts) == len(interps) + 1 and ts[-1] > ts[0] \
+            and all(type(ip).__name__ == "Dop853DenseOutput" for ip in interps):
+        starts = np.array([ip.t_old for ip in interps], dtype=float)
+        widths = np.array([ip.h for ip in interps], dtype=float)
+        made = (np.asarray(ts, dtype=float), starts, widths, np.stack([ip.F for ip in interps]),
+                np.stack([ip.y_old for ip in interps]), [float(v) for v in ts], starts.tolist(), widths.tolist())
+    try:
+        _TABLES[ode] = made
+    except TypeError:
+        pass
+    return made
+
+
+def dense_states(sol: Any, t: Any) -> np.ndarray:
+    """The states of a segment's dense output at the times ``t`` (states by times; a time alone gives the state
+    vector), as ``sol.sol(t)``.
+
+    For DOP853 (the default method) every time is evaluated in one vectorised pass over the steps' polynomial
+    tables: the step each time falls in is chosen as scipy's ``OdeSolution`` chooses it (a step's end belongs to
+    the step it ends) and the polynomial is evaluated with the same operations in the same order as scipy's
+    ``Dop853DenseOutput``, so the numbers are the same (``tests/test_dense_states.py`` checks ``==``); it saves
+    scipy's call per step, which cost more than the arithmetic. Other methods go through ``sol.sol``.
+
+    >>> import numpy as np
+    >>> from scipy.integrate import solve_ivp
+    >>> sol = solve_ivp(lambda t, y: [y[1], -y[0]], (0.0, 3.0), [0.0, 1.0], method="DOP853", dense_output=True)
+    >>> t = np.linspace(0.0, 3.0, 7)
+    >>> bool((dense_states(sol, t) == sol.sol(t)).all()), bool((dense_states(sol, 1.3) == sol.sol(1.3)).all())
+    (True, True)
+    """
+    ode = sol.sol
+    tables = _dop853_tables(ode)
+    if tables is None:
+        return ode(t)
+    ts, t_old, h, F, y_old, ts_list, t_old_list, h_list = tables
+    t = np.asarray(t, dtype=float)
+    if t.ndim == 0:       # one time: scipy's own scalar arithmetic on that step's table, without numpy's search
+        tv = float(t)
+        k = min(max(bisect_left(ts_list, tv) - 1, 0), len(t_old) - 1)
+        x = (tv - t_old_list[k]) / h_list[k]
+        one = np.zeros_like(y_old[k])
+        table = F[k]
+        for i in range(table.shape[0]):
+            one += table[table.shape[0] - 1 - i]
+            if i % 2 == 0:
+                one *= x
+            else:
+                one *= 1 - x
+        one += y_old[k]
+        return one
+    seg = np.clip(np.searchsorted(ts, t, side="left") - 1, 0, len(t_old) - 1)
+    x = ((t - t_old[seg]) / h[seg])[:, None]
+    coeffs = F[seg]
+    y = np.zeros((len(t), F.shape[2]), dtype=y_old.dtype)
+    order = F.shape[1]
+    for i in range(order):
+        y += coeffs[:, order - 1 - i, :]
+        if i % 2 == 0:
+            y *= x
+        else:
+            y *= 1 - x
+    y += y_old[seg]
+    return y.T

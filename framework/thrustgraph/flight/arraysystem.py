@@ -35,6 +35,7 @@ from ..balance.arrayops import vectorised
 from ..balance.balance import Balance, Kinematics, array_line
 from ..balance.plan import KINEMATIC, Constraint, build_plan
 from ..balance.straightline import array_trace_ops
+from ..base.errors import PluginError
 from ..base.xp import array_ops
 from ..kinds.component import Ambient
 from ..models.designs import DesignParameter, with_values
@@ -193,7 +194,21 @@ class ArraySystem:
             plan = build_plan(parsed, self.kp, self.ep, array_ops, self.amb, self.slices, self.moded, constraint)
             self._made = (plan, None)        # the balance reads the plan as it is made
             self._made = (plan, Balance(self, ops=array_ops))
+            if self.root is not self:
+                self._same_events()
         return self._made
+
+    def _same_events(self) -> None:
+        """A subset's plan declares the events of the whole system's (the integrator indexes them)."""
+        mine, whole = list(self.plan.events), list(self.root.plan.events)
+        if [(c, e.name) for c, e in mine] != [(c, e.name) for c, e in whole]:
+            had, has = {(c, e.name) for c, e in whole}, {(c, e.name) for c, e in mine}
+            c, name = sorted(had ^ has)[0]
+            kind = self.parsed.kinds[c]
+            raise PluginError(f"kind {kind.kind!r} (component {c!r}) declares the event {name!r} for some designs "
+                              "and not for others: a kind's events may not depend on its parameter values. Fix: "
+                              "declare the event always, with an event function that never crosses zero where "
+                              "it does not apply (the plugin's author)")
 
     @property
     def plan(self) -> Any:
@@ -251,6 +266,7 @@ class ArraySystem:
         if any(p.section != "components" for p in self.params):   # varied environment or launch
             new = ArraySystem(self.parsed, self.params, self.x[idx], initial=False)
             new.root, new.root_rows, new.has_jets = self.root, rows, self.has_jets
+            new._same_events()
             return new
         new = object.__new__(ArraySystem)
         new.__dict__.update(self.__dict__)        # the state layout, modes and launch are shared
@@ -268,7 +284,7 @@ class ArraySystem:
         new.kin0 = np.full(n, Kinematics.BY_MOUNT[self.parsed.launch.mount], dtype=np.int8)
         new.mode0 = np.zeros((len(self.moded), n), dtype=np.int8)
         new.root_rows = rows
-        new._build(now=False)
+        new._build(now=False)       # its plan is built when first needed (and its events checked then)
         return new
 
     def index(self, name: str) -> int:

@@ -32,9 +32,9 @@ __all__ = ["System", "assemble", "ACCUMULATORS", "KINEMATIC", "constraint_of"]
 
 
 class LineCache(dict):
-    """What the balance compiles for a system (straight lines by phase, see
-    :mod:`thrustgraph.balance.straightline`); pickled empty (compiled code does not travel between processes: each
-    traces its own)."""
+    """What is derived once for a system: the straight lines the balance compiles by phase (see
+    :mod:`thrustgraph.balance.straightline`) and the provenance of its results; pickled empty (compiled code does
+    not travel between processes: each traces its own)."""
 
     def __reduce__(self) -> tuple:
         return (LineCache, ())

@@ -85,7 +85,7 @@ __all__ = ["fly_designs", "EnsembleResult", "unsupported", "COMPUTED", "DOPRI_C"
 #: Outcomes that do not apply to a design's vehicle (:mod:`thrustgraph.kinds.vehicle`) are NaN, as in a single flight.
 COMPUTED = ("apogee", "range", "impact_x", "impact_y", "flight_time", "run_time", "max_speed", "peak_acceleration",
             "total_impulse", "burn_time", "propellant_expelled", "launch_mass", "peak_vessel_pressure",
-            "guide_exit_speed", "impact_speed", "dropped_mass")
+            "guide_exit_speed", "impact_speed", "dropped_mass", "top_speed", "powered_time", "distance")
 #: the fate of a design that separated a stage: it flies on as the next vehicle
 _SEPARATED = "separated"
 
@@ -777,9 +777,13 @@ class _Run:
         out["apogee"][g] = np.where(self.gpos[idx], np.where(np.isfinite(ap), np.maximum(ap, self.zmax[idx]),
                                                              self.zmax[idx]), np.nan)
         out["max_speed"][g] = self.vmax[idx]
+        out["top_speed"][g] = self.vmax[idx]            # the largest speed, of a vehicle on a track
+        d = [Y[c, idx] - self.x_first[c, idx] for c in range(3)]
+        out["distance"][g] = d[0] * sysa.u[0][idx] + d[1] * sysa.u[1][idx] + d[2] * sysa.u[2][idx]
         out["peak_acceleration"][g] = self.amax[idx]
         out["total_impulse"][g] = Y[-1, idx]
         out["burn_time"][g] = self.burn[idx]
+        out["powered_time"][g] = self.burn[idx]         # the same time, of a vehicle fed from outside
         M = np.broadcast_to(sysa.masses(Y), (self.n,))
         out["propellant_expelled"][g] = out["launch_mass"][g] - M[idx] - self.dropped[idx]
         out["dropped_mass"][g] = self.dropped[idx] if self.staged else np.nan

@@ -31,9 +31,9 @@ from ..balance.balance import Balance, Kinematics
 from ..base.errors import IntegrationError, ModelError, PluginError
 from ..base.limits import check_output_samples
 from ..models.model import Model, ParsedModel
-from ..balance.outcomes import OUTCOMES, kind_outcomes, run_summary
+from ..balance.outcomes import OUTCOMES, kind_outcomes, quadrature_nodes, run_summary
 from .result import Audit, Event, FlightResult, Phase, signal_unit
-from ..balance.sampling import SampleTable, join_tables, sample_terms
+from ..balance.sampling import SampleTable, dense_states, join_tables, sample_terms, take_samples
 from .separation import separate
 from .signallog import signal_events
 from ..models.staging import KINEMATIC_SIGNALS, Trigger, condition, resolve_thresholds
@@ -669,8 +669,17 @@ class _Samples:
     rows: list[tuple[np.ndarray, tuple[str, ...]]] = field(default_factory=list)
     tables: list[SampleTable] = field(default_factory=list)
     pieces: list[tuple] = field(default_factory=list)   # (phase, solution, balance, times, signals) per segment
+    step_terms: dict[int, Any] = field(default_factory=dict)   # segment -> Balance.terms at its steps
+    node_terms: dict[int, Any] = field(default_factory=dict)   # ... and at its impulse quadrature nodes
     phases: list[Phase] = field(default_factory=list)
     names: list[str] = field(default_factory=list)
+
+
+def _first_samples(table: SampleTable, m: int) -> SampleTable:
+    """The table's first m samples (its terms kept whole: the caller takes what it needs of them)."""
+    out = SampleTable(m, {k: v[:m] for k, v in table.values.items()}, {k: v[:m] for k, v in table.ledger.items()})
+    out.terms = table.terms
+    return out
 
 
 def _build_result(system: System, segs: Segments) -> FlightResult:
@@ -685,7 +694,7 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
     res = FlightResult(t=t, y=y, state_names=tuple(names), signals=signals, ledger=ledger, phases=samples.phases,
                        events=segs.events, audit=audit, success=segs.status == 0, status=segs.status,
                        message=segs.message, nfev=segs.nfev)
-    _summarise(res, system, segs)
+    _summarise(res, system, segs, samples)
     logged = signal_events(samples.pieces)
     if logged:       # in time order, after the integrator's events of the same instant
         res.events = sorted(list(segs.events) + logged, key=lambda e: e.t)
@@ -694,7 +703,7 @@ def _build_result(system: System, segs: Segments) -> FlightResult:
         for c in cls.flight_cautions(n, system.parsed.params[n], res):
             if c not in res.cautions:
                 res.cautions.append(c)
-    res.provenance = provenance(system.parsed)
+    res.provenance = _provenance_of(system)
     return res
 
 
@@ -712,10 +721,25 @@ def _sample(segs: Segments, interval: float) -> _Samples:
         grid = grid[grid < t1]   # arange's rounding can put its last point past the end (times would go back)
         tt = np.union1d(sol.t, grid)
         uniq_t, first = np.unique(sol.t, return_index=True)
-        yy = sol.sol(tt) if len(tt) > len(uniq_t) else sol.y[:, first].copy()
+        yy = dense_states(sol, tt) if len(tt) > len(uniq_t) else sol.y[:, first].copy()
         yy[:, np.searchsorted(tt, uniq_t)] = sol.y[:, first]   # keep the solver's own points exact
         bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
-        out.tables.append(sample_terms(bal, tt, yy))
+        # the impulse's quadrature nodes are evaluated in the same pass as the samples; the solver's steps are
+        # among the samples: the outcomes read both from this pass
+        quad = quadrature_nodes(ph, sol, bal)
+        m = len(tt)
+        if quad is not None:
+            table = sample_terms(bal, np.concatenate([tt, quad[0]]), np.hstack([yy, dense_states(sol, quad[0])]))
+            table = _first_samples(table, m)
+        else:
+            table = sample_terms(bal, tt, yy)
+        out.tables.append(table)
+        if table.terms is not None:
+            j = len(out.tables) - 1
+            whole = m + (len(quad[0]) if quad is not None else 0)
+            out.step_terms[j] = take_samples(table.terms, np.searchsorted(tt, sol.t), whole)
+            if quad is not None:
+                out.node_terms[j] = take_samples(table.terms, np.arange(m, whole), whole)
         out.pieces.append((ph, sol, bal, tt, out.tables[-1].values))
         out.ts.append(tt)
         out.rows.append((yy, bal.system.state_names))
@@ -794,11 +818,11 @@ def _audit(signals: dict[str, np.ndarray], last: np.ndarray, index: dict[str, in
                  internal_defect=float(np.linalg.norm(pintf - pint0 - dpint)))
 
 
-def _summarise(res: FlightResult, system: System, segs: Segments) -> None:
+def _summarise(res: FlightResult, system: System, segs: Segments, samples: _Samples) -> None:
     """The summary from the outcome registry, then the outcomes the component kinds declare, with units."""
     res.units.update(signal_units(system.parsed, res.signals))
     res.vehicle = vehicle_profile(system.parsed)
-    res.summary = run_summary(system, segs)
+    res.summary = run_summary(system, segs, samples.step_terms, samples.node_terms)
     res.outcome_specs = {k: OUTCOMES[k] for k in res.summary}
     declared = kind_outcomes(system.parsed.kinds)
     for n, cls in system.parsed.kinds.items():
@@ -810,6 +834,15 @@ def _summarise(res: FlightResult, system: System, segs: Segments) -> None:
             res.summary[spec.key] = float(value)
             res.units[spec.key] = spec.unit
             res.outcome_specs[spec.key] = spec
+
+
+def _provenance_of(system: System) -> dict[str, Any]:
+    """:func:`provenance` of the system's model, made once per assembled system and kept with what else is
+    derived once for it (``System.straight_lines``): writing the model out to hash it costs ~1 ms a flight."""
+    made = system.straight_lines.get(("provenance",))
+    if made is None:
+        made = system.straight_lines[("provenance",)] = provenance(system.parsed)
+    return {k: dict(v) if isinstance(v, dict) else v for k, v in made.items()}
 
 
 def provenance(parsed: ParsedModel) -> dict[str, Any]:

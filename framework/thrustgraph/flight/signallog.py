@@ -23,6 +23,7 @@ from typing import Any, Iterable
 
 import numpy as np
 
+from ..balance.sampling import dense_states
 from .result import Event
 
 __all__ = ["signal_events", "MAX_CHANGES"]
@@ -40,7 +41,7 @@ def _locate(bal: Any, ph: Any, sol: Any, key: str, t_lo: float, t_hi: float, bef
         if t_hi - t_lo <= 1e-9 * max(1.0, abs(t_hi)):
             break
         mid = 0.5 * (t_lo + t_hi)
-        v = bal.evaluate(mid, sol.sol(mid)).get(key, math.nan)
+        v = bal.evaluate(mid, dense_states(sol, mid)).get(key, math.nan)
         if v == before:
             t_lo = mid
         else:
