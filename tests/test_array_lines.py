@@ -143,3 +143,31 @@ def test_the_array_dialect_keeps_array_ops_rules():
     np.testing.assert_array_equal(out[0], [4.0, 12.0])
     with pytest.raises(TraceError):
         compile_function(lambda t, s: [1.0 if ops.any(s[0] > 0.0) else 0.0], 1, designs=4)
+
+
+def test_a_builders_iteration_over_values_per_design_runs_at_trace_time(monkeypatch):
+    """A converging-diverging nozzle whose area ratio differs between designs solves its exit Mach numbers
+    when it is built, by an iteration over those values: traced over arrays, it runs then (values, not
+    symbols), so that nothing the builder keeps leaks from one phase's trace into the next."""
+    path = next(p for p in MODELS if p.stem == "cold-gas-free-floater")
+    parsed = parse_model(tg.load_model(path).set("launch.mount", "guide"))     # two phases with flow
+    params = [resolve(parsed, "components.main.area_ratio"), resolve(parsed, "components.tank.gauge_pressure")]
+    rng = np.random.default_rng(11)
+    n = 5
+    x = np.column_stack([rng.uniform(15.0, 40.0, n), rng.uniform(20e5, 40e5, n)])
+    sysa = ArraySystem(parsed, params, x)
+    Y = sysa.y0.copy()
+    Y[3:6] = rng.uniform(0.0, 5.0, (3, n))
+    monkeypatch.setattr(arraysystem, "LINES_AFTER", 1)
+    phases = [(m, kin) for m in range(len(sysa.modes[sysa.moded[0]])) for kin in sorted({int(sysa.kin0[0]), FREE})]
+    assert len(phases) > 1
+    for m, kin in phases:
+        modes = np.full_like(sysa.mode0, m)
+        k = np.full(n, kin, dtype=np.int8)
+        ph = sysa.phase(modes, k, np.zeros(n))
+        d1, _ = sysa.rhs(np.zeros(n), Y, modes, k, phase=ph)
+        monkeypatch.setattr(arraysystem, "LINES_AFTER", 0)
+        d0, _ = sysa.rhs(np.zeros(n), Y, modes, k, phase=ph)
+        monkeypatch.setattr(arraysystem, "LINES_AFTER", 1)
+        np.testing.assert_array_equal(d1, d0)
+    assert not sysa.untraced and sum(callable(v) for v in sysa._lines.values()) == len(phases)

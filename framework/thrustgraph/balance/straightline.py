@@ -669,6 +669,28 @@ class ArrayTraceOps(TraceOps):
     def refuse(cond: Any, error: type, message: str) -> None:
         """Nothing over arrays (as :meth:`ArrayOps.refuse`): the caller flags the designs."""
 
+    def iterate(self, carry: Any, test: Callable, step: Callable, n: int) -> tuple[Any, Any]:
+        """As :meth:`TraceOps.iterate`; an iteration on values known at trace time (a builder's root search over
+        parameters per design) runs now, as :meth:`ArrayOps.iterate` runs it, and gives values, not symbols."""
+        lv: list = []
+        _flatten(carry, lv)
+        if all(_static(v) for v in lv):
+            now, aux = carry, None
+            for it in range(n):
+                stop, aux = test(now)
+                if not _static(stop):
+                    break
+                if it and bool(np.all(stop)):
+                    return now, aux
+                now = step(now, aux)
+                lv = []
+                _flatten(now, lv)
+                if not all(_static(v) for v in lv):
+                    break
+            else:
+                return now, aux
+        return TraceOps.iterate(carry, test, step, n)
+
 
 array_trace_ops = ArrayTraceOps()
 
@@ -714,6 +736,36 @@ def _prune(block: _Block, live: set) -> list:
             raise TraceError(f"unknown statement {kind}")
     kept.reverse()
     return kept
+
+
+def _assigned(stmts: list, names: set) -> None:
+    """The names the statements assign (at any depth)."""
+    for st in stmts:
+        if st[0] == "=":
+            names.add(st[1])
+        elif st[0] == "if":
+            _assigned(st[3], names)
+            _assigned(st[4], names)
+            names.update(st[5])
+        elif st[0] == "loop":
+            _assigned(st[2], names)
+            _assigned(st[5], names)
+            names.update(st[6])
+
+
+def _read(stmts: list, names: set) -> None:
+    """The names the statements read (at any depth)."""
+    for st in stmts:
+        if st[0] == "=":
+            names.update(st[3])
+        elif st[0] == "if":
+            names.update(st[2])
+            _read(st[3], names)
+            _read(st[4], names)
+        elif st[0] == "loop":
+            names.update(st[4])
+            _read(st[2], names)
+            _read(st[5], names)
 
 
 def _raises(block: Any) -> bool:
@@ -851,6 +903,13 @@ def compile_function(body: Callable[[Any, list], Sequence[Any]], n_states: int, 
     ret = _source_of(result, live, rec)
     stmts = _prune(rec.block, live)
     ns = dict(rec.namespace)
+    known = set(ns) | {"t"} | {f"s{k}" for k in range(n_states)}
+    _assigned(stmts, known)
+    read = set(live)
+    _read(stmts, read)
+    if not read <= known:
+        raise TraceError(f"the trace reads values it never computed ({', '.join(sorted(read - known)[:3])}): a "
+                         "value kept from another trace")
     per_design: list[str] = []
     if arrays:
         for nm in sorted(rec.numbers, key=lambda v: int(v[1:])):

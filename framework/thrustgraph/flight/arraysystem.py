@@ -110,7 +110,7 @@ class ArraySystem:
                 env.setdefault(p.owner, {})[p.name] = col
             else:
                 launch[p.name] = col
-        self._comp_changes = comp
+        self._comp_changes, self._env_changes, self._launch_changes = comp, env, launch
         self.kp = {nm: _vary(parsed.params[nm], comp.get(nm, {})) for nm in parsed.model.components}
         self.ep = {slot: _vary(parsed.env_params[slot], env.get(slot, {})) for slot in parsed.env_params}
         L = _vary(parsed.launch, launch)
@@ -180,6 +180,7 @@ class ArraySystem:
         self._phase_set: "Phase | None" = None   # the phase the balance is set to (see _use)
         self._per_design: dict = {}              # each straight line's values per design, for these rows
         self._made: tuple | None = None          # (plan, balance)
+        self._split: PhaseGroups | None = None   # its designs grouped by phase
         if now:
             self._make()
             self.has_jets = bool(self.plan.jets)
@@ -258,23 +259,34 @@ class ArraySystem:
         """The same model for some of the designs (rows ``idx``), for compaction and event location.
 
         The same system as ``ArraySystem(parsed, params, x[idx], initial=False)`` (no initial states),
-        made by taking rows of this one's per-design arrays and building only the plugins' callables anew
-        (the integrator asks for a subset at most steps: one per step with events).
+        made by taking rows of this one's per-design arrays (every one is computed design by design) and
+        building the plugins' callables anew when first needed (the integrator asks for a subset at most steps:
+        one per step with events, one per group of designs in one phase).
         """
         idx = np.asarray(idx)
         rows = idx if self.root_rows is None else self.root_rows[idx]
-        if any(p.section != "components" for p in self.params):   # varied environment or launch
-            new = ArraySystem(self.parsed, self.params, self.x[idx], initial=False)
-            new.root, new.root_rows, new.has_jets = self.root, rows, self.has_jets
-            new._same_events()
-            return new
         new = object.__new__(ArraySystem)
-        new.__dict__.update(self.__dict__)        # the state layout, modes and launch are shared
+        new.__dict__.update(self.__dict__)        # the state layout and modes are shared
         new.x = self.x[idx]
         n = new.n = len(new.x)
-        new._comp_changes = {nm: {f: v[idx] for f, v in ch.items()} for nm, ch in self._comp_changes.items()}
+
+        def taken(changes: dict) -> dict:
+            return {owner: {f: v[idx] for f, v in ch.items()} for owner, ch in changes.items()}
+        new._comp_changes = taken(self._comp_changes)
         new.kp = {nm: _vary(self.parsed.params[nm], new._comp_changes[nm]) if nm in new._comp_changes else p
                   for nm, p in self.kp.items()}
+        if self._env_changes:
+            new._env_changes = taken(self._env_changes)
+            new.ep = {slot: _vary(self.parsed.env_params[slot], new._env_changes.get(slot, {}))
+                      for slot in self.parsed.env_params}
+            new.medium = self.parsed.env_kinds["medium"].build(new.ep["medium"], array_ops)
+            new.gravity = self.parsed.env_kinds["gravity"].build(new.ep["gravity"], array_ops)
+        if self._launch_changes:
+            new._launch_changes = {f: v[idx] for f, v in self._launch_changes.items()}
+            new.launch = _vary(self.parsed.launch, new._launch_changes)
+            new.mu = new.launch.friction
+            if np.ndim(self.vmin):
+                new.vmin = self.vmin[idx]
         a = self.amb
         new.amb = Ambient(*(v[idx] if np.ndim(v) else v for v in (a.pressure, a.temperature, a.density)))
         new.u = tuple(c[idx] for c in self.u)
@@ -360,8 +372,7 @@ class ArraySystem:
         constraint, one way of sliding), traced over arrays once the phase has been evaluated
         :data:`LINES_AFTER` times, shared by every subset of the root system; None while the general
         evaluator serves (the phase differs between designs, it is not yet traced, or cannot be)."""
-        if not LINES_AFTER or not isinstance(phase.kin, int) or isinstance(phase.slide, np.ndarray) or \
-                not all(isinstance(m, int) for m in phase.modes):
+        if not LINES_AFTER or not _uniform(phase):
             return None
         root = self.root
         key = (phase.modes, phase.kin, float(phase.slide), want, n_states)
@@ -417,6 +428,18 @@ class ArraySystem:
         """
         if phase is None:
             phase = self.phase(modes, kin, slide)
+        if LINES_AFTER and self.n > 1 and not _uniform(phase):
+            # designs in several phases: evaluated phase by phase (each kind runs its own regime alone)
+            if self._split is None:
+                self._split = PhaseGroups(smallest=1)
+            return self._split.rhs(self, t, Y, modes, kin, np.zeros(self.n) if slide is None else slide, out=out,
+                                   aux=aux, phase=phase)
+        return self.evaluate(t, Y, phase, out, aux)
+
+    def evaluate(self, t: np.ndarray, Y: np.ndarray, phase: "Phase", out: np.ndarray | None = None,
+                 aux: bool = True) -> tuple[np.ndarray, dict | None]:
+        """:meth:`rhs` in one call of the balance, whatever the designs' phases (the phase's straight line when
+        every design shares it and it is traced, else the general evaluator)."""
         line = self.line(phase, "terms", len(Y))
         if line is not None:
             terms = line(t, list(Y), self.per_design(line))
@@ -439,6 +462,12 @@ class ArraySystem:
         singular = np.broadcast_to(np.asarray(terms["singular"], dtype=bool), (self.n,))
         return out, {"drive": terms["drive"], "accel": accel, "thrust": thrust, "mass": terms["mass"],
                      "singular": singular, "phase": phase}
+
+
+def _uniform(phase: Phase) -> bool:
+    """Whether every design is in the phase: each mode, the constraint and the way it slides one number."""
+    return isinstance(phase.kin, int) and not isinstance(phase.slide, np.ndarray) and \
+        all(isinstance(m, int) for m in phase.modes)
 
 
 class PhaseGroups:
@@ -525,14 +554,14 @@ class PhaseGroups:
         the ensemble's events read a missing one; ``phase`` the phase of all the designs)."""
         groups = self.split(sysa, modes, kin, slide)
         if groups is None:
-            return sysa.rhs(t, Y, modes, kin, out=out, phase=phase, aux=aux, slide=slide)
+            return sysa.evaluate(t, Y, sysa.phase(modes, kin, slide) if phase is None else phase, out, aux)
         n = sysa.n
         if out is None:
             out = np.empty_like(Y)
         t = np.broadcast_to(np.asarray(t, dtype=float), (n,))
         auxes = []
         for rows, sub, ph in groups:
-            d, a = sub.rhs(t[rows], Y[:, rows], modes[:, rows], kin[rows], phase=ph, aux=aux)
+            d, a = sub.rhs(t[rows], Y[:, rows], modes[:, rows], kin[rows], phase=ph, aux=aux, slide=slide[rows])
             out[:, rows] = d
             auxes.append(a)
         if not aux:
