@@ -548,10 +548,13 @@ class PhaseGroups:
 
     def rhs(self, sysa: ArraySystem, t: np.ndarray, Y: np.ndarray, modes: np.ndarray, kin: np.ndarray,
             slide: np.ndarray, out: np.ndarray | None = None, aux: bool = True,
-            phase: "Phase | None" = None) -> tuple[np.ndarray, dict | None]:
+            phase: "Phase | None" = None, drives: bool = True) -> tuple[np.ndarray, dict | None]:
         """:meth:`ArraySystem.rhs` of ``sysa``, evaluated group by group when the designs' phases differ; the
-        auxiliary outputs are gathered per design (``drive`` 0 where a group evaluates no such drive, as
-        the ensemble's events read a missing one; ``phase`` the phase of all the designs)."""
+        auxiliary outputs are gathered per design (``phase`` the phase of all the designs). A drive some groups
+        do not evaluate (their lines pass nothing and no event of theirs reads it) is evaluated for them
+        (:meth:`ArraySystem.drives`), as a batch in mixed phases gives it for every design; ``drives=False``
+        leaves it 0 there, as the ensemble's events read a drive that is not evaluated (only the designs whose
+        events read it need it)."""
         groups = self.split(sysa, modes, kin, slide)
         if groups is None:
             return sysa.evaluate(t, Y, sysa.phase(modes, kin, slide) if phase is None else phase, out, aux)
@@ -579,4 +582,11 @@ class PhaseGroups:
                 if name not in drive:
                     drive[name] = np.zeros(n)
                 drive[name][rows] = np.broadcast_to(np.asarray(v, dtype=float), (len(rows),))
+        if drives:
+            for (rows, sub, ph), a in zip(groups, auxes):
+                if set(drive) - set(a["drive"]):
+                    more = sub.drives(t[rows], Y[:, rows], ph) or {}
+                    for name in set(drive) - set(a["drive"]):
+                        if name in more:
+                            drive[name][rows] = np.broadcast_to(np.asarray(more[name], dtype=float), (len(rows),))
         return out, merged

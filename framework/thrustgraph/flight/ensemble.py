@@ -818,7 +818,7 @@ class _Run:
             Ys = buf.combine(DOPRI_A[st], st, hh, Y, buf.Ys)
             groups.rhs(sysa, t + DOPRI_C[st] * hh, Ys, modes, kin, self.slide, out=K[st], aux=False, phase=ph)
         Yn = buf.combine(DOPRI_B, 6, hh, Y, buf.Yn)
-        _, aux_n = groups.rhs(sysa, t + hh, Yn, modes, kin, self.slide, out=K[6], phase=ph)
+        _, aux_n = groups.rhs(sysa, t + hh, Yn, modes, kin, self.slide, out=K[6], phase=ph, drives=False)
         self.calls += 6
         # the error norm over the step-control rows only (the impulse quadrature is left out)
         nc = self.nctrl
