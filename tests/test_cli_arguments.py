@@ -276,3 +276,21 @@ def test_a_reader_that_leaves_after_three_lines(tmp_path):
     assert err == b"" and proc.returncode == 0, err.decode()
     assert len(got) < 4096 + 256 < len(subprocess.run([sys.executable, "-m", "thrustgraph.cli", "kinds"],
                                                       capture_output=True, timeout=HANG_GUARD).stdout)
+
+
+@pytest.mark.parametrize("command, argv, field, expected", [
+    ("overlay", ["a.toml", "--variant", "x=1", "b.csv", "--map", "load=thrust", "c.csv"], "runs",
+     ["a.toml", "b.csv", "c.csv"]),
+    ("calibrate", ["m.toml", "--set", "launch.mount=held", "r1.csv", "--map", "load=thrust", "r2.csv", "--out",
+                   "x.toml"], "records", ["r1.csv", "r2.csv"]),
+    ("study", ["--vary", "components.bottle.fill=0.3,0.4", "m.toml", "--quiet", "sweep"], "kind", "sweep"),
+    ("run", ["--units", "imperial", "m.toml", "--quiet"], "model", "m.toml"),
+])
+def test_positional_arguments_may_come_between_options(command, argv, field, expected):
+    # as people write them: `overlay rocket.toml --variant "fill=0.4" saved.csv` used to end in "unrecognized
+    # arguments: saved.csv" (argparse took a RUN list only up to the first option)
+    from thrustgraph.cli import build_parser
+    args = build_parser([command]).parse_args([command] + argv)
+    assert getattr(args, field) == expected
+    options = [a for a in argv if a.startswith("--")]
+    assert options                                         # the case does mix them

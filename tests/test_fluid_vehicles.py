@@ -133,6 +133,17 @@ def test_hose_fed_platform_hovers_at_the_algebraic_height(flights):
     mean = trapezoid(z, t) / (t[-1] - t[0])
     assert mean == pytest.approx(z_eq, abs=0.02)
     assert z.min() < z_eq < z.max() and z.max() - z.min() < 0.5
+    # 3. the summary says so: its mean height (over the last quarter of the run, HOVER_WINDOW) is the algebraic
+    # height, its oscillation half the swing of the height there, its highest point the top of the climb; a hover
+    # rig has no apogee event (it used to log 1.195 m while the summary said 4.94 m)
+    s = r.summary
+    assert s["mean_height"] == pytest.approx(z_eq, abs=0.02)
+    win = r.t >= r.t[-1] - 0.25 * (r.t[-1] - r.t[0])
+    zw = r.signals["altitude"][win]
+    assert s["height_oscillation"] == pytest.approx(0.5 * (zw.max() - zw.min()), rel=1e-3)
+    assert 0.05 < s["height_oscillation"] < 0.5
+    assert s["max_height"] >= r.signals["altitude"].max() - 1e-12 and s["max_height"] > s["mean_height"]
+    assert "apogee" not in [e.name for e in r.events] and "apogee" not in s
 
 
 def test_free_floater_thrust_is_the_vector_sum_of_its_nozzles(flights):

@@ -37,7 +37,7 @@ LAYERS: dict[str, tuple[str, ...]] = {
         'outputs.report', 'outputs.overlayplots'),
     'measured': ('measured', 'measured.records', 'measured.compare', 'measured.calibrate', 'measured.overlay'),
     'studies': ('studies', 'studies.studyspec', 'studies.studyprogress', 'studies.studyflight', 'studies.engines',
-        'studies.studies', 'studies.dispersion', 'studies.optimisation', 'studies.studykinds'),
+        'studies.studies', 'studies.tablestream', 'studies.dispersion', 'studies.optimisation', 'studies.studykinds'),
     'cli': ('cli', 'commands', 'commands.calibrate', 'commands.check', 'commands.common', 'commands.compare',
         'commands.export', 'commands.graph', 'commands.kinds', 'commands.new', 'commands.outputs', 'commands.plot',
         'commands.progress', 'commands.report', 'commands.run', 'commands.study', 'commands.overlay'),

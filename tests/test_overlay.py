@@ -13,6 +13,7 @@ import contextlib
 import csv
 import io
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -134,3 +135,29 @@ def test_the_overlay_is_in_the_docs_and_the_plot_registry():
     assert "thrustgraph overlay" in docs
     for n in names("overlay"):
         assert f"`{n}`" in docs
+
+
+def _summary_labels(text: str) -> list[str]:
+    block = text.split("\nSummary\n")[1].split("\n\n")[0]
+    return [re.split(r"\s{2,}", line.strip())[0] for line in block.splitlines()]
+
+
+def test_runs_may_follow_options_and_the_text_table_shows_what_the_summaries_show(tmp_path):
+    # a RUN after --variant used to be refused ("unrecognized arguments"); the text table holds the outcomes the
+    # runs' summaries print (no side force of rounding size, no end point, no drift of zero), in aligned columns,
+    # and a difference of two equal results reads +0; the CSV table keeps every outcome
+    fill = "components.bottle.fill=0.4"
+    text = _cli("overlay", "bottle-rocket", "--variant", fill, "bottle-rocket", "--table", str(tmp_path / "t.csv"),
+                "--quiet")
+    assert "bottle-rocket (2): flight" in text
+    printed = set(_summary_labels(_cli("run", "bottle-rocket", "--quiet"))) | \
+        set(_summary_labels(_cli("run", "bottle-rocket", "--set", fill, "--quiet")))
+    table = [line for line in text.split("\n\n")[1].splitlines() if not line.startswith("wrote ")]
+    head, rows = table[0], table[1:]
+    assert {re.split(r"\s{2,}", r)[0] for r in rows} == printed
+    assert {"peak side force", "end point x", "drift across the azimuth"} & printed == set()
+    assert {"peak_side_force", "impact_x", "drift"} <= set(_table(tmp_path / "t.csv"))
+    col = head.index("bottle-rocket")           # every value starts under its run's label
+    assert all(r[col - 2:col] == "  " and r[col] != " " for r in rows), rows
+    final = next(r for r in rows if r.startswith("final mass"))
+    assert final.endswith("+0 g (+0 %)")             # 5.6e-17 kg apart: the same dry mass

@@ -245,3 +245,157 @@ def test_the_pump_reports_its_operating_point(runs):
     assert s["pump.hydraulic_power"] == pytest.approx(0.6 * 1500.0, rel=1e-9)
     assert s["pump.efficiency"] == pytest.approx(0.6, rel=1e-9) and s["pump.shaft_power"] == 1500.0
     assert s["pump.head"] == pytest.approx(r.signals["pump.pressure_rise"][k] / (998.2 * 9.80665), rel=1e-12)
+
+
+# ---------------------------------------------------------------------------
+# the documented outcomes of each class, exactly, on every bundled model
+# ---------------------------------------------------------------------------
+
+#: Facts about each bundled model read by eye from its file (not from thrustgraph.kinds.vehicle, which the
+#: generated table comes from): it has stages, a vessel (a tank, a bottle, a cartridge), a feed from outside (an
+#: inlet, a hose). The guide length is read from the file's [launch] table below.
+FACTS = {
+    "bottle-rocket": {"vessel"}, "twin-nozzle-bottle-rocket": {"vessel"}, "rocket-with-parachute": set(),
+    "small-rocket-standard-atmosphere": set(), "two-stage-demo": {"stages"}, "hose-fed-hover": {"fed"},
+    "water-jet-boat": {"fed"}, "gas-cartridge-cart": {"vessel"}, "cold-gas-track": {"vessel"},
+    "cold-gas-free-floater": {"vessel"}, "held": {"vessel"},
+}
+#: The words of a cell of the table in docs/outputs.md, as the test reads them, against a model's facts.
+CELLS = {
+    "yes": lambda facts: True,
+    "-": lambda facts: False,
+    "with stages": lambda facts: "stages" in facts,
+    "with a vessel": lambda facts: "vessel" in facts,
+    "yes, unless fed from outside": lambda facts: "fed" not in facts,
+    "fed from outside": lambda facts: "fed" in facts,
+    "on a guide longer than 0": lambda facts: "guide" in facts,
+}
+#: The outcomes kept for tables and never printed in a summary (the end point, for the range and the overlay).
+TABLE_ONLY = {"impact_x", "impact_y"}
+
+
+def _documented() -> dict[str, dict[str, str]]:
+    """The table "Which outcomes each class shows" of docs/outputs.md: {class label: {key: cell}}."""
+    text = (ROOT / "docs" / "outputs.md").read_text()
+    rows = [line for line in text.split("## Which outcomes each class shows")[1].splitlines()
+            if line.startswith("| `")]
+    head = next(line for line in text.splitlines() if line.startswith("| key | label |"))
+    classes = [c.strip() for c in head.strip("|").split("|")][2:]
+    table: dict[str, dict[str, str]] = {c: {} for c in classes}
+    for line in rows:
+        cells = [c.strip() for c in line.strip().strip("|").split("|")]
+        for c, cell in zip(classes, cells[2:]):
+            table[c][cells[0].strip("`")] = cell
+    return table
+
+
+def _facts(stem: str, path: Path) -> set[str]:
+    import tomllib
+    from thrustgraph.base.units import Q_
+    launch = tomllib.loads(path.read_text()).get("launch", {})
+    guide = launch.get("mount", "guide") == "guide" and Q_(launch.get("guide_length", "0 m")).to("m").magnitude > 0
+    return FACTS[stem] | ({"guide"} if guide else set())
+
+
+def _printed_keys(r) -> set[str]:
+    from thrustgraph.commands.run import summary_lines
+    by_label = {OUTCOMES[k].label: k for k in OUTCOMES}
+    keys = set()
+    for line in summary_lines(r):
+        label = re.split(r"\s{2,}", line.strip())[0]
+        if label in by_label:
+            keys.add(by_label[label])
+    return keys
+
+
+@pytest.mark.parametrize("stem", [p.stem for p in MODELS] + ["held"])
+def test_the_summary_holds_exactly_the_documented_outcomes_of_its_class(stem, runs, stand):
+    from thrustgraph.kinds.vehicle import LABELS
+    path = stand / "held.toml" if stem == "held" else ROOT / "models" / f"{stem}.toml"
+    r = runs[stem] if stem in runs else runs.setdefault(stem, tg.fly(tg.load_model(path)))
+    cells = _documented()[LABELS[r.vehicle.kind]]
+    facts = _facts(stem, path)
+    unknown = {cell for cell in cells.values() if cell not in CELLS}
+    assert not unknown, f"docs/outputs.md has cells this test cannot read: {unknown}"
+    documented = {key for key, cell in cells.items() if CELLS[cell](facts)}
+    got = {k for k in r.summary if k in OUTCOMES} - TABLE_ONLY
+    ground_impact = any(e.name == "ground impact" for e in r.events)
+    # what did not happen is left out (docs: "no ground impact"), and nothing else
+    assert got == documented - (set() if ground_impact else {"impact_speed"}), (stem, got ^ documented)
+    # the printed summary leaves out, besides, only what adds nothing (the rules of docs/outputs.md)
+    s = r.summary
+    same = {"final_mass": s["final_mass"] == pytest.approx(s["launch_mass"], rel=1e-9),
+            "peak_net_thrust": s["peak_net_thrust"] == pytest.approx(s["peak_thrust"], rel=1e-9),
+            "net_impulse": s["net_impulse"] == pytest.approx(s["total_impulse"], rel=1e-9),
+            "peak_side_force": s["peak_side_force"] <= 1e-6 * max(s["peak_thrust"], 1e-300),
+            "drift": abs(s.get("drift", 0.0)) <= 1e-9 * max(abs(s.get("range", 0.0)), 1.0)}
+    same["downrange"] = same["drift"]
+    assert _printed_keys(r) == {k for k in got if not same.get(k, False)}, stem
+
+
+# ---------------------------------------------------------------------------
+# a track's top speed, time to 90 % of it and distance against the rocket equation
+# ---------------------------------------------------------------------------
+
+def test_top_speed_time_to_90_percent_and_distance_on_a_track_are_the_rocket_equation():
+    # A constant flow mdot at exhaust speed ve on a level frictionless track in vacuum: the rocket equation
+    # v(t) = ve ln(m0 / m(t)), m(t) = m0 - mdot t (Tsiolkovsky 1903; Sutton & Biblarz, Rocket Propulsion
+    # Elements, ch. 4, no gravity or drag along the track), then a coast at the burnout speed. Closed forms:
+    # top speed ve ln(m0/mf); 90 % of it when m = m0 (mf/m0)^0.9; the distance under power
+    # ve (t_b + (mf/mdot) ln(mf/m0)), then v_b (t_end - t_b).
+    m0, mf, mdot, ve, t_end = 2.0, 1.2, 0.1, 100.0, 15.0
+    model = model_from_toml(f"""
+        flow_paths = ["motor -> outside"]
+        [launch]
+        mount = "track"
+        elevation = "0 deg"
+        [run]
+        end_time = "{t_end} s"
+        [environment.medium]
+        kind = "vacuum"
+        [environment.gravity]
+        kind = "uniform-gravity"
+        [components.body]
+        kind = "airframe"
+        dry_mass = "{mf} kg"
+        [components.motor]
+        kind = "prescribed-jet"
+        programme = "constant-flow"
+        propellant_mass = "{m0 - mf} kg"
+        mass_flow = "{mdot} kg/s"
+        exhaust_velocity = "{ve} m/s"
+        [components.outside]
+        kind = "surroundings"
+    """, name="rocket on a track")
+    r = integrate(model)
+    tb = (m0 - mf) / mdot
+    vb = ve * math.log(m0 / mf)
+    assert r.vehicle.kind == "track"
+    assert r.summary["top_speed"] == pytest.approx(vb, rel=1e-9)
+    assert r.summary["time_to_90_percent_speed"] == pytest.approx((m0 - m0 * (mf / m0) ** 0.9) / mdot, rel=1e-8)
+    distance = ve * (tb + mf / mdot * math.log(mf / m0)) + vb * (t_end - tb)
+    assert r.summary["distance"] == pytest.approx(distance, rel=1e-8)
+    assert r.summary["run_time"] == t_end and "apogee" not in r.summary and "flight_time" not in r.summary
+
+
+def test_a_rocket_on_a_zero_length_pad_lifts_off_and_has_no_guide_exit():
+    # The complaint: a zero-length pad printed a "guide exit" at 2 us with 0.00097 m/s. With no guide there is
+    # no guide exit and no guide-exit speed; the log says when it left the pad (at once: thrust above weight).
+    base = tg.load_model(ROOT / "models" / "bottle-rocket.toml")
+    pad = integrate(base.set("launch.guide_length", "0 m"))
+    names = [e.name for e in pad.events]
+    assert "guide exit" not in names and "guide_exit_speed" not in pad.summary
+    lift = next(e for e in pad.events if e.name == "lift-off")
+    assert lift.t < 1e-4 and names.index("lift-off") == 1
+    guided = integrate(tg.load_model(ROOT / "models" / "bottle-rocket.toml"))
+    names = [e.name for e in guided.events]
+    assert "lift-off" not in names and "guide exit" in names and guided.summary["guide_exit_speed"] > 30.0
+
+
+def test_a_long_component_label_keeps_the_summary_s_value_column(runs):
+    # "pump efficiency at the operating point" is 38 characters: the values all end in one column
+    from thrustgraph.commands.run import summary_lines
+    lines = summary_lines(_run(runs, "water-jet-boat"))
+    assert any("pump efficiency at the operating point" in line for line in lines)
+    ends = {re.match(r"  .*?\S\s{2,}\S+", line).end() for line in lines}
+    assert len(ends) == 1, lines

@@ -39,10 +39,27 @@ from .commands import SUMMARIES
 from .base.errors import IntegrationError, ModelError, PluginError, ThrustgraphError
 from .base.interrupts import Terminated, exit_status, stop_on_signals
 
-__all__ = ["main", "COMMANDS", "build_parser"]
+__all__ = ["main", "COMMANDS", "build_parser", "CommandParser"]
 
 # Sub-command modules, in the order `thrustgraph --help` lists them.
 COMMANDS = list(SUMMARIES)
+
+
+class CommandParser(argparse.ArgumentParser):
+    """The parser of one command: its positional arguments may come between its options, as people write them
+    (``thrustgraph overlay rocket.toml --variant "fill=0.4" saved.csv``); argparse's plain parsing takes the
+    positionals of a ``RUN [RUN ...]`` list only up to the first option and refuses the rest."""
+
+    _inner = False
+
+    def parse_known_args(self, args=None, namespace=None):  # type: ignore[override]
+        if self._inner:   # the intermixed parse calls back into this for each of its two passes
+            return super().parse_known_args(args, namespace)
+        self._inner = True
+        try:
+            return self.parse_known_intermixed_args(args, namespace)
+        finally:
+            self._inner = False
 
 
 def build_parser(commands: Iterable[str] | None = None) -> argparse.ArgumentParser:
@@ -54,6 +71,8 @@ def build_parser(commands: Iterable[str] | None = None) -> argparse.ArgumentPars
 
     >>> build_parser(["check"]).parse_args(["check", "--set", "run.end_time=2 s"]).overrides
     ['run.end_time=2 s']
+    >>> build_parser(["overlay"]).parse_args(["overlay", "a.toml", "--variant", "x=1", "b.csv"]).runs
+    ['a.toml', 'b.csv']
     """
     parser = argparse.ArgumentParser(
         prog="thrustgraph",
@@ -62,7 +81,7 @@ def build_parser(commands: Iterable[str] | None = None) -> argparse.ArgumentPars
         epilog="Safety: a prediction is not a rating. Pressurised vessels can burst; flying vehicles can hurt "
                "people. Follow local codes and licensed practice.")
     parser.add_argument("--version", action="store_true", help="print the version and exit")
-    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=CommandParser)
     wanted = set(COMMANDS if commands is None else commands)
     for name in COMMANDS:
         p = sub.add_parser(name, help=SUMMARIES[name], description=SUMMARIES[name])

@@ -177,12 +177,22 @@ class Balance:
             if known is not None:
                 self.__dict__.update(known)
                 return
-        ops = self.ops
-        plan = self.plan
         self.modes = list(modes)
         self.kinematics = kinematics
         self.descending = descending
-        m = self.modes
+        self._phase_modes()
+        self._phase_constraints(kinematics, slide)
+        self._phase_lines()
+        self._phase_key = key if self._traceable else None
+        # this phase's straight lines by (request, number of states given): a solver without audits passes
+        # the physical states alone, one with audits the accumulators too
+        self._lines_now = self._lines_made.setdefault(("lines", self._phase_key), {})
+        if key is not None:
+            self._phases[key] = {k: self.__dict__[k] for k in _PHASE_ATTRIBUTES}
+
+    def _phase_modes(self) -> None:
+        """Each plan entry's mode in this phase (0 for a component without modes)."""
+        plan, m = self.plan, self.modes
 
         def mode_of(k: int) -> Any:
             return m[k] if k >= 0 else 0
@@ -193,7 +203,11 @@ class Balance:
         self._jmode = [mode_of(j.slot) for j in plan.jets]
         self._tmode = [mode_of(ln.terminal_slot) for ln in plan.lines]
         self._emode = [tuple(mode_of(e.slot) for e in ln.series) for ln in plan.lines]
-        # kinematic constraints present (one for a single design; the distinct ones of an ensemble's designs)
+
+    def _phase_constraints(self, kinematics: Any, slide: Any) -> None:
+        """The kinematic constraints present (one for a single design; the distinct ones of an ensemble's
+        designs) and the way the vehicle slides along a guide or track."""
+        ops = self.ops
         if ops.arrays and not isinstance(kinematics, int):
             present = {int(k) for k in np.unique(kinematics)}
             if len(present) == 1:
@@ -209,7 +223,13 @@ class Balance:
             self.slide = slide if present & {Kinematics.GUIDE, Kinematics.TRACK} else 0.0
         else:
             self.slide = float(slide) if present <= {Kinematics.GUIDE, Kinematics.TRACK} else 0.0
-        # a line is idle when a component on it is, in every design, in a mode that promises no outflow
+        self._only = next(iter(present)) if len(present) == 1 else None
+
+    def _phase_lines(self) -> None:
+        """Which lines are evaluated in this phase: a line is idle when a component on it is, in every design, in
+        a mode that promises no outflow; for the snapshot an idle line is still evaluated where an event of a
+        component on it reads its drive in the current mode. And the vessels whose outlets each request reads."""
+        plan = self.plan
         idle = []
         for j, ln in enumerate(plan.lines):
             quiet = False
@@ -220,8 +240,6 @@ class Balance:
         self._idle = idle
         self._live = [not q for q in idle]
         self._live_all = [True] * len(idle)
-        # for the ensemble's snapshot: idle lines still evaluated where an event of a component on them reads
-        # its drive in the current mode
         watch: dict[str, list] = {}
         for n, e in plan.events:
             if e.needs_drive:
@@ -236,17 +254,10 @@ class Balance:
                         seen = True
             live_terms.append(seen)
         self._live_terms = live_terms
-        self._only = next(iter(present)) if len(present) == 1 else None
         self._vessel_lines = [(j, ln.start_index) for j, ln in enumerate(plan.lines) if ln.from_vessel]
         self._outlets = sorted({k for j, k in self._vessel_lines if self._live[j]})
         self._outlets_all = sorted({k for j, k in self._vessel_lines})
         self._outlets_terms = sorted({k for j, k in self._vessel_lines if self._live_terms[j]})
-        self._phase_key = key if self._traceable else None
-        # this phase's straight lines by (request, number of states given): a solver without audits passes
-        # the physical states alone, one with audits the accumulators too
-        self._lines_now = self._lines_made.setdefault(("lines", self._phase_key), {})
-        if key is not None:
-            self._phases[key] = {k: self.__dict__[k] for k in _PHASE_ATTRIBUTES}
 
     def _start_mode(self, ln: LinePlan) -> Any:
         return self._vmode[ln.start_index] if ln.from_vessel else self._smode[ln.start_index]
@@ -726,6 +737,8 @@ class Balance:
     # ------------------------------------------------------------------
     def _record(self, rec, t, s, M, e, a, drags, weight, reaction, friction, outs, sums, jets, supplies, dirs,
                 rho, pa, Ta, wind, sp, g):
+        """The snapshot of one evaluation: the motion and the surroundings, every term of the ledger (by
+        component), every signal the components report, and the totals (thrust, mass flow, inertia)."""
         plan = self.plan
         rec.update(time=t, mass=M, axis=e, acceleration=a, weight=weight, reaction=reaction,
                    position=(s[0], s[1], s[2]), velocity=(s[3], s[4], s[5]), airspeed=sp,
@@ -739,8 +752,27 @@ class Balance:
                 for key, val in b.fns.signals(t, s, md).items():
                     rec[f"{b.name}.{key}"] = val
         ledger.append(("vehicle", "weight", weight))
-        # the reaction of each constraint present (an ensemble's designs may be under several: each design's
-        # reaction is its own constraint's, zero in free flight)
+        self._record_constraints(ledger, reaction, friction)
+        tv = [0.0, 0.0, 0.0]
+        mass_flow = 0.0
+        seen: set[str] = set()
+        for j, (ln, fl) in enumerate(zip(plan.lines, sums.flows)):
+            mdot, mf, pf = self._record_line(rec, ledger, j, ln, fl, dirs[j], outs, supplies, t, s, pa, seen)
+            tv = [tv[k] + mf[k] + pf[k] for k in range(3)]
+            mass_flow = mass_flow + mdot
+        for j, jet in zip(plan.jets, jets):
+            mdot, mf, pf = self._record_jet(rec, ledger, j, jet, t, s, pa)
+            tv = [tv[k] + mf[k] + pf[k] for k in range(3)]
+            mass_flow = mass_flow + mdot
+        rec["thrust_vector"] = tuple(tv)
+        rec["thrust"] = _dot(tv, e)
+        rec["mass_flow"] = mass_flow
+        rec["ledger"] = ledger
+        rec["inertia"] = (M * a[0], M * a[1], M * a[2])
+
+    def _record_constraints(self, ledger: list, reaction: tuple, friction: tuple) -> None:
+        """The reaction of each constraint present (an ensemble's designs may be under several: each design's
+        reaction is its own constraint's, zero in free flight), and the friction of a guide or track."""
         constrained = sorted(self._present - {Kinematics.FREE})
         for k in constrained:
             share = reaction if len(constrained) == 1 else \
@@ -748,79 +780,78 @@ class Balance:
             ledger.append(("vehicle", f"{Kinematics.NAMES[k]} reaction", share))
         if self._friction and any(k != Kinematics.HELD for k in constrained):
             ledger.append(("vehicle", "friction", friction))
-        tv = [0.0, 0.0, 0.0]
-        mass_flow = 0.0
-        seen = set()
-        for j, (ln, fl) in enumerate(zip(plan.lines, sums.flows)):
-            dw, jd = dirs[j]
-            mdot, ve = fl.mdot, fl.v_e
-            mf = (-mdot * ve * jd[0], -mdot * ve * jd[1], -mdot * ve * jd[2])
-            pth = (fl.p_e - pa) * fl.A_e
-            pf = (-pth * jd[0], -pth * jd[1], -pth * jd[2])
-            ledger.append((ln.terminal, "momentum flux", mf))
-            ledger.append((ln.terminal, "pressure thrust", pf))
-            if ln.internal is not None:
-                ledger.append((ln.start, "internal momentum rate",
-                               (mdot * fl.v_int * dw[0], mdot * fl.v_int * dw[1], mdot * fl.v_int * dw[2])))
-                prev = rec.get(f"{ln.start}.internal_momentum", _Z3)
-                rec[f"{ln.start}.internal_momentum"] = tuple(prev[k] + fl.moving * fl.v_int * dw[k] for k in range(3))
-            if fl.v_in is not None:
-                ledger.append((ln.start, "inflow momentum", tuple(mdot * fl.v_in[k] for k in range(3))))
-                rec[f"{ln.start}.mass_flow"] = mdot
-            for k in range(3):
-                tv[k] = tv[k] + mf[k] + pf[k]
-            mass_flow = mass_flow + mdot
-            rec[f"{ln.terminal}.mass_flow"] = mdot
-            rec[f"{ln.terminal}.exit_velocity"] = ve
-            rec[f"{ln.terminal}.exit_pressure"] = fl.p_e
-            rec[f"{ln.terminal}.thrust"] = mdot * ve + pth
-            rec[f"{ln.terminal}.inlet_pressure"] = fl.p_in
-            rec[f"{ln.terminal}.drive"] = fl.p_in - pa
-            o = outs[ln.start_index] if ln.from_vessel else Outlet(*supplies[ln.start_index][0])
-            up = o._replace(p=fl.p_start)
-            for el, rise, md in zip(ln.series, fl.rises, self._emode[j]):
-                rec[f"{el.name}.pressure_rise"] = rise
-                rec[f"{el.name}.mass_flow"] = mdot
-                if el.signals is not None:
-                    for key, val in el.signals(up, pa, md).items():
-                        rec[f"{el.name}.{key}"] = val
-                up = up._replace(p=up.p + rise)
-            if ln.terminal_fns.signals is not None:
-                for key, val in ln.terminal_fns.signals(o._replace(p=fl.p_in), pa, self._tmode[j]).items():
-                    rec[f"{ln.terminal}.{key}"] = val
-            if ln.start in seen:
-                continue
+
+    def _record_line(self, rec: dict, ledger: list, j: int, ln: LinePlan, fl: LineFlow, dirs: tuple, outs: list,
+                     supplies: Any, t: Any, s: Any, pa: Any, seen: set) -> tuple[Any, tuple, tuple]:
+        """One discharge line's terms and signals (its start's only once: ``seen``); returns its mass flow, its
+        momentum flux and its pressure thrust (vectors)."""
+        dw, jd = dirs
+        mdot, ve = fl.mdot, fl.v_e
+        mf = (-mdot * ve * jd[0], -mdot * ve * jd[1], -mdot * ve * jd[2])
+        pth = (fl.p_e - pa) * fl.A_e
+        pf = (-pth * jd[0], -pth * jd[1], -pth * jd[2])
+        ledger.append((ln.terminal, "momentum flux", mf))
+        ledger.append((ln.terminal, "pressure thrust", pf))
+        if ln.internal is not None:
+            ledger.append((ln.start, "internal momentum rate",
+                           (mdot * fl.v_int * dw[0], mdot * fl.v_int * dw[1], mdot * fl.v_int * dw[2])))
+            prev = rec.get(f"{ln.start}.internal_momentum", _Z3)
+            rec[f"{ln.start}.internal_momentum"] = tuple(prev[k] + fl.moving * fl.v_int * dw[k] for k in range(3))
+        if fl.v_in is not None:
+            ledger.append((ln.start, "inflow momentum", tuple(mdot * fl.v_in[k] for k in range(3))))
+            rec[f"{ln.start}.mass_flow"] = mdot
+        rec[f"{ln.terminal}.mass_flow"] = mdot
+        rec[f"{ln.terminal}.exit_velocity"] = ve
+        rec[f"{ln.terminal}.exit_pressure"] = fl.p_e
+        rec[f"{ln.terminal}.thrust"] = mdot * ve + pth
+        rec[f"{ln.terminal}.inlet_pressure"] = fl.p_in
+        rec[f"{ln.terminal}.drive"] = fl.p_in - pa
+        o = outs[ln.start_index] if ln.from_vessel else Outlet(*supplies[ln.start_index][0])
+        up = o._replace(p=fl.p_start)
+        for el, rise, md in zip(ln.series, fl.rises, self._emode[j]):
+            rec[f"{el.name}.pressure_rise"] = rise
+            rec[f"{el.name}.mass_flow"] = mdot
+            if el.signals is not None:
+                for key, val in el.signals(up, pa, md).items():
+                    rec[f"{el.name}.{key}"] = val
+            up = up._replace(p=up.p + rise)
+        if ln.terminal_fns.signals is not None:
+            for key, val in ln.terminal_fns.signals(o._replace(p=fl.p_in), pa, self._tmode[j]).items():
+                rec[f"{ln.terminal}.{key}"] = val
+        if ln.start not in seen:
             seen.add(ln.start)
-            if ln.from_vessel:
-                rec[f"{ln.start}.head_pressure"] = fl.p_start - o.p
-                rec[f"{ln.start}.outlet_pressure"] = fl.p_start
-                rec[f"{ln.start}.drive"] = fl.p_start - pa
-                for key, val in plan.vessels[ln.start_index].fns.signals(s, self._vmode[ln.start_index]).items():
+            self._record_start(rec, ln, fl, o, t, s, pa)
+        return mdot, mf, pf
+
+    def _record_start(self, rec: dict, ln: LinePlan, fl: LineFlow, o: Outlet, t: Any, s: Any, pa: Any) -> None:
+        """The signals of where a line starts: a vessel's head, outlet pressure and drive, or a source's own."""
+        if ln.from_vessel:
+            rec[f"{ln.start}.head_pressure"] = fl.p_start - o.p
+            rec[f"{ln.start}.outlet_pressure"] = fl.p_start
+            rec[f"{ln.start}.drive"] = fl.p_start - pa
+            for key, val in self.plan.vessels[ln.start_index].fns.signals(s, self._vmode[ln.start_index]).items():
+                rec[f"{ln.start}.{key}"] = val
+        else:
+            src = self.plan.sources[ln.start_index]
+            if src.fns.signals is not None:
+                for key, val in src.fns.signals(t, s, self._smode[ln.start_index]).items():
                     rec[f"{ln.start}.{key}"] = val
-            else:
-                src = plan.sources[ln.start_index]
-                if src.fns.signals is not None:
-                    for key, val in src.fns.signals(t, s, self._smode[ln.start_index]).items():
-                        rec[f"{ln.start}.{key}"] = val
-        for j, (mdot, ve, pe, Ae, jd, T) in zip(plan.jets, jets):
-            mf = (-mdot * ve * jd[0], -mdot * ve * jd[1], -mdot * ve * jd[2])
-            pth = (pe - pa) * Ae
-            pf = (-pth * jd[0], -pth * jd[1], -pth * jd[2])
-            ledger.append((j.name, "momentum flux", mf))
-            ledger.append((j.name, "pressure thrust", pf))
-            for k in range(3):
-                tv[k] = tv[k] + mf[k] + pf[k]
-            mass_flow = mass_flow + mdot
-            rec[f"{j.name}.mass_flow"] = mdot
-            rec[f"{j.name}.exit_velocity"] = ve
-            rec[f"{j.name}.thrust"] = T
-            for key, val in j.fns.signals(t, s, self._jmode[plan.jets.index(j)]).items():
-                rec[f"{j.name}.{key}"] = val
-        rec["thrust_vector"] = tuple(tv)
-        rec["thrust"] = _dot(tv, e)
-        rec["mass_flow"] = mass_flow
-        rec["ledger"] = ledger
-        rec["inertia"] = (M * a[0], M * a[1], M * a[2])
+
+    def _record_jet(self, rec: dict, ledger: list, j: Any, jet: tuple, t: Any, s: Any,
+                    pa: Any) -> tuple[Any, tuple, tuple]:
+        """A prescribed jet's terms and signals; returns its mass flow, momentum flux and pressure thrust."""
+        mdot, ve, pe, Ae, jd, T = jet
+        mf = (-mdot * ve * jd[0], -mdot * ve * jd[1], -mdot * ve * jd[2])
+        pth = (pe - pa) * Ae
+        pf = (-pth * jd[0], -pth * jd[1], -pth * jd[2])
+        ledger.append((j.name, "momentum flux", mf))
+        ledger.append((j.name, "pressure thrust", pf))
+        rec[f"{j.name}.mass_flow"] = mdot
+        rec[f"{j.name}.exit_velocity"] = ve
+        rec[f"{j.name}.thrust"] = T
+        for key, val in j.fns.signals(t, s, self._jmode[self.plan.jets.index(j)]).items():
+            rec[f"{j.name}.{key}"] = val
+        return mdot, mf, pf
 
 
 #: what :meth:`Balance.set_phase` derives from the phase (restored whole when a phase comes back)

@@ -74,7 +74,7 @@ class System(Protocol):
 
 __all__ = ["OutcomeSpec", "OUTCOMES", "G0", "Flight", "summarise", "run_summary", "output_names",
            "default_outputs", "check_outputs", "outcome", "kind_outcomes", "check_kind_outcomes", "markdown_table",
-           "outputs_by_vehicle", "HOVER_WINDOW", "quadrature_nodes",
+           "outputs_by_vehicle", "HOVER_WINDOW", "quadrature_nodes", "STEP_TERMS", "NODE_TERMS",
            "STATUS_OK", "STATUS_SCREENED", "STATUS_NOT_RUN"]
 
 #: Standard gravity, m/s^2 (exact by definition; CGPM 1901): the g0 of specific impulse and of accelerations
@@ -115,6 +115,13 @@ def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: f
     res = minimize_scalar(lambda t: -fun(t), bounds=(t_lo, t_hi), method="bounded",
                           options={"xatol": 1e-12 * max(1.0, abs(t_hi)) + 1e-9 * (t_hi - t_lo)})
     return max(best, -float(res.fun))
+
+
+#: what the outcomes read of a :meth:`~thrustgraph.balance.balance.Balance.terms` snapshot at a segment's steps
+#: (peaks of thrust, net thrust, side force and acceleration) and at its quadrature nodes (the impulses): a run
+#: takes these of its samples' pass
+STEP_TERMS = ("derivs", "thrust", "thrust_axial", "inflow", "axis")
+NODE_TERMS = ("thrust", "inflow")
 
 
 def quadrature_nodes(ph: Any, sol: Any, bal: Any) -> tuple[np.ndarray, np.ndarray] | None:

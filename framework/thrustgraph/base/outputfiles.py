@@ -9,6 +9,14 @@ into place and flushes their folders. Any failure before the renames removes
 every temporary file and every folder the batch created: no first file
 without the second. :func:`atomic_write` is the one-file case.
 
+A file too large to hold in memory (a study's table of a million designs) is
+written piece by piece into a :class:`StreamedFile`: its bytes go to the same
+kind of temporary file as they come, and it is put in place by
+:func:`write_all` (``streams=``) together with the other outputs, or by its own
+:meth:`StreamedFile.commit`. Until then there is nothing at its path but what
+was there before; if the process stops first (an error, Ctrl-C, a kill) the
+temporary file goes with it.
+
 What a careful tool does with the path it is given:
 
 * A **symbolic link** is written through: its target gets the new content,
@@ -66,11 +74,12 @@ import threading
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Iterator, Sequence, Union
+from typing import Any, Iterator, Sequence, Union
 
 from .errors import OutputError
 
-__all__ = ["atomic_write", "write_all", "check_outputs", "check_output", "PARTIAL_TAG", "remove_stale_partials"]
+__all__ = ["atomic_write", "write_all", "check_outputs", "check_output", "PARTIAL_TAG", "remove_stale_partials",
+           "StreamedFile"]
 
 PathLike = Union[str, os.PathLike]
 
@@ -299,9 +308,12 @@ class _Staged:
     temp: Path | None = None       # the named temporary file
     existed: bool = False
     placed: bool = False
+    wfd: int | None = None         # the named temporary file's descriptor while it is written
 
 
-def _stage(target: Path, data: bytes) -> _Staged:
+def _open_staged(target: Path) -> _Staged:
+    """A temporary file for ``target`` (unnamed where the system allows), open for writing, with the permissions
+    (and, where allowed, the owner) of the file it will replace."""
     remove_stale_partials(target)
     try:
         st = os.stat(target)
@@ -311,7 +323,7 @@ def _stage(target: Path, data: bytes) -> _Staged:
     fd = _unnamed(target.parent)
     if fd is None:
         item.temp = _temp_name(target)
-        fd = os.open(item.temp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
+        fd = item.wfd = os.open(item.temp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
     else:
         item.fd = fd
     try:
@@ -322,17 +334,41 @@ def _stage(target: Path, data: bytes) -> _Staged:
                     os.fchown(fd, st.st_uid, st.st_gid)
                 except OSError:
                     pass
-        view = memoryview(data)
-        while view:
-            view = view[os.write(fd, view):]
-        os.fsync(fd)
     except BaseException:
-        if item.fd is None:
-            os.close(fd)
+        _discard(item)
+        raise
+    return item
+
+
+def _write_fd(item: _Staged) -> int:
+    fd = item.fd if item.fd is not None else item.wfd
+    assert fd is not None, "the file was already sealed"
+    return fd
+
+
+def _append(item: _Staged, data: bytes) -> None:
+    fd = _write_fd(item)
+    view = memoryview(data)
+    while view:
+        view = view[os.write(fd, view):]
+
+
+def _seal(item: _Staged) -> None:
+    """Flush the staged bytes to disk; a named temporary file is closed (it is renamed at the commit)."""
+    os.fsync(_write_fd(item))
+    if item.wfd is not None:
+        os.close(item.wfd)
+        item.wfd = None
+
+
+def _stage(target: Path, data: bytes) -> _Staged:
+    item = _open_staged(target)
+    try:
+        _append(item, data)
+        _seal(item)
+    except BaseException:
         _discard(item)       # closes the unnamed file (the kernel frees it) or removes the named temporary file
         raise
-    if item.fd is None:      # a named temporary file: closed now, renamed at the commit
-        os.close(fd)
     return item
 
 
@@ -353,6 +389,9 @@ def _commit(item: _Staged) -> None:
 
 
 def _discard(item: _Staged) -> None:
+    if item.wfd is not None:
+        os.close(item.wfd)
+        item.wfd = None
     if item.fd is not None:
         os.close(item.fd)
         item.fd = None
@@ -393,7 +432,8 @@ def _as_bytes(data: str | bytes) -> bytes:
     return data.encode("utf-8") if isinstance(data, str) else bytes(data)
 
 
-def write_all(outputs: Sequence[tuple[PathLike, str | bytes]], *, directories: Sequence[PathLike] = ()) -> None:
+def write_all(outputs: Sequence[tuple[PathLike, str | bytes]], *, directories: Sequence[PathLike] = (),
+              streams: Sequence["StreamedFile"] = ()) -> None:
     """Write every output or none (text is written as UTF-8).
 
     Parameters
@@ -401,15 +441,23 @@ def write_all(outputs: Sequence[tuple[PathLike, str | bytes]], *, directories: S
     outputs : (path, content) pairs
     directories : output folders named by the user, created when missing (their parent must exist); a file of
         ``outputs`` may go into one of them. Folders this call created are removed again if it fails.
+    streams : files already written piece by piece (:class:`StreamedFile`), put in place with the others; if
+        anything fails they are discarded too
 
     Raises
     ------
     OutputError
         A path cannot be written (see :func:`check_output`), or writing failed (disk full...); nothing was left.
     """
-    reals = check_outputs([p for p, _ in outputs], directories)
+    try:
+        reals = check_outputs([p for p, _ in outputs] + [f.shown for f in streams], directories)[:len(outputs)]
+    except BaseException:
+        for f in streams:
+            f.discard()
+        raise
     created: list[Path] = []
     staged: list[_Staged] = []
+    shown_all: list[PathLike] = []
     try:
         for d in directories:
             real = Path(os.path.realpath(d))
@@ -426,14 +474,18 @@ def write_all(outputs: Sequence[tuple[PathLike, str | bytes]], *, directories: S
             except OSError as exc:
                 raise OutputError(str(shown), f"writing failed ({exc.strerror or exc})",
                                   "check the space and permissions of its folder, or write elsewhere") from None
+            shown_all.append(shown)
+        for f in streams:
+            staged.append(f._sealed())
+            shown_all.append(f.shown)
         with _signals_held():
-            for item, (shown, _) in zip(staged, outputs):
+            for item, shown in zip(staged, shown_all):
                 try:
                     _commit(item)
                 except OSError as exc:
                     raise OutputError(str(shown), f"it could not be put in place ({exc.strerror or exc})",
                                       "check its folder, or write elsewhere") from None
-            for folder in dict.fromkeys([r.parent for r in reals] + [c.parent for c in created]):
+            for folder in dict.fromkeys([i.target.parent for i in staged] + [c.parent for c in created]):
                 _fsync_folder(folder)
     except BaseException:
         for item in staged:
@@ -443,12 +495,134 @@ def write_all(outputs: Sequence[tuple[PathLike, str | bytes]], *, directories: S
                     os.unlink(item.target)
                 except OSError:
                     pass
+        for f in streams:
+            f.discard()
         for folder in reversed(created):
             try:
                 os.rmdir(folder)
             except OSError:
                 pass
         raise
+
+
+class StreamedFile:
+    """An output file written piece by piece, all or nothing: the bytes go into a temporary file beside the
+    target (unnamed where the system allows: nothing to see, and nothing left if the process is killed), and
+    the file appears at its path only when it is committed (:meth:`commit`, or :func:`write_all` with
+    ``streams=``, together with other outputs). :meth:`discard` (or leaving a ``with`` block by an exception)
+    drops it.
+
+    The path is checked when the file is opened (:func:`check_output`): a path that cannot be written is refused
+    before any work.
+
+    >>> import tempfile, pathlib, os
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> with StreamedFile(d / "t.csv") as f:
+    ...     f.write("a,b\\n")
+    ...     f.write("1,2\\n")
+    ...     os.listdir(d)
+    []
+    >>> f.commit()
+    >>> (d / "t.csv").read_text(), os.listdir(d)
+    ('a,b\\n1,2\\n', ['t.csv'])
+    """
+
+    def __init__(self, path: PathLike) -> None:
+        self.shown = path
+        self.real = check_output(path)
+        self._item: _Staged | None = None
+        try:
+            self._item = _open_staged(self.real)
+        except OSError as exc:
+            raise OutputError(str(path), f"writing failed ({exc.strerror or exc})",
+                              "check the space and permissions of its folder, or write elsewhere") from None
+        self.size = 0
+
+    def _live(self) -> _Staged:
+        if self._item is None:
+            raise OutputError(str(self.shown), "the file was already committed or discarded",
+                              "open a new StreamedFile")
+        return self._item
+
+    def write(self, data: str | bytes) -> None:
+        """Append text (as UTF-8) or bytes."""
+        raw = _as_bytes(data)
+        try:
+            _append(self._live(), raw)
+        except OSError as exc:
+            self.discard()
+            raise OutputError(str(self.shown), f"writing failed ({exc.strerror or exc})",
+                              "check the space of its folder, or write elsewhere") from None
+        self.size += len(raw)
+
+    def copy_from(self, source: Any) -> None:
+        """Append the whole content of an open file (a file object or descriptor), copied by the kernel where it
+        can (``copy_file_range``), never held in memory."""
+        src = source if isinstance(source, int) else source.fileno()
+        dst = _write_fd(self._live())
+        left = os.fstat(src).st_size
+        offset = 0
+        try:
+            while left > 0:
+                done = 0
+                if hasattr(os, "copy_file_range"):
+                    try:
+                        done = os.copy_file_range(src, dst, min(left, 1 << 30), offset)
+                    except OSError as exc:
+                        if exc.errno not in (errno.EXDEV, errno.ENOSYS, errno.EINVAL, errno.EOPNOTSUPP,
+                                             errno.EBADF, errno.EPERM):
+                            raise
+                        done = 0
+                if done <= 0:
+                    block = os.pread(src, min(left, 1 << 20), offset)
+                    if not block:
+                        break
+                    view = memoryview(block)
+                    while view:
+                        view = view[os.write(dst, view):]
+                    done = len(block)
+                offset += done
+                left -= done
+                self.size += done
+        except OSError as exc:
+            self.discard()
+            raise OutputError(str(self.shown), f"writing failed ({exc.strerror or exc})",
+                              "check the space of its folder, or write elsewhere") from None
+
+    def _sealed(self) -> _Staged:
+        item = self._live()
+        if item.wfd is not None or item.fd is not None and item.temp is None:
+            try:
+                _seal(item)
+            except OSError as exc:
+                self.discard()
+                raise OutputError(str(self.shown), f"writing failed ({exc.strerror or exc})",
+                                  "check the space of its folder, or write elsewhere") from None
+        self._item = None     # write_all owns it now: it commits or discards it
+        return item
+
+    def commit(self) -> None:
+        """Put the file in place (alone; :func:`write_all` puts it in place with other outputs)."""
+        write_all([], streams=[self])
+
+    def discard(self) -> None:
+        """Drop the file: nothing is written (an existing file at the path is left as it was)."""
+        if self._item is not None:
+            _discard(self._item)
+            self._item = None
+
+    def __enter__(self) -> "StreamedFile":
+        return self
+
+    def __exit__(self, exc_type: Any, *exc: Any) -> None:
+        if exc_type is not None:
+            self.discard()
+
+    def __del__(self) -> None:
+        try:
+            self.discard()
+        except Exception:   # pragma: no cover - interpreter shutdown
+            pass
 
 
 def atomic_write(path: PathLike, data: str | bytes) -> None:

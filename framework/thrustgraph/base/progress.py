@@ -84,20 +84,32 @@ def line_class() -> type:
 
     A line is at most :data:`MAX_WIDTH` wide and never wider than the terminal; there is no monitor thread and
     the lock is a thread lock only (a study starts worker processes: no thread or process-shared lock of ours
-    should exist then); ``fields(format_dict)`` adds the fields of the line's own text.
+    should exist then); ``fields(format_dict)`` adds the fields of the line's own text; ``clock`` (seconds, by
+    default tqdm's wall clock) is what its rate and time left are measured with (tests drive it by hand).
     """
     from tqdm import tqdm
 
     class Line(tqdm):
         monitor_interval = 0
 
-        def __init__(self, *args: Any, fields: Callable[[dict], dict], **kw: Any) -> None:
+        def __init__(self, *args: Any, fields: Callable[[dict], dict], clock: Callable[[], float] | None = None,
+                     **kw: Any) -> None:
             self.fields = fields
             self.stream = kw.get("file")
             kw.setdefault("position", 0)   # one line, always the current one (never below an unclosed one)
             kw.setdefault("ncols", width(self.stream))
             kw.setdefault("nrows", 1000)   # tqdm hides a line below the terminal's height; a bare pty reports 0
             super().__init__(*args, **kw)
+            if clock is not None:
+                self._time = clock
+                self.last_print_t = self.start_t = clock()
+
+        def close(self) -> None:
+            # a line interrupted (Ctrl-C, SIGTERM) while tqdm's __init__ runs has no clock yet; tqdm 4.66's
+            # __del__ would then print a traceback from close() (later releases check): nothing to close
+            if not hasattr(self, "last_print_t"):
+                return
+            super().close()
 
         @property
         def format_dict(self) -> dict:

@@ -36,8 +36,9 @@ HELP = SUMMARIES[NAME]
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("runs", nargs="+", metavar="RUN",
-                   help="a model file or bundled scenario (flown), a saved result (the CSV of thrustgraph export) or "
-                        "a measured record (CSV with units in its headers); the first is the reference")
+                   help="a model file or bundled scenario (flown), a saved result (the CSV or Parquet of "
+                        "thrustgraph export) or a measured record (CSV with units in its headers); the first is the "
+                        "reference")
     add_set_option(p)
     p.add_argument("--variant", action="append", default=[], metavar="SETTINGS",
                    help='one more run: the first model with these changes, e.g. --variant '
@@ -73,7 +74,8 @@ def variant_settings(text: str) -> list[tuple[str, Any]]:
 
 
 def _is_record(name: str) -> bool:
-    return name.lower().endswith(".csv")
+    """A record or a saved result (read as a record), not a model: a CSV or a Parquet file."""
+    return name.lower().endswith((".csv", ".parquet"))
 
 
 def main(args: argparse.Namespace) -> int:
@@ -98,7 +100,7 @@ def main(args: argparse.Namespace) -> int:
             planned.append(("model", (default_stem(model), model, parsed)))
     for text in args.variant:
         if first_model is None:
-            raise ModelError(f"--variant {text!r}", "there is no model to vary: every run is a CSV file",
+            raise ModelError(f"--variant {text!r}", "there is no model to vary: every run is a record or a saved result",
                              "name a model file or bundled scenario among the runs")
         settings = variant_settings(text)
         model, parsed = load_checked(first_model, list(args.overrides) + [f"{k}={_toml(v)}" for k, v in settings])

@@ -37,20 +37,20 @@ def summary_lines(r: FlightResult, keys: Sequence[str] | None = None) -> list[st
     the range) is left out. Values are shown in the units of choice in force
     (:func:`thrustgraph.kinds.displayunits.shown`; SI by default).
     """
-    lines = []
+    rows = []
     for key in (r.summary if keys is None else [k for k in keys if k in r.summary]):
         spec = r.outcome_specs.get(key)
         if spec is None:
             value, unit = shown(r.summary[key], r.unit(key))
-            lines.append(f"  {key:<32s} {value:12.5g} {unit}".rstrip())
+            rows.append((key, value, f" {unit}" if unit else "", ""))
         elif spec.show(r.summary):
             v = r.summary[key]
             extra = ", ".join(f"{spec.shown(v, u):.4g} {u}" for u in spec.also)
             extra = f"   ({extra})" if extra else ""
             value, unit = shown(v, spec.unit, display=spec.display)
-            unit = f" {unit}" if unit else ""
-            lines.append(f"  {spec.label:<32s} {value:12.5g}{unit}{extra}")
-    return lines
+            rows.append((spec.label, value, f" {unit}" if unit else "", extra))
+    width = max([32] + [len(label) for label, *_ in rows])     # a component's long label keeps the column
+    return [f"  {label:<{width}s} {value:12.5g}{unit}{extra}" for label, value, unit, extra in rows]
 
 
 def format_summary(r: FlightResult, name: str) -> str:

@@ -27,8 +27,10 @@ from ..models.model import ParsedModel
 from ..balance.outcomes import OUTCOMES, check_outputs, default_outputs
 from ..studies.studykinds import STUDY_KINDS, StudyRun, lookup, read_study
 from ..studies.studyspec import Limit, Spread, StudyDefinition, Vary
+from ..studies.tablestream import StreamedTable, TableStream
+from ..base.outputfiles import write_all
 from .common import add_model_argument, add_set_option
-from .outputs import add_quiet_option, check_paths, load_checked, need_matplotlib, write_outputs
+from .outputs import add_quiet_option, check_paths, load_checked, need_matplotlib
 
 NAME = "study"
 HELP = SUMMARIES[NAME]
@@ -164,6 +166,8 @@ def main(args: argparse.Namespace) -> int:
     if args.summary and not kind.summary:
         raise ModelError("--summary", f"a {d.kind} has no summary table", "use --table for its designs")
     check_paths([args.table, args.summary], [args.plots])   # before the first design flies
+    if args.table and kind.streams:   # rows go to the file as they fly; it is put in place with the rest
+        run["table"] = TableStream(args.table)
     done = kind.run(model, d, run)
     _print_study(done, d, parsed, run["engine"], args.flights)
     table = done.table
@@ -190,22 +194,25 @@ def _print_study(done: StudyRun, d: StudyDefinition, parsed: ParsedModel, engine
           f"{getattr(table, 'engine', '') or engine}, flights {getattr(table, 'flights', '') or flights}")
     print()
     print(done.text)
-    screened = table.screened()
-    if screened:
+    screened = table.screened()[:8]
+    count = table.counts["screened"]
+    if count:
         print()
-        print(f"Screened designs ({len(screened)}):")
-        for i, note in screened[:8]:
+        print(f"Screened designs ({count}):")
+        for i, note in screened:
             vals = ", ".join(p.text(table.x[i, j]) for j, p in enumerate(table.params))
             print(f"  design {i} ({vals}): {note}")
-        if len(screened) > 8:
-            print(f"  ... and {len(screened) - 8} more (see the table)")
+        if count > len(screened):
+            print(f"  ... and {count - len(screened)} more (see the table)")
 
 
 def _write_results(done: StudyRun, args: argparse.Namespace, nothing_flew: bool) -> None:
     """The table, the summary and the plots: all or none; none when no design flew (an empty table must not
-    replace a good one from an earlier run)."""
+    replace a good one from an earlier run). A streamed table is already staged: it is put in place with the
+    rest."""
+    streamed = isinstance(done.table, StreamedTable)
     outputs: list[tuple[str, Any]] = []
-    if args.table:
+    if args.table and not streamed:
         outputs.append((args.table, done.table.to_csv()))
     if args.summary and done.summary_csv is not None:
         outputs.append((args.summary, done.summary_csv))
@@ -215,8 +222,17 @@ def _write_results(done: StudyRun, args: argparse.Namespace, nothing_flew: bool)
         outputs += render_study_plots(done.result, args.plots)
     print()
     if not nothing_flew:
-        write_outputs(outputs, directories=[args.plots])
-    elif outputs:
+        files = [done.table.file] if streamed and done.table.file is not None else []
+        if streamed:
+            done.table.file = None    # write_all owns it now: it puts it in place or drops it
+        write_all(outputs, directories=[args.plots] if args.plots else [], streams=files)
+        for path in ([args.table] if files else []) + [p for p, _ in outputs]:
+            print(f"wrote {path}")
+        return
+    if streamed:
+        done.table.discard()
+    shown = ([args.table] if streamed else []) + [p for p, _ in outputs]
+    if shown:
         print(f"thrustgraph: no design flew before the study was stopped: nothing was written (an existing "
-              f"{', '.join(str(p) for p, _ in outputs[:2])}{' ...' if len(outputs) > 2 else ''} was left as "
+              f"{', '.join(str(p) for p in shown[:2])}{' ...' if len(shown) > 2 else ''} was left as "
               "it was)", file=sys.stderr)

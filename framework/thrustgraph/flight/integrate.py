@@ -31,7 +31,7 @@ from ..balance.balance import Balance, Kinematics
 from ..base.errors import IntegrationError, ModelError, PluginError
 from ..base.limits import check_output_samples
 from ..models.model import Model, ParsedModel
-from ..balance.outcomes import OUTCOMES, kind_outcomes, quadrature_nodes, run_summary
+from ..balance.outcomes import NODE_TERMS, OUTCOMES, STEP_TERMS, kind_outcomes, quadrature_nodes, run_summary
 from .result import Audit, Event, FlightResult, Phase, signal_unit
 from ..balance.sampling import SampleTable, dense_states, join_tables, sample_terms, take_samples
 from .separation import separate
@@ -737,9 +737,10 @@ def _sample(segs: Segments, interval: float) -> _Samples:
         if table.terms is not None:
             j = len(out.tables) - 1
             whole = m + (len(quad[0]) if quad is not None else 0)
-            out.step_terms[j] = take_samples(table.terms, np.searchsorted(tt, sol.t), whole)
+            out.step_terms[j] = take_samples({k: table.terms[k] for k in STEP_TERMS}, np.searchsorted(tt, sol.t),
+                                             whole)
             if quad is not None:
-                out.node_terms[j] = take_samples(table.terms, np.arange(m, whole), whole)
+                out.node_terms[j] = take_samples({k: table.terms[k] for k in NODE_TERMS}, np.arange(m, whole), whole)
         out.pieces.append((ph, sol, bal, tt, out.tables[-1].values))
         out.ts.append(tt)
         out.rows.append((yy, bal.system.state_names))

@@ -310,8 +310,12 @@ class FlightResult:
         """The time series as a ``pyarrow.Table`` (optional dependency ``pyarrow``).
 
         Column names are those of :meth:`columns`; each field's metadata holds
-        its SI ``unit``; the schema metadata holds the provenance as JSON under
-        ``thrustgraph.provenance``.
+        its SI ``unit`` (or the unit of choice in force, :meth:`shown_columns`);
+        the schema metadata holds the provenance as JSON under
+        ``thrustgraph.provenance`` and, under ``thrustgraph.notes``, the CSV
+        export's ``#`` lines as a JSON list (the provenance lines and the
+        outcomes), so :func:`thrustgraph.measured.records.read_record` reads a
+        Parquet export back as it reads the CSV one.
         """
         try:
             import pyarrow as pa
@@ -324,7 +328,8 @@ class FlightResult:
             arrays.append(pa.array(np.asarray(values, dtype=float)))
         fields.append(pa.field("phase", pa.string()))
         arrays.append(pa.array([self.phase_at(float(t)) for t in self.t], type=pa.string()))
-        meta = {"thrustgraph.provenance": json.dumps(self.provenance, sort_keys=True)}
+        meta = {"thrustgraph.provenance": json.dumps(self.provenance, sort_keys=True),
+                "thrustgraph.notes": json.dumps(self.provenance_lines() + self.outcome_lines())}
         return pa.Table.from_arrays(arrays, schema=pa.schema(fields, metadata=meta))
 
     def to_parquet(self) -> bytes:

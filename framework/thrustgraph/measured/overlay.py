@@ -115,12 +115,14 @@ class OverlayRun:
 @dataclass(frozen=True)
 class TableRow:
     """One outcome across the runs: its spec, the value per run and the difference from the first run (SI;
-    None where a run does not report it)."""
+    None where a run does not report it); ``shown``: a run's summary prints it (the spec's ``show`` rule: not a
+    net thrust equal to the gross, a side force of rounding size, an end point...), so the text table does."""
 
     key: str
     spec: OutcomeSpec
     values: tuple[float | None, ...]
     differences: tuple[float | None, ...]
+    shown: bool = True
 
 
 def run_of_result(result: FlightResult, label: str, source: str = "", kind: str = FLIGHT_RUN) -> OverlayRun:
@@ -234,25 +236,32 @@ class Overlay:
             values = tuple(r.outcomes.get(key) for r in self.runs)
             ref = values[0]
             diffs = tuple(None if ref is None or v is None else v - ref for v in values)
-            rows.append(TableRow(key, spec, values, diffs))
+            shown = any(key in r.outcomes and r.specs.get(key, spec).show(r.outcomes) for r in self.runs)
+            rows.append(TableRow(key, spec, values, diffs, shown))
         return rows
 
     def format_table(self) -> str:
         """The table of outcome differences as text for people: values in each outcome's display unit, or in the
-        units of choice in force (:func:`thrustgraph.kinds.displayunits.using`)."""
-        rows = self.table()
+        units of choice in force (:func:`thrustgraph.kinds.displayunits.using`).
+
+        It holds the outcomes the runs' summaries print (:attr:`TableRow.shown`; the CSV table holds every one),
+        and a difference within rounding (1e-9 of the values) reads ``+0``."""
+        rows = [row for row in self.table() if row.shown]
         labels = [r.label for r in self.runs]
-        head = [("outcome", 30)] + [(lab, max(14, len(lab))) for lab in labels]
+        width = max([30] + [len(row.spec.label) for row in rows])
+        head = [("outcome", width)] + [(lab, max(14, len(lab))) for lab in labels]
         head += [(f"{lab} - {labels[0]}", max(14, len(lab) + len(labels[0]) + 3)) for lab in labels[1:]]
         lines = ["  ".join(f"{h:<{w}s}" for h, w in head).rstrip()]
         for row in rows:
             finite = [abs(v) for v in row.values if v is not None and math.isfinite(v)]
             unit = current().unit_for(row.spec.unit, max(finite, default=math.nan), row.spec.display) \
                 if row.spec.unit else ""
-            cells = [f"{row.spec.label:<30s}"]
+            cells = [f"{row.spec.label:<{width}s}"]
             for (_, w), v in zip(head[1:], row.values):
                 cells.append(f"{_shown(row.spec, v, unit):<{w}s}")
             for (_, w), d, v in zip(head[1 + len(labels):], row.differences[1:], row.values[1:]):
+                if d is not None and v is not None and abs(d) <= 1e-9 * max(abs(v), abs(row.values[0] or 0.0)):
+                    d = 0.0        # the rounding of two equal results
                 rel = ""
                 if d is not None and row.values[0]:
                     rel = f" ({100.0 * d / abs(row.values[0]):+.3g} %)"

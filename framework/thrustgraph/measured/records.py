@@ -12,6 +12,12 @@ a comma, a semicolon or a tab.
 A column of words rather than numbers (a logger's state, a note) is marked
 ``[text]``; its cells are kept as written in :attr:`Record.labels`.
 
+A Parquet file (thrustgraph's Parquet export; needs pyarrow) is read through
+the same checks: each column's unit comes from its field metadata ``unit``
+(else the column's name must carry it, ``time [s]``), a string column is a
+``[text]`` column, and the export's ``#`` lines come from the schema metadata
+``thrustgraph.notes``.
+
 thrustgraph reads its own CSV export the same way (:meth:`FlightResult.to_csv
 <thrustgraph.flight.result.FlightResult.to_csv>`: every header carries its unit, the
 phase is a ``[text]`` column). A file whose first line is the export's
@@ -56,6 +62,8 @@ from __future__ import annotations
 import csv
 import difflib
 import hashlib
+import io
+import json
 import math
 import re
 from dataclasses import dataclass, field, replace
@@ -276,12 +284,56 @@ def read_record(path: str | Path, *, time_column: str = "time") -> Record:
     if not p.is_file():
         raise ModelError(str(p), "no such record file", "check the path")
     data = p.read_bytes()
+    if data[:4] == PARQUET_MAGIC:
+        text = _parquet_text(data, str(path))
+        return loads_record(text, source=str(path), time_column=time_column,
+                            sha256=hashlib.sha256(data).hexdigest())
     try:
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
         raise ModelError(str(p), f"is not UTF-8 text ({exc.reason} at byte {exc.start})",
                          "save the log as a UTF-8 (or plain ASCII) CSV file") from None
     return loads_record(text, source=str(path), time_column=time_column, sha256=hashlib.sha256(data).hexdigest())
+
+
+#: The first four bytes of a Parquet file.
+PARQUET_MAGIC = b"PAR1"
+
+
+def _parquet_text(data: bytes, source: str) -> str:
+    """A Parquet file's table as the CSV text :func:`loads_record` reads: its ``#`` lines (schema metadata
+    ``thrustgraph.notes``), a header ``name [unit]`` per column (field metadata ``unit``; ``[text]`` for
+    strings) and the values as ``repr`` of each float (which reads back to the same float)."""
+    try:
+        import pyarrow as pa          # optional (the parquet extra); imported only for a Parquet file
+        import pyarrow.parquet as pq
+    except ImportError:
+        raise ModelError(source, "is a Parquet file, and reading one needs pyarrow, which is not installed",
+                         "pip install 'thrustgraph[parquet]' (or pip install pyarrow), or give the CSV "
+                         "export instead") from None
+    try:
+        table = pq.read_table(pa.BufferReader(data))
+    except Exception as exc:  # noqa: BLE001 - pyarrow raises several types for a damaged file
+        raise ModelError(source, f"cannot be read as Parquet ({type(exc).__name__}: {_cut(str(exc))})",
+                         "give the file thrustgraph export wrote, whole, or a CSV record") from None
+    meta = table.schema.metadata or {}
+    notes = json.loads(meta[b"thrustgraph.notes"]) if b"thrustgraph.notes" in meta else []
+    heads, columns = [], []
+    for fld, col in zip(table.schema, table.columns):
+        unit = (fld.metadata or {}).get(b"unit")
+        text_column = pa.types.is_string(fld.type) or pa.types.is_large_string(fld.type)
+        if text_column:
+            heads.append(f"{fld.name} [{TEXT_UNIT}]")
+            columns.append(["" if v is None else str(v) for v in col.to_pylist()])
+        else:
+            heads.append(fld.name if unit is None else f"{fld.name} [{unit.decode() or '1'}]")
+            columns.append([repr(float("nan") if v is None else float(v)) for v in col.to_pylist()])
+    buf = io.StringIO()
+    buf.writelines(f"# {line}\n" for line in notes)
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(heads)
+    w.writerows(zip(*columns))
+    return buf.getvalue()
 
 
 def loads_record(text: str, *, source: str = "<text>", time_column: str = "time",

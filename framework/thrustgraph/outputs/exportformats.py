@@ -111,7 +111,7 @@ for _fmt in (
                  detail="per outcome key: SI `value`, SI `unit` and `label`, from the outcome registry; also the "
                         "cautions and the provenance"),
     ExportFormat("parquet", "Parquet", "the time series", FlightResult.to_parquet, needs="pyarrow",
-                 extra="parquet", detail="the CSV's columns, units in the field metadata, provenance in the schema "
-                                         "metadata"),
+                 extra="parquet", detail="the CSV's columns, units in the field metadata, provenance and the outcomes "
+                                         "in the schema metadata; `compare` and `overlay` read it back"),
 ):
     register(_fmt)

@@ -36,7 +36,6 @@ from __future__ import annotations
 
 import csv
 import io
-import itertools
 import math
 import os
 import sys
@@ -50,7 +49,7 @@ from ..flight.arraysystem import unsupported
 from ..flight.assembly import assemble
 from ..flight.ensemble import COMPUTED
 from ..models.designs import DesignParameter, within_bounds
-from .engines import FLIGHTS, ENGINES, FlightTask, chunks, default_chunk_size, make_engine
+from .engines import FLIGHTS, ENGINES, ChunkRows, FlightTask, chunks, default_chunk_size, make_engine, idle_cores, usable_cores
 from ..base.errors import ModelError
 from ..base.frames import design_frame, sensitivity_frame
 from ..base.limits import MAX_DESIGNS, check_count
@@ -64,14 +63,15 @@ from ..models.designs import bounds_text
 from ..base.units import Q_
 
 __all__ = ["DesignTable", "evaluate", "sweep", "sensitivities", "Sensitivity", "choose_engine", "run_options",
-           "DEFAULT_OUTPUTS", "as_vary"]
+           "DEFAULT_OUTPUTS", "as_vary", "csv_head", "csv_columns", "csv_rows", "table_report", "fly_rows",
+           "out_of_bounds", "bounds_note", "POOL_FROM_ENSEMBLE", "POOL_FROM_SINGLE", "POOL_IDLE_CORES"]
 
 #: Outcomes a study reports when none are named (the registry's defaults; any other outcome can be named).
 DEFAULT_OUTPUTS = default_outputs()
 
 #: Keyword options every study passes on to :func:`evaluate`.
 run_options = ("engine", "flights", "workers", "scheduler", "timeout", "chunk_size", "quiet", "stream", "rtol",
-               "atol")
+               "atol", "table")
 
 
 def _fmt(x: float) -> str:
@@ -140,25 +140,13 @@ class DesignTable:
         Parameters are in the units the study shows them in, outcomes in SI;
         every header names its unit in brackets (``[1]`` for a plain number).
         Values are written in full precision; empty cells are outcomes a
-        design does not have.
+        design does not have. A table streamed to a file
+        (:mod:`thrustgraph.studies.tablestream`) is written by the same functions, piece by piece:
+        :func:`csv_head`, :func:`csv_columns`, :func:`csv_rows`.
         """
-        buf = io.StringIO()
-        buf.write("# thrustgraph design study\n")
-        for k, v in self.info.items():
-            buf.write(f"# {k}: {v}\n")
-        c = self.counts
-        buf.write(f"# rows: {len(self)} ({c['ok']} ok, {c['screened']} screened, {c['not run']} not run)\n")
-        if self.interrupted:
-            buf.write(f"# interrupted: {len(self) - c['not run']} of {len(self)} designs were flown before the "
-                      "study was stopped; the rest are marked 'not run'\n")
-        heads = ["design", "status"] + [p.header for p in self.params] + [OUTCOMES[o].header for o in self.outputs]
-        rows = csv.writer(buf, lineterminator="\n")   # quotes a cell only when it must (a note with a comma)
-        rows.writerow(heads + ["note"])
-        shown = [np.atleast_1d(p.shown(self.x[:, j])) for j, p in enumerate(self.params)]
-        for i in range(len(self)):
-            rows.writerow([str(i), str(self.status[i]), *(_fmt(col[i]) for col in shown),
-                           *(_fmt(v) for v in self.values[i]), self.notes[i]])
-        return buf.getvalue()
+        return (csv_head(self.info, self.counts, len(self), self.interrupted)
+                + csv_columns(self.params, self.outputs)
+                + csv_rows(self.params, self.x, self.status, self.values, self.notes, 0))
 
     def to_pandas(self):
         """The designs as a pandas DataFrame (optional dependency ``pandas``): one row per design, the parameters
@@ -173,28 +161,87 @@ class DesignTable:
     def report(self) -> str:
         """A few lines for people: the range of each outcome (up to five) over the designs that flew, and where
         it is highest."""
-        ok = self.ok
-        if not np.any(ok):
-            return "No design flew."
-        lines = []
-        shown = [o for o in self.outputs if o not in ("impact_x", "impact_y", "launch_mass")][:5]
-        for o in shown:
-            v = np.where(ok, self.column(o), np.nan)
-            if not np.any(np.isfinite(v)):
-                continue
-            i = int(np.nanargmax(v))
-            spec = OUTCOMES[o]
-            best = ", ".join(p.text(self.x[i, k]) for k, p in enumerate(self.params))
-            lines.append(f"  {spec.label:<20s} {spec.shown(float(np.nanmin(v))):10.5g} .. "
-                         f"{spec.shown(float(np.nanmax(v))):10.5g} {spec.display:<6s} highest at {best}")
-        return "Outcome ranges over the designs that flew\n" + "\n".join(lines)
+        return table_report(self)
+
+
+def csv_head(info: dict[str, Any], counts: dict[str, int], rows: int, interrupted: bool) -> str:
+    """The commented head of a study's CSV table: what the study was, and how many rows flew."""
+    lines = ["# thrustgraph design study\n"] + [f"# {k}: {v}\n" for k, v in info.items()]
+    lines.append(f"# rows: {rows} ({counts['ok']} ok, {counts['screened']} screened, {counts['not run']} not run)\n")
+    if interrupted:
+        lines.append(f"# interrupted: {rows - counts['not run']} of {rows} designs were flown before the study was "
+                     "stopped; the rest are marked 'not run'\n")
+    return "".join(lines)
+
+
+def csv_columns(params: Sequence[DesignParameter], outputs: Sequence[str]) -> str:
+    """The header line of a study's CSV table: every column with its unit."""
+    heads = ["design", "status"] + [p.header for p in params] + [OUTCOMES[o].header for o in outputs] + ["note"]
+    buf = io.StringIO()
+    csv.writer(buf, lineterminator="\n").writerow(heads)
+    return buf.getvalue()
+
+
+def _cells(values: np.ndarray) -> list[str]:
+    """:func:`_fmt` of every value of a column (full precision; empty where not finite)."""
+    return [repr(v) if math.isfinite(v) else "" for v in np.asarray(values, dtype=float).tolist()]
+
+
+def csv_rows(params: Sequence[DesignParameter], x: np.ndarray, status: Sequence[str], values: np.ndarray,
+             notes: Sequence[str], first: int) -> str:
+    """Rows of a study's CSV table, numbered from ``first``: design number, status, the parameters in the units
+    the study shows them in, the outcomes in SI, the note (quoted only when it must be: a comma, a quote)."""
+    buf = io.StringIO()
+    n = len(x)
+    shown = [_cells(np.atleast_1d(p.shown(x[:, j])) if n else np.zeros(0)) for j, p in enumerate(params)]
+    outs = [_cells(values[:, k]) for k in range(values.shape[1])]
+    csv.writer(buf, lineterminator="\n").writerows(
+        zip(map(str, range(first, first + n)), map(str, status), *shown, *outs, notes))
+    return buf.getvalue()
+
+
+def table_report(table: Any) -> str:
+    """A few lines for people about a table (in memory or streamed): the range of each outcome (up to five) over
+    the designs that flew, and where it is highest."""
+    ok = table.ok
+    if not np.any(ok):
+        return "No design flew."
+    lines = []
+    shown = [o for o in table.outputs if o not in ("impact_x", "impact_y", "launch_mass")][:5]
+    width = max([20] + [len(OUTCOMES[o].label) for o in shown])
+    for o in shown:
+        v = np.where(ok, table.column(o), np.nan)
+        if not np.any(np.isfinite(v)):
+            continue
+        i = int(np.nanargmax(v))
+        spec = OUTCOMES[o]
+        best = ", ".join(p.text(table.x[i, k]) for k, p in enumerate(table.params))
+        lines.append(f"  {spec.label:<{width}s} {spec.shown(float(np.nanmin(v))):10.5g} .. "
+                     f"{spec.shown(float(np.nanmax(v))):10.5g} {spec.display:<6s} highest at {best}")
+    return "Outcome ranges over the designs that flew\n" + "\n".join(lines)
+
+
+#: Designs from which ``--engine auto`` flies an ensemble study on a pool of local processes (one per core).
+#: A pool's workers are forked in ~25 ms and fly one chunk each (the model sent once per worker), so a pool
+#: adds one chunk's fixed cost (~0.25 s of CPU) per worker beside half the per-design work: on two idle cores it
+#: pays from about 2,500 designs (CPU time: 1.16x at 2,500, 1.32x at 5,000, 1.43x at 10,000; docs/studies.md).
+POOL_FROM_ENSEMBLE = 4000
+#: The same for single flights (each design ~10-50 ms): a pool pays from a few dozen designs.
+POOL_FROM_SINGLE = 32
+#: Idle cores (usable cores less the one-minute load average) ``auto`` needs to start a pool: a second worker
+#: pays only on a core nobody else wants. On a busy machine the extra workers only share the cores the study
+#: had anyway (this machine's scheduler gives each session an equal share of a busy machine, however many
+#: processes it runs), and each worker's extra chunk is work a single process does not do: under a load
+#: average of 7 on 2 cores, a pool of 2 took 1.8x the wall time of one process for 10,000 designs (measured).
+POOL_IDLE_CORES = 1.5
 
 
 def choose_engine(n: int, parsed: ParsedModel, engine: str = "auto", flights: str = "auto",
                   outputs: Sequence[str] | None = None) -> tuple[str, str]:
     """Resolve ``auto``: vectorised ensembles from a few hundred designs of a family they support (and outcomes
-    they compute), a process pool for mid-size studies on a machine with more than one core, this process
-    otherwise."""
+    they compute); a process pool from :data:`POOL_FROM_ENSEMBLE` ensemble designs (:data:`POOL_FROM_SINGLE`
+    single flights) when more than one core is usable and the machine leaves :data:`POOL_IDLE_CORES` of them
+    idle; this process otherwise."""
     if flights not in FLIGHTS + ("auto",):
         raise ModelError("--flights", f"unknown way to fly {flights!r}", f"choose one of {', '.join(FLIGHTS)}, auto")
     if engine not in ENGINES + ("auto",) and not hasattr(engine, "run"):
@@ -205,9 +252,8 @@ def choose_engine(n: int, parsed: ParsedModel, engine: str = "auto", flights: st
             if unsupported(parsed) is None and all(o in COMPUTED for o in (outputs or DEFAULT_OUTPUTS)):
                 flights = "ensemble"
     if engine == "auto":
-        cores = os.cpu_count() or 1
-        big = 40000 if flights == "ensemble" else 32   # a pool starts in ~1 s: one core flies 10,000 designs in ~1.4 s
-        engine = "processes" if n >= big and cores > 1 else "serial"
+        big = POOL_FROM_ENSEMBLE if flights == "ensemble" else POOL_FROM_SINGLE
+        engine = "processes" if n >= big and usable_cores() > 1 and idle_cores() >= POOL_IDLE_CORES else "serial"
     return engine, flights
 
 
@@ -215,7 +261,7 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
              parsed: ParsedModel | None = None, kind: str = "designs", engine: Any = "auto", flights: str = "auto",
              workers: int | None = None, scheduler: Any = None, timeout: float = 10.0, chunk_size: int | None = None,
              quiet: bool = False, stream: Any = None, rtol: float | None = None, atol: float | None = None,
-             info: dict[str, Any] | None = None, token: str | None = None) -> DesignTable:
+             info: dict[str, Any] | None = None, token: str | None = None, table: Any = None) -> Any:
     """Fly a table of designs and return their outcomes.
 
     Parameters
@@ -232,6 +278,14 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     quiet, stream : progress bar off / where to draw it (default standard error, only on a terminal)
     rtol, atol : integration tolerances (default: the model's ``[run]`` values)
     token : names the flight task, so that batches of one study (an optimiser's) reuse a kept process pool
+    table : a :class:`~thrustgraph.studies.tablestream.TableStream`: the rows are written to its file in
+        design order as the chunks come back, instead of being held, and a
+        :class:`~thrustgraph.studies.tablestream.StreamedTable` is returned (the same table, the same
+        statistics; memory stays flat however many designs there are)
+
+    Returns
+    -------
+    DesignTable, or StreamedTable with ``table``
     """
     parsed = parsed or parse_model(model)
     assemble(parsed)  # the plugin contract, checked once for the study here, not once per design
@@ -246,12 +300,12 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
     size = chunk_size or default_chunk_size(n, eng.workers, flights)
     if eng.name == "serial" and flights == "single" and chunk_size is None:
         size = min(size, 8)
-    rows = _Rows(n, len(outputs))
+    rows = _Rows(n, len(outputs)) if table is None else table.rows(params, outputs, x)
     inside = rows.screen_out_of_bounds(params, x)
     t0 = time.perf_counter()
     bar = StudyProgress(n, kind, stream=stream, quiet=quiet)
     try:
-        interrupted = rows.fly(eng, task, x, _parts(np.flatnonzero(inside), size, flights), bar)
+        interrupted = fly_rows(eng, task, x, rows.parts(inside, size, flights), bar, rows)
     finally:
         bar.close()
         if own:
@@ -260,9 +314,8 @@ def evaluate(model: Model, params: Sequence[DesignParameter], x: Any, outputs: S
             "flights": f"{flights} (rtol {rtol if rtol is not None else parsed.run.rtol:g}, "
                        f"atol {atol if atol is not None else parsed.run.atol:g})"}
     head.update(info or {})
-    return DesignTable(kind=kind, params=tuple(params), outputs=outputs, x=x, values=rows.values,
-                       status=np.asarray(rows.status, dtype=str), notes=rows.finished_notes(), interrupted=interrupted,
-                       info=head, engine=eng_name, flights=flights, seconds=time.perf_counter() - t0)
+    return rows.table(kind=kind, params=tuple(params), outputs=outputs, x=x, interrupted=interrupted, info=head,
+                      engine=eng_name, flights=flights, seconds=time.perf_counter() - t0)
 
 
 def _how_to_fly(n: int, parsed: ParsedModel, engine: Any, flights: str, outputs: tuple[str, ...], quiet: bool,
@@ -291,55 +344,85 @@ def _how_to_fly(n: int, parsed: ParsedModel, engine: Any, flights: str, outputs:
 _NOT_FLOWN = "not flown: the study was stopped first"
 
 
+def out_of_bounds(params: Sequence[DesignParameter], x: np.ndarray) -> np.ndarray:
+    """Per design, the column of the first parameter outside its declared bounds, -1 where all are inside.
+
+    >>> from thrustgraph.models.modelfile import load_model, default_model_path
+    >>> from thrustgraph.models.designs import resolve
+    >>> p = [resolve(parse_model(load_model(default_model_path())), "components.bottle.fill")]
+    >>> out_of_bounds(p, np.array([[0.3], [1.5]])).tolist()
+    [-1, 0]
+    """
+    n = len(x)
+    first = np.full(n, -1, dtype=np.int16)
+    for j, p in enumerate(params):
+        ok = within_bounds(p, x[:, j]) if n else np.ones(0, bool)
+        first[(first < 0) & ~np.asarray(ok, dtype=bool)] = j
+    return first
+
+
+def bounds_note(params: Sequence[DesignParameter], x_row: np.ndarray, j: int) -> str:
+    """Why a design outside its bounds was screened (the note of its row)."""
+    p = params[j]
+    return f"{p.path} = {p.text(x_row[j])} is outside its bounds ({bounds_text(p)})"
+
+
 class _Rows:
-    """The rows of a study as they are flown: outcome values, status and note per design."""
+    """The rows of a study held in memory as they are flown: outcome values, status and note per design."""
 
     def __init__(self, n: int, k: int) -> None:
         self.values = np.full((n, k), np.nan)
         self.status = np.array([STATUS_NOT_RUN] * n, dtype=object)
         self.notes = [_NOT_FLOWN] * n
+        self.done = 0
+        self.screened = 0
 
     def screen_out_of_bounds(self, params: Sequence[DesignParameter], x: np.ndarray) -> np.ndarray:
         """Screen the designs outside their declared bounds, before any engine sees them; True for the others."""
-        n = len(x)
-        inside = np.ones(n, dtype=bool)
-        for j, p in enumerate(params):
-            ok = within_bounds(p, x[:, j]) if n else np.ones(0, bool)
-            for i in np.flatnonzero(inside & ~ok):
-                self.status[i] = STATUS_SCREENED
-                self.notes[i] = f"{p.path} = {p.text(x[i, j])} is outside its bounds ({bounds_text(p)})"
-            inside &= ok
-        return inside
+        first = out_of_bounds(params, x)
+        for i in np.flatnonzero(first >= 0):
+            self.status[i] = STATUS_SCREENED
+            self.notes[i] = bounds_note(params, x[i], int(first[i]))
+        self.done = self.screened = int(np.sum(first >= 0))
+        return first < 0
 
-    def fly(self, eng: Any, task: FlightTask, x: np.ndarray, parts: list[np.ndarray], bar: StudyProgress) -> bool:
-        """Fly the chunks on the engine, filling the rows as they come back; True when interrupted (Ctrl-C keeps
-        what has flown, possibly nothing)."""
-        done = int(np.sum(self.status != STATUS_NOT_RUN))
-        screened = int(np.sum(self.status == STATUS_SCREENED))
-        index_of = {int(idx[0]): idx for idx in parts}
-        feed = ((int(idx[0]), x[idx]) for idx in parts)
-        if eng.name == "serial" and bar.enabled:
-            stream_ = eng.run(task, feed, progress=lambda start, k: bar.update(done + k, screened))
-        else:
-            stream_ = eng.run(task, feed)
-        try:   # from the first draw of the bar on, an interrupt keeps what has flown (possibly nothing)
-            bar.update(done, screened)
-            for res in stream_:
-                idx = index_of[res.start]
-                self.values[idx] = res.values
-                self.status[idx] = res.status
-                for r, note in zip(idx, res.notes):
-                    self.notes[r] = note
-                done += len(idx)
-                screened += sum(1 for s in res.status if s == STATUS_SCREENED)
-                bar.update(done, screened)
-        except KeyboardInterrupt:
-            return True
-        return False
+    def parts(self, inside: np.ndarray, size: int, flights: str) -> list[np.ndarray]:
+        """The in-bounds rows in chunks (:func:`_parts`)."""
+        return _parts(np.flatnonzero(inside), size, flights)
 
-    def finished_notes(self) -> list[str]:
-        """The notes, with the placeholder of rows that flew cleared."""
-        return ["" if s == STATUS_OK and note == _NOT_FLOWN else note for s, note in zip(self.status, self.notes)]
+    def put(self, idx: np.ndarray, res: ChunkRows) -> None:
+        """The rows ``idx`` came back."""
+        self.values[idx] = res.values
+        self.status[idx] = res.status
+        for r, note in zip(idx, res.notes):
+            self.notes[r] = note
+        self.done += len(idx)
+        self.screened += sum(1 for s in res.status if s == STATUS_SCREENED)
+
+    def table(self, **fields: Any) -> DesignTable:
+        """The table, the placeholder note of rows that flew cleared."""
+        notes = ["" if s == STATUS_OK and note == _NOT_FLOWN else note for s, note in zip(self.status, self.notes)]
+        return DesignTable(values=self.values, status=np.asarray(self.status, dtype=str), notes=notes, **fields)
+
+
+def fly_rows(eng: Any, task: FlightTask, x: np.ndarray, parts: list[np.ndarray], bar: StudyProgress,
+             rows: Any) -> bool:
+    """Fly the chunks (each an array of row numbers) on the engine, handing each chunk's rows to ``rows`` (its
+    ``put``) as they come back; True when interrupted (Ctrl-C keeps what has flown, possibly nothing)."""
+    index_of = {int(idx[0]): idx for idx in parts}
+    feed = ((int(idx[0]), x[idx]) for idx in parts)
+    if eng.name == "serial" and bar.enabled:
+        stream_ = eng.run(task, feed, progress=lambda start, k: bar.update(rows.done + k, rows.screened))
+    else:
+        stream_ = eng.run(task, feed)
+    try:   # from the first draw of the bar on, an interrupt keeps what has flown (possibly nothing)
+        bar.update(rows.done, rows.screened)
+        for res in stream_:
+            rows.put(index_of[res.start], res)
+            bar.update(rows.done, rows.screened)
+    except KeyboardInterrupt:
+        return True
+    return False
 
 
 def _parts(rows: np.ndarray, size: int, flights: str) -> list[np.ndarray]:
@@ -389,7 +472,10 @@ def sweep(model: Model | str | None, vary: Sequence[Vary | str], *, combine: str
         total = math.prod(len(c) for c in cols)
         check_count(total, MAX_DESIGNS, where="sweep", what=f"designs (a grid of {' x '.join(str(len(c)) for c in cols)})",
                     fix="use fewer values per parameter")
-        x = np.array(list(itertools.product(*cols)), dtype=float).reshape(total, len(cols))
+        # every combination, the first parameter slowest (as itertools.product), built as arrays: a million
+        # designs as Python tuples took ~150 MB on the way
+        x = np.stack([g.reshape(-1) for g in np.meshgrid(*[np.asarray(c, dtype=float) for c in cols],
+                                                          indexing="ij")], axis=1).reshape(total, len(cols))
     elif combine == "list":
         lengths = {len(c) for c in cols}
         if len(lengths) != 1:

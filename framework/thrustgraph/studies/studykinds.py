@@ -61,6 +61,8 @@ class StudyKind:
     run : (model, definition, run options of :func:`thrustgraph.studies.studies.evaluate`) -> :class:`StudyRun`
     aliases : other names it answers to (``optimize``, ``monte-carlo``)
     summary : what its ``--summary`` table holds ("" when it has none)
+    streams : its table is the whole study, so ``--table`` streams it to the file as it flies (a
+        :class:`~thrustgraph.studies.tablestream.TableStream` in the run options, key ``table``)
     """
 
     name: str
@@ -69,6 +71,7 @@ class StudyKind:
     run: Callable[[Model, StudyDefinition, Mapping[str, Any]], StudyRun]
     aliases: tuple[str, ...] = ()
     summary: str = ""
+    streams: bool = False
 
 
 #: Every study kind, by name, in the order they are listed.
@@ -267,13 +270,13 @@ def _run_optimise(model: Model, d: StudyDefinition, run: Mapping[str, Any]) -> S
 
 for _kind in (
     StudyKind("sweep", "every combination (grid) or the n-th values together (list) of the varied parameters",
-              ("vary", "combine", "outputs"), _run_sweep),
+              ("vary", "combine", "outputs"), _run_sweep, streams=True),
     StudyKind("optimise", "a bounded optimisation of one outcome (SLSQP or differential evolution) with limits on "
               "others", ("vary", "maximise", "minimise", "limits", "method", "outputs", "start"), _run_optimise,
               aliases=("optimize",)),
     StudyKind("dispersion", "a seeded Monte Carlo dispersion: outcome statistics and the impact footprint",
               ("spread", "samples", "seed", "outputs", "levels"), _run_dispersion,
-              aliases=("monte-carlo", "montecarlo"), summary="statistics per outcome and the footprint"),
+              aliases=("monte-carlo", "montecarlo"), summary="statistics per outcome and the footprint", streams=True),
     StudyKind("sensitivity", "local derivatives and elasticities of each outcome by central differences at the "
               "model's values", ("vary", "step", "outputs"), _run_sensitivity, aliases=("sensitivities",),
               summary="derivative and elasticity per outcome and parameter"),
