@@ -79,13 +79,14 @@ def test_straight_lines_over_arrays_give_the_general_evaluators_numbers(path, mo
         np.testing.assert_array_equal(d2, d0[:, rows])
 
 
-@pytest.mark.parametrize("path", [p for p in MODELS if p.stem in ("bottle-rocket", "two-stage-demo",
-                                                                  "cold-gas-free-floater", "rocket-with-parachute")],
+@pytest.mark.parametrize("path", [p for p in MODELS if p.stem in ("bottle-rocket", "twin-nozzle-bottle-rocket",
+                                                                  "cold-gas-free-floater", "gas-cartridge-cart")],
                          ids=lambda p: p.stem)
 def test_designs_grouped_by_phase_give_the_numbers_of_a_mixed_batch(path):
     rng = np.random.default_rng(5)
     n = 40
     sysa = _system(path, n, rng)
+    assert sysa.grouped                  # flows are solved: grouping pays
     Y = sysa.y0.copy()
     Y[2] += rng.uniform(1.0, 30.0, n)
     Y[3:6] = rng.uniform(0.0, 25.0, (3, n))
@@ -171,3 +172,13 @@ def test_a_builders_iteration_over_values_per_design_runs_at_trace_time(monkeypa
         monkeypatch.setattr(arraysystem, "LINES_AFTER", 1)
         np.testing.assert_array_equal(d1, d0)
     assert not sysa.untraced and sum(callable(v) for v in sysa._lines.values()) == len(phases)
+
+
+def test_a_vehicle_driven_by_prescribed_jets_alone_is_not_grouped():
+    """Without lines a batch in mixed phases costs less than gathering and scattering groups: it is evaluated
+    in one call."""
+    path = next(p for p in MODELS if p.stem == "two-stage-demo")
+    sysa = _system(path, 8, np.random.default_rng(2))
+    assert not sysa.plan.lines and not sysa.grouped
+    modes = np.array([np.arange(8) % len(sysa.modes[nm]) for nm in sysa.moded], dtype=np.int8)
+    assert PhaseGroups(smallest=1).split(sysa, modes, sysa.kin0, np.zeros(8)) is None

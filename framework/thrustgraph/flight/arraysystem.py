@@ -184,6 +184,10 @@ class ArraySystem:
         if now:
             self._make()
             self.has_jets = bool(self.plan.jets)
+            # grouping designs by phase pays where flows are solved (a line's regimes, its head coupling, for
+            # every design of a mixed batch); a vehicle driven by prescribed jets alone evaluates a mixed batch
+            # for less than the gathering and scattering of groups costs (measured: benchmarks/ensemble_speed.py)
+            self.grouped = bool(self.plan.lines)
 
     def _make(self) -> tuple:
         if self._made is None:
@@ -428,7 +432,7 @@ class ArraySystem:
         """
         if phase is None:
             phase = self.phase(modes, kin, slide)
-        if LINES_AFTER and self.n > 1 and not _uniform(phase):
+        if LINES_AFTER and self.grouped and self.n > 1 and not _uniform(phase):
             # designs in several phases: evaluated phase by phase (each kind runs its own regime alone)
             if self._split is None:
                 self._split = PhaseGroups(smallest=1)
@@ -510,7 +514,7 @@ class PhaseGroups:
         """The groups ``[(rows, system, phase), ...]`` of the designs of ``sysa`` in phases ``modes``, ``kin``,
         ``slide``, or None when every design shares its phase (one call of the balance covers them)."""
         n = sysa.n
-        if n == 0:
+        if n == 0 or not sysa.grouped:
             return None
         code = kin.astype(np.int64) * 3 + (np.sign(slide) + 1.0).astype(np.int64)     # slide: -1, 0, +1
         for k in range(len(modes)):
