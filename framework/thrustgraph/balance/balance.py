@@ -47,11 +47,11 @@ from ..kinds.component import Flow, Outlet
 from ..base.errors import IntegrationError
 from .plan import ACCUMULATORS, LinePlan, Plan, build_plan
 from ..base.roots import illinois
-from .straightline import TraceError, compile_function, trace_ops
+from .straightline import TraceError, array_trace_ops, compile_function, trace_ops
 from .vectors import frame_of, solve_rank_one, to_world
 from ..base.xp import array_ops, scalar_ops
 
-__all__ = ["Balance", "Kinematics", "LineFlow", "ACCUMULATORS", "SINGULAR", "STRAIGHT_AFTER"]
+__all__ = ["Balance", "Kinematics", "LineFlow", "ACCUMULATORS", "SINGULAR", "STRAIGHT_AFTER", "array_line"]
 
 #: Evaluations of one phase by the general evaluator before its straight-line function is traced and compiled
 #: (:mod:`thrustgraph.balance.straightline`); tracing and compiling one phase costs about as much as this many
@@ -483,10 +483,11 @@ class Balance:
             use = use & (self._kin == Kinematics.FREE)
         if not ops.arrays:
             return ops.branch(use, lambda: (vr[0] / sp, vr[1] / sp, vr[2] / sp), lambda: u)
-        if ops.all(use):
-            return (vr[0] / sp, vr[1] / sp, vr[2] / sp)
-        d = ops.where(use, sp, 1.0)
-        return tuple(ops.where(use, vr[k] / d, u[k]) for k in range(3))
+
+        def some():             # designs that differ: the guide direction below the speed (no division by 0)
+            d = ops.where(use, sp, 1.0)
+            return tuple(ops.where(use, vr[k] / d, u[k]) for k in range(3))
+        return ops.branch(use, lambda: (vr[0] / sp, vr[1] / sp, vr[2] / sp), some)
 
     # ------------------------------------------------------------------
     def _accelerate(self, ctx: tuple, M: Any, F: tuple, coupled: bool):
@@ -873,6 +874,19 @@ class _Traced(NamedTuple):
 
     plan: Plan
     mode0: tuple
+
+
+def array_line(plan: Plan, mode0: Any, phase: tuple, want: str, n_states: int, designs: int) -> Any:
+    """The straight line of one phase of an ensemble's balance: ``want`` ("terms", "drives", ...) traced over
+    :data:`~thrustgraph.balance.straightline.array_trace_ops` and compiled for arrays of ``designs`` designs
+    (:func:`~thrustgraph.balance.straightline.compile_function`). ``plan`` is the designs' plan built over
+    ``array_trace_ops`` (parameters as arrays over the designs), ``phase`` the arguments of
+    :meth:`Balance.set_phase` (every mode an ``int``, the constraint an ``int``, ``slide`` a float). Raises
+    :class:`~thrustgraph.balance.straightline.TraceError` (or the error the code raised) when it cannot be
+    traced; the caller keeps the general evaluator then."""
+    bal = Balance(_Traced(plan, mode0), ops=array_trace_ops)
+    bal.set_phase(*phase)
+    return compile_function(lambda t, s: bal._solve(t, s, want), n_states, name=want, designs=designs)
 
 
 def _as_list(y: Any) -> list:

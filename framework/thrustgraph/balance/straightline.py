@@ -36,9 +36,11 @@ import math
 import threading
 from typing import Any, Callable, Sequence
 
-from ..base.xp import ScalarOps
+import numpy as np
 
-__all__ = ["TraceError", "Sym", "trace_ops", "compile_function"]
+from ..base.xp import ArrayOps, ScalarOps
+
+__all__ = ["TraceError", "Sym", "trace_ops", "array_trace_ops", "compile_function"]
 
 
 class TraceError(Exception):
@@ -67,11 +69,17 @@ class _Block:
 
 
 class _Recorder:
-    def __init__(self) -> None:
+    def __init__(self, arrays: bool = False) -> None:
         self.count = 0
         self.consts: dict[int, str] = {}
         self.namespace: dict[str, Any] = {}
         self.block = _Block(None)
+        #: the array dialect (numpy arrays of designs at run time): logic with ``&``, ``|``, ``_not``
+        self.arrays = arrays
+        #: constants read as tables (``ops.interp``, ``ops.layer``, ``ops.take``), never per design
+        self.shared: set[str] = set()
+        #: constants read as numbers (per design when they are arrays of the designs' shape)
+        self.numbers: set[str] = set()
 
     def name(self, prefix: str = "v") -> str:
         self.count += 1
@@ -120,7 +128,10 @@ def _lit(x: Any) -> tuple[str, tuple]:
         return _rec().const(f), ()
     if type(x).__name__ in ("int64", "int32", "bool_"):
         return _lit(x.item())
-    return _rec().const(x), ()
+    rec = _rec()
+    name = rec.const(x)
+    rec.numbers.add(name)
+    return name, ()
 
 
 def _static(x: Any) -> bool:
@@ -160,7 +171,21 @@ def _bin(a: Any, op: str, b: Any) -> Any:
             return a
     sa, da = _lit(a)
     sb, db = _lit(b)
-    return _rec().emit(f"{sa} {op} {sb}", da + db)
+    rec = _rec()
+    if rec.arrays and op in _ARRAY_LOGIC:
+        op = _ARRAY_LOGIC[op]
+    return rec.emit(f"{sa} {op} {sb}", da + db)
+
+
+#: Python's logic on bools, as numpy's on arrays of bools (the array dialect)
+_ARRAY_LOGIC = {"and": "&", "or": "|"}
+
+
+def _same_static(a: Any, b: Any) -> bool:
+    """Two values known at trace time that are the same value (arrays: the same array)."""
+    if isinstance(a, np.ndarray) or isinstance(b, np.ndarray):
+        return a is b
+    return type(a) is type(b) and repr(a) == repr(b)
 
 
 class Sym:
@@ -201,7 +226,9 @@ class Sym:
     def __rand__(self, o): return _bin(o, "and", self)
     def __or__(self, o): return _bin(self, "or", o)
     def __ror__(self, o): return _bin(o, "or", self)
-    def __invert__(self): return _rec().emit(f"not {self.name}", (self.name,))
+    def __invert__(self):
+        rec = _rec()
+        return rec.emit(f"_not({self.name})" if rec.arrays else f"not {self.name}", (self.name,))
     __hash__ = object.__hash__
 
     # what a straight line cannot follow
@@ -230,7 +257,7 @@ def _flatten(x: Any, leaves: list) -> Any:
         return (type(x), kids)
     if isinstance(x, list):
         return (list, tuple(_flatten(v, leaves) for v in x))
-    if type(x) is Sym or isinstance(x, (float, bool)):
+    if type(x) is Sym or isinstance(x, (float, bool, np.ndarray)):
         leaves.append(x)
         return None
     return ("static", x)
@@ -286,8 +313,7 @@ def _join(blocks: list[_Block], results: list, names: list[str] | None = None) -
     targets: list[str] = []
     for k in range(len(leaves[0])):
         vals = [lv[k] for lv in leaves]
-        if names is None and all(_static(v) for v in vals) and all(type(v) is type(vals[0]) and
-                                                                   repr(v) == repr(vals[0]) for v in vals):
+        if names is None and all(_static(v) for v in vals) and all(_same_static(v, vals[0]) for v in vals):
             out.append(vals[0])
             continue
         n = names[k] if names is not None else rec.name("o")
@@ -353,7 +379,7 @@ class TraceOps:
     def where(c: Any, a: Any, b: Any) -> Any:
         if _static(c):
             return a if c else b
-        if _static(a) and _static(b) and type(a) is type(b) and repr(a) == repr(b):
+        if _static(a) and _static(b) and _same_static(a, b):
             return a
         sc, dc = _lit(c)
         sa, da = _lit(a)
@@ -471,8 +497,7 @@ class TraceOps:
             tree2 = _flatten((new_carry, aux2), lv2)
             if not _same_tree(tree, tree2):
                 raise TraceError("an iteration changes the shape of what it carries")
-            same = [_static(x) and _static(y) and type(x) is type(y) and repr(x) == repr(y)
-                    for x, y in zip(lv, lv2)]
+            same = [_static(x) and _static(y) and _same_static(x, y) for x, y in zip(lv, lv2)]
             if attempt or same == fixed or not any(same):
                 break
             fixed = same
@@ -503,6 +528,173 @@ class TraceOps:
 trace_ops = TraceOps()
 
 
+def _leafwise(c: Any, a: Any, b: Any, where: Callable) -> Any:
+    """``where(c, x, y)`` for each pair of leaves of two results of the same shape (tuples, named tuples)."""
+    if isinstance(a, tuple):
+        vals = [where(c, x, y) for x, y in zip(a, b)]
+        return type(a)(*vals) if hasattr(a, "_fields") else tuple(vals)
+    return where(c, a, b)
+
+
+class ArrayTraceOps(TraceOps):
+    """The namespace of :class:`~thrustgraph.base.xp.ArrayOps` over traced values: what is known at trace time
+    (floats, and numpy arrays over the designs: parameters and what the builders made of them) is computed as
+    ArrayOps computes it, what depends on the state or the time is written down as numpy calls, in the same
+    order. Traced with :func:`compile_function` (``designs=N``), the straight line takes the states as arrays
+    over designs. Choices keep ArrayOps' rules: ``ops.branch`` on a state-dependent condition runs the one
+    regime every design is in, or both and chooses per design; ``ops.iterate`` stops when every design does;
+    ``ops.refuse`` does nothing (the caller flags the designs)."""
+
+    arrays = True
+    tracing = True
+
+    def __init__(self) -> None:
+        for name, f in (("sqrt", np.sqrt), ("exp", np.exp), ("log", np.log), ("sin", np.sin), ("cos", np.cos),
+                        ("abs", np.abs)):
+            setattr(self, name, self._unary("_np_" + name, f))
+
+    @staticmethod
+    def hypot(a: Any, b: Any) -> Any:
+        if _static(a) and _static(b):
+            return np.hypot(a, b)
+        return _call("_np_hypot", np.hypot, a, b)
+
+    @staticmethod
+    def any(c: Any) -> bool:
+        if _static(c):
+            return bool(np.any(c))
+        raise TraceError("ops.any of a state-dependent condition")
+
+    @staticmethod
+    def all(c: Any) -> bool:
+        if _static(c):
+            return bool(np.all(c))
+        raise TraceError("ops.all of a state-dependent condition")
+
+    @staticmethod
+    def where(c: Any, a: Any, b: Any) -> Any:
+        if _static(c) and _static(a) and _static(b):
+            return np.where(c, a, b)
+        if _static(c) and np.ndim(c) == 0:
+            return a if c else b        # the value np.where gives (its shape aside)
+        return _call("_np_where", np.where, c, a, b)
+
+    @staticmethod
+    def maximum(a: Any, b: Any) -> Any:
+        if _static(a) and _static(b):
+            return np.maximum(a, b)
+        return _call("_np_maximum", np.maximum, a, b)
+
+    @staticmethod
+    def minimum(a: Any, b: Any) -> Any:
+        if _static(a) and _static(b):
+            return np.minimum(a, b)
+        return _call("_np_minimum", np.minimum, a, b)
+
+    @staticmethod
+    def clip(x: Any, lo: Any, hi: Any) -> Any:
+        if _static(x) and _static(lo) and _static(hi):
+            return np.clip(x, lo, hi)
+        return _call("_np_clip", np.clip, x, lo, hi)
+
+    @staticmethod
+    def _tabled(fn_name: str, fn: Callable, x: Any, *tables: Any) -> Sym:
+        """``fn(x, *tables)`` with the tables kept whole (never taken per design)."""
+        rec = _rec()
+        if fn_name not in rec.namespace:
+            rec.namespace[fn_name] = fn
+        sx, dx = _lit(x)
+        names = []
+        for tb in tables:
+            if type(tb) is Sym or (isinstance(tb, (tuple, list)) and any(type(v) is Sym for v in tb)):
+                raise TraceError(f"{fn_name} of a state-dependent table")
+            n = rec.const(tb)
+            rec.shared.add(n)
+            names.append(n)
+        return rec.emit(f"{fn_name}({sx}, {', '.join(names)})", dx)
+
+    def interp(self, x: Any, xp: Any, fp: Any) -> Any:
+        if _static(x):
+            return ArrayOps.interp(x, xp, fp)
+        return self._tabled("_np_interp", ArrayOps.interp, x, xp, fp)
+
+    def layer(self, x: Any, edges: Any) -> Any:
+        if _static(x):
+            return ArrayOps.layer(x, edges)
+        return self._tabled("_np_layer", ArrayOps.layer, x, edges)
+
+    def take(self, values: Any, k: Any) -> Any:
+        if _static(k):
+            if any(type(v) is Sym for v in values):
+                raise TraceError("ops.take from state-dependent values")
+            return ArrayOps.take(values, k)
+        return self._tabled("_np_take", lambda kk, vals: ArrayOps.take(vals, kk), k, values)
+
+    def branch(self, cond: Any, f_true: Callable, f_false: Callable, *args: Any) -> Any:
+        if _static(cond):
+            c = np.asarray(cond)
+            if c.ndim == 0:
+                return f_true(*args) if bool(c) else f_false(*args)
+            if c.all():
+                return f_true(*args)
+            if not c.any():
+                return f_false(*args)
+            return _leafwise(c, f_true(*args), f_false(*args), self.where)
+        bt, rt = _sub(f_true, *args)
+        bf, rf = _sub(f_false, *args)
+        out, targets = _join([bt, bf], [rt, rf])
+        sc, dc = _lit(cond)
+        _rec().block.stmts.append(("if", sc, frozenset(dc), bt, bf, tuple(targets)))
+        return out
+
+    @staticmethod
+    def each(fn: Callable, *args: Any, outputs: int = 0) -> Any:
+        if all(_static(a) for a in args):
+            return ArrayOps.each(fn, *args, outputs=outputs)
+        rec = _rec()
+        if "_np_each" not in rec.namespace:
+            rec.namespace["_np_each"] = ArrayOps.each
+        name = rec.const(fn)
+        rec.shared.add(name)
+        parts = [_lit(a) for a in args]
+        deps: tuple = ()
+        for _, d in parts:
+            deps = deps + d
+        r = rec.emit(f"_np_each({name}, {', '.join(p for p, _ in parts)}, outputs={outputs})", deps)
+        if not outputs:
+            return r
+        return tuple(rec.emit(f"{r.name}[{k}]", (r.name,)) for k in range(outputs))
+
+    @staticmethod
+    def refuse(cond: Any, error: type, message: str) -> None:
+        """Nothing over arrays (as :meth:`ArrayOps.refuse`): the caller flags the designs."""
+
+    def iterate(self, carry: Any, test: Callable, step: Callable, n: int) -> tuple[Any, Any]:
+        """As :meth:`TraceOps.iterate`; an iteration on values known at trace time (a builder's root search over
+        parameters per design) runs now, as :meth:`ArrayOps.iterate` runs it, and gives values, not symbols."""
+        lv: list = []
+        _flatten(carry, lv)
+        if all(_static(v) for v in lv):
+            now, aux = carry, None
+            for it in range(n):
+                stop, aux = test(now)
+                if not _static(stop):
+                    break
+                if it and bool(np.all(stop)):
+                    return now, aux
+                now = step(now, aux)
+                lv = []
+                _flatten(now, lv)
+                if not all(_static(v) for v in lv):
+                    break
+            else:
+                return now, aux
+        return TraceOps.iterate(carry, test, step, n)
+
+
+array_trace_ops = ArrayTraceOps()
+
+
 # --------------------------------------------------------------------------------------------------------------
 # From blocks to source: dead code removed, then written out.
 
@@ -522,13 +714,14 @@ def _prune(block: _Block, live: set) -> list:
             _, sc, dc, bt, bf, targets = st
             if targets and not any(t in live for t in targets) and not _raises(bt) and not _raises(bf):
                 continue
+            used = tuple(t for t in targets if t in live)       # the targets read after the choice
             lt, lf = set(live), set(live)
             kt = _prune(bt, lt)
             kf = _prune(bf, lf)
             live.clear()
             live.update(lt | lf)
             live.update(dc)
-            kept.append(("if", sc, dc, kt, kf, targets))
+            kept.append(("if", sc, dc, kt, kf, used))
         elif kind == "loop":
             _, n, bt, ss, ds, after, names = st
             # everything the loop carries is live through it (a fixed point of liveness)
@@ -543,6 +736,36 @@ def _prune(block: _Block, live: set) -> list:
             raise TraceError(f"unknown statement {kind}")
     kept.reverse()
     return kept
+
+
+def _assigned(stmts: list, names: set) -> None:
+    """The names the statements assign (at any depth)."""
+    for st in stmts:
+        if st[0] == "=":
+            names.add(st[1])
+        elif st[0] == "if":
+            _assigned(st[3], names)
+            _assigned(st[4], names)
+            names.update(st[5])
+        elif st[0] == "loop":
+            _assigned(st[2], names)
+            _assigned(st[5], names)
+            names.update(st[6])
+
+
+def _read(stmts: list, names: set) -> None:
+    """The names the statements read (at any depth)."""
+    for st in stmts:
+        if st[0] == "=":
+            names.update(st[3])
+        elif st[0] == "if":
+            names.update(st[2])
+            _read(st[3], names)
+            _read(st[4], names)
+        elif st[0] == "loop":
+            names.update(st[4])
+            _read(st[2], names)
+            _read(st[5], names)
 
 
 def _raises(block: Any) -> bool:
@@ -582,11 +805,52 @@ def _write(stmts: list, indent: str, out: list) -> None:
             _write(ka, indent + "    ", out)
 
 
+def _write_arrays(stmts: list, indent: str, out: list, count: list) -> None:
+    """The array dialect of :func:`_write`: a choice on a condition over designs runs the regime every design is
+    in, else both and takes each design's (``ArrayOps.branch``); a loop ends when every design's test stops."""
+    for st in stmts:
+        kind = st[0]
+        if kind == "=":
+            out.append(f"{indent}{st[1]} = {st[2]}")
+        elif kind == "raise":
+            raise TraceError("a refusal in the array dialect")
+        elif kind == "if":
+            _, sc, _dc, kt, kf, targets = st
+            count[0] += 1
+            c = f"_c{count[0]}"
+            out.append(f"{indent}{c} = {sc}")
+            out.append(f"{indent}if _np_all({c}):")
+            _write_arrays(kt, indent + "    ", out, count)
+            out.append(f"{indent}    pass")
+            out.append(f"{indent}elif not _np_any({c}):")
+            _write_arrays(kf, indent + "    ", out, count)
+            out.append(f"{indent}    pass")
+            out.append(f"{indent}else:")
+            _write_arrays(kt, indent + "    ", out, count)
+            saved = [f"{nm}_{c}" for nm in targets]
+            for nm, sv in zip(targets, saved):
+                out.append(f"{indent}    {sv} = {nm}")
+            _write_arrays(kf, indent + "    ", out, count)
+            for nm, sv in zip(targets, saved):
+                out.append(f"{indent}    {nm} = _np_where({c}, {sv}, {nm})")
+        elif kind == "loop":
+            _, n, kt, ss, _ds, ka, _names = st
+            out.append(f"{indent}for _it in range({n}):")
+            _write_arrays(kt, indent + "    ", out, count)
+            out.append(f"{indent}    if _np_all({ss}):")
+            out.append(f"{indent}        break")
+            _write_arrays(ka, indent + "    ", out, count)
+
+
 def _source_of(x: Any, live: set, rec: _Recorder) -> str:
     """Source text that rebuilds a result (lists, tuples, named tuples, dicts of str keys, leaves)."""
     if type(x) is Sym:
         live.add(x.name)
         return x.name
+    if isinstance(x, np.ndarray):
+        name = rec.const(x)
+        rec.numbers.add(name)
+        return name
     if isinstance(x, list):
         return "[" + ", ".join(_source_of(v, live, rec) for v in x) + "]"
     if isinstance(x, tuple):
@@ -607,12 +871,28 @@ def _source_of(x: Any, live: set, rec: _Recorder) -> str:
     raise TraceError(f"the traced function returned {type(x).__name__}")
 
 
-def compile_function(body: Callable[[Any, list], Sequence[Any]], n_states: int, *, name: str = "phase") -> Callable:
+def compile_function(body: Callable[[Any, list], Sequence[Any]], n_states: int, *, name: str = "phase",
+                     designs: int | None = None) -> Callable:
     """Trace ``body(t, s)`` (``t`` the time's symbol, ``s`` the list of state symbols) and compile it into
     ``f(t, y)``, ``y`` any sequence of ``n_states`` numbers (a numpy array is read with ``tolist``), returning
     what the body returned (lists, tuples, named tuples and dicts of floats and bools are rebuilt). Raises
-    :class:`TraceError` when the body cannot be traced."""
-    rec = _Recorder()
+    :class:`TraceError` when the body cannot be traced.
+
+    With ``designs=N`` the body is traced over :data:`array_trace_ops` (the array dialect) and the function is
+    ``f(t, y, c)``: ``y`` a sequence of arrays over designs, and ``c`` the values per design the trace read (the
+    arrays of shape ``(N,)`` among its constants, listed in ``f.per_design``), taken for the designs at hand:
+    ``tuple(a[rows] for a in f.per_design)`` for some of the N designs, ``tuple(f.per_design)`` for all.
+
+    >>> import numpy as np
+    >>> k = np.array([1.0, 2.0, 3.0])
+    >>> f = compile_function(lambda t, s: [array_trace_ops.maximum(s[0] * k, 2.5)], 1, designs=3)
+    >>> f(0.0, [np.ones(3)], tuple(f.per_design))[0].tolist()
+    [2.5, 2.5, 3.0]
+    >>> f(0.0, [np.ones(2)], tuple(a[[0, 2]] for a in f.per_design))[0].tolist()
+    [2.5, 3.0]
+    """
+    arrays = designs is not None
+    rec = _Recorder(arrays)
     _local.rec = rec
     try:
         s = [Sym(f"s{k}") for k in range(n_states)]
@@ -622,16 +902,41 @@ def compile_function(body: Callable[[Any, list], Sequence[Any]], n_states: int, 
     live: set[str] = set()
     ret = _source_of(result, live, rec)
     stmts = _prune(rec.block, live)
-    lines = [f"def {name}(t, y):"]
+    ns = dict(rec.namespace)
+    known = set(ns) | {"t"} | {f"s{k}" for k in range(n_states)}
+    _assigned(stmts, known)
+    read = set(live)
+    _read(stmts, read)
+    if not read <= known:
+        raise TraceError(f"the trace reads values it never computed ({', '.join(sorted(read - known)[:3])}): a "
+                         "value kept from another trace")
+    per_design: list[str] = []
+    if arrays:
+        for nm in sorted(rec.numbers, key=lambda v: int(v[1:])):
+            obj = ns[nm]
+            if isinstance(obj, np.ndarray) and obj.shape == (designs,):
+                if nm in rec.shared:
+                    raise TraceError("an array over the designs read both as a table and as numbers")
+                per_design.append(nm)
+        lines = [f"def {name}(t, y, _per_design):"]
+        if per_design:
+            lines.append(f"    {', '.join(per_design)}, = _per_design")
+        ns.update(_np_all=np.all, _np_any=np.any, _np_where=np.where, _not=np.logical_not)
+    else:
+        lines = [f"def {name}(t, y):"]
     if n_states:
         unpack = ", ".join(f"s{k}" for k in range(n_states))
-        lines.append(f"    {unpack}, = y.tolist() if type(y) is not list else y")
-    _write(stmts, "    ", lines)
+        lines.append(f"    {unpack}, = y" if arrays else f"    {unpack}, = y.tolist() if type(y) is not list else y")
+    if arrays:
+        _write_arrays(stmts, "    ", lines, [0])
+    else:
+        _write(stmts, "    ", lines)
     lines.append(f"    return {ret}")
     src = "\n".join(lines) + "\n"
-    ns = dict(rec.namespace)
     code = compile(src, f"<thrustgraph straight line: {name}>", "exec")
     exec(code, ns)                      # noqa: S102 (our own generated source, from the traced balance)
     fn = ns[name]
     fn.source = src                     # type: ignore[attr-defined]
+    if arrays:
+        fn.per_design = [ns[nm] for nm in per_design]   # type: ignore[attr-defined]
     return fn

@@ -64,7 +64,7 @@ from typing import Sequence
 import numpy as np
 
 from ..balance.arrayops import keep_heap
-from .arraysystem import FREE, GUIDE, HELD, IMPULSE, TRACK, ArraySystem, unsupported
+from .arraysystem import FREE, GUIDE, HELD, IMPULSE, TRACK, ArraySystem, PhaseGroups, unsupported
 from .assembly import assemble
 from ..models.designs import DesignParameter, bounds_text, with_values, within_bounds
 from ..base.errors import ModelError
@@ -536,6 +536,7 @@ class _Run:
         self.gold = self.g_all(sysa, self.t, self.Y, aux)
         self.rejected = np.zeros(n, dtype=bool)
         self.buf = _Buffers(ns, n, self.nctrl)
+        self.groups = PhaseGroups()
         everyone = np.arange(n)
         self.fire_at_once(everyone)
         self.phase_checks(everyone)
@@ -812,11 +813,12 @@ class _Run:
         # one attempted step for every design, each with its own h
         K[0] = F
         ph = sysa.phase(modes, kin, self.slide)          # the stages share the phase
+        groups = self.groups        # designs in different phases: evaluated phase by phase
         for st in range(1, 6):
             Ys = buf.combine(DOPRI_A[st], st, hh, Y, buf.Ys)
-            sysa.rhs(t + DOPRI_C[st] * hh, Ys, modes, kin, out=K[st], phase=ph, aux=False)
+            groups.rhs(sysa, t + DOPRI_C[st] * hh, Ys, modes, kin, self.slide, out=K[st], aux=False, phase=ph)
         Yn = buf.combine(DOPRI_B, 6, hh, Y, buf.Yn)
-        _, aux_n = sysa.rhs(t + hh, Yn, modes, kin, out=K[6], phase=ph)
+        _, aux_n = groups.rhs(sysa, t + hh, Yn, modes, kin, self.slide, out=K[6], phase=ph, drives=False)
         self.calls += 6
         # the error norm over the step-control rows only (the impulse quadrature is left out)
         nc = self.nctrl
