@@ -20,7 +20,9 @@ from hypothesis import strategies as st
 
 import thrustgraph as tg
 from thrustgraph.balance import balance as balance_module
-from thrustgraph.balance.balance import Balance
+from thrustgraph.balance.balance import SAMPLES_AFTER, Balance
+from thrustgraph.balance.sampling import _from_snapshot, dense_states
+from thrustgraph.models.modelfile import bundled_models
 from thrustgraph.base.errors import IntegrationError
 from thrustgraph.flight.integrate import fly_segments
 from thrustgraph.balance.straightline import TraceError, compile_function, trace_ops
@@ -208,3 +210,35 @@ def test_lines_are_kept_per_number_of_states():
     for a, b in zip(first[:2], again[:2]):
         assert np.array_equal(a.segments[-1][1].y, b.segments[-1][1].y)
     assert first[2].summary == again[2].summary
+
+
+@pytest.mark.parametrize("path", sorted(bundled_models().values()), ids=lambda p: p.stem)
+def test_sample_lines_equal_the_general_evaluator_over_arrays(path):
+    """A phase's straight line over arrays of output samples (Balance.sample_line, traced over array_trace_ops
+    with the parameters as numbers) gives every signal and ledger term of the general array evaluator, ``==``,
+    at samples spread over every segment of every bundled model."""
+    system = tg.assemble(tg.load_model(path))
+    segs = fly_segments(system)
+    for ph, sol, bal in segs.segments:
+        if len(sol.t) < 2 or sol.t[-1] <= sol.t[0]:
+            continue
+        bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
+        many = bal.sampling_balance()
+        if many is None:
+            continue
+        t = np.linspace(sol.t[0], sol.t[-1], 37)
+        rows = [r for r in dense_states(sol, t)]
+        many.set_phase(bal.modes, bal.kinematics, bal.descending, bal.slide)
+        ref = _from_snapshot(many._solve(t, rows, "samples"), len(t))
+        line = None
+        for _ in range(SAMPLES_AFTER):
+            line = bal.sample_line("samples", len(rows))
+        if line is None:
+            assert bal.untraced, "a phase neither traced nor said why"
+            continue
+        got = _from_snapshot(line(t, rows, ()), len(t))
+        assert list(got.values) == list(ref.values) and list(got.ledger) == list(ref.ledger)
+        for k, v in ref.values.items():
+            assert np.array_equal(got.values[k], v, equal_nan=True), (path.stem, k)
+        for k, v in ref.ledger.items():
+            assert np.array_equal(got.ledger[k], v), (path.stem, k)

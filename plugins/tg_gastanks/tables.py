@@ -91,9 +91,11 @@ class CubicTable2D:
         One design's floats go through ``ops.each`` (a plain call for :data:`~thrustgraph.base.xp.scalar_ops`,
         one recorded call for a namespace that traces the balance into straight-line code); arrays of designs
         are evaluated together by the same patches (:meth:`patches`)."""
-        if ops.arrays:
-            return tuple(np.moveaxis(self.patches(np.asarray(x, dtype=float), np.asarray(y, dtype=float)), -1, 0))
-        return ops.each(self.at, x, y, outputs=self.coef.shape[1])
+        return ops.each(self.at, x, y, outputs=self.coef.shape[1], many=self.many)
+
+    def many(self, x: Any, y: Any) -> tuple[np.ndarray, ...]:
+        """The quantities at arrays of points, one array each (:meth:`patches`)."""
+        return tuple(np.moveaxis(self.patches(np.asarray(x, dtype=float), np.asarray(y, dtype=float)), -1, 0))
 
     def at(self, x: float, y: float) -> tuple[float, ...]:
         """The quantities at one point (floats): the cell found by plain arithmetic, the same patch and the same
@@ -153,9 +155,11 @@ class CubicTable1D:
 
     def __call__(self, x: Any, ops: Any) -> tuple[Any, ...]:
         """The quantities at x: floats through ``ops.each`` (as :meth:`CubicTable2D.__call__`) or arrays."""
-        if ops.arrays:
-            return tuple(np.moveaxis(self.pieces(np.asarray(x, dtype=float)), -1, 0))
-        return ops.each(self.at, x, outputs=self.coef.shape[1])
+        return ops.each(self.at, x, outputs=self.coef.shape[1], many=self.many)
+
+    def many(self, x: Any) -> tuple[np.ndarray, ...]:
+        """The quantities at an array of points, one array each (:meth:`pieces`)."""
+        return tuple(np.moveaxis(self.pieces(np.asarray(x, dtype=float)), -1, 0))
 
     def at(self, x: float) -> tuple[float, ...]:
         """The quantities at one point (floats)."""

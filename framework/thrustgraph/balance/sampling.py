@@ -80,8 +80,13 @@ def sample_terms(bal: Any, t: np.ndarray, y: np.ndarray) -> SampleTable:
     n = len(t)
     many = bal.sampling_balance() if n > 1 else None
     if many is not None:
-        many.set_phase(bal.modes, bal.kinematics, bal.descending, bal.slide)
-        snap = many._solve(np.asarray(t, dtype=float), [row for row in np.asarray(y, dtype=float)], "samples")
+        rows = [row for row in np.asarray(y, dtype=float)]
+        line = bal.sample_line("samples", len(rows))
+        if line is not None:
+            snap = line(np.asarray(t, dtype=float), rows, ())
+        else:
+            many.set_phase(bal.modes, bal.kinematics, bal.descending, bal.slide)
+            snap = many._solve(np.asarray(t, dtype=float), rows, "samples")
         table = _from_snapshot(snap, n)
         table.terms = snap["terms"]
         return table
@@ -120,8 +125,12 @@ def at_samples(bal: Any, t: np.ndarray, y: np.ndarray, want: str) -> Any:
     many = bal.sampling_balance() if len(t) > 1 else None
     if many is None:
         return None
+    rows = [row for row in np.asarray(y, dtype=float)]
+    line = bal.sample_line(want, len(rows))
+    if line is not None:
+        return line(np.asarray(t, dtype=float), rows, ())
     many.set_phase(bal.modes, bal.kinematics, bal.descending, bal.slide)
-    return many._solve(np.asarray(t, dtype=float), [row for row in np.asarray(y, dtype=float)], want)
+    return many._solve(np.asarray(t, dtype=float), rows, want)
 
 
 def take_samples(snap: Any, index: np.ndarray, n: int) -> Any:

@@ -443,9 +443,9 @@ class TraceOps:
         return out
 
     @staticmethod
-    def each(fn: Callable, *args: Any, outputs: int = 0) -> Any:
+    def each(fn: Callable, *args: Any, outputs: int = 0, many: Callable | None = None) -> Any:
         """A function of floats (a property library's call), written down as a call of ``fn``; ``outputs`` is
-        the length of the tuple it returns (0: one value)."""
+        the length of the tuple it returns (0: one value); ``many`` (its array form) is not needed here."""
         if all(_static(a) for a in args):
             return fn(*args)
         rec = _rec()
@@ -648,18 +648,25 @@ class ArrayTraceOps(TraceOps):
         return out
 
     @staticmethod
-    def each(fn: Callable, *args: Any, outputs: int = 0) -> Any:
+    def each(fn: Callable, *args: Any, outputs: int = 0, many: Callable | None = None) -> Any:
         if all(_static(a) for a in args):
-            return ArrayOps.each(fn, *args, outputs=outputs)
+            return ArrayOps.each(fn, *args, outputs=outputs, many=many)
         rec = _rec()
-        if "_np_each" not in rec.namespace:
-            rec.namespace["_np_each"] = ArrayOps.each
-        name = rec.const(fn)
-        rec.shared.add(name)
         parts = [_lit(a) for a in args]
         deps: tuple = ()
         for _, d in parts:
             deps = deps + d
+        if many is not None:        # the array form, called once over the designs
+            name = rec.const(many)
+            rec.shared.add(name)
+            r = rec.emit(f"{name}({', '.join(p for p, _ in parts)})", deps)
+            if not outputs:
+                return r
+            return tuple(rec.emit(f"{r.name}[{k}]", (r.name,)) for k in range(outputs))
+        if "_np_each" not in rec.namespace:
+            rec.namespace["_np_each"] = ArrayOps.each
+        name = rec.const(fn)
+        rec.shared.add(name)
         r = rec.emit(f"_np_each({name}, {', '.join(p for p, _ in parts)}, outputs={outputs})", deps)
         if not outputs:
             return r
@@ -843,7 +850,7 @@ def _write_arrays(stmts: list, indent: str, out: list, count: list) -> None:
 
 
 def _source_of(x: Any, live: set, rec: _Recorder) -> str:
-    """Source text that rebuilds a result (lists, tuples, named tuples, dicts of str keys, leaves)."""
+    """Source text that rebuilds a result (lists, tuples, named tuples, dicts of str keys, strings, leaves)."""
     if type(x) is Sym:
         live.add(x.name)
         return x.name
@@ -862,6 +869,8 @@ def _source_of(x: Any, live: set, rec: _Recorder) -> str:
         if not all(type(k) is str for k in x):
             raise TraceError("a traced dict with keys that are not strings")
         return "{" + ", ".join(f"{k!r}: {_source_of(v, live, rec)}" for k, v in x.items()) + "}"
+    if type(x) is str:                 # a name (a ledger's component and term)
+        return repr(x)
     if isinstance(x, (bool, int, float)) or x is None:
         _local.rec = rec
         try:

@@ -115,9 +115,11 @@ class ScalarOps:
         return f_true(*args) if cond else f_false(*args)
 
     @staticmethod
-    def each(fn: Callable, *args: Any, outputs: int = 0) -> Any:
+    def each(fn: Callable, *args: Any, outputs: int = 0, many: Callable | None = None) -> Any:
         """``fn(*args)``: a function of floats applied to one design (``outputs``, the length of the tuple it
-        returns or 0 for one value, is for namespaces that cannot call it yet)."""
+        returns or 0 for one value, is for namespaces that cannot call it yet). ``many``, where given, is the same
+        function written for arrays of designs (a table's vectorised lookup): array namespaces call it once
+        instead of ``fn`` design by design."""
         return fn(*args)
 
     @staticmethod
@@ -191,9 +193,11 @@ class ArrayOps:
         return np.where(c, a, b)
 
     @staticmethod
-    def each(fn: Callable, *args: Any, outputs: int = 0) -> Any:
+    def each(fn: Callable, *args: Any, outputs: int = 0, many: Callable | None = None) -> Any:
         """``fn`` of floats applied to each design in turn (arguments broadcast to the designs' shape); a tuple
-        result becomes a tuple of arrays."""
+        result becomes a tuple of arrays. With ``many`` (``fn`` written for arrays), one call of it instead."""
+        if many is not None:
+            return many(*args)
         cols = np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in args))
         rows = [fn(*xs) for xs in zip(*(c.reshape(-1).tolist() for c in cols))]
         shape = cols[0].shape if cols else ()
