@@ -2,6 +2,10 @@
 
 from __future__ import annotations
 
+import atexit
+import os
+import shutil
+import tempfile
 import textwrap
 from pathlib import Path
 
@@ -17,6 +21,11 @@ from thrustgraph.models.plugins import get_plugin_manager
 from tg_airframe import Airframe
 
 HEADER = 'format = "thrustgraph-model"\nversion = 1\n'
+
+# Real-gas property tables (tg_gastanks.gastable) are kept in a folder of this test session's own, inherited by
+# the command-line runs the tests start: the suite builds them itself and never reads or writes a user's cache.
+os.environ["THRUSTGRAPH_CACHE_DIR"] = tempfile.mkdtemp(prefix="thrustgraph-test-tables-")
+atexit.register(shutil.rmtree, os.environ["THRUSTGRAPH_CACHE_DIR"], True)
 
 #: Seconds after which a test gives up on a child process that has stopped making progress. It only ends a test
 #: that would otherwise hang; it never decides a pass, and no step of any test comes near it on a loaded machine

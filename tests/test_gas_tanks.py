@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import os
 import subprocess
 import sys
 
@@ -52,7 +53,7 @@ def gas_tank_model(*, eos="ideal", gauge="199 bar", T="300 K", volume="1 L", pro
         dry_mass = "1 kg"
         [components.tank]
         kind = "gas-tank"
-        gas = "{gas}"
+        {f'gas = "{gas}"' if gas else ""}
         equation_of_state = "{eos}"
         volume = "{volume}"
         gauge_pressure = "{gauge}"
@@ -156,6 +157,76 @@ def test_isothermal_ideal_blowdown_is_exponential():
     assert np.max(np.abs(r.signals["tank.pressure"] / (10e5 * np.exp(-r.t / tau)) - 1)) < 1e-7
 
 
+def test_a_gas_of_your_own_equal_to_nitrogen_flies_as_nitrogen():
+    # gamma and molar mass of the table's nitrogen row, given by hand: every signal of the flight is the same.
+    n2 = IDEAL_GASES["nitrogen"]
+    own = f'gamma = {n2.gamma!r}\nmolar_mass = "{n2.molar_mass * 1e3!r} g/mol"'
+    kw = dict(gauge="10 bar", end="1 s", interval="0.05 s", medium='kind = "still-air"')
+    named, mine = integrate(gas_tank_model(**kw)), integrate(gas_tank_model(gas=None, extra_tank=own, **kw))
+    assert set(named.signals) == set(mine.signals)
+    for key, values in named.signals.items():
+        np.testing.assert_array_equal(values, mine.signals[key], err_msg=key)
+    # leaving both out is nitrogen too
+    default = integrate(gas_tank_model(gas=None, **kw))
+    np.testing.assert_array_equal(default.signals["tank.pressure"], named.signals["tank.pressure"])
+
+
+def test_a_gas_of_your_own_blows_down_adiabatically_as_the_closed_form():
+    # Adiabatic (isentropic) ideal-gas tank, choked orifice in vacuum. The choked mass flow
+    # mdot = Cd A p Gamma(g) / sqrt(R T) (Anderson, Modern Compressible Flow, 3rd ed., 2003, eq. 5.21; equation
+    # number from memory) with p ~ rho^g and T ~ rho^(g-1) integrates in closed form (derived here):
+    #   rho/rho0 = (1 + (g-1)/2 k t)^(-2/(g-1)),  p/p0 = (rho/rho0)^g,  k = Cd A Gamma sqrt(R T0) / V.
+    # A gas that is in no table (gamma 1.3, 20 g/mol), Z = 1.
+    g, M, T0, V, p0 = 1.3, 20e-3, 300.0, 1e-3, 10e5
+    R = 8.314462618 / M
+    A = math.pi * 0.001 ** 2 / 4
+    k = A * mass_flux_factor(g) * math.sqrt(R * T0) / V
+    r = integrate(gas_tank_model(gas=None, gauge="10 bar", end="10 s", interval="0.5 s",
+                                 extra_tank=f'gamma = {g}\nmolar_mass = "{M * 1e3} g/mol"\ncompressibility_factor = 1'))
+    x = (1.0 + 0.5 * (g - 1.0) * k * r.t) ** (-2.0 / (g - 1.0))
+    assert np.max(np.abs(r.signals["tank.pressure"] / (p0 * x ** g) - 1)) < 1e-7
+    assert np.max(np.abs(r.signals["tank.temperature"] / (T0 * x ** (g - 1.0)) - 1)) < 1e-7
+    assert r.signals["tank.pressure"][-1] < 0.2 * p0                # a real blowdown, not a few per cent of one
+
+
+def test_a_gas_of_your_own_with_a_compressibility_factor_blows_down_isothermally_as_the_closed_form():
+    # p = Z rho R T with constant Z: an ideal gas of gas constant Z R. Isothermal, choked in vacuum:
+    # dm/dt = -Cd A p Gamma / sqrt(Z R T), p = m Z R T / V, so p = p0 exp(-t/tau), tau = V / (Cd A Gamma sqrt(Z R T))
+    # (closed form from the mass balance and the choked mass flow, Anderson 2003 eq. 5.21 as above).
+    g, M, T, Z = 1.4, 28.0134e-3, 300.0, 1.05
+    R = 8.314462618 / M
+    A = math.pi * 0.001 ** 2 / 4
+    tau = 0.001 / (A * mass_flux_factor(g) * math.sqrt(Z * R * T))
+    own = f'gamma = {g}\nmolar_mass = "{M * 1e3} g/mol"\ncompressibility_factor = {Z}'
+    r = integrate(gas_tank_model(gas=None, gauge="10 bar", process="isothermal", end="2 s", interval="0.1 s",
+                                 extra_tank=own))
+    assert np.max(np.abs(r.signals["tank.pressure"] / (10e5 * np.exp(-r.t / tau)) - 1)) < 1e-7
+    # the charge: Z times less gas than the ideal gas at the same p and T
+    assert r.signals["tank.gas_mass"][0] == pytest.approx(10e5 * 1e-3 / (Z * R * T), rel=1e-12)
+    assert np.all(r.signals["tank.compressibility_factor"] == Z)
+
+
+@pytest.mark.parametrize("extra, gas, eos, where, what", [
+    ("gamma = 1.0\nmolar_mass = \"28 g/mol\"", None, "ideal", "components.tank.gamma", "greater than 1"),
+    ("gamma = 0.9\nmolar_mass = \"28 g/mol\"", None, "ideal", "components.tank.gamma", "greater than 1"),
+    ("gamma = 1.4\nmolar_mass = \"0 g/mol\"", None, "ideal", "components.tank.molar_mass", "greater than 0"),
+    ("gamma = 1.4\nmolar_mass = \"-4 g/mol\"", None, "ideal", "components.tank.molar_mass", "greater than 0"),
+    ("gamma = 1.4\nmolar_mass = \"28 g/mol\"", "nitrogen", "ideal", "components.tank.gas", "one gas only"),
+    ("gamma = 1.4", None, "ideal", "components.tank.molar_mass", "needs molar_mass too"),
+    ("molar_mass = \"28 g/mol\"", None, "ideal", "components.tank.gamma", "needs gamma too"),
+    ("compressibility_factor = 1.1", None, "ideal", "components.tank.gamma", "needs gamma too"),
+    ("gamma = 1.4\nmolar_mass = \"28 g/mol\"\ncompressibility_factor = 0", None, "ideal",
+     "components.tank.compressibility_factor", "greater than 0"),
+    ("gamma = 1.4\nmolar_mass = \"28 g/mol\"", None, "coolprop", "components.tank.equation_of_state",
+     "is an ideal gas"),
+])
+def test_a_gas_of_your_own_bad_input(extra, gas, eos, where, what):
+    with pytest.raises(ModelError) as err:
+        parse_model(gas_tank_model(gas=gas, eos=eos, extra_tank=extra))
+    msg = str(err.value)
+    assert msg.startswith(where + ":") and what in msg and "Fix:" in msg
+
+
 def test_wall_heat_transfer_relaxes_a_closed_tank_exponentially():
     # No outflow (relief valve never cracks): m c_v dT/dt = h A (T_w - T), so T = T_w + (T0 - T_w) exp(-t/tau),
     # tau = m c_v / (h A) (Newton's law of cooling; closed form).
@@ -212,7 +283,9 @@ kind = "surroundings"
 """)
     code = ("import sys; sys.modules['CoolProp'] = None; sys.modules['CoolProp.CoolProp'] = None; "
             "from thrustgraph.cli import main; sys.exit(main(['run', 'm.toml']))")
-    p = subprocess.run([sys.executable, "-c", code], cwd=tmp_path, capture_output=True, text=True)
+    # an empty table cache: the tabulated properties would have to be built from CoolProp
+    env = dict(os.environ, THRUSTGRAPH_CACHE_DIR=str(tmp_path / "empty-cache"))
+    p = subprocess.run([sys.executable, "-c", code], cwd=tmp_path, capture_output=True, text=True, env=env)
     assert p.returncode == 2
     msg = p.stderr + p.stdout
     assert "components.tank.equation_of_state" in msg and "the real-gas tank 'tank'" in msg
@@ -328,8 +401,8 @@ def test_real_gas_tanks_over_arrays_of_designs_equal_coolprop_called_per_design(
     vol = np.array([0.5e-3, 1e-3, 2e-3, 4e-3])
     gauge = np.array([30e5, 80e5, 150e5, 199e5])
     base = parse_params(GasTank.parameters, {"volume": "1 L", "gauge_pressure": "100 bar", "equation_of_state":
-                                             "coolprop", "temperature": "300 K"}, where="components.t",
-                        params_class=GasTank.params_class())
+                                             "coolprop", "temperature": "300 K", "properties": "direct"},
+                        where="components.t", params_class=GasTank.params_class())
     p = dataclasses.replace(base, volume=vol, gauge_pressure=gauge)
     fns = GasTank.build_volume(p, 0, array_ops, amb)
     m0, T0 = GasTank.initial_state(p, amb)

@@ -235,3 +235,72 @@ def test_cd_nozzle_on_a_held_tank_matches_its_flow_function():
     assert r.signals["nozzle.thrust"][0] == pytest.approx(cf * p0 * math.pi * 0.002 ** 2 / 4, rel=1e-9)
     assert np.all(r.signals["nozzle.regime"] >= 3)
     assert abs(r.audit.mass_relative) < 1e-12 and r.audit.momentum_relative < 1e-9
+
+
+def test_cd_nozzle_throat_state_is_the_sonic_state_when_choked():
+    # Choked: p*/p0 = (2/(g+1))^(g/(g-1)), T*/T0 = 2/(g+1), v* = sqrt(g R T*) (Anderson, Modern Compressible
+    # Flow, 3rd ed., 2003, eqs. 3.35-3.36 for the sonic reference state; equation numbers from memory), checked
+    # against fluids' P_critical_flow and T_critical_flow (Bell et al., fluids 1.x, compressible module) and the
+    # nozzle's own mass flow: mdot = rho* v* A_t with rho* = p*/(R T*) (Cd = 1).
+    from fluids import P_critical_flow, T_critical_flow
+
+    for g, R in ((1.4, R_N2), (5.0 / 3.0, 8314.462618 / 39.948), (1.289, 8314.462618 / 44.0095)):
+        f = nozzle(eps=4.0, half_angle=15.0)
+        T0, p0 = 300.0, 10e5
+        up = (p0, T0, p0 / (R * T0), g, R, 0.0, 0.0)
+        for pa in (0.0, 0.2e5, 0.7 * p0):           # underexpanded, overexpanded, shock inside: all choked
+            sig = f.signals(up, pa, 0)
+            assert sig["regime"] >= 2
+            assert sig["throat_pressure"] == pytest.approx(P_critical_flow(p0, g), rel=1e-12)
+            assert sig["throat_temperature"] == pytest.approx(T_critical_flow(T0, g), rel=1e-12)
+            assert sig["throat_temperature"] == pytest.approx(T0 * 2.0 / (g + 1.0), rel=1e-12)
+            assert sig["throat_velocity"] == pytest.approx(math.sqrt(g * R * sig["throat_temperature"]), rel=1e-12)
+            rho_t = sig["throat_pressure"] / (R * sig["throat_temperature"])
+            mdot = f.flow(up, pa, 0).mdot
+            assert rho_t * sig["throat_velocity"] * math.pi * 0.002 ** 2 / 4 == pytest.approx(mdot, rel=1e-12)
+
+
+def test_cd_nozzle_throat_state_of_an_unchoked_nozzle_and_of_a_liquid():
+    # Unchoked (a venturi): the throat Mach number satisfies A_e/A_t = A/A*(M_e) / A/A*(M_t) on the subsonic branch
+    # (NACA Report 1135, 1953, area relation), p_t and T_t are isentropic at M_t, and the mass flow through the
+    # throat equals the exit's (continuity).
+    g, R, T0, p0 = 1.4, R_N2, 293.15, 10e5
+    f = nozzle(eps=4.0, half_angle=0.0)
+    up = (p0, T0, p0 / (R * T0), g, R, 0.0, 0.0)
+    sig = f.signals(up, 0.99 * p0, 0)
+    assert sig["regime"] == 1.0
+    Mt = math.sqrt(2.0 / (g - 1.0) * ((T0 / sig["throat_temperature"]) - 1.0))
+    assert 0.0 < Mt < 1.0 and Mt > sig["exit_mach"]
+    assert area_ratio(sig["exit_mach"], g) / area_ratio(Mt, g) == pytest.approx(4.0, rel=1e-9)
+    assert sig["throat_pressure"] == pytest.approx(p0 * pressure_ratio(Mt, g), rel=1e-12)
+    rho_t = sig["throat_pressure"] / (R * sig["throat_temperature"])
+    assert rho_t * sig["throat_velocity"] * math.pi * 0.002 ** 2 / 4 == pytest.approx(f.flow(up, 0.99 * p0, 0).mdot,
+                                                                                      rel=1e-9)
+    # no flow: the upstream state at rest
+    rest = f.signals(up, p0, 0)
+    assert (rest["throat_pressure"], rest["throat_temperature"], rest["throat_velocity"]) == (p0, T0, 0.0)
+    # a liquid: continuity v_t = eps v_e, Bernoulli p_t = p0 - rho v_t^2 / 2 (incompressible, no loss)
+    liq = f.signals((3e5, T0, 1000.0, g, R, 1.0, 0.0), 1e5, 0)
+    v_e = math.sqrt(2.0 * 2e5 / 1000.0)
+    assert liq["throat_velocity"] == pytest.approx(4.0 * v_e, rel=1e-12)
+    assert liq["throat_pressure"] == pytest.approx(3e5 - 0.5 * 1000.0 * (4.0 * v_e) ** 2, rel=1e-12)
+
+
+def test_cd_nozzle_throat_signals_over_arrays_equal_single_designs():
+    # One definition: the throat signals of designs in different regimes and phases, flown as one array, equal
+    # those of each design alone.
+    from thrustgraph.base.xp import array_ops
+
+    p = parse_params(ConvergingDivergingNozzle.parameters, {"throat_diameter": "2 mm", "area_ratio": 4},
+                     where="components.n", params_class=ConvergingDivergingNozzle.params_class())
+    fa = ConvergingDivergingNozzle.build_flow(p, array_ops)
+    f1 = ConvergingDivergingNozzle.build_flow(p, scalar_ops)
+    T0, p0 = 300.0, 10e5
+    rho = np.array([p0 / (R_N2 * T0)] * 4 + [1000.0])
+    phase = np.array([0.0, 0.0, 0.0, -1.0, 1.0])
+    pa = np.array([1e5, 0.99 * p0, 0.7 * p0, 1e5, 1e5])
+    sig = fa.signals((np.full(5, p0), T0, rho, 1.4, R_N2, phase, 0.0), pa, 0)
+    for k in range(5):
+        one = f1.signals((p0, T0, float(rho[k]), 1.4, R_N2, float(phase[k]), 0.0), float(pa[k]), 0)
+        for key in ("throat_pressure", "throat_temperature", "throat_velocity", "exit_mach"):
+            assert sig[key][k] == pytest.approx(one[key], rel=1e-12, abs=1e-12)

@@ -189,7 +189,11 @@ def test_the_full_result_over_arrays_of_samples_is_the_sample_by_sample_result(p
         assert got.shape == ref.shape
         assert np.array_equal(np.isnan(got), np.isnan(ref)), key
         scale = np.nanmax(np.abs(ref)) if np.isfinite(ref).any() else 0.0
-        assert np.nanmax(np.abs(got - ref), initial=0.0) <= 1e-12 * max(scale, 1e-300), key
+        # an unchoked nozzle's throat Mach number is the subsonic root of A/A*(M_t) = 1 + d: near choking
+        # (d -> 0, at the sample located on the regime change) a last-bit difference in d moves M_t by about
+        # 1e-16 / sqrt(d), the conditioning of the physics itself: 1e-10 of the largest magnitude there
+        rel = 1e-10 if key.rsplit(".", 1)[-1].startswith("throat_") else 1e-12
+        assert np.nanmax(np.abs(got - ref), initial=0.0) <= rel * max(scale, 1e-300), key
     for key, ref in single.ledger.items():
         assert np.max(np.abs(batched.ledger[key] - ref), initial=0.0) <= 1e-12 * max(np.max(np.abs(ref)), 1e-300)
     assert batched.summary == pytest.approx(single.summary, rel=1e-12, abs=1e-12)

@@ -47,7 +47,21 @@ printed is the full-flowing (or normal-shock) estimate, which a separated
 nozzle usually exceeds: treat it as uncertain. Signals per nozzle:
 ``regime`` (0 no flow, 1 subsonic, 2 shock inside, 3 overexpanded,
 4 underexpanded or matched), ``exit_mach``, ``shock_area_ratio`` (NaN without
-a shock), ``separation`` (0 or 1), ``thrust_coefficient`` F/(p0 A_t).
+a shock), ``separation`` (0 or 1), ``thrust_coefficient`` F/(p0 A_t), and the
+throat state ``throat_pressure``, ``throat_temperature``, ``throat_velocity``
+(Pa, K, m/s).
+
+**Throat state.** Choked (regimes 2-4) the throat is sonic, M_t = 1, and
+p*/p0 = (2/(g+1))^(g/(g-1)), T*/T0 = 2/(g+1), v* = sqrt(g R T*) (Anderson,
+*Modern Compressible Flow*, 3rd ed., 2003, eqs. 3.35 and 3.36 for a sonic
+reference state; equation numbers from memory). Unchoked (regime 1) the
+throat Mach number is the subsonic root of A/A* = (A_e/A*)(M_e) / eps, and
+p_t, T_t, v_t follow from the isentropic relations at M_t. A liquid passes
+the throat at v_t = eps v_e (continuity) with p_t = p0 - rho v_t^2 / 2
+(Bernoulli; below the liquid's vapour pressure it would cavitate: not
+checked). With no flow the throat holds the upstream pressure and
+temperature at rest. The ideal (isentropic) throat state: the discharge
+coefficient scales the mass flow only.
 
 Assumptions and limits: quasi-steady, adiabatic, one-dimensional flow; the
 discharge coefficient scales the mass flow only (the exit state follows the
@@ -100,7 +114,8 @@ class ConvergingDivergingNozzle(ComponentKind):
     kind = "converging-diverging-nozzle"
     role = "flow"
     signal_units = {"regime": "", "exit_mach": "", "shock_area_ratio": "", "separation": "",
-                    "thrust_coefficient": ""}
+                    "thrust_coefficient": "", "throat_pressure": "Pa", "throat_temperature": "K",
+                    "throat_velocity": "m/s"}
     summary = "converging-diverging nozzle: choked/unchoked, shock inside, pressure thrust, conical loss"
     parameters = (
         Quantity("throat_diameter", "mm", low=1e-3, high=10_000.0, doc="diameter of the throat"),
@@ -251,6 +266,27 @@ class ConvergingDivergingNozzle(ComponentKind):
             return ops.branch(phase > 0.5, liquid, lambda *a: ops.branch(phase < -0.5, shut, open_gas, *a),
                               pu, T, rho, g, R, p_down)
 
+        def subsonic_throat_mach(me, g):
+            # the throat of an unchoked nozzle: the subsonic root of A_t/A* = (A_e/A*)(M_e) / eps (>= 1)
+            return mach_from_area_ratio(ops.maximum(area_ratio(ops.maximum(me, 1e-9), g) / eps, 1.0), g,
+                                        "subsonic", ops)
+
+        def throat(up, r):
+            """(p_t, T_t, v_t) at the throat: isentropic from the upstream stagnation state for a gas (sonic when
+            choked), Bernoulli with continuity for a liquid, the upstream state at rest with no flow."""
+            pu, T, rho, g, R, phase = up[0], up[1], up[2], up[3], up[4], up[5]
+            regime = r.regime
+            m_sub = ops.branch(regime == SUBSONIC, subsonic_throat_mach, lambda me, g: 0.0 * me, r.mach, g)
+            mt = ops.where(regime >= SHOCK_INSIDE, 1.0, ops.where(regime == SUBSONIC, m_sub, 0.0))
+            tr = temperature_ratio(mt, g)
+            Tt = T * tr
+            pt = pu * tr ** (g / (g - 1.0))
+            vt = mt * sqrt(g * R * Tt)
+            v_liq = eps * r.ve / lam
+            liquid_phase = phase > 0.5
+            return (ops.where(liquid_phase, pu - 0.5 * rho * v_liq * v_liq, pt), ops.where(liquid_phase, T, Tt),
+                    ops.where(liquid_phase, v_liq, vt))
+
         def flow(up, p_down, mode=0):
             r = solve(up, p_down)
             return Flow(r.mdot, r.ve, r.pe, Ae + 0.0 * r.mdot, r.slope)
@@ -271,8 +307,10 @@ class ConvergingDivergingNozzle(ComponentKind):
                                      math.nan)
             thrust = r.mdot * r.ve + (r.pe - p_down) * Ae
             cf = ops.where(pu > 0.0, thrust / (ops.where(pu > 0.0, pu, 1.0) * At), 0.0)
+            pt, Tt, vt = throat(up, r)
             return {"regime": r.regime + 0.0, "exit_mach": r.mach, "shock_area_ratio": shock_at,
-                    "separation": separated, "thrust_coefficient": cf}
+                    "separation": separated, "thrust_coefficient": cf, "throat_pressure": pt,
+                    "throat_temperature": Tt, "throat_velocity": vt}
 
         return FlowFns(flow=flow, jet_dir=p.direction, signals=signals)
 

@@ -42,7 +42,9 @@ class FluidName(Spec):
 
     default: str | None = field(default=None, kw_only=True)
 
-    def parse(self, value: Any, *, where: str) -> str:
+    def parse(self, value: Any, *, where: str) -> str | None:
+        if self.default == "absent" and isinstance(value, str) and value == "absent":
+            return None          # left out: the kind decides (the gas tank: nitrogen, or a gas given by gamma)
         if not isinstance(value, str) or not value.strip():
             raise ModelError(where, f"expected the name of a fluid in quotes, got {shorten(value)}",
                              f"write e.g. {self.name} = \"nitrogen\"")

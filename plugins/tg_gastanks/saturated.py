@@ -68,6 +68,10 @@ Examples
 
 from __future__ import annotations
 
+from typing import Any
+
+import numpy as np
+
 from thrustgraph.kinds.component import ComponentKind, EventSpec, Mode, StateVar, VolumeFns
 from thrustgraph.base.errors import ModelError
 from thrustgraph.kinds.parameters import Choice, Quantity
@@ -76,6 +80,10 @@ from tg_vessels import PRESSURE_CAUTIONS
 
 from .cold import COLD_OUTCOMES, cold_cautions, cold_summary
 from .fluids import FluidName, expansion_exponent, new_state, require_coolprop, resolve_fluid, wall_heat_specs
+from .gases import lookup_gas
+from .gastable import gas_table, largest
+from .saturationtable import SaturationTable, saturation_table
+
 
 __all__ = ["SelfPressurisingTank", "CARTRIDGE_CAUTIONS"]
 
@@ -106,6 +114,9 @@ class SelfPressurisingTank(ComponentKind):
                  doc="temperature of the contents at launch"),
         Choice("outlet", options=("liquid-first", "vapour"), default="liquid-first",
                doc="liquid-first: the outlet is under the liquid; vapour: it is above the liquid"),
+        Choice("properties", options=("table", "direct"), default="table",
+               doc="table = properties tabulated from CoolProp once per fluid and range (kept on disk; errors "
+                   "measured in docs/fluid-devices.md), direct = CoolProp at every evaluation"),
     ) + wall_heat_specs("the contents")
     states = (
         StateVar("propellant_mass", "kg", "liquid and vapour in the tank"),
@@ -117,19 +128,27 @@ class SelfPressurisingTank(ComponentKind):
     def check(cls, p, where):
         name = where.rsplit(".", 1)[-1]
         device = f"the self-pressurising tank {name!r}"
-        require_coolprop(f"{where}.fluid", device, _NO_COOLPROP_FIX)
-        fluid = resolve_fluid(p.fluid, where=f"{where}.fluid", device=device, fix=_NO_COOLPROP_FIX)
-        st = new_state(fluid)
-        t_tp, t_c = st.Ttriple(), st.T_critical()
+        if p.properties == "table":
+            fluid = _fluid_name(p, where, device)
+            sat = _saturation(p, fluid, where, device)
+            t_tp, t_c = sat.T_triple, sat.T_critical
+        else:
+            require_coolprop(f"{where}.fluid", device, _NO_COOLPROP_FIX)
+            fluid = resolve_fluid(p.fluid, where=f"{where}.fluid", device=device, fix=_NO_COOLPROP_FIX)
+            st = new_state(fluid)
+            t_tp, t_c = st.Ttriple(), st.T_critical()
         if not t_tp + 0.5 < p.temperature < t_c - 0.5:
             raise ModelError(f"{where}.temperature", f"{fluid} is a saturated liquid with its vapour only between "
                              f"its triple point ({t_tp:.5g} K) and its critical point ({t_c:.5g} K); got "
                              f"{p.temperature:.5g} K", "give a temperature in that range, or use a gas-tank with "
                              "equation_of_state = \"coolprop\" above the critical temperature")
-        import CoolProp
+        if p.properties == "table":
+            rho_l = sat.rho_l(p.temperature)
+        else:
+            import CoolProp
 
-        st.update(CoolProp.QT_INPUTS, 0.0, p.temperature)
-        rho_l = st.rhomass()
+            st.update(CoolProp.QT_INPUTS, 0.0, p.temperature)
+            rho_l = st.rhomass()
         if p.propellant_mass / p.volume >= rho_l:
             raise ModelError(f"{where}.propellant_mass", f"{p.propellant_mass * 1e3:.4g} g of {fluid} would fill "
                              f"the {p.volume * 1e6:.4g} mL tank with liquid at {p.temperature:.5g} K (saturated "
@@ -160,11 +179,16 @@ class SelfPressurisingTank(ComponentKind):
 
     @classmethod
     def initial_mode(cls, p, amb):
-        import CoolProp
+        if p.properties == "table":
+            device = "the self-pressurising tank"
+            rho_v = _saturation(p, _fluid_name(p, "fluid", device), "fluid", device).rho_v(p.temperature)
+        else:
+            import CoolProp
 
-        st = new_state(resolve_fluid(p.fluid, where="fluid", device="the self-pressurising tank"))
-        st.update(CoolProp.QT_INPUTS, 1.0, p.temperature)
-        two_phase = p.propellant_mass / p.volume > st.rhomass()
+            st = new_state(resolve_fluid(p.fluid, where="fluid", device="the self-pressurising tank"))
+            st.update(CoolProp.QT_INPUTS, 1.0, p.temperature)
+            rho_v = st.rhomass()
+        two_phase = p.propellant_mass / p.volume > rho_v
         return "liquid" if (p.outlet == "liquid-first" and two_phase) else "vapour"
 
     @classmethod
@@ -176,56 +200,99 @@ class SelfPressurisingTank(ComponentKind):
     @classmethod
     def build_volume(cls, p, i, ops, amb):
         """One definition for one design and for an ensemble: every property comes from CoolProp's two-phase
-        equilibrium, so each callable is a function of one design's floats (state, mode and parameters) that
+        equilibrium (tabulated, :mod:`tg_gastanks.saturationtable` and :mod:`tg_gastanks.gastable`, or called
+        directly), so each callable is a function of one design's floats (state, mode and parameters) that
         ``ops.each`` applies design by design (for one design, a plain call): the same numbers as a single
-        flight, at the cost of the property calls of each design."""
-        import CoolProp
-
-        fluid = resolve_fluid(p.fluid, where="fluid", device="the self-pressurising tank")
-        mix, liq, vap, expander = new_state(fluid), new_state(fluid), new_state(fluid), new_state(fluid)
-        DT, QT = CoolProp.DmassT_INPUTS, CoolProp.QT_INPUTS
-        iU, iD, iT = CoolProp.iUmass, CoolProp.iDmass, CoolProp.iT
-        two_phase_code = CoolProp.iphase_twophase
+        flight, at the cost of the property look-ups or calls of each design."""
         V = p.volume
         m0, T0 = p.propellant_mass, p.temperature
-        t_tp, t_c = mix.Ttriple(), mix.T_critical()
-        t_lo, t_hi = t_tp + 0.01, t_c - 0.01
         Tw = ops.where(p.wall_temperature > 0.0, p.wall_temperature, T0)
         hA = p.wall_heat_transfer_coefficient * p.wall_area
         m_floor = 1e-12 * m0
+        if p.properties == "table":
+            device = "the self-pressurising tank"
+            fluid = _fluid_name(p, "fluid", device)
+            sat = _saturation(p, fluid, "fluid", device)
+            t_tp, t_c = sat.T_triple, sat.T_critical
+            t_lo, t_hi = t_tp + 0.01, t_c - 0.01
+            vapour = gas_table(fluid, sat.rho_v(min(max(largest(T0), largest(p.wall_temperature)), t_hi)),
+                               max(largest(T0), largest(p.wall_temperature))).vapour
 
-        def props(m, T, mode, V):
-            """(p, x, u, du/dT_v, du/dv_T, h_l or h, h_v or h, rho_l, rho_v, kappa_v, two_phase) at one design's
-            state (floats; ``m`` already floored).
+            def saturated(T):
+                return sat.at(T)
 
-            In the liquid mode the saturated-mixture formulas are used on both sides of the point where the
-            last liquid evaporates (x a little above 1 in the trial stages of a step that crosses it), so the
-            right-hand side stays smooth up to the event that switches to the vapour mode.
-            """
-            T = t_lo if T < t_lo else (t_hi if T > t_hi else T)
-            rho = m / V
-            mix.update(DT, rho, T)
-            if mode == 0 or mix.phase() == two_phase_code:
+            def single(rho, T):
+                return vapour(rho, T)
+
+            def rho_vapour(T):
+                return sat.rho_v(T)
+        else:
+            import CoolProp
+
+            fluid = resolve_fluid(p.fluid, where="fluid", device="the self-pressurising tank")
+            mix, liq, vap, expander = new_state(fluid), new_state(fluid), new_state(fluid), new_state(fluid)
+            DT, QT = CoolProp.DmassT_INPUTS, CoolProp.QT_INPUTS
+            iU, iD, iT = CoolProp.iUmass, CoolProp.iDmass, CoolProp.iT
+            t_tp, t_c = mix.Ttriple(), mix.T_critical()
+            t_lo, t_hi = t_tp + 0.01, t_c - 0.01
+
+            def saturated(T):
+                """The saturation quantities at T in the order of tg_gastanks.saturationtable.QUANTITIES (p_sat
+                for ln p_sat; n of the vapour None: a flash, made only where it is used)."""
                 liq.update(QT, 0.0, T)
                 vap.update(QT, 1.0, T)
                 rl, rv = liq.rhomass(), vap.rhomass()
-                ul, uv = liq.umass(), vap.umass()
+                pr = vap.p()
+                return (pr, rl, rv, liq.umass(), vap.umass(), liq.hmass(), vap.hmass(),
+                        -liq.first_saturation_deriv(iD, iT) / (rl * rl), -vap.first_saturation_deriv(iD, iT) / (rv * rv),
+                        liq.first_saturation_deriv(iU, iT), vap.first_saturation_deriv(iU, iT),
+                        rv * vap.speed_sound() ** 2 / pr, None)
+
+            def single(rho, T):
+                """(p, rho a^2/p, n (None: made where used), h - u - rho (du/drho)_T, c_v, u) of the vapour."""
+                mix.update(DT, rho, T)
+                pr, h, u = mix.p(), mix.hmass(), mix.umass()
+                return (pr, rho * mix.speed_sound() ** 2 / pr, None, h - u - rho * mix.first_partial_deriv(iU, iD, iT),
+                        mix.cvmass(), u)
+
+            def rho_vapour(T):
+                vap.update(QT, 1.0, T)
+                return vap.rhomass()
+
+        def exponent(pr, rho, T, two_phase, kappa):
+            """The expansion exponent of the vapour drawn (direct path: one flash)."""
+            if two_phase:
+                vap.update(QT, 1.0, T)
+                s_v = vap.smass()
+            else:
+                mix.update(DT, rho, T)
+                s_v = mix.smass()
+            return expansion_exponent(expander, pr, rho, s_v, kappa)
+
+        def props(m, T, mode, V):
+            """(p, x, u, du/dT_v, du/dv_T, h_l or h, h_v or h, rho_l, rho_v, kappa_v, two_phase, n of the vapour or
+            None) at one design's state (floats; ``m`` already floored).
+
+            In the liquid mode the saturated-mixture formulas are used on both sides of the point where the
+            last liquid evaporates (x a little above 1 in the trial stages of a step that crosses it), so the
+            right-hand side stays smooth up to the event that switches to the vapour mode. Otherwise the contents
+            are two-phase where their density lies between the saturated vapour's and liquid's.
+            """
+            T = t_lo if T < t_lo else (t_hi if T > t_hi else T)
+            rho = m / V
+            sq = saturated(T)
+            if mode == 0 or sq[2] < rho < sq[1]:
+                pr, rl, rv, ul, uv, hl, hv, dvl, dvv, dul, duv, kv, nv = sq
                 vl, vv = 1.0 / rl, 1.0 / rv
-                dvl = -liq.first_saturation_deriv(iD, iT) / (rl * rl)
-                dvv = -vap.first_saturation_deriv(iD, iT) / (rv * rv)
-                dul, duv = liq.first_saturation_deriv(iU, iT), vap.first_saturation_deriv(iU, iT)
                 x = (1.0 / rho - vl) / (vv - vl)
                 dxdT = (-dvl - x * (dvv - dvl)) / (vv - vl)
                 dudT = dul + x * (duv - dul) + dxdT * (uv - ul)
                 dudv = (uv - ul) / (vv - vl)
-                pr = vap.p()
-                kv = rv * vap.speed_sound() ** 2 / pr
-                return pr, x, ul + x * (uv - ul), dudT, dudv, liq.hmass(), vap.hmass(), rl, rv, kv, True
-            pr = mix.p()
-            h = mix.hmass()
-            k = rho * mix.speed_sound() ** 2 / pr
-            dudv = -rho * rho * mix.first_partial_deriv(iU, iD, iT)
-            return pr, 1.0, mix.umass(), mix.cvmass(), dudv, h, h, rho, rho, k, False
+                return pr, x, ul + x * (uv - ul), dudT, dudv, hl, hv, rl, rv, kv, True, nv
+            pr, k, n, work, cv, u = single(rho, T)
+            h = u + pr / rho
+            # (du/dv)_T = -rho^2 (du/drho)_T, and rho (du/drho)_T = h - u - work = p/rho - work
+            return pr, 1.0, u, cv, -(pr - rho * work), h, h, rho, rho, k, False, n
 
         def h_out(pp, mode):
             return pp[5] if mode == 0 else pp[6]
@@ -242,8 +309,8 @@ class SelfPressurisingTank(ComponentKind):
             rv = pp[8]
             if mode == 2:
                 return (pp[0], T, rv, pp[9], pp[0] / (rv * T), -1.0, 0.0)
-            s_v = vap.smass() if pp[10] else mix.smass()
-            n = expansion_exponent(expander, pp[0], rv, s_v, pp[9])
+            n = pp[11] if pp[11] is not None else exponent(pp[0], rv, t_lo if T < t_lo else (t_hi if T > t_hi else T),
+                                                           pp[10], pp[9])
             return (pp[0], T, rv, n, pp[0] / (rv * T), 0.0, 0.0)
 
         def temperature_rate1(m, T, mode, mdot, V, m_floor, hA, Tw):
@@ -260,8 +327,7 @@ class SelfPressurisingTank(ComponentKind):
             return (pp[0], x, m * (1.0 - x) if pp[10] and x < 1.0 else 0.0, m * pp[2], h_out(pp, mode))
 
         def liquid_left1(m, T, V):
-            vap.update(QT, 1.0, t_lo if T < t_lo else (t_hi if T > t_hi else T))
-            return m / (V * vap.rhomass()) - 1.0
+            return m / (V * rho_vapour(t_lo if T < t_lo else (t_hi if T > t_hi else T))) - 1.0
 
         def mass(s):
             return ops.maximum(s[i], 0.0)
@@ -293,3 +359,21 @@ class SelfPressurisingTank(ComponentKind):
                       needs_drive=False),
         )
         return VolumeFns(mass=mass, outlet=outlet, derivs=derivs, signals=signals, events=events)
+
+
+def _fluid_name(p: Any, where: str, device: str) -> str:
+    """The CoolProp name of the tank's fluid: from the built-in gas table for its gases (no CoolProp needed),
+    else from CoolProp."""
+    row = lookup_gas(p.fluid)
+    if row is not None:
+        return row.coolprop
+    require_coolprop(f"{where}.fluid", device, _NO_COOLPROP_FIX)
+    return resolve_fluid(p.fluid, where=f"{where}.fluid", device=device, fix=_NO_COOLPROP_FIX)
+
+
+def _saturation(p: Any, fluid: str, where: str, device: str) -> SaturationTable:
+    """The saturation table up to the largest charge or wall temperature of every design."""
+    T_hi = max(float(np.max(p.temperature)), float(np.max(p.wall_temperature)))
+    return saturation_table(fluid, T_hi, before_build=lambda: require_coolprop(
+        f"{where}.fluid", device, _NO_COOLPROP_FIX + ", or run once where CoolProp is installed to store the "
+        "property tables"))
