@@ -21,10 +21,10 @@ from thrustgraph.models.model import parse_model
 MODELS = sorted(Path(tg.default_model_path()).parent.glob("*.toml"))
 #: vehicles traced over arrays; the others keep the general evaluator: lines with elements in series (solved by a
 #: root search that stops the batch when a design has no solution, which a straight line cannot decide at trace
-#: time: the hover rig, the boat) and real-gas properties from tables read with numpy (the cold-gas track, the
-#: gas-cartridge cart)
+#: time: the hover rig, the boat). The real-gas tables trace through ops.each(..., many=) (the cold-gas track, the
+#: gas-cartridge cart).
 TRACED = {"bottle-rocket", "twin-nozzle-bottle-rocket", "small-rocket-standard-atmosphere", "rocket-with-parachute",
-          "two-stage-demo", "cold-gas-free-floater"}
+          "two-stage-demo", "cold-gas-free-floater", "cold-gas-track", "gas-cartridge-cart"}
 
 
 def _system(path: Path, n: int, rng: np.random.Generator) -> ArraySystem:
