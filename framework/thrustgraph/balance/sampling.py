@@ -193,7 +193,7 @@ _TABLES: "weakref.WeakKeyDictionary[Any, tuple | None]" = weakref.WeakKeyDiction
 
 
 def _dop853_tables(ode: Any) -> tuple | None:
-    """(step starts, t_old, h, F, y_old, and the first three as lists) of every step of an ascending DOP853 solution, stacked; None for any
+    """(step starts, t_old, h, F, y_old, the first three as lists, and a cache of steps as lists) of every step of an ascending DOP853 solution, stacked; None for any
     other (another method, a descending or one-point solution)."""
     try:
         return _TABLES[ode]
@@ -207,12 +207,22 @@ def _dop853_tables(ode: Any) -> tuple | None:
         starts = np.array([ip.t_old for ip in interps], dtype=float)
         widths = np.array([ip.h for ip in interps], dtype=float)
         made = (np.asarray(ts, dtype=float), starts, widths, np.stack([ip.F for ip in interps]),
-                np.stack([ip.y_old for ip in interps]), [float(v) for v in ts], starts.tolist(), widths.tolist())
+                np.stack([ip.y_old for ip in interps]), [float(v) for v in ts], starts.tolist(), widths.tolist(), {})
     try:
         _TABLES[ode] = made
     except TypeError:
         pass
     return made
+
+
+def _step_lists(tables: tuple, k: int) -> tuple[list, list]:
+    """Step k's polynomial rows (highest first, as scipy adds them) and start state, as Python lists (kept)."""
+    cache = tables[-1]
+    got = cache.get(k)
+    if got is None:
+        F, y_old = tables[3], tables[4]
+        got = cache[k] = ([F[k][F.shape[1] - 1 - i].tolist() for i in range(F.shape[1])], y_old[k].tolist())
+    return got
 
 
 def dense_states(sol: Any, t: Any) -> np.ndarray:
@@ -236,22 +246,20 @@ def dense_states(sol: Any, t: Any) -> np.ndarray:
     tables = _dop853_tables(ode)
     if tables is None:
         return ode(t)
-    ts, t_old, h, F, y_old, ts_list, t_old_list, h_list = tables
+    ts, t_old, h, F, y_old, ts_list, t_old_list, h_list, _ = tables
     t = np.asarray(t, dtype=float)
     if t.ndim == 0:       # one time: scipy's own scalar arithmetic on that step's table, without numpy's search
         tv = float(t)
         k = min(max(bisect_left(ts_list, tv) - 1, 0), len(t_old) - 1)
         x = (tv - t_old_list[k]) / h_list[k]
-        one = np.zeros_like(y_old[k])
-        table = F[k]
-        for i in range(table.shape[0]):
-            one += table[table.shape[0] - 1 - i]
-            if i % 2 == 0:
-                one *= x
-            else:
-                one *= 1 - x
-        one += y_old[k]
-        return one
+        # the same operations in the same order on Python floats (IEEE doubles: the same numbers, cheaper than
+        # numpy's calls on a dozen states)
+        rows, y0 = _step_lists(tables, k)
+        one = [0.0] * len(y0)
+        for i, row in enumerate(rows):
+            w = x if i % 2 == 0 else 1 - x
+            one = [(a + b) * w for a, b in zip(one, row)]
+        return np.array([a + b for a, b in zip(one, y0)])
     seg = np.clip(np.searchsorted(ts, t, side="left") - 1, 0, len(t_old) - 1)
     x = ((t - t_old[seg]) / h[seg])[:, None]
     coeffs = F[seg]
