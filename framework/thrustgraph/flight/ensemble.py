@@ -541,7 +541,7 @@ class _Run:
         self.buf = _Buffers(ns, n, self.nctrl)
         self.groups = PhaseGroups()
         everyone = np.arange(n)
-        self.fire_at_once(everyone)
+        self.fire_at_once(everyone, fresh=not arrivals)
         self.phase_checks(everyone)
         self.h = self.initial_step()
 
@@ -619,9 +619,12 @@ class _Run:
                 self.live[i] = False
                 self.fate_status[i], self.fate[i] = st, note
 
-    def fire_at_once(self, idx: np.ndarray) -> None:
-        """Events already past their zero at a phase start fire at once (as in a single flight)."""
+    def fire_at_once(self, idx: np.ndarray, fresh: bool = False) -> None:
+        """Events already past their zero at a phase start fire at once (as in a single flight). ``fresh``: the
+        start of the flight, whose first phase lasts no time where an event fires at once: a single flight's
+        first segment starts in the phase after it, so that phase's acceleration does not count toward the peak."""
         ev = self.ev
+        changed = np.zeros(len(idx), dtype=bool)
         for _ in range(50):
             fired = False
             for j, (kind, direction, pl) in enumerate(ev.slots):
@@ -632,6 +635,7 @@ class _Run:
                 past = act & (direction * self.gold[j][idx] > 0.0)
                 if np.any(past):
                     sel = idx[past]
+                    changed |= past
                     if kind == "trigger":
                         self.trigger_met(sel, pl[0])
                     elif kind == "due":
@@ -650,8 +654,9 @@ class _Run:
             self.calls += 1
             self.F[:, idx] = Fi
             # the new phase's first acceleration counts toward the peak (a valve open from the start)
-            self.amax[idx] = np.maximum(self.amax[idx], np.broadcast_to(np.asarray(ai["accel"], dtype=float),
-                                                                        (len(idx),)))
+            a_new = np.broadcast_to(np.asarray(ai["accel"], dtype=float), (len(idx),))
+            self.amax[idx] = np.where(changed, a_new, np.maximum(self.amax[idx], a_new)) if fresh else \
+                np.maximum(self.amax[idx], a_new)
             gi = self.g_all(sub, self.t[idx], self.Y[:, idx], ai, idx)
             for j in range(self.nev):
                 self.gold[j][idx] = gi[j]
