@@ -226,14 +226,34 @@ def test_auto_flies_small_ensembles_in_this_process_and_large_ones_on_idle_cores
     assert choose_engine(10 ** 6, parsed) == ("serial", "ensemble")
 
 
-def test_idle_cores_are_the_usable_cores_the_load_leaves(monkeypatch):
+def test_idle_cores_are_the_idle_share_of_the_usable_cores_while_the_study_sleeps(monkeypatch):
     from thrustgraph.studies import engines
 
+    ticks = iter([(1000, 4000), (1150, 4200)])      # 150 of 200 ticks idle over the window, on 2 cores
+    monkeypatch.setattr(engines.os, "sched_getaffinity", lambda _: {0, 1})
+    monkeypatch.setattr(engines, "cpu_ticks", lambda cpus: next(ticks))
+    assert engines.idle_cores(0.0) == pytest.approx(1.5)
+
+
+def test_idle_cores_fall_back_to_the_load_average_without_proc_stat(monkeypatch):
+    from thrustgraph.studies import engines
+
+    monkeypatch.setattr(engines, "cpu_ticks", lambda cpus: None)
     monkeypatch.setattr(engines, "usable_cores", lambda: 2)
     monkeypatch.setattr(engines.os, "getloadavg", lambda: (0.4, 0.0, 0.0))
-    assert engines.idle_cores() == pytest.approx(1.6)
+    assert engines.idle_cores(0.0) == pytest.approx(1.6)
     monkeypatch.setattr(engines.os, "getloadavg", lambda: (7.5, 0.0, 0.0))
-    assert engines.idle_cores() == 0.0
+    assert engines.idle_cores(0.0) == 0.0
+
+
+@pytest.mark.skipif(not os.path.exists("/proc/stat"), reason="the system gives no /proc/stat")
+def test_cpu_ticks_read_this_machines_cores():
+    from thrustgraph.studies import engines
+
+    cpus = sorted(os.sched_getaffinity(0))
+    idle, total = engines.cpu_ticks(cpus)
+    assert 0 <= idle <= total
+    assert engines.cpu_ticks([10 ** 6]) is None       # a core the machine does not have
 
 
 @pytest.mark.parametrize("n", [1, 999, 4000, 10000, 39999, 40000, 40001, 123457, 1000000])
