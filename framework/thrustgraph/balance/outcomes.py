@@ -118,9 +118,9 @@ def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: f
 
 
 #: what the outcomes read of a :meth:`~thrustgraph.balance.balance.Balance.terms` snapshot at a segment's steps
-#: (peaks of thrust, net thrust, side force and acceleration) and at its quadrature nodes (the impulses): a run
+#: (peaks of thrust, net thrust, side force and acceleration; the launch and final mass) and at its quadrature nodes (the impulses): a run
 #: takes these of its samples' pass
-STEP_TERMS = ("derivs", "thrust", "thrust_axial", "inflow", "axis")
+STEP_TERMS = ("derivs", "thrust", "thrust_axial", "inflow", "axis", "mass")
 NODE_TERMS = ("thrust", "inflow")
 
 
@@ -217,8 +217,13 @@ class Flight:
         return self.segments[-1][1].y[:, -1]
 
     def mass_at(self, which: int) -> float:
-        """Vehicle mass at the first (0) or last (-1) state, kg."""
+        """Vehicle mass at the first (0) or last (-1) state, kg (from the terms at the segment's steps where they
+        were evaluated already: the same balance's number)."""
         ph, sol, bal = self.segments[which]
+        snap = self._at_steps.get((id(sol), "terms"))
+        if snap is not None:
+            m = snap["mass"]
+            return float(m[which] if isinstance(m, np.ndarray) and m.ndim == 1 and len(m) == len(sol.t) else m)
         bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
         return float(bal.evaluate(float(sol.t[which]), sol.y[:, which])["mass"])
 
@@ -353,14 +358,17 @@ def _norm3(v: Any) -> float:
     return float(math.sqrt(v[0] * v[0] + v[1] * v[1] + v[2] * v[2]))
 
 
+_ALTITUDE, _VELOCITY = slice(2, 3), slice(3, 6)     # of the state vector
+
+
 def _apogee(f: Flight) -> float:
     return f.peak(lambda ph, sol, bal: sol.y[2],
-                  lambda ph, sol, bal: (lambda t: float(dense_states(sol, t)[2]))) + 0.0
+                  lambda ph, sol, bal: (lambda t: float(dense_states(sol, t, _ALTITUDE)[0]))) + 0.0
 
 
 def _max_speed(f: Flight) -> float:
     return f.peak(lambda ph, sol, bal: np.linalg.norm(sol.y[3:6], axis=0),
-                  lambda ph, sol, bal: (lambda t: _norm3(dense_states(sol, t)[3:6])))
+                  lambda ph, sol, bal: (lambda t: _norm3(dense_states(sol, t, _VELOCITY))))
 
 
 def _accel_steps(flight: Flight, ph: Any, sol: Any, bal: Any) -> np.ndarray:

@@ -33,7 +33,7 @@ from ..base.limits import check_output_samples
 from ..models.model import Model, ParsedModel
 from ..balance.outcomes import NODE_TERMS, OUTCOMES, STEP_TERMS, kind_outcomes, quadrature_nodes, run_summary
 from .result import Audit, Event, FlightResult, Phase, signal_unit
-from ..balance.sampling import SampleTable, dense_states, join_tables, sample_terms, take_samples
+from ..balance.sampling import RawSamples, SampleTable, dense_states, join_tables, sample_snapshot, sample_terms, take_samples
 from .separation import separate
 from .signallog import signal_events
 from ..models.staging import KINEMATIC_SIGNALS, Trigger, condition, resolve_thresholds
@@ -719,20 +719,23 @@ def _sample(segs: Segments, interval: float) -> _Samples:
             out.phases.append(Phase(name, t0, t1))
         grid = np.arange(t0, t1, interval)[1:] if t1 > t0 else np.empty(0)
         grid = grid[grid < t1]   # arange's rounding can put its last point past the end (times would go back)
-        tt = np.union1d(sol.t, grid)
         uniq_t, first = np.unique(sol.t, return_index=True)
-        yy = dense_states(sol, tt) if len(tt) > len(uniq_t) else sol.y[:, first].copy()
-        yy[:, np.searchsorted(tt, uniq_t)] = sol.y[:, first]   # keep the solver's own points exact
-        bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
-        # the impulse's quadrature nodes are evaluated in the same pass as the samples; the solver's steps are
-        # among the samples: the outcomes read both from this pass
-        quad = quadrature_nodes(ph, sol, bal)
+        tt = np.unique(np.concatenate([uniq_t, grid])) if len(grid) else uniq_t
         m = len(tt)
-        if quad is not None:
-            table = sample_terms(bal, np.concatenate([tt, quad[0]]), np.hstack([yy, dense_states(sol, quad[0])]))
-            table = _first_samples(table, m)
+        bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
+        # the impulse's quadrature nodes are evaluated in the same pass as the samples (their states in the same
+        # pass over the dense output); the solver's steps are among the samples: the outcomes read both from it
+        quad = quadrature_nodes(ph, sol, bal)
+        times = tt if quad is None else np.concatenate([tt, quad[0]])
+        yy = dense_states(sol, times) if len(times) > len(uniq_t) else sol.y[:, first].copy()
+        yy[:, np.searchsorted(tt, uniq_t)] = sol.y[:, first]   # keep the solver's own points exact
+        snap = sample_snapshot(bal, times, yy)
+        if snap is not None:
+            table = RawSamples(snap, len(times), m)
         else:
-            table = sample_terms(bal, tt, yy)
+            table = sample_terms(bal, times, yy)
+            table = _first_samples(table, m) if quad is not None else table
+        yy = yy[:, :m]
         out.tables.append(table)
         if table.terms is not None:
             j = len(out.tables) - 1
