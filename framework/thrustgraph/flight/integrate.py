@@ -51,7 +51,8 @@ _KIN = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.F
 
 
 def fly(model: Model | str | None = None, **overrides: Any) -> FlightResult:
-    """Load (if a path or None for the bundled default), apply ``key.path=value`` overrides, integrate.
+    """Load (a path, a bundled scenario's name such as ``"water-jet-boat"``, or None for the bundled default;
+    :func:`~thrustgraph.models.modelfile.model_path`), apply ``key.path=value`` overrides, integrate.
 
     >>> fly(**{"components.bottle.fill": 0.0}).summary["apogee"] < fly().summary["apogee"]
     True
