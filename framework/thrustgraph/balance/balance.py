@@ -523,12 +523,10 @@ class Balance:
         if not ops.arrays:
             return ops.branch(use, lambda: (vr[0] / sp, vr[1] / sp, vr[2] / sp), lambda: u)
 
-        if ops.all(use):
-            return (vr[0] / sp, vr[1] / sp, vr[2] / sp)
-        # designs that differ: the guide direction below the speed (no division by 0: a vehicle that lifts off a
-        # pad is free at zero speed)
-        d = ops.where(use, sp, 1.0)
-        return tuple(ops.where(use, vr[k] / d, u[k]) for k in range(3))
+        def some():             # designs that differ: the guide direction below the speed (no division by 0)
+            d = ops.where(use, sp, 1.0)
+            return tuple(ops.where(use, vr[k] / d, u[k]) for k in range(3))
+        return ops.branch(use, lambda: (vr[0] / sp, vr[1] / sp, vr[2] / sp), some)
 
     # ------------------------------------------------------------------
     def _accelerate(self, ctx: tuple, M: Any, F: tuple, coupled: bool):
