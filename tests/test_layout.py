@@ -25,7 +25,7 @@ PLUGINS = ROOT / "plugins"
 #: layer -> its modules (names inside the ``thrustgraph`` package). docs/layout.md says what each holds.
 LAYERS: dict[str, tuple[str, ...]] = {
     'base': ('base', 'base.errors', 'base.units', 'base.version', 'base.limits', 'base.interrupts',
-        'base.progress', 'base.outputfiles', 'base.xp', 'base.roots', 'base.frames'),
+        'base.progress', 'base.outputfiles', 'base.xp', 'base.roots', 'base.frames', 'base.exportnotes'),
     'kinds': ('kinds', 'kinds.parameters', 'kinds.outcomespec', 'kinds.vehicle', 'kinds.component',
         'kinds.contract', 'kinds.hookspecs', 'kinds.modeldata', 'kinds.signalunits', 'kinds.displayunits'),
     'balance': ('balance', 'balance.plan', 'balance.balance', 'balance.vectors', 'balance.straightline',

@@ -33,6 +33,12 @@ import numpy as np
 
 __all__ = ["SampleTable", "RawSamples", "sample_snapshot", "sample_terms", "join_tables", "at_samples", "dense_states", "take_samples"]
 
+#: Over arrays of samples, a branch whose condition differs between the samples evaluates both sides for all of
+#: them (:meth:`thrustgraph.base.xp.ArrayOps.branch`) and keeps, per sample, the side it takes: the other side
+#: may divide by zero (the body axis into the wind of a vehicle at rest, free from a pad at t0) and is thrown
+#: away, so its floating-point warnings say nothing (the ensemble flies its designs under the same rule).
+_BOTH_SIDES = {"divide": "ignore", "invalid": "ignore"}
+
 
 @dataclass
 class SampleTable:
@@ -73,10 +79,11 @@ def sample_snapshot(bal: Any, t: np.ndarray, y: np.ndarray) -> dict | None:
         return None
     rows = [row for row in np.asarray(y, dtype=float)]
     line = bal.sample_line("samples", len(rows))
-    if line is not None:
-        return line(np.asarray(t, dtype=float), rows, ())
-    many.set_phase(bal.modes, bal.kinematics, bal.descending, bal.slide)
-    return many._solve(np.asarray(t, dtype=float), rows, "samples")
+    with np.errstate(**_BOTH_SIDES):
+        if line is not None:
+            return line(np.asarray(t, dtype=float), rows, ())
+        many.set_phase(bal.modes, bal.kinematics, bal.descending, bal.slide)
+        return many._solve(np.asarray(t, dtype=float), rows, "samples")
 
 
 def _one(v: Any, n: int) -> np.ndarray:
@@ -153,10 +160,11 @@ def at_samples(bal: Any, t: np.ndarray, y: np.ndarray, want: str) -> Any:
         return None
     rows = [row for row in np.asarray(y, dtype=float)]
     line = bal.sample_line(want, len(rows))
-    if line is not None:
-        return line(np.asarray(t, dtype=float), rows, ())
-    many.set_phase(bal.modes, bal.kinematics, bal.descending, bal.slide)
-    return many._solve(np.asarray(t, dtype=float), rows, want)
+    with np.errstate(**_BOTH_SIDES):
+        if line is not None:
+            return line(np.asarray(t, dtype=float), rows, ())
+        many.set_phase(bal.modes, bal.kinematics, bal.descending, bal.slide)
+        return many._solve(np.asarray(t, dtype=float), rows, want)
 
 
 def take_samples(snap: Any, index: np.ndarray, n: int) -> Any:

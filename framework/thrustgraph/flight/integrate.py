@@ -51,7 +51,8 @@ _KIN = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.F
 
 
 def fly(model: Model | str | None = None, **overrides: Any) -> FlightResult:
-    """Load (if a path or None for the bundled default), apply ``key.path=value`` overrides, integrate.
+    """Load (a path, a bundled scenario's name such as ``"water-jet-boat"``, or None for the bundled default;
+    :func:`~thrustgraph.models.modelfile.model_path`), apply ``key.path=value`` overrides, integrate.
 
     >>> fly(**{"components.bottle.fill": 0.0}).summary["apogee"] < fly().summary["apogee"]
     True
@@ -335,13 +336,18 @@ class _Flight:
 
     def _begin_segment(self) -> list[tuple[Callable, _Action]] | None:
         """Set the balance to this segment's phase and gather its events. Component events and triggers
-        already past their zero when a segment starts fire at once; None when one of them stops the run."""
+        already past their zero when a segment starts fire at once, and then a lift-off from a pad that the
+        balance already lifts (:meth:`_lifts_off_pad`); None when one of them stops the run."""
         fns, actions = self._set_up()
         for _ in range(50):
             past = [k for k, a in enumerate(actions) if a.kind in ("mode", "stop", "trigger")
                     and fns[k].direction * fns[k](self.t, self.y) > 0.0]
             if not past:
-                break
+                if not self._lifts_off_pad():
+                    break
+                self._on_guide_exit(next(a for a in actions if a.kind == "guide"))
+                fns, actions = self._set_up()
+                continue
             a = actions[past[0]]
             if a.kind == "stop":
                 break
@@ -353,6 +359,17 @@ class _Flight:
                 self.events.append(Event(self.t, a.name, a.component, f"mode -> {a.target} (at once)"))
             fns, actions = self._set_up()
         return list(zip(fns, actions))
+
+    def _lifts_off_pad(self) -> bool:
+        """True on a pad (a guide of length 0) at rest when the balance moves the vehicle forward at the start of
+        the segment (the thrust along the pad already exceeds the weight component and friction: the way it
+        slides, :func:`_set_segment_phase`, is forward): it lifts off at that instant, at zero speed, not when
+        the first step has carried it the pad's 1 nm."""
+        sysm, ph, y = self.state.system, self.ph, self.y
+        if ph.kin != Kinematics.GUIDE or sysm.launch.guide_length != 0.0 or ph.slide <= 0.0:
+            return False
+        u = sysm.guide_dir
+        return float(y[3] * u[0] + y[4] * u[1] + y[5] * u[2]) == 0.0
 
     def _nothing_to_fly(self) -> bool:
         """End the run (True) when nothing pushes: spent on the stand, at rest on a track, or no lift-off."""
