@@ -53,6 +53,7 @@ from typing import Protocol, Any, Callable, Iterable, Mapping, Sequence
 import numpy as np
 
 from .balance import Kinematics
+from ..base.extremum import bounded_minimum
 from ..base.errors import ModelError, PluginError
 from ..kinds.outcomespec import KEY_PATTERN, OutcomeSpec
 from .sampling import at_samples, dense_states
@@ -95,7 +96,8 @@ def _propulsive(system: System, modes: Sequence[int]) -> bool:
 
 def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: float, end: float | None = None,
                 at_end: float | None = None) -> float:
-    """Largest value of ``fun`` on [t_lo, t_hi] by a bounded scalar search, never below ``best``.
+    """Largest value of ``fun`` on [t_lo, t_hi] by a bounded scalar search (Brent's:
+    :func:`~thrustgraph.base.extremum.bounded_minimum`), never below ``best``.
 
     ``end`` (``t_lo`` or ``t_hi``), where the largest of the solver's steps sits at an end of the interval, with
     its value ``at_end``: when ``fun`` still rises toward that end (one probe a millionth of the interval inside),
@@ -108,13 +110,9 @@ def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: f
         inside = end + (1e-6 if end == t_lo else -1e-6) * (t_hi - t_lo)
         if fun(inside) <= at_end:
             return max(best, at_end)
-    # imported on first use, not with the module: scipy.optimize costs ~0.7 s to import, which a command that
-    # computes no outcome (`thrustgraph check`) would pay (benchmarks/cli_startup.py)
-    from scipy.optimize import minimize_scalar
-
-    res = minimize_scalar(lambda t: -fun(t), bounds=(t_lo, t_hi), method="bounded",
-                          options={"xatol": 1e-12 * max(1.0, abs(t_hi)) + 1e-9 * (t_hi - t_lo)})
-    return max(best, -float(res.fun))
+    # Brent's bounded search, scipy's minimize_scalar(method="bounded") step for step on plain floats
+    _, fx, _ = bounded_minimum(lambda t: -fun(t), t_lo, t_hi, 1e-12 * max(1.0, abs(t_hi)) + 1e-9 * (t_hi - t_lo))
+    return max(best, -float(fx))
 
 
 #: what the outcomes read of a :meth:`~thrustgraph.balance.balance.Balance.terms` snapshot at a segment's steps
@@ -447,11 +445,14 @@ def _peak_vessel_pressure(f: Flight) -> float:
     best = -math.inf
     for ph, sol, bal in f.segments:
         sysm = bal.system
+        if not sysm.volumes:
+            continue
         slot = {n: k for k, n in enumerate(sysm.moded)}
+        states = sol.y.T.tolist()
         for n, vf in sysm.volumes:
             mode = ph.modes[slot[n]] if n in slot else 0
-            for k in range(sol.y.shape[1]):
-                p = vf.signals(sol.y[:, k].tolist(), mode).get("pressure")
+            for s in states:
+                p = vf.signals(s, mode).get("pressure")
                 if p is not None and p > best:
                     best = p
     return float(best) if best > -math.inf else math.nan

@@ -31,6 +31,7 @@ from ..balance.balance import Balance, Kinematics
 from ..base.errors import IntegrationError, ModelError, PluginError
 from ..base.limits import check_output_samples
 from ..models.model import Model, ParsedModel
+from .denseoutput import Dop853Direct, dense_evaluations
 from ..balance.outcomes import NODE_TERMS, OUTCOMES, STEP_TERMS, kind_outcomes, quadrature_nodes, run_summary
 from .result import Audit, Event, FlightResult, Phase, signal_unit
 from ..balance.sampling import RawSamples, SampleTable, dense_states, join_tables, sample_snapshot, sample_terms, take_samples
@@ -399,19 +400,24 @@ class _Flight:
         sysm, bal, t, y = self.state.system, self.state.bal, self.t, self.y
         label = _label(sysm, self.ph)
         fns = [fn for fn, _ in actions]
+        fun = bal.rhs if self.audit else bal.core
+        # DOP853's dense output (every step's, for the result's samples) calls the right-hand side directly:
+        # inside a step the guard has watched already (flight.denseoutput)
+        direct = self.dense and self.method == "DOP853"
+        how = dict(method=Dop853Direct, direct=fun) if direct else dict(method=self.method)
         try:
             if self.audit:
-                sol = solve_ivp(self.guard.watch(bal.rhs, label, sysm), (t, self.t_end), y, method=self.method,
-                                rtol=self.rtol, atol=self.state.atol, events=fns, dense_output=self.dense)
+                sol = solve_ivp(self.guard.watch(fun, label, sysm), (t, self.t_end), y, rtol=self.rtol,
+                                atol=self.state.atol, events=fns, dense_output=self.dense, **how)
             else:
                 n_phys = sysm.n_states - len(ACCUMULATORS)
                 k = math.sqrt(sysm.n_states / n_phys)
-                sol = solve_ivp(self.guard.watch(bal.core, label, sysm), (t, self.t_end), y[:n_phys],
-                                method=self.method, rtol=self.rtol * k, atol=self.state.atol[:n_phys] * k, events=fns,
-                                dense_output=self.dense)
+                sol = solve_ivp(self.guard.watch(fun, label, sysm), (t, self.t_end), y[:n_phys],
+                                rtol=self.rtol * k, atol=self.state.atol[:n_phys] * k, events=fns,
+                                dense_output=self.dense, **how)
         except (ValueError, ZeroDivisionError, OverflowError) as exc:
             raise IntegrationError(f"integration failed at t = {t:.6g} s in phase {label!r}: {exc}") from None
-        self.segs.nfev += sol.nfev
+        self.segs.nfev += sol.nfev + (dense_evaluations(sol) if direct else 0)
         self.segs.segments.append((self.ph.copy(), sol, bal))
         if self.progress is not None:
             self.progress(float(sol.t[-1]), self.t_end)
