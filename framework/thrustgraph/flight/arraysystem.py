@@ -552,14 +552,16 @@ class PhaseGroups:
 
     def rhs(self, sysa: ArraySystem, t: np.ndarray, Y: np.ndarray, modes: np.ndarray, kin: np.ndarray,
             slide: np.ndarray, out: np.ndarray | None = None, aux: bool = True,
-            phase: "Phase | None" = None, drives: bool = True) -> tuple[np.ndarray, dict | None]:
+            phase: "Phase | None" = None, drives: bool = True, groups: Any = "split") -> tuple[np.ndarray, dict | None]:
         """:meth:`ArraySystem.rhs` of ``sysa``, evaluated group by group when the designs' phases differ; the
         auxiliary outputs are gathered per design (``phase`` the phase of all the designs). A drive some groups
         do not evaluate (their lines pass nothing and no event of theirs reads it) is evaluated for them
         (:meth:`ArraySystem.drives`), as a batch in mixed phases gives it for every design; ``drives=False``
         leaves it 0 there, as the ensemble's events read a drive that is not evaluated (only the designs whose
-        events read it need it)."""
-        groups = self.split(sysa, modes, kin, slide)
+        events read it need it). ``groups``: what :meth:`split` returned for these phases (the stages of a step
+        share them: split once), else they are split here."""
+        if isinstance(groups, str):
+            groups = self.split(sysa, modes, kin, slide)
         if groups is None:
             return sysa.evaluate(t, Y, sysa.phase(modes, kin, slide) if phase is None else phase, out, aux)
         n = sysa.n

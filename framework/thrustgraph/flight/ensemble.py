@@ -781,11 +781,14 @@ class _Run:
         K[0] = F
         ph = sysa.phase(modes, kin, self.slide)          # the stages share the phase
         groups = self.groups        # designs in different phases: evaluated phase by phase
+        split = groups.split(sysa, modes, kin, self.slide)      # once: the stages share the phases
         for st in range(1, 6):
             Ys = stepkernel.combine(DOPRI_A[st], st, hh, Y, K, buf.Ys)
-            groups.rhs(sysa, t + DOPRI_C[st] * hh, Ys, modes, kin, self.slide, out=K[st], aux=False, phase=ph)
+            groups.rhs(sysa, t + DOPRI_C[st] * hh, Ys, modes, kin, self.slide, out=K[st], aux=False, phase=ph,
+                       groups=split)
         Yn = stepkernel.combine(DOPRI_B, 6, hh, Y, K, buf.Yn)
-        _, aux_n = groups.rhs(sysa, t + hh, Yn, modes, kin, self.slide, out=K[6], phase=ph, drives=False)
+        _, aux_n = groups.rhs(sysa, t + hh, Yn, modes, kin, self.slide, out=K[6], phase=ph, drives=False,
+                              groups=split)
         self.calls += 6
         # the error norm over the step-control rows (every row), the steps accepted or rejected, the next steps
         en = stepkernel.error_norm(K, hh, Y, Yn, self.rtol, self.atol, buf.err, buf.tmp, buf.tmp2)
