@@ -205,3 +205,31 @@ def test_the_compiled_loops_are_cached_in_thrustgraphs_cache_folder(tmp_path):
     assert proc.returncode == 0, proc.stderr
     assert len(list(tmp_path.rglob("*.nbi"))) == len(written)
     assert sorted(beside.glob("stepkernel*.nbi")) == before
+
+
+@needs_numba
+@settings(max_examples=40, deadline=None, derandomize=True)
+@given(seed=st.integers(0, 2**32 - 1), n=st.integers(1, 300), deg=st.integers(2, 4))
+def test_a_maximum_inside_a_step_is_found_at_the_same_point(seed, n, deg):
+    rng = np.random.default_rng(seed)
+    C = rng.normal(size=(3, deg + 1, n)) * np.exp(rng.normal(size=(3, deg + 1, n)))
+    C[:, :, rng.random(n) < 0.05] = 0.0               # a polynomial that is zero
+    hi = np.where(rng.random(n) < 0.3, 1.0, rng.random(n))
+    a, b = _both(lambda: stepkernel.norm_max(C, hi))
+    assert _same(a, b)
+
+
+@needs_numba
+@settings(max_examples=40, deadline=None, derandomize=True)
+@given(seed=st.integers(0, 2**32 - 1), n=st.integers(1, 300), rest=st.booleans(), way=st.sampled_from([-1.0, 1.0]))
+def test_a_guide_or_track_event_is_located_at_the_same_point(seed, n, rest, way):
+    rng = np.random.default_rng(seed)
+    y0, q = rng.normal(size=(3, n)), rng.normal(size=(3, 4, n))
+    u = rng.normal(size=(3, n))
+    u /= np.sqrt((u * u).sum(axis=0))
+    x0, off, h, t0 = rng.normal(size=(3, n)), rng.normal(size=n), np.exp(rng.normal(size=n)), rng.uniform(0, 9, n)
+    value = lambda th: stepkernel._along_value(*(y0[r] + h * (th * (q[r, 0] + th * (q[r, 1] + th * (         # noqa
+        q[r, 2] + th * q[r, 3])))) for r in range(3)), x0, u, off, way, rest)
+    ga, gb = value(np.zeros(n)), value(np.ones(n))
+    a, b = _both(lambda: stepkernel.illinois_along(y0, h, q, x0, u, off, way, rest, ga, gb, t0))
+    assert _same(a, b)

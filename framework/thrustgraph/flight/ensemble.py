@@ -207,38 +207,6 @@ def _dense(Y0: np.ndarray, h: np.ndarray, Q: np.ndarray, theta: np.ndarray) -> n
     return Y0 + h * (th * (Q[:, 0] + th * (Q[:, 1] + th * (Q[:, 2] + th * Q[:, 3]))))
 
 
-def _norm_max(C: np.ndarray, hi: np.ndarray, iters: int = 5) -> np.ndarray:
-    """Largest |P(theta)| on [0, hi] per design, for the vector polynomial P(theta) = sum_k C[:, k] theta^k
-    (C of shape (3, degree + 1, m)) whose square rises at 0 and falls at hi, so that it has an interior
-    maximum: Newton on the root of P . P' from the regula-falsi point of the ends, iterates kept in [0, hi];
-    returns the largest |P| met (each is a lower bound of the maximum; Newton converges quadratically, so
-    the last is the maximum to rounding)."""
-    deg = C.shape[1] - 1
-
-    def parts(th):
-        p, d1, d2 = C[:, deg], 0.0, 0.0
-        for k in range(deg - 1, -1, -1):       # Horner's rule with the first two derivatives
-            d2 = d2 * th + 2.0 * d1
-            d1 = d1 * th + p
-            p = p * th + C[:, k]
-        return p, d1, d2
-
-    p0, d0, _ = parts(np.zeros_like(hi))
-    p1, d1, _ = parts(hi)
-    phi0, phi1 = _rowsum(p0 * d0), _rowsum(p1 * d1)
-    den = phi0 - phi1
-    th = np.clip(hi * phi0 / np.where(den > 0.0, den, 1.0), 0.0, hi)
-    best = np.zeros_like(hi)
-    for _ in range(iters):
-        p, d1, d2 = parts(th)
-        best = np.maximum(best, _rowsum(p * p))
-        dphi = _rowsum(d1 * d1 + p * d2)
-        step = _rowsum(p * d1) / np.where(dphi < 0.0, dphi, -1.0)
-        th = np.clip(th - np.where(dphi < 0.0, step, 0.0), 0.0, hi)
-    p, _, _ = parts(th)
-    return np.sqrt(np.maximum(best, _rowsum(p * p)))
-
-
 def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray, status: list[str],
                     notes: list[str]) -> np.ndarray:
     """Designs outside their bounds, or combinations a component kind refuses, are screened out here."""
@@ -1002,13 +970,13 @@ class _Run:
                 Qs, hv = Qv[:, :, sel], hh[rows[sel]]
                 # v(theta) = v0 + h (q0 theta + q1 theta^2 + q2 theta^3 + q3 theta^4)
                 C = np.concatenate([Y[3:6, rows[sel]][:, None, :], hv * Qs], axis=1)
-                best = _norm_max(C, te[rows[sel]])
+                best = stepkernel.norm_max(C, te[rows[sel]])
                 self.vmax[rows[sel]] = np.maximum(self.vmax[rows[sel]], best)
             if np.any(ainner):
                 sel = np.flatnonzero(ainner[rows])
                 # a(theta) = dv/dt = q0 + 2 q1 theta + 3 q2 theta^2 + 4 q3 theta^3
                 C = Qv[:, :, sel] * np.array([1.0, 2.0, 3.0, 4.0])[None, :, None]
-                best = _norm_max(C, te[rows[sel]])
+                best = stepkernel.norm_max(C, te[rows[sel]])
                 self.amax[rows[sel]] = np.maximum(self.amax[rows[sel]], best)
         if self.has_p and not sysa.frozen(self.modes):   # frozen vessels keep their pressure
             pn = np.broadcast_to(sysa.pressures(Yn, self.modes), (n,)).copy()
@@ -1034,6 +1002,14 @@ def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel
         ph_loc = local.phase(m_loc, k_loc, slide[rows])
 
     kind = ev.slots[j][0]
+    if kind in ("guide", "foot", "rest") and not own:     # three rows of the dense output, no balance
+        pl = ev.slots[j][2]
+        r0 = 3 if kind == "rest" else 0
+        u = np.array([np.broadcast_to(c, (sysa.n,))[rows] for c in sysa.u])
+        x0 = np.array([np.broadcast_to(c, (sysa.n,))[rows] for c in sysa.x0])
+        off = sysa.guide_length[rows] + 1e-9 if kind == "guide" else np.full(len(rows), -1e-9)
+        return stepkernel.illinois_along(Y0[r0:r0 + 3], hh, Q[r0:r0 + 3], x0, u, off,
+                                         pl if kind == "rest" else 0.0, kind == "rest", ga, gb, t0)
     if kind in ("apogee", "impact"):      # one state: only its row of the dense output
         r = 5 if kind == "apogee" else 2
         return stepkernel.illinois_row(Y0[r], hh, np.ascontiguousarray(Q[r]), np.ones(len(rows)),

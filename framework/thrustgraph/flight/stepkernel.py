@@ -51,7 +51,7 @@ except ImportError:          # the optional extra "fast" is not installed: the n
     numba = None
 
 __all__ = ["DOPRI_C", "DOPRI_A", "DOPRI_B", "DOPRI_E", "DOPRI_P", "JERK_ENDS", "KERNEL", "AVAILABLE", "use",
-           "ready", "cache_folder", "rowsum", "illinois", "combine", "error_norm", "step_control", "maxima", "illinois_row"]
+           "ready", "cache_folder", "rowsum", "illinois", "combine", "error_norm", "step_control", "maxima", "illinois_row", "norm_max", "illinois_along"]
 
 # Dormand-Prince 5(4) (scipy RK45's arrays).
 DOPRI_C = np.array([0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1])
@@ -241,6 +241,51 @@ def illinois(g: Callable[[np.ndarray], np.ndarray], ga: np.ndarray, gb: np.ndarr
     return root
 
 
+def _norm_max_np(C, hi, iters):
+    deg = C.shape[1] - 1
+
+    def parts(th):
+        p, d1, d2 = C[:, deg], 0.0, 0.0
+        for k in range(deg - 1, -1, -1):       # Horner's rule with the first two derivatives
+            d2 = d2 * th + 2.0 * d1
+            d1 = d1 * th + p
+            p = p * th + C[:, k]
+        return p, d1, d2
+
+    p0, d0, _ = parts(np.zeros_like(hi))
+    p1, d1, _ = parts(hi)
+    phi0, phi1 = rowsum(p0 * d0), rowsum(p1 * d1)
+    den = phi0 - phi1
+    th = np.clip(hi * phi0 / np.where(den > 0.0, den, 1.0), 0.0, hi)
+    best = np.zeros_like(hi)
+    for _ in range(iters):
+        p, d1, d2 = parts(th)
+        best = np.maximum(best, rowsum(p * p))
+        dphi = rowsum(d1 * d1 + p * d2)
+        step = rowsum(p * d1) / np.where(dphi < 0.0, dphi, -1.0)
+        th = np.clip(th - np.where(dphi < 0.0, step, 0.0), 0.0, hi)
+    p, _, _ = parts(th)
+    return np.sqrt(np.maximum(best, rowsum(p * p)))
+
+
+def _along_value(d0, d1, d2, x0, u, off, way, rest):
+    """The guide's and track's event values from three dense-output rows (numpy body): the distance along the
+    guide less ``off`` (positions d0..d2 from the launch point ``x0``), or ``rest``: the speed along it (d0..d2
+    velocities) with a speed of exactly 0 counting as ``way`` 1e-300 (as thrustgraph.flight.integrate.rest_value)."""
+    if rest:
+        v = d0 * u[0] + d1 * u[1] + d2 * u[2]
+        return np.where(v != 0.0, v, way * 1e-300)
+    return (d0 - x0[0]) * u[0] + (d1 - x0[1]) * u[1] + (d2 - x0[2]) * u[2] - off
+
+
+def _illinois_along_np(y0, h, q, x0, u, off, way, rest, ga, gb, t0):
+    def g(theta):
+        th = theta
+        d = [y0[r] + h * (th * (q[r, 0] + th * (q[r, 1] + th * (q[r, 2] + th * q[r, 3])))) for r in range(3)]
+        return _along_value(d[0], d[1], d[2], x0, u, off, way, rest)
+    return illinois(g, ga, gb, t0, h)
+
+
 # ---------------------------------------------------------------------------------------------------------------
 # compiled bodies: the same formulas, design by design
 
@@ -280,9 +325,14 @@ def _sgn(x):
     return x
 
 
-_nmax_c, _nmin_c, _sgn_c = _compiled(_nmax), _compiled(_nmin), _compiled(_sgn)
-if numba is not None:
-    _nmax, _nmin, _sgn = _nmax_c, _nmin_c, _sgn_c
+def _clip(x, lo, hi):
+    """np.clip of a float (NaN stays NaN; numpy's order of comparisons, so the sign of a zero too)."""
+    t = x if (x != x or x > lo) else lo
+    return t if (t != t or t < hi) else hi
+
+
+if numba is not None:      # the helpers compiled, for the compiled loops that call them
+    _nmax, _nmin, _sgn, _clip = (_compiled(f) for f in (_nmax, _nmin, _sgn, _clip))
 
 
 #: designs per block of the compiled loops: a block's partial sums stay in the first-level cache, and the innermost
@@ -451,12 +501,117 @@ def _illinois_loop(y0, h, q, scale, ga, gb, t0):
     return out
 
 
+def _norm_max_loop(C, hi, iters):
+    nd, deg1, m = C.shape
+    deg = deg1 - 1
+    out = np.empty(m)
+    p = np.empty(nd)
+    d1 = np.empty(nd)
+    d2 = np.empty(nd)
+    for i in range(m):
+        hii = hi[i]
+        # the ends: P . P' at 0 and at hi
+        phis = np.empty(2)
+        for e in range(2):
+            th = 0.0 if e == 0 else hii
+            for c in range(nd):
+                pc, a1, a2 = C[c, deg, i], 0.0, 0.0
+                for k in range(deg - 1, -1, -1):
+                    a2 = a2 * th + 2.0 * a1
+                    a1 = a1 * th + pc
+                    pc = pc * th + C[c, k, i]
+                p[c], d1[c] = pc, a1
+            acc = p[0] * d1[0]
+            for c in range(1, nd):
+                acc += p[c] * d1[c]
+            phis[e] = acc
+        phi0, phi1 = phis[0], phis[1]
+        den = phi0 - phi1
+        th = _clip(hii * phi0 / (den if den > 0.0 else 1.0), 0.0, hii)
+        best = 0.0
+        for it in range(iters + 1):
+            for c in range(nd):
+                pc, a1, a2 = C[c, deg, i], 0.0, 0.0
+                for k in range(deg - 1, -1, -1):
+                    a2 = a2 * th + 2.0 * a1
+                    a1 = a1 * th + pc
+                    pc = pc * th + C[c, k, i]
+                p[c], d1[c], d2[c] = pc, a1, a2
+            pp = p[0] * p[0]
+            for c in range(1, nd):
+                pp += p[c] * p[c]
+            best = _nmax(best, pp)
+            if it == iters:
+                break
+            dphi = d1[0] * d1[0] + p[0] * d2[0]
+            for c in range(1, nd):
+                dphi += d1[c] * d1[c] + p[c] * d2[c]
+            pd = p[0] * d1[0]
+            for c in range(1, nd):
+                pd += p[c] * d1[c]
+            step = pd / (dphi if dphi < 0.0 else -1.0)
+            th = _clip(th - (step if dphi < 0.0 else 0.0), 0.0, hii)
+        out[i] = np.sqrt(best)
+    return out
+
+
+def _illinois_along_loop(y0, h, q, x0, u, off, way, rest, ga, gb, t0):
+    m = len(ga)
+    out = np.empty(m)
+    d = np.empty(3)
+    for i in range(m):
+        hi = h[i]
+        a, b = 0.0, 1.0
+        fa, fb = ga[i], gb[i]
+        done = fa == 0.0
+        root = 0.0 if done else (1.0 if fb == 0.0 else np.nan)
+        done = done or fb == 0.0
+        tol = _nmax(4 * _EPS * _nmax(abs(t0[i]), 1.0) / (hi if hi > 0 else 1.0), 1e-13)
+        for _ in range(80):
+            if done:
+                break
+            den = fb - fa
+            num = fb * (b - a)
+            if den != 0.0:
+                c = b - num / den
+            else:      # numpy's x / 0: inf or nan, never inside the bracket
+                c = np.nan
+            if not (c > _nmin(a, b) and c < _nmax(a, b)):
+                c = 0.5 * (a + b)
+            th = c
+            for r in range(3):
+                d[r] = y0[r, i] + hi * (th * (q[r, 0, i] + th * (q[r, 1, i] + th * (q[r, 2, i] + th * q[r, 3, i]))))
+            if rest:
+                v = d[0] * u[0, i] + d[1] * u[1, i] + d[2] * u[2, i]
+                fc = v if v != 0.0 else way * 1e-300
+            else:
+                fc = (d[0] - x0[0, i]) * u[0, i] + (d[1] - x0[1, i]) * u[1, i] + (d[2] - x0[2, i]) * u[2, i] - off[i]
+            if fc == 0.0:
+                root = c
+                done = True
+                break
+            if _sgn(fc) != _sgn(fb):
+                fa, a = fb, b
+            else:
+                fa = fa * 0.5
+            b, fb = c, fc
+            if abs(b - a) <= tol:
+                root = _nmax(a, b)
+                done = True
+        if root != root:
+            root = _nmax(a, b)
+        out[i] = root
+    return out
+
+
 _BODIES = {
     "combine": (_combine_np, _combine_loop),
     "error_norm": (_error_norm_np, _error_norm_loop),
     "step_control": (_step_control_np, _step_control_loop),
     "maxima": (_maxima_np, _maxima_loop),
     "illinois_row": (_illinois_np, _illinois_loop),
+    "norm_max": (_norm_max_np, _norm_max_loop),
+    "illinois_along": (_illinois_along_np, _illinois_along_loop),
 }
 _COMPILED = {name: _compiled(loop) for name, (_, loop) in _BODIES.items()}
 _ACTIVE: dict[str, Callable] = {name: body for name, (body, _) in _BODIES.items()}
@@ -539,6 +694,32 @@ def illinois_row(y0: np.ndarray, h: np.ndarray, q: np.ndarray, scale: np.ndarray
     0.5
     """
     return _ACTIVE["illinois_row"](y0, h, q, scale, ga, gb, t0)
+
+
+def norm_max(C: np.ndarray, hi: np.ndarray, iters: int = 5) -> np.ndarray:
+    """Largest |P(theta)| on [0, hi] per design, for the vector polynomial P(theta) = sum_k C[:, k] theta^k
+    (C of shape (components, degree + 1, designs)) whose square rises at 0 and falls at hi, so that it has an
+    interior maximum: Newton on the root of P . P' from the regula-falsi point of the ends, iterates kept in
+    [0, hi]; returns the largest |P| met (each is a lower bound of the maximum; Newton converges quadratically,
+    so the last is the maximum to rounding).
+
+    >>> C = np.array([[[1.0], [2.0], [-1.0]]])        # P = 1 + 2 theta - theta^2: largest 2 at theta = 1
+    >>> float(norm_max(C, np.array([1.5]))[0])
+    2.0
+    """
+    return _ACTIVE["norm_max"](np.ascontiguousarray(C, dtype=float), np.ascontiguousarray(hi, dtype=float), iters)
+
+
+def illinois_along(y0: np.ndarray, h: np.ndarray, q: np.ndarray, x0: np.ndarray, u: np.ndarray, off: np.ndarray,
+                   way: float, rest: bool, ga: np.ndarray, gb: np.ndarray, t0: np.ndarray) -> np.ndarray:
+    """:func:`illinois` for the events of a guide or track, which read three rows of the dense output (``y0``
+    (3, designs), ``q`` (3, 4, designs)) and no balance: the distance along the unit vector ``u`` from ``x0`` less
+    ``off`` (guide exit, back at its foot), or with ``rest`` the speed along ``u`` (zero counts as ``way``
+    1e-300: the vehicle at rest)."""
+    c = np.ascontiguousarray
+    return _ACTIVE["illinois_along"](c(y0, dtype=float), c(h, dtype=float), c(q, dtype=float), c(x0, dtype=float),
+                                     c(u, dtype=float), c(off, dtype=float), float(way), bool(rest),
+                                     c(ga, dtype=float), c(gb, dtype=float), c(t0, dtype=float))
 
 
 try:
