@@ -380,8 +380,9 @@ def _error_norm_loop(E, K, h, Y, Yn, rtol, atol, err, tmp, tmp2):
                     e[i] += c * Ks[i]
             Yr, Ynr = Y[r, i0:i0 + nb], Yn[r, i0:i0 + nb]
             for i in range(nb):
-                sc = _nmax(abs(Yr[i]), abs(Ynr[i])) * rtol + atol
-                v = e[i] * hr[i] / sc
+                a, b = abs(Yr[i]), abs(Ynr[i])
+                big = a if (a >= b or a != a) else b        # np.maximum, written out: the loop vectorises
+                v = e[i] * hr[i] / (big * rtol + atol)
                 tot[i] += v * v
         o = en[i0:i0 + nb]
         for i in range(nb):
