@@ -2,13 +2,15 @@
 
 The vectorised Dormand-Prince 5(4) integrator (:mod:`thrustgraph.flight.ensemble`) spends much of its time on
 generic arithmetic over the designs: the stage combinations, the error norm and the step control, the running
-maxima and the sign tests that find a maximum inside a step, and the location of an event whose value is one row
-of the dense output (apogee, ground impact, a height maximum). None of it knows any physics: the right-hand side
-(the one balance, :mod:`thrustgraph.balance.balance`) stays in numpy and is called between these pieces.
+maxima, the sign tests that find a maximum inside a step and its location (Newton on the dense output), and the
+location of the events whose values are one to three rows of the dense output and read no balance (apogee, ground
+impact, a height maximum; guide exit, back at the guide's foot, at rest on a guide or track). None of it knows any
+physics: the right-hand side (the one balance, :mod:`thrustgraph.balance.balance`) stays in numpy and is called
+between these pieces.
 
 Each piece has two bodies with the same formulas in the same order of operations: a numpy one over whole arrays
 (the reference, always there) and a loop over designs compiled by numba (the optional extra ``fast``; installed
-with ``pip install thrustgraph[fast]``), which does each design's work in one pass instead of one pass of memory
+with ``pip install 'thrustgraph[fast]'``), which does each design's work in one pass instead of one pass of memory
 per numpy operation. :data:`KERNEL` says which one runs: the environment variable ``THRUSTGRAPH_KERNEL``
 (``numpy``, ``numba`` or ``auto``, the default: numba where it is installed) is read when this module is first
 imported; :func:`use` changes it for the process (tests and benchmarks compare the two). The numbers the two give
@@ -29,7 +31,8 @@ Examples
 >>> import numpy as np
 >>> K = np.ones((7, 2, 3))
 >>> out = np.empty((2, 3))
->>> [round(float(v), 12) for v in combine(DOPRI_B, 6, np.full(3, 0.5), np.zeros((2, 3)), K, out)[0]]   # weights sum to 1
+>>> out = combine(DOPRI_B, 6, np.full(3, 0.5), np.zeros((2, 3)), K, out)     # the weights sum to 1
+>>> [round(float(v), 12) for v in out[0]]
 [0.5, 0.5, 0.5]
 >>> KERNEL in ("numpy", "numba")
 True
@@ -51,7 +54,8 @@ except ImportError:          # the optional extra "fast" is not installed: the n
     numba = None
 
 __all__ = ["DOPRI_C", "DOPRI_A", "DOPRI_B", "DOPRI_E", "DOPRI_P", "JERK_ENDS", "KERNEL", "AVAILABLE", "use",
-           "ready", "cache_folder", "rowsum", "illinois", "combine", "error_norm", "step_control", "maxima", "illinois_row", "norm_max", "illinois_along"]
+           "ready", "cache_folder", "rowsum", "illinois", "combine", "error_norm", "step_control", "maxima",
+           "illinois_row", "norm_max", "illinois_along"]
 
 # Dormand-Prince 5(4) (scipy RK45's arrays).
 DOPRI_C = np.array([0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1])
@@ -290,7 +294,8 @@ def _illinois_along_np(y0, h, q, x0, u, off, way, rest, ga, gb, t0):
 # compiled bodies: the same formulas, design by design
 
 def _compiled(fn):
-    """``fn`` compiled by numba (cached in :func:`cache_folder`), or None without numba."""
+    """``fn`` compiled by numba (cached in :func:`cache_folder`), or None without numba. The loops are compiled at
+    their first call (lazily): importing this module compiles nothing."""
     if numba is None:
         return None
     folder = cache_folder()
@@ -299,7 +304,11 @@ def _compiled(fn):
         if folder is not None:
             # the cache's folder is fixed when the function is decorated: set it for this module's functions only
             numba.config.CACHE_DIR = str(folder / "numba")
-        return numba.njit(cache=folder is not None, nogil=True)(fn)
+            try:
+                return numba.njit(cache=True, nogil=True)(fn)
+            except RuntimeError:     # numba found no folder it may write to: compiled in each process instead
+                pass
+        return numba.njit(nogil=True)(fn)
     finally:
         numba.config.CACHE_DIR = saved
 
