@@ -233,3 +233,23 @@ def test_a_guide_or_track_event_is_located_at_the_same_point(seed, n, rest, way)
     ga, gb = value(np.zeros(n)), value(np.ones(n))
     a, b = _both(lambda: stepkernel.illinois_along(y0, h, q, x0, u, off, way, rest, ga, gb, t0))
     assert _same(a, b)
+
+
+@needs_numba
+@settings(max_examples=40, deadline=None, derandomize=True)
+@given(seed=st.integers(0, 2**32 - 1), n=st.integers(1, 300), moded=st.integers(0, 3), kinds=st.integers(1, 3))
+def test_the_designs_phase_codes_agree(seed, n, moded, kinds):
+    rng = np.random.default_rng(seed)
+    kin = rng.integers(0, 4, n).astype(np.int8)
+    slide = rng.choice([-1.0, 0.0, 1.0], n)
+    modes = rng.integers(0, kinds, (moded, n)).astype(np.int8)
+    if rng.random() < 0.3:                            # every design in one phase
+        kin[:], slide[:], modes[:] = kin[0], slide[0], modes[:, :1]
+    fresh = stepkernel.phase_code(kin, slide, modes, None)[0]
+    other = fresh.copy()
+    other[rng.integers(0, n)] += 1
+    for old in (None, fresh, other, fresh[: n - 1]):
+        a, b = _both(lambda: stepkernel.phase_code(kin, slide, modes, old))
+        assert _same(a[0], b[0]) and a[1:] == b[1:]
+        assert a[2] == (old is fresh)
+        assert a[1] == (len(np.unique(a[0])) == 1)

@@ -40,6 +40,7 @@ from ..base.xp import array_ops
 from ..kinds.component import Ambient
 from ..models.designs import DesignParameter, with_values
 from ..models.model import ParsedModel
+from .stepkernel import phase_code
 
 __all__ = ["ArraySystem", "Phase", "PhaseGroups", "unsupported", "IMPULSE", "HELD", "GUIDE", "FREE", "TRACK"]
 
@@ -516,12 +517,10 @@ class PhaseGroups:
         n = sysa.n
         if n == 0 or not sysa.grouped:
             return None
-        code = kin.astype(np.int64) * 3 + (np.sign(slide) + 1.0).astype(np.int64)     # slide: -1, 0, +1
-        for k in range(len(modes)):
-            code = code * 64 + modes[k]
-        if int(code.min()) == int(code.max()):
+        code, uniform, same = phase_code(kin, slide, modes, self._code if self._sysa is sysa else None)
+        if uniform:
             return None
-        if self._sysa is not sysa or self._code is None or not np.array_equal(code, self._code):
+        if not same:
             old = {} if self._sysa is not sysa else {int(c): (rows, sub) for c, (rows, sub) in
                                                       zip(self._keys, self._groups)}
             order = np.argsort(code, kind="stable")

@@ -55,7 +55,7 @@ except ImportError:          # the optional extra "fast" is not installed: the n
 
 __all__ = ["DOPRI_C", "DOPRI_A", "DOPRI_B", "DOPRI_E", "DOPRI_P", "JERK_ENDS", "KERNEL", "AVAILABLE", "use",
            "ready", "cache_folder", "rowsum", "illinois", "combine", "error_norm", "step_control", "maxima",
-           "illinois_row", "norm_max", "illinois_along"]
+           "illinois_row", "norm_max", "illinois_along", "phase_code"]
 
 # Dormand-Prince 5(4) (scipy RK45's arrays).
 DOPRI_C = np.array([0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1])
@@ -288,6 +288,14 @@ def _illinois_along_np(y0, h, q, x0, u, off, way, rest, ga, gb, t0):
         d = [y0[r] + h * (th * (q[r, 0] + th * (q[r, 1] + th * (q[r, 2] + th * q[r, 3])))) for r in range(3)]
         return _along_value(d[0], d[1], d[2], x0, u, off, way, rest)
     return illinois(g, ga, gb, t0, h)
+
+
+def _phase_code_np(kin, slide, modes, old, has_old):
+    code = kin.astype(np.int64) * 3 + (np.sign(slide) + 1.0).astype(np.int64)     # slide: -1, 0, +1
+    for k in range(len(modes)):
+        code = code * 64 + modes[k]
+    uniform = len(code) == 0 or int(code.min()) == int(code.max())
+    return code, uniform, has_old and np.array_equal(code, old)
 
 
 # ---------------------------------------------------------------------------------------------------------------
@@ -614,6 +622,27 @@ def _illinois_along_loop(y0, h, q, x0, u, off, way, rest, ga, gb, t0):
     return out
 
 
+def _phase_code_loop(kin, slide, modes, old, has_old):
+    n = len(kin)
+    code = np.empty(n, dtype=np.int64)
+    nm = modes.shape[0]
+    same = has_old and len(old) == n
+    for i in range(n):
+        sl = slide[i]
+        c = np.int64(kin[i]) * 3 + (2 if sl > 0.0 else (0 if sl < 0.0 else 1))
+        for k in range(nm):
+            c = c * 64 + np.int64(modes[k, i])
+        code[i] = c
+        if same and old[i] != c:
+            same = False
+    uniform = True
+    for i in range(1, n):
+        if code[i] != code[0]:
+            uniform = False
+            break
+    return code, uniform, same
+
+
 _BODIES = {
     "combine": (_combine_np, _combine_loop),
     "error_norm": (_error_norm_np, _error_norm_loop),
@@ -622,6 +651,7 @@ _BODIES = {
     "illinois_row": (_illinois_np, _illinois_loop),
     "norm_max": (_norm_max_np, _norm_max_loop),
     "illinois_along": (_illinois_along_np, _illinois_along_loop),
+    "phase_code": (_phase_code_np, _phase_code_loop),
 }
 _COMPILED = {name: _compiled(loop) for name, (_, loop) in _BODIES.items()}
 _ACTIVE: dict[str, Callable] = {name: body for name, (body, _) in _BODIES.items()}
@@ -730,6 +760,23 @@ def illinois_along(y0: np.ndarray, h: np.ndarray, q: np.ndarray, x0: np.ndarray,
     return _ACTIVE["illinois_along"](c(y0, dtype=float), c(h, dtype=float), c(q, dtype=float), c(x0, dtype=float),
                                      c(u, dtype=float), c(off, dtype=float), float(way), bool(rest),
                                      c(ga, dtype=float), c(gb, dtype=float), c(t0, dtype=float))
+
+
+def phase_code(kin: np.ndarray, slide: np.ndarray, modes: np.ndarray,
+               old: np.ndarray | None) -> tuple[np.ndarray, bool, bool]:
+    """Each design's whole phase as one integer (constraint, the way it slides, the mode of every moded component:
+    designs in the same phase get the same code), whether every design has the same, and whether the codes equal
+    ``old`` (None: no codes before).
+
+    >>> code, uniform, same = phase_code(np.array([1, 1]), np.array([0.0, 1.0]), np.zeros((1, 2), np.int8), None)
+    >>> code.tolist(), uniform, same
+    ([256, 320], False, False)
+    """
+    return _ACTIVE["phase_code"](kin, np.ascontiguousarray(slide, dtype=float), modes,
+                                 _NO_CODE if old is None else old, old is not None)
+
+
+_NO_CODE = np.empty(0, dtype=np.int64)
 
 
 try:
