@@ -52,7 +52,7 @@ import numpy as np
 import thrustgraph as tg
 from thrustgraph.models.designs import resolve
 from thrustgraph.models.model import parse_model
-from thrustgraph.studies.engines import ENSEMBLE_CHUNK, ProcessEngine
+from thrustgraph.studies.engines import ENSEMBLE_CHUNK, ProcessEngine, start_method
 from thrustgraph.studies.studies import evaluate
 
 PATHS = ("components.bottle.fill", "components.bottle.gauge_pressure", "components.neck.diameter",
@@ -147,6 +147,7 @@ def scale_out(sizes: list[int], repeat: int, workers: int, dask: bool, before: b
                 med[side] = (wall, cpu, kids)
                 print(f"   {side:<36s} {wall:7.2f} s  CPU {cpu:6.2f} + {kids:6.2f} s  ({engines[side]}; rounds "
                       f"{', '.join(f'{a:.2f}' for a, _, _, _ in r)} s at load {', '.join(f'{d:.1f}' for *_, d in r)})")
+            forked = start_method() == "fork"
             one = [s for s in sides if s.startswith("one process")]
             best = min(one, key=lambda s: med[s][0])
             best_cpu = min(med[s][1] + med[s][2] for s in one)
@@ -157,7 +158,11 @@ def scale_out(sizes: list[int], repeat: int, workers: int, dask: bool, before: b
                 w = workers if engines[side] in ("processes", "dask") else 1
                 if side.startswith("before"):
                     w = workers
-                counted = engines[side] == "serial" or (engines[side] == "processes" and not side.startswith("before"))
+                # a pool's workers are this process's children (their CPU time counted once they end) only when
+                # forked: from a fork server (this process runs other threads, e.g. a local Dask cluster's) they
+                # are the server's children
+                counted = engines[side] == "serial" or (engines[side] == "processes" and not side.startswith("before")
+                                                        and forked)
                 by_cpu = best_cpu / (cpu + kids / w) if counted else float("nan")
                 print(f"   ratio {side} / best one process ({best}): {med[best][0] / wall:.2f}x by the wall clock, "
                       + (f"{by_cpu:.2f}x by CPU time" if by_cpu == by_cpu else "(its workers' CPU time is not "

@@ -51,6 +51,9 @@ def test_every_bundled_model_export_reads_back_through_the_record_reader(name, p
         assert Q_(1.0, unit or "").dimensionality == Q_(1.0, rec.si_units[col] or "").dimensionality, (name, col)
         np.testing.assert_allclose(rec.columns[col], values, rtol=1e-15, atol=0.0, equal_nan=True, err_msg=col)
     assert rec.labels["phase"] == tuple(r.phase_at(float(t)) for t in r.t)
+    # the JSON export holds the same series and notes: it reads back to the very record the CSV export gives
+    (tmp_path / "run.json").write_text(EXPORTS["json"].render(r))
+    _same_record(read_record(tmp_path / "run.json"), rec)
     # every signal's unit comes from the one place, and pint reads it
     for sig in r.signals:
         assert r.unit(sig) == signal_unit(sig, {k: v for k, v in r.units.items()}), sig
@@ -176,3 +179,74 @@ def test_a_parquet_file_of_another_program_and_a_damaged_one(tmp_path, monkeypat
     monkeypatch.setattr(builtins, "__import__", no_pyarrow)
     with pytest.raises(ModelError, match=r"needs pyarrow.*pip install 'thrustgraph\[parquet\]'"):
         read_record(tmp_path / "log.parquet")
+
+
+# ---------------------------------------------------------------------------
+# the JSON export through the same reader
+# ---------------------------------------------------------------------------
+
+def test_compare_and_overlay_read_a_json_export_as_they_read_its_csv_export(tmp_path):
+    # a user exports a run as JSON and CSV (in imperial units: each column of the series names its unit) and
+    # compares the model with either file: the metrics are the same numbers, and overlay brings back the outcomes
+    out = io.StringIO()
+    with contextlib.redirect_stdout(out):
+        assert main(["export", "water-jet-boat", "--units", "imperial", "--json", str(tmp_path / "b.json"),
+                     "--csv", str(tmp_path / "b.csv"), "--quiet"]) == 0
+        for name in ("b.json", "b.csv"):
+            assert main(["compare", "water-jet-boat", str(tmp_path / name), "--map", "speed=speed",
+                         "--map", "thrust=thrust", "--json", str(tmp_path / f"metrics-{name}.json")]) == 0
+        assert main(["overlay", "water-jet-boat", str(tmp_path / "b.json"), "--table", str(tmp_path / "t.csv"),
+                     "--quiet"]) == 0
+    doc = json.loads((tmp_path / "b.json").read_text())
+    assert "peak_thrust" in doc["summary"] and doc["provenance"]["model_sha256"]         # the summary is kept
+    speed = next(c for c in doc["series"] if c["name"] == "speed")
+    assert speed["unit"] == "ft/s" and doc["series"][-1]["name"] == "phase"
+    _same_record(read_record(tmp_path / "b.json"), read_record(tmp_path / "b.csv"))
+    by_json, by_csv = (json.loads((tmp_path / f"metrics-{n}.json").read_text()) for n in ("b.json", "b.csv"))
+    assert by_json["signals"] and [s["signal"] for s in by_json["signals"]] == ["speed", "thrust"]
+    assert {k: v for k, v in by_json.items() if k not in ("record", "sha256")} == \
+        {k: v for k, v in by_csv.items() if k not in ("record", "sha256")}
+    rows = list(csv.DictReader((tmp_path / "t.csv").open()))
+    assert rows and all(row["b.json - water-jet-boat"] == "0.0" for row in rows), rows
+
+
+def test_a_json_file_without_a_series_is_refused_with_one_message(tmp_path):
+    metrics = {"record": "stand.csv", "signals": [{"signal": "thrust", "rms_error": 1.0}]}
+    (tmp_path / "metrics.json").write_text(json.dumps(metrics))
+    (tmp_path / "summary.json").write_text(json.dumps({"summary": {"apogee": {"value": 54.3, "unit": "m"}}}))
+    (tmp_path / "cut.json").write_text('{"summary": {"apogee": ')
+    series = [{"name": "time", "unit": "s", "values": [0.0, 1.0]}, {"name": "load", "unit": "N", "values": [1.0]}]
+    (tmp_path / "ragged.json").write_text(json.dumps({"series": series}))
+    series[1]["values"] = [1.0, "heavy"]
+    (tmp_path / "word.json").write_text(json.dumps({"series": series}))
+    for name, says in [("metrics.json", "no time series .* the metrics of thrustgraph compare"),
+                       ("summary.json", "no time series .* a summary without the signals"),
+                       ("cut.json", "cannot be read as JSON"),
+                       ("ragged.json", r"series\[1\] 'load': has 1 values but the first column has 2"),
+                       ("word.json", r"series\[1\] 'load', value 2: 'heavy' is not a number")]:
+        with pytest.raises(ModelError, match=says) as err:
+            read_record(tmp_path / name)
+        assert "Fix:" in str(err.value) and name in str(err.value)
+    # through the command: one line, exit 2, nothing written
+    err = io.StringIO()
+    with contextlib.redirect_stderr(err), contextlib.redirect_stdout(io.StringIO()):
+        assert main(["compare", "bottle-rocket", str(tmp_path / "metrics.json"), "--map", "thrust=thrust",
+                     "--json", str(tmp_path / "out.json")]) == 2
+    lines = err.getvalue().strip().splitlines()
+    assert len(lines) == 1 and "no time series" in lines[0] and "thrustgraph export MODEL --json FILE" in lines[0]
+    assert not (tmp_path / "out.json").exists()
+
+
+def test_a_json_record_of_another_program_is_a_measured_record(tmp_path):
+    # the export's shape without its provenance: a measured record, with none of a saved prediction's allowances
+    text = json.dumps({"series": [{"name": "time", "unit": "ms", "values": [0, 1, 2]},
+                                  {"name": "load", "unit": "lbf", "values": [0, 10, 5]},
+                                  {"name": "state", "unit": "text", "values": ["a", "b", "c"]}]})
+    (tmp_path / "log.json").write_text(text)
+    rec = read_record(tmp_path / "log.json")
+    np.testing.assert_allclose(rec.time, [0.0, 0.001, 0.002], rtol=1e-15)
+    assert rec.columns["load"][1] == pytest.approx(44.482216152605, rel=1e-12)
+    assert rec.labels["state"] == ("a", "b", "c") and not rec.exported
+    (tmp_path / "gap.json").write_text(text.replace("[0, 10, 5]", "[0, null, 5]"))
+    with pytest.raises(ModelError, match="missing value"):
+        read_record(tmp_path / "gap.json")

@@ -18,6 +18,9 @@ from scipy.optimize import brentq
 
 from thrustgraph import integrate
 from thrustgraph.base.errors import ModelError
+from thrustgraph.flight.arraysystem import unsupported
+from thrustgraph.flight.ensemble import fly_designs
+from thrustgraph.models.designs import resolve
 from thrustgraph.models.model import parse_model
 from conftest import HEADER, model_from_toml
 
@@ -25,7 +28,7 @@ G0 = 9.80665  # standard gravity, exact (3rd CGPM 1901)
 
 
 def jet_on_guide(*, elevation, length=2.0, mu=0.0, m_dry=1.0, m_prop=1e-5, mdot=1e-6, ve=3e7, azimuth=0.0,
-                 mount="guide", speed=0.0, end=30.0, programme=None):
+                 mount="guide", speed=0.0, end=30.0, programme=None, attitude="follow-wind"):
     """A body with a constant-flow prescribed jet (thrust mdot ve) on a guide or track, in vacuum."""
     jet = programme or f"""programme = "constant-flow"
         propellant_mass = "{m_prop!r} kg"
@@ -40,6 +43,7 @@ def jet_on_guide(*, elevation, length=2.0, mu=0.0, m_dry=1.0, m_prop=1e-5, mdot=
         azimuth = "{azimuth} deg"
         friction = {mu}
         speed = "{speed} m/s"
+        attitude = "{attitude}"
         [run]
         end_time = "{end} s"
         [environment.medium]
@@ -147,6 +151,70 @@ def test_thrust_just_above_the_friction_limit_does_lift_off():
     assert need < 9.5
     r = integrate(jet_on_guide(elevation=30.0, mu=0.5, m_dry=0.99, m_prop=0.01, mdot=0.01, ve=950.0, length=0.1))
     assert r.summary["guide_exit_speed"] > 0.0
+
+
+# ---------------------------------------------------------------------------
+# Lift-off from a pad (a guide of length 0)
+# ---------------------------------------------------------------------------
+
+def _falling_thrust(t0_thrust: float) -> str:
+    # thrust falling from T0 to a third of it in 1 s; mass change negligible (ve = 3e7 m/s: < 1e-6 kg lost)
+    return f"""programme = "thrust-table"
+        exhaust_velocity = "3e7 m/s"
+        thrust_curve = {{ units = ["s", "N"], rows = [[0, {t0_thrust!r}], [1, {t0_thrust / 3!r}]] }}"""
+
+
+@pytest.mark.parametrize("elevation, mu", [(90.0, 0.0), (60.0, 0.0), (30.0, 0.5)])
+@pytest.mark.parametrize("above", [1.001, 3.0])
+def test_a_pad_lifted_at_the_start_logs_its_lift_off_at_the_start_at_zero_speed(elevation, mu, above):
+    # On a pad the vehicle leaves as soon as it moves: it moves at t0 if T(t0) > m g (sin(theta) + mu cos(theta))
+    # (static friction up to mu N with N = m g cos(theta); Halliday, Resnick & Walker, Fundamentals of Physics,
+    # ch. 6, block on an incline; from memory). Here T(t0) is 0.1 % or 3 times that: lift-off at t0 = 0 at 0 m/s
+    # (it was logged a first step later, ~2 us, at ~1e-3 m/s).
+    th = math.radians(elevation)
+    m = 1.0
+    T0 = above * m * G0 * (math.sin(th) + mu * math.cos(th))
+    model = jet_on_guide(elevation=elevation, length=0.0, mu=mu, m_dry=m, end=2.0, attitude="fixed",
+                         programme=_falling_thrust(T0))
+    r = integrate(model)
+    assert [(e.name, e.t, e.detail) for e in r.events[:2]] == [("start", 0.0, "mount guide"),
+                                                              ("lift-off", 0.0, "speed 0 m/s")]
+    assert "guide_exit_speed" not in r.summary and r.phases[0].t_start == 0.0
+    if above < 2.0:
+        return
+    # From t0 on the vehicle is free: with its axis held (attitude fixed) along the pad, u, its acceleration at
+    # t0 is T/m u - g z, of magnitude sqrt((T/m)^2 - 2 (T/m) g sin(theta) + g^2) (vector sum; Newton's second
+    # law), not T/m - g (sin(theta) + mu cos(theta)) along the pad; T/m falls from there (well above g sin(theta)),
+    # so that is the peak acceleration, on a single flight and on an ensemble alike.
+    m0 = m + (T0 + T0 / 3.0) / 2.0 / 3e7          # the dry mass and the propellant of the table, impulse / ve
+    assert r.summary["launch_mass"] == pytest.approx(m0, rel=1e-14)
+    a0 = T0 / m0
+    peak = math.sqrt(a0 * a0 - 2.0 * a0 * G0 * math.sin(th) + G0 * G0)
+    assert r.summary["peak_acceleration"] == pytest.approx(peak, rel=1e-9)
+    parsed = parse_model(model)
+    assert unsupported(parsed) is None
+    p = resolve(parsed, "components.body.dry_mass")
+    res = fly_designs(parsed, [p], np.array([[m]]), ["peak_acceleration", "max_speed"])
+    assert res.status == ["ok"]
+    assert res.values[0, 0] == pytest.approx(peak, rel=1e-9)
+    assert res.values[0, 1] == pytest.approx(r.summary["max_speed"], rel=1e-6)
+
+
+def test_a_pad_not_lifted_at_the_start_lifts_off_later():
+    # T(t0) 0.1 % below m g (sin(theta) + mu cos(theta)), rising: no lift-off at the start. The thrust reaches the
+    # limit at t* = (m g' - T0) / (dT/dt) (mass change negligible); the vehicle then has to move the pad's 1 nm,
+    # so the lift-off is logged after t*, within the time a jerk of (dT/dt)/m takes to cover it, (6e-9 m / j)^(1/3).
+    th = math.radians(30.0)
+    m, mu = 1.0, 0.5
+    need = m * G0 * (math.sin(th) + mu * math.cos(th))
+    T0, T1 = 0.999 * need, 2.0 * need
+    model = jet_on_guide(elevation=30.0, length=0.0, mu=mu, m_dry=m, end=0.05, programme=f"""programme = "thrust-table"
+        exhaust_velocity = "3e7 m/s"
+        thrust_curve = {{ units = ["s", "N"], rows = [[0, {T0!r}], [1, {T1!r}]] }}""")
+    r = integrate(model)
+    lift = event(r, "lift-off")
+    t_star = (need - T0) / (T1 - T0)
+    assert t_star < lift.t < t_star + 1.01 * (6e-9 / ((T1 - T0) / m)) ** (1.0 / 3.0)
 
 
 def test_a_vehicle_that_slides_back_down_the_guide_stops_at_its_foot():

@@ -25,13 +25,13 @@ PLUGINS = ROOT / "plugins"
 #: layer -> its modules (names inside the ``thrustgraph`` package). docs/layout.md says what each holds.
 LAYERS: dict[str, tuple[str, ...]] = {
     'base': ('base', 'base.errors', 'base.units', 'base.version', 'base.limits', 'base.interrupts',
-        'base.progress', 'base.outputfiles', 'base.xp', 'base.roots', 'base.frames'),
+        'base.progress', 'base.outputfiles', 'base.xp', 'base.roots', 'base.extremum', 'base.frames', 'base.exportnotes'),
     'kinds': ('kinds', 'kinds.parameters', 'kinds.outcomespec', 'kinds.vehicle', 'kinds.component',
         'kinds.contract', 'kinds.hookspecs', 'kinds.modeldata', 'kinds.signalunits', 'kinds.displayunits'),
     'balance': ('balance', 'balance.plan', 'balance.balance', 'balance.vectors', 'balance.straightline',
         'balance.arrayops', 'balance.sampling', 'balance.outcomes'),
     'models': ('models', 'models.plugins', 'models.staging', 'models.model', 'models.modelfile', 'models.designs'),
-    'flight': ('flight', 'flight.assembly', 'flight.separation', 'flight.stepguard', 'flight.integrate',
+    'flight': ('flight', 'flight.assembly', 'flight.separation', 'flight.stepguard', 'flight.denseoutput', 'flight.integrate',
         'flight.result', 'flight.signallog', 'flight.arraysystem', 'flight.stepkernel', 'flight.ensemble'),
     'outputs': ('outputs', 'outputs.exportformats', 'outputs.plotkinds', 'outputs.plots', 'outputs.studyplots',
         'outputs.report', 'outputs.overlayplots'),

@@ -15,7 +15,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+import thrustgraph as tg
+
 from thrustgraph import ModelError
+from thrustgraph.cli import main
 from thrustgraph.base.errors import OutputError
 from thrustgraph.models.model import LAUNCH_SPECS, RUN_SPECS, Model
 from thrustgraph.models.modelfile import (FORMAT_VERSION, TOP_LEVEL_KEYS, UPGRADES, atomic_write, bundled_models, check_model, dumps_model,
@@ -304,6 +307,28 @@ def test_file_errors(tmp_path):
     bad.write_bytes(HEAD.encode() + b'name = "caf\xe9"\n')
     with pytest.raises(ModelError, match="latin1.toml: is not UTF-8 text"):
         load_model(bad)
+
+
+def test_the_api_takes_the_names_the_command_line_takes(tmp_path, monkeypatch, capsys):
+    # every bundled scenario by its name, as `thrustgraph check NAME` takes it, gives the model of its file
+    for name, path in bundled_models().items():
+        assert tg.load_model(name) == load_model(path), name
+        assert main(["check", name]) == 0, name
+    assert tg.load_model(None) == load_model(bundled_models()["bottle-rocket"])
+    # a file of the user's wins only by its path: a name is a bundled scenario, a path object is a path
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "mine.toml").write_text(dumps_model(load_model("water-jet-boat")))
+    assert tg.load_model("mine.toml").name == "water-jet boat"
+    with pytest.raises(ModelError, match="no such model file"):
+        tg.load_model(Path("water-jet-boat"))
+    # an unknown name: the same one-line error from both, the closest name and every bundled name in it
+    with pytest.raises(ModelError) as api:
+        tg.load_model("water-jet-bot")
+    capsys.readouterr()
+    assert main(["check", "water-jet-bot"]) == 2
+    cli = capsys.readouterr().err.strip()
+    assert cli == f"thrustgraph: error: {api.value}"
+    assert "did you mean 'water-jet-boat'?" in cli and all(n in cli for n in bundled_models())
 
 
 def test_loading_never_executes_code_from_the_file(tmp_path):

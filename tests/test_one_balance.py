@@ -247,9 +247,8 @@ def _vehicle(parsed, rng: np.random.Generator):
 @given(model=st.sampled_from(FLYABLE), options=options_st, seed=st.integers(0, 2**32 - 1))
 def test_array_and_scalar_right_hand_sides_agree_to_rounding(model, options, seed):
     """Random designs, random states and random phases (every mode of every slot, guide or free per design):
-    each design's derivatives from the array balance equal those of its own single-flight balance. (The Newton
-    solve of the head coupling stops when every design has converged, so a design may take one more step in a
-    batch than alone: a difference at the rounding level of the terms it sums.)"""
+    each design's derivatives from the array balance equal those of its own single-flight balance, to the
+    rounding (numpy's functions against the math module's, numpy's table look-ups against bisection)."""
     rng = np.random.default_rng(seed)
     whole = parse_model(_model(model, options))
     parsed = _vehicle(whole, rng)

@@ -51,10 +51,9 @@ def _stats_equal(a, b):
 
 # --- streaming gives the table held in memory -------------------------------------------------------------------
 
-# The same chunks on both sides: a table held in memory cuts an ensemble study into interleaved chunks (every k-th
-# row), a streamed one into ranges of consecutive rows; a design's ensemble outcomes depend on its chunk in the
-# last bits (and, through the step control, up to the tolerance), so bit-for-bit comparisons give both sides the
-# same chunks: one chunk for the whole study, or single flights (every design alone).
+# A table held in memory cuts an ensemble study into interleaved chunks (every k-th row), a streamed one into ranges
+# of consecutive rows; a design's ensemble outcomes do not depend on its chunk (tests/test_ensemble_chunks.py), so
+# either gives the same file.
 @pytest.mark.parametrize("flights, engine, chunk", [("ensemble", "serial", None), ("single", "processes", 5),
                                                      ("single", "serial", 7)])
 def test_a_streamed_dispersion_is_the_table_and_statistics_held_in_memory(bottle, tmp_path, flights, engine, chunk):
@@ -226,14 +225,34 @@ def test_auto_flies_small_ensembles_in_this_process_and_large_ones_on_idle_cores
     assert choose_engine(10 ** 6, parsed) == ("serial", "ensemble")
 
 
-def test_idle_cores_are_the_usable_cores_the_load_leaves(monkeypatch):
+def test_idle_cores_are_the_idle_share_of_the_usable_cores_while_the_study_sleeps(monkeypatch):
     from thrustgraph.studies import engines
 
+    ticks = iter([(1000, 4000), (1150, 4200)])      # 150 of 200 ticks idle over the window, on 2 cores
+    monkeypatch.setattr(engines.os, "sched_getaffinity", lambda _: {0, 1})
+    monkeypatch.setattr(engines, "cpu_ticks", lambda cpus: next(ticks))
+    assert engines.idle_cores(0.0) == pytest.approx(1.5)
+
+
+def test_idle_cores_fall_back_to_the_load_average_without_proc_stat(monkeypatch):
+    from thrustgraph.studies import engines
+
+    monkeypatch.setattr(engines, "cpu_ticks", lambda cpus: None)
     monkeypatch.setattr(engines, "usable_cores", lambda: 2)
     monkeypatch.setattr(engines.os, "getloadavg", lambda: (0.4, 0.0, 0.0))
-    assert engines.idle_cores() == pytest.approx(1.6)
+    assert engines.idle_cores(0.0) == pytest.approx(1.6)
     monkeypatch.setattr(engines.os, "getloadavg", lambda: (7.5, 0.0, 0.0))
-    assert engines.idle_cores() == 0.0
+    assert engines.idle_cores(0.0) == 0.0
+
+
+@pytest.mark.skipif(not os.path.exists("/proc/stat"), reason="the system gives no /proc/stat")
+def test_cpu_ticks_read_this_machines_cores():
+    from thrustgraph.studies import engines
+
+    cpus = sorted(os.sched_getaffinity(0))
+    idle, total = engines.cpu_ticks(cpus)
+    assert 0 <= idle <= total
+    assert engines.cpu_ticks([10 ** 6]) is None       # a core the machine does not have
 
 
 @pytest.mark.parametrize("n", [1, 999, 4000, 10000, 39999, 40000, 40001, 123457, 1000000])
@@ -250,9 +269,9 @@ def test_ensemble_chunks_are_few_equal_and_shared_evenly(n, workers):
 
 def test_one_process_two_workers_and_single_runs_give_the_same_outcomes(bottle, tmp_path):
     """A study's rows do not depend on where they fly: one process and two workers give the same table bit for
-    bit (single flights; ensembles in the same chunks, held or streamed); a single flight in a study is the single
-    run of that design bit for bit, and the ensemble agrees with it to the tolerance of the one-balance property
-    (1e-6); so do ensembles cut into other chunks (one chunk in one process, one per worker on two)."""
+    bit (single flights; ensembles, held or streamed, in the same chunks or in others: one chunk in one process,
+    one per worker on two); a single flight in a study is the single run of that design bit for bit, and the
+    ensemble agrees with it to the tolerance of the one-balance property (1e-6)."""
     parsed = parse_model(bottle)
     outs = ["apogee", "range", "max_speed", "peak_acceleration", "impact_x", "impact_y", "impact_speed"]
     kw = dict(samples=40, seed=11, quiet=True, outputs=outs)
@@ -269,7 +288,7 @@ def test_one_process_two_workers_and_single_runs_give_the_same_outcomes(bottle, 
         tables[flights] = one
     auto_one = disperse(bottle, spreads, engine="serial", flights="ensemble", **kw).table       # one chunk
     auto_two = disperse(bottle, spreads, engine="processes", workers=2, flights="ensemble", **kw).table   # two
-    np.testing.assert_allclose(auto_two.values, auto_one.values, rtol=1e-6, atol=1e-9)
+    np.testing.assert_array_equal(auto_two.values, auto_one.values)
     single, ens = tables["single"], tables["ensemble"]
     np.testing.assert_array_equal(single.status, ens.status)
     ok = single.ok

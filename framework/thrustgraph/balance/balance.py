@@ -161,6 +161,7 @@ class Balance:
         #: why tracing failed, per phase and request (for tests and diagnosis)
         self.untraced: dict[tuple, str] = {}
         self._phases: dict[tuple, dict] = {}
+        self._phase_key: tuple | None = None
         self.set_phase([0] * len(plan.moded) if not hasattr(system, "mode0") else list(system.mode0),
                        Kinematics.BY_MOUNT[c.mount], False)
 
@@ -175,8 +176,10 @@ class Balance:
         friction at rest). For an ensemble ``slide`` may be an array over designs (each design's own way).
         """
         # one phase for every design (a single flight, or a segment's samples): a phase seen before is restored
-        # whole (outcomes set each segment's phase many times)
+        # whole (outcomes set each segment's phase many times); the phase already set costs a comparison
         key = _phase_key(modes, kinematics, descending, slide)
+        if key is not None and key == self._phase_key:
+            return
         if key is not None:
             known = self._phases.get(key)
             if known is not None:
@@ -896,10 +899,14 @@ class Balance:
 #: what :meth:`Balance.set_phase` derives from the phase (restored whole when a phase comes back)
 def _phase_key(modes: Sequence[Any], kinematics: Any, descending: bool, slide: Any) -> tuple | None:
     """The key of a phase shared by every design (plain numbers), or None (a phase per design: an ensemble's)."""
-    if not all(isinstance(m, (int, np.integer)) for m in modes) or not isinstance(kinematics, (int, np.integer)) \
-            or not isinstance(slide, (int, float)):
+    ms = tuple(modes)
+    for m in ms:
+        if type(m) is not int and not isinstance(m, (int, np.integer)):
+            return None
+    if not isinstance(kinematics, (int, np.integer)) or not isinstance(slide, (int, float)):
         return None
-    return (tuple(int(m) for m in modes), int(kinematics), bool(descending), float(slide))
+    return (tuple(int(m) for m in ms) if any(type(m) is not int for m in ms) else ms, int(kinematics),
+            bool(descending), float(slide))
 
 
 _PHASE_ATTRIBUTES = ("modes", "kinematics", "descending", "_bmode", "_force_fns", "_vmode", "_smode", "_jmode",

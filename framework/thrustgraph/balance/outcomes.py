@@ -53,6 +53,7 @@ from typing import Protocol, Any, Callable, Iterable, Mapping, Sequence
 import numpy as np
 
 from .balance import Kinematics
+from ..base.extremum import bounded_minimum
 from ..base.errors import ModelError, PluginError
 from ..kinds.outcomespec import KEY_PATTERN, OutcomeSpec
 from .sampling import at_samples, dense_states
@@ -95,7 +96,8 @@ def _propulsive(system: System, modes: Sequence[int]) -> bool:
 
 def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: float, end: float | None = None,
                 at_end: float | None = None) -> float:
-    """Largest value of ``fun`` on [t_lo, t_hi] by a bounded scalar search, never below ``best``.
+    """Largest value of ``fun`` on [t_lo, t_hi] by a bounded scalar search (Brent's:
+    :func:`~thrustgraph.base.extremum.bounded_minimum`), never below ``best``.
 
     ``end`` (``t_lo`` or ``t_hi``), where the largest of the solver's steps sits at an end of the interval, with
     its value ``at_end``: when ``fun`` still rises toward that end (one probe a millionth of the interval inside),
@@ -108,19 +110,15 @@ def _refine_max(fun: Callable[[float], float], t_lo: float, t_hi: float, best: f
         inside = end + (1e-6 if end == t_lo else -1e-6) * (t_hi - t_lo)
         if fun(inside) <= at_end:
             return max(best, at_end)
-    # imported on first use, not with the module: scipy.optimize costs ~0.7 s to import, which a command that
-    # computes no outcome (`thrustgraph check`) would pay (benchmarks/cli_startup.py)
-    from scipy.optimize import minimize_scalar
-
-    res = minimize_scalar(lambda t: -fun(t), bounds=(t_lo, t_hi), method="bounded",
-                          options={"xatol": 1e-12 * max(1.0, abs(t_hi)) + 1e-9 * (t_hi - t_lo)})
-    return max(best, -float(res.fun))
+    # Brent's bounded search, scipy's minimize_scalar(method="bounded") step for step on plain floats
+    _, fx, _ = bounded_minimum(lambda t: -fun(t), t_lo, t_hi, 1e-12 * max(1.0, abs(t_hi)) + 1e-9 * (t_hi - t_lo))
+    return max(best, -float(fx))
 
 
 #: what the outcomes read of a :meth:`~thrustgraph.balance.balance.Balance.terms` snapshot at a segment's steps
-#: (peaks of thrust, net thrust, side force and acceleration) and at its quadrature nodes (the impulses): a run
+#: (peaks of thrust, net thrust, side force and acceleration; the launch and final mass) and at its quadrature nodes (the impulses): a run
 #: takes these of its samples' pass
-STEP_TERMS = ("derivs", "thrust", "thrust_axial", "inflow", "axis")
+STEP_TERMS = ("derivs", "thrust", "thrust_axial", "inflow", "axis", "mass")
 NODE_TERMS = ("thrust", "inflow")
 
 
@@ -217,8 +215,13 @@ class Flight:
         return self.segments[-1][1].y[:, -1]
 
     def mass_at(self, which: int) -> float:
-        """Vehicle mass at the first (0) or last (-1) state, kg."""
+        """Vehicle mass at the first (0) or last (-1) state, kg (from the terms at the segment's steps where they
+        were evaluated already: the same balance's number)."""
         ph, sol, bal = self.segments[which]
+        snap = self._at_steps.get((id(sol), "terms"))
+        if snap is not None:
+            m = snap["mass"]
+            return float(m[which] if isinstance(m, np.ndarray) and m.ndim == 1 and len(m) == len(sol.t) else m)
         bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
         return float(bal.evaluate(float(sol.t[which]), sol.y[:, which])["mass"])
 
@@ -353,14 +356,17 @@ def _norm3(v: Any) -> float:
     return float(math.sqrt(v[0] * v[0] + v[1] * v[1] + v[2] * v[2]))
 
 
+_ALTITUDE, _VELOCITY = slice(2, 3), slice(3, 6)     # of the state vector
+
+
 def _apogee(f: Flight) -> float:
     return f.peak(lambda ph, sol, bal: sol.y[2],
-                  lambda ph, sol, bal: (lambda t: float(dense_states(sol, t)[2]))) + 0.0
+                  lambda ph, sol, bal: (lambda t: float(dense_states(sol, t, _ALTITUDE)[0]))) + 0.0
 
 
 def _max_speed(f: Flight) -> float:
     return f.peak(lambda ph, sol, bal: np.linalg.norm(sol.y[3:6], axis=0),
-                  lambda ph, sol, bal: (lambda t: _norm3(dense_states(sol, t)[3:6])))
+                  lambda ph, sol, bal: (lambda t: _norm3(dense_states(sol, t, _VELOCITY))))
 
 
 def _accel_steps(flight: Flight, ph: Any, sol: Any, bal: Any) -> np.ndarray:
@@ -439,11 +445,14 @@ def _peak_vessel_pressure(f: Flight) -> float:
     best = -math.inf
     for ph, sol, bal in f.segments:
         sysm = bal.system
+        if not sysm.volumes:
+            continue
         slot = {n: k for k, n in enumerate(sysm.moded)}
+        states = sol.y.T.tolist()
         for n, vf in sysm.volumes:
             mode = ph.modes[slot[n]] if n in slot else 0
-            for k in range(sol.y.shape[1]):
-                p = vf.signals(sol.y[:, k].tolist(), mode).get("pressure")
+            for s in states:
+                p = vf.signals(s, mode).get("pressure")
                 if p is not None and p > best:
                     best = p
     return float(best) if best > -math.inf else math.nan

@@ -38,7 +38,7 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from ..base.xp import ArrayOps, ScalarOps
+from ..base.xp import ArrayOps, ScalarOps, hold
 
 __all__ = ["TraceError", "Sym", "trace_ops", "array_trace_ops", "compile_function"]
 
@@ -542,7 +542,7 @@ class ArrayTraceOps(TraceOps):
     ArrayOps computes it, what depends on the state or the time is written down as numpy calls, in the same
     order. Traced with :func:`compile_function` (``designs=N``), the straight line takes the states as arrays
     over designs. Choices keep ArrayOps' rules: ``ops.branch`` on a state-dependent condition runs the one
-    regime every design is in, or both and chooses per design; ``ops.iterate`` stops when every design does;
+    regime every design is in, or both and chooses per design; ``ops.iterate`` holds a design that stops and ends when every design does;
     ``ops.refuse`` does nothing (the caller flags the designs)."""
 
     arrays = True
@@ -689,11 +689,13 @@ class ArrayTraceOps(TraceOps):
                     break
                 if it and bool(np.all(stop)):
                     return now, aux
-                now = step(now, aux)
+                new = step(now, aux)
                 lv = []
-                _flatten(now, lv)
+                _flatten(new, lv)
                 if not all(_static(v) for v in lv):
                     break
+                # a design that stops keeps its values while the others step on
+                now = hold(stop, now, new) if it and bool(np.any(stop)) else new
             else:
                 return now, aux
         return TraceOps.iterate(carry, test, step, n)
@@ -814,7 +816,8 @@ def _write(stmts: list, indent: str, out: list) -> None:
 
 def _write_arrays(stmts: list, indent: str, out: list, count: list) -> None:
     """The array dialect of :func:`_write`: a choice on a condition over designs runs the regime every design is
-    in, else both and takes each design's (``ArrayOps.branch``); a loop ends when every design's test stops."""
+    in, else both and takes each design's (``ArrayOps.branch``); a loop ends when every design's test stops, and
+    a design whose test stops keeps what the loop carries meanwhile (``ArrayOps.iterate``)."""
     for st in stmts:
         kind = st[0]
         if kind == "=":
@@ -841,12 +844,25 @@ def _write_arrays(stmts: list, indent: str, out: list, count: list) -> None:
             for nm, sv in zip(targets, saved):
                 out.append(f"{indent}    {nm} = _np_where({c}, {sv}, {nm})")
         elif kind == "loop":
-            _, n, kt, ss, _ds, ka, _names = st
+            _, n, kt, ss, _ds, ka, names = st
+            count[0] += 1
+            c = f"_s{count[0]}"
+            # a design whose test stops keeps what the loop carries while the others step on (ArrayOps.iterate)
+            carried = [nm for nm in names if any(s[0] == "=" and s[1] == nm for s in ka)]
             out.append(f"{indent}for _it in range({n}):")
             _write_arrays(kt, indent + "    ", out, count)
-            out.append(f"{indent}    if _np_all({ss}):")
+            out.append(f"{indent}    {c} = {ss}")
+            out.append(f"{indent}    if _np_all({c}):")
             out.append(f"{indent}        break")
+            out.append(f"{indent}    {c}_any = _np_any({c})")
+            saved = [f"{nm}_{c}" for nm in carried]
+            for nm, sv in zip(carried, saved):
+                out.append(f"{indent}    {sv} = {nm}")
             _write_arrays(ka, indent + "    ", out, count)
+            if carried:
+                out.append(f"{indent}    if {c}_any:")
+                for nm, sv in zip(carried, saved):
+                    out.append(f"{indent}        {nm} = _np_where({c}, {sv}, {nm})")
 
 
 def _source_of(x: Any, live: set, rec: _Recorder) -> str:

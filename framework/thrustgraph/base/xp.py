@@ -55,7 +55,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-__all__ = ["ScalarOps", "ArrayOps", "scalar_ops", "array_ops"]
+__all__ = ["ScalarOps", "ArrayOps", "scalar_ops", "array_ops", "hold"]
 
 
 class ScalarOps:
@@ -211,14 +211,45 @@ class ArrayOps:
 
     @staticmethod
     def iterate(carry: Any, test: Callable, step: Callable, n: int) -> tuple[Any, Any]:
-        """As :meth:`ScalarOps.iterate`; leaves when every design stops."""
+        """As :meth:`ScalarOps.iterate`, design by design: a design that stops keeps its carry (the others step
+        on), so its iterates are those it gets alone, whatever designs share the arrays; leaves when every
+        design stops.
+
+        >>> c, _ = array_ops.iterate(np.array([1.0, 5.0]), lambda x: (x >= 4.0, None), lambda x, _: x * 2.0, 10)
+        >>> c.tolist()
+        [4.0, 10.0]
+        """
         aux = None
         for it in range(n):
             stop, aux = test(carry)
-            if it and bool(np.all(stop)):
+            if not it:
+                carry = step(carry, aux)
+                continue
+            stop = np.asarray(stop)
+            if bool(np.all(stop)):
                 break
-            carry = step(carry, aux)
+            new = step(carry, aux)
+            carry = hold(stop, carry, new) if bool(np.any(stop)) else new
         return carry, aux
+
+
+def hold(stop: Any, old: Any, new: Any) -> Any:
+    """``new``, but ``old`` for the designs where ``stop`` holds, leaf by leaf through tuples (named tuples too),
+    lists and dicts; ``None`` and a leaf that did not change stay as they are.
+
+    >>> hold(np.array([True, False]), (np.zeros(2), None), (np.ones(2), None))[0].tolist()
+    [0.0, 1.0]
+    """
+    if new is old or new is None or old is None:
+        return new
+    if isinstance(new, tuple):
+        vals = [hold(stop, a, b) for a, b in zip(old, new)]
+        return type(new)(*vals) if hasattr(new, "_fields") else tuple(vals)
+    if isinstance(new, list):
+        return [hold(stop, a, b) for a, b in zip(old, new)]
+    if isinstance(new, dict):
+        return {k: hold(stop, old[k], v) for k, v in new.items()}
+    return np.where(stop, old, new)
 
 
 scalar_ops = ScalarOps()

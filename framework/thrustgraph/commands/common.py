@@ -16,7 +16,7 @@ from typing import Any
 from ..kinds.displayunits import UnitChoice, parse_units
 from ..base.errors import ModelError
 from ..models.model import Model
-from ..models.modelfile import bundled_models, default_model_path, load_model
+from ..models.modelfile import load_model
 
 __all__ = ["add_model_argument", "add_set_option", "add_out_dir_option", "parse_override", "load_with_overrides",
            "add_units_option", "units_choice"]
@@ -89,17 +89,8 @@ def parse_override(text: str) -> tuple[str, Any]:
     return key, value
 
 
-def resolve_model_path(name: str | None):
-    if name is None:
-        return default_model_path()
-    bundled = bundled_models()
-    if name in bundled and not name.endswith(".toml"):
-        return bundled[name]
-    return name
-
-
 def load_with_overrides(name: str | None, overrides: list[str]) -> Model:
-    model = load_model(resolve_model_path(name))
+    model = load_model(name)      # a path, a bundled scenario's name or None (models.modelfile.model_path)
     for text in overrides:
         key, value = parse_override(text)
         try:

@@ -105,7 +105,7 @@ def alignment_from(args: argparse.Namespace) -> tuple[Any, Trigger | None]:
 def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("model", help="model file (TOML) or the name of a bundled scenario")
     p.add_argument("record", help="measured record: CSV whose headers carry units, e.g. \"time [s],load [lbf]\" "
-                                  "(or a saved result: the CSV or Parquet of thrustgraph export)")
+                                  "(or a saved result: the CSV, JSON or Parquet of thrustgraph export)")
     add_set_option(p)
     add_record_options(p)
     out = p.add_argument_group("output")

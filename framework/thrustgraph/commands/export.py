@@ -4,8 +4,8 @@ The formats, their options (``--NAME FILE``) and what each file holds are
 those of the export registry (:mod:`thrustgraph.outputs.exportformats`). CSV holds
 every signal and every ledger term per output time, with the unit in each
 header and ``#`` lines first naming the tool version, the plugin versions and
-the model hash; JSON the summary, phases, events, audits, cautions and the
-same provenance; Parquet (with pyarrow) the CSV's columns with units in the
+the model hash; JSON the summary, phases, events, audits, cautions, the
+same provenance and the CSV's columns (``series``: name, unit, values); Parquet (with pyarrow) the CSV's columns with units in the
 field metadata and the provenance in the schema metadata.
 """
 

@@ -2,7 +2,7 @@
 
 A run is a model (a file or a bundled scenario's name, flown now), a variant
 of the first model (``--variant "KEY=VALUE; KEY=VALUE"``), a saved result
-(the CSV ``thrustgraph export`` wrote, with its outcomes) or a measured record
+(the CSV, JSON or Parquet ``thrustgraph export`` wrote, with its outcomes) or a measured record
 (a CSV whose headers carry units; ``--map COLUMN=SIGNAL`` says what its
 columns are, as for ``thrustgraph compare``). The first run is the reference
 of the differences. Everything is read and checked before the first flight,
@@ -36,7 +36,7 @@ HELP = SUMMARIES[NAME]
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("runs", nargs="+", metavar="RUN",
-                   help="a model file or bundled scenario (flown), a saved result (the CSV or Parquet of "
+                   help="a model file or bundled scenario (flown), a saved result (the CSV, JSON or Parquet of "
                         "thrustgraph export) or a measured record (CSV with units in its headers); the first is the "
                         "reference")
     add_set_option(p)
@@ -74,8 +74,8 @@ def variant_settings(text: str) -> list[tuple[str, Any]]:
 
 
 def _is_record(name: str) -> bool:
-    """A record or a saved result (read as a record), not a model: a CSV or a Parquet file."""
-    return name.lower().endswith((".csv", ".parquet"))
+    """A record or a saved result (read as a record), not a model: a CSV, JSON or Parquet file."""
+    return name.lower().endswith((".csv", ".json", ".parquet"))
 
 
 def main(args: argparse.Namespace) -> int:

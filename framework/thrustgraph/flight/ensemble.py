@@ -547,13 +547,15 @@ class _Run:
                 self.fate_status[i], self.fate[i] = st, note
 
     def fire_at_once(self, idx: np.ndarray, fresh: bool = False) -> None:
-        """Events already past their zero at a phase start fire at once (as in a single flight). ``fresh``: the
+        """Events already past their zero at a phase start fire at once (as in a single flight), then a lift-off
+        from a pad that the balance already lifts (:meth:`lifts_off_pad`). ``fresh``: the
         start of the flight, whose first phase lasts no time where an event fires at once: a single flight's
         first segment starts in the phase after it, so that phase's acceleration does not count toward the peak."""
         ev = self.ev
         changed = np.zeros(len(idx), dtype=bool)
         for _ in range(50):
             fired = False
+            now = np.zeros(len(idx), dtype=bool)
             for j, (kind, direction, pl) in enumerate(ev.slots):
                 if kind not in ("comp", "trigger", "due"):
                     continue
@@ -563,6 +565,7 @@ class _Run:
                 if np.any(past):
                     sel = idx[past]
                     changed |= past
+                    now |= past
                     if kind == "trigger":
                         self.trigger_met(sel, pl[0])
                     elif kind == "due":
@@ -572,6 +575,13 @@ class _Run:
                     else:
                         self.finish(sel, STATUS_OK, pl[5])
                     fired = True
+            lift = self.lifts_off_pad(idx) & ~now     # once nothing else fires at once (a single flight's order)
+            if np.any(lift):
+                sel = idx[lift]
+                self.kin[sel] = FREE
+                self.exit_speed[sel] = np.sqrt(_rowsum(self.Y[3:6, sel] ** 2))
+                changed |= lift
+                fired = True
             self.capture()
             if not fired:
                 return
@@ -587,6 +597,14 @@ class _Run:
             gi = self.g_all(sub, self.t[idx], self.Y[:, idx], ai, idx)
             for j in range(self.nev):
                 self.gold[j][idx] = gi[j]
+
+    def lifts_off_pad(self, idx: np.ndarray) -> np.ndarray:
+        """Per design of ``idx``: on a pad (a guide of length 0), at rest, and the balance moves it forward (the
+        way it slides, :meth:`set_slide`): it lifts off now, at zero speed, as a single flight's segment start
+        finds (:meth:`thrustgraph.flight.integrate._Flight._lifts_off_pad`)."""
+        v_al, _ = self.along(idx)
+        return (self.live[idx] & (self.kin[idx] == GUIDE) & (self.sysa.guide_length[idx] == 0.0)
+                & (self.slide[idx] > 0.0) & (v_al == 0.0))
 
     def along(self, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Speed along the guide or track and distance along it from the launch point, of designs ``idx``."""

@@ -31,9 +31,10 @@ from ..balance.balance import Balance, Kinematics
 from ..base.errors import IntegrationError, ModelError, PluginError
 from ..base.limits import check_output_samples
 from ..models.model import Model, ParsedModel
+from .denseoutput import Dop853Direct, dense_evaluations
 from ..balance.outcomes import NODE_TERMS, OUTCOMES, STEP_TERMS, kind_outcomes, quadrature_nodes, run_summary
 from .result import Audit, Event, FlightResult, Phase, signal_unit
-from ..balance.sampling import SampleTable, dense_states, join_tables, sample_terms, take_samples
+from ..balance.sampling import RawSamples, SampleTable, dense_states, join_tables, sample_snapshot, sample_terms, take_samples
 from .separation import separate
 from .signallog import signal_events
 from ..models.staging import KINEMATIC_SIGNALS, Trigger, condition, resolve_thresholds
@@ -51,7 +52,8 @@ _KIN = {"held": Kinematics.HELD, "guide": Kinematics.GUIDE, "free": Kinematics.F
 
 
 def fly(model: Model | str | None = None, **overrides: Any) -> FlightResult:
-    """Load (if a path or None for the bundled default), apply ``key.path=value`` overrides, integrate.
+    """Load (a path, a bundled scenario's name such as ``"water-jet-boat"``, or None for the bundled default;
+    :func:`~thrustgraph.models.modelfile.model_path`), apply ``key.path=value`` overrides, integrate.
 
     >>> fly(**{"components.bottle.fill": 0.0}).summary["apogee"] < fly().summary["apogee"]
     True
@@ -335,13 +337,18 @@ class _Flight:
 
     def _begin_segment(self) -> list[tuple[Callable, _Action]] | None:
         """Set the balance to this segment's phase and gather its events. Component events and triggers
-        already past their zero when a segment starts fire at once; None when one of them stops the run."""
+        already past their zero when a segment starts fire at once, and then a lift-off from a pad that the
+        balance already lifts (:meth:`_lifts_off_pad`); None when one of them stops the run."""
         fns, actions = self._set_up()
         for _ in range(50):
             past = [k for k, a in enumerate(actions) if a.kind in ("mode", "stop", "trigger")
                     and fns[k].direction * fns[k](self.t, self.y) > 0.0]
             if not past:
-                break
+                if not self._lifts_off_pad():
+                    break
+                self._on_guide_exit(next(a for a in actions if a.kind == "guide"))
+                fns, actions = self._set_up()
+                continue
             a = actions[past[0]]
             if a.kind == "stop":
                 break
@@ -353,6 +360,17 @@ class _Flight:
                 self.events.append(Event(self.t, a.name, a.component, f"mode -> {a.target} (at once)"))
             fns, actions = self._set_up()
         return list(zip(fns, actions))
+
+    def _lifts_off_pad(self) -> bool:
+        """True on a pad (a guide of length 0) at rest when the balance moves the vehicle forward at the start of
+        the segment (the thrust along the pad already exceeds the weight component and friction: the way it
+        slides, :func:`_set_segment_phase`, is forward): it lifts off at that instant, at zero speed, not when
+        the first step has carried it the pad's 1 nm."""
+        sysm, ph, y = self.state.system, self.ph, self.y
+        if ph.kin != Kinematics.GUIDE or sysm.launch.guide_length != 0.0 or ph.slide <= 0.0:
+            return False
+        u = sysm.guide_dir
+        return float(y[3] * u[0] + y[4] * u[1] + y[5] * u[2]) == 0.0
 
     def _nothing_to_fly(self) -> bool:
         """End the run (True) when nothing pushes: spent on the stand, at rest on a track, or no lift-off."""
@@ -382,19 +400,24 @@ class _Flight:
         sysm, bal, t, y = self.state.system, self.state.bal, self.t, self.y
         label = _label(sysm, self.ph)
         fns = [fn for fn, _ in actions]
+        fun = bal.rhs if self.audit else bal.core
+        # DOP853's dense output (every step's, for the result's samples) calls the right-hand side directly:
+        # inside a step the guard has watched already (flight.denseoutput)
+        direct = self.dense and self.method == "DOP853"
+        how = dict(method=Dop853Direct, direct=fun) if direct else dict(method=self.method)
         try:
             if self.audit:
-                sol = solve_ivp(self.guard.watch(bal.rhs, label, sysm), (t, self.t_end), y, method=self.method,
-                                rtol=self.rtol, atol=self.state.atol, events=fns, dense_output=self.dense)
+                sol = solve_ivp(self.guard.watch(fun, label, sysm), (t, self.t_end), y, rtol=self.rtol,
+                                atol=self.state.atol, events=fns, dense_output=self.dense, **how)
             else:
                 n_phys = sysm.n_states - len(ACCUMULATORS)
                 k = math.sqrt(sysm.n_states / n_phys)
-                sol = solve_ivp(self.guard.watch(bal.core, label, sysm), (t, self.t_end), y[:n_phys],
-                                method=self.method, rtol=self.rtol * k, atol=self.state.atol[:n_phys] * k, events=fns,
-                                dense_output=self.dense)
+                sol = solve_ivp(self.guard.watch(fun, label, sysm), (t, self.t_end), y[:n_phys],
+                                rtol=self.rtol * k, atol=self.state.atol[:n_phys] * k, events=fns,
+                                dense_output=self.dense, **how)
         except (ValueError, ZeroDivisionError, OverflowError) as exc:
             raise IntegrationError(f"integration failed at t = {t:.6g} s in phase {label!r}: {exc}") from None
-        self.segs.nfev += sol.nfev
+        self.segs.nfev += sol.nfev + (dense_evaluations(sol) if direct else 0)
         self.segs.segments.append((self.ph.copy(), sol, bal))
         if self.progress is not None:
             self.progress(float(sol.t[-1]), self.t_end)
@@ -719,20 +742,23 @@ def _sample(segs: Segments, interval: float) -> _Samples:
             out.phases.append(Phase(name, t0, t1))
         grid = np.arange(t0, t1, interval)[1:] if t1 > t0 else np.empty(0)
         grid = grid[grid < t1]   # arange's rounding can put its last point past the end (times would go back)
-        tt = np.union1d(sol.t, grid)
         uniq_t, first = np.unique(sol.t, return_index=True)
-        yy = dense_states(sol, tt) if len(tt) > len(uniq_t) else sol.y[:, first].copy()
-        yy[:, np.searchsorted(tt, uniq_t)] = sol.y[:, first]   # keep the solver's own points exact
-        bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
-        # the impulse's quadrature nodes are evaluated in the same pass as the samples; the solver's steps are
-        # among the samples: the outcomes read both from this pass
-        quad = quadrature_nodes(ph, sol, bal)
+        tt = np.unique(np.concatenate([uniq_t, grid])) if len(grid) else uniq_t
         m = len(tt)
-        if quad is not None:
-            table = sample_terms(bal, np.concatenate([tt, quad[0]]), np.hstack([yy, dense_states(sol, quad[0])]))
-            table = _first_samples(table, m)
+        bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
+        # the impulse's quadrature nodes are evaluated in the same pass as the samples (their states in the same
+        # pass over the dense output); the solver's steps are among the samples: the outcomes read both from it
+        quad = quadrature_nodes(ph, sol, bal)
+        times = tt if quad is None else np.concatenate([tt, quad[0]])
+        yy = dense_states(sol, times) if len(times) > len(uniq_t) else sol.y[:, first].copy()
+        yy[:, np.searchsorted(tt, uniq_t)] = sol.y[:, first]   # keep the solver's own points exact
+        snap = sample_snapshot(bal, times, yy)
+        if snap is not None:
+            table = RawSamples(snap, len(times), m)
         else:
-            table = sample_terms(bal, tt, yy)
+            table = sample_terms(bal, times, yy)
+            table = _first_samples(table, m) if quad is not None else table
+        yy = yy[:, :m]
         out.tables.append(table)
         if table.terms is not None:
             j = len(out.tables) - 1

@@ -31,6 +31,7 @@ from ..base.outputfiles import atomic_write
 from ..kinds.signalunits import SIGNAL_UNITS, STANDARD_KEY_UNITS, TEXT_UNIT, signal_unit
 from ..base.units import Q_
 from ..base.errors import ThrustgraphError
+from ..base.exportnotes import outcome_note, provenance_notes
 
 __all__ = ["Phase", "Event", "Audit", "FlightResult", "SIGNAL_UNITS", "STANDARD_KEY_UNITS", "signal_unit",
            "TEXT_UNIT"]
@@ -232,11 +233,27 @@ class FlightResult:
         return buf.getvalue()
 
     def to_json(self) -> str:
-        """JSON text: summary, phases, events, audit and provenance (no time series).
+        """JSON text: summary, phases, events, audit, cautions and provenance, then the time series.
 
         Each summary entry holds its SI ``value``, its SI ``unit`` and its ``label``, from the outcome registry;
         under units of choice other than SI (:func:`thrustgraph.kinds.displayunits.using`) also ``shown``, the value and
         unit people read.
+
+        ``series`` holds the columns of the CSV export (:meth:`to_csv`), in its order, one object per column on
+        one line: its ``name``, its ``unit`` (SI, or the unit of choice in force, as the CSV header says; ``""``
+        for a pure number, ``"text"`` for the ``phase`` column, the last) and its ``values``, one per output time
+        (a time repeated at a phase boundary as in the CSV; ``null`` where a signal has no value). Strict JSON: a
+        number that is not finite is written as ``null``. :func:`thrustgraph.measured.records.read_record` reads
+        the file back as it reads the CSV export, so ``compare`` and ``overlay`` take it.
+
+        >>> from thrustgraph import fly
+        >>> import json
+        >>> r = fly()
+        >>> doc = json.loads(r.to_json())
+        >>> [c["name"] for c in doc["series"][:2]], doc["series"][0]["unit"], doc["series"][-1]["unit"]
+        (['time', 'acceleration.x'], 's', 'text')
+        >>> doc["series"][0]["values"] == r.t.tolist()
+        True
         """
         doc = {
             "summary": {k: self._summary_entry(k, v) for k, v in self.summary.items()},
@@ -250,7 +267,13 @@ class FlightResult:
             "provenance": self.provenance,
         }
         # Strict JSON: a number that is not finite (an audit left out of a run) is written as null.
-        return json.dumps(_finite(doc), indent=2, allow_nan=False)
+        head = json.dumps(_finite(doc), indent=2, allow_nan=False)
+        columns = [{"name": n, "unit": u, "values": np.asarray(v, dtype=float).tolist()}
+                   for n, u, v in self.shown_columns()]
+        columns.append({"name": "phase", "unit": TEXT_UNIT, "values": [self.phase_at(float(t)) for t in self.t]})
+        # the series last, a column per line: the summary above stays readable
+        lines = ",\n".join("    " + json.dumps(_finite(c), allow_nan=False) for c in columns)
+        return head[:-2] + ',\n  "series": [\n' + lines + "\n  ]\n}\n"
 
     def _summary_entry(self, key: str, value: float) -> dict[str, Any]:
         spec = self.outcome_specs.get(key)
@@ -271,13 +294,7 @@ class FlightResult:
         >>> fly().provenance_lines()[0]
         'thrustgraph 0.1.0'
         """
-        prov = self.provenance or {}
-        plugins = prov.get("plugins", {})
-        lines = [f"thrustgraph {prov.get('thrustgraph', '?')}",
-                 "plugins: " + ("; ".join(f"{k} = {v}" for k, v in plugins.items()) or "(none)"),
-                 f"model: {prov.get('model_name', '?')}",
-                 f"model sha256: {prov.get('model_sha256', '?')}"]
-        return lines
+        return provenance_notes(self.provenance)
 
     def outcome_lines(self) -> list[str]:
         """The summary as lines ``outcome KEY [UNIT] = VALUE`` (SI; ``repr`` of the float, which reads back
@@ -288,7 +305,7 @@ class FlightResult:
         >>> fly().outcome_lines()[0].startswith("outcome flight_time [s] = ")
         True
         """
-        return [f"outcome {k} [{self.unit(k) or '1'}] = {v!r}" for k, v in self.summary.items()]
+        return [outcome_note(k, self.unit(k), v) for k, v in self.summary.items()]
 
     def to_pandas(self):
         """The time series as a pandas DataFrame (optional dependency ``pandas``): index ``time`` (s), every
@@ -302,7 +319,8 @@ class FlightResult:
         atomic_write(path, self.to_csv(provenance=True))
 
     def write_json(self, path: Any) -> None:
-        """Write summary, phases, events, audits, cautions and provenance to a JSON file (atomically)."""
+        """Write summary, phases, events, audits, cautions, provenance and the time series to a JSON file
+        (atomically; :meth:`to_json`)."""
 
         atomic_write(path, self.to_json())
 

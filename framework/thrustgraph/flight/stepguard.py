@@ -114,21 +114,24 @@ class StepGuard:
 
         n_names = len(self.names)
 
+        isfinite = math.isfinite
+
         def rhs(t: float, y: np.ndarray) -> np.ndarray:
-            self.count += 1
+            # called some thousand times a flight: the common path is kept to a few operations
+            self.count = count = self.count + 1
             try:
                 d = fun(t, y)
             except (ValueError, ArithmeticError, RuntimeError) as exc:
                 raise self._failure(t, y, phase, exc) from None
-            if self.count % WINDOW == 0:
+            if count % WINDOW == 0:
                 self._check_pace(t, y, d, phase)
             # the sum of the rates is finite exactly when every rate is (a list's builtin sum is ~20x cheaper
-            # than numpy's for a few dozen floats)
-            total = sum(d[:n_names]) if type(d) is list else float(np.sum(d[:n_names]))
-            if self.bad is None and not math.isfinite(total):
-                self.bad = (t, np.array(y), np.array(d), phase)
-            else:
+            # than numpy's for a few dozen floats); a list no longer than the names needs no slice
+            total = sum(d) if type(d) is list and len(d) <= n_names else float(np.sum(d[:n_names]))
+            if isfinite(total) or self.bad is not None:
                 self.last = (t, y)
+            else:
+                self.bad = (t, np.array(y), np.array(d), phase)
             return d
         return rhs
 

@@ -18,6 +18,13 @@ the same checks: each column's unit comes from its field metadata ``unit``
 ``[text]`` column, and the export's ``#`` lines come from the schema metadata
 ``thrustgraph.notes``.
 
+A JSON file (thrustgraph's JSON export, :meth:`FlightResult.to_json
+<thrustgraph.flight.result.FlightResult.to_json>`) is read through the same
+checks too: each object of its ``series`` is a column (``name``, ``unit``,
+``values``; ``null`` for no value), and its ``provenance`` and ``summary`` give
+the ``#`` lines the CSV export starts with. A JSON file without a ``series``
+(the metrics of ``compare --json``) is refused with one message saying so.
+
 thrustgraph reads its own CSV export the same way (:meth:`FlightResult.to_csv
 <thrustgraph.flight.result.FlightResult.to_csv>`: every header carries its unit, the
 phase is a ``[text]`` column). A file whose first line is the export's
@@ -73,12 +80,13 @@ from typing import Any, Sequence
 import numpy as np
 
 from ..base.errors import ModelError
+from ..base.exportnotes import outcome_note, provenance_notes
 from ..kinds.signalunits import TEXT_UNIT
 from ..base.units import Q_, to_si
 
 __all__ = ["Record", "ColumnMap", "Trigger", "read_record", "loads_record", "parse_header", "resample",
            "lowpass", "shift", "trim", "align", "trigger_time", "crossing_time", "is_even", "MAX_HEADER_CELL",
-           "MIN_SAMPLE_INTERVAL", "EXPORT_MARK"]
+           "MIN_SAMPLE_INTERVAL", "EXPORT_MARK", "is_json"]
 
 #: The longest header cell read, characters: a name and a unit ("bottle pressure [psi]"), not a document.
 MAX_HEADER_CELL = 200
@@ -288,6 +296,9 @@ def read_record(path: str | Path, *, time_column: str = "time") -> Record:
         text = _parquet_text(data, str(path))
         return loads_record(text, source=str(path), time_column=time_column,
                             sha256=hashlib.sha256(data).hexdigest())
+    if is_json(p, data):
+        return loads_record(_json_text(data, str(path)), source=str(path), time_column=time_column,
+                            sha256=hashlib.sha256(data).hexdigest())
     try:
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
@@ -328,6 +339,93 @@ def _parquet_text(data: bytes, source: str) -> str:
         else:
             heads.append(fld.name if unit is None else f"{fld.name} [{unit.decode() or '1'}]")
             columns.append([repr(float("nan") if v is None else float(v)) for v in col.to_pylist()])
+    buf = io.StringIO()
+    buf.writelines(f"# {line}\n" for line in notes)
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(heads)
+    w.writerows(zip(*columns))
+    return buf.getvalue()
+
+
+def is_json(path: str | Path, data: bytes) -> bool:
+    """True for a JSON file: named ``*.json``, or its first character (after a byte-order mark and blanks) opens
+    a JSON object or array, which no CSV header does.
+
+    >>> is_json("run.json", b""), is_json("run.txt", b' {"series": []}'), is_json("log.csv", b"time [s],x [m]")
+    (True, True, False)
+    """
+    return Path(path).suffix.lower() == ".json" or data.lstrip(b"\xef\xbb\xbf \t\r\n")[:1] in (b"{", b"[")
+
+
+def _json_text(data: bytes, source: str) -> str:
+    """A JSON export's time series as the CSV text :func:`loads_record` reads (see
+    :meth:`FlightResult.to_json <thrustgraph.flight.result.FlightResult.to_json>`): a header ``name [unit]`` per
+    object of ``series`` (``[text]`` for a text column) and its values as the ``repr`` of each float (``nan`` for
+    ``null``); its ``provenance`` and ``summary`` become the ``#`` lines the CSV export starts with
+    (:mod:`thrustgraph.base.exportnotes`), so the record and its outcomes are those of the CSV export."""
+    fix = ("give the file thrustgraph export --json wrote (its \"series\" holds the signals), or its CSV or Parquet "
+           "export; a measured record is a CSV whose headers carry units")
+    try:
+        doc = json.loads(data.decode("utf-8-sig"))
+    except UnicodeDecodeError as exc:
+        raise ModelError(source, f"is not UTF-8 text ({exc.reason} at byte {exc.start})", fix) from None
+    except ValueError as exc:
+        raise ModelError(source, f"cannot be read as JSON ({_cut(str(exc))})", fix) from None
+    series = doc.get("series") if isinstance(doc, dict) else None
+    if series is None:
+        what = ("the metrics of thrustgraph compare" if isinstance(doc, dict) and "signals" in doc else
+                "a summary without the signals" if isinstance(doc, dict) and "summary" in doc else
+                "JSON of another shape")
+        raise ModelError(source, f"is a JSON file with no time series (no \"series\" of signals; it holds {what}), "
+                         "so there is nothing to compare or draw", "export the run again, thrustgraph export MODEL "
+                         "--json FILE (the JSON export holds the series), or " + fix.split(", or ", 1)[1])
+    if not isinstance(series, list) or not series:
+        raise ModelError(f"{source}: series", "is not a list of columns", fix)
+    heads, columns, rows = [], [], None
+    for i, col in enumerate(series):
+        where = f"{source}: series[{i}]"
+        ok = (isinstance(col, dict) and isinstance(col.get("name"), str) and isinstance(col.get("unit"), str)
+              and isinstance(col.get("values"), list))
+        if not ok:
+            raise ModelError(where, "is not a column: an object with a \"name\", a \"unit\" and a list of "
+                             "\"values\"", fix)
+        name, unit, values = col["name"], col["unit"], col["values"]
+        where = f"{source}: series[{i}] {_cut(name)!r}"
+        if rows is None:
+            rows = len(values)
+        if len(values) != rows:
+            raise ModelError(where, f"has {len(values)} values but the first column has {rows}",
+                             "give every column one value per time")
+        if unit == TEXT_UNIT:
+            if any(not (v is None or isinstance(v, str)) or (isinstance(v, str) and ("\n" in v or "\r" in v))
+                   for v in values):
+                raise ModelError(where, "is a text column whose values are not all one-line text", fix)
+            columns.append(["" if v is None else v for v in values])
+        else:
+            cells = []
+            for k, v in enumerate(values):
+                if v is None:
+                    cells.append("nan")
+                elif isinstance(v, (int, float)) and not isinstance(v, bool):
+                    cells.append(repr(float(v)))
+                else:
+                    raise ModelError(f"{where}, value {k + 1}", f"{_cut(repr(v))} is not a number",
+                                     "write numbers (null where there is no value); the unit belongs in \"unit\"")
+            columns.append(cells)
+        heads.append(f"{name} [{unit or '1'}]")
+    notes: list[str] = []
+    if isinstance(doc.get("provenance"), dict):          # a thrustgraph export: its notes, as the CSV's # lines
+        notes = provenance_notes(doc["provenance"])
+        summary = doc.get("summary") or {}
+        if not isinstance(summary, dict):
+            raise ModelError(f"{source}: summary", "is not an object of outcomes", fix)
+        for key, entry in summary.items():
+            value = entry.get("value") if isinstance(entry, dict) else None
+            if not (isinstance(entry, dict) and isinstance(entry.get("unit", ""), str) and
+                    (value is None or isinstance(value, (int, float)) and not isinstance(value, bool))):
+                raise ModelError(f"{source}: summary.{_cut(str(key))}", "is not an outcome: an object with a "
+                                 "numeric \"value\" (or null) and its \"unit\"", fix)
+            notes.append(outcome_note(key, entry.get("unit", ""), math.nan if value is None else value))
     buf = io.StringIO()
     buf.writelines(f"# {line}\n" for line in notes)
     w = csv.writer(buf, lineterminator="\n")

@@ -75,7 +75,7 @@ from ..base.outputfiles import atomic_write  # re-exported: where model files we
 
 __all__ = ["FORMAT_NAME", "FORMAT_VERSION", "OLDEST_VERSION", "UPGRADES", "TOP_LEVEL_KEYS", "load_model",
            "loads_model", "save_model", "dumps_model", "check_model", "upgrade_data", "default_model_path",
-           "bundled_models", "atomic_write"]
+           "bundled_models", "model_path", "atomic_write"]
 
 FORMAT_NAME = "thrustgraph-model"
 #: The format version this release writes.
@@ -111,6 +111,27 @@ def bundled_models() -> dict[str, Path]:
 def default_model_path() -> Path:
     """The bundled model run when the user names none."""
     return bundled_models()["bottle-rocket"]
+
+
+def model_path(name: str | os.PathLike[str] | None) -> Path:
+    """The file a model's name stands for, as the command line and :func:`load_model` read it.
+
+    None is the bundled default (:func:`default_model_path`); text that is a bundled scenario's name
+    (``"water-jet-boat"``, a stem of :func:`bundled_models`) is that scenario's file; anything else (text or a
+    path object) is a path, as given. Whether the file exists is :func:`load_model`'s to say.
+
+    >>> model_path("water-jet-boat") == bundled_models()["water-jet-boat"]
+    True
+    >>> model_path("my-rocket.toml"), model_path(None).name
+    (PosixPath('my-rocket.toml'), 'bottle-rocket.toml')
+    """
+    if name is None:
+        return default_model_path()
+    if isinstance(name, str):
+        bundled = bundled_models()
+        if name in bundled:
+            return bundled[name]
+    return Path(name)
 
 
 def loads_model(text: str, *, source: str = "<text>") -> Model:
@@ -153,18 +174,27 @@ def loads_model(text: str, *, source: str = "<text>") -> Model:
         raise exc.located(source) from None
 
 
-def load_model(path: str | os.PathLike[str]) -> Model:
+def load_model(path: str | os.PathLike[str] | None) -> Model:
     """Read a model file (structure checks only; see :func:`check_model`).
 
-    >>> load_model("no/such/file.toml")
+    ``path`` is what the command line takes (:func:`model_path`): a model file's path, a bundled scenario's
+    name, or None for the bundled default.
+
+    >>> load_model("water-jet-boat").name
+    'water-jet boat'
+    >>> load_model("water-jet-bot")    # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...
-    thrustgraph.base.errors.ModelError: no/such/file.toml: no such model file. Fix: check the path, or list the bundled scenarios with 'thrustgraph new --list'.
+    thrustgraph.base.errors.ModelError: water-jet-bot: no such model file, nor a bundled scenario of that name. Fix: did you mean 'water-jet-boat'? A model is named by the path of a model file or a bundled scenario's name: bottle-rocket, cold-gas-free-floater, ..., water-jet-boat (thrustgraph new --list describes them).
     """
-    p = Path(path)
+    p = model_path(path)
     if not p.is_file():
-        raise ModelError(str(p), "no such model file",
-                         "check the path, or list the bundled scenarios with 'thrustgraph new --list'")
+        bundled = list(bundled_models())
+        close = difflib.get_close_matches(p.stem, bundled, n=1)
+        hint = f"did you mean {close[0]!r}? A model is named by" if close else "give"
+        raise ModelError(str(p), "no such model file, nor a bundled scenario of that name",
+                         f"{hint} the path of a model file or a bundled scenario's name: {', '.join(bundled)} "
+                         "(thrustgraph new --list describes them)")
     try:
         text = p.read_bytes().decode("utf-8")
     except UnicodeDecodeError as exc:

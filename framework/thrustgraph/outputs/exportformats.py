@@ -107,9 +107,11 @@ for _fmt in (
                  detail="one row per output time, a header `name [unit]` per column (`[1]` for a pure number), "
                         "`#` provenance lines and the outcomes (`# outcome KEY [UNIT] = VALUE`) first, a "
                         "`phase [text]` column last; `compare` and `overlay` read it back"),
-    ExportFormat("json", "JSON", "the summary, phases, events and audits", FlightResult.to_json,
+    ExportFormat("json", "JSON", "the summary, phases, events and audits, and the time series", FlightResult.to_json,
                  detail="per outcome key: SI `value`, SI `unit` and `label`, from the outcome registry; also the "
-                        "cautions and the provenance"),
+                        "cautions and the provenance; last, `series`: the CSV's columns, one object per line "
+                        "(`name`, `unit`, `values`, `null` where a signal has no value); `compare` and `overlay` "
+                        "read it back"),
     ExportFormat("parquet", "Parquet", "the time series", FlightResult.to_parquet, needs="pyarrow",
                  extra="parquet", detail="the CSV's columns, units in the field metadata, provenance and the outcomes "
                                          "in the schema metadata; `compare` and `overlay` read it back"),

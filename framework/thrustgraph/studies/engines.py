@@ -77,7 +77,7 @@ from ..flight.ensemble import fly_designs
 
 __all__ = ["FlightTask", "ChunkRows", "chunks", "SerialEngine", "ProcessEngine", "DaskEngine", "make_engine",
            "ENGINES", "FLIGHTS", "default_chunk_size", "ENSEMBLE_CHUNK", "STUDY_CLUSTER_CONFIG",
-           "check_scheduler_address", "usable_cores", "idle_cores", "start_method"]
+           "check_scheduler_address", "usable_cores", "idle_cores", "cpu_ticks", "IDLE_WINDOW", "start_method"]
 
 ENGINES = ("serial", "processes", "dask")
 FLIGHTS = ("single", "ensemble")
@@ -233,9 +233,49 @@ def usable_cores() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def idle_cores() -> float:
-    """Cores the rest of the machine leaves idle: the usable cores less the one-minute load average (all of them
-    where the system gives no load average)."""
+#: How long :func:`idle_cores` watches the cores, s (the study's process sleeps meanwhile, so it does not count
+#: itself as a load).
+IDLE_WINDOW = 0.2
+
+
+def cpu_ticks(cpus: Iterable[int]) -> tuple[int, int] | None:
+    """``(idle, total)`` clock ticks of the given cores since boot, from ``/proc/stat`` (idle and waiting for I/O
+    count as idle; stolen time counts as busy); None where the system does not give them."""
+    want = {f"cpu{c}" for c in cpus}
+    idle = total = 0
+    try:
+        with open("/proc/stat", encoding="ascii") as fh:
+            for line in fh:
+                name, _, rest = line.partition(" ")
+                if name in want:
+                    v = [int(f) for f in rest.split()[:8]]
+                    idle += v[3] + v[4]
+                    total += sum(v)
+                    want.discard(name)
+    except (OSError, ValueError, IndexError):
+        return None
+    return None if want or total <= 0 else (idle, total)
+
+
+def idle_cores(window: float = IDLE_WINDOW) -> float:
+    """Cores the rest of the machine leaves idle now: the idle share of this process's usable cores over
+    ``window`` seconds, while this process sleeps (``/proc/stat``); where the system does not give that, the
+    usable cores less the one-minute load average (which counts the study's own process once it has run a while:
+    a second study run after a first would see its own earlier load and keep to one core).
+
+    >>> 0.0 <= idle_cores(0.05) <= usable_cores()
+    True
+    """
+    try:
+        cpus = sorted(os.sched_getaffinity(0))
+    except (AttributeError, OSError):   # pragma: no cover - no affinity
+        cpus = list(range(usable_cores()))
+    a = cpu_ticks(cpus)
+    if a is not None:
+        time.sleep(window)
+        b = cpu_ticks(cpus)
+        if b is not None and b[1] > a[1]:
+            return max(0.0, min(float(len(cpus)), len(cpus) * (b[0] - a[0]) / (b[1] - a[1])))
     try:
         load = os.getloadavg()[0]
     except (AttributeError, OSError):   # pragma: no cover - no load average
