@@ -2,7 +2,7 @@
 the command line (issue 18: "the ensemble at 200x").
 
     python benchmarks/ensemble_speed.py [--designs 10000] [--sample 40] [--repeat 3] [--models NAME ...]
-                                        [--skip-cli]
+                                        [--skip-cli] [--kernel numpy|numba|both]
 
 For each of three bundled vehicles a grid of about ``--designs`` designs is flown
 
@@ -23,6 +23,12 @@ thrustgraph's own single flights (integration only, ``fly_segments(audit=False)`
 a study's loop does). How fast those run against the hand-written model is printed for the two bottle rockets
 (the same loop over the same sampled designs), and the small rocket's ratio is also printed scaled by the bottles'
 figure: an estimate of its ratio against a hand-written model.
+
+``--kernel both`` (the default where numba is installed) flies each ensemble with the integrator's step arithmetic
+in numpy and compiled by numba (:mod:`thrustgraph.flight.stepkernel`; ``THRUSTGRAPH_KERNEL`` for the command line),
+the two alternating within each repeat so that both see the same load, and prints them side by side; the compiled
+loops are compiled (or read from their cache) in the warm-up, and the command line's start-up is measured for each
+kernel (it reads the compiled loops from the cache).
 
 Times are CPU seconds of this process or of the child process (user + system), steadier than the wall clock on the
 shared 2-core machine; the wall clock is printed beside them. Target: every ratio >= 200x. Nothing here is a unit
@@ -49,6 +55,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import handwritten_bottle as hb  # noqa: E402
 
 import thrustgraph as tg  # noqa: E402
+from thrustgraph.flight import stepkernel  # noqa: E402
 from thrustgraph.flight.integrate import fly_segments  # noqa: E402
 from thrustgraph.models.designs import apply, resolve  # noqa: E402
 from thrustgraph.models.model import parse_model  # noqa: E402
@@ -92,13 +99,13 @@ def cpu_children() -> float:
     return r.ru_utime + r.ru_stime
 
 
-def run_cli(model: Path, vary: list[str], table: Path) -> tuple[float, float]:
-    """CPU and wall seconds of one ``thrustgraph study`` in a fresh process."""
+def run_cli(model: Path, vary: list[str], table: Path, kernel: str) -> tuple[float, float]:
+    """CPU and wall seconds of one ``thrustgraph study`` in a fresh process, with the step kernel ``kernel``."""
     exe = Path(sys.executable).with_name("thrustgraph")
     cmd = [str(exe), "study", str(model), "sweep", *sum((["--vary", v] for v in vary), []), "--flights", "ensemble",
            "--engine", "serial", "--quiet", "--table", str(table)]
     c0, t0 = cpu_children(), time.perf_counter()
-    subprocess.run(cmd, check=True, capture_output=True)
+    subprocess.run(cmd, check=True, capture_output=True, env={**os.environ, "THRUSTGRAPH_KERNEL": kernel})
     return cpu_children() - c0, time.perf_counter() - t0
 
 
@@ -109,9 +116,14 @@ def main() -> int:
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--models", nargs="*", default=list(VEHICLES), choices=list(VEHICLES))
     ap.add_argument("--skip-cli", action="store_true")
+    ap.add_argument("--kernel", choices=["numpy", "numba", "both"],
+                    default="both" if stepkernel.AVAILABLE else "numpy",
+                    help="the ensemble's step arithmetic: numpy, compiled by numba, or both side by side")
     args = ap.parse_args()
+    kernels = ["numpy", "numba"] if args.kernel == "both" else [args.kernel]
     folder = Path(tg.default_model_path()).parent
-    print(f"{os.cpu_count()} cores, load average {os.getloadavg()[0]:.2f}; CPU times (wall clock in brackets)")
+    print(f"{os.cpu_count()} cores, load average {os.getloadavg()[0]:.2f}; CPU times (wall clock in brackets); "
+          f"kernels: {', '.join(kernels)}")
     summary = []
     single_over_hand: list[float] = []
     for name in args.models:
@@ -125,17 +137,32 @@ def main() -> int:
         print(f"\n{name}: {n} designs, {' x '.join(str(k) for _ in axes)} grid over "
               f"{', '.join(p for p, *_ in axes)}")
 
-        # 1. in process ------------------------------------------------------------------------------------------
-        evaluate(model, params, x[:100], parsed=parsed, engine="serial", flights="ensemble", quiet=True)
-        cpu, wall = [], []
+        # 1. in process, the kernels alternating -----------------------------------------------------------------
+        cpu = {kern: [] for kern in kernels}
+        wall = {kern: [] for kern in kernels}
+        tables = {}
+        for kern in kernels:
+            stepkernel.use(kern)
+            evaluate(model, params, x[:100], parsed=parsed, engine="serial", flights="ensemble", quiet=True)
         for _ in range(args.repeat):
-            c0, t0 = time.process_time(), time.perf_counter()
-            table = evaluate(model, params, x, parsed=parsed, engine="serial", flights="ensemble", quiet=True)
-            cpu.append(time.process_time() - c0)
-            wall.append(time.perf_counter() - t0)
-        per_ens = statistics.median(cpu) / n
-        print(f"  ensemble in process      : {per_ens * 1e6:7.1f} us a design ({statistics.median(cpu):.3f} s for "
-              f"{n}, {int(table.ok.sum())} flew; [{statistics.median(wall) / n * 1e6:.1f} us])")
+            for kern in kernels:
+                stepkernel.use(kern)
+                c0, t0 = time.process_time(), time.perf_counter()
+                tables[kern] = evaluate(model, params, x, parsed=parsed, engine="serial", flights="ensemble",
+                                        quiet=True)
+                cpu[kern].append(time.process_time() - c0)
+                wall[kern].append(time.perf_counter() - t0)
+        stepkernel.use()
+        per_ens = {kern: statistics.median(cpu[kern]) / n for kern in kernels}
+        for kern in kernels:
+            print(f"  ensemble in process, {kern:5s}: {per_ens[kern] * 1e6:7.1f} us a design "
+                  f"({statistics.median(cpu[kern]):.3f} s for {n}, {int(tables[kern].ok.sum())} flew; "
+                  f"[{statistics.median(wall[kern]) / n * 1e6:.1f} us])")
+        if len(kernels) == 2:
+            same = np.array_equal(tables["numpy"].values, tables["numba"].values, equal_nan=True)
+            print(f"  the two kernels' outcomes are {'equal bit for bit' if same else 'NOT EQUAL'}; numba "
+                  f"{per_ens['numpy'] / per_ens['numba']:.2f}x as fast")
+        table = tables[kernels[-1]]
 
         # the loop, on a sample of the same designs ---------------------------------------------------------------
         pick = np.linspace(0, n - 1, min(args.sample, n)).astype(int)
@@ -167,53 +194,62 @@ def main() -> int:
             print(f"  thrustgraph single flight: {per_single * 1e3:7.3f} ms a design ({len(pick)} sampled designs, "
                   f"integration only; [{per_single_w * 1e3:.3f} ms]); no hand-written model of this vehicle here")
         print(f"  ensemble against single flights: apogee within {ens_err:.1e}")
-        r_in = per_ref / per_ens
-        print(f"  RATIO in process         : {r_in:7.1f}x against the {ref} (target >= 200x)")
+        r_in = {kern: per_ref / per_ens[kern] for kern in kernels}
+        for kern in kernels:
+            print(f"  RATIO in process, {kern:5s}  : {r_in[kern]:7.1f}x against the {ref} (target >= 200x)")
         if hand is not None:
             single_over_hand.append(per_single / per_ref)
         elif single_over_hand:
             f = statistics.mean(single_over_hand)
             print(f"  (estimate against a hand-written model, single flights taken at {f:.2f}x one as for the "
-                  f"bottle rockets: {r_in / f:.1f}x)")
-        row = [name, per_ens, per_ref, r_in, None, None]
+                  f"bottle rockets: {', '.join(f'{kern} {r_in[kern] / f:.1f}x' for kern in kernels)})")
+        rows = {kern: [per_ens[kern], r_in[kern], None, None] for kern in kernels}
 
-        # 2. the command line -------------------------------------------------------------------------------------
+        # 2. the command line, the kernels alternating -------------------------------------------------------------
         if not args.skip_cli:
             vary_all = [f"{p}={text} in {k}" for p, _, _, text in axes]
             one = [f"{p}={text.split('..')[0]}" for p, _, _, text in axes]       # the grid's first design
             with tempfile.TemporaryDirectory() as tmp:
                 out = Path(tmp) / "sweep.csv"
-                run_cli(path, one, out)                      # warm the file system and the byte-code caches
-                big, small = [], []
+                big = {kern: [] for kern in kernels}
+                small = {kern: [] for kern in kernels}
+                for kern in kernels:
+                    run_cli(path, one, out, kern)        # warm the file system, byte-code and compiled caches
                 for _ in range(args.repeat):
-                    small.append(run_cli(path, one, out))
-                    big.append(run_cli(path, vary_all, out))
-                rows = sum(1 for line in out.read_text().splitlines() if line and not line.startswith("#")) - 1
-            cb, wb = statistics.median(c for c, _ in big), statistics.median(w for _, w in big)
-            cs, ws = statistics.median(c for c, _ in small), statistics.median(w for _, w in small)
+                    for kern in kernels:
+                        small[kern].append(run_cli(path, one, out, kern))
+                        big[kern].append(run_cli(path, vary_all, out, kern))
+                written = sum(1 for line in out.read_text().splitlines() if line and not line.startswith("#")) - 1
             # the start-up: the one-design command less what flying its one design takes in process (an
             # ensemble's fixed cost, its steps' Python work, belongs to the study, not to the start-up)
-            one_cpu, one_wall = [], []
-            for _ in range(args.repeat):
-                c0, t0 = time.process_time(), time.perf_counter()
-                evaluate(model, params, x[:1], parsed=parsed, engine="serial", flights="ensemble", quiet=True)
-                one_cpu.append(time.process_time() - c0)
-                one_wall.append(time.perf_counter() - t0)
-            start, start_w = cs - statistics.median(one_cpu), ws - statistics.median(one_wall)
-            per_cli = (cb - start) / n
-            r_cli = per_ref / per_cli
-            print(f"  command line             : {cb:.2f} s for {n} designs ({rows} rows written), start-up "
-                  f"{start:.2f} s (one design: {cs:.2f} s, less {statistics.median(one_cpu):.3f} s flying it in "
-                  f"process); {per_cli * 1e6:.1f} us a design [{(wb - start_w) / n * 1e6:.1f} us]")
-            print(f"  RATIO through the CLI    : {r_cli:7.1f}x against the {ref} (target >= 200x)")
-            row[4:] = [per_cli, r_cli]
-        summary.append(row)
+            for kern in kernels:
+                stepkernel.use(kern)
+                one_cpu, one_wall = [], []
+                for _ in range(args.repeat):
+                    c0, t0 = time.process_time(), time.perf_counter()
+                    evaluate(model, params, x[:1], parsed=parsed, engine="serial", flights="ensemble", quiet=True)
+                    one_cpu.append(time.process_time() - c0)
+                    one_wall.append(time.perf_counter() - t0)
+                cb, wb = statistics.median(c for c, _ in big[kern]), statistics.median(w for _, w in big[kern])
+                cs, ws = statistics.median(c for c, _ in small[kern]), statistics.median(w for _, w in small[kern])
+                start, start_w = cs - statistics.median(one_cpu), ws - statistics.median(one_wall)
+                per_cli = (cb - start) / n
+                r_cli = per_ref / per_cli
+                print(f"  command line, {kern:5s}      : {cb:.2f} s for {n} designs ({written} rows written), "
+                      f"start-up {start:.2f} s (one design: {cs:.2f} s, less {statistics.median(one_cpu):.3f} s "
+                      f"flying it in process); {per_cli * 1e6:.1f} us a design [{(wb - start_w) / n * 1e6:.1f} us]")
+                print(f"  RATIO through the CLI, {kern:5s}: {r_cli:7.1f}x against the {ref} (target >= 200x)")
+                rows[kern][2:] = [per_cli, r_cli]
+            stepkernel.use()
+        for kern in kernels:
+            summary.append([name, kern, *rows[kern], per_ref])
 
     print("\nsummary (us a design; ratios against the reference loop)")
-    print(f"  {'vehicle':34s} {'in process':>10s} {'ratio':>7s} {'CLI':>8s} {'ratio':>7s} {'reference ms':>12s}")
-    for name, pe, pr, ri, pc, rc in summary:
+    print(f"  {'vehicle':34s} {'kernel':6s} {'in process':>10s} {'ratio':>7s} {'CLI':>8s} {'ratio':>7s} "
+          f"{'reference ms':>12s}")
+    for name, kern, pe, ri, pc, rc, pr in summary:
         cli = f"{pc * 1e6:8.1f} {rc:6.1f}x" if pc is not None else f"{'-':>8s} {'-':>7s}"
-        print(f"  {name:34s} {pe * 1e6:10.1f} {ri:6.1f}x {cli} {pr * 1e3:12.3f}")
+        print(f"  {name:34s} {kern:6s} {pe * 1e6:10.1f} {ri:6.1f}x {cli} {pr * 1e3:12.3f}")
     return 0
 
 

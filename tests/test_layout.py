@@ -32,7 +32,7 @@ LAYERS: dict[str, tuple[str, ...]] = {
         'balance.arrayops', 'balance.sampling', 'balance.outcomes'),
     'models': ('models', 'models.plugins', 'models.staging', 'models.model', 'models.modelfile', 'models.designs'),
     'flight': ('flight', 'flight.assembly', 'flight.separation', 'flight.stepguard', 'flight.denseoutput', 'flight.integrate',
-        'flight.result', 'flight.signallog', 'flight.arraysystem', 'flight.ensemble'),
+        'flight.result', 'flight.signallog', 'flight.arraysystem', 'flight.stepkernel', 'flight.ensemble'),
     'outputs': ('outputs', 'outputs.exportformats', 'outputs.plotkinds', 'outputs.plots', 'outputs.studyplots',
         'outputs.report', 'outputs.overlayplots'),
     'measured': ('measured', 'measured.records', 'measured.compare', 'measured.calibrate', 'measured.overlay'),

@@ -20,7 +20,7 @@ import thrustgraph
 from conftest import HANG_GUARD
 
 #: Libraries that take a noticeable part of a second to import.
-HEAVY = ("numpy", "scipy", "pint", "networkx", "pluggy", "matplotlib", "dask", "pyarrow")
+HEAVY = ("numpy", "scipy", "pint", "networkx", "pluggy", "matplotlib", "dask", "pyarrow", "numba")
 
 
 def fresh(code: str) -> object:
@@ -67,7 +67,7 @@ def test_check_imports_no_optimiser_integrator_or_plotting():
     loaded = imported_by(["check"])
     assert "pint" in loaded and "thrustgraph.commands.check" in loaded     # what it needs, it has
     for name in ("scipy.optimize", "scipy.integrate", "matplotlib", "thrustgraph.flight.integrate",
-                 "thrustgraph.commands.run", "thrustgraph.studies.studies"):
+                 "thrustgraph.commands.run", "thrustgraph.studies.studies", "numba"):
         assert name not in loaded, name
 
 

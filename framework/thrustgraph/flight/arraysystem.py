@@ -40,6 +40,7 @@ from ..base.xp import array_ops
 from ..kinds.component import Ambient
 from ..models.designs import DesignParameter, with_values
 from ..models.model import ParsedModel
+from .stepkernel import phase_code
 
 __all__ = ["ArraySystem", "Phase", "PhaseGroups", "unsupported", "IMPULSE", "HELD", "GUIDE", "FREE", "TRACK"]
 
@@ -516,12 +517,10 @@ class PhaseGroups:
         n = sysa.n
         if n == 0 or not sysa.grouped:
             return None
-        code = kin.astype(np.int64) * 3 + (np.sign(slide) + 1.0).astype(np.int64)     # slide: -1, 0, +1
-        for k in range(len(modes)):
-            code = code * 64 + modes[k]
-        if int(code.min()) == int(code.max()):
+        code, uniform, same = phase_code(kin, slide, modes, self._code if self._sysa is sysa else None)
+        if uniform:
             return None
-        if self._sysa is not sysa or self._code is None or not np.array_equal(code, self._code):
+        if not same:
             old = {} if self._sysa is not sysa else {int(c): (rows, sub) for c, (rows, sub) in
                                                       zip(self._keys, self._groups)}
             order = np.argsort(code, kind="stable")
@@ -552,14 +551,16 @@ class PhaseGroups:
 
     def rhs(self, sysa: ArraySystem, t: np.ndarray, Y: np.ndarray, modes: np.ndarray, kin: np.ndarray,
             slide: np.ndarray, out: np.ndarray | None = None, aux: bool = True,
-            phase: "Phase | None" = None, drives: bool = True) -> tuple[np.ndarray, dict | None]:
+            phase: "Phase | None" = None, drives: bool = True, groups: Any = "split") -> tuple[np.ndarray, dict | None]:
         """:meth:`ArraySystem.rhs` of ``sysa``, evaluated group by group when the designs' phases differ; the
         auxiliary outputs are gathered per design (``phase`` the phase of all the designs). A drive some groups
         do not evaluate (their lines pass nothing and no event of theirs reads it) is evaluated for them
         (:meth:`ArraySystem.drives`), as a batch in mixed phases gives it for every design; ``drives=False``
         leaves it 0 there, as the ensemble's events read a drive that is not evaluated (only the designs whose
-        events read it need it)."""
-        groups = self.split(sysa, modes, kin, slide)
+        events read it need it). ``groups``: what :meth:`split` returned for these phases (the stages of a step
+        share them: split once), else they are split here."""
+        if isinstance(groups, str):
+            groups = self.split(sysa, modes, kin, slide)
         if groups is None:
             return sysa.evaluate(t, Y, sysa.phase(modes, kin, slide) if phase is None else phase, out, aux)
         n = sysa.n
@@ -568,8 +569,11 @@ class PhaseGroups:
         t = np.broadcast_to(np.asarray(t, dtype=float), (n,))
         auxes = []
         for rows, sub, ph in groups:
-            d, a = sub.rhs(t[rows], Y[:, rows], modes[:, rows], kin[rows], phase=ph, aux=aux, slide=slide[rows])
-            out[:, rows] = d
+            # take and a scatter row by row: 4-7 times faster than Y[:, rows] and out[:, rows] = d (measured)
+            d, a = sub.rhs(t[rows], Y.take(rows, axis=1), modes.take(rows, axis=1), kin[rows], phase=ph, aux=aux,
+                           slide=slide[rows])
+            for k in range(len(out)):
+                out[k][rows] = d[k]
             auxes.append(a)
         if not aux:
             return out, None

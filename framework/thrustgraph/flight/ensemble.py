@@ -76,6 +76,8 @@ from ..kinds.component import ComponentKind
 from .separation import carry, stage_models
 from ..models.staging import Trigger, condition, resolve_thresholds
 from ..base.xp import array_ops
+from . import stepkernel
+from .stepkernel import DOPRI_A, DOPRI_B, DOPRI_C, DOPRI_E, DOPRI_P, illinois as _illinois, rowsum as _rowsum
 
 __all__ = ["fly_designs", "EnsembleResult", "unsupported", "COMPUTED", "DOPRI_C", "DOPRI_A", "DOPRI_B", "DOPRI_E",
            "DOPRI_P"]
@@ -89,30 +91,6 @@ COMPUTED = ("apogee", "range", "impact_x", "impact_y", "flight_time", "run_time"
 #: the fate of a design that separated a stage: it flies on as the next vehicle
 _SEPARATED = "separated"
 
-# Dormand-Prince 5(4) (scipy RK45's arrays).
-DOPRI_C = np.array([0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1])
-DOPRI_A = np.array([
-    [0, 0, 0, 0, 0],
-    [1 / 5, 0, 0, 0, 0],
-    [3 / 40, 9 / 40, 0, 0, 0],
-    [44 / 45, -56 / 15, 32 / 9, 0, 0],
-    [19372 / 6561, -25360 / 2187, 64448 / 6561, -212 / 729, 0],
-    [9017 / 3168, -355 / 33, 46732 / 5247, 49 / 176, -5103 / 18656]])
-DOPRI_B = np.array([35 / 384, 0, 500 / 1113, 125 / 192, -2187 / 6784, 11 / 84])
-DOPRI_E = np.array([-71 / 57600, 0, 71 / 16695, -71 / 1920, 17253 / 339200, -22 / 525, 1 / 40])
-DOPRI_P = np.array([
-    [1, -8048581381 / 2820520608, 8663915743 / 2820520608, -12715105075 / 11282082432],
-    [0, 0, 0, 0],
-    [0, 131558114200 / 32700410799, -68118460800 / 10900136933, 87487479700 / 32700410799],
-    [0, -1754552775 / 470086768, 14199869525 / 1410260304, -10690763975 / 1880347072],
-    [0, 127303824393 / 49829197408, -318862633887 / 49829197408, 701980252875 / 199316789632],
-    [0, -282668133 / 205662961, 2019193451 / 616988883, -1453857185 / 822651844],
-    [0, 40617522 / 29380423, -110615467 / 29380423, 69997945 / 29380423]])
-_SAFETY, _MIN_FACTOR, _MAX_FACTOR, _EXPONENT = 0.9, 0.2, 10.0, -1.0 / 5.0
-# the jerk times the step at the start (theta = 0) and end (theta = 1) of a step, from the dense output's
-# velocity v0 + h (q0 theta + q1 theta^2 + q2 theta^3 + q3 theta^4), q_k = sum_s DOPRI_P[s, k] K_s:
-# h da/dt = 2 q1 + 6 q2 theta + 12 q3 theta^2
-_JERK_ENDS = np.column_stack([2.0 * DOPRI_P[:, 1], 2.0 * DOPRI_P[:, 1] + 6.0 * DOPRI_P[:, 2] + 12.0 * DOPRI_P[:, 3]])
 _EPS = np.finfo(float).eps
 
 
@@ -218,15 +196,6 @@ class _Events:
         return Y[2].copy()
 
 
-def _rowsum(x: np.ndarray) -> np.ndarray:
-    """Sum over the first axis, row after row: the same rounding for every design whatever the array's size
-    (numpy's own reduction sums a contiguous axis pairwise, so a one-design array would round differently)."""
-    acc = x[0].copy()
-    for r in range(1, len(x)):
-        acc += x[r]
-    return acc
-
-
 def _norm(x: np.ndarray) -> np.ndarray:
     """RMS over the states (first axis), per design."""
     return np.sqrt(_rowsum(x * x) / len(x))
@@ -236,38 +205,6 @@ def _dense(Y0: np.ndarray, h: np.ndarray, Q: np.ndarray, theta: np.ndarray) -> n
     """State on the step's dense output at fraction ``theta`` (per design)."""
     th = theta   # Horner's rule: no powers (a float power costs 5-30 times a multiplication here)
     return Y0 + h * (th * (Q[:, 0] + th * (Q[:, 1] + th * (Q[:, 2] + th * Q[:, 3]))))
-
-
-def _norm_max(C: np.ndarray, hi: np.ndarray, iters: int = 5) -> np.ndarray:
-    """Largest |P(theta)| on [0, hi] per design, for the vector polynomial P(theta) = sum_k C[:, k] theta^k
-    (C of shape (3, degree + 1, m)) whose square rises at 0 and falls at hi, so that it has an interior
-    maximum: Newton on the root of P . P' from the regula-falsi point of the ends, iterates kept in [0, hi];
-    returns the largest |P| met (each is a lower bound of the maximum; Newton converges quadratically, so
-    the last is the maximum to rounding)."""
-    deg = C.shape[1] - 1
-
-    def parts(th):
-        p, d1, d2 = C[:, deg], 0.0, 0.0
-        for k in range(deg - 1, -1, -1):       # Horner's rule with the first two derivatives
-            d2 = d2 * th + 2.0 * d1
-            d1 = d1 * th + p
-            p = p * th + C[:, k]
-        return p, d1, d2
-
-    p0, d0, _ = parts(np.zeros_like(hi))
-    p1, d1, _ = parts(hi)
-    phi0, phi1 = _rowsum(p0 * d0), _rowsum(p1 * d1)
-    den = phi0 - phi1
-    th = np.clip(hi * phi0 / np.where(den > 0.0, den, 1.0), 0.0, hi)
-    best = np.zeros_like(hi)
-    for _ in range(iters):
-        p, d1, d2 = parts(th)
-        best = np.maximum(best, _rowsum(p * p))
-        dphi = _rowsum(d1 * d1 + p * d2)
-        step = _rowsum(p * d1) / np.where(dphi < 0.0, dphi, -1.0)
-        th = np.clip(th - np.where(dphi < 0.0, step, 0.0), 0.0, hi)
-    p, _, _ = parts(th)
-    return np.sqrt(np.maximum(best, _rowsum(p * p)))
 
 
 def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray, status: list[str],
@@ -321,30 +258,17 @@ def _screen_launch_speed(parsed: ParsedModel, params: Sequence[DesignParameter],
 
 
 class _Buffers:
-    """Preallocated stage arrays, so the 2-D stage combinations make no temporaries."""
+    """Preallocated stage arrays, so the stage combinations make no temporaries."""
 
     def __init__(self, ns: int, n: int, nctrl: int) -> None:
         self.K = np.empty((7, ns, n))
-        self.Kf = self.K.reshape(7, ns * n)
-        # the step-control rows of every stage (each stage's first nctrl rows are contiguous): a view
-        self.Kc = self.K[:, :nctrl, :].reshape(7, nctrl * n)
-        assert np.shares_memory(self.Kc, self.K)
         self.Ys = np.empty((ns, n))
         self.Yn = np.empty((ns, n))
+        # the numpy kernel's scratch arrays for the error norm (every row controls the step)
+        assert nctrl == ns
         self.err = np.empty((nctrl, n))
         self.tmp = np.empty((nctrl, n))
         self.tmp2 = np.empty((nctrl, n))
-
-    def combine(self, coeffs: np.ndarray, m: int, h: np.ndarray, Y: np.ndarray, out: np.ndarray) -> np.ndarray:
-        """out = Y + h * sum_j coeffs[j] K[j] over the first m stages.
-
-        einsum, not BLAS: a threaded BLAS on a busy 2-core machine made this 100x slower (measured).
-        """
-        assert out.flags.c_contiguous   # else reshape would copy and the sum would be lost
-        np.einsum("s,sk->k", coeffs[:m], self.Kf[:m], out=out.reshape(-1))
-        out *= h
-        out += Y
-        return out
 
 
 def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray,
@@ -364,6 +288,7 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
     progress : called now and then with the number of designs finished (flown or screened)
     """
     t_start = time.perf_counter()
+    stepkernel.ready()
     why = unsupported(parsed)
     if why:
         raise ModelError("ensemble", f"the vectorised ensemble cannot fly this model: {why}",
@@ -484,6 +409,8 @@ class _Run:
         n = self.n = sysa.n
         self.gid = gid.copy()
         self.ns = ns = len(sysa.state_names)
+        # the kernel's event arrays of a step that no event cuts
+        self._no_event = (np.empty((ns, 0)), np.empty((ns, 0)), np.empty(0), np.empty((ns, 4, 0)))
         # every row controls the step, the impulse quadrature (last row) too: where the thrust changes with time
         # at constant states (a hose feed's pressure ramp on a platform at rest) the states alone let the steps
         # grow to tens of seconds and the impulse was 8e-4 short (a hover rig through a 126 s ramp)
@@ -840,34 +767,19 @@ class _Run:
         K[0] = F
         ph = sysa.phase(modes, kin, self.slide)          # the stages share the phase
         groups = self.groups        # designs in different phases: evaluated phase by phase
+        split = groups.split(sysa, modes, kin, self.slide)      # once: the stages share the phases
         for st in range(1, 6):
-            Ys = buf.combine(DOPRI_A[st], st, hh, Y, buf.Ys)
-            groups.rhs(sysa, t + DOPRI_C[st] * hh, Ys, modes, kin, self.slide, out=K[st], aux=False, phase=ph)
-        Yn = buf.combine(DOPRI_B, 6, hh, Y, buf.Yn)
-        _, aux_n = groups.rhs(sysa, t + hh, Yn, modes, kin, self.slide, out=K[6], phase=ph, drives=False)
+            Ys = stepkernel.combine(DOPRI_A[st], st, hh, Y, K, buf.Ys)
+            groups.rhs(sysa, t + DOPRI_C[st] * hh, Ys, modes, kin, self.slide, out=K[st], aux=False, phase=ph,
+                       groups=split)
+        Yn = stepkernel.combine(DOPRI_B, 6, hh, Y, K, buf.Yn)
+        _, aux_n = groups.rhs(sysa, t + hh, Yn, modes, kin, self.slide, out=K[6], phase=ph, drives=False,
+                              groups=split)
         self.calls += 6
-        # the error norm over the step-control rows (every row)
-        nc = self.nctrl
-        err = buf.err
-        np.einsum("s,sk->k", DOPRI_E, buf.Kc, out=err.reshape(-1))
-        err *= hh
-        tmp = buf.tmp
-        np.abs(Y[:nc], out=tmp)
-        np.maximum(tmp, np.abs(Yn[:nc], out=buf.tmp2), out=tmp)
-        tmp *= self.rtol
-        tmp += self.atol
-        err /= tmp
-        err *= err
-        en = np.sqrt(_rowsum(err) / nc)
-        en = np.where(np.isfinite(en), en, np.inf)
+        # the error norm over the step-control rows (every row), the steps accepted or rejected, the next steps
+        en = stepkernel.error_norm(K, hh, Y, Yn, self.rtol, self.atol, buf.err, buf.tmp, buf.tmp2)
         self.steps_taken[self.gid[live]] += 1
-        acc = live & (en < 1.0)
-        rej = live & ~acc
-        fac = _SAFETY * en ** _EXPONENT
-        fac_acc = np.where(en == 0.0, _MAX_FACTOR, np.minimum(_MAX_FACTOR, fac))
-        fac_acc = np.where(self.rejected, np.minimum(1.0, fac_acc), fac_acc)
-        h_next = np.where(acc, hh * fac_acc, np.where(rej, hh * np.maximum(_MIN_FACTOR, fac), self.h))
-        self.rejected = np.where(acc, False, np.where(rej, True, self.rejected))
+        acc, rej, h_next, self.rejected = stepkernel.step_control(en, hh, self.h, live, self.rejected)
         # screening: step budget, collapsed steps, singular head coupling
         budget = live & (self.steps_taken[self.gid] > self.max_steps)
         self.finish(np.flatnonzero(budget), STATUS_SCREENED,
@@ -1035,50 +947,35 @@ class _Run:
     def track(self, acc, th_end, Y, F, K, Yn, aux_n, hh, evi, event, sub_e) -> None:
         """Running maxima (speed, acceleration, altitude, vessel pressure) and burn time over accepted steps.
 
-        Works on whole arrays (masks, not gathers): most designs are accepted at most steps.
+        The kernel (:func:`thrustgraph.flight.stepkernel.maxima`) updates the maxima at the steps' ends and finds
+        the steps with a maximum inside; those few are located here on the dense output.
         """
         sysa, n = self.sysa, self.n
-        v0x, v0y, v0z = Y[3], Y[4], Y[5]
-        a0x, a0y, a0z = F[3], F[4], F[5]
+        an = np.ascontiguousarray(np.broadcast_to(np.asarray(aux_n["accel"], dtype=float), (n,)))
+        ev_pos = np.full(n, -1, dtype=np.intp)
         if evi is not None:
-            v1, a1 = Yn[3:6].copy(), K[6][3:6].copy()
-            an = np.broadcast_to(np.asarray(aux_n["accel"], dtype=float), (n,)).copy()
-            z1 = Yn[2].copy()
-            Ye, Fe, aux_e, _ = event
-            v1[:, evi] = Ye[3:6]
-            a1[:, evi] = Fe[3:6]
-            an[evi] = np.broadcast_to(np.asarray(aux_e["accel"], dtype=float), (len(evi),))
-            z1[evi] = Ye[2]
+            Ye, Fe, aux_e, Qe = event
+            ev_pos[evi] = np.arange(len(evi))
+            ane = np.ascontiguousarray(np.broadcast_to(np.asarray(aux_e["accel"], dtype=float), (len(evi),)))
+            Ye, Fe, Qe = np.ascontiguousarray(Ye), np.ascontiguousarray(Fe), np.ascontiguousarray(Qe)
         else:
-            v1, a1, an, z1 = Yn[3:6], K[6][3:6], np.asarray(aux_n["accel"], dtype=float), Yn[2]
-        v1x, v1y, v1z = v1
-        a1x, a1y, a1z = a1
-        np.maximum(self.vmax, np.sqrt(v1x * v1x + v1y * v1y + v1z * v1z), out=self.vmax, where=acc)
-        np.maximum(self.amax, an, out=self.amax, where=acc)
-        np.maximum(self.zmax, z1, out=self.zmax, where=acc)
+            Ye, Fe, ane, Qe = self._no_event
+        prop = sysa.propulsive(self.modes)
+        zin, inner, ainner = stepkernel.maxima(acc, Y, F, K, Yn, an, ev_pos, Ye, Fe, ane, Qe, th_end, hh, prop,
+                                               self.vmax, self.amax, self.zmax, self.burn)
+        te = th_end
         # a height maximum inside the step (a hovering rig's bobbing after the first apogee): v_z goes from + to
         # -; located on the dense output as the apogee event is
-        zin = acc & (v0z > 0.0) & (v1z < 0.0)
         if np.any(zin):
             rows = np.flatnonzero(zin)
             q = np.einsum("sp,snm->pnm", DOPRI_P, K[:, 2:6:3, rows]).transpose(1, 0, 2)     # (z, v_z), 4, m
             te_r, h_r, Y0 = th_end[rows], hh[rows], Y[2:6:3, rows]
-            phi = _illinois(lambda f: _dense(Y0[1:2], h_r, q[1:2], f * te_r)[0], v0z[rows], v1z[rows],
-                            self.t[rows], h_r)
+            v1z = Yn[5, rows]
+            at_ev = ev_pos[rows] >= 0
+            v1z[at_ev] = Ye[5, ev_pos[rows][at_ev]]
+            phi = stepkernel.illinois_row(Y0[1], h_r, np.ascontiguousarray(q[1]), te_r, Y[5, rows], v1z,
+                                          self.t[rows])
             self.zmax[rows] = np.maximum(self.zmax[rows], _dense(Y0[0:1], h_r, q[0:1], phi * te_r)[0])
-        # a speed maximum inside the step: v . a goes from + to -
-        inner = acc & (v0x * a0x + v0y * a0y + v0z * a0z > 0.0) & (v1x * a1x + v1y * a1y + v1z * a1z < 0.0)
-        # an acceleration maximum inside the step: the dense output's rate of |a| goes from + to -; the jerk
-        # times the step (its sign is all the test needs) at both ends of whole steps in one pass over the stages
-        kv = K[:, 3:6, :].reshape(7, 3 * n)           # a view: each stage's velocity rows are contiguous
-        jh = np.einsum("sp,sk->pk", _JERK_ENDS, kv).reshape(2, 3, n)
-        j0, j1 = jh[0], jh[1]
-        if evi is not None:          # steps cut at an event (the designs evi) end at theta < 1
-            Qe = event[3][3:6]       # their dense-output coefficients, velocity rows
-            tc = th_end[evi]
-            j1[:, evi] = 2.0 * Qe[:, 1] + 6.0 * Qe[:, 2] * tc + 12.0 * Qe[:, 3] * tc * tc
-        te = th_end
-        ainner = acc & (a0x * j0[0] + a0y * j0[1] + a0z * j0[2] > 0.0) & (a1x * j1[0] + a1y * j1[1] + a1z * j1[2] < 0.0)
         if np.any(inner) or np.any(ainner):
             rows = np.flatnonzero(inner | ainner)
             q = np.einsum("sp,snm->pnm", DOPRI_P[:, 1:4], K[:, 3:6, rows])
@@ -1091,16 +988,14 @@ class _Run:
                 Qs, hv = Qv[:, :, sel], hh[rows[sel]]
                 # v(theta) = v0 + h (q0 theta + q1 theta^2 + q2 theta^3 + q3 theta^4)
                 C = np.concatenate([Y[3:6, rows[sel]][:, None, :], hv * Qs], axis=1)
-                best = _norm_max(C, te[rows[sel]])
+                best = stepkernel.norm_max(C, te[rows[sel]])
                 self.vmax[rows[sel]] = np.maximum(self.vmax[rows[sel]], best)
             if np.any(ainner):
                 sel = np.flatnonzero(ainner[rows])
                 # a(theta) = dv/dt = q0 + 2 q1 theta + 3 q2 theta^2 + 4 q3 theta^3
                 C = Qv[:, :, sel] * np.array([1.0, 2.0, 3.0, 4.0])[None, :, None]
-                best = _norm_max(C, te[rows[sel]])
+                best = stepkernel.norm_max(C, te[rows[sel]])
                 self.amax[rows[sel]] = np.maximum(self.amax[rows[sel]], best)
-        prop = sysa.propulsive(self.modes)
-        np.add(self.burn, hh * te, out=self.burn, where=acc & prop)
         if self.has_p and not sysa.frozen(self.modes):   # frozen vessels keep their pressure
             pn = np.broadcast_to(sysa.pressures(Yn, self.modes), (n,)).copy()
             if evi is not None:
@@ -1125,10 +1020,19 @@ def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel
         ph_loc = local.phase(m_loc, k_loc, slide[rows])
 
     kind = ev.slots[j][0]
+    if kind in ("guide", "foot", "rest") and not own:     # three rows of the dense output, no balance
+        pl = ev.slots[j][2]
+        r0 = 3 if kind == "rest" else 0
+        u = np.array([np.broadcast_to(c, (sysa.n,))[rows] for c in sysa.u])
+        x0 = np.array([np.broadcast_to(c, (sysa.n,))[rows] for c in sysa.x0])
+        off = sysa.guide_length[rows] + 1e-9 if kind == "guide" else np.full(len(rows), -1e-9)
+        return stepkernel.illinois_along(Y0[r0:r0 + 3], hh, Q[r0:r0 + 3], x0, u, off,
+                                         pl if kind == "rest" else 0.0, kind == "rest", ga, gb, t0)
     if kind in ("apogee", "impact"):      # one state: only its row of the dense output
         r = 5 if kind == "apogee" else 2
-        Y0r, Qr = Y0[r:r + 1], Q[r:r + 1]
-        return _illinois(lambda theta: _dense(Y0r, hh, Qr, theta)[0], ga, gb, t0, hh)
+        return stepkernel.illinois_row(Y0[r], hh, np.ascontiguousarray(Q[r]), np.ones(len(rows)),
+                                       np.ascontiguousarray(ga, dtype=float), np.ascontiguousarray(gb, dtype=float),
+                                       t0)
 
     def g(theta):
         yy = _dense(Y0, hh, Q, theta)
@@ -1141,40 +1045,3 @@ def _locate(ev: _Events, j: int, sysa: ArraySystem, sub: ArraySystem | None, sel
         return ev.value(j, sysa, tt, yy, None, rows, due)
 
     return _illinois(g, ga, gb, t0, hh)
-
-
-def _illinois(g, ga: np.ndarray, gb: np.ndarray, t0: np.ndarray, hh: np.ndarray) -> np.ndarray:
-    """Vectorised Illinois (modified regula falsi) for the zero of ``g(theta)`` on [0, 1], per design; ``ga``,
-    ``gb`` its values at the ends; returns the later end of the final bracket (the post-crossing side)."""
-    a = np.zeros(len(ga))
-    b = np.ones(len(ga))
-    fa, fb = ga.astype(float).copy(), gb.astype(float).copy()
-    done = (fa == 0.0)
-    root = np.where(done, 0.0, np.where(fb == 0.0, 1.0, np.nan))
-    done |= fb == 0.0
-    tol = np.maximum(4 * _EPS * np.maximum(np.abs(t0), 1.0) / np.where(hh > 0, hh, 1.0), 1e-13)
-    for _ in range(80):
-        if np.all(done):
-            break
-        # the secant point; where fb = fa it is inf or nan, and the bracket test below sends it to the
-        # midpoint, as any point not strictly inside the bracket
-        with np.errstate(divide="ignore", invalid="ignore"):
-            c = b - fb * (b - a) / (fb - fa)
-        c = np.where((c > np.minimum(a, b)) & (c < np.maximum(a, b)), c, 0.5 * (a + b))
-        fc = g(c)
-        exact = (fc == 0.0) & ~done
-        if exact.any():
-            root = np.where(exact, c, root)
-            done |= exact
-        opp = np.sign(fc) != np.sign(fb)       # root between c and b
-        # Illinois: halve the retained end's value when the same end is kept twice
-        fa_new = np.where(opp, fb, fa * 0.5)
-        a_new = np.where(opp, b, a)
-        a, fa = np.where(done, a, a_new), np.where(done, fa, fa_new)
-        b, fb = np.where(done, b, c), np.where(done, fb, fc)
-        conv = ~done & (np.abs(b - a) <= tol)
-        # the event has happened at the end where g has its post-crossing sign: take the later end
-        root = np.where(conv, np.maximum(a, b), root)
-        done |= conv
-    root = np.where(np.isnan(root), np.maximum(a, b), root)
-    return root
