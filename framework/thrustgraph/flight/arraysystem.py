@@ -422,7 +422,8 @@ class ArraySystem:
             slide: np.ndarray | None = None) -> tuple[np.ndarray, dict | None]:
         """Derivatives of the states (shape of ``Y``, written into ``out`` when given) and, in ``aux``:
         ``drive`` (name -> Pa), ``accel`` (acceleration magnitude), ``thrust`` (thrust magnitude), ``mass``,
-        ``singular`` (designs whose head coupling has no solution) and ``phase`` (the phase it was set to);
+        ``singular`` (designs whose head coupling has no solution), ``phase`` (the phase it was set to), and
+        ``breakaway`` and ``pull`` of a vehicle at rest on a guide or track (:meth:`Balance.terms`);
         ``aux=False`` skips those (None instead), for the inner stages of a step, which use the derivatives
         alone.
 
@@ -466,7 +467,7 @@ class ArraySystem:
         accel = np.sqrt(ax * ax + ay * ay + az * az)
         singular = np.broadcast_to(np.asarray(terms["singular"], dtype=bool), (self.n,))
         return out, {"drive": terms["drive"], "accel": accel, "thrust": thrust, "mass": terms["mass"],
-                     "singular": singular, "phase": phase}
+                     "singular": singular, "phase": phase, "breakaway": terms["breakaway"], "pull": terms["pull"]}
 
 
 def _uniform(phase: Phase) -> bool:
@@ -579,7 +580,8 @@ class PhaseGroups:
             return out, None
         merged: dict[str, Any] = {"drive": {}, "phase": phase if phase is not None else
                                   sysa.phase(modes, kin, slide)}
-        for key, dtype in (("accel", float), ("thrust", float), ("mass", float), ("singular", bool)):
+        for key, dtype in (("accel", float), ("thrust", float), ("mass", float), ("singular", bool),
+                           ("breakaway", float), ("pull", float)):
             full = np.zeros(n, dtype=dtype)
             for (rows, _, _), a in zip(groups, auxes):
                 full[rows] = np.broadcast_to(np.asarray(a[key], dtype=dtype), (len(rows),))
