@@ -162,7 +162,9 @@ class Balance:
         self._sampler: Balance | None = None
         #: why tracing failed, per phase and request (for tests and diagnosis)
         self.untraced: dict[tuple, str] = {}
-        self._phases: dict[tuple, dict] = {}
+        # what each phase derives from the plan, shared by every balance of this system over the same ops (a
+        # flight builds its balance anew; its phases are those of the flights before)
+        self._phases: dict[tuple, dict] = self._lines_made.setdefault(("phases", id(self.plan), id(ops)), {})
         self._phase_key: tuple | None = None
         self.set_phase([0] * len(plan.moded) if not hasattr(system, "mode0") else list(system.mode0),
                        Kinematics.BY_MOUNT[c.mount], False)

@@ -33,8 +33,8 @@ __all__ = ["System", "assemble", "ACCUMULATORS", "KINEMATIC", "constraint_of"]
 
 class LineCache(dict):
     """What is derived once for a system: the straight lines the balance compiles by phase (see
-    :mod:`thrustgraph.balance.straightline`) and the provenance of its results; pickled empty (compiled code does
-    not travel between processes: each traces its own)."""
+    :mod:`thrustgraph.balance.straightline`), what the balance derives for each phase, and the provenance of its
+    results; pickled empty (compiled code does not travel between processes: each traces its own)."""
 
     def __reduce__(self) -> tuple:
         return (LineCache, ())
