@@ -103,6 +103,8 @@ def test_a_rising_thrust_starts_the_vehicle_at_the_closed_form_instant(mount, el
     assert moved[0].t == pytest.approx(t_star, abs=1e-9)
     if name == "lift-off":
         assert moved[0].detail == "speed 0 m/s"
+    else:
+        assert moved[0].detail.startswith("moves off forward")
     # held until then: the vehicle has not moved at all (no creep inside a solver step)
     before = r.t <= moved[0].t
     assert np.all(r.signals["speed"][before] == 0.0)
@@ -176,6 +178,7 @@ def test_a_vehicle_whose_thrust_fades_slides_back_down_its_track():
     r = integrate(model)
     moved = [e for e in r.events if e.name == "break-away"]
     assert len(moved) == 1 and moved[0].t == pytest.approx(t_star, abs=1e-9)
+    assert moved[0].detail.startswith("moves off backward")
     assert np.all(r.signals["speed"][r.t <= moved[0].t] == 0.0)
     assert r.summary["distance"] < 0.0        # down the track
 

@@ -21,7 +21,8 @@ What each design owns (lessons of the prototype in docs/studies.md):
 * its own events, those of a single flight (:mod:`thrustgraph.flight.integrate`):
   the components' events (liquid exhausted, flow stops...), guide exit,
   back at the guide's foot, at rest on a guide or track (the speed along it
-  reaches zero while it slides), apogee and ground impact, each a continuous
+  reaches zero while it slides), break-away from rest (the balance's margin
+  rises through zero), apogee and ground impact, each a continuous
   function with a direction, located on the dense output by a vectorised
   Illinois (modified regula falsi) iteration; the step is cut at the
   earliest event and the phase switch (reset map) is applied to that design

@@ -513,8 +513,9 @@ class _Flight:
         if self.ph.kin == Kinematics.GUIDE and sysm.launch.guide_length == 0.0:
             return False
         where = "guide" if self.ph.kin == Kinematics.GUIDE else "track"
+        way = "forward" if self.state.bal.terms(self.t, self.y)["pull"] > 0.0 else "backward"
         self.events.append(Event(self.t, "break-away", "vehicle",
-                                 f"the pull along the {where} exceeds what held it at rest"))
+                                 f"moves off {way}: the pull along the {where} outgrows what held it at rest"))
         return False
 
     def _on_foot(self, a: _Action) -> bool:
