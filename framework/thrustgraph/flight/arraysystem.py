@@ -20,7 +20,10 @@ Examples
 >>> sysa.n, sysa.state_names[6:8]
 (2, ('bottle.liquid_mass', 'bottle.gas_mass'))
 >>> d, aux = sysa.rhs(np.zeros(2), sysa.y0, sysa.mode0, sysa.kin0)
->>> bool(np.all(d[3] > 0))                   # both accelerate up the guide at launch
+>>> bool(np.all(d[3] == 0)), bool(np.all(aux["breakaway"] > 0))    # held at rest, but the thrust outgrows the hold
+(True, True)
+>>> d, aux = sysa.rhs(np.zeros(2), sysa.y0, sysa.mode0, sysa.kin0, slide=np.ones(2))
+>>> bool(np.all(d[3] > 0))                   # sliding up the guide, both accelerate at launch
 True
 """
 
