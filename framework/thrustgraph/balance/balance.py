@@ -151,11 +151,12 @@ class Balance:
         self._masses = [v.fns.mass for v in plan.vessels] + [j.fns.mass for j in plan.jets]
         # straight-line functions per phase (single flights of one-definition kinds only)
         parsed = getattr(system, "parsed", None)
-        # (a line with elements in series is solved by a root search, which is not traced yet)
-        self._traceable = (ops is scalar_ops and parsed is not None and hasattr(system, "slices")
-                           and all(getattr(k, "vectorised", False) for k in parsed.kinds.values())
-                           and all(getattr(k, "vectorised", False) for k in parsed.env_kinds.values())
-                           and not any(ln.series for ln in plan.lines))
+        # a single flight of one-definition kinds: its samples are evaluated over arrays (sampling_balance)
+        self._vectorised = (ops is scalar_ops and parsed is not None and hasattr(system, "slices")
+                            and all(getattr(k, "vectorised", False) for k in parsed.kinds.values())
+                            and all(getattr(k, "vectorised", False) for k in parsed.env_kinds.values()))
+        # ... and traced (a line with elements in series is solved by a root search, which is not traced yet)
+        self._traceable = self._vectorised and not any(ln.series for ln in plan.lines)
         made = getattr(system, "straight_lines", None)
         self._lines_made: dict[tuple, Any] = made if isinstance(made, dict) else {}
         self._tracer: Balance | None = None
@@ -326,8 +327,10 @@ class Balance:
     def sampling_balance(self) -> "Balance | None":
         """This vehicle's balance over numpy arrays of samples (its plan rebuilt over
         :data:`~thrustgraph.base.xp.array_ops`, parameters kept as floats), for a whole segment's output samples at
-        once (:mod:`thrustgraph.balance.sampling`); None when a kind is not written to the one-definition convention."""
-        if not self._traceable:
+        once (:mod:`thrustgraph.balance.sampling`); None when a kind is not written to the one-definition convention.
+        A line with elements in series is solved over the arrays by the same root search, each sample iterating
+        on its own (:mod:`thrustgraph.base.roots`)."""
+        if not self._vectorised:
             return None
         if self._sampler is None:
             self._sampler = self._lines_made.get(("sampler",))
@@ -347,6 +350,9 @@ class Balance:
         (tests/test_straightline.py). None until the phase has been sampled :data:`SAMPLES_AFTER` times, and for
         a vehicle or phase that cannot be traced (the general evaluator serves then)."""
         if not self._traceable or self._phase_key is None:
+            if self._vectorised and not self._traceable:
+                self.untraced[("sample line", want, n_states)] = ("a line with elements in series is solved by a root "
+                                                                  "search, which is not traced")
             return None
         key = ("sample line", self._phase_key, want, n_states)
         made = self._lines_made.get(key)
