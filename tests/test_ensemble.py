@@ -101,7 +101,9 @@ def test_array_rhs_equals_the_scalar_balance_in_every_phase(parsed):
                 ref = np.array(bal.rhs(float(sol.t[k]), y))[:8]
                 Y = np.repeat(sysa.y0[:, [r]], 4, axis=1) * 0.0
                 Y[:8] = y[:8, None]
-                d, _ = sysa.rhs(np.full(4, sol.t[k]), Y, np.full((1, 4), ph.modes[0]), np.full(4, ph.kin))
+                # the segment's phase, the way it slides included (at rest with slide 0 a vehicle is held)
+                d, _ = sysa.rhs(np.full(4, sol.t[k]), Y, np.full((1, 4), ph.modes[0]), np.full(4, ph.kin),
+                                slide=np.full(4, ph.slide))
                 assert np.allclose(d[:8, r], ref, rtol=1e-12, atol=1e-12), (r, ph.modes, ph.kin)
                 checked.add((ph.modes[0], ph.kin))
     assert {(0, 1), (1, 2), (2, 2)} <= checked

@@ -202,8 +202,10 @@ def test_a_pad_lifted_at_the_start_logs_its_lift_off_at_the_start_at_zero_speed(
 
 def test_a_pad_not_lifted_at_the_start_lifts_off_later():
     # T(t0) 0.1 % below m g (sin(theta) + mu cos(theta)), rising: no lift-off at the start. The thrust reaches the
-    # limit at t* = (m g' - T0) / (dT/dt) (mass change negligible); the vehicle then has to move the pad's 1 nm,
-    # so the lift-off is logged after t*, within the time a jerk of (dT/dt)/m takes to cover it, (6e-9 m / j)^(1/3).
+    # limit where T(t) = m(t) g' (the launch mass m0 = m + the table's propellant, impulse / v_e, less what the jet
+    # has burnt, the impulse so far over v_e); the pad holds the vehicle until then and it lifts off at that instant
+    # at zero speed (its break-away is an event: it was logged once the pad's 1 nm was covered, up to
+    # (6e-9 m / j)^(1/3) later for a jerk j = (dT/dt)/m).
     th = math.radians(30.0)
     m, mu = 1.0, 0.5
     need = m * G0 * (math.sin(th) + mu * math.cos(th))
@@ -213,8 +215,11 @@ def test_a_pad_not_lifted_at_the_start_lifts_off_later():
         thrust_curve = {{ units = ["s", "N"], rows = [[0, {T0!r}], [1, {T1!r}]] }}""")
     r = integrate(model)
     lift = event(r, "lift-off")
-    t_star = (need - T0) / (T1 - T0)
-    assert t_star < lift.t < t_star + 1.01 * (6e-9 / ((T1 - T0) / m)) ** (1.0 / 3.0)
+    ve, k = 3e7, T1 - T0
+    m0 = m + (T0 + T1) / 2.0 / ve
+    t_star = brentq(lambda t: T0 + k * t - (m0 - (T0 * t + k * t * t / 2.0) / ve) * need / m, 0.0, 1.0, xtol=1e-15)
+    assert lift.t == pytest.approx(t_star, abs=1e-9) and lift.detail == "speed 0 m/s"
+    assert [e.name for e in r.events].count("lift-off") == 1
 
 
 def test_a_vehicle_that_slides_back_down_the_guide_stops_at_its_foot():

@@ -109,6 +109,8 @@ class _Sums(NamedTuple):
 
 
 _Z3 = (0.0, 0.0, 0.0)
+#: the break-away margin and the pull along a guide or track of a vehicle on none (free or on a stand)
+_NO_PULL = (0.0, 0.0)
 _FREE_ONLY = {Kinematics.FREE}
 #: the sums of a phase whose lines are all idle, by number of lines (never mutated)
 _NO_FLOW = {n: _Sums([None] * n, _Z3, _Z3, _Z3, _Z3) for n in range(1, 5)}
@@ -175,8 +177,10 @@ class Balance:
         ``modes`` holds each moded component's mode index (an int, or an int array over designs);
         ``kinematics`` a :class:`Kinematics` value (or an array). ``slide`` is the way a vehicle slides along
         a guide or track for the whole segment (+1, -1): kinetic friction opposes it and the integrator ends
-        the segment when the vehicle comes to rest; 0 lets the friction follow the current speed (static
-        friction at rest). For an ensemble ``slide`` may be an array over designs (each design's own way).
+        the segment when the vehicle comes to rest; 0 lets the friction follow the current speed, except at rest:
+        a vehicle at rest is held there for the whole segment (static friction or the guide's foot), however
+        hard it is pulled, and the integrator ends the segment where it breaks away (``breakaway`` of
+        :meth:`terms`). For an ensemble ``slide`` may be an array over designs (each design's own way).
         """
         # one phase for every design (a single flight, or a segment's samples): a phase seen before is restored
         # whole (outcomes set each segment's phase many times); the phase already set costs a comparison
@@ -412,7 +416,10 @@ class Balance:
         ``accel`` (3-vector), ``thrust`` (thrust vector), ``thrust_axial`` (its component along the body axis, the
         ``thrust`` of :meth:`evaluate`), ``mass``, ``drive`` (name -> Pa), ``singular`` (designs whose head
         coupling has no solution), ``inflow`` (the momentum of the fluid entering through sources, the sum of the
-        ledger's ``inflow momentum`` terms) and ``axis`` (the body axis)."""
+        ledger's ``inflow momentum`` terms), ``axis`` (the body axis), ``pull`` (N: the pull along a guide or
+        track at zero acceleration, friction left out) and ``breakaway`` (N: how far that pull exceeds what holds
+        the vehicle at rest there, static friction or the guide's foot; it rises through zero where a vehicle at
+        rest starts to move, the way ``pull`` points: :meth:`_guided`); both 0 in free flight and on a stand."""
         f = self._lines_now.get(("terms", len(s)))
         if f is not None:
             return f(t, s)
@@ -482,7 +489,7 @@ class Balance:
 
         # 3. The acceleration, solved with the flows it drives.
         ctx = (t, s, pa, g, outs, supplies, dirs, live)
-        a, sums, C, singular = self._accelerate(ctx, M, F, coupled)
+        a, sums, C, singular, rest = self._accelerate(ctx, M, F, coupled)
         T, I, N = sums.T, sums.I, sums.N
         if self._present == _FREE_ONLY:
             R = _Z3
@@ -499,9 +506,10 @@ class Balance:
         if want == "core":
             return derivs
         if want == "terms":
-            return self._terms(derivs, a, T, jets, e, M, sums, pa, singular, N)
+            return self._terms(derivs, a, T, jets, e, M, sums, pa, singular, N, rest)
         # "samples": the ledger with the snapshot outcomes read (a result's samples: one pass gives both)
-        terms = self._terms(list(derivs), a, T, jets, e, M, sums, pa, singular, N) if want == "samples" else None
+        terms = self._terms(list(derivs), a, T, jets, e, M, sums, pa, singular, N, rest) \
+            if want == "samples" else None
         derivs.extend(self._accumulators(s, sums, jets, dirs, (Dx, Dy, Dz), W, (Px, Py, Pz), R, C))
         if want == "rhs":
             return derivs
@@ -513,14 +521,16 @@ class Balance:
         return rec
 
     def _terms(self, derivs: list, a: tuple, T: tuple, jets: list, e: tuple, M: Any, sums: Any, pa: Any,
-               singular: Any, N: tuple) -> dict[str, Any]:
+               singular: Any, N: tuple, rest: tuple) -> dict[str, Any]:
         """The snapshot outcomes read (:meth:`terms`): derivatives, acceleration, the gross thrust (every
-        opening's momentum flux and pressure thrust) as a vector and along the body axis, mass, drives, inflow."""
+        opening's momentum flux and pressure thrust) as a vector and along the body axis, mass, drives, inflow,
+        and the break-away margin of a vehicle at rest on a guide or track (:meth:`_guided`)."""
         tx, ty, tz = T
         for mdot, ve, pe, Ae, jd, Tj in jets:
             tx = tx - Tj * jd[0]; ty = ty - Tj * jd[1]; tz = tz - Tj * jd[2]
         return {"derivs": derivs, "accel": a, "thrust": (tx, ty, tz), "thrust_axial": _dot((tx, ty, tz), e), "mass": M,
-                "drive": self._drives(sums.flows, pa), "singular": singular, "inflow": N, "axis": e}
+                "drive": self._drives(sums.flows, pa), "singular": singular, "inflow": N, "axis": e,
+                "breakaway": rest[0], "pull": rest[1]}
 
     def _axis(self, vr: tuple, sp: Any) -> tuple:
         """The body axis (world frame): the guide direction, or into the relative wind in free flight."""
@@ -553,7 +563,7 @@ class Balance:
         results = {}
         for kin in self._present:
             if kin == Kinematics.HELD:
-                results[kin] = (_Z3, first, _Z3, False)
+                results[kin] = (_Z3, first, _Z3, False, _NO_PULL)
             elif kin == Kinematics.FREE:
                 results[kin] = self._free(ctx, M, F, first, coupled)
             else:
@@ -564,13 +574,15 @@ class Balance:
         kin = self._kin
         a, C = [0.0, 0.0, 0.0], [0.0, 0.0, 0.0]
         singular = False
-        for k, (ak, _, Ck, sk) in results.items():
+        rest = [0.0, 0.0]
+        for k, (ak, _, Ck, sk, bk) in results.items():
             sel = kin == k
             a = [ops.where(sel, ak[i], a[i]) for i in range(3)]
             C = [ops.where(sel, Ck[i], C[i]) for i in range(3)]
             singular = singular | (sel & sk)
+            rest = [ops.where(sel, bk[i], rest[i]) for i in range(2)]
         sums = self._lines_at(ctx, (-a[0], -a[1], -g - a[2])) if coupled else first
-        return tuple(a), sums, tuple(C), singular
+        return tuple(a), sums, tuple(C), singular, tuple(rest)
 
     @staticmethod
     def _pull(F: tuple, sums: _Sums) -> tuple:
@@ -584,7 +596,7 @@ class Balance:
         g = ctx[3]
         G = self._pull(F, first)
         if not coupled:
-            return (G[0] / M, G[1] / M, G[2] / M), first, _Z3, False
+            return (G[0] / M, G[1] / M, G[2] / M), first, _Z3, False, _NO_PULL
         outs, dirs, live = ctx[4], ctx[6], ctx[7]
 
         def test(c):
@@ -611,14 +623,31 @@ class Balance:
             return a, sums, self._pull(F, sums), singular | sing
 
         (a, sums, _G, singular), _r = ops.iterate((_Z3, first, G, False), test, step, self.max_newton)
-        return a, sums, _Z3, singular
+        return a, sums, _Z3, singular, _NO_PULL
+
+    def _along(self, G: tuple) -> tuple:
+        """The pull ``G`` along the guide or track, and the largest friction its normal part allows (Coulomb,
+        ``mu |N|``; 0 without friction)."""
+        u0, u1, u2 = self._u
+        Gx, Gy, Gz = G
+        Gu = Gx * u0 + Gy * u1 + Gz * u2
+        if not self._friction:
+            return Gu, 0.0
+        nx, ny, nz = Gx - Gu * u0, Gy - Gu * u1, Gz - Gu * u2
+        return Gu, self._mu * self.ops.sqrt(nx * nx + ny * ny + nz * nz)
 
     def _guided(self, ctx: tuple, M: Any, F: tuple, first: _Sums, coupled: bool, kin: int):
-        """On a guide or track: a = alpha u, with friction mu |N| against the motion, held at the guide's foot."""
+        """On a guide or track: a = alpha u, with friction mu |N| against the motion, held at the guide's foot.
+
+        Also the break-away margin: how far the pull along the guide or track at zero acceleration exceeds what
+        holds a vehicle at rest (static friction ``mu |N|`` either way; at the guide's foot, the foot holds it
+        back), less the tolerance the acceleration is solved to (``1e-12 (|pull| + M g)``, so that where it is
+        positive the acceleration at rest is not zero). A vehicle at rest starts to move where it rises through
+        zero (the statics of a block on a rough incline, common practice, no source).
+        """
         ops = self.ops
         t, s, pa, g, outs, _supplies, dirs, live = ctx
         u0, u1, u2 = self._u
-        mu = self._mu
         v_along = s[3] * u0 + s[4] * u1 + s[5] * u2
         at_foot: Any = False
         if kin == Kinematics.GUIDE:
@@ -626,19 +655,21 @@ class Balance:
             below = (s[0] - x0[0]) * u0 + (s[1] - x0[1]) * u1 + (s[2] - x0[2]) * u2 <= 0.0
             at_foot = (v_along <= 0.0) & below
         slide = self.slide
+        # a phase that starts at rest, held there (slide 0), stays held until its break-away event ends it: the
+        # acceleration is zero even where the pull has outgrown the hold, so that the motion has no kink inside
+        # the phase (a solver's stages past the break-away instant do not move the vehicle)
         if type(slide) is float:
             way = slide if slide != 0.0 else v_along
+            resting: Any = (v_along == 0.0) if slide == 0.0 else False
         else:       # an ensemble's designs, each its own way
             way = ops.where(slide != 0.0, slide, v_along)
+            resting = (slide == 0.0) & (v_along == 0.0)
 
         def test(c):
             alpha, sums, held, singular = c
-            Gx, Gy, Gz = self._pull(F, sums)
-            Gu = Gx * u0 + Gy * u1 + Gz * u2
+            Gu, fmax = self._along(self._pull(F, sums))
             fr: Any = 0.0
             if self._friction:
-                nx, ny, nz = Gx - Gu * u0, Gy - Gu * u1, Gz - Gu * u2
-                fmax = mu * ops.sqrt(nx * nx + ny * ny + nz * nz)
                 # kinetic friction against the motion; at rest, static friction holds up to fmax
                 fr = ops.where(way > 0.0, -fmax, ops.where(way < 0.0, fmax, ops.clip(-Gu, -fmax, fmax)))
             r = M * alpha - Gu - fr
@@ -665,10 +696,13 @@ class Balance:
             return alpha, sums, held, singular | bad
 
         (alpha, sums, _held, singular), (_r, fr) = ops.iterate(
-            (0.0, first, False, False), test, step, self.max_newton if coupled else 1)
+            (0.0, first, resting, False), test, step, self.max_newton if coupled else 1)
         if kin == Kinematics.GUIDE:
             fr = ops.where((alpha == 0.0) & at_foot, 0.0, fr)
-        return (alpha * u0, alpha * u1, alpha * u2), sums, (fr * u0, fr * u1, fr * u2), singular
+        pull, hold = self._along(self._pull(F, first))
+        ahead = ops.abs(pull) if kin == Kinematics.TRACK else ops.where(at_foot, pull, ops.abs(pull))
+        breakaway = ahead - hold - 1e-12 * (ops.abs(pull) + M * g + 1e-30)
+        return (alpha * u0, alpha * u1, alpha * u2), sums, (fr * u0, fr * u1, fr * u2), singular, (breakaway, pull)
 
     # ------------------------------------------------------------------
     def _lines_at(self, ctx: tuple, f: tuple) -> _Sums:

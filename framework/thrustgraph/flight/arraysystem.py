@@ -20,7 +20,10 @@ Examples
 >>> sysa.n, sysa.state_names[6:8]
 (2, ('bottle.liquid_mass', 'bottle.gas_mass'))
 >>> d, aux = sysa.rhs(np.zeros(2), sysa.y0, sysa.mode0, sysa.kin0)
->>> bool(np.all(d[3] > 0))                   # both accelerate up the guide at launch
+>>> bool(np.all(d[3] == 0)), bool(np.all(aux["breakaway"] > 0))    # held at rest, but the thrust outgrows the hold
+(True, True)
+>>> d, aux = sysa.rhs(np.zeros(2), sysa.y0, sysa.mode0, sysa.kin0, slide=np.ones(2))
+>>> bool(np.all(d[3] > 0))                   # sliding up the guide, both accelerate at launch
 True
 """
 
@@ -422,7 +425,8 @@ class ArraySystem:
             slide: np.ndarray | None = None) -> tuple[np.ndarray, dict | None]:
         """Derivatives of the states (shape of ``Y``, written into ``out`` when given) and, in ``aux``:
         ``drive`` (name -> Pa), ``accel`` (acceleration magnitude), ``thrust`` (thrust magnitude), ``mass``,
-        ``singular`` (designs whose head coupling has no solution) and ``phase`` (the phase it was set to);
+        ``singular`` (designs whose head coupling has no solution), ``phase`` (the phase it was set to), and
+        ``breakaway`` and ``pull`` of a vehicle at rest on a guide or track (:meth:`Balance.terms`);
         ``aux=False`` skips those (None instead), for the inner stages of a step, which use the derivatives
         alone.
 
@@ -466,7 +470,7 @@ class ArraySystem:
         accel = np.sqrt(ax * ax + ay * ay + az * az)
         singular = np.broadcast_to(np.asarray(terms["singular"], dtype=bool), (self.n,))
         return out, {"drive": terms["drive"], "accel": accel, "thrust": thrust, "mass": terms["mass"],
-                     "singular": singular, "phase": phase}
+                     "singular": singular, "phase": phase, "breakaway": terms["breakaway"], "pull": terms["pull"]}
 
 
 def _uniform(phase: Phase) -> bool:
@@ -579,7 +583,8 @@ class PhaseGroups:
             return out, None
         merged: dict[str, Any] = {"drive": {}, "phase": phase if phase is not None else
                                   sysa.phase(modes, kin, slide)}
-        for key, dtype in (("accel", float), ("thrust", float), ("mass", float), ("singular", bool)):
+        for key, dtype in (("accel", float), ("thrust", float), ("mass", float), ("singular", bool),
+                           ("breakaway", float), ("pull", float)):
             full = np.zeros(n, dtype=dtype)
             for (rows, _, _), a in zip(groups, auxes):
                 full[rows] = np.broadcast_to(np.asarray(a[key], dtype=dtype), (len(rows),))

@@ -21,7 +21,8 @@ What each design owns (lessons of the prototype in docs/studies.md):
 * its own events, those of a single flight (:mod:`thrustgraph.flight.integrate`):
   the components' events (liquid exhausted, flow stops...), guide exit,
   back at the guide's foot, at rest on a guide or track (the speed along it
-  reaches zero while it slides), apogee and ground impact, each a continuous
+  reaches zero while it slides), break-away from rest (the balance's margin
+  rises through zero), apogee and ground impact, each a continuous
   function with a direction, located on the dense output by a vectorised
   Illinois (modified regula falsi) iteration; the step is cut at the
   earliest event and the phase switch (reset map) is applied to that design
@@ -112,8 +113,8 @@ class EnsembleResult:
 
 class _Events:
     """The event functions of the family: the components' events, the model's triggers (a condition met, and
-    the action due after its delay), guide exit, back at the guide's foot, at rest on a guide or track, apogee,
-    ground impact (the event set of :func:`thrustgraph.flight.integrate.fly_segments`)."""
+    the action due after its delay), guide exit, back at the guide's foot, at rest on a guide or track, break-away
+    from rest, apogee, ground impact (the event set of :func:`thrustgraph.flight.integrate.fly_segments`)."""
 
     def __init__(self, sysa: ArraySystem, triggers: Sequence[Trigger] = ()) -> None:
         self.slots: list[tuple] = []   # (kind, direction, payload)
@@ -135,11 +136,14 @@ class _Events:
         # phase ends where the speed along it reaches zero: falling through zero sliding forward, rising backward
         self.slots.append(("rest", -1.0, 1.0))
         self.slots.append(("rest", 1.0, -1.0))
+        # at rest, held by static friction or the guide's foot (slide 0): the phase ends where the balance's
+        # break-away margin rises through zero
+        self.slots.append(("breakaway", 1.0, None))
         self.slots.append(("apogee", -1.0, None))
         self.slots.append(("impact", -1.0, None))
         # the events whose value reads the balance (a component's drive, a trigger's snapshot signal)
         self.needs_drive = [(s[0] == "comp" and s[2][6]) or (s[0] == "trigger" and s[2][1].needs_snapshot)
-                            for s in self.slots]
+                            or s[0] == "breakaway" for s in self.slots]
         # events evaluated on some designs alone need those designs' own system when they read the balance or
         # the component's parameters differ between designs (a pump's run time)
         varied = set(sysa._comp_changes) if all(p.section == "components" for p in sysa.params) else \
@@ -159,6 +163,8 @@ class _Events:
             return kin == GUIDE
         if kind == "rest":
             return ((kin == GUIDE) | (kin == TRACK)) & (slide == pl)
+        if kind == "breakaway":
+            return ((kin == GUIDE) | (kin == TRACK)) & (slide == 0.0)
         if kind == "apogee":
             return (kin == FREE) & ~desc & gpos
         return (kin == FREE) & gpos
@@ -181,6 +187,9 @@ class _Events:
             return np.array(np.broadcast_to(np.asarray(g, dtype=float), t.shape))
         if kind == "due":
             return t - due[pl[0]][r]
+        if kind == "breakaway":        # the balance's margin (evaluated here inside a step, where aux has none)
+            got = aux["breakaway"] if "breakaway" in aux else sysa.evaluate(t, Y, aux["phase"])[1]["breakaway"]
+            return np.array(np.broadcast_to(np.asarray(got, dtype=float), t.shape))
         if kind in ("guide", "foot", "rest"):
             u = [c[r] for c in sysa.u]
             if kind == "rest":          # the speed along the guide or track (the slot watches designs sliding pl)
@@ -637,9 +646,19 @@ class _Run:
             rest = np.flatnonzero(on & (v == 0.0))
             if len(rest):
                 v = v.copy()
-                v[rest] = self.accel_along(idx[rest], np.zeros(len(rest)))
+                v[rest] = self.way_from_rest(idx[rest])
             way = np.where(on, np.sign(v), 0.0)
         self.slide[idx] = way
+
+    def way_from_rest(self, idx: np.ndarray) -> np.ndarray:
+        """The way designs ``idx``, at rest on a guide or track, move (+1, -1), or 0 where they stay: the way the
+        pull along it points, if sliding that way the balance accelerates them that way (as a single flight's
+        :func:`thrustgraph.flight.integrate._way_from_rest`)."""
+        sub = self.sysa if len(idx) == self.n else self.sysa.subset(idx)
+        _, aux = sub.rhs(self.t[idx], self.Y[:, idx], self.modes[:, idx], self.kin[idx], slide=np.zeros(len(idx)))
+        self.calls += 1
+        way = np.sign(np.broadcast_to(np.asarray(aux["pull"], dtype=float), (len(idx),)))
+        return np.where(way * self.accel_along(idx, way) > 0.0, way, 0.0)
 
     def waiting(self, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Per design of ``idx``: a trigger's delayed action is due later (pending), and that or a trigger still
@@ -902,12 +921,14 @@ class _Run:
                     Y[3:6, rows] = 0.0
                 elif kind == "rest":
                     Y[3:6, rows] = 0.0
-                    # it stays at rest only if friction holds it (friction following the speed, static at rest),
-                    # nothing pushes and no trigger still watches or waits
-                    a = self.accel_along(rows, np.zeros(len(rows)))
-                    held = (a == 0.0) & ~sysa.propulsive(modes[:, rows]) & ~self.waiting(rows)[1]
+                    # it stays at rest only if friction holds it (it does not move off at once), nothing pushes and
+                    # no trigger still watches or waits
+                    held = (self.way_from_rest(rows) == 0.0) & ~sysa.propulsive(modes[:, rows]) & \
+                        ~self.waiting(rows)[1]
                     self.finish(rows[held], STATUS_OK, "came to rest on the track" if self.parsed.launch.mount ==
                                 "track" else "came to rest on the launch guide")
+                elif kind == "breakaway":
+                    pass        # it moves off: the way it slides is found as its next phase starts (set_slide)
                 elif kind == "apogee":
                     self.desc[rows] = True
                     self.apogee[rows] = Y[2, rows]

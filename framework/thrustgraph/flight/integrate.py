@@ -2,8 +2,8 @@
 
 Each segment runs with a fixed discrete phase (component modes, kinematic
 constraint, before/after apogee). A terminal event ends the segment exactly at
-the switch (liquid gone, flow stops, guide exit, apogee, ground impact, a
-user trigger, a stage separation), the phase is updated and the next segment
+the switch (liquid gone, flow stops, a vehicle at rest breaking away, guide
+exit, apogee, ground impact, a user trigger, a stage separation), the phase is updated and the next segment
 starts from the event state, so no discontinuity is ever stepped over. A
 separation replaces the vehicle by its upper stage and flies the dropped
 stage on as a vehicle of its own.
@@ -83,17 +83,31 @@ class _Phase:
 
 def _set_segment_phase(bal: Balance, ph: _Phase, t: float, y: np.ndarray) -> None:
     """Set the balance to the segment's phase, with the way it slides on a guide or track: the sign of the
-    speed along it, or, starting at rest, the way it is about to move (0 if friction holds it)."""
+    speed along it, or, starting at rest, the way it is about to move (:func:`_way_from_rest`; 0: held at rest
+    until it breaks away)."""
     ph.slide = 0.0
     bal.set_phase(ph.modes, ph.kin, ph.descending)
     if ph.kin in (Kinematics.GUIDE, Kinematics.TRACK):
         u = bal.system.guide_dir
         v = float(y[3] * u[0] + y[4] * u[1] + y[5] * u[2])
-        if v == 0.0:
-            d = bal.rhs(t, y)
-            v = d[3] * u[0] + d[4] * u[1] + d[5] * u[2]
-        ph.slide = 1.0 if v > 0.0 else (-1.0 if v < 0.0 else 0.0)
+        ph.slide = 1.0 if v > 0.0 else (-1.0 if v < 0.0 else _way_from_rest(bal, ph, t, y))
         bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
+
+
+def _way_from_rest(bal: Balance, ph: _Phase, t: float, y: np.ndarray) -> float:
+    """The way a vehicle at rest on a guide or track moves (+1, -1), or 0 if it stays: the way the pull along it
+    points (the balance's ``pull``), if sliding that way the balance accelerates it that way (the pull beats
+    kinetic friction, and the guide's foot does not hold it back). Leaves the balance in the phase at rest."""
+    bal.set_phase(ph.modes, ph.kin, ph.descending)
+    pull = float(bal.terms(t, y)["pull"])
+    way = 1.0 if pull > 0.0 else (-1.0 if pull < 0.0 else 0.0)
+    if way == 0.0:
+        return 0.0
+    u = bal.system.guide_dir
+    bal.set_phase(ph.modes, ph.kin, ph.descending, way)
+    d = bal.rhs(t, y)
+    bal.set_phase(ph.modes, ph.kin, ph.descending)
+    return way if way * (d[3] * u[0] + d[4] * u[1] + d[5] * u[2]) > 0.0 else 0.0
 
 
 def _propulsive(system: System, ph: _Phase) -> bool:
@@ -263,7 +277,8 @@ class _Action:
 
     kind : ``mode`` (a component switches to mode ``target``), ``stop`` (a component ends the run), ``trigger``
         (the trigger ``target`` acts), ``guide`` (guide exit), ``foot`` (back at the guide's foot), ``rest``
-        (came to rest on a guide or track), ``apogee``, ``impact``
+        (came to rest on a guide or track), ``breakaway`` (a vehicle at rest starts to move), ``apogee``,
+        ``impact``
     name, component : what the event log says
     """
 
@@ -482,14 +497,25 @@ class _Flight:
         u = np.array(sysm.guide_dir)
         self.events.append(Event(t, "came to rest", "vehicle", f"distance {float(np.dot(y[:3] - self.x0, u)):.4g} m"))
         y[3:6] = 0.0
-        # it stays at rest only if friction holds it and nothing pushes
-        bal.set_phase(ph.modes, ph.kin, ph.descending)
-        d = bal.rhs(t, y)
-        held = d[3] == 0.0 and d[4] == 0.0 and d[5] == 0.0
+        # it stays at rest only if friction holds it (it does not move off at once) and nothing pushes
+        held = _way_from_rest(bal, ph, t, y) == 0.0
         if held and not _propulsive(sysm, ph) and not self.pending and not self.triggers:
             self.segs.message = "came to rest on the track" if ph.kin == Kinematics.TRACK else \
                 "came to rest on the launch guide"
             return True
+        return False
+
+    def _on_breakaway(self, a: _Action) -> bool:
+        """The pull along the guide or track has outgrown the hold: the next segment starts sliding (the way it
+        slides: :func:`_set_segment_phase`). On a pad that is the lift-off, logged as the next segment starts
+        (:meth:`_lifts_off_pad`), not a second event."""
+        sysm = self.state.system
+        if self.ph.kin == Kinematics.GUIDE and sysm.launch.guide_length == 0.0:
+            return False
+        where = "guide" if self.ph.kin == Kinematics.GUIDE else "track"
+        way = "forward" if self.state.bal.terms(self.t, self.y)["pull"] > 0.0 else "backward"
+        self.events.append(Event(self.t, "break-away", "vehicle",
+                                 f"moves off {way}: the pull along the {where} outgrows what held it at rest"))
         return False
 
     def _on_foot(self, a: _Action) -> bool:
@@ -550,7 +576,7 @@ class _Flight:
 #: What each kind of event (other than a trigger's) does to the flight; True ends the run.
 _ON_EVENT: dict[str, Callable[[_Flight, _Action], bool]] = {
     "mode": _Flight._on_mode, "guide": _Flight._on_guide_exit, "apogee": _Flight._on_apogee,
-    "rest": _Flight._on_rest, "foot": _Flight._on_foot, "impact": _Flight._on_impact, "stop": _Flight._on_stop,
+    "rest": _Flight._on_rest, "breakaway": _Flight._on_breakaway, "foot": _Flight._on_foot, "impact": _Flight._on_impact, "stop": _Flight._on_stop,
 }
 
 
@@ -610,9 +636,10 @@ def _condition_fn(tr: Trigger, x0: np.ndarray, snapshot: _LastCall) -> Callable:
 def _events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray, triggers: list, pending: list
             ) -> tuple[list[Callable], list[_Action]]:
     """Active event functions for a phase, with what each one does: the components' events, the triggers and
-    the ones whose delay runs, then those of the mount and of the flight (guide exit, rest, apogee, impact)."""
+    the ones whose delay runs, then those of the mount and of the flight (break-away, guide exit, rest, apogee,
+    impact)."""
     pairs = _component_events(system, bal, ph) + _trigger_events(bal, x0, triggers, pending) + \
-        _kinematic_events(system, ph, x0)
+        _kinematic_events(system, bal, ph, x0)
     return [fn for fn, _ in pairs], [a for _, a in pairs]
 
 
@@ -645,10 +672,19 @@ def _trigger_events(bal: Balance, x0: np.ndarray, triggers: list, pending: list)
     return out
 
 
-def _kinematic_events(system: System, ph: _Phase, x0: np.ndarray) -> list[tuple[Callable, _Action]]:
+def _kinematic_events(system: System, bal: Balance, ph: _Phase, x0: np.ndarray) -> list[tuple[Callable, _Action]]:
     u = system.guide_dir
     out = []
     profile = vehicle_profile(system.parsed)
+    if ph.kin in (Kinematics.TRACK, Kinematics.GUIDE) and ph.slide == 0.0:
+        # at rest, held by static friction or the guide's foot: the segment ends where the pull along the guide or
+        # track outgrows the hold (the balance's break-away margin rises through zero), so that the next segment
+        # starts sliding and the start of the motion is no kink inside a step
+        terms = _LastCall(bal.terms)
+
+        def breakaway(t, y):
+            return float(terms(t, y)["breakaway"])
+        out.append((_terminal(breakaway, 1.0), _Action("breakaway", "break-away", "vehicle")))
     if ph.kin == Kinematics.GUIDE:
         # 1 nm beyond the guide's end, so that a zero-length guide (a pad) holds the vehicle until it moves; leaving
         # a pad is a lift-off, not the exit of a guide (whose speed would be that of the first nanometre)
