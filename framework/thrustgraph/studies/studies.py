@@ -229,7 +229,7 @@ POOL_FROM_ENSEMBLE = 4000
 #: The same for single flights (each design ~10-50 ms): a pool pays from a few dozen designs.
 POOL_FROM_SINGLE = 32
 #: Idle cores (:func:`~thrustgraph.studies.engines.idle_cores`: the idle share of the usable cores, watched for
-#: 0.2 s while the study sleeps; the one-minute load average counted the study's own process) ``auto`` needs to start a pool: a second worker
+#: 0.05 s while the study sleeps; the one-minute load average counted the study's own process) ``auto`` needs to start a pool: a second worker
 #: pays only on a core nobody else wants. On a busy machine the extra workers only share the cores the study
 #: had anyway (this machine's scheduler gives each session an equal share of a busy machine, however many
 #: processes it runs), and each worker's extra chunk is work a single process does not do: under a load
