@@ -348,8 +348,48 @@ def _clip(x, lo, hi):
     return t if (t != t or t < hi) else hi
 
 
+def _bracket_start(fa, fb, t0, h):
+    """One design's Illinois iteration on the step fraction [0, 1] (the numpy body's rules, design by design):
+    ``(root, done, tol)`` from the values at the ends; the root is NaN until found."""
+    done = fa == 0.0
+    root = 0.0 if done else (1.0 if fb == 0.0 else np.nan)
+    done = done or fb == 0.0
+    tol = _nmax(4 * _EPS * _nmax(abs(t0), 1.0) / (h if h > 0 else 1.0), 1e-13)
+    return root, done, tol
+
+
+def _bracket_point(a, b, fa, fb):
+    """The next point: the secant's, or the middle where the secant leaves the bracket."""
+    den = fb - fa
+    num = fb * (b - a)
+    if den != 0.0:
+        c = b - num / den
+    else:      # numpy's x / 0: inf or nan, never inside the bracket
+        c = np.nan
+    if not (c > _nmin(a, b) and c < _nmax(a, b)):
+        c = 0.5 * (a + b)
+    return c
+
+
+def _bracket_update(a, b, fa, fb, c, fc, tol):
+    """``(a, b, fa, fb, root, done)`` once the value at ``c`` is ``fc`` (the Illinois rule: the value kept at an
+    end that stays is halved)."""
+    if fc == 0.0:
+        return a, b, fa, fb, c, True
+    if _sgn(fc) != _sgn(fb):
+        fa, a = fb, b
+    else:
+        fa = fa * 0.5
+    b, fb = c, fc
+    if abs(b - a) <= tol:
+        return a, b, fa, fb, _nmax(a, b), True
+    return a, b, fa, fb, np.nan, False
+
+
 if numba is not None:      # the helpers compiled, for the compiled loops that call them
     _nmax, _nmin, _sgn, _clip = (_compiled(f) for f in (_nmax, _nmin, _sgn, _clip))
+    _bracket_start, _bracket_point, _bracket_update = (_compiled(f) for f in (_bracket_start, _bracket_point,
+                                                                               _bracket_update))
 
 
 #: designs per block of the compiled loops: a block's partial sums stay in the first-level cache, and the innermost
@@ -484,35 +524,16 @@ def _illinois_loop(y0, h, q, scale, ga, gb, t0):
         q0, q1, q2, q3 = q[0, i], q[1, i], q[2, i], q[3, i]
         a, b = 0.0, 1.0
         fa, fb = ga[i], gb[i]
-        done = fa == 0.0
-        root = 0.0 if done else (1.0 if fb == 0.0 else np.nan)
-        done = done or fb == 0.0
-        tol = _nmax(4 * _EPS * _nmax(abs(t0[i]), 1.0) / (hi if hi > 0 else 1.0), 1e-13)
+        root, done, tol = _bracket_start(fa, fb, t0[i], hi)
         for _ in range(80):
             if done:
                 break
-            den = fb - fa
-            num = fb * (b - a)
-            if den != 0.0:
-                c = b - num / den
-            else:      # numpy's x / 0: inf or nan, never inside the bracket
-                c = np.nan
-            if not (c > _nmin(a, b) and c < _nmax(a, b)):
-                c = 0.5 * (a + b)
+            c = _bracket_point(a, b, fa, fb)
             th = c * sc
             fc = yi + hi * (th * (q0 + th * (q1 + th * (q2 + th * q3))))
-            if fc == 0.0:
-                root = c
-                done = True
-                break
-            if _sgn(fc) != _sgn(fb):
-                fa, a = fb, b
-            else:
-                fa = fa * 0.5
-            b, fb = c, fc
-            if abs(b - a) <= tol:
-                root = _nmax(a, b)
-                done = True
+            a, b, fa, fb, r, done = _bracket_update(a, b, fa, fb, c, fc, tol)
+            if done:
+                root = r
         if root != root:
             root = _nmax(a, b)
         out[i] = root
@@ -581,21 +602,11 @@ def _illinois_along_loop(y0, h, q, x0, u, off, way, rest, ga, gb, t0):
         hi = h[i]
         a, b = 0.0, 1.0
         fa, fb = ga[i], gb[i]
-        done = fa == 0.0
-        root = 0.0 if done else (1.0 if fb == 0.0 else np.nan)
-        done = done or fb == 0.0
-        tol = _nmax(4 * _EPS * _nmax(abs(t0[i]), 1.0) / (hi if hi > 0 else 1.0), 1e-13)
+        root, done, tol = _bracket_start(fa, fb, t0[i], hi)
         for _ in range(80):
             if done:
                 break
-            den = fb - fa
-            num = fb * (b - a)
-            if den != 0.0:
-                c = b - num / den
-            else:      # numpy's x / 0: inf or nan, never inside the bracket
-                c = np.nan
-            if not (c > _nmin(a, b) and c < _nmax(a, b)):
-                c = 0.5 * (a + b)
+            c = _bracket_point(a, b, fa, fb)
             th = c
             for r in range(3):
                 d[r] = y0[r, i] + hi * (th * (q[r, 0, i] + th * (q[r, 1, i] + th * (q[r, 2, i] + th * q[r, 3, i]))))
@@ -604,18 +615,9 @@ def _illinois_along_loop(y0, h, q, x0, u, off, way, rest, ga, gb, t0):
                 fc = v if v != 0.0 else way * 1e-300
             else:
                 fc = (d[0] - x0[0, i]) * u[0, i] + (d[1] - x0[1, i]) * u[1, i] + (d[2] - x0[2, i]) * u[2, i] - off[i]
-            if fc == 0.0:
-                root = c
-                done = True
-                break
-            if _sgn(fc) != _sgn(fb):
-                fa, a = fb, b
-            else:
-                fa = fa * 0.5
-            b, fb = c, fc
-            if abs(b - a) <= tol:
-                root = _nmax(a, b)
-                done = True
+            a, b, fa, fb, r, done = _bracket_update(a, b, fa, fb, c, fc, tol)
+            if done:
+                root = r
         if root != root:
             root = _nmax(a, b)
         out[i] = root
