@@ -41,8 +41,10 @@ def _launch_mass() -> float:
     return M_DRY + K * T_TABLE * T_TABLE / 2.0 / VE
 
 
-def _rising_thrust(mount: str, elevation: float, mu: float, length: float, end: float):
-    """A body in vacuum with a jet whose thrust rises as K t, at rest on a guide (``length`` 0: a pad) or track."""
+def _rising_thrust(mount: str, elevation: float, mu: float, length: float, end: float, static: float | None = None):
+    """A body in vacuum with a jet whose thrust rises as K t, at rest on a guide (``length`` 0: a pad) or track;
+    ``static``: a static friction coefficient of its own (None: the same as ``mu``)."""
+    static_line = "" if static is None else f"static_friction = {static!r}"
     return model_from_toml(f"""
         flow_paths = ["motor -> outside"]
         [launch]
@@ -50,6 +52,7 @@ def _rising_thrust(mount: str, elevation: float, mu: float, length: float, end: 
         guide_length = "{length!r} m"
         elevation = "{elevation!r} deg"
         friction = {mu!r}
+        {static_line}
         attitude = "fixed"
         [run]
         end_time = "{end!r} s"

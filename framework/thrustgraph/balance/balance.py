@@ -141,8 +141,9 @@ class Balance:
         plan = self.plan
         c = plan.constraint
         self._u = c.u
-        self._mu = c.friction
-        self._friction = bool(ops.any(ops.abs(c.friction) > 0.0)) if ops.arrays else c.friction > 0.0
+        self._mu, self._mu_static = c.friction, c.static_friction
+        self._friction = bool(ops.any((ops.abs(c.friction) > 0.0) | (ops.abs(c.static_friction) > 0.0))) \
+            if ops.arrays else (c.friction > 0.0 or c.static_friction > 0.0)
         self._follow = c.follow_wind
         self._vmin = ops.maximum(c.min_follow_speed, 1e-9)
         self._need_frame = any(not ln.outlet_aft or not ln.jet_aft for ln in plan.lines) or \
@@ -627,20 +628,23 @@ class Balance:
 
     def _along(self, G: tuple) -> tuple:
         """The pull ``G`` along the guide or track, and the largest friction its normal part allows (Coulomb,
-        ``mu |N|``; 0 without friction)."""
+        ``mu |N|``; 0 without friction): sliding (kinetic, ``friction``) and at rest (static,
+        ``static_friction``)."""
         u0, u1, u2 = self._u
         Gx, Gy, Gz = G
         Gu = Gx * u0 + Gy * u1 + Gz * u2
         if not self._friction:
-            return Gu, 0.0
+            return Gu, 0.0, 0.0
         nx, ny, nz = Gx - Gu * u0, Gy - Gu * u1, Gz - Gu * u2
-        return Gu, self._mu * self.ops.sqrt(nx * nx + ny * ny + nz * nz)
+        normal = self.ops.sqrt(nx * nx + ny * ny + nz * nz)
+        return Gu, self._mu * normal, self._mu_static * normal
 
     def _guided(self, ctx: tuple, M: Any, F: tuple, first: _Sums, coupled: bool, kin: int):
-        """On a guide or track: a = alpha u, with friction mu |N| against the motion, held at the guide's foot.
+        """On a guide or track: a = alpha u, with kinetic friction mu |N| against the motion, static friction up to
+        mu_s |N| at rest (``static_friction``), held at the guide's foot.
 
         Also the break-away margin: how far the pull along the guide or track at zero acceleration exceeds what
-        holds a vehicle at rest (static friction ``mu |N|`` either way; at the guide's foot, the foot holds it
+        holds a vehicle at rest (static friction ``mu_s |N|`` either way; at the guide's foot, the foot holds it
         back), less the tolerance the acceleration is solved to (``1e-12 (|pull| + M g)``, so that where it is
         positive the acceleration at rest is not zero). A vehicle at rest starts to move where it rises through
         zero (the statics of a block on a rough incline, common practice, no source).
@@ -667,11 +671,11 @@ class Balance:
 
         def test(c):
             alpha, sums, held, singular = c
-            Gu, fmax = self._along(self._pull(F, sums))
+            Gu, fmax, fhold = self._along(self._pull(F, sums))
             fr: Any = 0.0
             if self._friction:
-                # kinetic friction against the motion; at rest, static friction holds up to fmax
-                fr = ops.where(way > 0.0, -fmax, ops.where(way < 0.0, fmax, ops.clip(-Gu, -fmax, fmax)))
+                # kinetic friction against the motion; at rest, static friction holds up to fhold
+                fr = ops.where(way > 0.0, -fmax, ops.where(way < 0.0, fmax, ops.clip(-Gu, -fhold, fhold)))
             r = M * alpha - Gu - fr
             return held | (ops.abs(r) <= 1e-12 * (ops.abs(Gu) + M * g + 1e-30)), (r, fr)
 
@@ -699,7 +703,7 @@ class Balance:
             (0.0, first, resting, False), test, step, self.max_newton if coupled else 1)
         if kin == Kinematics.GUIDE:
             fr = ops.where((alpha == 0.0) & at_foot, 0.0, fr)
-        pull, hold = self._along(self._pull(F, first))
+        pull, _, hold = self._along(self._pull(F, first))
         ahead = ops.abs(pull) if kin == Kinematics.TRACK else ops.where(at_foot, pull, ops.abs(pull))
         breakaway = ahead - hold - 1e-12 * (ops.abs(pull) + M * g + 1e-30)
         return (alpha * u0, alpha * u1, alpha * u2), sums, (fr * u0, fr * u1, fr * u2), singular, (breakaway, pull)

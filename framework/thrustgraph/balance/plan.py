@@ -150,7 +150,8 @@ class Constraint:
     """The mount's kinematic constraint and the attitude rule (SI; arrays over designs in an ensemble).
 
     ``mount`` is "held", "guide", "free" or "track"; ``u`` the guide or track direction (world frame, unit);
-    ``x0`` the launch point; ``friction`` the coefficient along the guide or track; ``follow_wind`` whether the
+    ``x0`` the launch point; ``friction`` the coefficient along the guide or track while the vehicle slides,
+    ``static_friction`` the one that holds it at rest (:func:`holding_friction`); ``follow_wind`` whether the
     body axis turns into the relative wind in free flight above ``min_follow_speed``; ``azimuth`` fixes the
     body's lateral axes when the axis is vertical.
     """
@@ -163,6 +164,24 @@ class Constraint:
     follow_wind: bool
     min_follow_speed: Any
     azimuth: Any
+    static_friction: Any = None
+
+    def __post_init__(self) -> None:
+        if self.static_friction is None:
+            object.__setattr__(self, "static_friction", self.friction)
+
+
+def holding_friction(launch: Any) -> Any:
+    """The static friction coefficient of the parsed launch settings (floats or arrays over designs): its own
+    ``static_friction``, or where that is absent the sliding ``friction`` (one coefficient for both).
+
+    >>> from types import SimpleNamespace
+    >>> holding_friction(SimpleNamespace(friction=0.3, static_friction=None))
+    0.3
+    >>> holding_friction(SimpleNamespace(friction=0.3, static_friction=0.5))
+    0.5
+    """
+    return launch.friction if launch.static_friction is None else launch.static_friction
 
 
 @dataclass(frozen=True)

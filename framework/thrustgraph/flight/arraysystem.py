@@ -36,7 +36,7 @@ import numpy as np
 
 from ..balance.arrayops import vectorised
 from ..balance.balance import Balance, Kinematics, array_line
-from ..balance.plan import KINEMATIC, Constraint, build_plan
+from ..balance.plan import KINEMATIC, Constraint, build_plan, holding_friction
 from ..balance.straightline import array_trace_ops
 from ..base.errors import PluginError
 from ..base.xp import array_ops
@@ -199,7 +199,8 @@ class ArraySystem:
             L = self.launch
             constraint = Constraint(mount=parsed.launch.mount, u=self.u, x0=self.x0, friction=L.friction,
                                     guide_length=self.guide_length, follow_wind=self.follow,
-                                    min_follow_speed=self.vmin, azimuth=L.azimuth)
+                                    min_follow_speed=self.vmin, azimuth=L.azimuth,
+                                    static_friction=holding_friction(L))
             plan = build_plan(parsed, self.kp, self.ep, array_ops, self.amb, self.slices, self.moded, constraint)
             self._made = (plan, None)        # the balance reads the plan as it is made
             self._made = (plan, Balance(self, ops=array_ops))

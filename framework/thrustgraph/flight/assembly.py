@@ -24,7 +24,7 @@ from ..kinds.component import EventSpec, Mode
 from ..kinds.contract import check_system
 from ..base.errors import ModelError
 from ..models.model import Model, ParsedModel, parse_model
-from ..balance.plan import ACCUMULATORS, KINEMATIC, Constraint, Plan, build_plan
+from ..balance.plan import ACCUMULATORS, KINEMATIC, Constraint, Plan, build_plan, holding_friction
 from ..balance.vectors import Vec, unit_from_angles
 from ..base.xp import scalar_ops
 
@@ -109,7 +109,8 @@ def constraint_of(launch: Any, u: tuple, x0: tuple) -> Constraint:
     """The mount's kinematic constraint from the parsed launch settings (floats or arrays over designs)."""
     return Constraint(mount=launch.mount, u=tuple(u), x0=tuple(x0), friction=launch.friction,
                       guide_length=launch.guide_length, follow_wind=launch.attitude == "follow-wind",
-                      min_follow_speed=launch.min_follow_speed, azimuth=launch.azimuth)
+                      min_follow_speed=launch.min_follow_speed, azimuth=launch.azimuth,
+                      static_friction=holding_friction(launch))
 
 
 def assemble(model: Model | ParsedModel, *, plugin_manager: pluggy.PluginManager | None = None) -> System:

@@ -70,7 +70,7 @@ from .assembly import assemble
 from ..models.designs import DesignParameter, bounds_text, with_values, within_bounds
 from ..base.errors import ModelError
 from .integrate import available_signals, check_launch_speed, rest_value
-from ..models.model import ParsedModel
+from ..models.model import ParsedModel, check_static_friction
 from ..balance.outcomes import OUTCOMES, STATUS_OK, STATUS_SCREENED, check_outputs
 from ..kinds.vehicle import vehicle_profile
 from ..kinds.component import ComponentKind
@@ -248,6 +248,19 @@ def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: n
                 for i in live[inverse.reshape(-1) == u]:
                     status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"
                     good[i] = False
+    # the launch's static friction against its sliding friction, as apply() checks it
+    col = {p.name: j for j, p in enumerate(params) if p.section == "launch"}
+    if "friction" in col or "static_friction" in col:
+        L = parsed.launch
+        fr = x[:, col["friction"]] if "friction" in col else np.full(N, L.friction)
+        st = x[:, col["static_friction"]] if "static_friction" in col else \
+            (fr if L.static_friction is None else np.full(N, L.static_friction))
+        for i in np.flatnonzero(good & (st < fr)):
+            try:
+                check_static_friction(fr[i], st[i])
+            except ModelError as exc:
+                status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"
+                good[i] = False
     return good
 
 
@@ -444,6 +457,7 @@ class _Run:
             self.x_first = np.array([np.broadcast_to(c, (n,)) for c in sysa.x0], dtype=float)
         self.gpos = np.broadcast_to(np.asarray(sysa.gravity(sysa.x0[2]), dtype=float) > 0.0, (n,)).copy()
         self.slide = np.zeros(n)
+        self.moving = np.zeros(n, dtype=bool)    # the break-away event has just found the design moving off
         self.set_slide(np.arange(n))
         self.F, aux = sysa.rhs(self.t, self.Y, self.modes, self.kin, slide=self.slide)
         self.calls += 1
@@ -482,8 +496,8 @@ class _Run:
         self.h = self.initial_step()
 
     # --- helpers ------------------------------------------------------------------------------------------
-    _PER_DESIGN = ("gid", "t", "h", "kin", "desc", "gpos", "slide", "zmax", "vmax", "amax", "burn", "apogee",
-                   "exit_speed", "impact_speed", "peak_p", "live", "rejected", "dropped", "t_first")
+    _PER_DESIGN = ("gid", "t", "h", "kin", "desc", "gpos", "slide", "moving", "zmax", "vmax", "amax", "burn",
+                   "apogee", "exit_speed", "impact_speed", "peak_p", "live", "rejected", "dropped", "t_first")
     #: per-design arrays carried over a separation (the designs' columns; the way a design slides is found anew
     #: when the next vehicle starts, as a single flight's segment starts)
     _CARRIED = ("t", "kin", "desc", "zmax", "vmax", "amax", "burn", "apogee", "exit_speed", "impact_speed", "peak_p",
@@ -652,12 +666,17 @@ class _Run:
 
     def way_from_rest(self, idx: np.ndarray) -> np.ndarray:
         """The way designs ``idx``, at rest on a guide or track, move (+1, -1), or 0 where they stay: the way the
-        pull along it points, if sliding that way the balance accelerates them that way (as a single flight's
+        pull along it points, if the pull outgrows what holds them at rest (the break-away margin is positive, or
+        the break-away event has just found so: ``moving``) and sliding that way the balance accelerates them that
+        way (as a single flight's
         :func:`thrustgraph.flight.integrate._way_from_rest`)."""
         sub = self.sysa if len(idx) == self.n else self.sysa.subset(idx)
         _, aux = sub.rhs(self.t[idx], self.Y[:, idx], self.modes[:, idx], self.kin[idx], slide=np.zeros(len(idx)))
         self.calls += 1
-        way = np.sign(np.broadcast_to(np.asarray(aux["pull"], dtype=float), (len(idx),)))
+        m = len(idx)
+        way = np.sign(np.broadcast_to(np.asarray(aux["pull"], dtype=float), (m,)))
+        held = ~(np.broadcast_to(np.asarray(aux["breakaway"], dtype=float), (m,)) > 0.0) & ~self.moving[idx]
+        way = np.where(held, 0.0, way)
         return np.where(way * self.accel_along(idx, way) > 0.0, way, 0.0)
 
     def waiting(self, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -928,7 +947,9 @@ class _Run:
                     self.finish(rows[held], STATUS_OK, "came to rest on the track" if self.parsed.launch.mount ==
                                 "track" else "came to rest on the launch guide")
                 elif kind == "breakaway":
-                    pass        # it moves off: the way it slides is found as its next phase starts (set_slide)
+                    # it moves off: the way it slides is found as its next phase starts (set_slide), where the
+                    # margin is ~0 (the event point), so the hold is known outgrown
+                    self.moving[rows] = True
                 elif kind == "apogee":
                     self.desc[rows] = True
                     self.apogee[rows] = Y[2, rows]
@@ -955,6 +976,7 @@ class _Run:
                     self.gold[j][cont] = gi[j]
                 self.fire_at_once(cont)
                 self.phase_checks(cont)
+            self.moving[evi] = False
         over = live & (t >= self.t_end * (1 - 4 * _EPS))
         self.finish(np.flatnonzero(over), STATUS_OK, "end time reached")
         bad = live & ~np.all(np.isfinite(Y), axis=0)

@@ -81,27 +81,30 @@ class _Phase:
         return c
 
 
-def _set_segment_phase(bal: Balance, ph: _Phase, t: float, y: np.ndarray) -> None:
+def _set_segment_phase(bal: Balance, ph: _Phase, t: float, y: np.ndarray, moving: bool = False) -> None:
     """Set the balance to the segment's phase, with the way it slides on a guide or track: the sign of the
     speed along it, or, starting at rest, the way it is about to move (:func:`_way_from_rest`; 0: held at rest
-    until it breaks away)."""
+    until it breaks away; ``moving``: it has just broken away)."""
     ph.slide = 0.0
     bal.set_phase(ph.modes, ph.kin, ph.descending)
     if ph.kin in (Kinematics.GUIDE, Kinematics.TRACK):
         u = bal.system.guide_dir
         v = float(y[3] * u[0] + y[4] * u[1] + y[5] * u[2])
-        ph.slide = 1.0 if v > 0.0 else (-1.0 if v < 0.0 else _way_from_rest(bal, ph, t, y))
+        ph.slide = 1.0 if v > 0.0 else (-1.0 if v < 0.0 else _way_from_rest(bal, ph, t, y, moving))
         bal.set_phase(ph.modes, ph.kin, ph.descending, ph.slide)
 
 
-def _way_from_rest(bal: Balance, ph: _Phase, t: float, y: np.ndarray) -> float:
+def _way_from_rest(bal: Balance, ph: _Phase, t: float, y: np.ndarray, moving: bool = False) -> float:
     """The way a vehicle at rest on a guide or track moves (+1, -1), or 0 if it stays: the way the pull along it
-    points (the balance's ``pull``), if sliding that way the balance accelerates it that way (the pull beats
-    kinetic friction, and the guide's foot does not hold it back). Leaves the balance in the phase at rest."""
+    points (the balance's ``pull``), if the pull outgrows what holds it at rest (the balance's break-away margin
+    is positive: static friction, the guide's foot; ``moving``: the break-away event has just found it so, at
+    the point where that margin crosses zero) and sliding that way the balance accelerates it that way (the pull
+    beats kinetic friction). Leaves the balance in the phase at rest."""
     bal.set_phase(ph.modes, ph.kin, ph.descending)
-    pull = float(bal.terms(t, y)["pull"])
+    terms = bal.terms(t, y)
+    pull = float(terms["pull"])
     way = 1.0 if pull > 0.0 else (-1.0 if pull < 0.0 else 0.0)
-    if way == 0.0:
+    if way == 0.0 or not (moving or float(terms["breakaway"]) > 0.0):
         return 0.0
     u = bal.system.guide_dir
     bal.set_phase(ph.modes, ph.kin, ph.descending, way)
@@ -314,6 +317,7 @@ class _Flight:
         self.state = _State(system, atol)
         self.guard = StepGuard.for_system(system, t_end=t_end, rtol=rtol, atol=atol)  # bounded work, model terms
         self.zero_len = 0
+        self.broke_away = False    # the break-away event has just ended a segment: the next one slides
 
     def start(self, t0: float, y0: Any, modes0: list[int] | None, kin0: int | None, descending: bool) -> None:
         system = self.state.system
@@ -347,7 +351,7 @@ class _Flight:
         return self.segs
 
     def _set_up(self) -> tuple[list[Callable], list[_Action]]:
-        _set_segment_phase(self.state.bal, self.ph, self.t, self.y)
+        _set_segment_phase(self.state.bal, self.ph, self.t, self.y, self.broke_away)
         return _events(self.state.system, self.state.bal, self.ph, self.x0, self.triggers, self.pending)
 
     def _begin_segment(self) -> list[tuple[Callable, _Action]] | None:
@@ -374,6 +378,7 @@ class _Flight:
                 self._switch(a.component, a.target)
                 self.events.append(Event(self.t, a.name, a.component, f"mode -> {a.target} (at once)"))
             fns, actions = self._set_up()
+        self.broke_away = False
         return list(zip(fns, actions))
 
     def _lifts_off_pad(self) -> bool:
@@ -510,6 +515,7 @@ class _Flight:
         slides: :func:`_set_segment_phase`). On a pad that is the lift-off, logged as the next segment starts
         (:meth:`_lifts_off_pad`), not a second event."""
         sysm = self.state.system
+        self.broke_away = True
         if self.ph.kin == Kinematics.GUIDE and sysm.launch.guide_length == 0.0:
             return False
         where = "guide" if self.ph.kin == Kinematics.GUIDE else "track"

@@ -36,7 +36,11 @@ LAUNCH_SPECS = (
     Quantity("guide_length", "m", default="0 m", low=0.0, high=10_000.0,
              doc="length the vehicle travels along the guide"),
     Number("friction", default=0.0, low=0.0, high=2.0,
-           doc="friction (or rolling-resistance) coefficient on the guide or track, times the normal force"),
+           doc="friction (or rolling-resistance) coefficient on the guide or track while the vehicle slides, times "
+               "the normal force"),
+    Number("static_friction", default="absent", low=0.0, high=2.0,
+           doc="coefficient of the static friction that holds a vehicle at rest on the guide or track, times the "
+               "normal force (at least friction; absent: the same as friction)"),
     Quantity("elevation", "deg", default="90 deg", low=0.0, high=90.0, doc="guide (and initial axis) angle above the horizon"),
     Quantity("azimuth", "deg", default="0 deg", low=-360.0, high=360.0, doc="direction of the guide, from +x toward +y"),
     Choice("attitude", options=("follow-wind", "fixed"), default="follow-wind",

@@ -36,7 +36,7 @@ from typing import Any, Sequence
 import numpy as np
 
 from ..base.errors import ModelError
-from .model import LAUNCH_SPECS, ParsedModel
+from .model import LAUNCH_SPECS, ParsedModel, check_static_friction
 from ..kinds.parameters import Quantity
 from ..base.units import Q_, parse_quantity, si_unit, to_si
 from ..base.xp import scalar_ops
@@ -280,6 +280,8 @@ def apply(parsed: ParsedModel, params: Sequence[DesignParameter], x: Sequence[fl
         parsed.env_kinds[slot].check(pn, f"environment.{slot}")
         new_env[slot] = pn
     new_launch = dataclasses.replace(parsed.launch, **launch) if launch else parsed.launch
+    if launch:
+        check_static_friction(new_launch.friction, new_launch.static_friction)
     ambient = parsed.ambient
     if "medium" in env or "altitude" in launch:
         from ..kinds.component import Ambient

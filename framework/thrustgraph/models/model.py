@@ -21,6 +21,7 @@ from pathlib import Path
 from typing import Any
 
 import networkx as nx
+import numpy as np
 import pluggy
 
 from ..kinds.component import Ambient, ComponentKind, EnvironmentKind
@@ -109,6 +110,7 @@ def _parse_model(model: Model, plugin_manager: pluggy.PluginManager | None) -> P
         env_params[slot] = p
 
     launch = parse_params(LAUNCH_SPECS, model.launch, where="launch")
+    check_static_friction(launch.friction, launch.static_friction)
     run = parse_params(RUN_SPECS, model.run, where="run")
 
     graph = _check_graph(model, kinds)
@@ -127,6 +129,27 @@ def _parse_model(model: Model, plugin_manager: pluggy.PluginManager | None) -> P
     if problems:
         raise ModelError("model", problems[0], "see the message above")
     return parsed
+
+
+def check_static_friction(friction: Any, static: Any) -> None:
+    """Refuse a static friction coefficient below the sliding one (``static`` None: the same): a vehicle at rest is
+    held at least as firmly as a sliding one is braked (dry friction: the static coefficient is the larger;
+    e.g. Meriam & Kraige, Engineering Mechanics: Statics, ch. 6; from memory).
+
+    >>> check_static_friction(0.3, 0.5)
+    >>> check_static_friction(0.3, 0.2)
+    Traceback (most recent call last):
+    ...
+    thrustgraph.base.errors.ModelError: launch.static_friction: 0.2 is below friction 0.3. Fix: give a static friction coefficient of at least 0.3, or leave static_friction out (then it equals friction).
+    """
+    if static is None:
+        return
+    low = np.asarray(static, dtype=float) < np.asarray(friction, dtype=float)
+    if np.any(low):
+        s, f = (float(np.broadcast_to(v, low.shape)[low][0]) if np.ndim(low) else float(v) for v in (static, friction))
+        raise ModelError("launch.static_friction", f"{s:g} is below friction {f:g}",
+                         f"give a static friction coefficient of at least {f:g}, or leave static_friction out (then "
+                         "it equals friction)")
 
 
 def _check_graph(model: Model, kinds: dict[str, type[ComponentKind]]) -> nx.DiGraph:
