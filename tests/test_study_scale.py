@@ -22,11 +22,12 @@ from conftest import HANG_GUARD
 import thrustgraph as tg
 from thrustgraph.base.errors import OutputError
 from thrustgraph.base.outputfiles import StreamedFile, write_all
-from thrustgraph.models.designs import apply
+from thrustgraph.models.designs import apply, resolve
 from thrustgraph.models.model import parse_model
 from thrustgraph.studies.dispersion import disperse
 from thrustgraph.studies.engines import ENSEMBLE_CHUNK, SerialEngine, default_chunk_size
-from thrustgraph.studies.studies import POOL_FROM_ENSEMBLE, POOL_IDLE_CORES, choose_engine, sweep
+from thrustgraph.studies.studies import ENSEMBLE_FROM, POOL_FROM_ENSEMBLE, POOL_IDLE_CORES, choose_engine, \
+    evaluate, sweep
 from thrustgraph.studies.studyflight import fly_design
 from thrustgraph.studies.studyprogress import StudyProgress
 from thrustgraph.studies.tablestream import StreamedTable, TableStream
@@ -223,6 +224,22 @@ def test_auto_flies_small_ensembles_in_this_process_and_large_ones_on_idle_cores
     monkeypatch.setattr("thrustgraph.studies.studies.usable_cores", lambda: 1)
     monkeypatch.setattr("thrustgraph.studies.studies.idle_cores", lambda: 1.0)
     assert choose_engine(10 ** 6, parsed) == ("serial", "ensemble")
+
+
+def test_auto_flies_an_ensemble_from_a_dozen_designs(bottle, monkeypatch):
+    # from ENSEMBLE_FROM designs (measured: benchmarks/small_studies.py) where the outcomes allow it; one design
+    # at a time below, and for outcomes the ensemble does not compute
+    parsed = parse_model(bottle)
+    monkeypatch.setattr("thrustgraph.studies.studies.usable_cores", lambda: 1)
+    assert choose_engine(ENSEMBLE_FROM - 1, parsed) == ("serial", "single")
+    assert choose_engine(ENSEMBLE_FROM, parsed) == ("serial", "ensemble")
+    assert choose_engine(ENSEMBLE_FROM, parsed, outputs=["apogee", "peak_thrust"]) == ("serial", "single")
+    # and the study flies it so: the same rows as the ensemble asked for by name
+    p = [resolve(parsed, "components.bottle.fill")]
+    x = np.linspace(0.2, 0.45, ENSEMBLE_FROM)[:, None]
+    auto = evaluate(bottle, p, x, parsed=parsed, quiet=True)
+    named = evaluate(bottle, p, x, parsed=parsed, flights="ensemble", engine="serial", quiet=True)
+    assert np.array_equal(auto.values, named.values, equal_nan=True)
 
 
 def test_idle_cores_are_the_idle_share_of_the_usable_cores_while_the_study_sleeps(monkeypatch):

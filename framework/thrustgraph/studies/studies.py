@@ -235,12 +235,22 @@ POOL_FROM_SINGLE = 32
 #: processes it runs), and each worker's extra chunk is work a single process does not do: under a load
 #: average of 7 on 2 cores, a pool of 2 took 1.8x the wall time of one process for 10,000 designs (measured).
 POOL_IDLE_CORES = 1.5
+#: ``--flights auto`` flies the designs as one vectorised ensemble from this many (where the model and the outcomes
+#: allow it), one at a time below. Measured (CPU time, one process, the same designs both ways, every bundled
+#: model: benchmarks/small_studies.py): at 16 designs the ensemble took 0.24-0.83 of the single flights' time
+#: (water-jet boat 0.24, bottle rocket 0.38, cold-gas track 0.83), at 8 designs 0.43-1.41, at 4 0.73-2.75. An
+#: ensemble has a fixed cost (its arrays and traced lines; 0.05-1.8 s, the most for real-gas tanks), a design's
+#: single flight costs 7-160 ms. It had been 200 since the ensemble's first version, when it paid from about a
+#: thousand designs.
+ENSEMBLE_FROM = 16
+#: a study of this many designs or more that must fly one at a time says why when it starts
+LARGE_STUDY = 200
 
 
 def choose_engine(n: int, parsed: ParsedModel, engine: str = "auto", flights: str = "auto",
                   outputs: Sequence[str] | None = None) -> tuple[str, str]:
-    """Resolve ``auto``: vectorised ensembles from a few hundred designs of a family they support (and outcomes
-    they compute); a process pool from :data:`POOL_FROM_ENSEMBLE` ensemble designs (:data:`POOL_FROM_SINGLE`
+    """Resolve ``auto``: vectorised ensembles from :data:`ENSEMBLE_FROM` designs of a family they support (and
+    outcomes they compute); a process pool from :data:`POOL_FROM_ENSEMBLE` ensemble designs (:data:`POOL_FROM_SINGLE`
     single flights) when more than one core is usable and the machine leaves :data:`POOL_IDLE_CORES` of them
     idle; this process otherwise."""
     if flights not in FLIGHTS + ("auto",):
@@ -249,7 +259,7 @@ def choose_engine(n: int, parsed: ParsedModel, engine: str = "auto", flights: st
         make_engine(str(engine))  # raises the clear message
     if flights == "auto":
         flights = "single"
-        if n >= 200:
+        if n >= ENSEMBLE_FROM:
             if unsupported(parsed) is None and all(o in COMPUTED for o in (outputs or DEFAULT_OUTPUTS)):
                 flights = "ensemble"
     if engine == "auto":
@@ -327,7 +337,7 @@ def _how_to_fly(n: int, parsed: ParsedModel, engine: Any, flights: str, outputs:
         eng_name, flights = choose_engine(n, parsed, engine, flights, outputs)
     else:
         eng_name, flights = engine.name, choose_engine(n, parsed, "serial", flights, outputs)[1]
-    why = unsupported(parsed) if flights == "ensemble" or n >= 200 else None
+    why = unsupported(parsed) if flights == "ensemble" or n >= LARGE_STUDY else None
     if flights == "ensemble" and why:
         raise ModelError("--flights ensemble", f"the vectorised ensemble cannot fly this model: {why}",
                          "use --flights single")
