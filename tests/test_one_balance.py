@@ -134,6 +134,8 @@ def _applies(parsed, path: str) -> bool:
         return path.split(".")[-1] in {f.name for f in parsed.env_kinds[owner].parameters}
     if section in ("stages", "triggers"):
         return owner in getattr(parsed.model, section)
+    if path == "launch.static_friction":        # varied where the model gives one
+        return parsed.launch.static_friction is not None
     return True
 
 
@@ -211,8 +213,10 @@ def _model(path, options: dict):
     for k in DELAYS:
         if k in options and _applies(parsed, k):
             m.set(k, f"{options[k]!r} s")
-    # a static friction of its own (the designs draw it from VARIED: at least the friction option)
-    m.set("launch.static_friction", 0.45)
+    # with friction, a static friction of its own (the designs draw it from VARIED: at least the friction option);
+    # without, none (a frictionless guide or track)
+    if options.get("launch.friction", 0.0) > 0.0:
+        m.set("launch.static_friction", 0.45)
     m.set("run.rtol", 1e-9)
     m.set("run.atol", 1e-9)
     # the ensemble's integrator family: DOP853 at rtol 1e-9 misses the tight-tolerance max speed and impulse by
@@ -222,9 +226,9 @@ def _model(path, options: dict):
 
 
 def _designs(parsed, n: int, rng: np.random.Generator):
-    # a tethered rig hovers upright (tilted, it slides off its pad at a crawl: outcomes of a few 1e-4 m/s)
-    used = {k: v for k, v in VARIED.items() if _applies(parsed, k)
-            and not (k == "launch.elevation" and "hose" in parsed.params)}
+    # every model's guide is drawn tilted too, the tethered rig's pad included (it was left upright while a tilted
+    # rig crawled off its pad with outcomes of a few 1e-4 m/s; since the break-away event both paths agree there)
+    used = {k: v for k, v in VARIED.items() if _applies(parsed, k)}
     params = [resolve(parsed, p) for p in used]
     x = np.column_stack([rng.uniform(lo, hi, n) for lo, hi in used.values()])
     if "components.pump.run_time" in used:           # every other design's pump never stops
