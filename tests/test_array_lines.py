@@ -19,12 +19,13 @@ from thrustgraph.models.designs import resolve
 from thrustgraph.models.model import parse_model
 
 MODELS = sorted(Path(tg.default_model_path()).parent.glob("*.toml"))
-#: vehicles traced over arrays; the others keep the general evaluator: lines with elements in series (solved by a
-#: root search that stops the batch when a design has no solution, which a straight line cannot decide at trace
-#: time: the hover rig, the boat). The real-gas tables trace through ops.each(..., many=) (the cold-gas track, the
-#: gas-cartridge cart).
+#: vehicles traced over arrays: every bundled one. Lines with elements in series (the hover rig, the boat) are solved
+#: by a root search that stops the batch when a design has no solution: traced as ``if any(...): raise`` (the
+#: general evaluator's ``ops.refuse_any``). The real-gas tables trace through ops.each(..., many=) (the cold-gas
+#: track, the gas-cartridge cart).
 TRACED = {"bottle-rocket", "twin-nozzle-bottle-rocket", "small-rocket-standard-atmosphere", "rocket-with-parachute",
-          "two-stage-demo", "cold-gas-free-floater", "cold-gas-track", "gas-cartridge-cart"}
+          "two-stage-demo", "cold-gas-free-floater", "cold-gas-track", "gas-cartridge-cart", "hose-fed-hover",
+          "water-jet-boat"}
 
 
 def _system(path: Path, n: int, rng: np.random.Generator) -> ArraySystem:

@@ -245,3 +245,28 @@ def test_sample_lines_equal_the_general_evaluator_over_arrays(path):
             assert np.array_equal(got.values[k], v, equal_nan=True), (path.stem, k)
         for k, v in ref.ledger.items():
             assert np.array_equal(got.ledger[k], v), (path.stem, k)
+
+
+def test_a_refusal_of_the_whole_batch_traces_over_arrays_and_for_one_design():
+    # ops.refuse_any: a line with no solution stops the whole batch (arrays) or the flight (one design); traced, it
+    # is a test written into the straight line, the same as the general evaluator's
+    from thrustgraph.balance.straightline import array_trace_ops, compile_function, trace_ops
+    from thrustgraph.base.xp import array_ops, scalar_ops
+
+    def body(ops):
+        def f(t, s):
+            x = s[0] * 2.0
+            ops.refuse_any(x > 1.0, ValueError, "no solution")
+            return [x + 1.0]
+        return f
+
+    arrays = compile_function(body(array_trace_ops), 1, designs=3)
+    assert arrays(0.0, [np.array([0.1, 0.2, 0.3])], tuple(arrays.per_design))[0].tolist() == [1.2, 1.4, 1.6]
+    with pytest.raises(ValueError, match="no solution"):
+        arrays(0.0, [np.array([0.1, 0.6, 0.3])], tuple(arrays.per_design))
+    with pytest.raises(ValueError, match="no solution"):
+        body(array_ops)(0.0, [np.array([0.1, 0.6, 0.3])])
+    one = compile_function(body(trace_ops), 1)
+    assert one(0.0, [0.25]) == [1.5] == body(scalar_ops)(0.0, [0.25])
+    with pytest.raises(ValueError, match="no solution"):
+        one(0.0, [0.75])

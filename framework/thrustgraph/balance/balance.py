@@ -1080,6 +1080,4 @@ def _solve_line(ln: LinePlan, up: Outlet, pa: Any, tmode: Any, smodes: tuple, mf
 def _refuse(ops: Any, cond: Any, message: str) -> None:
     """Stop the flight with ``message`` when ``cond`` holds: for one design, and for an ensemble when it holds
     for any design (a line without a solution ends the whole batch, as it ends each of its single flights)."""
-    ops.refuse(cond, IntegrationError, message)
-    if ops.arrays and ops.any(cond):
-        raise IntegrationError(message)
+    ops.refuse_any(cond, IntegrationError, message)

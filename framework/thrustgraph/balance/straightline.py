@@ -471,6 +471,8 @@ class TraceOps:
         body.stmts.append(("raise", f"{rec.const(error)}({rec.const(message)})"))
         rec.block.stmts.append(("if", sc, frozenset(dc), body, _Block(rec.block), ()))
 
+    refuse_any = refuse        # one design: the same
+
     @staticmethod
     def iterate(carry: Any, test: Callable, step: Callable, n: int) -> tuple[Any, Any]:
         """``for it in range(n): stop, aux = test(carry); if it and stop: break; carry = step(carry, aux)``;
@@ -676,6 +678,17 @@ class ArrayTraceOps(TraceOps):
     def refuse(cond: Any, error: type, message: str) -> None:
         """Nothing over arrays (as :meth:`ArrayOps.refuse`): the caller flags the designs."""
 
+    @staticmethod
+    def refuse_any(cond: Any, error: type, message: str) -> None:
+        """As :meth:`ArrayOps.refuse_any`: a condition known at trace time raises now; one that depends on the
+        state is written down as ``if _np_any(cond): raise error(message)``."""
+        if _static(cond):
+            ArrayOps.refuse_any(cond, error, message)
+            return
+        rec = _rec()
+        sc, dc = _lit(cond)
+        rec.block.stmts.append(("raise_any", sc, frozenset(dc), f"{rec.const(error)}({rec.const(message)})"))
+
     def iterate(self, carry: Any, test: Callable, step: Callable, n: int) -> tuple[Any, Any]:
         """As :meth:`TraceOps.iterate`; an iteration on values known at trace time (a builder's root search over
         parameters per design) runs now, as :meth:`ArrayOps.iterate` runs it, and gives values, not symbols."""
@@ -718,6 +731,9 @@ def _prune(block: _Block, live: set) -> list:
                 live.update(st[3])
                 kept.append(st)
         elif kind == "raise":
+            kept.append(st)
+        elif kind == "raise_any":
+            live.update(st[2])
             kept.append(st)
         elif kind == "if":
             _, sc, dc, bt, bf, targets = st
@@ -767,6 +783,8 @@ def _read(stmts: list, names: set) -> None:
     for st in stmts:
         if st[0] == "=":
             names.update(st[3])
+        elif st[0] == "raise_any":
+            names.update(st[2])
         elif st[0] == "if":
             names.update(st[2])
             _read(st[3], names)
@@ -780,7 +798,7 @@ def _read(stmts: list, names: set) -> None:
 def _raises(block: Any) -> bool:
     stmts = block.stmts if isinstance(block, _Block) else block
     for st in stmts:
-        if st[0] == "raise":
+        if st[0] in ("raise", "raise_any"):
             return True
         if st[0] == "if" and (_raises(st[3]) or _raises(st[4])):
             return True
@@ -794,6 +812,9 @@ def _write(stmts: list, indent: str, out: list) -> None:
             out.append(f"{indent}{st[1]} = {st[2]}")
         elif kind == "raise":
             out.append(f"{indent}raise {st[1]}")
+        elif kind == "raise_any":
+            out.append(f"{indent}if {st[1]}:")
+            out.append(f"{indent}    raise {st[3]}")
         elif kind == "if":
             _, sc, _dc, kt, kf, _targets = st
             if kt:
@@ -824,6 +845,9 @@ def _write_arrays(stmts: list, indent: str, out: list, count: list) -> None:
             out.append(f"{indent}{st[1]} = {st[2]}")
         elif kind == "raise":
             raise TraceError("a refusal in the array dialect")
+        elif kind == "raise_any":
+            out.append(f"{indent}if _np_any({st[1]}):")
+            out.append(f"{indent}    raise {st[3]}")
         elif kind == "if":
             _, sc, _dc, kt, kf, targets = st
             count[0] += 1

@@ -16,7 +16,9 @@ The convention for code written against it:
    is itself).
    An iteration to convergence is written as ``ops.iterate(carry, test, step, n)``, and a condition that stops
    one design's flight as ``ops.refuse(cond, ErrorClass, message)`` (raised for a float, ignored over arrays
-   where the caller flags the designs).
+   where the caller flags the designs); one that stops the whole batch when it holds for any design as
+   ``ops.refuse_any(cond, ErrorClass, message)`` (a line with no solution). Code that reduces a state-dependent
+   condition with ``ops.any`` or ``ops.all`` cannot be traced into a straight line (docs/balance.md).
 3. Parameters may be floats (shared by every design) or arrays; modes reach a callable as an ``int`` when
    every design shares it, else as an integer array. Return floats or arrays; a design's numbers must not
    depend on which other designs share the arrays.
@@ -129,6 +131,13 @@ class ScalarOps:
             raise error(message)
 
     @staticmethod
+    def refuse_any(cond: Any, error: type, message: str) -> None:
+        """Raise ``error(message)`` when ``cond`` holds: for one design as :meth:`refuse`; over arrays (see
+        :meth:`ArrayOps.refuse_any`) when it holds for any design, which stops the whole batch."""
+        if cond:
+            raise error(message)
+
+    @staticmethod
     def iterate(carry: Any, test: Callable, step: Callable, n: int) -> tuple[Any, Any]:
         """At most ``n`` steps of an iteration: ``stop, aux = test(carry)``; from the second pass on, leave when
         ``stop``; else ``carry = step(carry, aux)``. Returns ``(carry, aux)``, ``aux`` from the last test."""
@@ -208,6 +217,13 @@ class ArrayOps:
     @staticmethod
     def refuse(cond: Any, error: type, message: str) -> None:
         """Nothing over arrays: the caller flags the designs where ``cond`` holds."""
+
+    @staticmethod
+    def refuse_any(cond: Any, error: type, message: str) -> None:
+        """Raise ``error(message)`` when ``cond`` holds for any design: the whole batch stops (a condition that
+        ends each of its single flights, and that the caller cannot flag design by design)."""
+        if np.any(cond):
+            raise error(message)
 
     @staticmethod
     def iterate(carry: Any, test: Callable, step: Callable, n: int) -> tuple[Any, Any]:
