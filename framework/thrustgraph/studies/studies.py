@@ -237,8 +237,8 @@ POOL_FROM_SINGLE = 32
 POOL_IDLE_CORES = 1.5
 #: ``--flights auto`` flies the designs as one vectorised ensemble from this many (where the model and the outcomes
 #: allow it), one at a time below. Measured (CPU time, one process, the same designs both ways, every bundled
-#: model: benchmarks/small_studies.py): at 16 designs the ensemble took 0.24-0.83 of the single flights' time
-#: (water-jet boat 0.24, bottle rocket 0.38, cold-gas track 0.83), at 8 designs 0.43-1.41, at 4 0.73-2.75. An
+#: model: benchmarks/small_studies.py): at 16 designs the ensemble took 0.17-0.79 of the single flights' time
+#: (water-jet boat 0.17, bottle rocket 0.37, cold-gas track 0.79), at 8 designs 0.33-1.36, at 4 0.63-2.68. An
 #: ensemble has a fixed cost (its arrays and traced lines; 0.05-1.8 s, the most for real-gas tanks), a design's
 #: single flight costs 7-160 ms. It had been 200 since the ensemble's first version, when it paid from about a
 #: thousand designs.
