@@ -156,8 +156,8 @@ class Balance:
         self._vectorised = (ops is scalar_ops and parsed is not None and hasattr(system, "slices")
                             and all(getattr(k, "vectorised", False) for k in parsed.kinds.values())
                             and all(getattr(k, "vectorised", False) for k in parsed.env_kinds.values()))
-        # ... and traced (a line with elements in series is solved by a root search, which is not traced yet)
-        self._traceable = self._vectorised and not any(ln.series for ln in plan.lines)
+        # ... and traced (a line with elements in series too: its root search stops the flight with ops.refuse_any)
+        self._traceable = self._vectorised
         made = getattr(system, "straight_lines", None)
         self._lines_made: dict[tuple, Any] = made if isinstance(made, dict) else {}
         self._tracer: Balance | None = None
@@ -351,9 +351,6 @@ class Balance:
         (tests/test_straightline.py). None until the phase has been sampled :data:`SAMPLES_AFTER` times, and for
         a vehicle or phase that cannot be traced (the general evaluator serves then)."""
         if not self._traceable or self._phase_key is None:
-            if self._vectorised and not self._traceable:
-                self.untraced[("sample line", want, n_states)] = ("a line with elements in series is solved by a root "
-                                                                  "search, which is not traced")
             return None
         key = ("sample line", self._phase_key, want, n_states)
         made = self._lines_made.get(key)
