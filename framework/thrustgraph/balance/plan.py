@@ -164,11 +164,7 @@ class Constraint:
     follow_wind: bool
     min_follow_speed: Any
     azimuth: Any
-    static_friction: Any = None
-
-    def __post_init__(self) -> None:
-        if self.static_friction is None:
-            object.__setattr__(self, "static_friction", self.friction)
+    static_friction: Any
 
 
 def holding_friction(launch: Any) -> Any:
