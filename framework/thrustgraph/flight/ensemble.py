@@ -69,7 +69,7 @@ from .arraysystem import FREE, GUIDE, HELD, IMPULSE, TRACK, ArraySystem, PhaseGr
 from .assembly import assemble
 from ..models.designs import DesignParameter, bounds_text, with_values, within_bounds
 from ..base.errors import ModelError
-from .integrate import available_signals, check_launch_speed, rest_value
+from .integrate import available_signals, check_launch_speed, reached, rest_value
 from ..models.model import ParsedModel, check_static_friction
 from ..balance.outcomes import OUTCOMES, STATUS_OK, STATUS_SCREENED, check_outputs
 from ..kinds.vehicle import vehicle_profile
@@ -894,6 +894,13 @@ class _Run:
             te = t[evi] + th_min * hh[evi]
             Fe, aux_e = sub_e.rhs(te, Ye, modes[:, evi], kin[evi], slide=self.slide[evi])  # the old phase there
             self.calls += 1
+            # events that cross in this step and have reached their zero at the event point fire with it (a
+            # signal that stops exactly at a trigger's threshold: integrate.reached, on both paths)
+            for j, (kind, direction, _) in enumerate(ev.slots):
+                cand = hit[j][evi] & np.isfinite(thetas[j]) & ~which[j]
+                if np.any(cand):
+                    ge = ev.value(j, sub_e, te, Ye, aux_e, due=self.due[:, evi])
+                    which[j] |= cand & reached(self.gold[j][evi], ge, direction)
         cut = np.isfinite(theta_ev)
         th_end = np.where(cut, theta_ev, 1.0)
         if np.any(acc):

@@ -455,7 +455,8 @@ class _Flight:
             self.events.append(Event(self.t, "end time", "vehicle", "the run reached run.end_time"))
             self.segs.status, self.segs.message = 0, "end time reached"
             return True
-        fired = [actions[k][1] for k, te in enumerate(sol.t_events) if len(te)]
+        first = [k for k, te in enumerate(sol.t_events) if len(te)]
+        fired = [actions[k][1] for k in first + self._reached_together(sol, actions, first)]
         if sol.t[-1] - sol.t[0] <= 1e-12 * max(1.0, abs(self.t)):
             self.zero_len += 1
             if self.zero_len > 20:
@@ -473,6 +474,16 @@ class _Flight:
             else:
                 stop = _ON_EVENT[a.kind](self, a) or stop
         return stop
+
+    @staticmethod
+    def _reached_together(sol: Any, actions: list[tuple[Callable, _Action]], first: list[int]) -> list[int]:
+        """The other events that cross in the segment's last step and have reached their zero at the point of
+        the event that ended it (:func:`reached`): they fire with it."""
+        if len(sol.t) < 2:
+            return []
+        t0, y0, t1, y1 = sol.t[-2], sol.y[:, -2], sol.t[-1], sol.y[:, -1]
+        return [k for k, (fn, _) in enumerate(actions)
+                if k not in first and reached(fn(t0, y0), fn(t1, y1), fn.direction)]
 
     # -- what the events do --------------------------------------------------------------------------------
     def _switch(self, component: str, mode: str) -> None:
@@ -623,6 +634,25 @@ class _LastCall:
             self.key = key
             self.value = self.f(t, y)
         return self.value
+
+
+def reached(g_start: Any, g_point: Any, direction: float) -> Any:
+    """Whether an event function that was at ``g_start`` where the step began has reached its zero at an
+    event's point, where it is ``g_point``, crossing in ``direction`` (floats or arrays over designs).
+
+    Events located in the same step at the same point fire together: a signal that stops exactly at a trigger's
+    threshold (a burn clock stopping at the burnout time the trigger names) reaches it at the burnout event's
+    point, whichever of the two equal roots the locator sorts first. One rule for a single flight (solve_ivp
+    reports only the first of equal terminal roots) and an ensemble.
+
+    >>> reached(-1.0, 0.0, 1.0), reached(-1.0, -1e-12, 1.0), reached(2.0, 0.0, -1.0)
+    (True, False, True)
+    """
+    if direction > 0:
+        return (g_start <= 0.0) & (g_point >= 0.0)
+    if direction < 0:
+        return (g_start >= 0.0) & (g_point <= 0.0)
+    return ((g_start <= 0.0) & (g_point >= 0.0)) | ((g_start >= 0.0) & (g_point <= 0.0))
 
 
 def _terminal(fn: Callable, direction: float) -> Callable:
