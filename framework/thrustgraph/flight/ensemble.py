@@ -68,7 +68,7 @@ from ..balance.arrayops import keep_heap
 from .arraysystem import FREE, GUIDE, HELD, IMPULSE, TRACK, ArraySystem, PhaseGroups, unsupported
 from .assembly import assemble
 from ..models.designs import DesignParameter, bounds_text, with_values, within_bounds
-from ..base.errors import ModelError
+from ..base.errors import IntegrationError, ModelError
 from .integrate import available_signals, check_launch_speed, reached, rest_value
 from ..models.model import ParsedModel, check_static_friction
 from ..balance.outcomes import OUTCOMES, STATUS_OK, STATUS_SCREENED, check_outputs
@@ -308,6 +308,12 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
     max_steps : step budget per design (attempted steps); a design that exceeds it is screened out
     compact : shrink the arrays when fewer than this fraction of the designs are still flying
     progress : called now and then with the number of designs finished (flown or screened)
+
+    A design whose flight fails on the way (a line that can no longer pass its flow: the balance raises
+    :class:`~thrustgraph.base.errors.IntegrationError` for the whole batch) is screened with the message its single
+    flight gives (:func:`thrustgraph.studies.studyflight.fly_design`); the batch is flown again in halves until
+    the failing designs are alone, and every other design's numbers are those of any batch (each design's steps
+    depend on its own rows only).
     """
     t_start = time.perf_counter()
     stepkernel.ready()
@@ -320,6 +326,43 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
         outputs = [k for k in COMPUTED if k != "dropped_mass" or parsed.stages]
     outputs = tuple(check_outputs(outputs))
     x = np.asarray(x, dtype=float).reshape(-1, len(params))
+    shown = [0]
+
+    def told(k: int) -> None:             # designs finished, never fewer than already shown (a batch flown again)
+        if k > shown[0]:
+            shown[0] = k
+            progress(k)
+
+    res = _fly_halving(parsed, params, x, outputs, rtol, atol, max_steps, compact,
+                       None if progress is None else told, 0)
+    return dataclasses.replace(res, seconds=time.perf_counter() - t_start)
+
+
+def _fly_halving(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray, outputs: tuple[str, ...],
+                 rtol: float | None, atol: float | None, max_steps: int, compact: float, progress, before: int
+                 ) -> EnsembleResult:
+    """:func:`_fly_batch`; a batch that a design's failure stops is flown again in halves (``before``: the
+    designs of the whole ensemble ahead of this batch, for ``progress``)."""
+    try:
+        return _fly_batch(parsed, params, x, outputs, rtol, atol, max_steps, compact,
+                          None if progress is None else (lambda k: progress(before + k)))
+    except IntegrationError as exc:
+        if len(x) == 1:
+            out = np.full((1, len(outputs)), np.nan)
+            return EnsembleResult([STATUS_SCREENED], [f"integration failed: {exc}"], out, outputs,
+                                  np.zeros(1, dtype=np.int64), 0, 0.0, {st: np.full(1, np.nan) for st in parsed.stages})
+    half = len(x) // 2
+    a = _fly_halving(parsed, params, x[:half], outputs, rtol, atol, max_steps, compact, progress, before)
+    b = _fly_halving(parsed, params, x[half:], outputs, rtol, atol, max_steps, compact, progress, before + half)
+    return EnsembleResult(a.status + b.status, a.notes + b.notes, np.concatenate([a.values, b.values]), outputs,
+                          np.concatenate([a.steps, b.steps]), a.rhs_calls + b.rhs_calls, 0.0,
+                          {st: np.concatenate([a.separations[st], b.separations[st]]) for st in a.separations})
+
+
+def _fly_batch(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.ndarray, outputs: tuple[str, ...],
+               rtol: float | None, atol: float | None, max_steps: int, compact: float, progress) -> EnsembleResult:
+    """One vectorised batch of :func:`fly_designs` (its arguments, checked)."""
+    t_start = time.perf_counter()
     N = len(x)
     rtol = float(parsed.run.rtol if rtol is None else rtol)
     atol = float(parsed.run.atol if atol is None else atol)
@@ -332,11 +375,11 @@ def fly_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.nd
     good = _screen_designs(parsed, params, x, status, notes)
     _screen_launch_speed(parsed, params, x, good, status, notes)
     gid = np.flatnonzero(good)
+    seps = {st: np.full(N, np.nan) for st in parsed.stages}
     if len(gid) == 0:
         return EnsembleResult(status, notes, _table(out, outputs), outputs, steps_taken, 0,
-                              time.perf_counter() - t_start)
+                              time.perf_counter() - t_start, seps)
     triggers = _resolved_triggers(parsed)
-    seps = {st: np.full(N, np.nan) for st in parsed.stages}
     calls = 0
     finished = N - len(gid)
     with np.errstate(all="ignore"):
