@@ -72,9 +72,11 @@ OPTIONS = {
     "components.vent.arrangement": ("one-sided", "symmetric"),
     # the stages and triggers of the two-stage demo: what separates, on which condition, and what it does
     "stages.booster.components": (["booster_frame", "booster_motor"], ["booster_motor"]),
+    # (at the burnout time, the clock and the time reach their values at the burnout's own point: events that
+    # reach their zero together fire together on both paths)
     "triggers.drop_booster.when": ("booster_motor.burn_clock > 1.2 s", "time > 0.9 s", "altitude > 40 m",
                                    "booster_motor.propellant_mass < 0.01 kg", "speed > 95 m/s",
-                                   "vertical_speed < -2 m/s"),
+                                   "vertical_speed < -2 m/s", "time > 1.2 s"),
     "triggers.drop_booster.then": ("separate", "separate", "stop"),
     "triggers.light_sustainer.when": ("time > 1.5 s", "mass < 0.3 kg", "altitude > 60 m"),
 }
