@@ -350,8 +350,8 @@ def test_the_hover_rig_lifting_off_its_pad_equals_single_flights(options, seed):
 def test_the_hover_rig_held_on_a_stand_equals_single_flights(options, seed):
     """The hose-fed hover rig held on a test stand, its supply spinning up over 20-150 s: no state changes, so
     the ensemble's steps are held by its impulse row alone and a single flight's by nothing (they grow tenfold
-    each; its impulse comes from Gauss-Legendre quadrature on each step). Every outcome within 1e-6 (a flow-fed
-    hose ramped over 1 s is 4e-5 apart: tests/test_ensemble_failures.py)."""
+    each; its impulse is checked piece by piece against the Gauss-Kronrod rule: tests/test_impulse_quadrature.py).
+    Every outcome within 1e-6."""
     _outcomes_agree(parse_model(_model(HOVER, {**options, "launch.mount": "held"})), np.random.default_rng(seed))
 
 
