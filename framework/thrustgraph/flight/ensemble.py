@@ -887,13 +887,7 @@ class _Run:
             if gnew[j] is self.gold[j]:
                 hit.append(act)
                 continue
-            go, gn = self.gold[j], gnew[j]
-            if direction > 0:                 # rising through zero
-                cr = act & (go <= 0.0) & (gn >= 0.0)
-            elif direction < 0:               # falling through zero
-                cr = act & (go >= 0.0) & (gn <= 0.0)
-            else:
-                cr = act & (((go <= 0.0) & (gn >= 0.0)) | ((go >= 0.0) & (gn <= 0.0)))
+            cr = act & reached(self.gold[j], gnew[j], direction)     # crossed its zero in the step
             hit.append(cr)
             cross_any |= cr
         evi = np.flatnonzero(cross_any)

@@ -637,13 +637,15 @@ class _LastCall:
 
 
 def reached(g_start: Any, g_point: Any, direction: float) -> Any:
-    """Whether an event function that was at ``g_start`` where the step began has reached its zero at an
-    event's point, where it is ``g_point``, crossing in ``direction`` (floats or arrays over designs).
+    """Whether an event function that was at ``g_start`` where a step began has reached its zero at a later
+    point, where it is ``g_point``, crossing in ``direction`` (floats or arrays over designs): solve_ivp's test
+    for an event inside a step, and the ensemble's (at the step's end).
 
-    Events located in the same step at the same point fire together: a signal that stops exactly at a trigger's
-    threshold (a burn clock stopping at the burnout time the trigger names) reaches it at the burnout event's
-    point, whichever of the two equal roots the locator sorts first. One rule for a single flight (solve_ivp
-    reports only the first of equal terminal roots) and an ensemble.
+    At an event's point it also says which other events fire with it: events located in the same step at the
+    same point fire together. A signal that stops exactly at a trigger's threshold (a burn clock stopping at the
+    burnout time the trigger names) reaches it at the burnout event's point, whichever of the two equal roots the
+    locator sorts first. One rule for a single flight (solve_ivp reports only the first of equal terminal roots)
+    and an ensemble.
 
     >>> reached(-1.0, 0.0, 1.0), reached(-1.0, -1e-12, 1.0), reached(2.0, 0.0, -1.0)
     (True, False, True)
