@@ -15,7 +15,7 @@ components.bottle.volume: must be positive, got -1 L. Fix: give the bottle's int
 from __future__ import annotations
 
 __all__ = ["ThrustgraphError", "ModelError", "PluginError", "ContractError", "IntegrationError", "OutputError", "shorten",
-           "ECHO_LENGTH"]
+           "ECHO_LENGTH", "screened_note"]
 
 #: How many characters of a user's input a message echoes before it is cut.
 ECHO_LENGTH = 80
@@ -195,3 +195,22 @@ class OutputError(ThrustgraphError):
         if fix:
             text += f". Fix: {fix.rstrip('.')}."
         super().__init__(text)
+
+
+def screened_note(exc: BaseException) -> str:
+    """The note of a study's row for a design screened out because its flight raised ``exc`` (a design's model
+    error, an integration failure, another deliberate error, or a numerical one): one wording for single flights
+    and ensembles.
+
+    >>> screened_note(IntegrationError("components.jet: cannot pass the flow its supply fixes"))
+    'integration failed: components.jet: cannot pass the flow its supply fixes'
+    >>> screened_note(ZeroDivisionError("float division by zero"))
+    'integration failed: ZeroDivisionError: float division by zero'
+    """
+    if isinstance(exc, ModelError):
+        return f"model error: {exc}"
+    if isinstance(exc, IntegrationError):
+        return f"integration failed: {exc}"
+    if isinstance(exc, ThrustgraphError):
+        return f"error: {exc}"
+    return f"integration failed: {type(exc).__name__}: {exc}"

@@ -68,7 +68,7 @@ from ..balance.arrayops import keep_heap
 from .arraysystem import FREE, GUIDE, HELD, IMPULSE, TRACK, ArraySystem, PhaseGroups, unsupported
 from .assembly import assemble
 from ..models.designs import DesignParameter, bounds_text, with_values, within_bounds
-from ..base.errors import IntegrationError, ModelError
+from ..base.errors import IntegrationError, ModelError, screened_note
 from .integrate import available_signals, check_launch_speed, reached, rest_value
 from ..models.model import ParsedModel, check_static_friction
 from ..balance.outcomes import OUTCOMES, STATUS_OK, STATUS_SCREENED, check_outputs
@@ -246,7 +246,7 @@ def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: n
                 cls.check(with_values(base, {nm: float(v) for (nm, _), v in zip(cols, row)}), f"{section}.{owner}")
             except ModelError as exc:
                 for i in live[inverse.reshape(-1) == u]:
-                    status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"
+                    status[i], notes[i] = STATUS_SCREENED, screened_note(exc)
                     good[i] = False
     # the launch's static friction against its sliding friction, as apply() checks it
     col = {p.name: j for j, p in enumerate(params) if p.section == "launch"}
@@ -259,7 +259,7 @@ def _screen_designs(parsed: ParsedModel, params: Sequence[DesignParameter], x: n
             try:
                 check_static_friction(fr[i], st[i])
             except ModelError as exc:
-                status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"
+                status[i], notes[i] = STATUS_SCREENED, screened_note(exc)
                 good[i] = False
     return good
 
@@ -275,7 +275,7 @@ def _screen_launch_speed(parsed: ParsedModel, params: Sequence[DesignParameter],
         try:
             check_launch_speed(dataclasses.replace(parsed.launch, speed=float(speeds[i])))
         except ModelError as exc:
-            status[i], notes[i] = STATUS_SCREENED, f"model error: {exc}"
+            status[i], notes[i] = STATUS_SCREENED, screened_note(exc)
             good[i] = False
 
 
@@ -349,7 +349,7 @@ def _fly_halving(parsed: ParsedModel, params: Sequence[DesignParameter], x: np.n
     except IntegrationError as exc:
         if len(x) == 1:
             out = np.full((1, len(outputs)), np.nan)
-            return EnsembleResult([STATUS_SCREENED], [f"integration failed: {exc}"], out, outputs,
+            return EnsembleResult([STATUS_SCREENED], [screened_note(exc)], out, outputs,
                                   np.zeros(1, dtype=np.int64), 0, 0.0, {st: np.full(1, np.nan) for st in parsed.stages})
     half = len(x) // 2
     a = _fly_halving(parsed, params, x[:half], outputs, rtol, atol, max_steps, compact, progress, before)
@@ -933,7 +933,7 @@ class _Run:
             self.calls += 1
             # events that cross in this step and have reached their zero at the event point fire with it (a
             # signal that stops exactly at a trigger's threshold: integrate.reached, on both paths)
-            for j, (kind, direction, _) in enumerate(ev.slots):
+            for j, (_, direction, _) in enumerate(ev.slots):
                 cand = hit[j][evi] & np.isfinite(thetas[j]) & ~which[j]
                 if np.any(cand):
                     ge = ev.value(j, sub_e, te, Ye, aux_e, due=self.due[:, evi])

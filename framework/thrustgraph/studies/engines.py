@@ -66,7 +66,7 @@ from typing import Any, Iterable, Iterator
 
 import numpy as np
 
-from ..base.errors import ModelError
+from ..base.errors import ModelError, screened_note
 from ..base.interrupts import sigint_held
 from ..models.model import Model
 from ..models.designs import apply, bounds_text, resolve, within_bounds
@@ -171,7 +171,7 @@ class FlightTask:
                 design = apply(parsed, params, x[r])
             except ModelError as exc:
                 status.append(STATUS_SCREENED)
-                notes.append(f"model error: {exc}")
+                notes.append(screened_note(exc))
                 continue
             out = fly_design(design, self.outputs, rtol=self.rtol, atol=self.atol)
             if progress is not None:

@@ -21,7 +21,7 @@ from dataclasses import dataclass, field
 from typing import Sequence
 
 from ..flight.assembly import assemble
-from ..base.errors import IntegrationError, ModelError, PluginError, ThrustgraphError
+from ..base.errors import PluginError, ThrustgraphError, screened_note
 from ..flight.integrate import fly_segments
 from ..models.model import ParsedModel
 from ..balance.outcomes import STATUS_OK, STATUS_SCREENED, summarise
@@ -55,14 +55,8 @@ def fly_design(parsed: ParsedModel, outputs: Sequence[str] | None = None, *, rto
         segs = fly_segments(system, rtol=rtol, atol=atol)
     except PluginError:     # a broken plugin is not a bad design: the study stops with the plugin's message
         raise
-    except ModelError as exc:
-        return Outcome(STATUS_SCREENED, f"model error: {exc}")
-    except IntegrationError as exc:
-        return Outcome(STATUS_SCREENED, f"integration failed: {exc}")
-    except ThrustgraphError as exc:
-        return Outcome(STATUS_SCREENED, f"error: {exc}")
-    except (ArithmeticError, ValueError) as exc:
-        return Outcome(STATUS_SCREENED, f"integration failed: {type(exc).__name__}: {exc}")
+    except (ThrustgraphError, ArithmeticError, ValueError) as exc:
+        return Outcome(STATUS_SCREENED, screened_note(exc))
     if segs.status == 2:
         return Outcome(STATUS_SCREENED, "no lift-off: the thrust never exceeded the weight along the guide")
     try:
